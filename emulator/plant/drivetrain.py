@@ -1,0 +1,96 @@
+"""Gear, wheelset and wheel-rail creep force.
+
+Creep force: Polach, "Creep forces in simulations of traction vehicles running on
+adhesion limit", Wear 258 (2005) 992-1000::
+
+    F = 2 Q mu / pi * ( k_A eps / (1 + (k_A eps)^2) + arctan(k_S eps) )
+    eps = 2/3 * C pi a^2 b / (Q mu) * s,     mu = mu0 ((1 - A) e^(-B w) + A)
+
+with s = w / v the creep and w the slip velocity. Writing the contact stiffness by
+Kalker's linear creep coefficient K = G a b c11 (C = 3 G c11 / (8 a)) gives
+eps = (pi/4) K s / (Q mu), so that for small creep F -> (k_A + k_S)/2 * K s, Kalker's
+linear law reduced by Polach's factors. Q and K are per axle (two wheels): F is linear
+in both, so an axle is one contact with twice a wheel's load and stiffness.
+
+Near standstill the creep denominator is regularised, s = w / sqrt(v^2 + v_ref^2), so
+the force stays finite and smooth when the train starts or rolls back.
+
+Maximum adhesion by Curtius & Kniffler (Elektrische Bahnen 20, 1950), dry rail:
+mu_max = 7.5 / (v + 44) + 0.161, v in km/h.
+"""
+
+from __future__ import annotations
+
+import math
+
+from .jit import compiled, compiled_inline
+
+#: Polach parameter sets [memory, corroborated in REFERENCES.md]: k_A, k_S, mu0, A, B (s/m)
+POLACH_DRY = (1.0, 0.4, 0.55, 0.4, 0.6)
+POLACH_WET = (0.3, 0.1, 0.30, 0.4, 0.2)
+RAIL_CONDITIONS = {"dry": POLACH_DRY, "wet": POLACH_WET}
+
+
+def curtius_kniffler(speed_kmh: float) -> float:
+    """Maximum adhesion coefficient on dry rail, mu = 7.5/(v + 44) + 0.161, v in km/h."""
+    return 7.5 / (speed_kmh + 44.0) + 0.161
+
+
+@compiled
+def polach_force(w: float, v: float, axle_load_n: float, kalker_n: float, k_a: float,
+                 k_s: float, mu0: float, a_ratio: float, b_decay: float, v_ref: float):
+    """Longitudinal creep force of an axle and its derivative by slip velocity.
+
+    Args:
+        w: slip velocity omega_w r - v, m/s.
+        v: train speed, m/s (only its magnitude enters the creep).
+        axle_load_n: normal force Q of the axle, N.
+        kalker_n: Kalker linear creep coefficient K of the axle, N.
+        k_a, k_s: Polach reduction factors, 1.
+        mu0, a_ratio, b_decay: friction at zero slip, limit ratio A, decay B (s/m).
+        v_ref: regularisation speed of the creep denominator, m/s.
+
+    Returns:
+        (F in N, dF/dw in N s/m). F has the sign of w.
+    """
+    if mu0 <= 0.0 or axle_load_n <= 0.0:
+        return 0.0, 0.0
+    aw = abs(w)
+    sgn = 1.0 if w >= 0.0 else -1.0
+    v_d = math.sqrt(v * v + v_ref * v_ref)
+    ex = math.exp(-b_decay * aw)
+    mu = mu0 * ((1.0 - a_ratio) * ex + a_ratio)
+    dmu = -mu0 * (1.0 - a_ratio) * b_decay * ex  # d mu / d|w|
+    kappa = 0.25 * math.pi * kalker_n / axle_load_n
+    eps = kappa * aw / (v_d * mu)
+    deps = kappa / (v_d * mu) - kappa * aw * dmu / (v_d * mu * mu)
+    ka_e = k_a * eps
+    ks_e = k_s * eps
+    f = ka_e / (1.0 + ka_e * ka_e) + math.atan(ks_e)
+    df = (k_a * (1.0 - ka_e * ka_e) / ((1.0 + ka_e * ka_e) ** 2)
+          + k_s / (1.0 + ks_e * ks_e))
+    scale = 2.0 * axle_load_n / math.pi
+    force = scale * mu * f
+    dforce = scale * (dmu * f + mu * df * deps)  # symmetric: F odd, dF/dw even in w
+    return sgn * force, dforce
+
+
+@compiled_inline
+def wheel_torque(motor_torque: float, motor_speed: float, gear: float, eff: float) -> float:
+    """Torque at the wheelset from the motor torque through a gear with losses, N m.
+
+    Motoring (power to the wheel): T_w = i eta T_m; braking (power to the motor):
+    T_w = i T_m / eta. The loss is always taken from the flow.
+    """
+    if motor_torque * motor_speed >= 0.0:
+        return gear * eff * motor_torque
+    return gear * motor_torque / eff
+
+
+def wheel_speed_to_motor_frequency(speed_mps: float, wheel_diameter_m: float, gear: float,
+                                   pole_pairs: int) -> float:
+    """Stator electrical frequency at zero slip for a train speed, Hz.
+
+    f = p * i * v / (pi D): wheel revolutions v/(pi D), times gear, times pole pairs.
+    """
+    return pole_pairs * gear * speed_mps / (math.pi * wheel_diameter_m)

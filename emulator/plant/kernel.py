@@ -1,0 +1,409 @@
+"""The compiled sub-step loop that advances the whole trainset by one frame.
+
+Order inside each sub-step of length h (commands held over the frame):
+
+1. per inverter: the held stator voltage from duties, DC-link voltage and the sign of
+   each phase current at the start of the sub-step (dead time, device drops), or the
+   diode-bridge voltage when the gates are blocked, or an ideal sinusoidal source;
+2. per motor: exact zero-order-hold step of the flux linkages (machine.py) with the
+   rotor speed frozen at the refresh value; energies from exact flux integrals;
+3. per motor shaft: gear and wheelset with the creep force linearised and stepped by
+   backward Euler on the slip velocity (the contact is stiff: tau ~ 0.1 ms per m/s
+   of speed), or an imposed speed (dynamometer), or a free shaft with a load torque;
+4. train: lumped mass with stiction at rest.
+
+The machine matrices are refreshed at the start of each frame (default) or of each
+sub-step (``refresh_each``), at the speed predicted for the middle of the interval,
+which makes the electrical-mechanical coupling second-order accurate. Thermal networks
+advance once per frame with the frame's mean losses.
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+
+import numpy as np
+
+from .drivetrain import polach_force, wheel_torque
+from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents
+from .jit import compiled, compiled_inline
+from .layout import (
+    II_FIRST_MOTOR,
+    II_LINK,
+    II_MOTOR_COUNT,
+    II_SOURCE,
+    IP_TH_CH,
+    IP_TH_CJ,
+    IP_TH_GHA,
+    IP_TH_GJH,
+    IP_THERMAL_ON,
+    IP_VF0,
+    IS_E_COND,
+    IS_E_DC,
+    IS_E_SW,
+    IS_IA,
+    IS_IB,
+    IS_IC,
+    IS_IDC,
+    IS_Q,
+    IS_T_H,
+    IS_T_J,
+    IS_U_ALPHA,
+    IS_U_BETA,
+    IU_DA,
+    IU_DB,
+    IU_DC,
+    IU_ENABLE,
+    IU_SINE_AMP,
+    IU_SINE_FREQ,
+    IU_SINE_PHASE,
+    LS_IDC,
+    LS_UDC,
+    MI_INVERTER,
+    MI_SAT_POINTS,
+    MI_SHAFT_MODE,
+    MP_ADHESION_FACTOR,
+    MP_AXLE_LOAD,
+    MP_COOLING,
+    MP_CREEP_VREF,
+    MP_GEAR,
+    MP_GEAR_EFF,
+    MP_J_ROTOR,
+    MP_J_WHEELSET,
+    MP_KA,
+    MP_KALKER,
+    MP_KS,
+    MP_LLR,
+    MP_LLS,
+    MP_MU0,
+    MP_POL_A,
+    MP_POL_B,
+    MP_POLE_PAIRS,
+    MP_TH_CR,
+    MP_TH_CS,
+    MP_TH_GRA,
+    MP_TH_GSA,
+    MP_TH_GSR,
+    MP_THERMAL_ON,
+    MP_WHEEL_R,
+    MS_ACCEL,
+    MS_ADHESION_UTIL,
+    MS_CREEP_FORCE,
+    MS_CREEP_VEL,
+    MS_CSR,
+    MS_CSS,
+    MS_E_CU_R,
+    MS_E_CU_S,
+    MS_E_GEAR,
+    MS_E_LOAD,
+    MS_E_SHAFT,
+    MS_E_SLIP,
+    MS_E_TERMINAL,
+    MS_LM,
+    MS_OMEGA_AT_REFRESH,
+    MS_OMEGA_M,
+    MS_OMEGA_REF,
+    MS_Q_ROTOR,
+    MS_Q_STATOR,
+    MS_RR,
+    MS_RS,
+    MS_T_ROTOR,
+    MS_T_STATOR,
+    MS_THETA_M,
+    MS_TORQUE,
+    MU_IMPOSED_SPEED,
+    MU_LOAD_TORQUE,
+    MX_CG,
+    MX_PHI11,
+    MX_PHI12,
+    MX_PHI21,
+    MX_PHI22,
+    MX_PSI_R,
+    MX_PSI_S,
+    SHAFT_DRIVETRAIN,
+    SHAFT_FREE,
+    SHAFT_IMPOSED_SPEED,
+    SOURCE_SINE,
+    TP_AMBIENT,
+    TP_DAVIS_A,
+    TP_DAVIS_B,
+    TP_DAVIS_C,
+    TP_GRAVITY,
+    TP_MASS,
+    TP_ROT_ALLOWANCE,
+    TS_ACCEL,
+    TS_E_BRAKE,
+    TS_E_GRADE,
+    TS_E_RESIST,
+    TS_POSITION,
+    TS_SPEED,
+    TS_TRACTIVE_FORCE,
+    TU_BRAKE_FORCE,
+    TU_GRADIENT,
+)
+from .machine import (
+    abs2,
+    currents,
+    currents_frozen,
+    flux_integrals,
+    refresh_matrices,
+    step_flux,
+    step_flux_sine,
+    torque,
+)
+from .thermal import two_node_step
+from .train import gradient_force, step_speed
+
+
+@compiled
+def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval):
+    """Freeze each motor's speed for the coming interval and rebuild its matrices."""
+    for m in range(mpar.shape[0]):
+        mode = mint[m, MI_SHAFT_MODE]
+        om = ms[m, MS_OMEGA_M]
+        if mode == SHAFT_IMPOSED_SPEED:
+            om_ref = mu[m, MU_IMPOSED_SPEED]
+        elif mode == SHAFT_FREE:
+            lm = ms[m, MS_LM]
+            i_s, _ = currents(mx[m, MX_PSI_S], mx[m, MX_PSI_R], mpar[m, MP_LLS] + lm,
+                              mpar[m, MP_LLR] + lm, lm)
+            t_e = torque(mx[m, MX_PSI_S], i_s, mpar[m, MP_POLE_PAIRS])
+            om_ref = om + 0.5 * interval * (t_e - mu[m, MU_LOAD_TORQUE]) / mpar[m, MP_J_ROTOR]
+        else:
+            ms[m, MS_ACCEL] = (om - ms[m, MS_OMEGA_AT_REFRESH]) / interval
+            om_ref = om + 0.5 * interval * ms[m, MS_ACCEL]
+        ms[m, MS_OMEGA_AT_REFRESH] = om
+        ms[m, MS_OMEGA_REF] = om_ref
+        k = mint[m, MI_INVERTER]
+        sine_omega = 0.0
+        if iint[k, II_SOURCE] == SOURCE_SINE:
+            sine_omega = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
+        refresh_matrices(mpar, ms, mx, m, mpar[m, MP_POLE_PAIRS] * om_ref, h, sine_omega,
+                         sat_i[m], sat_psi[m], mint[m, MI_SAT_POINTS])
+
+
+@compiled_inline
+def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
+    """Advance motor m's shaft; returns the creep force applied to the train, N."""
+    mode = mint[m, MI_SHAFT_MODE]
+    om = ms[m, MS_OMEGA_M]
+    force = 0.0
+    if mode == SHAFT_DRIVETRAIN:
+        gear = mpar[m, MP_GEAR]
+        r = mpar[m, MP_WHEEL_R]
+        j_eq = mpar[m, MP_J_WHEELSET] + gear * gear * mpar[m, MP_J_ROTOR]
+        ow = om / gear
+        t_w = wheel_torque(t_avg, om, gear, mpar[m, MP_GEAR_EFF])
+        w = ow * r - v
+        f, df = polach_force(w, v, mpar[m, MP_AXLE_LOAD], mpar[m, MP_KALKER], mpar[m, MP_KA],
+                             mpar[m, MP_KS], mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR],
+                             mpar[m, MP_POL_A], mpar[m, MP_POL_B], mpar[m, MP_CREEP_VREF])
+        # linearised backward Euler on the slip velocity (falling branch stays explicit)
+        kk = max(df, 0.0)
+        dw = h * (r * t_w / j_eq - r * r * f / j_eq - a_train) / (1.0 + h * r * r * kk / j_eq)
+        force = f + kk * dw
+        ow_new = ow + h * (t_w - r * force) / j_eq  # J_eq dw_w/dt = T_w - r F
+        om_new = gear * ow_new
+        ow_avg = 0.5 * (ow + ow_new)
+        ms[m, MS_E_GEAR] += (t_avg * gear - t_w) * ow_avg * h
+        ms[m, MS_E_SLIP] += force * r * ow_avg * h  # train's share removed after its step
+        ms[m, MS_CREEP_FORCE] = force
+        mu_eff = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR] * mpar[m, MP_AXLE_LOAD]
+        ms[m, MS_ADHESION_UTIL] = abs(force) / mu_eff if mu_eff > 0.0 else 0.0
+    elif mode == SHAFT_IMPOSED_SPEED:
+        om_new = mu[m, MU_IMPOSED_SPEED]
+        ms[m, MS_E_LOAD] += t_avg * 0.5 * (om + om_new) * h
+    else:
+        t_l = mu[m, MU_LOAD_TORQUE]
+        om_new = om + h * (t_avg - t_l) / mpar[m, MP_J_ROTOR]  # J dw/dt = T - T_L
+        ms[m, MS_E_LOAD] += t_l * 0.5 * (om + om_new) * h
+    om_avg = 0.5 * (om + om_new)
+    ms[m, MS_E_SHAFT] += t_avg * om_avg * h
+    ms[m, MS_THETA_M] += om_avg * h
+    ms[m, MS_OMEGA_M] = om_new
+    return force
+
+
+@compiled_inline
+def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, a_train):
+    """One sub-step of inverter k and its motors; returns the creep force on the train."""
+    first = iint[k, II_FIRST_MOTOR]
+    last = first + iint[k, II_MOTOR_COUNT]
+    udc = lst[iint[k, II_LINK], LS_UDC]
+    source = iint[k, II_SOURCE]
+    i_tot = 0j
+    g0 = 0j
+    g1 = 0j
+    blocked = source != SOURCE_SINE and iu[k, IU_ENABLE] < 0.5
+    for m in range(first, last):
+        ps = mx[m, MX_PSI_S]
+        pr = mx[m, MX_PSI_R]
+        i_s, _ = currents_frozen(ms, m, ps, pr)
+        i_tot += i_s
+        if blocked:
+            # end-of-step current with zero voltage, and its sensitivity to the voltage
+            ps_h = mx[m, MX_PHI11] * ps + mx[m, MX_PHI12] * pr
+            pr_h = mx[m, MX_PHI21] * ps + mx[m, MX_PHI22] * pr
+            g0 += ms[m, MS_CSS] * ps_h - ms[m, MS_CSR] * pr_h
+            g1 += mx[m, MX_CG]
+    p_sw = 0.0
+    s_a = s_b = s_c = 0.5
+    dr_a = dr_b = dr_c = 0.0
+    if source == SOURCE_SINE:
+        amp = iu[k, IU_SINE_AMP]
+        om_s = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
+        th0 = om_s * t + iu[k, IU_SINE_PHASE]
+        u = amp * cmath.exp(complex(0.0, th0))
+    elif blocked:
+        u_target = -g0 / g1 if g1 != 0j else 0j
+        u, s_a, s_b, s_c, dr_a, dr_b, dr_c = blocked_bridge(u_target, udc, ipar[k, IP_VF0])
+    else:
+        ia, ib, ic = phase_currents(i_tot)
+        va, s_a, dr_a, pa = leg_average(ipar, k, iu[k, IU_DA], ia, udc)
+        vb, s_b, dr_b, pb = leg_average(ipar, k, iu[k, IU_DB], ib, udc)
+        vc, s_c, dr_c, pc = leg_average(ipar, k, iu[k, IU_DC], ic, udc)
+        u = clarke_vec(va, vb, vc)
+        p_sw = pa + pb + pc
+    ist[k, IS_U_ALPHA] = u.real
+    ist[k, IS_U_BETA] = u.imag
+
+    force_sum = 0.0
+    int_i = 0j
+    i_end = 0j
+    for m in range(first, last):
+        pp = mpar[m, MP_POLE_PAIRS]
+        rs = ms[m, MS_RS]
+        rr = ms[m, MS_RR]
+        ps0 = mx[m, MX_PSI_S]
+        pr0 = mx[m, MX_PSI_R]
+        is0, ir0 = currents_frozen(ms, m, ps0, pr0)
+        if source == SOURCE_SINE:
+            om_s = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
+            th0 = om_s * t + iu[k, IU_SINE_PHASE]
+            ps1, pr1 = step_flux_sine(mx, m, iu[k, IU_SINE_AMP], th0, th0 + om_s * h)
+            is1, ir1 = currents_frozen(ms, m, ps1, pr1)
+            u1 = iu[k, IU_SINE_AMP] * cmath.exp(complex(0.0, th0 + om_s * h))
+            # source energy by the trapezoid rule (the source is not held)
+            e_in = 0.75 * h * ((u * is0.conjugate()).real + (u1 * is1.conjugate()).real)
+        else:
+            ps1, pr1 = step_flux(mx, m, u)
+            is1, ir1 = currents_frozen(ms, m, ps1, pr1)
+            ips, ipr = flux_integrals(mx, m, ps0, pr0, ps1, pr1, u, h)
+            int_is = ms[m, MS_CSS] * ips - ms[m, MS_CSR] * ipr
+            int_i += int_is
+            e_in = 1.5 * (u * int_is.conjugate()).real  # exact for the held voltage
+        mx[m, MX_PSI_S] = ps1
+        mx[m, MX_PSI_R] = pr1
+        i_end += is1
+        ms[m, MS_E_TERMINAL] += e_in
+        # copper losses 3/2 R |i|^2, trapezoid rule
+        e_cu_s = 0.75 * h * rs * (abs2(is0) + abs2(is1))
+        e_cu_r = 0.75 * h * rr * (abs2(ir0) + abs2(ir1))
+        ms[m, MS_E_CU_S] += e_cu_s
+        ms[m, MS_E_CU_R] += e_cu_r
+        ms[m, MS_Q_STATOR] += e_cu_s
+        ms[m, MS_Q_ROTOR] += e_cu_r
+        t0 = torque(ps0, is0, pp)
+        t1 = torque(ps1, is1, pp)
+        ms[m, MS_TORQUE] = t1
+        force_sum += _shaft_step(mpar, mint, mu, ms, m, 0.5 * (t0 + t1), v, a_train, h)
+
+    ia, ib, ic = phase_currents(i_end)
+    ist[k, IS_IA] = ia
+    ist[k, IS_IB] = ib
+    ist[k, IS_IC] = ic
+    if source != SOURCE_SINE:
+        ja, jb, jc = phase_currents(int_i)  # integrals of the phase currents, A s
+        q_dc = s_a * ja + s_b * jb + s_c * jc + (p_sw * h / udc if udc > 0.0 else 0.0)
+        e_cond = dr_a * ja + dr_b * jb + dr_c * jc
+        ist[k, IS_E_DC] += udc * q_dc
+        ist[k, IS_IDC] += q_dc  # charge; divided by the frame length at the end
+        ist[k, IS_E_COND] += e_cond
+        ist[k, IS_E_SW] += p_sw * h
+        ist[k, IS_Q] += e_cond + p_sw * h
+    return force_sum
+
+
+@compiled
+def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat_psi,
+                  ipar, iint, iu, ist, lst, tpar, tu, ts):
+    """Advance every converter, motor, axle and the train by n_sub sub-steps of h.
+
+    Arrays are laid out as in layout.py and updated in place. t0 is the plant time at
+    the start of the frame, s; periodic sources are evaluated at each sub-step's instant.
+    """
+    n_i = ipar.shape[0]
+    frame = n_sub * h
+    for k in range(n_i):
+        ist[k, IS_IDC] = 0.0
+    mass = tpar[TP_MASS]
+    m_eff = mass * (1.0 + tpar[TP_ROT_ALLOWANCE])
+    brake = max(tu[TU_BRAKE_FORCE], 0.0)
+    for s in range(n_sub):
+        t = t0 + s * h
+        if s == 0 or refresh_each:
+            _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h,
+                     h if refresh_each else frame)
+        v = ts[TS_SPEED]
+        force = 0.0
+        for k in range(n_i):
+            force += _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,
+                                       lst, v, ts[TS_ACCEL])
+        f_grade = gradient_force(mass, tpar[TP_GRAVITY], tu[TU_GRADIENT])
+        v_new, resist = step_speed(v, force - f_grade, tpar[TP_DAVIS_A] + brake,
+                                   tpar[TP_DAVIS_B], tpar[TP_DAVIS_C], m_eff, h)
+        v_avg = 0.5 * (v + v_new)
+        ts[TS_POSITION] += v_avg * h
+        ts[TS_ACCEL] = (v_new - v) / h
+        ts[TS_SPEED] = v_new
+        ts[TS_TRACTIVE_FORCE] = force
+        ts[TS_E_GRADE] += f_grade * v_avg * h
+        e_res = abs(resist * v_avg) * h
+        e_brake = brake * abs(v_avg) * h if resist != 0.0 else 0.0
+        e_brake = min(e_brake, e_res)
+        ts[TS_E_BRAKE] += e_brake
+        ts[TS_E_RESIST] += e_res - e_brake
+        for m in range(mpar.shape[0]):
+            if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN:
+                ms[m, MS_E_SLIP] -= ms[m, MS_CREEP_FORCE] * v_avg * h
+                ms[m, MS_CREEP_VEL] = (ms[m, MS_OMEGA_M] / mpar[m, MP_GEAR] * mpar[m, MP_WHEEL_R]
+                                       - v_new)
+
+    for k in range(n_i):
+        ist[k, IS_IDC] /= frame
+    for link in range(lst.shape[0]):
+        lst[link, LS_IDC] = 0.0
+    for k in range(n_i):
+        lst[iint[k, II_LINK], LS_IDC] += ist[k, IS_IDC]
+    _thermal_frame(mpar, ms, ipar, ist, tpar[TP_AMBIENT], frame)
+
+
+@compiled
+def _thermal_frame(mpar, ms, ipar, ist, ambient, frame):
+    """Give the frame's losses to the thermal networks and advance them by one frame."""
+    for m in range(mpar.shape[0]):
+        if mpar[m, MP_THERMAL_ON] > 0.5:
+            cool = mpar[m, MP_COOLING]
+            ts_, tr_ = two_node_step(ms[m, MS_T_STATOR], ms[m, MS_T_ROTOR],
+                                     ms[m, MS_Q_STATOR] / frame, ms[m, MS_Q_ROTOR] / frame,
+                                     mpar[m, MP_TH_CS], mpar[m, MP_TH_CR], mpar[m, MP_TH_GSR],
+                                     cool * mpar[m, MP_TH_GSA], cool * mpar[m, MP_TH_GRA],
+                                     ambient, frame)
+            ms[m, MS_T_STATOR] = ts_
+            ms[m, MS_T_ROTOR] = tr_
+        ms[m, MS_Q_STATOR] = 0.0
+        ms[m, MS_Q_ROTOR] = 0.0
+    for k in range(ipar.shape[0]):
+        if ipar[k, IP_THERMAL_ON] > 0.5:
+            tj, th = two_node_step(ist[k, IS_T_J], ist[k, IS_T_H], ist[k, IS_Q] / frame, 0.0,
+                                   ipar[k, IP_TH_CJ], ipar[k, IP_TH_CH], ipar[k, IP_TH_GJH],
+                                   0.0, ipar[k, IP_TH_GHA], ambient, frame)
+            ist[k, IS_T_J] = tj
+            ist[k, IS_T_H] = th
+        ist[k, IS_Q] = 0.0
+
+
+def empty_sat_tables(n_motor: int, n_points: int = 1) -> tuple[np.ndarray, np.ndarray]:
+    """Saturation tables for motors with linear magnetics."""
+    return np.ones((n_motor, n_points)), np.ones((n_motor, n_points))

@@ -1,0 +1,216 @@
+"""Column layout of the plant's flat state arrays.
+
+The whole trainset lives in a few 2-D numpy arrays, one row per motor, inverter or DC
+link, one column per quantity. The compiled kernel indexes them with the integer
+constants below (numba folds module-level ints into constants); the Python side reads
+them by name through :data:`READABLE`, which also carries each quantity's SI unit.
+
+Motors are stored grouped by inverter: the motors of inverter ``k`` are the rows
+``INV_FIRST_MOTOR .. INV_FIRST_MOTOR + INV_MOTOR_COUNT - 1``. In drivetrain mode each
+motor drives its own axle through its own gear, so axle data sit in the motor's row.
+"""
+
+from __future__ import annotations
+
+# --- motor parameters: float64 [n_motor, MP_N] ---------------------------------------
+MP_RS20 = 0  # stator resistance at reference temperature, ohm
+MP_RR20 = 1  # rotor resistance referred to stator at reference temperature, ohm
+MP_LLS = 2  # stator leakage inductance, H
+MP_LLR = 3  # rotor leakage inductance referred to stator, H
+MP_LM = 4  # unsaturated magnetising inductance, H
+MP_POLE_PAIRS = 5  # pole pairs, 1
+MP_J_ROTOR = 6  # rotor inertia, kg m^2
+MP_ALPHA_S = 7  # stator resistance temperature coefficient, 1/K
+MP_ALPHA_R = 8  # rotor resistance temperature coefficient, 1/K
+MP_T_REF = 9  # temperature at which RS20/RR20 hold, K
+MP_GEAR = 10  # gear ratio motor speed / wheel speed, 1
+MP_GEAR_EFF = 11  # gear efficiency, 1
+MP_J_WHEELSET = 12  # wheelset inertia incl. large gear wheel, kg m^2
+MP_WHEEL_R = 13  # wheel rolling radius, m
+MP_AXLE_LOAD = 14  # axle load (normal force of both wheels), N
+MP_KALKER = 15  # Kalker linear creep coefficient G*a*b*c11 of the axle (two wheels), N
+MP_KA = 16  # Polach reduction factor in the adhesion area, 1
+MP_KS = 17  # Polach reduction factor in the slip area, 1
+MP_MU0 = 18  # Polach maximum friction coefficient at zero slip velocity, 1
+MP_POL_A = 19  # Polach ratio of limit friction at infinite slip velocity to MU0, 1
+MP_POL_B = 20  # Polach exponential friction decay, s/m
+MP_ADHESION_FACTOR = 21  # scenario scaling of MU0 per axle, 1
+MP_CREEP_VREF = 22  # creep denominator regularisation speed, m/s
+MP_TH_CS = 23  # stator heat capacity, J/K
+MP_TH_CR = 24  # rotor heat capacity, J/K
+MP_TH_GSR = 25  # stator-rotor thermal conductance, W/K
+MP_TH_GSA = 26  # stator-coolant thermal conductance, W/K
+MP_TH_GRA = 27  # rotor-coolant thermal conductance, W/K
+MP_COOLING = 28  # cooling effectiveness (1 normal, 0 lost), scales GSA and GRA
+MP_THERMAL_ON = 29  # 1 thermal model active, 0 temperatures held
+MP_N = 30
+
+# --- motor integer data: int64 [n_motor, MI_N] ----------------------------------------
+MI_INVERTER = 0  # index of the feeding inverter
+MI_SHAFT_MODE = 1  # SHAFT_DRIVETRAIN, SHAFT_IMPOSED_SPEED or SHAFT_FREE
+MI_SAT_POINTS = 2  # points in the saturation table (0: linear magnetics)
+MI_N = 3
+
+SHAFT_DRIVETRAIN = 0
+SHAFT_IMPOSED_SPEED = 1
+SHAFT_FREE = 2
+
+# --- motor inputs: float64 [n_motor, MU_N] --------------------------------------------
+MU_LOAD_TORQUE = 0  # load torque on a free shaft, N m (opposes positive speed)
+MU_IMPOSED_SPEED = 1  # dynamometer shaft speed, rad/s (mechanical)
+MU_N = 2
+
+# --- motor state and outputs: float64 [n_motor, MS_N] ---------------------------------
+MS_OMEGA_M = 0  # rotor mechanical speed, rad/s
+MS_THETA_M = 1  # rotor mechanical angle, rad (unwrapped)
+MS_T_STATOR = 2  # stator winding temperature, K
+MS_T_ROTOR = 3  # rotor cage temperature, K
+MS_OMEGA_REF = 4  # speed at which the machine matrices were frozen, rad/s
+MS_ACCEL = 5  # shaft acceleration over the last refresh interval, rad/s^2
+MS_TORQUE = 6  # electromagnetic torque, N m
+MS_CREEP_VEL = 7  # slip velocity omega_w*r - v, m/s
+MS_CREEP_FORCE = 8  # longitudinal creep force of the axle, N
+MS_LM = 9  # magnetising inductance in use, H
+MS_E_TERMINAL = 10  # electrical energy into the terminals, J
+MS_E_CU_S = 11  # stator copper loss energy, J
+MS_E_CU_R = 12  # rotor copper loss energy, J
+MS_E_SHAFT = 13  # electromagnetic torque x shaft speed energy, J
+MS_E_GEAR = 14  # gear loss energy, J
+MS_E_SLIP = 15  # wheel-rail slip loss energy F*w, J
+MS_E_LOAD = 16  # energy into the load / dynamometer, J
+MS_Q_STATOR = 17  # stator loss energy not yet given to the thermal model, J
+MS_Q_ROTOR = 18  # rotor loss energy not yet given to the thermal model, J
+MS_OMEGA_AT_REFRESH = 19  # speed at the last refresh, rad/s
+MS_ADHESION_UTIL = 20  # creep force / (mu0 * axle load), 1
+MS_RS = 21  # stator resistance in use (at the last refresh), ohm
+MS_RR = 22  # rotor resistance in use, ohm
+MS_CSS = 23  # current coefficients at the last refresh: i_s = CSS psi_s - CSR psi_r,
+MS_CSR = 24  # i_r = CRR psi_r - CSR psi_s, i.e. L_r/D, L_m/D and L_s/D, 1/H
+MS_CRR = 25
+MS_N = 26
+
+# --- motor complex data: complex128 [n_motor, MX_N] -----------------------------------
+MX_PSI_S = 0  # stator flux linkage space vector (stationary frame), V s
+MX_PSI_R = 1  # rotor flux linkage space vector referred to stator, V s
+MX_PHI11 = 2  # zero-order-hold transition matrix entries
+MX_PHI12 = 3
+MX_PHI21 = 4
+MX_PHI22 = 5
+MX_G1 = 6  # zero-order-hold input vector (stator voltage -> flux)
+MX_G2 = 7
+MX_AI11 = 8  # inverse of the system matrix, for exact flux integrals
+MX_AI12 = 9
+MX_AI21 = 10
+MX_AI22 = 11
+MX_CG = 12  # d(stator current at end of sub-step) / d(voltage)
+MX_P1 = 13  # particular solution for a sinusoidal source, per volt of amplitude
+MX_P2 = 14
+MX_N = 15
+
+# --- inverter parameters: float64 [n_inv, IP_N] ---------------------------------------
+IP_FSW = 0  # switching frequency, Hz
+IP_TDEAD = 1  # dead time, s
+IP_VCE0 = 2  # IGBT threshold voltage, V
+IP_RCE = 3  # IGBT slope resistance, ohm
+IP_VF0 = 4  # diode threshold voltage, V
+IP_RF = 5  # diode slope resistance, ohm
+IP_ESW = 6  # switching energy per pulse (on + off + recovery) at the reference point, J
+IP_ESW_VREF = 7  # reference voltage of IP_ESW, V
+IP_ESW_IREF = 8  # reference current of IP_ESW, A
+IP_IBAND = 9  # current band over which the dead-time and drop signs change, A
+IP_TH_CJ = 10  # junction (module) heat capacity, J/K
+IP_TH_CH = 11  # heatsink heat capacity, J/K
+IP_TH_GJH = 12  # junction-heatsink conductance, W/K
+IP_TH_GHA = 13  # heatsink-coolant conductance, W/K
+IP_THERMAL_ON = 14
+IP_N = 15
+
+# --- inverter integer data: int64 [n_inv, II_N] ---------------------------------------
+II_LINK = 0  # DC link index
+II_FIRST_MOTOR = 1
+II_MOTOR_COUNT = 2
+II_SOURCE = 3  # SOURCE_INVERTER or SOURCE_SINE
+II_N = 4
+
+SOURCE_INVERTER = 0
+SOURCE_SINE = 1
+
+# --- inverter commands: float64 [n_inv, IU_N] ------------------------------------------
+IU_DA = 0  # duty cycle of leg a, 0..1
+IU_DB = 1
+IU_DC = 2
+IU_ENABLE = 3  # 1 gates released, 0 gates blocked
+IU_SINE_AMP = 4  # ideal source: space-vector amplitude (phase peak), V
+IU_SINE_FREQ = 5  # ideal source frequency, Hz
+IU_SINE_PHASE = 6  # ideal source phase at t = 0, rad
+IU_N = 7
+
+# --- inverter state: float64 [n_inv, IS_N] ----------------------------------------------
+IS_IA = 0  # phase currents (sum of its motors), A
+IS_IB = 1
+IS_IC = 2
+IS_IDC = 3  # DC-link current drawn, mean over the last frame, A
+IS_T_J = 4  # junction temperature, K
+IS_T_H = 5  # heatsink temperature, K
+IS_U_ALPHA = 6  # applied stator voltage space vector, V
+IS_U_BETA = 7
+IS_E_DC = 8  # energy drawn from the DC link, J
+IS_E_COND = 9  # conduction loss energy, J
+IS_E_SW = 10  # switching loss energy, J
+IS_Q = 11  # loss energy not yet given to the thermal model, J
+IS_N = 12
+
+# --- DC link state: float64 [n_link, LS_N] ------------------------------------------------
+LS_UDC = 0  # DC-link voltage, V
+LS_IDC = 1  # current drawn by the inverters, mean over the last frame, A
+LS_N = 2
+
+# --- train: float64 vectors ---------------------------------------------------------------
+TP_MASS = 0  # train mass, kg
+TP_ROT_ALLOWANCE = 1  # unmodelled rotating mass as a fraction of the mass, 1
+TP_DAVIS_A = 2  # running resistance constant term, N
+TP_DAVIS_B = 3  # linear term, N/(m/s)
+TP_DAVIS_C = 4  # quadratic term, N/(m/s)^2
+TP_GRAVITY = 5  # m/s^2
+TP_AMBIENT = 6  # coolant / ambient temperature, K
+TP_N = 7
+
+TU_GRADIENT = 0  # track gradient, rise over run (positive uphill), 1
+TU_BRAKE_FORCE = 1  # friction brake force demanded, N (>= 0)
+TU_N = 2
+
+TS_SPEED = 0  # train speed, m/s
+TS_POSITION = 1  # position along the track, m
+TS_ACCEL = 2  # acceleration over the last sub-step, m/s^2
+TS_TRACTIVE_FORCE = 3  # sum of creep forces, N
+TS_E_RESIST = 4  # running resistance energy, J
+TS_E_GRADE = 5  # potential energy gained on the gradient, J
+TS_E_BRAKE = 6  # friction brake energy, J
+TS_N = 7
+
+#: name -> (array, column, SI unit, description) for reading states by name.
+READABLE: dict[str, tuple[str, int, str, str]] = {
+    "motor.speed_rad_s": ("motor_state", MS_OMEGA_M, "rad/s", "rotor mechanical speed"),
+    "motor.angle_rad": ("motor_state", MS_THETA_M, "rad", "rotor mechanical angle"),
+    "motor.stator_temperature_k": ("motor_state", MS_T_STATOR, "K", "stator winding"),
+    "motor.rotor_temperature_k": ("motor_state", MS_T_ROTOR, "K", "rotor cage"),
+    "motor.torque_nm": ("motor_state", MS_TORQUE, "N m", "electromagnetic torque"),
+    "motor.creep_velocity_mps": ("motor_state", MS_CREEP_VEL, "m/s", "wheel slip velocity"),
+    "motor.creep_force_n": ("motor_state", MS_CREEP_FORCE, "N", "axle creep force"),
+    "motor.adhesion_utilisation": ("motor_state", MS_ADHESION_UTIL, "1", "F/(mu0 Q)"),
+    "motor.magnetising_inductance_h": ("motor_state", MS_LM, "H", "L_m in use"),
+    "inverter.phase_current_a_a": ("inverter_state", IS_IA, "A", "phase a current"),
+    "inverter.phase_current_b_a": ("inverter_state", IS_IB, "A", "phase b current"),
+    "inverter.phase_current_c_a": ("inverter_state", IS_IC, "A", "phase c current"),
+    "inverter.dc_current_a": ("inverter_state", IS_IDC, "A", "DC current, frame mean"),
+    "inverter.junction_temperature_k": ("inverter_state", IS_T_J, "K", "IGBT module"),
+    "inverter.heatsink_temperature_k": ("inverter_state", IS_T_H, "K", "heatsink"),
+    "inverter.voltage_alpha_v": ("inverter_state", IS_U_ALPHA, "V", "applied u_alpha"),
+    "inverter.voltage_beta_v": ("inverter_state", IS_U_BETA, "V", "applied u_beta"),
+    "dc_link.voltage_v": ("link_state", LS_UDC, "V", "DC-link voltage"),
+    "dc_link.current_a": ("link_state", LS_IDC, "A", "inverter current, frame mean"),
+    "train.speed_mps": ("train_state", TS_SPEED, "m/s", "train speed"),
+    "train.position_m": ("train_state", TS_POSITION, "m", "position"),
+    "train.acceleration_mps2": ("train_state", TS_ACCEL, "m/s^2", "acceleration"),
+    "train.tractive_force_n": ("train_state", TS_TRACTIVE_FORCE, "N", "sum of creep forces"),
+}

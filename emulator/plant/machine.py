@@ -1,0 +1,255 @@
+"""Induction machine: space-vector model in the stationary frame.
+
+Rotor quantities are referred to the stator; amplitude-invariant Clarke transform.
+With flux linkages as state (Novotny & Lipo, *Vector Control and Dynamics of AC Drives*,
+1996, ch. 5; any drives text)::
+
+    dpsi_s/dt = u_s - R_s i_s
+    dpsi_r/dt = -R_r i_r + j omega_r psi_r          (omega_r = p * omega_m, electrical)
+    i_s = (L_r psi_s - L_m psi_r) / D,  i_r = (L_s psi_r - L_m psi_s) / D,
+    D = L_s L_r - L_m^2,  L_s = L_ls + L_m,  L_r = L_lr + L_m
+    T = 3/2 p Im(conj(psi_s) i_s) = 3/2 p (psi_sa i_sb - psi_sb i_sa)
+
+For a frozen rotor speed this is the complex linear system dx/dt = A x + B u with
+x = [psi_s, psi_r], B = [1, 0]. Its zero-order-hold discretisation over a step h is
+exact for a held voltage: x(h) = Phi x(0) + Gamma u, Phi = e^{A h},
+Gamma = A^{-1} (Phi - I) B. The 2x2 exponential has the closed form (Putzer / Cayley-
+Hamilton): with A h = s I + N, N traceless, N^2 = q^2 I,
+e^{A h} = e^s (cosh q I + sinh(q)/q N).
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+
+import numpy as np
+
+from .jit import compiled, compiled_inline
+from .layout import (
+    MP_ALPHA_R,
+    MP_ALPHA_S,
+    MP_LLR,
+    MP_LLS,
+    MP_LM,
+    MP_RR20,
+    MP_RS20,
+    MP_T_REF,
+    MS_CRR,
+    MS_CSR,
+    MS_CSS,
+    MS_LM,
+    MS_RR,
+    MS_RS,
+    MS_T_ROTOR,
+    MS_T_STATOR,
+    MX_AI11,
+    MX_AI12,
+    MX_AI21,
+    MX_AI22,
+    MX_CG,
+    MX_G1,
+    MX_G2,
+    MX_P1,
+    MX_P2,
+    MX_PHI11,
+    MX_PHI12,
+    MX_PHI21,
+    MX_PHI22,
+    MX_PSI_R,
+    MX_PSI_S,
+)
+
+
+@compiled_inline
+def winding_resistance(r_ref: float, alpha: float, temp_k: float, temp_ref_k: float) -> float:
+    """Copper/aluminium resistance at a temperature: R = R_ref (1 + alpha (T - T_ref)).
+
+    Linear temperature law for conductors; alpha = 0.00393 1/K for annealed copper at
+    20 degC (common practice, IEC 60028 gives 1/234.5 K for 20 degC reference).
+    """
+    return r_ref * (1.0 + alpha * (temp_k - temp_ref_k))
+
+
+@compiled
+def saturated_lm(i_m: float, table_i: np.ndarray, table_psi: np.ndarray, n: int,
+                 lm_linear: float) -> float:
+    """Secant magnetising inductance L_m = psi_m(i_m) / i_m from a magnetising curve.
+
+    The table gives the main-flux magnitude (V s, space-vector peak) against the
+    magnetising current magnitude (A, peak), rising and starting above zero current.
+    Below the first point the machine is linear with the first point's secant.
+    """
+    if n < 2 or i_m <= table_i[0]:
+        return lm_linear if n < 1 else table_psi[0] / table_i[0]
+    if i_m >= table_i[n - 1]:
+        # extrapolate with the last incremental slope (deep saturation)
+        slope = (table_psi[n - 1] - table_psi[n - 2]) / (table_i[n - 1] - table_i[n - 2])
+        return (table_psi[n - 1] + slope * (i_m - table_i[n - 1])) / i_m
+    k = 1
+    while table_i[k] < i_m:
+        k += 1
+    w = (i_m - table_i[k - 1]) / (table_i[k] - table_i[k - 1])
+    psi = table_psi[k - 1] + w * (table_psi[k] - table_psi[k - 1])
+    return psi / i_m
+
+
+@compiled_inline
+def abs2(z: complex) -> float:
+    """|z|^2 without a square root."""
+    return z.real * z.real + z.imag * z.imag
+
+
+@compiled_inline
+def currents(psi_s: complex, psi_r: complex, ls: float, lr: float, lm: float):
+    """Stator and rotor current space vectors from the flux linkages, A."""
+    d = ls * lr - lm * lm
+    i_s = (lr * psi_s - lm * psi_r) / d
+    i_r = (ls * psi_r - lm * psi_s) / d
+    return i_s, i_r
+
+
+@compiled_inline
+def currents_frozen(ms: np.ndarray, m: int, psi_s: complex, psi_r: complex):
+    """Stator and rotor currents with the coefficients stored at the last refresh, A."""
+    css = ms[m, MS_CSS]
+    csr = ms[m, MS_CSR]
+    return css * psi_s - csr * psi_r, ms[m, MS_CRR] * psi_r - csr * psi_s
+
+
+@compiled_inline
+def torque(psi_s: complex, i_s: complex, pole_pairs: float) -> float:
+    """Electromagnetic torque T = 3/2 p (psi_sa i_sb - psi_sb i_sa), N m."""
+    return 1.5 * pole_pairs * (psi_s.real * i_s.imag - psi_s.imag * i_s.real)
+
+
+@compiled
+def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: int,
+                     omega_e: float, h: float, sine_omega: float,
+                     sat_i: np.ndarray, sat_psi: np.ndarray, sat_n: int) -> None:
+    """Recompute motor m's zero-order-hold matrices for rotor speed omega_e (electrical).
+
+    Resistances follow the winding temperatures, L_m the saturation curve at the present
+    magnetising current. Also stores A^{-1} (for exact flux integrals over a step), the
+    sensitivity of the end-of-step stator current to the held voltage (for the blocked
+    bridge), and the particular solution (j w - A)^{-1} B of a sinusoidal source.
+    """
+    rs = winding_resistance(mpar[m, MP_RS20], mpar[m, MP_ALPHA_S], mstate[m, MS_T_STATOR],
+                            mpar[m, MP_T_REF])
+    rr = winding_resistance(mpar[m, MP_RR20], mpar[m, MP_ALPHA_R], mstate[m, MS_T_ROTOR],
+                            mpar[m, MP_T_REF])
+    lm = mpar[m, MP_LM]
+    if sat_n > 0:
+        i_s, i_r = currents(mx[m, MX_PSI_S], mx[m, MX_PSI_R], mpar[m, MP_LLS] + mstate[m, MS_LM],
+                            mpar[m, MP_LLR] + mstate[m, MS_LM], mstate[m, MS_LM])
+        lm = saturated_lm(abs(i_s + i_r), sat_i, sat_psi, sat_n, lm)
+    mstate[m, MS_LM] = lm
+    ls = mpar[m, MP_LLS] + lm
+    lr = mpar[m, MP_LLR] + lm
+    d = ls * lr - lm * lm
+    mstate[m, MS_RS] = rs
+    mstate[m, MS_RR] = rr
+    mstate[m, MS_CSS] = lr / d
+    mstate[m, MS_CSR] = lm / d
+    mstate[m, MS_CRR] = ls / d
+    a11 = complex(-rs * lr / d, 0.0)
+    a12 = complex(rs * lm / d, 0.0)
+    a21 = complex(rr * lm / d, 0.0)
+    a22 = complex(-rr * ls / d, omega_e)
+    # e^{A h} by the traceless split A h = s I + N, N^2 = q^2 I
+    s = 0.5 * (a11 + a22) * h
+    dd = 0.5 * (a11 - a22) * h
+    q = cmath.sqrt(dd * dd + a12 * a21 * h * h)
+    es = cmath.exp(s)
+    ch = cmath.cosh(q)
+    shq = cmath.sinh(q) / q if abs(q) > 1e-6 else 1.0 + q * q / 6.0
+    phi11 = es * (ch + shq * dd)
+    phi22 = es * (ch - shq * dd)
+    phi12 = es * shq * a12 * h
+    phi21 = es * shq * a21 * h
+    det = a11 * a22 - a12 * a21
+    ai11 = a22 / det
+    ai12 = -a12 / det
+    ai21 = -a21 / det
+    ai22 = a11 / det
+    # Gamma = A^{-1} (Phi - I) [1, 0]^T
+    g1 = ai11 * (phi11 - 1.0) + ai12 * phi21
+    g2 = ai21 * (phi11 - 1.0) + ai22 * phi21
+    mx[m, MX_PHI11] = phi11
+    mx[m, MX_PHI12] = phi12
+    mx[m, MX_PHI21] = phi21
+    mx[m, MX_PHI22] = phi22
+    mx[m, MX_G1] = g1
+    mx[m, MX_G2] = g2
+    mx[m, MX_AI11] = ai11
+    mx[m, MX_AI12] = ai12
+    mx[m, MX_AI21] = ai21
+    mx[m, MX_AI22] = ai22
+    mx[m, MX_CG] = (lr / d) * g1 - (lm / d) * g2
+    # particular solution of dx/dt = A x + B U e^{j w t}: x_p = (j w I - A)^{-1} B U e^{j w t}
+    jw = complex(0.0, sine_omega)
+    det2 = (jw - a11) * (jw - a22) - a12 * a21
+    mx[m, MX_P1] = (jw - a22) / det2
+    mx[m, MX_P2] = a21 / det2
+
+
+@compiled_inline
+def step_flux(mx: np.ndarray, m: int, u: complex):
+    """Advance motor m's flux linkages one sub-step with the held stator voltage u.
+
+    Returns the new (psi_s, psi_r) and the exact integrals of both over the step,
+    int x dt = A^{-1} (x(h) - x(0) - B u h) / h * h (caller multiplies by h: see kernel).
+    """
+    ps0 = mx[m, MX_PSI_S]
+    pr0 = mx[m, MX_PSI_R]
+    ps1 = mx[m, MX_PHI11] * ps0 + mx[m, MX_PHI12] * pr0 + mx[m, MX_G1] * u
+    pr1 = mx[m, MX_PHI21] * ps0 + mx[m, MX_PHI22] * pr0 + mx[m, MX_G2] * u
+    return ps1, pr1
+
+
+@compiled_inline
+def flux_integrals(mx: np.ndarray, m: int, ps0: complex, pr0: complex, ps1: complex,
+                   pr1: complex, u: complex, h: float):
+    """Exact integrals of psi_s and psi_r over a step with held voltage u, V s^2.
+
+    From dx/dt = A x + B u: int_0^h x dt = A^{-1} (x(h) - x(0) - B u h).
+    """
+    r1 = ps1 - ps0 - u * h
+    r2 = pr1 - pr0
+    return (mx[m, MX_AI11] * r1 + mx[m, MX_AI12] * r2,
+            mx[m, MX_AI21] * r1 + mx[m, MX_AI22] * r2)
+
+
+@compiled_inline
+def step_flux_sine(mx: np.ndarray, m: int, amp: float, theta0: float, theta1: float):
+    """Advance motor m one sub-step from an ideal sinusoidal source, exactly.
+
+    u(t) = amp e^{j theta(t)}; with the particular solution x_p = P amp e^{j theta}
+    the homogeneous part decays with Phi: x(h) = Phi (x(0) - x_p(0)) + x_p(h).
+    """
+    e0 = amp * cmath.exp(complex(0.0, theta0))
+    e1 = amp * cmath.exp(complex(0.0, theta1))
+    ps0 = mx[m, MX_PSI_S] - mx[m, MX_P1] * e0
+    pr0 = mx[m, MX_PSI_R] - mx[m, MX_P2] * e0
+    ps1 = mx[m, MX_PHI11] * ps0 + mx[m, MX_PHI12] * pr0 + mx[m, MX_P1] * e1
+    pr1 = mx[m, MX_PHI21] * ps0 + mx[m, MX_PHI22] * pr0 + mx[m, MX_P2] * e1
+    return ps1, pr1
+
+
+@compiled_inline
+def magnetic_energy(psi_s: complex, i_s: complex, psi_r: complex, i_r: complex) -> float:
+    """Energy stored in the (linear) magnetic field of a three-phase machine, J.
+
+    W = 3/2 * 1/2 Re(psi_s conj(i_s) + psi_r conj(i_r)) with amplitude-invariant vectors.
+    """
+    return 0.75 * ((psi_s * i_s.conjugate()).real + (psi_r * i_r.conjugate()).real)
+
+
+def synchronous_speed_rpm(frequency_hz: float, poles: int) -> float:
+    """Synchronous speed n_s = 120 f / P in r/min (P poles, not pole pairs)."""
+    return 120.0 * frequency_hz / poles
+
+
+def clarke(a: float, b: float, c: float) -> complex:
+    """Amplitude-invariant Clarke transform of three phase quantities."""
+    return complex((2.0 * a - b - c) / 3.0, (b - c) / math.sqrt(3.0))

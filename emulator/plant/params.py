@@ -1,0 +1,134 @@
+"""Typed, validated plant parameters in SI units (built by emulator.profile)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+
+@dataclass(frozen=True)
+class MachineThermal:
+    """Two-node stator/rotor network; conductances to the coolant and between nodes."""
+
+    stator_capacity_j_per_k: float
+    rotor_capacity_j_per_k: float
+    stator_rotor_conductance_w_per_k: float
+    stator_coolant_conductance_w_per_k: float
+    rotor_coolant_conductance_w_per_k: float
+
+
+@dataclass(frozen=True)
+class MachineParams:
+    """Induction machine, T-equivalent circuit per phase, rotor referred to the stator."""
+
+    name: str
+    rated_power_w: float
+    rated_voltage_v: float  # line-to-line rms
+    rated_frequency_hz: float
+    pole_pairs: int
+    stator_resistance_ohm: float
+    rotor_resistance_ohm: float
+    stator_leakage_h: float
+    rotor_leakage_h: float
+    magnetising_h: float
+    rotor_inertia_kgm2: float
+    reference_temperature_k: float
+    stator_temp_coeff_per_k: float
+    rotor_temp_coeff_per_k: float
+    saturation_current_a: tuple[float, ...] = ()
+    saturation_flux_vs: tuple[float, ...] = ()
+    thermal: MachineThermal | None = None
+
+
+@dataclass(frozen=True)
+class InverterParams:
+    """Two-level IGBT inverter data shared by all inverters of a trainset."""
+
+    switching_frequency_hz: float
+    dead_time_s: float
+    igbt_threshold_v: float
+    igbt_slope_ohm: float
+    diode_threshold_v: float
+    diode_slope_ohm: float
+    switching_energy_j: float
+    switching_energy_ref_v: float
+    switching_energy_ref_a: float
+    sign_band_a: float
+    junction_capacity_j_per_k: float = 0.0
+    heatsink_capacity_j_per_k: float = 0.0
+    junction_heatsink_w_per_k: float = 0.0
+    heatsink_coolant_w_per_k: float = 0.0
+    thermal: bool = False
+
+
+@dataclass(frozen=True)
+class DrivetrainParams:
+    """Gear, wheelset and wheel-rail contact of one motored axle."""
+
+    gear_ratio: float
+    gear_efficiency: float
+    wheelset_inertia_kgm2: float
+    axle_load_n: float
+    kalker_coefficient_n: float
+    rail_condition: str
+    creep_reference_speed_mps: float
+
+
+@dataclass(frozen=True)
+class DcLinkParams:
+    """A DC link; an ideal voltage source until the line side feeds it."""
+
+    name: str
+    voltage_v: float
+
+
+@dataclass(frozen=True)
+class ConverterParams:
+    """One inverter (motor converter) and the motors/axles it feeds in parallel."""
+
+    name: str
+    dc_link: int
+    wheel_diameters_m: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class SupplyParams:
+    """Catenary supply system the trainset is built for."""
+
+    nominal_voltage_v: float  # rms
+    frequency_hz: float
+
+
+@dataclass(frozen=True)
+class TrainParams:
+    """Longitudinal dynamics of the whole trainset."""
+
+    mass_kg: float
+    rotating_mass_allowance: float
+    davis_a_n: float
+    davis_b_n_per_mps: float
+    davis_c_n_per_mps2: float
+    max_speed_mps: float
+    ambient_temperature_k: float
+
+
+@dataclass(frozen=True)
+class TrainsetParams:
+    """Everything the plant needs to build its state arrays."""
+
+    name: str
+    source: str  # file the parameters came from, for messages
+    substep_s: float
+    frame_s: float
+    train: TrainParams
+    supply: SupplyParams
+    machine: MachineParams
+    drivetrain: DrivetrainParams
+    inverter: InverterParams
+    dc_links: tuple[DcLinkParams, ...]
+    converters: tuple[ConverterParams, ...]
+    notes: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def motor_count(self) -> int:
+        """Number of motors (and motored axles) of the trainset."""
+        return sum(len(c.wheel_diameters_m) for c in self.converters)

@@ -1,0 +1,396 @@
+"""The plant stepper: owns the state arrays, plant time and counters.
+
+``Plant.advance(commands, frame_s)`` holds the commands for one frame and runs the
+compiled kernel over it in fixed sub-steps. States are read by name (``plant.read(
+"train.speed_mps")``), see :data:`emulator.plant.layout.READABLE`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from . import layout as L
+from .drivetrain import RAIL_CONDITIONS
+from .kernel import advance_frame
+from .machine import currents, magnetic_energy
+from .params import (
+    ConverterParams,
+    DcLinkParams,
+    DrivetrainParams,
+    InverterParams,
+    MachineParams,
+    SupplyParams,
+    TrainParams,
+    TrainsetParams,
+)
+
+
+class CommandError(ValueError):
+    """A command the plant cannot apply (non-finite, out of range, wrong shape)."""
+
+
+@dataclass
+class Commands:
+    """What the power stages are told for one frame.
+
+    Attributes:
+        duty: per inverter, the three leg duty cycles, shape (n_inverter, 3), 0..1.
+        gates_enabled: per inverter, True when the gates are released.
+    """
+
+    duty: np.ndarray
+    gates_enabled: np.ndarray
+
+    @classmethod
+    def blocked(cls, n_inverter: int) -> Commands:
+        """All gates blocked, duties at 0.5."""
+        return cls(np.full((n_inverter, 3), 0.5), np.zeros(n_inverter, dtype=bool))
+
+
+@dataclass(frozen=True)
+class EnergyAccount:
+    """Energies since the start of the run, J; stored energies are present values."""
+
+    dc_link_in: float
+    semiconductor_conduction: float
+    semiconductor_switching: float
+    motor_terminals: float
+    stator_copper: float
+    rotor_copper: float
+    electromagnetic: float
+    gear_loss: float
+    slip_loss: float
+    load: float
+    running_resistance: float
+    friction_brake: float
+    potential: float
+    magnetic_stored: float
+    kinetic_stored: float
+
+
+class Plant:
+    """The whole drive of a trainset, stepped one frame at a time."""
+
+    def __init__(self, params: TrainsetParams, *, refresh_each_substep: bool = False) -> None:
+        self.params = params
+        self.substep_s = params.substep_s
+        self.refresh_each_substep = refresh_each_substep
+        self.time_s = 0.0
+        self.time_ns = 0
+        self.frames = 0
+        self.substeps = 0
+        mp, dp, ip = params.machine, params.drivetrain, params.inverter
+        n_m = params.motor_count
+        n_i = len(params.converters)
+        self.n_motors, self.n_inverters, self.n_links = n_m, n_i, len(params.dc_links)
+        self.mpar = np.zeros((n_m, L.MP_N))
+        self.mint = np.zeros((n_m, L.MI_N), dtype=np.int64)
+        self.mu = np.zeros((n_m, L.MU_N))
+        self.ms = np.zeros((n_m, L.MS_N))
+        self.mx = np.zeros((n_m, L.MX_N), dtype=np.complex128)
+        n_sat = max(1, len(mp.saturation_current_a))
+        self.sat_i = np.ones((n_m, n_sat))
+        self.sat_psi = np.ones((n_m, n_sat))
+        self.ipar = np.zeros((n_i, L.IP_N))
+        self.iint = np.zeros((n_i, L.II_N), dtype=np.int64)
+        self.iu = np.zeros((n_i, L.IU_N))
+        self.ist = np.zeros((n_i, L.IS_N))
+        self.lst = np.zeros((self.n_links, L.LS_N))
+        self.tpar = np.zeros(L.TP_N)
+        self.tu = np.zeros(L.TU_N)
+        self.ts = np.zeros(L.TS_N)
+        ambient = params.train.ambient_temperature_k
+        polach = RAIL_CONDITIONS[dp.rail_condition]
+        m = 0
+        for k, conv in enumerate(params.converters):
+            self.iint[k] = (conv.dc_link, m, len(conv.wheel_diameters_m), L.SOURCE_INVERTER)
+            for diameter in conv.wheel_diameters_m:
+                row = self.mpar[m]
+                row[L.MP_RS20] = mp.stator_resistance_ohm
+                row[L.MP_RR20] = mp.rotor_resistance_ohm
+                row[L.MP_LLS] = mp.stator_leakage_h
+                row[L.MP_LLR] = mp.rotor_leakage_h
+                row[L.MP_LM] = mp.magnetising_h
+                row[L.MP_POLE_PAIRS] = mp.pole_pairs
+                row[L.MP_J_ROTOR] = mp.rotor_inertia_kgm2
+                row[L.MP_ALPHA_S] = mp.stator_temp_coeff_per_k
+                row[L.MP_ALPHA_R] = mp.rotor_temp_coeff_per_k
+                row[L.MP_T_REF] = mp.reference_temperature_k
+                row[L.MP_GEAR] = dp.gear_ratio
+                row[L.MP_GEAR_EFF] = dp.gear_efficiency
+                row[L.MP_J_WHEELSET] = dp.wheelset_inertia_kgm2
+                row[L.MP_WHEEL_R] = 0.5 * diameter
+                row[L.MP_AXLE_LOAD] = dp.axle_load_n
+                row[L.MP_KALKER] = dp.kalker_coefficient_n
+                (row[L.MP_KA], row[L.MP_KS], row[L.MP_MU0], row[L.MP_POL_A],
+                 row[L.MP_POL_B]) = polach
+                row[L.MP_ADHESION_FACTOR] = 1.0
+                row[L.MP_CREEP_VREF] = dp.creep_reference_speed_mps
+                row[L.MP_COOLING] = 1.0
+                if mp.thermal is not None:
+                    th = mp.thermal
+                    row[L.MP_TH_CS] = th.stator_capacity_j_per_k
+                    row[L.MP_TH_CR] = th.rotor_capacity_j_per_k
+                    row[L.MP_TH_GSR] = th.stator_rotor_conductance_w_per_k
+                    row[L.MP_TH_GSA] = th.stator_coolant_conductance_w_per_k
+                    row[L.MP_TH_GRA] = th.rotor_coolant_conductance_w_per_k
+                    row[L.MP_THERMAL_ON] = 1.0
+                    self.ms[m, L.MS_T_STATOR] = ambient
+                    self.ms[m, L.MS_T_ROTOR] = ambient
+                else:
+                    self.ms[m, L.MS_T_STATOR] = mp.reference_temperature_k
+                    self.ms[m, L.MS_T_ROTOR] = mp.reference_temperature_k
+                self.ms[m, L.MS_LM] = mp.magnetising_h
+                self.mint[m] = (k, L.SHAFT_DRIVETRAIN, len(mp.saturation_current_a))
+                if mp.saturation_current_a:
+                    self.sat_i[m] = mp.saturation_current_a
+                    self.sat_psi[m] = mp.saturation_flux_vs
+                m += 1
+            row = self.ipar[k]
+            row[L.IP_FSW] = ip.switching_frequency_hz
+            row[L.IP_TDEAD] = ip.dead_time_s
+            row[L.IP_VCE0] = ip.igbt_threshold_v
+            row[L.IP_RCE] = ip.igbt_slope_ohm
+            row[L.IP_VF0] = ip.diode_threshold_v
+            row[L.IP_RF] = ip.diode_slope_ohm
+            row[L.IP_ESW] = ip.switching_energy_j
+            row[L.IP_ESW_VREF] = ip.switching_energy_ref_v
+            row[L.IP_ESW_IREF] = ip.switching_energy_ref_a
+            row[L.IP_IBAND] = ip.sign_band_a
+            row[L.IP_TH_CJ] = ip.junction_capacity_j_per_k
+            row[L.IP_TH_CH] = ip.heatsink_capacity_j_per_k
+            row[L.IP_TH_GJH] = ip.junction_heatsink_w_per_k
+            row[L.IP_TH_GHA] = ip.heatsink_coolant_w_per_k
+            row[L.IP_THERMAL_ON] = 1.0 if ip.thermal else 0.0
+            self.ist[k, L.IS_T_J] = ambient
+            self.ist[k, L.IS_T_H] = ambient
+            self.iu[k, L.IU_DA:L.IU_DC + 1] = 0.5
+        for link, lp in enumerate(params.dc_links):
+            self.lst[link, L.LS_UDC] = lp.voltage_v
+        tp = params.train
+        self.tpar[L.TP_MASS] = tp.mass_kg
+        self.tpar[L.TP_ROT_ALLOWANCE] = tp.rotating_mass_allowance
+        self.tpar[L.TP_DAVIS_A] = tp.davis_a_n
+        self.tpar[L.TP_DAVIS_B] = tp.davis_b_n_per_mps
+        self.tpar[L.TP_DAVIS_C] = tp.davis_c_n_per_mps2
+        self.tpar[L.TP_GRAVITY] = 9.80665
+        self.tpar[L.TP_AMBIENT] = ambient
+
+    @classmethod
+    def from_profile(cls, path: str | Path, **kwargs: bool) -> Plant:
+        """Build a plant from a trainset profile file (see emulator.profile)."""
+        from emulator.profile import load_trainset  # the loader sits beside the plant
+
+        return cls(load_trainset(path), **kwargs)
+
+    @classmethod
+    def test_bench(cls, machine: MachineParams, motors: int = 1, *, dc_link_v: float = 0.0,
+                   substep_s: float = 50e-6, frame_s: float = 1e-3,
+                   refresh_each_substep: bool = True) -> Plant:
+        """One inverter feeding ``motors`` machines whose shafts are on a test bench.
+
+        Every shaft starts free (rotor inertia only, no load); use impose_speed() for a
+        dynamometer and drive_from_sine() for an ideal source. No train, gear or wheel
+        takes part; the drivetrain data below only satisfy the layout.
+        """
+        bench = TrainsetParams(
+            name=f"test bench: {machine.name}", source="test bench", substep_s=substep_s,
+            frame_s=frame_s,
+            train=TrainParams(1.0, 0.0, 0.0, 0.0, 0.0, 1.0, machine.reference_temperature_k),
+            supply=SupplyParams(1.0, 50.0),
+            machine=machine,
+            drivetrain=DrivetrainParams(1.0, 1.0, 1.0, 1.0, 1.0, "dry", 0.1),
+            inverter=InverterParams(1000.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 1.0, 1.0),
+            dc_links=(DcLinkParams("bench", dc_link_v),),
+            converters=(ConverterParams("bench", 0, (1.0,) * motors),),
+        )
+        plant = cls(bench, refresh_each_substep=refresh_each_substep)
+        for m in range(motors):
+            plant.free_shaft(m, 0.0)
+        return plant
+
+    # --- stepping -------------------------------------------------------------------
+    def advance(self, commands: Commands | None, frame_s: float | None = None) -> None:
+        """Hold commands for one frame and advance the plant by frame_s seconds.
+
+        The frame is cut into equal sub-steps no longer than the profile's sub-step.
+        ``commands=None`` keeps the previous ones (or the ideal sources).
+        """
+        frame = self.params.frame_s if frame_s is None else frame_s
+        if not (math.isfinite(frame) and 1e-5 <= frame <= 1.0):
+            raise CommandError(f"frame length must be within 10 us .. 1 s, got {frame!r}")
+        if commands is not None:
+            self._apply(commands)
+        n_sub = max(1, math.ceil(frame / self.substep_s - 1e-9))
+        h = frame / n_sub
+        advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, self.mpar, self.mint,
+                      self.mu, self.ms, self.mx, self.sat_i, self.sat_psi, self.ipar,
+                      self.iint, self.iu, self.ist, self.lst, self.tpar, self.tu, self.ts)
+        self.frames += 1
+        self.substeps += n_sub
+        # integer nanoseconds: t_k = k T exactly for a constant frame, no drift
+        self.time_ns += round(frame * 1e9)
+        self.time_s = self.time_ns / 1e9
+
+    def _apply(self, commands: Commands) -> None:
+        duty = np.asarray(commands.duty, dtype=float)
+        gates = np.asarray(commands.gates_enabled)
+        if duty.shape != (self.n_inverters, 3) or gates.shape != (self.n_inverters,):
+            raise CommandError(f"expected duty of shape ({self.n_inverters}, 3) and gates of "
+                               f"shape ({self.n_inverters},), got {duty.shape}, {gates.shape}")
+        if not np.all(np.isfinite(duty)):
+            raise CommandError("duty cycles must be finite (NaN or inf received)")
+        if np.any(duty < 0.0) or np.any(duty > 1.0):
+            raise CommandError("duty cycles must lie within 0..1")
+        self.iu[:, L.IU_DA:L.IU_DC + 1] = duty
+        self.iu[:, L.IU_ENABLE] = gates.astype(float)
+
+    # --- inputs from the track and the driver -----------------------------------------
+    def set_gradient(self, gradient: float) -> None:
+        """Track gradient as rise over run (0.01 = 10 per mille uphill)."""
+        self._finite("gradient", gradient, -0.2, 0.2)
+        self.tu[L.TU_GRADIENT] = gradient
+
+    def set_brake_force(self, force_n: float) -> None:
+        """Friction brake force of the whole train, N (acts against the motion)."""
+        self._finite("brake force", force_n, 0.0, 1e7)
+        self.tu[L.TU_BRAKE_FORCE] = force_n
+
+    def set_adhesion_factor(self, motor: int, factor: float) -> None:
+        """Scale the friction coefficient mu0 of one motored axle (1 = profile value)."""
+        self._finite("adhesion factor", factor, 0.0, 2.0)
+        self.mpar[motor, L.MP_ADHESION_FACTOR] = factor
+
+    def set_rail_condition(self, motor: int, condition: str) -> None:
+        """Switch one axle's Polach parameter set ('dry' or 'wet')."""
+        if condition not in RAIL_CONDITIONS:
+            raise CommandError(f"rail condition must be one of {sorted(RAIL_CONDITIONS)}")
+        (self.mpar[motor, L.MP_KA], self.mpar[motor, L.MP_KS], self.mpar[motor, L.MP_MU0],
+         self.mpar[motor, L.MP_POL_A], self.mpar[motor, L.MP_POL_B]) = RAIL_CONDITIONS[condition]
+
+    def set_dc_link_voltage(self, link: int, voltage_v: float) -> None:
+        """Voltage of an ideal DC-link source, V."""
+        self._finite("DC-link voltage", voltage_v, 0.0, 1e4)
+        self.lst[link, L.LS_UDC] = voltage_v
+
+    def set_speed(self, speed_mps: float) -> None:
+        """Set the train and all its coupled wheelsets rolling at speed_mps (no slip)."""
+        self._finite("speed", speed_mps, -200.0, 200.0)
+        self.ts[L.TS_SPEED] = speed_mps
+        for m in range(self.n_motors):
+            if self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_DRIVETRAIN:
+                om = speed_mps / self.mpar[m, L.MP_WHEEL_R] * self.mpar[m, L.MP_GEAR]
+                self.ms[m, L.MS_OMEGA_M] = om
+                self.ms[m, L.MS_OMEGA_AT_REFRESH] = om
+
+    @staticmethod
+    def _finite(what: str, value: float, lo: float, hi: float) -> None:
+        if not (isinstance(value, int | float) and math.isfinite(value) and lo <= value <= hi):
+            raise CommandError(f"{what} must be a finite number within {lo:g}..{hi:g}, "
+                               f"got {value!r}")
+
+    # --- validation harness: ideal source and dynamometer -------------------------------
+    def drive_from_sine(self, inverter: int, amplitude_v: float, frequency_hz: float,
+                        phase_rad: float = 0.0) -> None:
+        """Feed an inverter's motors from an ideal balanced sinusoidal source.
+
+        amplitude_v is the space-vector amplitude, i.e. the phase-to-neutral peak
+        (V_LL,rms * sqrt(2/3)). Replaces the inverter until drive_from_inverter().
+        """
+        self._finite("amplitude", amplitude_v, 0.0, 1e5)
+        self._finite("frequency", frequency_hz, -1e4, 1e4)
+        self._finite("phase", phase_rad, -1e3, 1e3)
+        self.iint[inverter, L.II_SOURCE] = L.SOURCE_SINE
+        self.iu[inverter, L.IU_SINE_AMP] = amplitude_v
+        self.iu[inverter, L.IU_SINE_FREQ] = frequency_hz
+        self.iu[inverter, L.IU_SINE_PHASE] = phase_rad
+
+    def drive_from_inverter(self, inverter: int) -> None:
+        """Return an inverter's motors to the inverter (undo drive_from_sine)."""
+        self.iint[inverter, L.II_SOURCE] = L.SOURCE_INVERTER
+
+    def impose_speed(self, motor: int, speed_rad_s: float) -> None:
+        """Hold a motor shaft at a mechanical speed, as a dynamometer would."""
+        self._finite("speed", speed_rad_s, -1e4, 1e4)
+        self.mint[motor, L.MI_SHAFT_MODE] = L.SHAFT_IMPOSED_SPEED
+        self.mu[motor, L.MU_IMPOSED_SPEED] = speed_rad_s
+        self.ms[motor, L.MS_OMEGA_M] = speed_rad_s
+        self.ms[motor, L.MS_OMEGA_AT_REFRESH] = speed_rad_s
+
+    def free_shaft(self, motor: int, load_torque_nm: float = 0.0) -> None:
+        """Uncouple a motor from its axle: rotor inertia only, with a load torque."""
+        self._finite("load torque", load_torque_nm, -1e6, 1e6)
+        self.mint[motor, L.MI_SHAFT_MODE] = L.SHAFT_FREE
+        self.mu[motor, L.MU_LOAD_TORQUE] = load_torque_nm
+
+    def couple_drivetrain(self, motor: int) -> None:
+        """Couple a motor back to its gear and axle."""
+        self.mint[motor, L.MI_SHAFT_MODE] = L.SHAFT_DRIVETRAIN
+
+    # --- reading ----------------------------------------------------------------------
+    def read(self, name: str) -> np.ndarray | float:
+        """A state by name: an array over motors/inverters/links, or a train scalar."""
+        try:
+            array, column, _unit, _ = L.READABLE[name]
+        except KeyError:
+            raise KeyError(f"no state named {name!r}; see Plant.names()") from None
+        data = getattr(self, {"motor_state": "ms", "inverter_state": "ist",
+                              "link_state": "lst", "train_state": "ts"}[array])
+        return float(data[column]) if data.ndim == 1 else data[:, column].copy()
+
+    @staticmethod
+    def names() -> dict[str, str]:
+        """Readable state names with their SI units."""
+        return {name: spec[2] for name, spec in L.READABLE.items()}
+
+    def flux_linkages(self, motor: int) -> tuple[complex, complex]:
+        """Stator and rotor flux linkage space vectors of a motor, V s."""
+        return complex(self.mx[motor, L.MX_PSI_S]), complex(self.mx[motor, L.MX_PSI_R])
+
+    def stator_current(self, motor: int) -> complex:
+        """Stator current space vector of a motor, A (amplitude invariant)."""
+        return self._currents(motor)[0]
+
+    def _currents(self, motor: int) -> tuple[complex, complex]:
+        lm = self.ms[motor, L.MS_LM]
+        ps, pr = self.flux_linkages(motor)
+        return currents(ps, pr, self.mpar[motor, L.MP_LLS] + lm,
+                        self.mpar[motor, L.MP_LLR] + lm, lm)
+
+    def energy(self) -> EnergyAccount:
+        """Energy bookkeeping since the start, for balance checks and reports."""
+        ms, ist, ts = self.ms, self.ist, self.ts
+        magnetic = 0.0
+        kinetic = 0.5 * self.tpar[L.TP_MASS] * (1 + self.tpar[L.TP_ROT_ALLOWANCE]) * (
+            ts[L.TS_SPEED] ** 2)
+        for m in range(self.n_motors):
+            ps, pr = self.flux_linkages(m)
+            i_s, i_r = self._currents(m)
+            magnetic += magnetic_energy(ps, i_s, pr, i_r)
+            gear = self.mpar[m, L.MP_GEAR]
+            if self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_DRIVETRAIN:
+                j_eq = self.mpar[m, L.MP_J_WHEELSET] + gear * gear * self.mpar[m, L.MP_J_ROTOR]
+                kinetic += 0.5 * j_eq * (ms[m, L.MS_OMEGA_M] / gear) ** 2
+            elif self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_FREE:
+                kinetic += 0.5 * self.mpar[m, L.MP_J_ROTOR] * ms[m, L.MS_OMEGA_M] ** 2
+        return EnergyAccount(
+            dc_link_in=float(ist[:, L.IS_E_DC].sum()),
+            semiconductor_conduction=float(ist[:, L.IS_E_COND].sum()),
+            semiconductor_switching=float(ist[:, L.IS_E_SW].sum()),
+            motor_terminals=float(ms[:, L.MS_E_TERMINAL].sum()),
+            stator_copper=float(ms[:, L.MS_E_CU_S].sum()),
+            rotor_copper=float(ms[:, L.MS_E_CU_R].sum()),
+            electromagnetic=float(ms[:, L.MS_E_SHAFT].sum()),
+            gear_loss=float(ms[:, L.MS_E_GEAR].sum()),
+            slip_loss=float(ms[:, L.MS_E_SLIP].sum()),
+            load=float(ms[:, L.MS_E_LOAD].sum()),
+            running_resistance=float(ts[L.TS_E_RESIST]),
+            friction_brake=float(ts[L.TS_E_BRAKE]),
+            potential=float(ts[L.TS_E_GRADE]),
+            magnetic_stored=magnetic,
+            kinetic_stored=float(kinetic),
+        )

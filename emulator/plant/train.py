@@ -1,0 +1,78 @@
+"""Longitudinal train dynamics: lumped mass, running resistance, gradient, brakes.
+
+m (1 + k_rot) dv/dt = sum F_creep - R(v) - m g sin(theta) - F_brake
+
+Running resistance after Davis (General Electric Review 29, 1926):
+R(v) = A + B v + C v^2, acting against the motion. The constant term A and the friction
+brake hold the train at rest like static friction: a train at standstill moves only
+when the other forces exceed them, so it neither creeps on the level at zero effort
+nor stays put on a gradient steeper than A allows when its brakes are off.
+
+Motored axles carry their rotating inertia explicitly (wheelset and rotor through the
+gear); k_rot is the allowance for the rest (trailer wheelsets, other rotating parts).
+"""
+
+from __future__ import annotations
+
+import math
+
+from .jit import compiled, compiled_inline
+
+#: 1 lbf per short ton in N per tonne: 4.4482216 N / 0.90718474 t
+LBF_PER_SHORT_TON_IN_N_PER_T = 4.4482216152605 / 0.90718474
+
+
+@compiled_inline
+def davis_resistance(v: float, a: float, b: float, c: float) -> float:
+    """Magnitude of Davis running resistance A + B|v| + C v^2 at speed v, N."""
+    av = abs(v)
+    return a + b * av + c * av * av
+
+
+@compiled_inline
+def gradient_force(mass: float, gravity: float, gradient: float) -> float:
+    """Downhill force component m g sin(theta) for a gradient given as rise/run, N."""
+    return mass * gravity * gradient / math.sqrt(1.0 + gradient * gradient)
+
+
+@compiled
+def step_speed(v: float, drive: float, static: float, b: float, c: float, m_eff: float,
+               h: float):
+    """Advance the train speed one sub-step with stiction at rest.
+
+    Args:
+        v: speed at the start of the step, m/s.
+        drive: creep forces minus the gradient force, N.
+        static: forces that act as friction: Davis A plus friction brake, N (>= 0).
+        b, c: Davis linear and quadratic coefficients.
+        m_eff: mass including rotating allowance, kg.
+        h: step, s.
+
+    Returns:
+        (new speed m/s, resisting force applied N, signed against the motion)
+    """
+    if v == 0.0:
+        if abs(drive) <= static:
+            return 0.0, drive  # held: friction balances the drive exactly
+        direction = 1.0 if drive > 0.0 else -1.0
+        resist = direction * static
+        return v + h * (drive - resist) / m_eff, resist
+    direction = 1.0 if v > 0.0 else -1.0
+    resist = direction * (static + b * abs(v) + c * v * v)
+    v_new = v + h * (drive - resist) / m_eff
+    if v_new * v < 0.0:
+        # the friction forces stopped the train within the step
+        return 0.0, resist
+    return v_new, resist
+
+
+def davis_passenger_imperial_n_per_t(speed_mph: float, tons_per_axle: float, axles: int,
+                                     frontal_area_ft2: float) -> float:
+    """Davis passenger-car resistance converted to N per tonne of train.
+
+    R = 1.3 + 29/w + 0.03 V + 0.00034 A V^2 / (w n) in lbf per short ton (w short tons
+    per axle, n axles, V mph, A ft^2); Davis, General Electric Review 29 (1926).
+    """
+    lbf_per_ton = (1.3 + 29.0 / tons_per_axle + 0.03 * speed_mph
+                   + 0.00034 * frontal_area_ft2 * speed_mph ** 2 / (tons_per_axle * axles))
+    return lbf_per_ton * LBF_PER_SHORT_TON_IN_N_PER_T

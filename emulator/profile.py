@@ -1,0 +1,350 @@
+"""TOML profiles -> typed, validated plant parameters in SI units.
+
+Every key carries its unit as a suffix (``mass_kg``, ``dead_time_us``,
+``stator_resistance_ohm``) and is converted once here. A missing key, an unknown key
+(a misspelling), a wrong type or a value out of range raises :class:`ProfileError`
+naming the file, the table, the key, the unit and the range expected. Nothing deeper
+in the physics falls back on a default.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from pathlib import Path
+from typing import Any
+
+from emulator.plant.drivetrain import RAIL_CONDITIONS
+from emulator.plant.params import (
+    ConverterParams,
+    DcLinkParams,
+    DrivetrainParams,
+    InverterParams,
+    MachineParams,
+    MachineThermal,
+    SupplyParams,
+    TrainParams,
+    TrainsetParams,
+)
+
+GRAVITY = 9.80665  # standard gravity, m/s^2 (CGPM 1901)
+KELVIN = 273.15
+PROFILES_DIR = Path(__file__).resolve().parent.parent / "profiles"
+
+
+class ProfileError(ValueError):
+    """A profile file is unreadable, incomplete or inconsistent."""
+
+
+class Table:
+    """Reads one TOML table, checking each key once and rejecting unknown ones."""
+
+    def __init__(self, data: dict[str, Any], file: Path | str, section: str) -> None:
+        self._data = data
+        self._file = str(file)
+        self._section = section
+        self._seen: set[str] = set()
+
+    def error(self, key: str, message: str) -> ProfileError:
+        """An error naming the file, the table and the key."""
+        return ProfileError(f"{self._file}: [{self._section}] {key}: {message}")
+
+    def has(self, key: str) -> bool:
+        """Whether the table holds key."""
+        return key in self._data
+
+    def _get(self, key: str) -> Any:
+        self._seen.add(key)
+        if key not in self._data:
+            raise self.error(key, "missing")
+        return self._data[key]
+
+    def number(self, key: str, unit: str, lo: float, hi: float, *, lo_open: bool = False,
+               scale: float = 1.0, offset: float = 0.0) -> float:
+        """A finite number within [lo, hi] (or (lo, hi] if lo_open), then scaled to SI."""
+        value = self._get(key)
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            raise self.error(key, f"expected a number in {unit}, got {value!r}")
+        value = float(value)
+        bad_lo = value <= lo if lo_open else value < lo
+        if not math.isfinite(value) or bad_lo or value > hi:
+            bracket = "(" if lo_open else "["
+            raise self.error(key, f"expected {unit} in {bracket}{lo:g}, {hi:g}], got {value:g}")
+        return value * scale + offset
+
+    def integer(self, key: str, lo: int, hi: int) -> int:
+        """An integer within [lo, hi]."""
+        value = self._get(key)
+        if isinstance(value, bool) or not isinstance(value, int) or not lo <= value <= hi:
+            raise self.error(key, f"expected an integer in [{lo}, {hi}], got {value!r}")
+        return value
+
+    def string(self, key: str, choices: tuple[str, ...] | None = None) -> str:
+        """A non-empty string, optionally one of choices."""
+        value = self._get(key)
+        if not isinstance(value, str) or not value:
+            raise self.error(key, f"expected a non-empty string, got {value!r}")
+        if choices is not None and value not in choices:
+            raise self.error(key, f"expected one of {', '.join(choices)}, got {value!r}")
+        return value
+
+    def numbers(self, key: str, unit: str, lo: float, hi: float, *, lo_open: bool = False,
+                min_len: int = 1) -> tuple[float, ...]:
+        """A list of at least min_len numbers, each within range."""
+        value = self._get(key)
+        if not isinstance(value, list) or len(value) < min_len:
+            raise self.error(key, f"expected a list of at least {min_len} numbers in {unit}")
+        out = []
+        for i, item in enumerate(value):
+            sub = Table({f"{key}[{i}]": item}, self._file, self._section)
+            out.append(sub.number(f"{key}[{i}]", unit, lo, hi, lo_open=lo_open))
+        return tuple(out)
+
+    def table(self, key: str) -> Table:
+        """A sub-table."""
+        value = self._get(key)
+        if not isinstance(value, dict):
+            raise self.error(key, "expected a table")
+        return Table(value, self._file, f"{self._section}.{key}" if self._section else key)
+
+    def tables(self, key: str) -> list[Table]:
+        """An array of tables ([[key]] in TOML), at least one."""
+        value = self._get(key)
+        if not isinstance(value, list) or not value or not all(isinstance(v, dict)
+                                                                for v in value):
+            raise self.error(key, "expected one or more [[" + key + "]] tables")
+        return [Table(v, self._file, f"{key}[{i}]") for i, v in enumerate(value)]
+
+    def finish(self) -> None:
+        """Raise on keys nobody asked for: a misspelt key is an error, not a default."""
+        unknown = sorted(set(self._data) - self._seen)
+        if unknown:
+            raise self.error(unknown[0], "unknown key (misspelt, or in the wrong table?)")
+
+
+def read_toml(path: Path | str) -> dict[str, Any]:
+    """Parse a TOML file, turning every failure into a ProfileError naming the file."""
+    path = Path(path)
+    try:
+        with path.open("rb") as fh:
+            return tomllib.load(fh)
+    except FileNotFoundError:
+        raise ProfileError(f"{path}: no such profile") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ProfileError(f"{path}: not valid TOML: {exc}") from None
+    except OSError as exc:
+        raise ProfileError(f"{path}: cannot read: {exc}") from None
+
+
+def resolve_profile(name: str | Path) -> Path:
+    """A path as given, or a shipped profile by name (``trainsets/tern-25kv``)."""
+    path = Path(name)
+    if path.exists():
+        return path
+    shipped = PROFILES_DIR / path
+    if shipped.with_suffix(".toml").exists():
+        return shipped.with_suffix(".toml")
+    if shipped.exists():
+        return shipped
+    return path
+
+
+def load_machine(path: Path | str) -> MachineParams:
+    """Load a machine profile (a file with a [machine] table)."""
+    path = resolve_profile(path)
+    root = Table(read_toml(path), path, "")
+    t = root.table("machine")
+    root.finish()
+    name = t.string("name")
+    freq = t.number("rated_frequency_hz", "Hz", 0.0, 1000.0, lo_open=True)
+    if t.has("reactance_frequency_hz") or t.has("magnetising_reactance_ohm"):
+        f_x = t.number("reactance_frequency_hz", "Hz", 0.0, 1000.0, lo_open=True)
+        to_h = 1.0 / (2.0 * math.pi * f_x)
+        l_ls = t.number("stator_leakage_reactance_ohm", "ohm", 0.0, 1e4, lo_open=True) * to_h
+        l_lr = t.number("rotor_leakage_reactance_ohm", "ohm", 0.0, 1e4, lo_open=True) * to_h
+        l_m = t.number("magnetising_reactance_ohm", "ohm", 0.0, 1e5, lo_open=True) * to_h
+        leak_keys = ("stator_leakage_reactance_ohm", "rotor_leakage_reactance_ohm")
+    else:
+        l_ls = t.number("stator_leakage_inductance_h", "H", 0.0, 10.0, lo_open=True)
+        l_lr = t.number("rotor_leakage_inductance_h", "H", 0.0, 10.0, lo_open=True)
+        l_m = t.number("magnetising_inductance_h", "H", 0.0, 100.0, lo_open=True)
+        leak_keys = ("stator_leakage_inductance_h", "rotor_leakage_inductance_h")
+    for key, value in zip(leak_keys, (l_ls, l_lr), strict=True):
+        if value >= l_m:
+            raise t.error(key, "leakage must be smaller than the magnetising inductance")
+    poles = t.integer("poles", 2, 64)
+    if poles % 2:
+        raise t.error("poles", f"a machine has an even number of poles, got {poles}")
+    saturation_i: tuple[float, ...] = ()
+    saturation_psi: tuple[float, ...] = ()
+    if t.has("saturation"):
+        st = t.table("saturation")
+        saturation_i = st.numbers("magnetising_current_a", "A", 0.0, 1e6, lo_open=True,
+                                  min_len=2)
+        saturation_psi = st.numbers("magnetising_flux_vs", "V s", 0.0, 1e3, lo_open=True,
+                                    min_len=2)
+        st.finish()
+        if len(saturation_i) != len(saturation_psi):
+            raise st.error("magnetising_flux_vs", "needs as many points as the current list")
+        if any(b <= a for a, b in zip(saturation_i, saturation_i[1:], strict=False)):
+            raise st.error("magnetising_current_a", "must rise strictly")
+        if any(b < a for a, b in zip(saturation_psi, saturation_psi[1:], strict=False)):
+            raise st.error("magnetising_flux_vs", "must not fall")
+    thermal = None
+    if t.has("thermal"):
+        th = t.table("thermal")
+        g_sa = 1e3 / th.number("stator_to_coolant_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
+        g_ra = 1e3 / th.number("rotor_to_coolant_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
+        g_sr = 1e3 / th.number("stator_to_rotor_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
+        tau_s = th.number("stator_time_constant_s", "s", 0.0, 1e6, lo_open=True)
+        tau_r = th.number("rotor_time_constant_s", "s", 0.0, 1e6, lo_open=True)
+        th.finish()
+        thermal = MachineThermal(tau_s * g_sa, tau_r * g_ra, g_sr, g_sa, g_ra)
+    machine = MachineParams(
+        name=name,
+        rated_power_w=t.number("rated_power_kw", "kW", 0.0, 1e5, lo_open=True, scale=1e3),
+        rated_voltage_v=t.number("rated_voltage_v", "V (line-line rms)", 0.0, 1e5,
+                                 lo_open=True),
+        rated_frequency_hz=freq,
+        pole_pairs=poles // 2,
+        stator_resistance_ohm=t.number("stator_resistance_ohm", "ohm", 0.0, 1e3, lo_open=True),
+        rotor_resistance_ohm=t.number("rotor_resistance_ohm", "ohm", 0.0, 1e3, lo_open=True),
+        stator_leakage_h=l_ls,
+        rotor_leakage_h=l_lr,
+        magnetising_h=l_m,
+        rotor_inertia_kgm2=t.number("rotor_inertia_kgm2", "kg m^2", 0.0, 1e5, lo_open=True),
+        reference_temperature_k=t.number("resistance_temperature_degc", "degC", -60.0, 250.0,
+                                         offset=KELVIN),
+        stator_temp_coeff_per_k=t.number("stator_temperature_coefficient_per_k", "1/K", 0.0,
+                                         0.01),
+        rotor_temp_coeff_per_k=t.number("rotor_temperature_coefficient_per_k", "1/K", 0.0,
+                                        0.01),
+        saturation_current_a=saturation_i,
+        saturation_flux_vs=saturation_psi,
+        thermal=thermal,
+    )
+    t.finish()
+    return machine
+
+
+def _inverter(t: Table) -> InverterParams:
+    kw = {}
+    if t.has("thermal"):
+        th = t.table("thermal")
+        g_jh = 1e3 / th.number("junction_to_heatsink_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
+        g_ha = 1e3 / th.number("heatsink_to_coolant_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
+        kw = dict(
+            junction_capacity_j_per_k=th.number("junction_time_constant_s", "s", 0.0, 1e5,
+                                                lo_open=True) * g_jh,
+            heatsink_capacity_j_per_k=th.number("heatsink_time_constant_s", "s", 0.0, 1e6,
+                                                lo_open=True) * g_ha,
+            junction_heatsink_w_per_k=g_jh,
+            heatsink_coolant_w_per_k=g_ha,
+            thermal=True,
+        )
+        th.finish()
+    inv = InverterParams(
+        switching_frequency_hz=t.number("switching_frequency_hz", "Hz", 0.0, 1e5, lo_open=True),
+        dead_time_s=t.number("dead_time_us", "us", 0.0, 100.0, scale=1e-6),
+        igbt_threshold_v=t.number("igbt_threshold_v", "V", 0.0, 10.0),
+        igbt_slope_ohm=t.number("igbt_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
+        diode_threshold_v=t.number("diode_threshold_v", "V", 0.0, 10.0),
+        diode_slope_ohm=t.number("diode_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
+        switching_energy_j=t.number("switching_energy_mj", "mJ", 0.0, 1e5, scale=1e-3),
+        switching_energy_ref_v=t.number("switching_energy_reference_v", "V", 0.0, 1e5,
+                                        lo_open=True),
+        switching_energy_ref_a=t.number("switching_energy_reference_a", "A", 0.0, 1e5,
+                                        lo_open=True),
+        sign_band_a=t.number("sign_band_a", "A", 0.0, 1e3, lo_open=True),
+        **kw,
+    )
+    if inv.dead_time_s * inv.switching_frequency_hz >= 0.25:
+        raise t.error("dead_time_us", "dead time must be well below a switching period")
+    t.finish()
+    return inv
+
+
+def load_trainset(path: Path | str) -> TrainsetParams:
+    """Load a trainset profile and the machine profile it names."""
+    path = resolve_profile(path)
+    root = Table(read_toml(path), path, "")
+    ts = root.table("trainset")
+    machine_file = ts.string("machine_profile")
+    machine_path = (path.parent / machine_file).resolve()
+    try:
+        machine = load_machine(machine_path)
+    except ProfileError as exc:
+        raise ProfileError(f"{path}: [trainset] machine_profile: {exc}") from None
+    substep = ts.number("substep_us", "us", 1.0, 1000.0, scale=1e-6)
+    frame = ts.number("frame_ms", "ms", 0.1, 10.0, scale=1e-3)
+    ratio = frame / substep
+    if abs(ratio - round(ratio)) > 1e-9:
+        raise ts.error("substep_us", f"must divide frame_ms evenly (frame/substep = {ratio:g})")
+    name = ts.string("name")
+    notes = {"description": ts.string("description")} if ts.has("description") else {}
+    ts.finish()
+
+    tr = root.table("train")
+    train = TrainParams(
+        mass_kg=tr.number("mass_kg", "kg", 0.0, 5e6, lo_open=True),
+        rotating_mass_allowance=tr.number("rotating_mass_allowance", "1", 0.0, 0.5),
+        davis_a_n=tr.number("running_resistance_a_n", "N", 0.0, 1e6),
+        davis_b_n_per_mps=tr.number("running_resistance_b_n_per_mps", "N/(m/s)", 0.0, 1e5),
+        davis_c_n_per_mps2=tr.number("running_resistance_c_n_per_mps2", "N/(m/s)^2", 0.0, 1e4),
+        max_speed_mps=tr.number("max_speed_kmh", "km/h", 0.0, 600.0, lo_open=True,
+                                scale=1 / 3.6),
+        ambient_temperature_k=tr.number("ambient_temperature_degc", "degC", -60.0, 80.0,
+                                        offset=KELVIN),
+    )
+    tr.finish()
+
+    su = root.table("supply")
+    supply = SupplyParams(
+        nominal_voltage_v=su.number("nominal_voltage_kv", "kV (rms)", 0.0, 50.0, lo_open=True,
+                                    scale=1e3),
+        frequency_hz=su.number("frequency_hz", "Hz", 0.0, 100.0, lo_open=True),
+    )
+    su.finish()
+
+    dt = root.table("drivetrain")
+    gear = dt.number("gear_ratio", "1", 0.0, 50.0, lo_open=True)
+    drivetrain = DrivetrainParams(
+        gear_ratio=gear,
+        gear_efficiency=dt.number("gear_efficiency", "1", 0.5, 1.0),
+        wheelset_inertia_kgm2=dt.number("wheelset_inertia_kgm2", "kg m^2", 0.0, 1e4,
+                                        lo_open=True),
+        axle_load_n=dt.number("axle_load_kg", "kg", 0.0, 5e4, lo_open=True, scale=GRAVITY),
+        kalker_coefficient_n=dt.number("kalker_coefficient_n", "N", 0.0, 1e9, lo_open=True),
+        rail_condition=dt.string("rail_condition", tuple(RAIL_CONDITIONS)),
+        creep_reference_speed_mps=dt.number("creep_reference_speed_mps", "m/s", 0.0, 5.0,
+                                            lo_open=True),
+    )
+    dt.finish()
+
+    inverter = _inverter(root.table("inverter"))
+
+    links = []
+    for lt in root.tables("dc_link"):
+        links.append(DcLinkParams(name=lt.string("name"),
+                                  voltage_v=lt.number("voltage_v", "V", 0.0, 1e4,
+                                                      lo_open=True)))
+        lt.finish()
+    link_names = [lk.name for lk in links]
+    if len(set(link_names)) != len(link_names):
+        raise root.error("dc_link", "names must be unique")
+
+    converters = []
+    for ct in root.tables("converter"):
+        cname = ct.string("name")
+        link = ct.string("dc_link", tuple(link_names))
+        wheels = ct.numbers("wheel_diameters_m", "m", 0.3, 1.6)
+        ct.finish()
+        converters.append(ConverterParams(cname, link_names.index(link), wheels))
+    conv_names = [c.name for c in converters]
+    if len(set(conv_names)) != len(conv_names):
+        raise root.error("converter", "names must be unique")
+    root.finish()
+    return TrainsetParams(name=name, source=str(path), substep_s=substep, frame_s=frame,
+                          train=train, supply=supply, machine=machine, drivetrain=drivetrain,
+                          inverter=inverter, dc_links=tuple(links),
+                          converters=tuple(converters), notes=notes)
