@@ -9,6 +9,8 @@ in the physics falls back on a default.
 
 from __future__ import annotations
 
+import difflib
+import itertools
 import math
 import tomllib
 from pathlib import Path
@@ -56,7 +58,9 @@ class Table:
     def _get(self, key: str) -> Any:
         self._seen.add(key)
         if key not in self._data:
-            raise self.error(key, "missing")
+            near = difflib.get_close_matches(key, [k for k in self._data if k != key], n=1)
+            hint = f" (is {near[0]!r} a misspelling of it?)" if near else ""
+            raise self.error(key, "missing" + hint)
         return self._data[key]
 
     def number(self, key: str, unit: str, lo: float, hi: float, *, lo_open: bool = False,
@@ -186,9 +190,9 @@ def load_machine(path: Path | str) -> MachineParams:
         st.finish()
         if len(saturation_i) != len(saturation_psi):
             raise st.error("magnetising_flux_vs", "needs as many points as the current list")
-        if any(b <= a for a, b in zip(saturation_i, saturation_i[1:], strict=False)):
+        if any(b <= a for a, b in itertools.pairwise(saturation_i)):
             raise st.error("magnetising_current_a", "must rise strictly")
-        if any(b < a for a, b in zip(saturation_psi, saturation_psi[1:], strict=False)):
+        if any(b < a for a, b in itertools.pairwise(saturation_psi)):
             raise st.error("magnetising_flux_vs", "must not fall")
     thermal = None
     if t.has("thermal"):

@@ -203,6 +203,7 @@ READABLE: dict[str, tuple[str, int, str, str]] = {
     "inverter.phase_current_b_a": ("inverter_state", IS_IB, "A", "phase b current"),
     "inverter.phase_current_c_a": ("inverter_state", IS_IC, "A", "phase c current"),
     "inverter.dc_current_a": ("inverter_state", IS_IDC, "A", "DC current, frame mean"),
+    "inverter.dc_energy_j": ("inverter_state", IS_E_DC, "J", "energy drawn from the link"),
     "inverter.junction_temperature_k": ("inverter_state", IS_T_J, "K", "IGBT module"),
     "inverter.heatsink_temperature_k": ("inverter_state", IS_T_H, "K", "heatsink"),
     "inverter.voltage_alpha_v": ("inverter_state", IS_U_ALPHA, "V", "applied u_alpha"),

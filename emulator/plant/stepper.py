@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import layout as L
+from . import layout as L  # noqa: N812 (the layout reads as a namespace)
 from .drivetrain import RAIL_CONDITIONS
 from .kernel import advance_frame
 from .machine import currents, magnetic_energy

@@ -4,9 +4,11 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 import pytest
 
-from emulator.plant import Plant
+from emulator.controller.open_loop import SlipFrequencyVf
+from emulator.plant import Commands, Plant
 from emulator.profile import PROFILES_DIR, load_machine, load_trainset
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
@@ -29,3 +31,20 @@ def steady_on_dynamometer(plant: Plant, slip: float, f_hz: float, settle_s: floa
 def trainset_params():
     """The demo trainset's parameters."""
     return load_trainset(TRAINSET)
+
+
+class SlipFrequencyDrive:
+    """The open-loop slip-frequency V/f source fed from the plant's own speed and link."""
+
+    def __init__(self, plant: Plant, slip_hz: float, volts_per_hz: float,
+                 boost_v: float = 20.0) -> None:
+        self.plant = plant
+        self.slip_hz = slip_hz
+        self.vf = SlipFrequencyVf(plant.n_inverters, plant.params.machine.pole_pairs,
+                                  volts_per_hz, boost_v, max_modulation=0.95)
+
+    def commands(self) -> Commands:
+        p = self.plant
+        duty = self.vf.step(float(np.mean(p.read("motor.speed_rad_s"))), self.slip_hz,
+                            float(p.read("dc_link.voltage_v")[0]), p.params.frame_s)
+        return Commands(duty.copy(), np.ones(p.n_inverters, dtype=bool))

@@ -1,0 +1,1 @@
+"""Reference controllers: they speak the wire protocol and never import the plant."""

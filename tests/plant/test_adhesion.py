@@ -1,0 +1,85 @@
+"""Wheel-rail adhesion: Curtius-Kniffler and Polach's creep-force model.
+
+Sources: Curtius & Kniffler, Elektrische Bahnen 20 (1950); Polach, Wear 258 (2005)
+992-1000, parameter sets from REFERENCES.md [memory, corroborated].
+"""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+
+from emulator.plant.drivetrain import (
+    POLACH_DRY,
+    POLACH_WET,
+    curtius_kniffler,
+    polach_force,
+    wheel_speed_to_motor_frequency,
+)
+
+Q = 2 * 75e3  # axle load, N
+K = 1.7e7  # Kalker linear coefficient of the axle, N
+
+
+def force(w: float, v: float, params=POLACH_DRY, v_ref: float = 1e-6) -> tuple[float, float]:
+    return polach_force(w, v, Q, K, *params, v_ref)
+
+
+@pytest.mark.parametrize(("speed_kmh", "mu"), [(0, 0.3314), (100, 0.2131), (200, 0.1917)])
+def test_curtius_kniffler_values(speed_kmh: float, mu: float) -> None:
+    # REFERENCES.md [derived] from mu = 7.5/(v + 44) + 0.161
+    assert curtius_kniffler(speed_kmh) == pytest.approx(mu, abs=1e-4)
+
+
+@pytest.mark.parametrize("params", [POLACH_DRY, POLACH_WET])
+def test_small_creep_slope_is_kalker_reduced_by_polach_factors(params) -> None:
+    k_a, k_s = params[0], params[1]
+    v = 20.0
+    s = 1e-7
+    f, _ = force(s * v, v, params)
+    assert f / s == pytest.approx((k_a + k_s) / 2 * K, rel=1e-5)
+
+
+@pytest.mark.parametrize("params", [POLACH_DRY, POLACH_WET])
+def test_large_creep_tends_to_friction_limit(params) -> None:
+    _, _, mu0, a, b = params
+    w = 40.0
+    f, _ = force(w, 1e-3, params)  # huge creep: the arctan saturates at pi/2
+    mu_w = mu0 * ((1 - a) * math.exp(-b * w) + a)
+    assert f == pytest.approx(mu_w * Q, rel=1e-3)
+
+
+def test_friction_decays_from_mu0_towards_a_mu0() -> None:
+    _, _, mu0, a, _ = POLACH_DRY
+    peak_low = max(force(w, 30.0)[0] for w in [0.05 * i for i in range(1, 40)]) / Q
+    at_high_slip = force(200.0, 1e-3)[0] / Q
+    assert peak_low < mu0
+    assert at_high_slip == pytest.approx(a * mu0, rel=1e-3)
+
+
+@given(w=st.floats(-5.0, 5.0), v=st.floats(0.0, 60.0))
+def test_derivative_matches_finite_difference(w: float, v: float) -> None:
+    eps = 1e-6
+    _, d = force(w, v, v_ref=0.1)
+    up, _ = force(w + eps, v, v_ref=0.1)
+    down, _ = force(w - eps, v, v_ref=0.1)
+    assert d == pytest.approx((up - down) / (2 * eps), rel=1e-4, abs=1e-2)
+
+
+@given(w=st.floats(0.0, 10.0), v=st.floats(0.0, 80.0))
+def test_force_is_odd_and_bounded_by_mu0_q(w: float, v: float) -> None:
+    f_pos, _ = force(w, v, v_ref=0.1)
+    f_neg, _ = force(-w, v, v_ref=0.1)
+    assert f_pos == pytest.approx(-f_neg)
+    assert 0.0 <= f_pos <= POLACH_DRY[2] * Q * (1 + 1e-12)
+
+
+def test_speed_to_frequency_through_gear_and_wheel() -> None:
+    # f = p i v / (pi D): at 100 km/h, D = 0.85 m, i = 4.1, p = 2 (common practice)
+    v = 100 / 3.6
+    wheel_rpm = v / (math.pi * 0.85) * 60
+    expected = 2 * (wheel_rpm * 4.1) / 60  # motor r/min times pole pairs / 60
+    assert wheel_speed_to_motor_frequency(v, 0.85, 4.1, 2) == pytest.approx(expected)

@@ -1,0 +1,104 @@
+"""Profiles: shipped ones load; bad ones fail naming the file, table, key and unit."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pytest
+
+from emulator.profile import PROFILES_DIR, ProfileError, load_machine, load_trainset
+
+TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
+MACHINE = PROFILES_DIR / "machines" / "tern-tm310.toml"
+
+
+@pytest.mark.parametrize("path", sorted((PROFILES_DIR / "trainsets").glob("*.toml")))
+def test_shipped_trainsets_load(path: Path) -> None:
+    params = load_trainset(path)
+    assert params.motor_count >= 4
+    assert 120 / 3.6 <= params.train.max_speed_mps <= 200 / 3.6
+
+
+def test_supply_systems_of_the_two_variants() -> None:
+    a = load_trainset(PROFILES_DIR / "trainsets" / "tern-25kv.toml").supply
+    b = load_trainset(PROFILES_DIR / "trainsets" / "tern-15kv.toml").supply
+    assert (a.nominal_voltage_v, a.frequency_hz) == (25e3, 50.0)
+    assert (b.nominal_voltage_v, b.frequency_hz) == (15e3, 16.7)
+
+
+@pytest.mark.parametrize("path", sorted((PROFILES_DIR / "machines").glob("*.toml")))
+def test_shipped_machines_load(path: Path) -> None:
+    machine = load_machine(path)
+    assert machine.magnetising_h > machine.stator_leakage_h
+
+
+def test_reactances_are_converted_at_their_frequency() -> None:
+    machine = load_machine(PROFILES_DIR / "machines" / "textbook-3hp.toml")
+    assert machine.magnetising_h == pytest.approx(26.13 / (2 * math.pi * 60))
+
+
+def edited(tmp_path: Path, source: Path, old: str, new: str) -> Path:
+    text = source.read_text()
+    assert old in text, old
+    out = tmp_path / source.name
+    out.write_text(text.replace(old, new, 1))
+    if source.parent.name == "trainsets":  # keep the machine reference resolvable
+        (tmp_path / "machines").mkdir(exist_ok=True)
+        out = tmp_path / "trainsets" / source.name
+        out.parent.mkdir(exist_ok=True)
+        out.write_text(text.replace(old, new, 1))
+        (tmp_path / "machines" / MACHINE.name).write_text(MACHINE.read_text())
+    return out
+
+
+@pytest.mark.parametrize(("old", "new", "key", "words"), [
+    ("mass_kg = 190000.0", "", "mass_kg", "missing"),
+    ("mass_kg = 190000.0", "mass_kgs = 190000.0", "'mass_kgs'", "misspelling"),
+    ("ambient_temperature_degc = 25.0", "ambient_temperature_degc = 25.0\ncolour = 1", "colour",
+     "unknown key"),
+    ("mass_kg = 190000.0", 'mass_kg = "heavy"', "mass_kg", "expected a number in kg"),
+    ("gear_ratio = 4.1", "gear_ratio = 0.0", "gear_ratio", "(0, 50]"),
+    ("gear_ratio = 4.1", "gear_ratio = -3", "gear_ratio", "got -3"),
+    ("wheel_diameters_m = [0.850, 0.850]", "wheel_diameters_m = []", "wheel_diameters_m",
+     "at least 1"),
+    ('dc_link = "DC-A"', 'dc_link = "DC-Z"', "dc_link", "expected one of DC-A, DC-B"),
+    ("substep_us = 50.0", "substep_us = 70.0", "substep_us", "divide frame_ms"),
+    ('rail_condition = "dry"', 'rail_condition = "icy"', "rail_condition", "dry, wet"),
+    ("dead_time_us = 10.0", "dead_time_us = nan", "dead_time_us", "got nan"),
+])
+def test_bad_trainset_names_file_table_and_key(tmp_path, old, new, key, words) -> None:
+    path = edited(tmp_path, TRAINSET, old, new)
+    with pytest.raises(ProfileError) as err:
+        load_trainset(path)
+    message = str(err.value)
+    assert str(path) in message and key in message and words in message
+
+
+@pytest.mark.parametrize(("old", "new", "key", "words"), [
+    ("stator_resistance_ohm = 0.060", "stator_resistance_ohm = -0.06", "stator_resistance_ohm",
+     "ohm in (0"),
+    ("stator_leakage_inductance_h = 1.1e-3", "stator_leakage_inductance_h = 0.05",
+     "stator_leakage_inductance_h", "smaller than the magnetising"),
+    ("poles = 4", "poles = 5", "poles", "even number"),
+    ("magnetising_flux_vs = [1.20, 2.10, 2.48, 2.75, 3.05, 3.35]",
+     "magnetising_flux_vs = [1.20, 2.10]", "magnetising_flux_vs", "as many points"),
+])
+def test_bad_machine_names_key(tmp_path, old, new, key, words) -> None:
+    path = edited(tmp_path, MACHINE, old, new)
+    with pytest.raises(ProfileError) as err:
+        load_machine(path)
+    assert key in str(err.value) and words in str(err.value)
+
+
+def test_not_toml_and_missing_file(tmp_path) -> None:
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[train\nmass_kg = 1")
+    with pytest.raises(ProfileError, match="not valid TOML"):
+        load_trainset(bad)
+    with pytest.raises(ProfileError, match="no such profile"):
+        load_trainset(tmp_path / "absent.toml")
+
+
+def test_profile_error_is_a_value_error() -> None:
+    assert issubclass(ProfileError, ValueError)
