@@ -63,7 +63,7 @@ def edited(tmp_path: Path, source: Path, old: str, new: str) -> Path:
     ("wheel_diameters_m = [0.850, 0.850]", "wheel_diameters_m = []", "wheel_diameters_m",
      "at least 1"),
     ('dc_link = "DC-A"', 'dc_link = "DC-Z"', "dc_link", "expected one of DC-A, DC-B"),
-    ("substep_us = 50.0", "substep_us = 70.0", "substep_us", "divide frame_ms"),
+    ("substep_us = 125.0", "substep_us = 70.0", "substep_us", "divide frame_ms"),
     ('rail_condition = "dry"', 'rail_condition = "icy"', "rail_condition", "dry, wet"),
     ("dead_time_us = 10.0", "dead_time_us = nan", "dead_time_us", "got nan"),
 ])

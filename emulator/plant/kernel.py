@@ -176,10 +176,10 @@ def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval):
         ms[m, MS_OMEGA_AT_REFRESH] = om
         ms[m, MS_OMEGA_REF] = om_ref
         k = mint[m, MI_INVERTER]
-        sine_omega = 0.0
-        if iint[k, II_SOURCE] == SOURCE_SINE:
-            sine_omega = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
-        refresh_matrices(mpar, ms, mx, m, mpar[m, MP_POLE_PAIRS] * om_ref, h, sine_omega,
+        sine_on = iint[k, II_SOURCE] == SOURCE_SINE
+        sine_omega = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
+        refresh_matrices(mpar, ms, mx, m, mpar[m, MP_POLE_PAIRS] * om_ref, h, sine_on,
+                         sine_omega,
                          sat_i[m], sat_psi[m], mint[m, MI_SAT_POINTS])
 
 
@@ -402,6 +402,33 @@ def _thermal_frame(mpar, ms, ipar, ist, ambient, frame):
             ist[k, IS_T_J] = tj
             ist[k, IS_T_H] = th
         ist[k, IS_Q] = 0.0
+
+
+COMMAND_OK = 0
+COMMAND_NOT_FINITE = 1
+COMMAND_OUT_OF_RANGE = 2
+
+
+@compiled
+def load_commands(duty, gates, iu) -> int:
+    """Validate duties (finite, 0..1) and load them with the gate enables into iu.
+
+    Nothing is written unless every value is valid; returns a COMMAND_* code.
+    """
+    n = iu.shape[0]
+    for k in range(n):
+        for x in range(3):
+            d = duty[k, x]
+            if not math.isfinite(d):
+                return COMMAND_NOT_FINITE
+            if d < 0.0 or d > 1.0:
+                return COMMAND_OUT_OF_RANGE
+    for k in range(n):
+        iu[k, IU_DA] = duty[k, 0]
+        iu[k, IU_DB] = duty[k, 1]
+        iu[k, IU_DC] = duty[k, 2]
+        iu[k, IU_ENABLE] = 1.0 if gates[k] else 0.0
+    return COMMAND_OK
 
 
 def empty_sat_tables(n_motor: int, n_points: int = 1) -> tuple[np.ndarray, np.ndarray]:

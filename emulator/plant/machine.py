@@ -125,14 +125,15 @@ def torque(psi_s: complex, i_s: complex, pole_pairs: float) -> float:
 
 @compiled
 def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: int,
-                     omega_e: float, h: float, sine_omega: float,
+                     omega_e: float, h: float, sine_on: bool, sine_omega: float,
                      sat_i: np.ndarray, sat_psi: np.ndarray, sat_n: int) -> None:
     """Recompute motor m's zero-order-hold matrices for rotor speed omega_e (electrical).
 
     Resistances follow the winding temperatures, L_m the saturation curve at the present
     magnetising current. Also stores A^{-1} (for exact flux integrals over a step), the
     sensitivity of the end-of-step stator current to the held voltage (for the blocked
-    bridge), and the particular solution (j w - A)^{-1} B of a sinusoidal source.
+    bridge), and, when sine_on, the particular solution (j w - A)^{-1} B of an ideal
+    sinusoidal source of angular frequency sine_omega (0 is a DC source).
     """
     rs = winding_resistance(mpar[m, MP_RS20], mpar[m, MP_ALPHA_S], mstate[m, MS_T_STATOR],
                             mpar[m, MP_T_REF])
@@ -160,13 +161,18 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     s = 0.5 * (a11 + a22) * h
     dd = 0.5 * (a11 - a22) * h
     q = cmath.sqrt(dd * dd + a12 * a21 * h * h)
-    es = cmath.exp(s)
-    ch = cmath.cosh(q)
-    shq = cmath.sinh(q) / q if abs(q) > 1e-6 else 1.0 + q * q / 6.0
-    phi11 = es * (ch + shq * dd)
-    phi22 = es * (ch - shq * dd)
-    phi12 = es * shq * a12 * h
-    phi21 = es * shq * a21 * h
+    # e^s cosh q and e^s sinh(q)/q from the two exponentials e^(s+q), e^(s-q)
+    e_plus = cmath.exp(s + q)
+    e_minus = cmath.exp(s - q)
+    ch = 0.5 * (e_plus + e_minus)
+    if abs(q) > 1e-6:
+        shq = 0.5 * (e_plus - e_minus) / q
+    else:
+        shq = cmath.exp(s) * (1.0 + q * q / 6.0)
+    phi11 = ch + shq * dd
+    phi22 = ch - shq * dd
+    phi12 = shq * a12 * h
+    phi21 = shq * a21 * h
     det = a11 * a22 - a12 * a21
     ai11 = a22 / det
     ai12 = -a12 / det
@@ -187,10 +193,11 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     mx[m, MX_AI22] = ai22
     mx[m, MX_CG] = (lr / d) * g1 - (lm / d) * g2
     # particular solution of dx/dt = A x + B U e^{j w t}: x_p = (j w I - A)^{-1} B U e^{j w t}
-    jw = complex(0.0, sine_omega)
-    det2 = (jw - a11) * (jw - a22) - a12 * a21
-    mx[m, MX_P1] = (jw - a22) / det2
-    mx[m, MX_P2] = a21 / det2
+    if sine_on:
+        jw = complex(0.0, sine_omega)
+        det2 = (jw - a11) * (jw - a22) - a12 * a21
+        mx[m, MX_P1] = (jw - a22) / det2
+        mx[m, MX_P2] = a21 / det2
 
 
 @compiled_inline

@@ -15,7 +15,7 @@ import numpy as np
 
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
 from .drivetrain import RAIL_CONDITIONS
-from .kernel import advance_frame
+from .kernel import COMMAND_NOT_FINITE, COMMAND_OUT_OF_RANGE, advance_frame, load_commands
 from .machine import currents, magnetic_energy
 from .params import (
     ConverterParams,
@@ -81,6 +81,8 @@ class Plant:
         self.refresh_each_substep = refresh_each_substep
         self.time_s = 0.0
         self.time_ns = 0
+        self._last_frame = 0.0
+        self._n_sub, self._h = 1, params.substep_s
         self.frames = 0
         self.substeps = 0
         mp, dp, ip = params.machine, params.drivetrain, params.inverter
@@ -225,8 +227,11 @@ class Plant:
             raise CommandError(f"frame length must be within 10 us .. 1 s, got {frame!r}")
         if commands is not None:
             self._apply(commands)
-        n_sub = max(1, math.ceil(frame / self.substep_s - 1e-9))
-        h = frame / n_sub
+        if frame != self._last_frame:
+            self._n_sub = max(1, math.ceil(frame / self.substep_s - 1e-9))
+            self._h = frame / self._n_sub
+            self._last_frame = frame
+        n_sub, h = self._n_sub, self._h
         advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, self.mpar, self.mint,
                       self.mu, self.ms, self.mx, self.sat_i, self.sat_psi, self.ipar,
                       self.iint, self.iu, self.ist, self.lst, self.tpar, self.tu, self.ts)
@@ -237,17 +242,24 @@ class Plant:
         self.time_s = self.time_ns / 1e9
 
     def _apply(self, commands: Commands) -> None:
-        duty = np.asarray(commands.duty, dtype=float)
-        gates = np.asarray(commands.gates_enabled)
-        if duty.shape != (self.n_inverters, 3) or gates.shape != (self.n_inverters,):
-            raise CommandError(f"expected duty of shape ({self.n_inverters}, 3) and gates of "
-                               f"shape ({self.n_inverters},), got {duty.shape}, {gates.shape}")
-        if not np.all(np.isfinite(duty)):
+        duty, gates = commands.duty, commands.gates_enabled
+        if (not isinstance(duty, np.ndarray) or duty.dtype != np.float64
+                or duty.shape != (self.n_inverters, 3)):
+            duty = np.asarray(duty, dtype=float)
+            if duty.shape != (self.n_inverters, 3):
+                raise CommandError(f"expected duty of shape ({self.n_inverters}, 3), "
+                                   f"got {duty.shape}")
+        if (not isinstance(gates, np.ndarray) or gates.dtype != np.bool_
+                or gates.shape != (self.n_inverters,)):
+            gates = np.asarray(gates, dtype=bool)
+            if gates.shape != (self.n_inverters,):
+                raise CommandError(f"expected gates of shape ({self.n_inverters},), "
+                                   f"got {gates.shape}")
+        code = load_commands(duty, gates, self.iu)
+        if code == COMMAND_NOT_FINITE:
             raise CommandError("duty cycles must be finite (NaN or inf received)")
-        if np.any(duty < 0.0) or np.any(duty > 1.0):
+        if code == COMMAND_OUT_OF_RANGE:
             raise CommandError("duty cycles must lie within 0..1")
-        self.iu[:, L.IU_DA:L.IU_DC + 1] = duty
-        self.iu[:, L.IU_ENABLE] = gates.astype(float)
 
     # --- inputs from the track and the driver -----------------------------------------
     def set_gradient(self, gradient: float) -> None:

@@ -112,3 +112,17 @@ def test_no_load_runs_at_synchronous_speed() -> None:
         plant.advance(None)
     n_rpm = float(plant.read("motor.speed_rad_s")[0]) * 60 / (2 * math.pi)
     assert n_rpm == pytest.approx(120 * circuit.f_hz / circuit.poles, rel=1e-6)
+
+
+def test_dc_injection_settles_to_ohms_law() -> None:
+    # a 0 Hz source is DC: the steady stator current is U / R_s (Ohm's law), no torque
+    # at standstill; a test the particular-solution path must also pass at zero frequency
+    machine = machine_profile("textbook-3hp")
+    plant = Plant.test_bench(machine, refresh_each_substep=False, frame_s=10e-3)
+    plant.drive_from_sine(0, 10.0, 0.0)
+    plant.impose_speed(0, 0.0)
+    for _ in range(1000):  # 10 s, some 40 time constants of the slowest mode
+        plant.advance(None)
+    assert plant.stator_current(0) == pytest.approx(10.0 / machine.stator_resistance_ohm,
+                                                    rel=1e-9)
+    assert float(plant.read("motor.torque_nm")[0]) == pytest.approx(0.0, abs=1e-9)
