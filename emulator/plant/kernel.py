@@ -115,6 +115,8 @@ from .layout import (
     MU_IMPOSED_SPEED,
     MU_LOAD_TORQUE,
     MX_CG,
+    MX_IR,
+    MX_IS,
     MX_PHI11,
     MX_PHI12,
     MX_PHI21,
@@ -146,7 +148,7 @@ from .machine import (
     abs2,
     currents,
     currents_frozen,
-    flux_integrals,
+    stator_current_integral,
     refresh_matrices,
     step_flux,
     step_flux_sine,
@@ -237,11 +239,10 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     g1 = 0j
     blocked = source != SOURCE_SINE and iu[k, IU_ENABLE] < 0.5
     for m in range(first, last):
-        ps = mx[m, MX_PSI_S]
-        pr = mx[m, MX_PSI_R]
-        i_s, _ = currents_frozen(ms, m, ps, pr)
-        i_tot += i_s
+        i_tot += mx[m, MX_IS]
         if blocked:
+            ps = mx[m, MX_PSI_S]
+            pr = mx[m, MX_PSI_R]
             # end-of-step current with zero voltage, and its sensitivity to the voltage
             ps_h = mx[m, MX_PHI11] * ps + mx[m, MX_PHI12] * pr
             pr_h = mx[m, MX_PHI21] * ps + mx[m, MX_PHI22] * pr
@@ -277,7 +278,8 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         rr = ms[m, MS_RR]
         ps0 = mx[m, MX_PSI_S]
         pr0 = mx[m, MX_PSI_R]
-        is0, ir0 = currents_frozen(ms, m, ps0, pr0)
+        is0 = mx[m, MX_IS]
+        ir0 = mx[m, MX_IR]
         if source == SOURCE_SINE:
             om_s = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
             th0 = om_s * t + iu[k, IU_SINE_PHASE]
@@ -289,12 +291,13 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         else:
             ps1, pr1 = step_flux(mx, m, u)
             is1, ir1 = currents_frozen(ms, m, ps1, pr1)
-            ips, ipr = flux_integrals(mx, m, ps0, pr0, ps1, pr1, u, h)
-            int_is = ms[m, MS_CSS] * ips - ms[m, MS_CSR] * ipr
+            int_is = stator_current_integral(mx, m, ps0, pr0, ps1, pr1, u, h)
             int_i += int_is
             e_in = 1.5 * (u * int_is.conjugate()).real  # exact for the held voltage
         mx[m, MX_PSI_S] = ps1
         mx[m, MX_PSI_R] = pr1
+        mx[m, MX_IS] = is1
+        mx[m, MX_IR] = ir1
         i_end += is1
         ms[m, MS_E_TERMINAL] += e_in
         # copper losses 3/2 R |i|^2, trapezoid rule
@@ -304,7 +307,7 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         ms[m, MS_E_CU_R] += e_cu_r
         ms[m, MS_Q_STATOR] += e_cu_s
         ms[m, MS_Q_ROTOR] += e_cu_r
-        t0 = torque(ps0, is0, pp)
+        t0 = ms[m, MS_TORQUE]  # end of the last sub-step (set again at each refresh)
         t1 = torque(ps1, is1, pp)
         ms[m, MS_TORQUE] = t1
         force_sum += _shaft_step(mpar, mint, mu, ms, m, 0.5 * (t0 + t1), v, a_train, h)

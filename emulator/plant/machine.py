@@ -32,6 +32,7 @@ from .layout import (
     MP_LLR,
     MP_LLS,
     MP_LM,
+    MP_POLE_PAIRS,
     MP_RR20,
     MP_RS20,
     MP_T_REF,
@@ -41,12 +42,13 @@ from .layout import (
     MS_LM,
     MS_RR,
     MS_RS,
+    MS_TORQUE,
     MS_T_ROTOR,
     MS_T_STATOR,
-    MX_AI11,
-    MX_AI12,
-    MX_AI21,
-    MX_AI22,
+    MX_IR,
+    MX_IS,
+    MX_KI1,
+    MX_KI2,
     MX_CG,
     MX_G1,
     MX_G2,
@@ -130,7 +132,8 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     """Recompute motor m's zero-order-hold matrices for rotor speed omega_e (electrical).
 
     Resistances follow the winding temperatures, L_m the saturation curve at the present
-    magnetising current. Also stores A^{-1} (for exact flux integrals over a step), the
+    magnetising current. Also stores the coefficients of the exact stator-current
+    integral over a step, the currents for the new coefficients, the
     sensitivity of the end-of-step stator current to the held voltage (for the blocked
     bridge), and, when sine_on, the particular solution (j w - A)^{-1} B of an ideal
     sinusoidal source of angular frequency sine_omega (0 is a DC source).
@@ -173,11 +176,11 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     phi22 = ch - shq * dd
     phi12 = shq * a12 * h
     phi21 = shq * a21 * h
-    det = a11 * a22 - a12 * a21
-    ai11 = a22 / det
-    ai12 = -a12 / det
-    ai21 = -a21 / det
-    ai22 = a11 / det
+    inv_det = 1.0 / (a11 * a22 - a12 * a21)
+    ai11 = a22 * inv_det
+    ai12 = -a12 * inv_det
+    ai21 = -a21 * inv_det
+    ai22 = a11 * inv_det
     # Gamma = A^{-1} (Phi - I) [1, 0]^T
     g1 = ai11 * (phi11 - 1.0) + ai12 * phi21
     g2 = ai21 * (phi11 - 1.0) + ai22 * phi21
@@ -187,11 +190,19 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     mx[m, MX_PHI22] = phi22
     mx[m, MX_G1] = g1
     mx[m, MX_G2] = g2
-    mx[m, MX_AI11] = ai11
-    mx[m, MX_AI12] = ai12
-    mx[m, MX_AI21] = ai21
-    mx[m, MX_AI22] = ai22
-    mx[m, MX_CG] = (lr / d) * g1 - (lm / d) * g2
+    css = lr / d
+    csr = lm / d
+    # int i_s dt = CSS int psi_s - CSR int psi_r, int x dt = A^{-1} (x(h) - x(0) - B u h)
+    mx[m, MX_KI1] = css * ai11 - csr * ai21
+    mx[m, MX_KI2] = css * ai12 - csr * ai22
+    mx[m, MX_CG] = css * g1 - csr * g2
+    # currents with the new coefficients: the start values of the next sub-step
+    ps = mx[m, MX_PSI_S]
+    pr = mx[m, MX_PSI_R]
+    i_s = css * ps - csr * pr
+    mx[m, MX_IS] = i_s
+    mx[m, MX_IR] = (ls / d) * pr - csr * ps
+    mstate[m, MS_TORQUE] = torque(ps, i_s, mpar[m, MP_POLE_PAIRS])
     # particular solution of dx/dt = A x + B U e^{j w t}: x_p = (j w I - A)^{-1} B U e^{j w t}
     if sine_on:
         jw = complex(0.0, sine_omega)
@@ -204,8 +215,7 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
 def step_flux(mx: np.ndarray, m: int, u: complex):
     """Advance motor m's flux linkages one sub-step with the held stator voltage u.
 
-    Returns the new (psi_s, psi_r) and the exact integrals of both over the step,
-    int x dt = A^{-1} (x(h) - x(0) - B u h) / h * h (caller multiplies by h: see kernel).
+    Returns the new (psi_s, psi_r).
     """
     ps0 = mx[m, MX_PSI_S]
     pr0 = mx[m, MX_PSI_R]
@@ -215,16 +225,14 @@ def step_flux(mx: np.ndarray, m: int, u: complex):
 
 
 @compiled_inline
-def flux_integrals(mx: np.ndarray, m: int, ps0: complex, pr0: complex, ps1: complex,
-                   pr1: complex, u: complex, h: float):
-    """Exact integrals of psi_s and psi_r over a step with held voltage u, V s^2.
+def stator_current_integral(mx: np.ndarray, m: int, ps0: complex, pr0: complex, ps1: complex,
+                            pr1: complex, u: complex, h: float) -> complex:
+    """Exact integral of the stator current over a step with held voltage u, A s.
 
-    From dx/dt = A x + B u: int_0^h x dt = A^{-1} (x(h) - x(0) - B u h).
+    From dx/dt = A x + B u: int_0^h x dt = A^{-1} (x(h) - x(0) - B u h), and
+    i_s = (L_r psi_s - L_m psi_r) / D; the coefficients are stored at the refresh.
     """
-    r1 = ps1 - ps0 - u * h
-    r2 = pr1 - pr0
-    return (mx[m, MX_AI11] * r1 + mx[m, MX_AI12] * r2,
-            mx[m, MX_AI21] * r1 + mx[m, MX_AI22] * r2)
+    return mx[m, MX_KI1] * (ps1 - ps0 - u * h) + mx[m, MX_KI2] * (pr1 - pr0)
 
 
 @compiled_inline
