@@ -53,26 +53,34 @@ def polach_force(w: float, v: float, axle_load_n: float, kalker_n: float, k_a: f
     Returns:
         (F in N, dF/dw in N s/m). F has the sign of w.
     """
-    if mu0 <= 0.0 or axle_load_n <= 0.0:
+    if axle_load_n <= 0.0:
+        return 0.0, 0.0
+    return polach_core(w, v, 0.25 * math.pi * kalker_n / axle_load_n,
+                       2.0 * axle_load_n / math.pi, k_a, k_s, mu0, a_ratio, b_decay, v_ref)
+
+
+@compiled_inline
+def polach_core(w: float, v: float, kappa: float, scale: float, k_a: float, k_s: float,
+                mu0: float, a_ratio: float, b_decay: float, v_ref: float):
+    """polach_force with the axle constants kappa = pi/4 K/Q and scale = 2Q/pi given."""
+    if mu0 <= 0.0:
         return 0.0, 0.0
     aw = abs(w)
-    sgn = 1.0 if w >= 0.0 else -1.0
-    v_d = math.sqrt(v * v + v_ref * v_ref)
     ex = math.exp(-b_decay * aw)
     mu = mu0 * ((1.0 - a_ratio) * ex + a_ratio)
     dmu = -mu0 * (1.0 - a_ratio) * b_decay * ex  # d mu / d|w|
-    kappa = 0.25 * math.pi * kalker_n / axle_load_n
-    eps = kappa * aw / (v_d * mu)
-    deps = kappa / (v_d * mu) - kappa * aw * dmu / (v_d * mu * mu)
+    inv_mu = 1.0 / mu
+    c = kappa * inv_mu / math.sqrt(v * v + v_ref * v_ref)  # d eps / d|w| at fixed mu
+    eps = c * aw
+    deps = c * (1.0 - aw * dmu * inv_mu)
     ka_e = k_a * eps
     ks_e = k_s * eps
-    f = ka_e / (1.0 + ka_e * ka_e) + math.atan(ks_e)
-    df = (k_a * (1.0 - ka_e * ka_e) / ((1.0 + ka_e * ka_e) ** 2)
-          + k_s / (1.0 + ks_e * ks_e))
-    scale = 2.0 * axle_load_n / math.pi
+    g = 1.0 / (1.0 + ka_e * ka_e)
+    f = ka_e * g + math.atan(ks_e)
+    df = k_a * (1.0 - ka_e * ka_e) * g * g + k_s / (1.0 + ks_e * ks_e)
     force = scale * mu * f
-    dforce = scale * (dmu * f + mu * df * deps)  # symmetric: F odd, dF/dw even in w
-    return sgn * force, dforce
+    dforce = scale * (dmu * f + mu * df * deps)  # F odd, dF/dw even in w
+    return (force if w >= 0.0 else -force), dforce
 
 
 @compiled_inline

@@ -25,7 +25,7 @@ import math
 
 import numpy as np
 
-from .drivetrain import polach_force, wheel_torque
+from .drivetrain import polach_core, wheel_torque
 from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents
 from .jit import compiled, compiled_inline
 from .layout import (
@@ -69,16 +69,18 @@ from .layout import (
     MP_CREEP_VREF,
     MP_GEAR,
     MP_GEAR_EFF,
+    MP_GEAR_INV,
+    MP_J_EQ_INV,
     MP_J_ROTOR,
-    MP_J_WHEELSET,
     MP_KA,
-    MP_KALKER,
     MP_KS,
     MP_LLR,
     MP_LLS,
     MP_MU0,
     MP_POL_A,
     MP_POL_B,
+    MP_POL_KAPPA,
+    MP_POL_SCALE,
     MP_POLE_PAIRS,
     MP_TH_CR,
     MP_TH_CS,
@@ -148,8 +150,8 @@ from .machine import (
     abs2,
     currents,
     currents_frozen,
-    stator_current_integral,
     refresh_matrices,
+    stator_current_integral,
     step_flux,
     step_flux_sine,
     torque,
@@ -194,25 +196,26 @@ def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
     if mode == SHAFT_DRIVETRAIN:
         gear = mpar[m, MP_GEAR]
         r = mpar[m, MP_WHEEL_R]
-        j_eq = mpar[m, MP_J_WHEELSET] + gear * gear * mpar[m, MP_J_ROTOR]
-        ow = om / gear
+        inv_j = mpar[m, MP_J_EQ_INV]
+        ow = om * mpar[m, MP_GEAR_INV]
         t_w = wheel_torque(t_avg, om, gear, mpar[m, MP_GEAR_EFF])
         w = ow * r - v
-        f, df = polach_force(w, v, mpar[m, MP_AXLE_LOAD], mpar[m, MP_KALKER], mpar[m, MP_KA],
-                             mpar[m, MP_KS], mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR],
-                             mpar[m, MP_POL_A], mpar[m, MP_POL_B], mpar[m, MP_CREEP_VREF])
+        mu0 = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
+        f, df = polach_core(w, v, mpar[m, MP_POL_KAPPA], mpar[m, MP_POL_SCALE], mpar[m, MP_KA],
+                            mpar[m, MP_KS], mu0, mpar[m, MP_POL_A], mpar[m, MP_POL_B],
+                            mpar[m, MP_CREEP_VREF])
         # linearised backward Euler on the slip velocity (falling branch stays explicit)
         kk = max(df, 0.0)
-        dw = h * (r * t_w / j_eq - r * r * f / j_eq - a_train) / (1.0 + h * r * r * kk / j_eq)
+        dw = h * (r * t_w * inv_j - r * r * f * inv_j - a_train) / (1.0 + h * r * r * kk * inv_j)
         force = f + kk * dw
-        ow_new = ow + h * (t_w - r * force) / j_eq  # J_eq dw_w/dt = T_w - r F
+        ow_new = ow + h * (t_w - r * force) * inv_j  # J_eq dw_w/dt = T_w - r F
         om_new = gear * ow_new
         ow_avg = 0.5 * (ow + ow_new)
         ms[m, MS_E_GEAR] += (t_avg * gear - t_w) * ow_avg * h
         ms[m, MS_E_SLIP] += force * r * ow_avg * h  # train's share removed after its step
         ms[m, MS_CREEP_FORCE] = force
-        mu_eff = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR] * mpar[m, MP_AXLE_LOAD]
-        ms[m, MS_ADHESION_UTIL] = abs(force) / mu_eff if mu_eff > 0.0 else 0.0
+        q_mu = mu0 * mpar[m, MP_AXLE_LOAD]
+        ms[m, MS_ADHESION_UTIL] = abs(force) / q_mu if q_mu > 0.0 else 0.0
     elif mode == SHAFT_IMPOSED_SPEED:
         om_new = mu[m, MU_IMPOSED_SPEED]
         ms[m, MS_E_LOAD] += t_avg * 0.5 * (om + om_new) * h
@@ -370,8 +373,8 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         for m in range(mpar.shape[0]):
             if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN:
                 ms[m, MS_E_SLIP] -= ms[m, MS_CREEP_FORCE] * v_avg * h
-                ms[m, MS_CREEP_VEL] = (ms[m, MS_OMEGA_M] / mpar[m, MP_GEAR] * mpar[m, MP_WHEEL_R]
-                                       - v_new)
+                ms[m, MS_CREEP_VEL] = (ms[m, MS_OMEGA_M] * mpar[m, MP_GEAR_INV]
+                                       * mpar[m, MP_WHEEL_R] - v_new)
 
     for k in range(n_i):
         ist[k, IS_IDC] /= frame

@@ -43,7 +43,12 @@ MP_TH_GSA = 26  # stator-coolant thermal conductance, W/K
 MP_TH_GRA = 27  # rotor-coolant thermal conductance, W/K
 MP_COOLING = 28  # cooling effectiveness (1 normal, 0 lost), scales GSA and GRA
 MP_THERMAL_ON = 29  # 1 thermal model active, 0 temperatures held
-MP_N = 30
+# derived once from the columns above (Plant.derive_drivetrain), for the hot loop:
+MP_J_EQ_INV = 30  # 1 / (J_wheelset + gear^2 J_rotor), 1/(kg m^2)
+MP_GEAR_INV = 31  # 1 / gear, 1
+MP_POL_KAPPA = 32  # pi/4 K / Q, creep-to-epsilon factor of Polach's model, 1
+MP_POL_SCALE = 33  # 2 Q / pi, N
+MP_N = 34
 
 # --- motor integer data: int64 [n_motor, MI_N] ----------------------------------------
 MI_INVERTER = 0  # index of the feeding inverter

@@ -173,6 +173,7 @@ class Plant:
             self.iu[k, L.IU_DA:L.IU_DC + 1] = 0.5
         for link, lp in enumerate(params.dc_links):
             self.lst[link, L.LS_UDC] = lp.voltage_v
+        self.derive_drivetrain()
         tp = params.train
         self.tpar[L.TP_MASS] = tp.mass_kg
         self.tpar[L.TP_ROT_ALLOWANCE] = tp.rotating_mass_allowance
@@ -181,6 +182,15 @@ class Plant:
         self.tpar[L.TP_DAVIS_C] = tp.davis_c_n_per_mps2
         self.tpar[L.TP_GRAVITY] = 9.80665
         self.tpar[L.TP_AMBIENT] = ambient
+
+    def derive_drivetrain(self) -> None:
+        """Recompute the derived drivetrain columns after a change of their sources."""
+        mp = self.mpar
+        gear = mp[:, L.MP_GEAR]
+        mp[:, L.MP_J_EQ_INV] = 1.0 / (mp[:, L.MP_J_WHEELSET] + gear * gear * mp[:, L.MP_J_ROTOR])
+        mp[:, L.MP_GEAR_INV] = 1.0 / gear
+        mp[:, L.MP_POL_KAPPA] = 0.25 * math.pi * mp[:, L.MP_KALKER] / mp[:, L.MP_AXLE_LOAD]
+        mp[:, L.MP_POL_SCALE] = 2.0 * mp[:, L.MP_AXLE_LOAD] / math.pi
 
     @classmethod
     def from_profile(cls, path: str | Path, **kwargs: bool) -> Plant:
