@@ -56,6 +56,20 @@ def _cmd_bench(args: argparse.Namespace) -> int:
 
     params = load_trainset(args.profile)
     warm_up(params, say=console.print)
+    if args.link:
+        from emulator.bench_link import link_benchmark
+
+        figures = link_benchmark(params, seconds=args.seconds)
+        if args.json:
+            print(json.dumps(figures))
+            return 0
+        table = Table(title=f"Rig pacing and link: {params.name}, {args.seconds:g} s at 1 kHz")
+        table.add_column("figure")
+        table.add_column("value", justify="right")
+        for key, value in figures.items():
+            table.add_row(key, str(value))
+        Console().print(table)
+        return 0
     figures = plant_benchmark(params, frames=args.frames)
     if args.json:
         print(json.dumps(figures))
@@ -80,6 +94,89 @@ def _cmd_bench(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_protocol(args: argparse.Namespace) -> int:
+    from emulator.signals import HEADER, build_signal_map
+
+    params = load_trainset(args.profile)
+    sm = build_signal_map(params)
+    if args.json:
+        print(json.dumps(sm.as_dict(), indent=1))
+        return 0
+    out = Console()
+    out.print(f"[bold]Signal map[/bold] of {params.name}, protocol version {sm.version}. "
+              "Each telegram is a msgpack array; physical value = wire value x scale.")
+    for direction, signals in (("rig -> controller (measurements)", sm.measurements),
+                               ("controller -> rig (commands)", sm.commands)):
+        table = Table(title=direction)
+        for col in ("index", "name", "unit", "scale", "range", "kind"):
+            table.add_column(col, justify="right" if col in ("index", "scale") else "left")
+        for i, name in enumerate(HEADER):
+            table.add_row(str(i), name, "", "", "", "header")
+        for i, sig in enumerate(signals, start=len(HEADER)):
+            table.add_row(str(i), sig.name, sig.unit, f"{sig.scale:g}",
+                          f"{sig.lo:g} .. {sig.hi:g}", sig.kind)
+        out.print(table)
+    return 0
+
+
+def _cmd_serve(args: argparse.Namespace) -> int:
+    import asyncio
+    import signal
+
+    from emulator.link import LinkError, open_link
+    from emulator.rig import Rig, RigError
+
+    params = load_trainset(args.profile)
+    try:
+        link = open_link(args.link, allow_remote=args.allow_remote)
+        from emulator.clock import MonotonicClock
+
+        rig = Rig(params, link, mode=args.mode, period_s=args.period_ms / 1e3,
+                  command_delay=args.command_delay, watchdog_frames=args.watchdog_frames,
+                  seed=args.seed, clock=MonotonicClock(spin_ns=round(args.spin_us * 1e3)))
+    except (LinkError, RigError) as exc:
+        console.print(f"[red]error:[/red] {exc}")
+        return 2
+
+    async def serve() -> None:
+        stop = asyncio.Event()
+        loop = asyncio.get_running_loop()
+        for sig in (signal.SIGINT, signal.SIGTERM):
+            loop.add_signal_handler(sig, stop.set)
+        try:
+            await link.open()
+        except (LinkError, OSError) as exc:
+            raise LinkError(f"{args.link}: {exc}") from None
+        console.print(f"railrig serve: {params.name}; link {args.link}; mode {args.mode}; "
+                      f"period {rig.period_us} us; command delay {rig.delay} frame(s)"
+                      + (f"; clock {rig.clock.method}" if args.mode == "realtime" else "")
+                      + ". Ctrl-C stops.")
+        frames = args.frames
+        if args.duration is not None:
+            frames = round(args.duration * 1e6 / rig.period_us)
+        try:
+            await rig.run(frames=frames, stop=stop)
+        finally:
+            link.close()
+            rig.clock.close()
+
+    try:
+        asyncio.run(serve())
+    except LinkError as exc:
+        console.print(f"[red]link error:[/red] {exc}")
+        return 2
+    report = rig.report()
+    if args.report_json:
+        with open(args.report_json, "w") as fh:
+            json.dump(report, fh, indent=1)
+    t = report["timing"]
+    console.print(f"{report['frames']} frames, plant time {report['plant_time_s']:.3f} s; "
+                  f"link: {report['link']}; lateness median {t['lateness_us_median']:.1f} us, "
+                  f"p99 {t['lateness_us_p99']:.1f} us, late frames {t['late_frames']}, "
+                  f"CPU {100 * t['cpu_share']:.0f} %")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The command-line grammar."""
     parser = argparse.ArgumentParser(
@@ -95,10 +192,43 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("-v", "--verbose", action="store_true", help="print progress")
     demo.set_defaults(func=_cmd_demo)
 
+    serve = sub.add_parser("serve", help="run the plant behind a controller link")
+    serve.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
+    serve.add_argument("--link", required=True,
+                       help="udp://HOST:PORT?peer=HOST:PORT, serial:///dev/ttyX?baud=N, "
+                       "loop://NAME")
+    serve.add_argument("--mode", choices=("realtime", "lockstep", "afap"), default="realtime")
+    serve.add_argument("--period-ms", type=float, default=1.0, help="control period T")
+    serve.add_argument("--command-delay", type=int, default=1,
+                       help="frames between a measurement and the command acting on it "
+                       "(1 as on a real signal processor; 0 only for studies)")
+    serve.add_argument("--watchdog-frames", type=int, default=10,
+                       help="frames a missing command is held before the gates are blocked")
+    serve.add_argument("--spin-us", type=float, default=150.0,
+                       help="realtime: spin this long before each deadline (150 on bare "
+                       "metal; up to the period on a VM whose timers wake late)")
+    serve.add_argument("--seed", type=int, default=0, help="seed of the sensor noise")
+    serve.add_argument("--frames", type=int, default=None, help="stop after N frames")
+    serve.add_argument("--duration", type=float, default=None, help="stop after S seconds "
+                       "of plant time")
+    serve.add_argument("--allow-remote", action="store_true",
+                       help="let UDP bind or talk beyond loopback")
+    serve.add_argument("--report-json", default=None, help="write the run's counters here")
+    serve.set_defaults(func=_cmd_serve)
+
+    protocol = sub.add_parser("protocol", help="print the signal map of a trainset")
+    protocol.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
+    protocol.add_argument("--json", action="store_true", help="machine-readable")
+    protocol.set_defaults(func=_cmd_protocol)
+
     bench = sub.add_parser("bench", help="print the plant's cost per frame")
     bench.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     bench.add_argument("--frames", type=int, default=3000, help="frames to time")
     bench.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    bench.add_argument("--link", action="store_true",
+                       help="benchmark the rig's pacing and UDP link instead of the plant")
+    bench.add_argument("--seconds", type=float, default=10.0,
+                       help="length of each timed run of --link")
     bench.set_defaults(func=_cmd_bench)
     return parser
 

@@ -28,6 +28,7 @@ from emulator.plant.params import (
     TrainParams,
     TrainsetParams,
 )
+from emulator.sensors import ChannelSpec, SensorParams
 
 GRAVITY = 9.80665  # standard gravity, m/s^2 (CGPM 1901)
 KELVIN = 273.15
@@ -268,6 +269,38 @@ def _inverter(t: Table) -> InverterParams:
     return inv
 
 
+def _channel(t: Table, unit: str, lo: float, hi: float) -> ChannelSpec:
+    """A sensor channel table: gain, offset, noise, filter, ADC range and bits."""
+    spec = ChannelSpec(
+        gain=t.number("gain", "1", 0.0, 10.0, lo_open=True),
+        offset=t.number(f"offset_{unit}", unit, lo, hi),
+        noise_rms=t.number(f"noise_rms_{unit}", unit, 0.0, hi),
+        filter_s=t.number("filter_us", "us", 0.0, 1e6, scale=1e-6),
+        range_lo=t.number(f"range_min_{unit}", unit, lo, hi),
+        range_hi=t.number(f"range_max_{unit}", unit, lo, hi),
+        adc_bits=t.integer("adc_bits", 0, 24),
+    )
+    if spec.range_hi <= spec.range_lo:
+        raise t.error(f"range_max_{unit}", "must exceed range_min")
+    t.finish()
+    return spec
+
+
+def _sensors(t: Table) -> SensorParams:
+    enc = t.table("encoder")
+    lines = enc.integer("lines_per_rev", 1, 100000)
+    enc.finish()
+    params = SensorParams(
+        current=_channel(t.table("current"), "a", -1e5, 1e5),
+        voltage=_channel(t.table("voltage"), "v", -1e5, 1e5),
+        speed=_channel(t.table("speed"), "rad_s", -1e4, 1e4),
+        temperature=_channel(t.table("temperature"), "degc", -300.0, 1000.0),
+        encoder_lines=lines,
+    )
+    t.finish()
+    return params
+
+
 def load_trainset(path: Path | str) -> TrainsetParams:
     """Load a trainset profile and the machine profile it names."""
     path = resolve_profile(path)
@@ -347,8 +380,10 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     conv_names = [c.name for c in converters]
     if len(set(conv_names)) != len(conv_names):
         raise root.error("converter", "names must be unique")
+    sensors = _sensors(root.table("sensors")) if root.has("sensors") else SensorParams()
     root.finish()
     return TrainsetParams(name=name, source=str(path), substep_s=substep, frame_s=frame,
                           train=train, supply=supply, machine=machine, drivetrain=drivetrain,
                           inverter=inverter, dc_links=tuple(links),
-                          converters=tuple(converters), notes=notes)
+                          converters=tuple(converters), notes=notes,
+                          sensors=sensors)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 
 @dataclass(frozen=True)
@@ -127,6 +128,7 @@ class TrainsetParams:
     dc_links: tuple[DcLinkParams, ...]
     converters: tuple[ConverterParams, ...]
     notes: dict[str, str] = field(default_factory=dict)
+    sensors: Any = None  # emulator.sensors.SensorParams; the plant does not use it
 
     @property
     def motor_count(self) -> int:

@@ -1,0 +1,99 @@
+"""What every transport offers the rig: non-blocking send, queued receive, counters."""
+
+from __future__ import annotations
+
+import asyncio
+from collections import deque
+from dataclasses import dataclass, field
+
+from .framing import FramingStats
+
+#: received telegrams kept at most; older ones are dropped (and counted) beyond it
+RX_QUEUE_CAP = 256
+
+
+class LinkError(ValueError):
+    """A link URL or option that cannot be used (raised at open, never while running)."""
+
+
+@dataclass
+class LinkStats:
+    """Counters of one link endpoint."""
+
+    sent: int = 0
+    received: int = 0
+    tx_errors: int = 0
+    rx_overflow: int = 0
+    foreign_dropped: int = 0  # datagrams from an address other than the peer
+    framing: FramingStats = field(default_factory=FramingStats)
+
+
+class Link:
+    """Base of the transports: a queue of received payloads and an arrival event."""
+
+    url = ""
+
+    def __init__(self) -> None:
+        self.stats = LinkStats()
+        self._rx: deque[bytes] = deque()
+        self._waiter: asyncio.Future | None = None
+
+    async def open(self) -> None:
+        """Acquire the transport's resources (socket, port)."""
+
+    def send(self, payload: bytes) -> None:
+        """Send one telegram without blocking; failures are counted, never raised."""
+        raise NotImplementedError
+
+    def close(self) -> None:
+        """Release the transport's resources."""
+
+    def _deliver(self, payload: bytes) -> None:
+        if len(self._rx) >= RX_QUEUE_CAP:
+            self._rx.popleft()
+            self.stats.rx_overflow += 1
+        self._rx.append(payload)
+        self.stats.received += 1
+        waiter = self._waiter
+        if waiter is not None and not waiter.done():
+            waiter.set_result(True)
+
+    def take(self) -> list[bytes]:
+        """All telegrams received since the last call, oldest first."""
+        out = list(self._rx)
+        self._rx.clear()
+        return out
+
+    def take_one(self) -> bytes | None:
+        """The oldest telegram waiting, or None."""
+        if not self._rx:
+            return None
+        return self._rx.popleft()
+
+    def pending(self) -> bool:
+        """Whether a telegram is waiting."""
+        return bool(self._rx)
+
+    async def wait(self, timeout: float | None) -> bool:
+        """Wait until a telegram is waiting or timeout seconds pass; True if one is.
+
+        A bare future and a timer handle: cheaper per frame than asyncio.wait_for,
+        which wraps the wait in a task.
+        """
+        if self._rx:
+            return True
+        loop = asyncio.get_running_loop()
+        waiter = self._waiter = loop.create_future()
+        timer = (loop.call_later(timeout, _expire, waiter) if timeout is not None else None)
+        try:
+            await waiter
+        finally:
+            if timer is not None:
+                timer.cancel()
+            self._waiter = None
+        return bool(self._rx)
+
+
+def _expire(waiter: asyncio.Future) -> None:
+    if not waiter.done():
+        waiter.set_result(False)

@@ -1,0 +1,116 @@
+"""Telegram codec: msgpack arrays in the fixed order of the signal map.
+
+A telegram is ``[protocol_version, sequence, time_us, period_us, flags, v0, v1, ...]``;
+values in wire units (physical = wire x scale). Decoding validates everything and
+raises :class:`TelegramError` with a kind that the link counts; it never lets a
+non-finite or out-of-range value through.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import msgpack
+import numpy as np
+
+HEADER_LEN = 5
+
+#: the kinds of rejection, counted per kind by the rig
+REJECT_KINDS = ("malformed", "version", "length", "type", "non_finite", "range")
+
+
+class TelegramError(ValueError):
+    """A telegram that cannot be used; ``kind`` is one of REJECT_KINDS."""
+
+    def __init__(self, kind: str, message: str) -> None:
+        super().__init__(message)
+        self.kind = kind
+
+
+@dataclass(frozen=True)
+class Telegram:
+    """A decoded telegram: header fields and physical values."""
+
+    version: int
+    sequence: int
+    time_us: int
+    period_us: int
+    flags: int
+    values: np.ndarray
+
+
+class TelegramCodec:
+    """Encodes one direction and decodes the other, for a given signal layout.
+
+    Args:
+        version: protocol version expected and sent.
+        send_scales: scale of each value sent (physical = wire x scale).
+        recv_scales, recv_lo, recv_hi: scale and accepted physical range of each value
+            received.
+    """
+
+    def __init__(self, version: int, send_scales: np.ndarray, recv_scales: np.ndarray,
+                 recv_lo: np.ndarray, recv_hi: np.ndarray) -> None:
+        self.version = version
+        self._inv_send = 1.0 / np.asarray(send_scales, dtype=float)
+        self._recv_scales = np.asarray(recv_scales, dtype=float)
+        self._lo = np.asarray(recv_lo, dtype=float)
+        self._hi = np.asarray(recv_hi, dtype=float)
+        self._n_recv = len(self._recv_scales)
+        self._packer = msgpack.Packer(use_bin_type=True)
+
+    def encode(self, sequence: int, time_us: int, period_us: int, flags: int,
+               values: np.ndarray) -> bytes:
+        """Pack physical values as integers in wire units after the header."""
+        wire = np.rint(np.asarray(values) * self._inv_send).astype(np.int64).tolist()
+        return self._packer.pack([self.version, sequence, time_us, period_us, flags, *wire])
+
+    def decode(self, payload: bytes) -> Telegram:
+        """Unpack and validate a received telegram; raise TelegramError on any fault."""
+        try:
+            items = msgpack.unpackb(payload, raw=False, strict_map_key=True,
+                                    max_array_len=HEADER_LEN + self._n_recv + 64,
+                                    max_map_len=0, max_str_len=64, max_bin_len=64,
+                                    max_ext_len=0)
+        except Exception as exc:  # msgpack raises many types on hostile input
+            raise TelegramError("malformed", f"not a msgpack telegram: {exc}") from None
+        if not isinstance(items, list):
+            raise TelegramError("malformed", "a telegram is a msgpack array")
+        if len(items) < HEADER_LEN:
+            raise TelegramError("length", f"{len(items)} elements, header needs {HEADER_LEN}")
+        header = items[:HEADER_LEN]
+        if any(type(h) is not int for h in header):
+            raise TelegramError("type", "header elements must be integers")
+        if header[0] != self.version:
+            raise TelegramError("version", f"protocol version {header[0]}, expected "
+                                f"{self.version}")
+        body = items[HEADER_LEN:]
+        if len(body) != self._n_recv:
+            raise TelegramError("length", f"{len(body)} values, expected {self._n_recv}")
+        for value in body:
+            if type(value) not in _NUMBERS:
+                raise TelegramError("type", f"value {value!r} is not a number")
+        try:
+            values = np.array(body, dtype=float)
+        except OverflowError:
+            raise TelegramError("range", "integer out of range") from None
+        values *= self._recv_scales
+        bad = _first_bad(values, self._lo, self._hi)
+        if bad >= 0:
+            if not math.isfinite(values[bad]):
+                raise TelegramError("non_finite", f"value {bad} is NaN or infinite")
+            raise TelegramError("range", f"value {bad} = {values[bad]:g} outside "
+                                f"{self._lo[bad]:g}..{self._hi[bad]:g}")
+        return Telegram(header[0], header[1], header[2], header[3], header[4], values)
+
+
+_NUMBERS = (int, float)
+
+
+def _first_bad(values: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> int:
+    """Index of the first value outside [lo, hi] or not finite, or -1."""
+    ok = (values >= lo) & (values <= hi)  # NaN compares false: caught here too
+    if ok.all():
+        return -1
+    return int(np.argmin(ok))

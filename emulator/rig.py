@@ -1,0 +1,291 @@
+"""The frame loop: where clock, link, plant and sensors meet (DESIGN.md, "One frame").
+
+At the start of frame k (plant time t_k = k T): send the measurement y_k, sampled from
+the state at t_k; take the command telegram answering y_(k-d), d the command delay
+(default 1: the controller computes during the frame and its command acts from t_(k+1),
+as on a real signal processor; 0 only when asked for); validate it, or hold the last
+good command; after ``watchdog_frames`` frames without one, block the gates and raise
+the watchdog flag until valid commands resume; advance the plant to t_(k+1) with the
+command held; sample y_(k+1).
+
+Modes: ``realtime`` (the rig's clock paces, deadlines t0 + k T), ``lockstep`` (every
+command telegram paces one frame, answered at once; a telegram may carry its own
+period), ``afap`` (no waiting: commands are taken if present).
+"""
+
+from __future__ import annotations
+
+import asyncio
+import gc
+import logging
+from collections import Counter
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from emulator.clock import FrameStats, MonotonicClock
+from emulator.link import Link
+from emulator.link.telegram import TelegramCodec, TelegramError
+from emulator.plant import Plant
+from emulator.plant.params import TrainsetParams
+from emulator.sampling import CommandMapper, DriverDemand, MeasurementSampler
+from emulator.signals import (
+    FLAG_BAD_TELEGRAM,
+    FLAG_COMMAND_HELD,
+    FLAG_OVERRUN,
+    FLAG_SEQUENCE,
+    FLAG_WATCHDOG,
+    PROTOCOL_VERSION,
+    build_signal_map,
+)
+
+log = logging.getLogger(__name__)
+
+MODES = ("realtime", "lockstep", "afap")
+MIN_PERIOD_US, MAX_PERIOD_US = 100, 10_000  # 0.1 .. 10 ms
+START_LEAD_NS = 20_000_000  # first deadline after warm-up
+LOCKSTEP_REPEAT_S = 0.5  # lockstep: repeat the last measurement after this much silence
+
+
+class RigError(ValueError):
+    """A rig setting that cannot be used."""
+
+
+@dataclass
+class LinkHealth:
+    """What the rig saw of the controller's telegrams."""
+
+    accepted: int = 0  # telegrams that passed the checks and were queued
+    valid: int = 0  # frames that ran on a fresh command
+    missing: int = 0  # frames that held the previous command
+    watchdog_trips: int = 0
+    rejected: Counter = field(default_factory=Counter)  # by TelegramError kind
+    sequence: Counter = field(default_factory=Counter)  # duplicate, late, unexpected
+    expired: int = 0  # accepted answers whose frame passed before they were used
+    reordered: int = 0  # accepted, but after a later-numbered one
+
+    def as_dict(self) -> dict[str, Any]:
+        """Plain dictionary, for reports and JSON."""
+        return {"accepted": self.accepted, "valid": self.valid, "missing": self.missing,
+                "expired": self.expired, "reordered": self.reordered,
+                "watchdog_trips": self.watchdog_trips, "rejected": dict(self.rejected),
+                "sequence": dict(self.sequence)}
+
+
+class Rig:
+    """One trainset plant behind one controller link."""
+
+    def __init__(self, params: TrainsetParams, link: Link, *, mode: str = "realtime",
+                 period_s: float | None = None, command_delay: int = 1,
+                 watchdog_frames: int = 10, seed: int = 0, clock=None) -> None:
+        if mode not in MODES:
+            raise RigError(f"mode must be one of {', '.join(MODES)}, got {mode!r}")
+        if command_delay not in (0, 1, 2, 3):
+            raise RigError(f"command delay must be 0..3 frames, got {command_delay}")
+        period_s = params.frame_s if period_s is None else period_s
+        if not MIN_PERIOD_US <= round(period_s * 1e6) <= MAX_PERIOD_US:
+            raise RigError(f"period must be within 0.1..10 ms, got {period_s * 1e3:g} ms")
+        if watchdog_frames < 1:
+            raise RigError("watchdog must allow at least one missing frame")
+        self.params = params
+        self.link = link
+        self.mode = mode
+        self.period_us = round(period_s * 1e6)
+        self.delay = command_delay
+        self.watchdog_frames = watchdog_frames
+        self.clock = clock or MonotonicClock()
+        self.plant = Plant(params)
+        self.signal_map = build_signal_map(params)
+        sm = self.signal_map
+        self.codec = TelegramCodec(
+            PROTOCOL_VERSION, np.array([s.scale for s in sm.measurements]),
+            np.array([s.scale for s in sm.commands]), np.array([s.lo for s in sm.commands]),
+            np.array([s.hi for s in sm.commands]))
+        self.rng = np.random.default_rng(seed)
+        self.driver = DriverDemand()
+        self.sampler = MeasurementSampler(self.plant, sm, params.sensors, self.rng)
+        self.mapper = CommandMapper(self.plant, sm)
+        self.health = LinkHealth()
+        self.stats = FrameStats()
+        self.frame = 0  # k: the frame about to run
+        self.replies: dict[str, float] = {}
+        self._answers: dict[int, tuple[np.ndarray, int]] = {}  # seq -> (values, period_us)
+        self._held = self.mapper.safe.copy()
+        self._missing_run = 0
+        self.tripped = False
+        self._flags = 0
+        self._last_seq = -1
+        self._last_used = -1
+        self._last_payload = b""
+        self.repeats = 0  # lockstep: measurements said again to a silent controller
+        self._y = np.zeros(len(sm.measurements))
+
+    # --- one frame, without waiting ----------------------------------------------------
+    def _send_measurement(self, k: int) -> None:
+        flags = self._flags | (FLAG_WATCHDOG if self.tripped else 0)
+        payload = self.codec.encode(k, round(self.plant.time_s * 1e6), self.period_us, flags,
+                                    self._y)
+        self.link.send(payload)
+        self._last_payload = payload
+        self._flags = 0
+
+    def _receive(self, payloads: list[bytes]) -> None:
+        """Decode telegrams; keep valid answers by the sequence number they answer."""
+        k = self.frame
+        for payload in payloads:
+            try:
+                tg = self.codec.decode(payload)
+            except TelegramError as exc:
+                self.health.rejected[exc.kind] += 1
+                self._flags |= FLAG_BAD_TELEGRAM
+                continue
+            seq = tg.sequence
+            if seq > k:
+                self._sequence_error("unexpected")  # answers a measurement never sent
+            elif seq in self._answers or seq <= self._last_used:
+                self._sequence_error("duplicate" if seq in self._answers
+                                     or seq == self._last_used else "late")
+            elif seq < k - self.delay:
+                self._sequence_error("late")
+            else:
+                if seq < self._last_seq:
+                    self.health.reordered += 1
+                self._last_seq = max(self._last_seq, seq)
+                period = tg.period_us
+                if period and not MIN_PERIOD_US <= period <= MAX_PERIOD_US:
+                    self.health.rejected["range"] += 1
+                    self._flags |= FLAG_BAD_TELEGRAM
+                    continue
+                self._answers[seq] = (tg.values, period)
+                self.health.accepted += 1
+
+    def _sequence_error(self, kind: str) -> None:
+        self.health.sequence[kind] += 1
+        self._flags |= FLAG_SEQUENCE
+
+    def _take_command(self, k: int) -> int:
+        """The command for frame k (answering y_(k-d)); returns its period (0: default)."""
+        want = k - self.delay
+        answer = self._answers.pop(want, None)
+        for stale in [s for s in self._answers if s < want]:
+            del self._answers[stale]
+            self.health.expired += 1
+            self._flags |= FLAG_SEQUENCE
+        if answer is not None:
+            self._held = answer[0]
+            self._last_used = want
+            self.health.valid += 1
+            self._missing_run = 0
+            self.tripped = False
+            self.replies = self.mapper.replies(self._held)
+            return answer[1]
+        if want >= 0:  # before the first answer can exist, holding is not a fault
+            self.health.missing += 1
+            self._missing_run += 1
+            self._flags |= FLAG_COMMAND_HELD
+            if self._missing_run > self.watchdog_frames and not self.tripped:
+                self.tripped = True
+                self.health.watchdog_trips += 1
+                log.warning("link watchdog: no valid command for %d frames, gates blocked",
+                            self._missing_run)
+        return 0
+
+    def _step(self, period_us: int) -> None:
+        commands = self.mapper.commands(self._held, gates_allowed=not self.tripped)
+        self.plant.advance(commands, period_us / 1e6)
+        self._y = self.sampler.sample(period_us / 1e6, self.driver)
+        self.frame += 1
+
+    def start(self) -> None:
+        """Warm every compiled path and take y_0 (call before the first frame)."""
+        spare = Plant(self.params)  # compile or load the kernels on a throwaway plant
+        spare.advance(self.mapper.commands(self.mapper.safe.copy()), self.period_us / 1e6)
+        self.codec.encode(0, 0, 0, 0, self._y)
+        self._y = self.sampler.sample(self.period_us / 1e6, self.driver).copy()
+
+    # --- pacing -----------------------------------------------------------------------
+    async def run(self, frames: int | None = None, stop: asyncio.Event | None = None) -> None:
+        """Run frames until the count is reached or stop is set."""
+        self.start()
+        gc.collect()
+        gc.freeze()  # warm-up objects out of the collector's way (DESIGN.md timing facts)
+        try:
+            if self.mode == "lockstep":
+                await self._run_lockstep(frames, stop)
+            else:
+                await self._run_paced(frames, stop)
+        finally:
+            gc.unfreeze()
+
+    def _done(self, frames: int | None, stop: asyncio.Event | None) -> bool:
+        return (frames is not None and self.frame >= frames) or (stop is not None
+                                                                  and stop.is_set())
+
+    async def _run_paced(self, frames: int | None, stop: asyncio.Event | None) -> None:
+        clock = self.clock
+        period_ns = self.period_us * 1000
+        t0 = clock.now_ns() + (START_LEAD_NS if self.mode == "realtime" else 0)
+        self.stats.restart_cpu_window()
+        first = self.frame
+        while not self._done(frames, stop):
+            deadline = t0 + (self.frame - first) * period_ns
+            if self.mode == "realtime":
+                await clock.sleep_until(deadline)
+            start = clock.now_ns()
+            lateness = start - deadline if self.mode == "realtime" else 0
+            if lateness > period_ns:
+                self._flags |= FLAG_OVERRUN
+            k = self.frame
+            self._send_measurement(k)
+            if self.delay == 0:
+                budget = (deadline + period_ns // 2 - clock.now_ns()) / 1e9
+                while k not in self._answers and budget > 0 and await self.link.wait(budget):
+                    self._receive(self.link.take())
+                    budget = (deadline + period_ns // 2 - clock.now_ns()) / 1e9
+            self._receive(self.link.take())
+            self._take_command(k)
+            self._step(self.period_us)
+            self.stats.record(lateness, clock.now_ns() - start, period_ns)
+            if self.mode == "afap" and self.frame % 64 == 0:
+                await asyncio.sleep(0)  # let the loop serve I/O
+
+    async def _run_lockstep(self, frames: int | None, stop: asyncio.Event | None) -> None:
+        """Each telegram received paces one frame: the controller is the clock."""
+        self._send_measurement(self.frame)
+        self.stats.restart_cpu_window()
+        while not self._done(frames, stop):
+            if not await self.link.wait(LOCKSTEP_REPEAT_S):
+                # the controller is silent (not started yet, or lost our telegram): plant
+                # time stands still; say the last measurement again
+                self.link.send(self._last_payload)
+                self.repeats += 1
+                continue
+            while not self._done(frames, stop):
+                payload = self.link.take_one()
+                if payload is None:
+                    break
+                k = self.frame
+                rejected = sum(self.health.rejected.values())
+                self._receive([payload])
+                if k not in self._answers and sum(self.health.rejected.values()) == rejected:
+                    continue  # a duplicate or stale telegram does not pace a frame
+                start = self.clock.now_ns()
+                period = self._take_command(k) or self.period_us
+                self._step(period)
+                self._send_measurement(self.frame)
+                self.stats.record(0, self.clock.now_ns() - start, period * 1000)
+
+    def report(self) -> dict[str, Any]:
+        """Counters and timing of the run so far."""
+        return {"frames": self.frame, "plant_time_s": self.plant.time_s, "mode": self.mode,
+                "period_us": self.period_us, "command_delay": self.delay,
+                "watchdog_tripped": self.tripped, "link": self.health.as_dict(),
+                "lockstep_repeats": self.repeats,
+                "transport": {"sent": self.link.stats.sent,
+                              "received": self.link.stats.received,
+                              "tx_errors": self.link.stats.tx_errors,
+                              "rx_overflow": self.link.stats.rx_overflow,
+                              "foreign_dropped": self.link.stats.foreign_dropped,
+                              "framing": vars(self.link.stats.framing)},
+                "timing": self.stats.summary()}

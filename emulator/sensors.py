@@ -1,0 +1,133 @@
+"""The measurement chain: what the controller's sensors and ADCs make of the plant state.
+
+Each analog channel: y = saturate(quantise(filter(gain x + offset + noise))), in that
+order: transducer gain and offset, white noise from the rig's one seeded generator, a
+first-order anti-alias/filter lag (exact discretisation over the frame, y += (1 - e^(-T/tau))
+(x - y)), the converter's input range, then the ADC's step (range / 2^bits). Encoders
+count edges (4 per line, quadrature) into an unsigned 16-bit counter that wraps, as a
+board's timer does; a controller derives speed from count differences over its period.
+
+Fault hooks (used by the fault catalogue): per channel an extra gain, an extra offset
+and a stuck value (NaN: not stuck); per encoder a count offset. Measurements depend only
+on the plant state, never on the command of the same exchange.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numba as nb
+import numpy as np
+
+
+@dataclass(frozen=True)
+class ChannelSpec:
+    """Sensor and ADC of one kind of analog channel (SI units)."""
+
+    gain: float = 1.0
+    offset: float = 0.0
+    noise_rms: float = 0.0
+    filter_s: float = 0.0
+    range_lo: float = -math.inf
+    range_hi: float = math.inf
+    adc_bits: int = 0  # 0: not quantised
+
+    @property
+    def lsb(self) -> float:
+        """ADC step, in the channel's unit (0 when not quantised)."""
+        if self.adc_bits <= 0 or not math.isfinite(self.range_hi - self.range_lo):
+            return 0.0
+        return (self.range_hi - self.range_lo) / 2**self.adc_bits
+
+
+@dataclass(frozen=True)
+class SensorParams:
+    """All sensor kinds of a trainset."""
+
+    current: ChannelSpec = ChannelSpec()
+    voltage: ChannelSpec = ChannelSpec()
+    speed: ChannelSpec = ChannelSpec()
+    temperature: ChannelSpec = ChannelSpec()
+    encoder_lines: int = 256
+
+
+class AnalogChannels:
+    """A bank of analog channels sampled together once per frame."""
+
+    def __init__(self, specs: list[ChannelSpec], rng: np.random.Generator) -> None:
+        self.rng = rng
+        self.gain = np.array([s.gain for s in specs])
+        self.offset = np.array([s.offset for s in specs])
+        self.noise = np.array([s.noise_rms for s in specs])
+        self.tau = np.array([s.filter_s for s in specs])
+        self.lo = np.array([s.range_lo for s in specs])
+        self.hi = np.array([s.range_hi for s in specs])
+        self.lsb = np.array([s.lsb for s in specs])
+        self._quantised = self.lsb > 0
+        self._noisy = bool(np.any(self.noise > 0))
+        # fault hooks
+        self.fault_gain = np.ones(len(specs))
+        self.fault_offset = np.zeros(len(specs))
+        self.stuck = np.full(len(specs), np.nan)
+        self._state: np.ndarray | None = None
+        self._out = np.zeros(len(specs))
+        self._no_noise = np.zeros(len(specs))
+        self._alpha_for: float = -1.0
+        self._alpha = np.zeros(len(specs))
+
+    def sample(self, true_values: np.ndarray, period_s: float) -> np.ndarray:
+        """The channel outputs for the plant values at the sampling instant."""
+        if period_s != self._alpha_for:
+            tau = np.maximum(self.tau, 1e-300)
+            self._alpha = np.where(self.tau > 0, np.exp(-period_s / tau), 0.0)
+            self._alpha_for = period_s
+        normals = (self.rng.standard_normal(len(true_values)) if self._noisy
+                   else self._no_noise)
+        if self._state is None:
+            self._state = np.zeros(len(true_values))
+            self._out = np.zeros(len(true_values))
+            _chain(true_values, self.gain, self.fault_gain, self.offset, self.fault_offset,
+                   self.noise, normals, np.zeros(len(true_values)), self._state, self.lo,
+                   self.hi, self.lsb, self.stuck, self._out)
+        else:
+            _chain(true_values, self.gain, self.fault_gain, self.offset, self.fault_offset,
+                   self.noise, normals, self._alpha, self._state, self.lo, self.hi,
+                   self.lsb, self.stuck, self._out)
+        return self._out
+
+
+@nb.njit(cache=True)
+def _chain(x, gain, fault_gain, offset, fault_offset, noise, normals, alpha, state, lo, hi,
+           lsb, stuck, out):
+    """gain/offset/noise -> first-order filter -> range -> ADC step -> stuck override."""
+    for i in range(x.shape[0]):
+        v = x[i] * gain[i] * fault_gain[i] + offset[i] + fault_offset[i] + noise[i] * normals[i]
+        state[i] += (1.0 - alpha[i]) * (v - state[i])
+        y = min(max(state[i], lo[i]), hi[i])
+        if lsb[i] > 0.0:
+            y = np.round(y / lsb[i]) * lsb[i]
+        out[i] = y if math.isnan(stuck[i]) else stuck[i]
+
+
+class Encoders:
+    """Incremental encoders on the motor shafts: wrapping 16-bit edge counters."""
+
+    COUNTER_MODULUS = 1 << 16
+
+    def __init__(self, n: int, lines: int) -> None:
+        self.edges_per_rev = 4 * lines
+        self.count_offset = np.zeros(n, dtype=np.int64)  # fault hook: lost pulses
+
+    def counts(self, angle_rad: np.ndarray) -> np.ndarray:
+        """Counter values for the shaft angles (unwrapped, rad)."""
+        out = np.empty(len(angle_rad), dtype=np.int64)
+        _counts(angle_rad, self.edges_per_rev / (2 * math.pi), self.count_offset,
+                self.COUNTER_MODULUS, out)
+        return out
+
+
+@nb.njit(cache=True)
+def _counts(angle, edges_per_rad, offset, modulus, out):
+    for i in range(angle.shape[0]):
+        out[i] = (np.int64(math.floor(angle[i] * edges_per_rad)) + offset[i]) % modulus

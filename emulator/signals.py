@@ -1,0 +1,134 @@
+"""The signal map: what each telegram carries, in which order, unit and scaling.
+
+Built from a trainset profile, so that adding a motor or an inverter to the profile
+adds its signals. Every value travels in wire units: physical = wire x scale. The rig
+sends integers (cheap for a board to decode); a controller may send integers or floats.
+``railrig protocol --profile P`` prints this map for board developers.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+from emulator.plant.params import TrainsetParams
+
+PROTOCOL_VERSION = 1
+HEADER = ("protocol_version", "sequence", "time_us", "period_us", "flags")
+
+# header flags, rig -> controller
+FLAG_WATCHDOG = 1 << 0  # the rig blocked the gates: no valid command for too long
+FLAG_COMMAND_HELD = 1 << 1  # no valid command for the last frame: the previous one was held
+FLAG_BAD_TELEGRAM = 1 << 2  # a telegram was rejected since the last measurement
+FLAG_SEQUENCE = 1 << 3  # a duplicate, stale or unexpected sequence number was seen
+FLAG_OVERRUN = 1 << 4  # the rig's last frame started late (realtime mode)
+
+FLAG_NAMES = {
+    FLAG_WATCHDOG: "watchdog: gates blocked by the rig",
+    FLAG_COMMAND_HELD: "command missing: previous command held",
+    FLAG_BAD_TELEGRAM: "a telegram was rejected",
+    FLAG_SEQUENCE: "sequence error (duplicate, stale or unexpected)",
+    FLAG_OVERRUN: "rig frame started late",
+}
+
+# train modes (train.mode)
+MODES = {0: "off", 1: "accelerate", 2: "cruise", 3: "coast", 4: "brake"}
+
+
+@dataclass(frozen=True)
+class Signal:
+    """One value of a telegram."""
+
+    name: str
+    unit: str
+    scale: float  # physical value = wire value x scale
+    lo: float  # physical range accepted (commands) or produced (measurements)
+    hi: float
+    kind: str  # analog, count, flag, enum
+    description: str
+
+
+@dataclass(frozen=True)
+class SignalMap:
+    """Both directions of the protocol for one trainset."""
+
+    version: int
+    measurements: tuple[Signal, ...]  # rig -> controller, after the header
+    commands: tuple[Signal, ...]  # controller -> rig, after the header
+
+    def index(self, direction: str, name: str) -> int:
+        """Position of a signal in the body (0 = first after the header)."""
+        table = self.measurements if direction == "measurement" else self.commands
+        for i, s in enumerate(table):
+            if s.name == name:
+                return i
+        raise KeyError(f"no {direction} signal {name!r}")
+
+    def as_dict(self) -> dict:
+        """JSON-ready form (what ``railrig protocol --json`` prints)."""
+        return {
+            "protocol_version": self.version,
+            "header": list(HEADER),
+            "flags": {str(bit): text for bit, text in FLAG_NAMES.items()},
+            "measurements": [asdict(s) for s in self.measurements],
+            "commands": [asdict(s) for s in self.commands],
+        }
+
+
+def _analog(name, unit, scale, lo, hi, description) -> Signal:
+    return Signal(name, unit, scale, lo, hi, "analog", description)
+
+
+def build_signal_map(params: TrainsetParams) -> SignalMap:
+    """The signal map of a trainset: per inverter, link, motor, and the train interface."""
+    meas: list[Signal] = []
+    cmd: list[Signal] = []
+    for link in params.dc_links:
+        meas.append(_analog(f"{link.name}.voltage_v", "V", 0.1, 0.0, 6000.0,
+                            f"DC-link voltage of {link.name}"))
+    for conv in params.converters:
+        for phase in "abc":
+            meas.append(_analog(f"{conv.name}.current_{phase}_a", "A", 0.1, -3000.0, 3000.0,
+                                f"phase {phase} current of {conv.name} (sum of its motors)"))
+        meas.append(_analog(f"{conv.name}.heatsink_temperature_degc", "degC", 0.1, -50.0,
+                            250.0, f"heatsink temperature of {conv.name}"))
+        meas.append(Signal(f"{conv.name}.gate_fault", "1", 1.0, 0, 7, "flag",
+                           "gate-driver fault flags, bit x = leg a, b, c"))
+        for j in range(len(conv.wheel_diameters_m)):
+            motor = f"{conv.name}.m{j + 1}"
+            meas.append(Signal(f"{motor}.encoder_count", "count", 1.0, 0, 65535, "count",
+                               "encoder edge counter (4 per line), unsigned 16 bit, wraps"))
+            meas.append(_analog(f"{motor}.speed_rad_s", "rad/s", 0.01, -1000.0, 1000.0,
+                                "rotor speed from the speed sensor"))
+            meas.append(_analog(f"{motor}.stator_temperature_degc", "degC", 0.1, -50.0, 250.0,
+                                "stator winding temperature sensor"))
+    meas += [
+        _analog("train.effort_demand", "1", 0.001, -1.0, 1.0,
+                "driver's effort demand, fraction of maximum (negative: brake)"),
+        Signal("train.direction", "1", 1.0, -1, 1, "enum", "-1 reverse, 0 neutral, 1 forward"),
+        Signal("train.mode", "1", 1.0, 0, 4, "enum",
+               "0 off, 1 accelerate, 2 cruise, 3 coast, 4 brake"),
+        _analog("train.cruise_speed_kmh", "km/h", 0.1, 0.0, 400.0, "speed to hold in cruise"),
+        Signal("train.neutral_section_ahead", "1", 1.0, 0, 1, "flag",
+               "a neutral section is ahead: reduce and cut traction"),
+        Signal("train.regeneration_allowed", "1", 1.0, 0, 1, "flag",
+               "electric braking may feed energy back"),
+        _analog("train.current_limit_a", "A", 1.0, 0.0, 5000.0,
+                "line current limit from the train"),
+        Signal("train.emergency_loop_closed", "1", 1.0, 0, 1, "flag",
+               "1 while the emergency loop is healthy"),
+    ]
+    for conv in params.converters:
+        for phase in "abc":
+            cmd.append(_analog(f"{conv.name}.duty_{phase}", "1", 1e-4, 0.0, 1.0,
+                               f"duty cycle of leg {phase} of {conv.name}"))
+        cmd.append(Signal(f"{conv.name}.gates_enabled", "1", 1.0, 0, 1, "flag",
+                          f"1 releases the gates of {conv.name}"))
+    cmd += [
+        _analog("tcu.achieved_effort_kn", "kN", 0.1, -1000.0, 1000.0,
+                "tractive (+) or electric braking (-) effort achieved, for blending"),
+        _analog("tcu.available_effort_kn", "kN", 0.1, -1000.0, 1000.0,
+                "effort the drive could give now"),
+        Signal("tcu.status", "1", 1.0, 0, 65535, "flag", "controller status bits (free use)"),
+        Signal("tcu.event_code", "1", 1.0, 0, 65535, "enum", "last protective event code"),
+    ]
+    return SignalMap(PROTOCOL_VERSION, tuple(meas), tuple(cmd))

@@ -1,0 +1,140 @@
+"""Real transports with the controller in another process: UDP, a pty serial line, fuzz.
+
+The board (tests/link/board.py) is written from the protocol description alone: it
+imports nothing of railrig and reads the signal map that `railrig protocol --json` prints.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import json
+import os
+import socket
+import sys
+import tempfile
+from pathlib import Path
+
+import msgpack
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from emulator.clock import FakeClock
+from emulator.link import open_link
+from emulator.rig import Rig
+from emulator.signals import build_signal_map
+
+BOARD = Path(__file__).with_name("board.py")
+
+
+def free_port() -> int:
+    with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def signal_map_file(params, tmp_path: Path) -> Path:
+    path = tmp_path / "map.json"
+    path.write_text(json.dumps(build_signal_map(params).as_dict()))
+    return path
+
+
+async def _run_with_board(params, link_url: str, board_args: list[str], frames: int,
+                          pass_fds=()) -> tuple[Rig, dict]:
+    link = open_link(link_url)
+    await link.open()
+    rig = Rig(params, link, mode="lockstep")
+    board = await asyncio.create_subprocess_exec(sys.executable, *board_args,
+                                                 stdout=asyncio.subprocess.PIPE,
+                                                 pass_fds=pass_fds)
+    try:
+        await asyncio.wait_for(rig.run(frames=frames), 60)
+        out, _ = await asyncio.wait_for(board.communicate(), 30)
+    finally:
+        link.close()
+        if board.returncode is None:
+            board.kill()
+    return rig, json.loads(out.decode().strip().splitlines()[-1])
+
+
+def test_board_drives_the_train_over_udp(params, tmp_path) -> None:
+    rig_port, board_port = free_port(), free_port()
+    url = f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}"
+    args = [str(BOARD), str(signal_map_file(params, tmp_path)), "udp",
+            f"127.0.0.1:{rig_port}", f"127.0.0.1:{board_port}", "1500"]
+    rig, board = asyncio.run(_run_with_board(params, url, args, 1500))
+    assert board["answered"] >= 1500
+    assert rig.health.valid >= 1499 and not rig.health.rejected
+    assert rig.plant.read("train.speed_mps") > 0.1  # the open-loop board moved the train
+    # the board's speed from count differences over one frame: resolution one count per
+    # frame, 2 pi / (4 x 256 lines) / 1 ms = 6.1 rad/s, averaged over its 8 encoders
+    plant_speed = float(rig.plant.read("motor.speed_rad_s").mean())
+    assert plant_speed > 0.3
+    assert abs(board["speed_rad_s"] - plant_speed) <= 2 * 3.14159 / 1024 / 1e-3
+
+
+def test_board_over_a_pseudo_terminal_serial_line(params, tmp_path) -> None:
+    master, slave = os.openpty()
+    try:
+        url = f"serial://{os.ttyname(slave)}?baud=921600"
+        args = [str(BOARD), str(signal_map_file(params, tmp_path)), "fd", str(master), "400"]
+        rig, board = asyncio.run(_run_with_board(params, url, args, 400, pass_fds=(master,)))
+    finally:
+        os.close(master)
+        os.close(slave)
+    assert board["answered"] >= 400
+    assert rig.health.valid >= 399
+    framing = rig.link.stats.framing
+    assert framing.frames >= 400 and framing.crc_errors == 0
+
+
+async def _rig_receiving(params, datagrams: list[bytes], from_peer: bool) -> Rig:
+    rig_port, peer_port = free_port(), free_port()
+    link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{peer_port}")
+    await link.open()
+    rig = Rig(params, link, mode="realtime", clock=FakeClock())
+    with tempfile.NamedTemporaryFile("w", suffix=".txt", delete=False) as fh:
+        fh.write("\n".join(d.hex() for d in datagrams))
+    sender_port = peer_port if from_peer else free_port()
+    script = ("import socket,sys,time;s=socket.socket(socket.AF_INET,socket.SOCK_DGRAM);"
+              f"s.bind(('127.0.0.1',{sender_port}));"
+              "[s.sendto(bytes.fromhex(l.strip()),('127.0.0.1',%d)) or time.sleep(0.0002) "
+              "for l in open(sys.argv[1]) if l.strip()]" % rig_port)
+    sender = await asyncio.create_subprocess_exec(sys.executable, "-c", script, fh.name)
+    stop = asyncio.Event()
+
+    async def until_all_arrived():
+        await sender.wait()
+        for _ in range(200):
+            if link.stats.received + link.stats.foreign_dropped >= len(datagrams):
+                break
+            await asyncio.sleep(0.01)
+        stop.set()
+
+    waiter = asyncio.create_task(until_all_arrived())
+    await rig.run(stop=stop)
+    await waiter
+    link.close()
+    os.unlink(fh.name)
+    return rig
+
+
+@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.one_of(
+    st.binary(min_size=1, max_size=120),
+    st.lists(st.one_of(st.integers(-2**40, 2**40), st.floats(allow_nan=True),
+                       st.text(max_size=4), st.none(), st.booleans()),
+             max_size=30).map(lambda items: msgpack.packb([1, *items])),
+), min_size=1, max_size=60))
+def test_fuzzed_datagrams_from_another_process_are_counted(params, datagrams) -> None:
+    rig = asyncio.run(_rig_receiving(params, datagrams, from_peer=True))
+    h = rig.health
+    assert rig.link.stats.received == len(datagrams)
+    # every datagram is accounted for exactly once: rejected, a sequence error, or accepted
+    assert sum(h.rejected.values()) + sum(h.sequence.values()) + h.accepted == len(datagrams)
+
+
+def test_datagrams_from_a_stranger_are_dropped(params) -> None:
+    rig = asyncio.run(_rig_receiving(params, [b"\x95\x01\x00\x00\x00\x00"] * 20,
+                                     from_peer=False))
+    assert rig.link.stats.foreign_dropped == 20
+    assert rig.link.stats.received == 0

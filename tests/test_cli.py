@@ -1,0 +1,54 @@
+"""The railrig command as a user types it."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import pytest
+
+from emulator.cli import main
+
+
+def railrig(*args: str) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "emulator.cli", *args], capture_output=True,
+                          text=True, timeout=300)
+
+
+def test_protocol_json_lists_both_directions() -> None:
+    out = railrig("protocol", "--json")
+    assert out.returncode == 0
+    sm = json.loads(out.stdout)
+    assert sm["header"][:2] == ["protocol_version", "sequence"]
+    names = [s["name"] for s in sm["commands"]]
+    assert "INV-A1.duty_a" in names and "INV-B2.gates_enabled" in names
+    assert any(s["name"].endswith("encoder_count") for s in sm["measurements"])
+
+
+def test_protocol_table_for_the_other_variant() -> None:
+    out = railrig("protocol", "--profile", "trainsets/tern-15kv")
+    assert out.returncode == 0 and "16.7 Hz" in out.stdout
+
+
+@pytest.mark.parametrize(("args", "words"), [
+    (["serve", "--link", "tcp://x"], "unknown link scheme"),
+    (["serve", "--link", "udp://127.0.0.1:5000"], "peer=HOST:PORT"),
+    (["serve", "--link", "udp://10.1.2.3:5000?peer=127.0.0.1:5001"], "not loopback"),
+    (["serve", "--link", "serial:///dev/ttyUSB0?baud=fast"], "baud"),
+    (["serve", "--link", "loop://a", "--period-ms", "20"], "period"),
+    (["serve", "--link", "loop://a", "--command-delay", "9"], "command delay"),
+    (["serve", "--profile", "nonexistent.toml", "--link", "loop://a"], "no such profile"),
+])
+def test_bad_settings_give_a_clear_error_and_exit_2(args, words, capsys) -> None:
+    assert main(args) == 2
+    assert words in " ".join(capsys.readouterr().err.split())
+
+
+def test_bench_json_has_the_documented_keys() -> None:
+    out = railrig("bench", "--json", "--frames", "300")
+    assert out.returncode == 0
+    figures = json.loads(out.stdout)
+    for key in ("plant_frame_us_median", "plant_frame_us_p99", "frame_fraction",
+                "motors_in_10pct", "solve_ivp_ratio"):
+        assert isinstance(figures[key], int | float)
