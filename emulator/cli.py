@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from collections.abc import Sequence
 
@@ -127,6 +128,12 @@ def _cmd_serve(args: argparse.Namespace) -> int:
     from emulator.rig import Rig, RigError
 
     params = load_trainset(args.profile)
+    if args.cpu is not None:
+        try:
+            os.sched_setaffinity(0, {args.cpu})
+        except (AttributeError, OSError, ValueError) as exc:
+            console.print(f"[red]error:[/red] cannot pin to CPU {args.cpu}: {exc}")
+            return 2
     try:
         link = open_link(args.link, allow_remote=args.allow_remote)
         from emulator.clock import MonotonicClock
@@ -207,6 +214,8 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--spin-us", type=float, default=150.0,
                        help="realtime: spin this long before each deadline (150 on bare "
                        "metal; up to the period on a VM whose timers wake late)")
+    serve.add_argument("--cpu", type=int, default=None,
+                       help="pin the rig to this CPU (the controller gets the others)")
     serve.add_argument("--seed", type=int, default=0, help="seed of the sensor noise")
     serve.add_argument("--frames", type=int, default=None, help="stop after N frames")
     serve.add_argument("--duration", type=float, default=None, help="stop after S seconds "

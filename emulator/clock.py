@@ -214,4 +214,8 @@ class FrameStats:
             "compute_us_median": float(np.median(comp)),
             "compute_us_p99": float(np.percentile(comp, 99)),
             "cpu_share": (time.process_time_ns() - self._cpu0) / wall,
+            "lateness_histogram_us": {
+                (f"<={edge}" if i < len(LATENESS_BINS_US) else f">{LATENESS_BINS_US[-1]}"): int(c)
+                for i, (edge, c) in enumerate(zip((*LATENESS_BINS_US, LATENESS_BINS_US[-1]),
+                                                  self.histogram, strict=True))},
         }

@@ -8,6 +8,7 @@ controller's train-interface replies.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, fields
 
 import numba as nb
@@ -94,6 +95,7 @@ class MeasurementSampler:
         self._train_pos = names.index("train.effort_demand")
         self._truth = np.zeros(len(analog_pos))
         self._angle = np.zeros(n_m)
+        self._train = np.zeros(8)
         self._out = np.zeros(self._n)
 
     def sample(self, period_s: float, driver: DriverDemand) -> np.ndarray:
@@ -101,10 +103,12 @@ class MeasurementSampler:
         out = self._out
         p = self.plant
         _gather(p.lst, p.ist, p.ms, self._truth, self._angle)
-        out[self._analog_pos] = self.analog.sample(self._truth, period_s)
-        out[self._count_pos] = self.encoders.counts(self._angle)
-        out[self._fault_pos] = self.gate_fault
-        out[self._train_pos:self._train_pos + 8] = driver.values()
+        analog = self.analog.sample(self._truth, period_s)
+        enc = self.encoders
+        self._train[:] = driver.values()
+        _assemble(analog, self._analog_pos, self._angle, enc.edges_per_rev / (2 * math.pi),
+                  enc.count_offset, enc.COUNTER_MODULUS, self._count_pos, self.gate_fault,
+                  self._fault_pos, self._train, self._train_pos, out)
         return out
 
 
@@ -126,6 +130,21 @@ def _gather(lst, ist, ms, truth, angle):
         truth[j + 1] = ms[m, MS_T_STATOR] - KELVIN
         angle[m] = ms[m, MS_THETA_M]
         j += 2
+
+
+@nb.njit(cache=True)
+def _assemble(analog, analog_pos, angle, edges_per_rad, count_offset, modulus, count_pos,
+              gate_fault, fault_pos, train, train_pos, out):
+    """Scatter the channel outputs, encoder counts, fault flags and demands into y."""
+    for i in range(analog.shape[0]):
+        out[analog_pos[i]] = analog[i]
+    for m in range(angle.shape[0]):
+        edges = np.int64(math.floor(angle[m] * edges_per_rad)) + count_offset[m]
+        out[count_pos[m]] = edges % modulus
+    for k in range(gate_fault.shape[0]):
+        out[fault_pos[k]] = gate_fault[k]
+    for i in range(train.shape[0]):
+        out[train_pos + i] = train[i]
 
 
 class CommandMapper:

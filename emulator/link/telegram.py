@@ -12,6 +12,7 @@ import math
 from dataclasses import dataclass
 
 import msgpack
+import numba as nb
 import numpy as np
 
 HEADER_LEN = 5
@@ -108,9 +109,11 @@ class TelegramCodec:
 _NUMBERS = (int, float)
 
 
+@nb.njit(cache=True)
 def _first_bad(values: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> int:
     """Index of the first value outside [lo, hi] or not finite, or -1."""
-    ok = (values >= lo) & (values <= hi)  # NaN compares false: caught here too
-    if ok.all():
-        return -1
-    return int(np.argmin(ok))
+    for i in range(values.shape[0]):
+        v = values[i]
+        if not (lo[i] <= v <= hi[i]):  # NaN compares false: caught here too
+            return i
+    return -1
