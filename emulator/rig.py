@@ -243,6 +243,7 @@ class Rig:
                 while k not in self._answers and budget > 0 and await self.link.wait(budget):
                     self._receive(self.link.take())
                     budget = (deadline + period_ns // 2 - clock.now_ns()) / 1e9
+            self.link.poll()
             self._receive(self.link.take())
             self._take_command(k)
             self._step(self.period_us)

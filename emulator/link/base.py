@@ -58,6 +58,13 @@ class Link:
         if waiter is not None and not waiter.done():
             waiter.set_result(True)
 
+    def poll(self) -> None:
+        """Read what the OS holds for us now, without waiting for the event loop.
+
+        The rig calls this at the start of a frame: a telegram that arrived while the
+        clock was spinning towards the deadline is then not a frame late.
+        """
+
     def take(self) -> list[bytes]:
         """All telegrams received since the last call, oldest first."""
         out = list(self._rx)

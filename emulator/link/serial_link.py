@@ -46,6 +46,10 @@ class SerialLink(Link):
             raise LinkError(f"{self.url}: cannot open {self.device}: {exc}") from None
         asyncio.get_running_loop().add_reader(self._port.fileno(), self._on_readable)
 
+    def poll(self) -> None:
+        if self._port is not None:
+            self._on_readable()
+
     def _on_readable(self) -> None:
         assert self._port is not None
         try:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import asyncio
 import ipaddress
+import os
 import socket
 from urllib.parse import SplitResult
 
@@ -50,6 +51,7 @@ class UdpLink(Link):
                 raise LinkError(f"{url}: {what} address {host} is not loopback; pass "
                                 "--allow-remote to reach another machine")
         self._transport: asyncio.DatagramTransport | None = None
+        self._sock: socket.socket | None = None
         self._peer_addrs: set[tuple[str, int]] = set()
 
     async def open(self) -> None:
@@ -59,6 +61,8 @@ class UdpLink(Link):
             lambda: _Protocol(self), local_addr=self.bind)
         sock = self._transport.get_extra_info("socket")
         sock.setsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF, 1 << 20)
+        self._sock = socket.socket(fileno=os.dup(sock.fileno()))  # for poll()
+        self._sock.setblocking(False)
         infos = await loop.getaddrinfo(*self.peer, type=socket.SOCK_DGRAM)
         self._peer_addrs = {(info[4][0], info[4][1]) for info in infos}
         self._peer_addr = infos[0][4][:2]
@@ -75,6 +79,19 @@ class UdpLink(Link):
             return
         self._deliver(data)
 
+    def poll(self) -> None:
+        if self._sock is None:
+            return
+        while True:
+            try:
+                data, addr = self._sock.recvfrom(65536)
+            except (BlockingIOError, InterruptedError):
+                return
+            except OSError:
+                self.stats.tx_errors += 1  # e.g. ICMP port unreachable from a past send
+                return
+            self._on_datagram(data, addr)
+
     def send(self, payload: bytes) -> None:
         if self._transport is None:
             self.stats.tx_errors += 1
@@ -86,6 +103,9 @@ class UdpLink(Link):
             self.stats.tx_errors += 1
 
     def close(self) -> None:
+        if self._sock is not None:
+            self._sock.close()
+            self._sock = None
         if self._transport is not None:
             self._transport.close()
             self._transport = None
