@@ -15,6 +15,7 @@ All reading of time goes through a clock object, so tests run on :class:`FakeClo
 from __future__ import annotations
 
 import asyncio
+import bisect
 import contextlib
 import ctypes
 import ctypes.util
@@ -174,7 +175,6 @@ class FrameStats:
         self.lateness_us = np.zeros(self.capacity, dtype=np.float32)
         self.compute_us = np.zeros(self.capacity, dtype=np.float32)
         self.histogram = np.zeros(len(LATENESS_BINS_US) + 1, dtype=np.int64)
-        self._edges = np.array(LATENESS_BINS_US, dtype=np.float64)
         self.frames = 0
         self.late_frames = 0  # started more than one period after their deadline
         self.max_lateness_us = 0.0
@@ -187,7 +187,7 @@ class FrameStats:
         late_us = max(lateness_ns, 0) / 1e3
         self.lateness_us[i] = late_us
         self.compute_us[i] = compute_ns / 1e3
-        self.histogram[int(np.searchsorted(self._edges, late_us, side="left"))] += 1
+        self.histogram[bisect.bisect_left(LATENESS_BINS_US, late_us)] += 1
         if lateness_ns > period_ns:
             self.late_frames += 1
         self.max_lateness_us = max(self.max_lateness_us, late_us)

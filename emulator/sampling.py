@@ -147,6 +147,14 @@ def _assemble(analog, analog_pos, angle, edges_per_rad, count_offset, modulus, c
         out[train_pos + i] = train[i]
 
 
+@nb.njit(cache=True)
+def _fill_commands(values, duty_pos, gate_pos, gates_allowed, duty, gates):
+    for k in range(duty_pos.shape[0]):
+        for x in range(3):
+            duty[k, x] = values[duty_pos[k, x]]
+        gates[k] = gates_allowed and values[gate_pos[k]] >= 0.5
+
+
 class CommandMapper:
     """Turns a command vector (physical units, map order) into plant commands."""
 
@@ -157,15 +165,18 @@ class CommandMapper:
                                    for c in convs])
         self._gate_pos = np.array([names.index(f"{c.name}.gates_enabled") for c in convs])
         self._reply_pos = names.index("tcu.achieved_effort_kn")
+        self._cmd = Commands(np.full((len(convs), 3), 0.5), np.zeros(len(convs), dtype=bool))
         self.safe = np.zeros(len(names))
         self.safe[self._duty_pos] = 0.5  # gates blocked, duties at mid
 
     def commands(self, values: np.ndarray, gates_allowed: bool = True) -> Commands:
-        """Plant commands; gates_allowed=False blocks every inverter (rig watchdog)."""
-        gates = values[self._gate_pos] >= 0.5
-        if not gates_allowed:
-            gates[:] = False
-        return Commands(values[self._duty_pos], gates)
+        """Plant commands; gates_allowed=False blocks every inverter (rig watchdog).
+
+        Fills the same Commands object every frame (no allocation in the frame loop).
+        """
+        _fill_commands(values, self._duty_pos, self._gate_pos, gates_allowed,
+                       self._cmd.duty, self._cmd.gates_enabled)
+        return self._cmd
 
     def replies(self, values: np.ndarray) -> dict[str, float]:
         """The controller's train-interface replies."""

@@ -9,7 +9,7 @@ non-finite or out-of-range value through.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from typing import NamedTuple
 
 import msgpack
 import numba as nb
@@ -29,8 +29,7 @@ class TelegramError(ValueError):
         self.kind = kind
 
 
-@dataclass(frozen=True)
-class Telegram:
+class Telegram(NamedTuple):
     """A decoded telegram: header fields and physical values."""
 
     version: int
@@ -60,12 +59,14 @@ class TelegramCodec:
         self._hi = np.asarray(recv_hi, dtype=float)
         self._n_recv = len(self._recv_scales)
         self._packer = msgpack.Packer(use_bin_type=True)
+        self._wire = np.zeros(len(self._inv_send), dtype=np.int64)
 
     def encode(self, sequence: int, time_us: int, period_us: int, flags: int,
                values: np.ndarray) -> bytes:
         """Pack physical values as integers in wire units after the header."""
-        wire = np.rint(np.asarray(values) * self._inv_send).astype(np.int64).tolist()
-        return self._packer.pack([self.version, sequence, time_us, period_us, flags, *wire])
+        _to_wire(values, self._inv_send, self._wire)
+        return self._packer.pack([self.version, sequence, time_us, period_us, flags,
+                                  *self._wire.tolist()])
 
     def decode(self, payload: bytes) -> Telegram:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""
@@ -76,15 +77,16 @@ class TelegramCodec:
                                     max_ext_len=0)
         except Exception as exc:  # msgpack raises many types on hostile input
             raise TelegramError("malformed", f"not a msgpack telegram: {exc}") from None
-        if not isinstance(items, list):
+        if type(items) is not list:
             raise TelegramError("malformed", "a telegram is a msgpack array")
         if len(items) < HEADER_LEN:
             raise TelegramError("length", f"{len(items)} elements, header needs {HEADER_LEN}")
-        header = items[:HEADER_LEN]
-        if any(type(h) is not int for h in header):
+        version, sequence, time_us, period_us, flags = items[:HEADER_LEN]
+        if (type(version) is not int or type(sequence) is not int or type(time_us) is not int
+                or type(period_us) is not int or type(flags) is not int):
             raise TelegramError("type", "header elements must be integers")
-        if header[0] != self.version:
-            raise TelegramError("version", f"protocol version {header[0]}, expected "
+        if version != self.version:
+            raise TelegramError("version", f"protocol version {version}, expected "
                                 f"{self.version}")
         body = items[HEADER_LEN:]
         if len(body) != self._n_recv:
@@ -103,10 +105,17 @@ class TelegramCodec:
                 raise TelegramError("non_finite", f"value {bad} is NaN or infinite")
             raise TelegramError("range", f"value {bad} = {values[bad]:g} outside "
                                 f"{self._lo[bad]:g}..{self._hi[bad]:g}")
-        return Telegram(header[0], header[1], header[2], header[3], header[4], values)
+        return Telegram(version, sequence, time_us, period_us, flags, values)
 
 
 _NUMBERS = (int, float)
+
+
+@nb.njit(cache=True)
+def _to_wire(values, inv_scales, out):
+    """Physical values to integer wire units, rounded half to even."""
+    for i in range(values.shape[0]):
+        out[i] = np.int64(np.rint(values[i] * inv_scales[i]))
 
 
 @nb.njit(cache=True)
