@@ -10,6 +10,7 @@ lateness); the rig in lockstep mode, frames per second.
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import json
 import socket
 import subprocess
@@ -54,12 +55,22 @@ def echo_main(argv: list[str]) -> None:
     values = json.loads(argv[3]) if len(argv) > 3 else [0] * n_values
     sock = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
     sock.bind(("127.0.0.1", bind))
-    sock.settimeout(30.0)
+    sock.setblocking(False)
     while True:
-        try:
-            data = sock.recv(65536)
-        except TimeoutError:
-            return
+        # a fast board answers at once: poll for 1 ms before blocking (wake-up latency)
+        data = None
+        spin_until = time.monotonic_ns() + 1_000_000
+        while data is None and time.monotonic_ns() < spin_until:
+            with contextlib.suppress(BlockingIOError):
+                data = sock.recv(65536)
+        if data is None:
+            sock.settimeout(30.0)
+            try:
+                data = sock.recv(65536)
+            except TimeoutError:
+                return
+            finally:
+                sock.setblocking(False)
         if data == b"stop":
             return
         if data[:4] == b"ping":

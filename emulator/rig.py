@@ -18,6 +18,7 @@ from __future__ import annotations
 import asyncio
 import gc
 import logging
+import time
 from collections import Counter
 from dataclasses import dataclass, field
 from typing import Any
@@ -46,6 +47,7 @@ MODES = ("realtime", "lockstep", "afap")
 MIN_PERIOD_US, MAX_PERIOD_US = 100, 10_000  # 0.1 .. 10 ms
 START_LEAD_NS = 20_000_000  # first deadline after warm-up
 LOCKSTEP_REPEAT_S = 0.5  # lockstep: repeat the last measurement after this much silence
+LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking on it
 
 
 class RigError(ValueError):
@@ -256,7 +258,12 @@ class Rig:
         self._send_measurement(self.frame)
         self.stats.restart_cpu_window()
         while not self._done(frames, stop):
-            if not await self.link.wait(LOCKSTEP_REPEAT_S):
+            # poll briefly before blocking: a sleeping process wakes late on some machines
+            # (tens of us to ms on a VM), which would pace lockstep more than the work does
+            spin_until = time.monotonic_ns() + LOCKSTEP_POLL_NS
+            while not self.link.pending() and time.monotonic_ns() < spin_until:
+                self.link.poll()
+            if not self.link.pending() and not await self.link.wait(LOCKSTEP_REPEAT_S):
                 # the controller is silent (not started yet, or lost our telegram): plant
                 # time stands still; say the last measurement again
                 self.link.send(self._last_payload)
