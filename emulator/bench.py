@@ -16,13 +16,21 @@ from typing import Any
 import numpy as np
 
 from emulator.controller.open_loop import SlipFrequencyVf
+from emulator.demo import OpenLoopLineSide
 from emulator.plant import Commands, Plant
 from emulator.plant.params import TrainsetParams
 
 
 def _loaded_plant(params: TrainsetParams) -> tuple[Plant, SlipFrequencyVf]:
-    """A plant rolling at 15 m/s with its motors under traction (realistic currents)."""
+    """A plant rolling at 15 m/s with its motors under traction (realistic currents),
+    fed from the catenary through the line side when the profile has one."""
     plant = Plant(params)
+    if plant.line_side:
+        line = OpenLoopLineSide(plant)
+        blocked = Commands.blocked(plant.n_inverters)
+        while not line.ready:
+            plant.advance(line.commands(blocked))
+        plant._line = line
     plant.set_speed(15.0)
     vf = SlipFrequencyVf(plant.n_inverters, params.machine.pole_pairs,
                          params.machine.rated_voltage_v * math.sqrt(2 / 3)
@@ -35,7 +43,9 @@ def _loaded_plant(params: TrainsetParams) -> tuple[Plant, SlipFrequencyVf]:
 def _commands(plant: Plant, vf: SlipFrequencyVf) -> Commands:
     speed = float(plant.read("motor.speed_rad_s")[0])
     duty = vf.step(speed, 1.0, float(plant.read("dc_link.voltage_v")[0]), plant.params.frame_s)
-    return Commands(duty, np.ones(plant.n_inverters, dtype=bool))
+    command = Commands(duty, np.ones(plant.n_inverters, dtype=bool))
+    line = getattr(plant, "_line", None)
+    return line.commands(command) if line is not None else command
 
 
 def _frame(plant: Plant, vf: SlipFrequencyVf) -> None:
@@ -59,15 +69,20 @@ def _frame_times_us(params: TrainsetParams, frames: int) -> np.ndarray:
 
 
 def replicated(params: TrainsetParams, n_motors: int) -> TrainsetParams:
-    """The trainset with its converters repeated until it has n_motors motors."""
-    base = params.converters
-    conv = []
-    count = 0
-    while count < n_motors:
-        c = base[len(conv) % len(base)]
-        conv.append(dataclasses.replace(c, name=f"{c.name}#{len(conv)}"))
-        count += len(c.wheel_diameters_m)
-    return dataclasses.replace(params, converters=tuple(conv))
+    """The trainset repeated, whole motor cars at a time (links with their line converters
+    and inverters), until it has at least n_motors motors."""
+    per_copy = params.motor_count
+    copies = max(1, -(-n_motors // per_copy))
+    n_links = len(params.dc_links)
+    links, conv, units = [], [], []
+    for r in range(copies):
+        links += [dataclasses.replace(lk, name=f"{lk.name}#{r}") for lk in params.dc_links]
+        conv += [dataclasses.replace(c, name=f"{c.name}#{r}", dc_link=c.dc_link + r * n_links)
+                 for c in params.converters]
+        units += [dataclasses.replace(u, name=f"{u.name}#{r}", dc_link=u.dc_link + r * n_links)
+                  for u in params.line_converters]
+    return dataclasses.replace(params, dc_links=tuple(links), converters=tuple(conv),
+                               line_converters=tuple(units))
 
 
 def _solve_ivp_frame_us(params: TrainsetParams, repeats: int) -> float:

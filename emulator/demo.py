@@ -1,7 +1,8 @@
 """The headless demo run: the Tern trainset accelerates, coasts and brakes to a stop.
 
 Until the reference controllers land, the motors are driven open loop (slip-frequency
-V/f, emulator.controller.open_loop) in-process, as fast as possible.
+V/f, emulator.controller.open_loop) in-process, as fast as possible, and the line side
+switches on with its converters left as diode bridges (braking energy goes to the chopper).
 """
 
 from __future__ import annotations
@@ -12,9 +13,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from emulator.controller.open_loop import SlipFrequencyVf
+from emulator.controller.open_loop import DiodeBridgeSequencer, SlipFrequencyVf
 from emulator.plant import Commands, Plant
 from emulator.plant.params import TrainsetParams
+from emulator.plant.stepper import LineCommands
 
 
 @dataclass(frozen=True)
@@ -36,11 +38,35 @@ class DemoSummary:
         return self.plant_time_s / self.wall_time_s
 
 
+class OpenLoopLineSide:
+    """The diode-bridge switch-on sequence and chopper, attached to plant commands."""
+
+    def __init__(self, plant: Plant) -> None:
+        self.plant = plant
+        tr = plant.params.transformer
+        peak = tr.secondary_voltage_v * math.sqrt(2) if tr else 0.0
+        self.seq = DiodeBridgeSequencer(plant.n_line_converters, plant.n_links, peak)
+        self.line = LineCommands.open(plant.n_line_converters, plant.n_links)
+
+    @property
+    def ready(self) -> bool:
+        return self.seq.ready
+
+    def commands(self, command: Commands) -> Commands:
+        c = self.seq.step(self.plant.read("dc_link.voltage_v"), self.plant.params.frame_s)
+        self.line.breaker = c["breaker"]
+        self.line.precharge[:] = c["precharge"]
+        self.line.line_contactor[:] = c["line_contactor"]
+        self.line.chopper[:] = c["chopper"]
+        return Commands(command.duty, command.gates_enabled, self.line)
+
+
 def run_open_loop_demo(params: TrainsetParams, target_kmh: float = 80.0,
                        coast_s: float = 20.0, slip_hz: float = 1.2,
                        progress=None) -> DemoSummary:
     """Accelerate to target_kmh, coast, brake electrically, stop with the friction brake."""
     plant = Plant(params)
+    line = OpenLoopLineSide(plant) if plant.line_side else None
     mp = params.machine
     vf = SlipFrequencyVf(plant.n_inverters, mp.pole_pairs,
                          mp.rated_voltage_v * math.sqrt(2 / 3) / mp.rated_frequency_hz,
@@ -53,6 +79,9 @@ def run_open_loop_demo(params: TrainsetParams, target_kmh: float = 80.0,
     t_wall = time.perf_counter()
     while plant.time_s < 600.0:
         v = plant.read("train.speed_mps")
+        if line is not None and not line.ready:
+            plant.advance(line.commands(blocked), params.frame_s)
+            continue
         top = max(top, v)
         if phase == "accelerate" and v >= target_kmh / 3.6:
             phase, coast_until = "coast", plant.time_s + coast_s
@@ -68,9 +97,10 @@ def run_open_loop_demo(params: TrainsetParams, target_kmh: float = 80.0,
             speed = float(np.mean(plant.read("motor.speed_rad_s")))
             duty = vf.step(speed, slip, float(plant.read("dc_link.voltage_v")[0]),
                            params.frame_s)
-            plant.advance(Commands(duty, gates_on))
+            command = Commands(duty, gates_on)
+            plant.advance(line.commands(command) if line else command)
         else:
-            plant.advance(blocked)
+            plant.advance(line.commands(blocked) if line else blocked)
         e_now = float(plant.read("inverter.dc_energy_j").sum())
         de, e_prev = e_now - e_prev, e_now
         if de > 0:

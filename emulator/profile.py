@@ -22,11 +22,14 @@ from emulator.plant.params import (
     DcLinkParams,
     DrivetrainParams,
     InverterParams,
+    LineConverterParams,
+    LineConverterUnit,
     MachineParams,
     MachineThermal,
     SupplyParams,
     TrainParams,
     TrainsetParams,
+    TransformerParams,
 )
 from emulator.sensors import ChannelSpec, SensorParams
 
@@ -295,10 +298,103 @@ def _sensors(t: Table) -> SensorParams:
         voltage=_channel(t.table("voltage"), "v", -1e5, 1e5),
         speed=_channel(t.table("speed"), "rad_s", -1e4, 1e4),
         temperature=_channel(t.table("temperature"), "degc", -300.0, 1000.0),
+        line_voltage=_channel(t.table("line_voltage"), "v", -1e5, 1e5),
+        line_current=_channel(t.table("line_current"), "a", -1e5, 1e5),
         encoder_lines=lines,
     )
     t.finish()
     return params
+
+
+def _supply(t: Table) -> SupplyParams:
+    harmonics = []
+    if t.has("harmonic"):
+        for ht in t.tables("harmonic"):
+            harmonics.append((ht.integer("order", 2, 99),
+                              ht.number("amplitude_pct", "% of the fundamental", 0.0, 30.0,
+                                        scale=0.01),
+                              ht.number("phase_deg", "deg", -360.0, 360.0,
+                                        scale=math.pi / 180)))
+            ht.finish()
+    supply = SupplyParams(
+        nominal_voltage_v=t.number("nominal_voltage_kv", "kV (rms)", 0.0, 50.0, lo_open=True,
+                                   scale=1e3),
+        frequency_hz=t.number("frequency_hz", "Hz", 0.0, 100.0, lo_open=True),
+        source_resistance_ohm=t.number("source_resistance_ohm", "ohm", 0.0, 1e3),
+        source_inductance_h=t.number("source_inductance_mh", "mH", 0.0, 1e4, lo_open=True,
+                                     scale=1e-3),
+        reverse_power_droop_v_per_w=t.number("reverse_power_droop_v_per_kw", "V/kW", 0.0,
+                                             1e4, scale=1e-3),
+        harmonics=tuple(harmonics),
+    )
+    t.finish()
+    return supply
+
+
+def _transformer(t: Table) -> TransformerParams:
+    tr = TransformerParams(
+        primary_voltage_v=t.number("primary_voltage_kv", "kV", 0.0, 50.0, lo_open=True,
+                                   scale=1e3),
+        secondary_voltage_v=t.number("secondary_voltage_v", "V", 0.0, 1e4, lo_open=True),
+        leakage_h=t.number("secondary_leakage_inductance_mh", "mH", 0.0, 100.0, lo_open=True,
+                           scale=1e-3),
+        resistance_ohm=t.number("secondary_resistance_mohm", "mohm", 0.0, 1e4, scale=1e-3),
+        breaker_delay_s=t.number("main_breaker_delay_ms", "ms", 0.0, 5000.0, scale=1e-3),
+    )
+    t.finish()
+    return tr
+
+
+def _four_quadrant(t: Table) -> LineConverterParams:
+    lc = LineConverterParams(
+        switching_frequency_hz=t.number("switching_frequency_hz", "Hz", 0.0, 1e5, lo_open=True),
+        device_threshold_v=t.number("device_threshold_v", "V", 0.0, 10.0),
+        device_slope_ohm=t.number("device_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
+        switching_energy_j=t.number("switching_energy_mj", "mJ", 0.0, 1e5, scale=1e-3),
+        switching_energy_ref_v=t.number("switching_energy_reference_v", "V", 0.0, 1e5,
+                                        lo_open=True),
+        switching_energy_ref_a=t.number("switching_energy_reference_a", "A", 0.0, 1e5,
+                                        lo_open=True),
+        precharge_ohm=t.number("precharge_resistance_ohm", "ohm", 0.0, 1e4, lo_open=True),
+        precharge_delay_s=t.number("precharge_contactor_delay_ms", "ms", 0.0, 5000.0,
+                                   scale=1e-3),
+        line_contactor_delay_s=t.number("line_contactor_delay_ms", "ms", 0.0, 5000.0,
+                                        scale=1e-3),
+    )
+    t.finish()
+    return lc
+
+
+def _dc_link(t: Table) -> DcLinkParams:
+    kw = {}
+    filter_keys = ("filter_inductance_mh", "filter_capacitance_mf", "filter_resistance_mohm")
+    if any(t.has(k) for k in filter_keys):
+        kw = dict(
+            filter_inductance_h=t.number("filter_inductance_mh", "mH", 0.0, 1e3, lo_open=True,
+                                         scale=1e-3),
+            filter_capacitance_f=t.number("filter_capacitance_mf", "mF", 0.0, 1e3,
+                                          lo_open=True, scale=1e-3),
+            filter_resistance_ohm=t.number("filter_resistance_mohm", "mohm", 0.0, 1e4,
+                                           scale=1e-3),
+        )
+    g = 1e3 / t.number("resistor_to_ambient_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
+    link = DcLinkParams(
+        name=t.string("name"),
+        voltage_v=t.number("nominal_voltage_v", "V", 0.0, 1e4, lo_open=True),
+        capacitance_f=t.number("capacitance_mf", "mF", 0.0, 1e3, lo_open=True, scale=1e-3),
+        discharge_ohm=t.number("discharge_resistance_kohm", "kohm", 0.0, 1e4, lo_open=True,
+                               scale=1e3),
+        overvoltage_v=t.number("overvoltage_v", "V", 0.0, 1e4, lo_open=True),
+        chopper_ohm=t.number("chopper_resistance_ohm", "ohm", 0.0, 1e3, lo_open=True),
+        resistor_capacity_j_per_k=t.number("resistor_time_constant_s", "s", 0.0, 1e5,
+                                           lo_open=True) * g,
+        resistor_conductance_w_per_k=g,
+        **kw,
+    )
+    if link.overvoltage_v <= link.voltage_v:
+        raise t.error("overvoltage_v", "must lie above nominal_voltage_v")
+    t.finish()
+    return link
 
 
 def load_trainset(path: Path | str) -> TrainsetParams:
@@ -335,13 +431,7 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     )
     tr.finish()
 
-    su = root.table("supply")
-    supply = SupplyParams(
-        nominal_voltage_v=su.number("nominal_voltage_kv", "kV (rms)", 0.0, 50.0, lo_open=True,
-                                    scale=1e3),
-        frequency_hz=su.number("frequency_hz", "Hz", 0.0, 100.0, lo_open=True),
-    )
-    su.finish()
+    supply = _supply(root.table("supply"))
 
     dt = root.table("drivetrain")
     gear = dt.number("gear_ratio", "1", 0.0, 50.0, lo_open=True)
@@ -360,12 +450,7 @@ def load_trainset(path: Path | str) -> TrainsetParams:
 
     inverter = _inverter(root.table("inverter"))
 
-    links = []
-    for lt in root.tables("dc_link"):
-        links.append(DcLinkParams(name=lt.string("name"),
-                                  voltage_v=lt.number("voltage_v", "V", 0.0, 1e4,
-                                                      lo_open=True)))
-        lt.finish()
+    links = [_dc_link(lt) for lt in root.tables("dc_link")]
     link_names = [lk.name for lk in links]
     if len(set(link_names)) != len(link_names):
         raise root.error("dc_link", "names must be unique")
@@ -380,10 +465,24 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     conv_names = [c.name for c in converters]
     if len(set(conv_names)) != len(conv_names):
         raise root.error("converter", "names must be unique")
+    transformer = _transformer(root.table("transformer"))
+    line_converter = _four_quadrant(root.table("four_quadrant"))
+    units = []
+    for ut in root.tables("line_converter"):
+        units.append(LineConverterUnit(ut.string("name"),
+                                       link_names.index(ut.string("dc_link", tuple(link_names)))))
+        ut.finish()
+    if len({u.name for u in units} | set(conv_names)) != len(units) + len(conv_names):
+        raise root.error("line_converter", "names must be unique among all converters")
+    fed = {u.dc_link for u in units}
+    for i, lk in enumerate(links):
+        if i not in fed:
+            raise root.error("dc_link", f"link {lk.name!r} has no line converter feeding it")
     sensors = _sensors(root.table("sensors")) if root.has("sensors") else SensorParams()
     root.finish()
     return TrainsetParams(name=name, source=str(path), substep_s=substep, frame_s=frame,
                           train=train, supply=supply, machine=machine, drivetrain=drivetrain,
                           inverter=inverter, dc_links=tuple(links),
                           converters=tuple(converters), notes=notes,
-                          sensors=sensors)
+                          sensors=sensors, transformer=transformer,
+                          line_converter=line_converter, line_converters=tuple(units))

@@ -80,7 +80,8 @@ class Rig:
 
     def __init__(self, params: TrainsetParams, link: Link, *, mode: str = "realtime",
                  period_s: float | None = None, command_delay: int = 1,
-                 watchdog_frames: int = 10, seed: int = 0, clock=None) -> None:
+                 watchdog_frames: int = 10, seed: int = 0, clock=None,
+                 ideal_dc_links: bool = False) -> None:
         if mode not in MODES:
             raise RigError(f"mode must be one of {', '.join(MODES)}, got {mode!r}")
         if command_delay not in (0, 1, 2, 3):
@@ -97,7 +98,7 @@ class Rig:
         self.delay = command_delay
         self.watchdog_frames = watchdog_frames
         self.clock = clock or MonotonicClock()
-        self.plant = Plant(params)
+        self.plant = Plant(params, ideal_dc_links=ideal_dc_links)
         self.signal_map = build_signal_map(params)
         sm = self.signal_map
         self.codec = TelegramCodec(
@@ -201,7 +202,8 @@ class Rig:
 
     def start(self) -> None:
         """Warm every compiled path and take y_0 (call before the first frame)."""
-        spare = Plant(self.params)  # compile or load the kernels on a throwaway plant
+        # compile or load every kernel on a throwaway plant of the same kind
+        spare = Plant(self.params, ideal_dc_links=not self.plant.line_side)
         spare.advance(self.mapper.commands(self.mapper.safe.copy()), self.period_us / 1e6)
         self.codec.encode(0, 0, 0, 0, self._y)
         self._y = self.sampler.sample(self.period_us / 1e6, self.driver).copy()

@@ -20,11 +20,19 @@ from emulator.plant.layout import (
     IS_IB,
     IS_IC,
     IS_T_H,
+    LS2_I,
+    LS2_LINE,
+    LS2_PRE,
+    LS_OVP,
     LS_UDC,
     MS_OMEGA_M,
     MS_T_STATOR,
     MS_THETA_M,
+    SS_BREAKER,
+    SS_IP,
+    SS_UP,
 )
+from emulator.plant.stepper import LineCommands
 from emulator.sensors import AnalogChannels, Encoders, SensorParams
 from emulator.signals import SignalMap
 
@@ -56,88 +64,123 @@ assert [f.name for f in fields(DriverDemand)] == [
     "regeneration_allowed", "current_limit_a", "emergency_loop_closed"]
 
 
+# sources of a gather plan
+SRC_SUPPLY, SRC_LINE_CONVERTER, SRC_LINK, SRC_INVERTER, SRC_MOTOR = range(5)
+
+
 class MeasurementSampler:
-    """Builds y_k from the plant state (never from the command of the same exchange)."""
+    """Builds y_k from the plant state (never from the command of the same exchange).
+
+    A gather plan, made once from the signal map, says for every measured value which
+    state array, row and column it comes from; analog values then pass the sensor chain,
+    flags go through as they are.
+    """
 
     def __init__(self, plant: Plant, signal_map: SignalMap, sensors: SensorParams | None,
                  rng: np.random.Generator) -> None:
         self.plant = plant
         sensors = sensors or SensorParams()
         params = plant.params
-        n_l, n_i, n_m = plant.n_links, plant.n_inverters, plant.n_motors
-        # analog channels in one bank: links, then per inverter 3 currents + heatsink,
-        # then per motor speed + stator temperature (the order of _analog_truth)
-        specs = ([sensors.voltage] * n_l + ([sensors.current] * 3 + [sensors.temperature])
-                 * n_i + [sensors.speed, sensors.temperature] * n_m)
-        self.analog = AnalogChannels(specs, rng)
-        self.encoders = Encoders(n_m, sensors.encoder_lines)
-        self.gate_fault = np.zeros(n_i, dtype=np.int64)  # fault hook
-        # where each measurement comes from: positions in the output vector
         names = [s.name for s in signal_map.measurements]
-        self._n = len(names)
-        analog_pos, count_pos, fault_pos = [], [], []
-        for lk in params.dc_links:
-            analog_pos.append(names.index(f"{lk.name}.voltage_v"))
-        for conv in params.converters:
-            for phase in "abc":
-                analog_pos.append(names.index(f"{conv.name}.current_{phase}_a"))
-            analog_pos.append(names.index(f"{conv.name}.heatsink_temperature_degc"))
-            fault_pos.append(names.index(f"{conv.name}.gate_fault"))
-        for conv in params.converters:
+        analog: list[tuple] = []
+        flags: list[tuple] = []
+        if plant.line_side:
+            analog.append(("line.voltage_v", SRC_SUPPLY, 0, SS_UP, 0.0, sensors.line_voltage))
+            analog.append(("line.current_a", SRC_SUPPLY, 0, SS_IP, 0.0, sensors.line_current))
+            flags.append(("line.breaker_closed", SRC_SUPPLY, 0, SS_BREAKER))
+            for k, unit in enumerate(params.line_converters):
+                analog.append((f"{unit.name}.current_a", SRC_LINE_CONVERTER, k, LS2_I, 0.0,
+                               sensors.current))
+                flags.append((f"{unit.name}.precharge_closed", SRC_LINE_CONVERTER, k, LS2_PRE))
+                flags.append((f"{unit.name}.line_contactor_closed", SRC_LINE_CONVERTER, k,
+                              LS2_LINE))
+        for link, lk in enumerate(params.dc_links):
+            analog.append((f"{lk.name}.voltage_v", SRC_LINK, link, LS_UDC, 0.0,
+                           sensors.voltage))
+            if plant.line_side:
+                flags.append((f"{lk.name}.overvoltage", SRC_LINK, link, LS_OVP))
+        m = 0
+        for k, conv in enumerate(params.converters):
+            for x, col in zip("abc", (IS_IA, IS_IB, IS_IC), strict=True):
+                analog.append((f"{conv.name}.current_{x}_a", SRC_INVERTER, k, col, 0.0,
+                               sensors.current))
+            analog.append((f"{conv.name}.heatsink_temperature_degc", SRC_INVERTER, k, IS_T_H,
+                           -KELVIN, sensors.temperature))
             for j in range(len(conv.wheel_diameters_m)):
                 motor = f"{conv.name}.m{j + 1}"
-                analog_pos.append(names.index(f"{motor}.speed_rad_s"))
-                analog_pos.append(names.index(f"{motor}.stator_temperature_degc"))
-                count_pos.append(names.index(f"{motor}.encoder_count"))
-        self._analog_pos = np.array(analog_pos)
-        self._count_pos = np.array(count_pos)
-        self._fault_pos = np.array(fault_pos)
+                analog.append((f"{motor}.speed_rad_s", SRC_MOTOR, m, MS_OMEGA_M, 0.0,
+                               sensors.speed))
+                analog.append((f"{motor}.stator_temperature_degc", SRC_MOTOR, m, MS_T_STATOR,
+                               -KELVIN, sensors.temperature))
+                m += 1
+        plan = analog + [(*f, 0.0) for f in flags]
+        self.analog = AnalogChannels([a[5] for a in analog], rng)
+        self._plan = (np.array([p[1] for p in plan], dtype=np.int64),
+                      np.array([p[2] for p in plan], dtype=np.int64),
+                      np.array([p[3] for p in plan], dtype=np.int64),
+                      np.array([p[4] for p in plan], dtype=np.float64))
+        self._n_analog = len(analog)
+        self._analog_pos = np.array([names.index(a[0]) for a in analog], dtype=np.int64)
+        self._flag_pos = np.array([names.index(f[0]) for f in flags], dtype=np.int64)
+        self.encoders = Encoders(plant.n_motors, sensors.encoder_lines)
+        self.gate_fault = np.zeros(plant.n_inverters, dtype=np.int64)  # fault hook
+        self._count_pos = np.array([names.index(f"{c.name}.m{j + 1}.encoder_count")
+                                    for c in params.converters
+                                    for j in range(len(c.wheel_diameters_m))], dtype=np.int64)
+        self._fault_pos = np.array([names.index(f"{c.name}.gate_fault")
+                                    for c in params.converters], dtype=np.int64)
         self._train_pos = names.index("train.effort_demand")
-        self._truth = np.zeros(len(analog_pos))
-        self._angle = np.zeros(n_m)
+        self._values = np.zeros(len(plan))
+        self._angle = np.zeros(plant.n_motors)
         self._train = np.zeros(8)
-        self._out = np.zeros(self._n)
+        self._out = np.zeros(len(names))
 
     def sample(self, period_s: float, driver: DriverDemand) -> np.ndarray:
         """The measurement vector (physical units) at the present plant state."""
         out = self._out
         p = self.plant
-        _gather(p.lst, p.ist, p.ms, self._truth, self._angle)
-        analog = self.analog.sample(self._truth, period_s)
+        src, row, col, off = self._plan
+        _gather(src, row, col, off, p.ss, p.ls2, p.lst, p.ist, p.ms, self._values,
+                self._angle)
+        n = self._n_analog
+        analog = self.analog.sample(self._values[:n], period_s)
         enc = self.encoders
         self._train[:] = driver.values()
-        _assemble(analog, self._analog_pos, self._angle, enc.edges_per_rev / (2 * math.pi),
-                  enc.count_offset, enc.COUNTER_MODULUS, self._count_pos, self.gate_fault,
-                  self._fault_pos, self._train, self._train_pos, out)
+        _assemble(analog, self._analog_pos, self._values[n:], self._flag_pos, self._angle,
+                  enc.edges_per_rev / (2 * math.pi), enc.count_offset, enc.COUNTER_MODULUS,
+                  self._count_pos, self.gate_fault, self._fault_pos, self._train,
+                  self._train_pos, out)
         return out
 
 
 @nb.njit(cache=True)
-def _gather(lst, ist, ms, truth, angle):
-    """Plant values in the analog bank's order: links, inverters, motors; and angles."""
-    j = 0
-    for link in range(lst.shape[0]):
-        truth[j] = lst[link, LS_UDC]
-        j += 1
-    for k in range(ist.shape[0]):
-        truth[j] = ist[k, IS_IA]
-        truth[j + 1] = ist[k, IS_IB]
-        truth[j + 2] = ist[k, IS_IC]
-        truth[j + 3] = ist[k, IS_T_H] - KELVIN
-        j += 4
+def _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle):
+    """Plant values by the plan, and the shaft angles for the encoders."""
+    for i in range(src.shape[0]):
+        s = src[i]
+        if s == SRC_SUPPLY:
+            v = ss[col[i]]
+        elif s == SRC_LINE_CONVERTER:
+            v = ls2[row[i], col[i]]
+        elif s == SRC_LINK:
+            v = lst[row[i], col[i]]
+        elif s == SRC_INVERTER:
+            v = ist[row[i], col[i]]
+        else:
+            v = ms[row[i], col[i]]
+        values[i] = v + off[i]
     for m in range(ms.shape[0]):
-        truth[j] = ms[m, MS_OMEGA_M]
-        truth[j + 1] = ms[m, MS_T_STATOR] - KELVIN
         angle[m] = ms[m, MS_THETA_M]
-        j += 2
 
 
 @nb.njit(cache=True)
-def _assemble(analog, analog_pos, angle, edges_per_rad, count_offset, modulus, count_pos,
-              gate_fault, fault_pos, train, train_pos, out):
-    """Scatter the channel outputs, encoder counts, fault flags and demands into y."""
+def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, count_offset,
+              modulus, count_pos, gate_fault, fault_pos, train, train_pos, out):
+    """Scatter the channel outputs, flags, encoder counts, fault flags and demands into y."""
     for i in range(analog.shape[0]):
         out[analog_pos[i]] = analog[i]
+    for i in range(flags.shape[0]):
+        out[flag_pos[i]] = flags[i]
     for m in range(angle.shape[0]):
         edges = np.int64(math.floor(angle[m] * edges_per_rad)) + count_offset[m]
         out[count_pos[m]] = edges % modulus
@@ -168,6 +211,17 @@ class CommandMapper:
         self._cmd = Commands(np.full((len(convs), 3), 0.5), np.zeros(len(convs), dtype=bool))
         self.safe = np.zeros(len(names))
         self.safe[self._duty_pos] = 0.5  # gates blocked, duties at mid
+        self._line_pos = None
+        if plant.line_side:
+            units = plant.params.line_converters
+            self._line_pos = (
+                np.array([names.index(f"{u.name}.{x}") for u in units
+                          for x in ("modulation", "gates_enabled", "precharge_close",
+                                    "line_contactor_close")], dtype=np.int64).reshape(-1, 4),
+                names.index("line.breaker_close"),
+                np.array([names.index(f"{lk.name}.chopper_duty")
+                          for lk in plant.params.dc_links], dtype=np.int64))
+            self._cmd.line = LineCommands.open(len(units), plant.n_links)
 
     def commands(self, values: np.ndarray, gates_allowed: bool = True) -> Commands:
         """Plant commands; gates_allowed=False blocks every inverter (rig watchdog).
@@ -176,6 +230,17 @@ class CommandMapper:
         """
         _fill_commands(values, self._duty_pos, self._gate_pos, gates_allowed,
                        self._cmd.duty, self._cmd.gates_enabled)
+        if self._line_pos is not None:
+            pos, breaker, chopper = self._line_pos
+            line = self._cmd.line
+            line.modulation[:] = values[pos[:, 0]]
+            # the rig's watchdog blocks the line converters' gates and the chopper too;
+            # the contactors and the breaker keep their last command
+            line.gates_enabled[:] = (values[pos[:, 1]] >= 0.5) & gates_allowed
+            line.precharge[:] = values[pos[:, 2]] >= 0.5
+            line.line_contactor[:] = values[pos[:, 3]] >= 0.5
+            line.breaker = bool(values[breaker] >= 0.5)
+            line.chopper[:] = values[chopper] if gates_allowed else 0.0
         return self._cmd
 
     def replies(self, values: np.ndarray) -> dict[str, float]:

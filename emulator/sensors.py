@@ -49,6 +49,8 @@ class SensorParams:
     voltage: ChannelSpec = ChannelSpec()
     speed: ChannelSpec = ChannelSpec()
     temperature: ChannelSpec = ChannelSpec()
+    line_voltage: ChannelSpec = ChannelSpec()
+    line_current: ChannelSpec = ChannelSpec()
     encoder_lines: int = 256
 
 

@@ -12,7 +12,7 @@ from dataclasses import asdict, dataclass
 
 from emulator.plant.params import TrainsetParams
 
-PROTOCOL_VERSION = 1
+PROTOCOL_VERSION = 2  # 2: line side (supply, line converters, switchgear, chopper)
 HEADER = ("protocol_version", "sequence", "time_us", "period_us", "flags")
 
 # header flags, rig -> controller
@@ -82,9 +82,30 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
     """The signal map of a trainset: per inverter, link, motor, and the train interface."""
     meas: list[Signal] = []
     cmd: list[Signal] = []
+    line_side = params.transformer is not None
+    if line_side:
+        meas += [
+            _analog("line.voltage_v", "V", 1.0, -45000.0, 45000.0,
+                    "pantograph voltage, instantaneous (sampled at the frame start)"),
+            _analog("line.current_a", "A", 0.01, -2000.0, 2000.0,
+                    "pantograph (primary) current, instantaneous"),
+            Signal("line.breaker_closed", "1", 1.0, 0, 1, "flag", "main breaker feedback"),
+        ]
+        for unit in params.line_converters:
+            meas += [
+                _analog(f"{unit.name}.current_a", "A", 0.1, -3000.0, 3000.0,
+                        f"secondary (AC) current of {unit.name}"),
+                Signal(f"{unit.name}.precharge_closed", "1", 1.0, 0, 1, "flag",
+                       "precharge contactor feedback"),
+                Signal(f"{unit.name}.line_contactor_closed", "1", 1.0, 0, 1, "flag",
+                       "line contactor feedback"),
+            ]
     for link in params.dc_links:
         meas.append(_analog(f"{link.name}.voltage_v", "V", 0.1, 0.0, 6000.0,
                             f"DC-link voltage of {link.name}"))
+        if line_side:
+            meas.append(Signal(f"{link.name}.overvoltage", "1", 1.0, 0, 1, "flag",
+                               "overvoltage protection flag"))
     for conv in params.converters:
         for phase in "abc":
             meas.append(_analog(f"{conv.name}.current_{phase}_a", "A", 0.1, -3000.0, 3000.0,
@@ -117,6 +138,23 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
         Signal("train.emergency_loop_closed", "1", 1.0, 0, 1, "flag",
                "1 while the emergency loop is healthy"),
     ]
+    if line_side:
+        cmd.append(Signal("line.breaker_close", "1", 1.0, 0, 1, "flag",
+                          "1 closes the main breaker, 0 opens it"))
+        for unit in params.line_converters:
+            cmd += [
+                _analog(f"{unit.name}.modulation", "1", 1e-4, -1.0, 1.0,
+                        "converter AC voltage as a fraction of the link voltage"),
+                Signal(f"{unit.name}.gates_enabled", "1", 1.0, 0, 1, "flag",
+                       "1 releases the gates (0: a diode bridge)"),
+                Signal(f"{unit.name}.precharge_close", "1", 1.0, 0, 1, "flag",
+                       "precharge contactor command"),
+                Signal(f"{unit.name}.line_contactor_close", "1", 1.0, 0, 1, "flag",
+                       "line contactor command"),
+            ]
+        for link in params.dc_links:
+            cmd.append(_analog(f"{link.name}.chopper_duty", "1", 1e-4, 0.0, 1.0,
+                               "brake chopper duty cycle"))
     for conv in params.converters:
         for phase in "abc":
             cmd.append(_analog(f"{conv.name}.duty_{phase}", "1", 1e-4, 0.0, 1.0,

@@ -39,3 +39,46 @@ class SlipFrequencyVf:
         for x in range(3):
             self.duty[:, x] = 0.5 + 0.5 * m * math.cos(self.theta - x * 2 * math.pi / 3)
         return self.duty
+
+
+class DiodeBridgeSequencer:
+    """Switch-on sequence of the line side, with the line converters left as diode bridges.
+
+    Main breaker and precharge contactors close at once; the line contactors close once
+    the link has charged to ``charged_fraction`` of the secondary peak (or after
+    ``max_precharge_s``), and the precharge contactors open ``overlap_s`` later. The brake
+    chopper follows a hysteresis between ``chopper_on_v`` and ``chopper_off_v``: with diode
+    bridges nothing else can take regenerated energy. Common practice of a switch-on
+    sequence, no line-current control (that is the reference controller's job).
+    """
+
+    def __init__(self, n_converters: int, n_links: int, secondary_peak_v: float,
+                 chopper_on_v: float = 1950.0, chopper_off_v: float = 1850.0,
+                 charged_fraction: float = 0.9, max_precharge_s: float = 3.0,
+                 overlap_s: float = 0.1) -> None:
+        self.n_converters, self.n_links = n_converters, n_links
+        self.charged_v = charged_fraction * secondary_peak_v
+        self.chopper_on_v, self.chopper_off_v = chopper_on_v, chopper_off_v
+        self.max_precharge_s, self.overlap_s = max_precharge_s, overlap_s
+        self.t = 0.0
+        self.line_closed_at: float | None = None
+        self.chopper = np.zeros(n_links)
+
+    def step(self, link_voltages: np.ndarray, period_s: float) -> dict:
+        """Commands for this period: breaker, precharge, line contactor, chopper duty."""
+        self.t += period_s
+        charged = bool(np.min(link_voltages) >= self.charged_v)
+        if self.line_closed_at is None and (charged or self.t >= self.max_precharge_s):
+            self.line_closed_at = self.t
+        line = self.line_closed_at is not None
+        precharge = not line or self.t < self.line_closed_at + self.overlap_s
+        on = link_voltages > self.chopper_on_v
+        off = link_voltages < self.chopper_off_v
+        self.chopper = np.where(on, 1.0, np.where(off, 0.0, self.chopper))
+        return {"breaker": True, "precharge": precharge, "line_contactor": line,
+                "chopper": self.chopper}
+
+    @property
+    def ready(self) -> bool:
+        """Whether the line contactors are (commanded) closed."""
+        return self.line_closed_at is not None and self.t >= self.line_closed_at + self.overlap_s

@@ -58,8 +58,13 @@ from .layout import (
     IU_SINE_AMP,
     IU_SINE_FREQ,
     IU_SINE_PHASE,
+    KU_CHOPPER,
     LS_IDC,
     LS_UDC,
+    LU_ENABLE,
+    LU_LINE_CMD,
+    LU_MOD,
+    LU_PRE_CMD,
     MI_INVERTER,
     MI_SAT_POINTS,
     MI_SHAFT_MODE,
@@ -129,6 +134,7 @@ from .layout import (
     SHAFT_FREE,
     SHAFT_IMPOSED_SPEED,
     SOURCE_SINE,
+    SS_BREAKER_CMD,
     TP_AMBIENT,
     TP_DAVIS_A,
     TP_DAVIS_B,
@@ -146,6 +152,7 @@ from .layout import (
     TU_BRAKE_FORCE,
     TU_GRADIENT,
 )
+from .line import line_frame_end, line_frame_start, line_substep
 from .machine import (
     abs2,
     currents,
@@ -231,7 +238,8 @@ def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
 
 
 @compiled_inline
-def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, a_train):
+def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, a_train,
+                      i_link):
     """One sub-step of inverter k and its motors; returns the creep force on the train."""
     first = iint[k, II_FIRST_MOTOR]
     last = first + iint[k, II_MOTOR_COUNT]
@@ -325,6 +333,7 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         e_cond = dr_a * ja + dr_b * jb + dr_c * jc
         ist[k, IS_E_DC] += udc * q_dc
         ist[k, IS_IDC] += q_dc  # charge; divided by the frame length at the end
+        i_link[iint[k, II_LINK], 0] += q_dc / h
         ist[k, IS_E_COND] += e_cond
         ist[k, IS_E_SW] += p_sw * h
         ist[k, IS_Q] += e_cond + p_sw * h
@@ -333,7 +342,8 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
 
 @compiled
 def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat_psi,
-                  ipar, iint, iu, ist, lst, tpar, tu, ts):
+                  ipar, iint, iu, ist, lst, tpar, tu, ts, sp, harmonics, ss, lp, li, lu, ls2,
+                  kp, ku, i_link):
     """Advance every converter, motor, axle and the train by n_sub sub-steps of h.
 
     Arrays are laid out as in layout.py and updated in place. t0 is the plant time at
@@ -346,6 +356,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     mass = tpar[TP_MASS]
     m_eff = mass * (1.0 + tpar[TP_ROT_ALLOWANCE])
     brake = max(tu[TU_BRAKE_FORCE], 0.0)
+    line_frame_start(ss, ls2, lst)
     for s in range(n_sub):
         t = t0 + s * h
         if s == 0 or refresh_each:
@@ -353,9 +364,11 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
                      h if refresh_each else frame)
         v = ts[TS_SPEED]
         force = 0.0
+        i_link[:, :] = 0.0
         for k in range(n_i):
             force += _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,
-                                       lst, v, ts[TS_ACCEL])
+                                       lst, v, ts[TS_ACCEL], i_link)
+        line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link)
         f_grade = gradient_force(mass, tpar[TP_GRAVITY], tu[TU_GRADIENT])
         v_new, resist = step_speed(v, force - f_grade, tpar[TP_DAVIS_A] + brake,
                                    tpar[TP_DAVIS_B], tpar[TP_DAVIS_C], m_eff, h)
@@ -382,6 +395,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         lst[link, LS_IDC] = 0.0
     for k in range(n_i):
         lst[iint[k, II_LINK], LS_IDC] += ist[k, IS_IDC]
+    line_frame_end(frame, sp, ss, ls2, kp, lst, tpar[TP_AMBIENT])
     _thermal_frame(mpar, ms, ipar, ist, tpar[TP_AMBIENT], frame)
 
 
@@ -434,6 +448,32 @@ def load_commands(duty, gates, iu) -> int:
         iu[k, IU_DB] = duty[k, 1]
         iu[k, IU_DC] = duty[k, 2]
         iu[k, IU_ENABLE] = 1.0 if gates[k] else 0.0
+    return COMMAND_OK
+
+
+@compiled
+def load_line_commands(mod, gates, pre, line, breaker, chopper, lu, ss, ku) -> int:
+    """Validate and load the line side's commands; nothing is written unless all are valid."""
+    for k in range(mod.shape[0]):
+        # flags may come as bool or float arrays: x * 1.0 is a float for both
+        if not (math.isfinite(mod[k]) and math.isfinite(gates[k] * 1.0)
+                and math.isfinite(pre[k] * 1.0) and math.isfinite(line[k] * 1.0)):
+            return COMMAND_NOT_FINITE
+        if mod[k] < -1.0 or mod[k] > 1.0:
+            return COMMAND_OUT_OF_RANGE
+    for j in range(chopper.shape[0]):
+        if not math.isfinite(chopper[j]):
+            return COMMAND_NOT_FINITE
+        if chopper[j] < 0.0 or chopper[j] > 1.0:
+            return COMMAND_OUT_OF_RANGE
+    for k in range(mod.shape[0]):
+        lu[k, LU_MOD] = mod[k]
+        lu[k, LU_ENABLE] = gates[k] * 1.0
+        lu[k, LU_PRE_CMD] = pre[k] * 1.0
+        lu[k, LU_LINE_CMD] = line[k] * 1.0
+    for j in range(chopper.shape[0]):
+        ku[j, KU_CHOPPER] = chopper[j]
+    ss[SS_BREAKER_CMD] = breaker
     return COMMAND_OK
 
 

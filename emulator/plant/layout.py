@@ -168,7 +168,7 @@ IS_N = 12
 # --- DC link state: float64 [n_link, LS_N] ------------------------------------------------
 LS_UDC = 0  # DC-link voltage, V
 LS_IDC = 1  # current drawn by the inverters, mean over the last frame, A
-LS_N = 2
+LS_N = 12  # see the DC-link columns below
 
 # --- train: float64 vectors ---------------------------------------------------------------
 TP_MASS = 0  # train mass, kg
@@ -220,3 +220,114 @@ READABLE: dict[str, tuple[str, int, str, str]] = {
     "train.acceleration_mps2": ("train_state", TS_ACCEL, "m/s^2", "acceleration"),
     "train.tractive_force_n": ("train_state", TS_TRACTIVE_FORCE, "N", "sum of creep forces"),
 }
+
+# --- supply (catenary) parameters and state: float64 vectors ----------------------------
+SP_AMPLITUDE = 0  # EMF peak at the pantograph behind the source impedance, V
+SP_FREQUENCY = 1  # Hz
+SP_PHASE_REF = 2  # phase at SP_T_REF, rad
+SP_T_REF = 3  # time of the last frequency or phase change, s
+SP_R = 4  # source resistance (substation + catenary), ohm
+SP_L = 5  # source inductance, H
+SP_LIVE = 6  # 1 energised, 0 dead (neutral section, interruption)
+SP_DROOP = 7  # non-receptive line: EMF rise per watt of reverse power, V/W
+SP_RATIO = 8  # transformer ratio primary / secondary voltage, 1
+SP_BREAKER_DELAY = 9  # main breaker closing delay, s
+SP_ACTIVE = 10  # 1 the line side is modelled, 0 DC links are ideal sources
+SP_N = 11
+N_HARMONICS = 4  # harmonic table rows: order, amplitude / fundamental, phase (rad)
+
+SS_IP = 0  # primary (pantograph) current, A
+SS_UP = 1  # pantograph voltage at the end of the last sub-step, V
+SS_EMF = 2  # source EMF at the last sub-step midpoint, V
+SS_BREAKER = 3  # main breaker state (1 closed)
+SS_BREAKER_CMD = 4  # commanded (1 close)
+SS_BREAKER_TIMER = 5  # time left until the breaker follows its command, s
+SS_REVERSE_W = 6  # mean reverse power over the last frame, W (non-receptive model)
+SS_E_SOURCE = 7  # energy delivered by the source EMF, J
+SS_E_SOURCE_R = 8  # energy lost in the source resistance, J
+SS_PQ_T = 9  # per-frame integrals for power quality: time, s
+SS_PQ_P = 10  # int u_p i_p dt
+SS_PQ_U2 = 11  # int u_p^2 dt
+SS_PQ_I2 = 12  # int i_p^2 dt
+SS_PQ_UC = 13  # int u_p cos(theta) dt, theta the fundamental's phase
+SS_PQ_US = 14  # int u_p sin(theta) dt
+SS_PQ_IC = 15  # int i_p cos(theta) dt
+SS_PQ_IS = 16  # int i_p sin(theta) dt
+SS_N = 17
+
+# --- four-quadrant line converters: parameters [n_lc, LP_N] -------------------------------
+LP_L = 0  # secondary leakage inductance referred to the secondary, H
+LP_R = 1  # secondary winding resistance, ohm
+LP_R_PRE = 2  # precharge resistor, ohm
+LP_V0 = 3  # device threshold (one device), V
+LP_RD = 4  # device slope resistance (one device), ohm
+LP_FSW = 5  # switching frequency, Hz
+LP_ESW = 6  # switching energy per pulse at the reference point, J
+LP_ESW_VREF = 7
+LP_ESW_IREF = 8
+LP_PRE_DELAY = 9  # precharge contactor delay, s
+LP_LINE_DELAY = 10  # line contactor delay, s
+LP_N = 11
+LI_LINK = 0  # DC link fed
+LI_N = 1
+LU_MOD = 0  # modulation index m: converter voltage m U_dc, -1..1
+LU_ENABLE = 1  # gates released
+LU_PRE_CMD = 2  # precharge contactor commanded closed
+LU_LINE_CMD = 3  # line contactor commanded closed
+LU_N = 4
+LS2_I = 0  # secondary current, A
+LS2_U = 1  # converter AC voltage applied, V
+LS2_PRE = 2  # precharge contactor state
+LS2_LINE = 3  # line contactor state
+LS2_PRE_TIMER = 4
+LS2_LINE_TIMER = 5
+LS2_IDC = 6  # DC current delivered to the link, frame mean, A
+LS2_E_AC = 7  # energy into the converter's AC terminals, J
+LS2_E_DC = 8  # energy delivered to the link, J
+LS2_E_LOSS = 9  # conduction + switching loss, J
+LS2_E_R = 10  # loss in the winding and precharge resistances, J
+LS2_N = 11
+
+# --- DC links: parameters [n_link, KP_N] ----------------------------------------------
+KP_C = 0  # link capacitance, F
+KP_R_DIS = 1  # discharge resistor, ohm
+KP_LF = 2  # series-resonant filter inductance, H (0: no filter)
+KP_CF = 3  # filter capacitance, F
+KP_RF = 4  # filter resistance, ohm
+KP_R_CH = 5  # brake chopper resistor, ohm
+KP_U_OVP = 6  # overvoltage protection threshold, V
+KP_IDEAL = 7  # 1: an ideal source holding KP_U_IDEAL
+KP_U_IDEAL = 8
+KP_TH_C = 9  # chopper resistor heat capacity, J/K
+KP_TH_G = 10  # chopper resistor to ambient conductance, W/K
+KP_N = 11
+KU_CHOPPER = 0  # chopper duty 0..1
+KU_N = 1
+# link state columns continue LS_UDC, LS_IDC (above)
+LS_IF = 2  # filter current, A
+LS_UCF = 3  # filter capacitor voltage, V
+LS_T_RES = 4  # chopper resistor temperature, K
+LS_OVP = 5  # overvoltage flag (latched until the voltage falls below 95 %)
+LS_ICH = 6  # chopper current, frame mean, A
+LS_E_CH = 7  # energy into the chopper resistor, J
+LS_E_DIS = 8  # energy into the discharge resistor, J
+LS_E_RF = 9  # energy lost in the filter resistance, J
+LS_Q_CH = 10  # chopper energy not yet given to the thermal model, J
+LS_I4Q = 11  # current from the line converters, frame mean, A
+
+READABLE.update({
+    "line.pantograph_voltage_v": ("supply_state", SS_UP, "V", "instantaneous"),
+    "line.current_a": ("supply_state", SS_IP, "A", "primary current, instantaneous"),
+    "line.emf_v": ("supply_state", SS_EMF, "V", "source EMF"),
+    "line.breaker_closed": ("supply_state", SS_BREAKER, "1", "main breaker feedback"),
+    "line_converter.current_a": ("lc_state", LS2_I, "A", "secondary current"),
+    "line_converter.voltage_v": ("lc_state", LS2_U, "V", "converter AC voltage"),
+    "line_converter.precharge_closed": ("lc_state", LS2_PRE, "1", "feedback contact"),
+    "line_converter.line_contactor_closed": ("lc_state", LS2_LINE, "1", "feedback contact"),
+    "line_converter.dc_current_a": ("lc_state", LS2_IDC, "A", "into the link, frame mean"),
+    "dc_link.filter_current_a": ("link_state", LS_IF, "A", "2f filter current"),
+    "dc_link.chopper_current_a": ("link_state", LS_ICH, "A", "frame mean"),
+    "dc_link.resistor_temperature_k": ("link_state", LS_T_RES, "K", "brake resistor"),
+    "dc_link.overvoltage": ("link_state", LS_OVP, "1", "protection flag"),
+    "dc_link.line_converter_current_a": ("link_state", LS_I4Q, "A", "frame mean"),
+})

@@ -76,10 +76,53 @@ class DrivetrainParams:
 
 @dataclass(frozen=True)
 class DcLinkParams:
-    """A DC link; an ideal voltage source until the line side feeds it."""
+    """A DC link: capacitor, optional 2f filter, brake chopper, discharge resistor."""
 
     name: str
-    voltage_v: float
+    voltage_v: float  # nominal; the held voltage when the link is an ideal source
+    capacitance_f: float = 0.0
+    discharge_ohm: float = 0.0
+    overvoltage_v: float = float("inf")
+    chopper_ohm: float = 0.0
+    resistor_capacity_j_per_k: float = 0.0
+    resistor_conductance_w_per_k: float = 0.0
+    filter_inductance_h: float = 0.0  # 0: no series-resonant filter
+    filter_capacitance_f: float = 0.0
+    filter_resistance_ohm: float = 0.0
+
+
+@dataclass(frozen=True)
+class TransformerParams:
+    """Main transformer, one secondary winding per line converter, and main breaker."""
+
+    primary_voltage_v: float
+    secondary_voltage_v: float
+    leakage_h: float  # per secondary, referred to the secondary
+    resistance_ohm: float
+    breaker_delay_s: float
+
+
+@dataclass(frozen=True)
+class LineConverterParams:
+    """Data shared by the four-quadrant line converters and their contactors."""
+
+    switching_frequency_hz: float
+    device_threshold_v: float
+    device_slope_ohm: float
+    switching_energy_j: float
+    switching_energy_ref_v: float
+    switching_energy_ref_a: float
+    precharge_ohm: float
+    precharge_delay_s: float
+    line_contactor_delay_s: float
+
+
+@dataclass(frozen=True)
+class LineConverterUnit:
+    """One four-quadrant converter on its own secondary winding, feeding a DC link."""
+
+    name: str
+    dc_link: int
 
 
 @dataclass(frozen=True)
@@ -93,10 +136,14 @@ class ConverterParams:
 
 @dataclass(frozen=True)
 class SupplyParams:
-    """Catenary supply system the trainset is built for."""
+    """Catenary supply: system, source impedance at the pantograph, harmonics."""
 
     nominal_voltage_v: float  # rms
     frequency_hz: float
+    source_resistance_ohm: float = 0.0
+    source_inductance_h: float = 0.0
+    reverse_power_droop_v_per_w: float = 0.0  # 0: a receptive line
+    harmonics: tuple[tuple[int, float, float], ...] = ()  # order, fraction, phase rad
 
 
 @dataclass(frozen=True)
@@ -127,6 +174,9 @@ class TrainsetParams:
     inverter: InverterParams
     dc_links: tuple[DcLinkParams, ...]
     converters: tuple[ConverterParams, ...]
+    transformer: TransformerParams | None = None  # None: DC links are ideal sources
+    line_converter: LineConverterParams | None = None
+    line_converters: tuple[LineConverterUnit, ...] = ()
     notes: dict[str, str] = field(default_factory=dict)
     sensors: Any = None  # emulator.sensors.SensorParams; the plant does not use it
 

@@ -15,7 +15,13 @@ import numpy as np
 
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
 from .drivetrain import RAIL_CONDITIONS
-from .kernel import COMMAND_NOT_FINITE, COMMAND_OUT_OF_RANGE, advance_frame, load_commands
+from .kernel import (
+    COMMAND_NOT_FINITE,
+    COMMAND_OUT_OF_RANGE,
+    advance_frame,
+    load_commands,
+    load_line_commands,
+)
 from .machine import currents, magnetic_energy
 from .params import (
     ConverterParams,
@@ -44,11 +50,40 @@ class Commands:
 
     duty: np.ndarray
     gates_enabled: np.ndarray
+    line: LineCommands | None = None  # None: keep the line side's previous commands
 
     @classmethod
     def blocked(cls, n_inverter: int) -> Commands:
         """All gates blocked, duties at 0.5."""
         return cls(np.full((n_inverter, 3), 0.5), np.zeros(n_inverter, dtype=bool))
+
+
+@dataclass
+class LineCommands:
+    """What the line side is told for one frame.
+
+    Attributes:
+        modulation: per line converter, m in -1..1 (converter voltage m U_dc).
+        gates_enabled: per line converter.
+        precharge: per line converter, precharge contactor commanded closed.
+        line_contactor: per line converter, line contactor commanded closed.
+        breaker: main breaker commanded closed.
+        chopper: per DC link, brake chopper duty 0..1.
+    """
+
+    modulation: np.ndarray
+    gates_enabled: np.ndarray
+    precharge: np.ndarray
+    line_contactor: np.ndarray
+    breaker: bool
+    chopper: np.ndarray
+
+    @classmethod
+    def open(cls, n_converters: int, n_links: int) -> LineCommands:
+        """Everything open and blocked."""
+        return cls(np.zeros(n_converters), np.zeros(n_converters, dtype=bool),
+                   np.zeros(n_converters, dtype=bool), np.zeros(n_converters, dtype=bool),
+                   False, np.zeros(n_links))
 
 
 @dataclass(frozen=True)
@@ -75,7 +110,13 @@ class EnergyAccount:
 class Plant:
     """The whole drive of a trainset, stepped one frame at a time."""
 
-    def __init__(self, params: TrainsetParams, *, refresh_each_substep: bool = False) -> None:
+    def __init__(self, params: TrainsetParams, *, refresh_each_substep: bool = False,
+                 ideal_dc_links: bool = False) -> None:
+        """Build the state arrays.
+
+        ideal_dc_links: hold every DC link at its nominal voltage and leave the line side
+        out (motor-side studies); also the case when the profile has no line side.
+        """
         self.params = params
         self.substep_s = params.substep_s
         self.refresh_each_substep = refresh_each_substep
@@ -171,8 +212,7 @@ class Plant:
             self.ist[k, L.IS_T_J] = ambient
             self.ist[k, L.IS_T_H] = ambient
             self.iu[k, L.IU_DA:L.IU_DC + 1] = 0.5
-        for link, lp in enumerate(params.dc_links):
-            self.lst[link, L.LS_UDC] = lp.voltage_v
+        self._build_line_side(params, ideal_dc_links or params.transformer is None)
         self.derive_drivetrain()
         tp = params.train
         self.tpar[L.TP_MASS] = tp.mass_kg
@@ -182,6 +222,81 @@ class Plant:
         self.tpar[L.TP_DAVIS_C] = tp.davis_c_n_per_mps2
         self.tpar[L.TP_GRAVITY] = 9.80665
         self.tpar[L.TP_AMBIENT] = ambient
+
+    def _build_line_side(self, params: TrainsetParams, ideal: bool) -> None:
+        n_link = len(params.dc_links)
+        units = params.line_converters
+        n_lc = len(units)
+        self.n_line_converters = n_lc
+        self.sp = np.zeros(L.SP_N)
+        self.harmonics = np.zeros((L.N_HARMONICS, 3))
+        self.ss = np.zeros(L.SS_N)
+        self.lp = np.zeros((n_lc, L.LP_N))
+        self.li = np.zeros((n_lc, L.LI_N), dtype=np.int64)
+        self.lu = np.zeros((n_lc, L.LU_N))
+        self.ls2 = np.zeros((n_lc, L.LS2_N))
+        self.kp = np.zeros((n_link, L.KP_N))
+        self.ku = np.zeros((n_link, L.KU_N))
+        self.i_link = np.zeros((n_link, 2))
+        self._pq_ring = np.zeros((1, L.SS_PQ_IS - L.SS_PQ_T + 1))
+        ambient = params.train.ambient_temperature_k
+        su = params.supply
+        for i, (order, fraction, phase) in enumerate(su.harmonics[:L.N_HARMONICS]):
+            self.harmonics[i] = (order, fraction, phase)
+        for link, lk in enumerate(params.dc_links):
+            row = self.kp[link]
+            row[L.KP_C] = lk.capacitance_f
+            row[L.KP_R_DIS] = lk.discharge_ohm
+            row[L.KP_LF] = lk.filter_inductance_h
+            row[L.KP_CF] = lk.filter_capacitance_f
+            row[L.KP_RF] = lk.filter_resistance_ohm
+            row[L.KP_R_CH] = lk.chopper_ohm
+            row[L.KP_U_OVP] = lk.overvoltage_v
+            row[L.KP_U_IDEAL] = lk.voltage_v
+            row[L.KP_TH_C] = lk.resistor_capacity_j_per_k
+            row[L.KP_TH_G] = lk.resistor_conductance_w_per_k
+            row[L.KP_IDEAL] = 1.0 if ideal else 0.0
+            self.lst[link, L.LS_UDC] = lk.voltage_v if ideal else 0.0
+            self.lst[link, L.LS_T_RES] = ambient
+        if ideal:
+            return
+        tr, lc = params.transformer, params.line_converter
+        assert tr is not None and lc is not None
+        self.sp[L.SP_ACTIVE] = 1.0
+        self.sp[L.SP_RATIO] = tr.primary_voltage_v / tr.secondary_voltage_v
+        self.sp[L.SP_AMPLITUDE] = su.nominal_voltage_v * math.sqrt(2.0)
+        self.sp[L.SP_FREQUENCY] = su.frequency_hz
+        self.sp[L.SP_R] = su.source_resistance_ohm
+        self.sp[L.SP_L] = su.source_inductance_h
+        self.sp[L.SP_LIVE] = 1.0
+        self.sp[L.SP_DROOP] = su.reverse_power_droop_v_per_w
+        self.sp[L.SP_BREAKER_DELAY] = tr.breaker_delay_s
+        self.ss[L.SS_BREAKER_TIMER] = tr.breaker_delay_s
+        for k, unit in enumerate(units):
+            row = self.lp[k]
+            row[L.LP_L] = tr.leakage_h
+            row[L.LP_R] = tr.resistance_ohm
+            row[L.LP_R_PRE] = lc.precharge_ohm
+            row[L.LP_V0] = lc.device_threshold_v
+            row[L.LP_RD] = lc.device_slope_ohm
+            row[L.LP_FSW] = lc.switching_frequency_hz
+            row[L.LP_ESW] = lc.switching_energy_j
+            row[L.LP_ESW_VREF] = lc.switching_energy_ref_v
+            row[L.LP_ESW_IREF] = lc.switching_energy_ref_a
+            row[L.LP_PRE_DELAY] = lc.precharge_delay_s
+            row[L.LP_LINE_DELAY] = lc.line_contactor_delay_s
+            self.li[k, L.LI_LINK] = unit.dc_link
+            self.ls2[k, L.LS2_PRE_TIMER] = lc.precharge_delay_s
+            self.ls2[k, L.LS2_LINE_TIMER] = lc.line_contactor_delay_s
+        # power-quality window: a whole number of line periods, at least 100 ms
+        periods = max(1, math.ceil(0.1 * su.frequency_hz))
+        frames = max(1, round(periods / su.frequency_hz / params.frame_s))
+        self._pq_ring = np.zeros((frames, L.SS_PQ_IS - L.SS_PQ_T + 1))
+
+    @property
+    def line_side(self) -> bool:
+        """Whether the line side is modelled (False: ideal DC links)."""
+        return self.sp[L.SP_ACTIVE] > 0.5
 
     def derive_drivetrain(self) -> None:
         """Recompute the derived drivetrain columns after a change of their sources."""
@@ -244,7 +359,10 @@ class Plant:
         n_sub, h = self._n_sub, self._h
         advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, self.mpar, self.mint,
                       self.mu, self.ms, self.mx, self.sat_i, self.sat_psi, self.ipar,
-                      self.iint, self.iu, self.ist, self.lst, self.tpar, self.tu, self.ts)
+                      self.iint, self.iu, self.ist, self.lst, self.tpar, self.tu, self.ts,
+                      self.sp, self.harmonics, self.ss, self.lp, self.li, self.lu, self.ls2,
+                      self.kp, self.ku, self.i_link)
+        self._pq_ring[self.frames % len(self._pq_ring)] = self.ss[L.SS_PQ_T:L.SS_PQ_IS + 1]
         self.frames += 1
         self.substeps += n_sub
         # integer nanoseconds: t_k = k T exactly for a constant frame, no drift
@@ -265,11 +383,34 @@ class Plant:
             if gates.shape != (self.n_inverters,):
                 raise CommandError(f"expected gates of shape ({self.n_inverters},), "
                                    f"got {gates.shape}")
+        line = commands.line
+        if line is not None:
+            self._apply_line(line)
         code = load_commands(duty, gates, self.iu)
         if code == COMMAND_NOT_FINITE:
             raise CommandError("duty cycles must be finite (NaN or inf received)")
         if code == COMMAND_OUT_OF_RANGE:
             raise CommandError("duty cycles must lie within 0..1")
+
+    def _apply_line(self, line: LineCommands) -> None:
+        n, k = self.n_line_converters, self.n_links
+        arrays = [a if isinstance(a, np.ndarray) else np.asarray(a, dtype=float)
+                  for a in (line.modulation, line.gates_enabled, line.precharge,
+                            line.line_contactor)]
+        chopper = line.chopper
+        if not isinstance(chopper, np.ndarray):
+            chopper = np.asarray(chopper, dtype=float)
+        if any(a.shape != (n,) or a.dtype.kind not in "fb" for a in arrays) or (
+                chopper.shape != (k,) or chopper.dtype.kind != "f"):
+            raise CommandError(f"line commands need {n} values per converter and {k} chopper "
+                               "duties, as numbers")
+        code = load_line_commands(arrays[0], arrays[1], arrays[2], arrays[3],
+                                  1.0 if line.breaker else 0.0, chopper, self.lu, self.ss,
+                                  self.ku)
+        if code == COMMAND_NOT_FINITE:
+            raise CommandError("line commands must be finite (NaN or inf received)")
+        if code == COMMAND_OUT_OF_RANGE:
+            raise CommandError("modulation must lie within -1..1 and chopper duty within 0..1")
 
     # --- inputs from the track and the driver -----------------------------------------
     def set_gradient(self, gradient: float) -> None:
@@ -361,7 +502,8 @@ class Plant:
         except KeyError:
             raise KeyError(f"no state named {name!r}; see Plant.names()") from None
         data = getattr(self, {"motor_state": "ms", "inverter_state": "ist",
-                              "link_state": "lst", "train_state": "ts"}[array])
+                              "link_state": "lst", "train_state": "ts", "supply_state": "ss",
+                              "lc_state": "ls2"}[array])
         return float(data[column]) if data.ndim == 1 else data[:, column].copy()
 
     @staticmethod

@@ -35,9 +35,12 @@ class OpenLoopBoard:
         self.scale_c = [s["scale"] for s in signal_map["commands"]]
         self.version = signal_map["protocol_version"]
         self.encoders = [i for i, n in enumerate(self.meas) if n.endswith(".encoder_count")]
-        self.link_v = next(i for i, n in enumerate(self.meas) if n.endswith(".voltage_v"))
+        self.link_v = next(i for i, n in enumerate(self.meas)
+                           if n.endswith(".voltage_v") and not n.startswith("line."))
+        self.line_converters = sorted({n.rsplit(".", 1)[0] for n in self.cmds
+                                       if n.endswith(".modulation")})
         self.inverters = sorted({n.rsplit(".", 1)[0] for n in self.cmds
-                                 if n.endswith(".gates_enabled")})
+                                 if n.endswith(".duty_a")})
         self.slip_hz, self.vpf, self.pp = slip_hz, volts_per_hz, pole_pairs
         self.lines_x4 = 4 * 256
         self.prev_counts: list[int] | None = None
@@ -65,11 +68,20 @@ class OpenLoopBoard:
         mod = min(amp / (0.5 * udc), 0.95) if udc > 100 else 0.0
         self.theta += 2 * math.pi * f_s * period
         values = {}
+        # switchgear: breaker and precharge first, line contactor once charged, the line
+        # converters stay blocked (a diode bridge feeds the link in this example)
+        t = seq * period
+        values["line.breaker_close"] = 1.0
+        for lc in self.line_converters:
+            values[f"{lc}.precharge_close"] = 1.0 if t < 0.7 else 0.0
+            values[f"{lc}.line_contactor_close"] = 1.0 if t >= 0.6 else 0.0
+        if udc < 1000.0:
+            mod = 0.0
         for inv in self.inverters:
             for x, ph in enumerate("abc"):
                 angle = self.theta - x * 2 * math.pi / 3
                 values[f"{inv}.duty_{ph}"] = 0.5 + 0.5 * mod * math.cos(angle)
-            values[f"{inv}.gates_enabled"] = 1.0
+            values[f"{inv}.gates_enabled"] = 1.0 if udc >= 1000.0 else 0.0
         named = zip(self.cmds, self.scale_c, strict=True)
         wire = [round(values.get(n, 0.0) / s) for n, s in named]
         self.answered += 1

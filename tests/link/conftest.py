@@ -47,7 +47,7 @@ def command(rig: Rig, seq: int, duty: float = 0.5, gates: int = 1, **over) -> by
         else:
             v = 0.0
         values.append(round(over.get(s.name, v) / s.scale))
-    return msgpack.packb([1, seq, 0, 0, 0, *values])
+    return msgpack.packb([rig.signal_map.version, seq, 0, 0, 0, *values])
 
 
 @pytest.fixture(scope="session")

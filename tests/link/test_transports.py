@@ -60,10 +60,12 @@ def test_board_drives_the_train_over_udp(params, tmp_path) -> None:
     rig_port, board_port = free_port(), free_port()
     url = f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}"
     args = [str(BOARD), str(signal_map_file(params, tmp_path)), "udp",
-            f"127.0.0.1:{rig_port}", f"127.0.0.1:{board_port}", "1500"]
-    rig, board = asyncio.run(_run_with_board(params, url, args, 1500))
-    assert board["answered"] >= 1500
-    assert rig.health.valid >= 1499 and not rig.health.rejected
+            f"127.0.0.1:{rig_port}", f"127.0.0.1:{board_port}", "2500"]
+    rig, board = asyncio.run(_run_with_board(params, url, args, 2500))
+    assert board["answered"] >= 2500
+    assert rig.health.valid >= 2499 and not rig.health.rejected
+    assert rig.plant.read("line.breaker_closed") == 1.0  # the board ran the switchgear
+    assert rig.plant.read("dc_link.voltage_v").min() > 1000.0
     assert rig.plant.read("train.speed_mps") > 0.1  # the open-loop board moved the train
     # the board's speed from count differences over one frame: resolution one count per
     # frame, 2 pi / (4 x 256 lines) / 1 ms = 6.1 rad/s, averaged over its 8 encoders

@@ -1,0 +1,338 @@
+"""Line side: catenary source, transformer, four-quadrant converters, DC links.
+
+Supply and transformer (all secondaries coupled through the common source impedance,
+quantities referred to the secondary by the ratio n = U_primary / U_secondary)::
+
+    L_k di_k/dt + (L_c/n^2) sum_j di_j/dt = e/n - (R_c/n^2) sum_j i_j - R_k i_k - u_k
+    i_primary = sum_k i_k / n,   u_pantograph = e - R_c i_p - L_c di_p/dt
+
+stepped by the trapezoidal rule (second order, no numerical damping of the 50 Hz
+current); the matrix is diagonal plus rank one, solved by the Sherman-Morrison formula.
+The EMF e(t) = U sqrt(2) [sin(theta) + sum_h a_h sin(h theta + phi_h)] is evaluated at
+each sub-step's midpoint from absolute time, theta = phi_ref + 2 pi f (t - t_ref), so a
+line frequency that is no multiple of 1/T is not aliased by the emulator.
+
+Four-quadrant converter (single-phase H-bridge), average model: u_k = m U_dc + 2 sgn(i)
+(V0 + r |i|), i_dc = m i_k (Mohan, Undeland, Robbins, *Power Electronics*, ch. 8; Steimel,
+*Electric Traction*, 2008, line-converter chapter, from memory). With its gates blocked it
+is a diode bridge: it applies the voltage that would bring its current to zero, clipped to
++-(U_dc + 2 V_F), so the link charges to the secondary peak less the diode drops.
+
+DC link: C dU/dt = sum i_dc,4QC - sum i_dc,inverter - i_chopper - U/R_dis - i_filter, with
+an optional series-resonant filter (L_f di_f/dt = U - u_cf - R_f i_f, C_f du_cf/dt = i_f)
+tuned to twice the line frequency, L_f C_f = 1/(2 omega)^2; the chopper is an average
+model i_ch = d U / R_ch.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .jit import compiled
+from .layout import (
+    KP_C,
+    KP_CF,
+    KP_IDEAL,
+    KP_LF,
+    KP_R_CH,
+    KP_R_DIS,
+    KP_RF,
+    KP_TH_C,
+    KP_TH_G,
+    KP_U_IDEAL,
+    KP_U_OVP,
+    KU_CHOPPER,
+    LI_LINK,
+    LP_ESW,
+    LP_ESW_IREF,
+    LP_ESW_VREF,
+    LP_FSW,
+    LP_L,
+    LP_LINE_DELAY,
+    LP_PRE_DELAY,
+    LP_R,
+    LP_R_PRE,
+    LP_RD,
+    LP_V0,
+    LS2_E_AC,
+    LS2_E_DC,
+    LS2_E_LOSS,
+    LS2_E_R,
+    LS2_I,
+    LS2_IDC,
+    LS2_LINE,
+    LS2_LINE_TIMER,
+    LS2_PRE,
+    LS2_PRE_TIMER,
+    LS2_U,
+    LS_E_CH,
+    LS_E_DIS,
+    LS_E_RF,
+    LS_I4Q,
+    LS_ICH,
+    LS_IF,
+    LS_OVP,
+    LS_Q_CH,
+    LS_T_RES,
+    LS_UCF,
+    LS_UDC,
+    LU_ENABLE,
+    LU_LINE_CMD,
+    LU_MOD,
+    LU_PRE_CMD,
+    SP_ACTIVE,
+    SP_AMPLITUDE,
+    SP_BREAKER_DELAY,
+    SP_DROOP,
+    SP_FREQUENCY,
+    SP_L,
+    SP_LIVE,
+    SP_PHASE_REF,
+    SP_R,
+    SP_RATIO,
+    SP_T_REF,
+    SS_BREAKER,
+    SS_BREAKER_CMD,
+    SS_BREAKER_TIMER,
+    SS_E_SOURCE,
+    SS_E_SOURCE_R,
+    SS_EMF,
+    SS_IP,
+    SS_PQ_I2,
+    SS_PQ_IC,
+    SS_PQ_IS,
+    SS_PQ_P,
+    SS_PQ_T,
+    SS_PQ_U2,
+    SS_PQ_UC,
+    SS_PQ_US,
+    SS_REVERSE_W,
+    SS_UP,
+)
+
+
+@compiled
+def supply_phase(sp: np.ndarray, t: float) -> float:
+    """Phase of the fundamental at time t, rad: phi_ref + 2 pi f (t - t_ref)."""
+    return sp[SP_PHASE_REF] + 2.0 * math.pi * sp[SP_FREQUENCY] * (t - sp[SP_T_REF])
+
+
+@compiled
+def supply_emf(sp: np.ndarray, harmonics: np.ndarray, ss: np.ndarray, t: float) -> float:
+    """Source EMF at time t, V (0 when the line is dead)."""
+    if sp[SP_LIVE] < 0.5:
+        return 0.0
+    theta = supply_phase(sp, t)
+    amplitude = sp[SP_AMPLITUDE] + sp[SP_DROOP] * ss[SS_REVERSE_W] * math.sqrt(2.0)
+    e = math.sin(theta)
+    for h in range(harmonics.shape[0]):
+        if harmonics[h, 1] != 0.0:
+            e += harmonics[h, 1] * math.sin(harmonics[h, 0] * theta + harmonics[h, 2])
+    return amplitude * e
+
+
+@compiled
+def _contactors(lp, lu, ls2, sp, ss, h):
+    """Switchgear: each contact follows its command after its delay."""
+    cmd = 1.0 if ss[SS_BREAKER_CMD] > 0.5 else 0.0
+    if cmd != ss[SS_BREAKER]:
+        if cmd == 0.0:
+            ss[SS_BREAKER] = 0.0  # opening is taken as immediate at control-period level
+        else:
+            ss[SS_BREAKER_TIMER] -= h
+            if ss[SS_BREAKER_TIMER] <= 0.0:
+                ss[SS_BREAKER] = 1.0
+    else:
+        ss[SS_BREAKER_TIMER] = sp[SP_BREAKER_DELAY]
+    for k in range(lp.shape[0]):
+        for cmd_col, state_col, timer_col, delay_col in ((LU_PRE_CMD, LS2_PRE, LS2_PRE_TIMER,
+                                                          LP_PRE_DELAY),
+                                                         (LU_LINE_CMD, LS2_LINE, LS2_LINE_TIMER,
+                                                          LP_LINE_DELAY)):
+            want = 1.0 if lu[k, cmd_col] > 0.5 else 0.0
+            if want != ls2[k, state_col]:
+                ls2[k, timer_col] -= h
+                if ls2[k, timer_col] <= 0.0:
+                    ls2[k, state_col] = want
+            else:
+                ls2[k, timer_col] = lp[k, delay_col]
+
+
+@compiled
+def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
+    """Advance supply, transformer, line converters and DC links by one sub-step.
+
+    i_link[link, 0] holds the mean DC current the inverters drew from each link over
+    this sub-step (A), computed with the link voltages at its start; column 1 receives
+    the line converters' current here.
+    """
+    n_lc = lp.shape[0]
+    if sp[SP_ACTIVE] < 0.5:
+        return
+    _contactors(lp, lu, ls2, sp, ss, h)
+    n = sp[SP_RATIO]
+    e = supply_emf(sp, harmonics, ss, t + 0.5 * h)
+    ss[SS_EMF] = e
+    breaker = ss[SS_BREAKER] > 0.5
+    lc_src = (sp[SP_L] + 0.5 * h * sp[SP_R]) / (n * n)  # c of Sherman-Morrison
+    lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n)
+    sum_i = 0.0
+    for k in range(n_lc):
+        sum_i += ls2[k, LS2_I]
+    # converter voltages held over the step, and the rows of the active windings
+    s_b = 0.0
+    s_1 = 0.0
+    u_sec_est = ss[SS_UP] / n
+    for k in range(n_lc):
+        link = li[k, LI_LINK]
+        udc = lst[link, LS_UDC]
+        i = ls2[k, LS2_I]
+        closed = breaker and (ls2[k, LS2_LINE] > 0.5 or ls2[k, LS2_PRE] > 0.5)
+        if not closed:
+            ls2[k, LS2_U] = 0.0
+            continue
+        r = lp[k, LP_R] + (0.0 if ls2[k, LS2_LINE] > 0.5 else lp[k, LP_R_PRE])
+        v_f = 2.0 * lp[k, LP_V0]
+        if lu[k, LU_ENABLE] > 0.5:
+            sg = 1.0 if i > 0.0 else (-1.0 if i < 0.0 else 0.0)
+            u = lu[k, LU_MOD] * udc + sg * (v_f + 2.0 * lp[k, LP_RD] * abs(i))
+        else:
+            # diode bridge: the voltage that would stop the current, clipped to the rails
+            u = u_sec_est + (lp[k, LP_L] - 0.5 * h * r) * i / h
+            rail = udc + v_f
+            u = min(max(u, -rail), rail)
+        ls2[k, LS2_U] = u
+        a_k = lp[k, LP_L] + 0.5 * h * r
+        b_k = (lp[k, LP_L] - 0.5 * h * r) * i + lc_old * sum_i + h * (e / n - u)
+        s_b += b_k / a_k
+        s_1 += 1.0 / a_k
+    corr = lc_src * s_b / (1.0 + lc_src * s_1)
+    sum_new = 0.0
+    for k in range(n_lc):
+        link = li[k, LI_LINK]
+        udc = lst[link, LS_UDC]
+        i_old = ls2[k, LS2_I]
+        closed = breaker and (ls2[k, LS2_LINE] > 0.5 or ls2[k, LS2_PRE] > 0.5)
+        if not closed:
+            ls2[k, LS2_I] = 0.0
+            continue
+        r = lp[k, LP_R] + (0.0 if ls2[k, LS2_LINE] > 0.5 else lp[k, LP_R_PRE])
+        a_k = lp[k, LP_L] + 0.5 * h * r
+        b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e / n - ls2[k, LS2_U])
+        i_new = (b_k - corr) / a_k
+        if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
+            i_new = 0.0  # a diode bridge does not reverse its current within a step
+        ls2[k, LS2_I] = i_new
+        sum_new += i_new
+        i_avg = 0.5 * (i_old + i_new)
+        u = ls2[k, LS2_U]
+        # DC side: the share of the converter voltage that comes from the link
+        if lu[k, LU_ENABLE] > 0.5:
+            s = lu[k, LU_MOD]
+        elif udc > 0.0 and abs(u) < udc:
+            s = u / udc
+        else:
+            s = 1.0 if u > 0.0 else (-1.0 if u < 0.0 else 0.0)
+        p_sw = 0.0
+        if lu[k, LU_ENABLE] > 0.5:
+            p_sw = (2.0 * lp[k, LP_FSW] * lp[k, LP_ESW] * (udc / lp[k, LP_ESW_VREF])
+                    * (abs(i_avg) / lp[k, LP_ESW_IREF]))
+        i_dc = s * i_avg - (p_sw / udc if udc > 0.0 else 0.0)
+        ls2[k, LS2_IDC] += i_dc * h
+        lst[link, LS_I4Q] += i_dc * h
+        i_link[link, 1] += i_dc
+        ls2[k, LS2_E_AC] += u * i_avg * h
+        ls2[k, LS2_E_DC] += udc * i_dc * h
+        ls2[k, LS2_E_LOSS] += (u - s * udc) * i_avg * h + p_sw * h
+        ls2[k, LS2_E_R] += r * 0.5 * (i_old * i_old + i_new * i_new) * h
+    # primary side
+    ip_old = ss[SS_IP]
+    ip_new = sum_new / n
+    ss[SS_IP] = ip_new
+    ip_avg = 0.5 * (ip_old + ip_new)
+    up = e - sp[SP_R] * ip_avg - sp[SP_L] * (ip_new - ip_old) / h
+    ss[SS_UP] = up
+    ss[SS_E_SOURCE] += e * ip_avg * h
+    ss[SS_E_SOURCE_R] += sp[SP_R] * 0.5 * (ip_old * ip_old + ip_new * ip_new) * h
+    theta = supply_phase(sp, t + 0.5 * h)
+    c = math.cos(theta)
+    sn = math.sin(theta)
+    ss[SS_PQ_T] += h
+    ss[SS_PQ_P] += up * ip_avg * h
+    ss[SS_PQ_U2] += up * up * h
+    ss[SS_PQ_I2] += ip_avg * ip_avg * h
+    ss[SS_PQ_UC] += up * c * h
+    ss[SS_PQ_US] += up * sn * h
+    ss[SS_PQ_IC] += ip_avg * c * h
+    ss[SS_PQ_IS] += ip_avg * sn * h
+    _links_substep(h, kp, ku, lst, i_link)
+
+
+@compiled
+def _links_substep(h, kp, ku, lst, i_link):
+    """DC links: filter, chopper, discharge and the capacitor (symplectic Euler)."""
+    for link in range(kp.shape[0]):
+        if kp[link, KP_IDEAL] > 0.5:
+            lst[link, LS_UDC] = kp[link, KP_U_IDEAL]
+            continue
+        u = lst[link, LS_UDC]
+        i_f = 0.0
+        if kp[link, KP_LF] > 0.0:
+            # L_f di/dt = U - u_cf - R_f i; C_f du_cf/dt = i
+            i_f = lst[link, LS_IF] + h * (u - lst[link, LS_UCF]
+                                          - kp[link, KP_RF] * lst[link, LS_IF]) / kp[link, KP_LF]
+            lst[link, LS_E_RF] += kp[link, KP_RF] * i_f * i_f * h
+            lst[link, LS_IF] = i_f
+            lst[link, LS_UCF] += h * i_f / kp[link, KP_CF]
+        duty = min(max(ku[link, KU_CHOPPER], 0.0), 1.0)
+        i_ch = duty * u / kp[link, KP_R_CH] if kp[link, KP_R_CH] > 0.0 else 0.0
+        i_dis = u / kp[link, KP_R_DIS] if kp[link, KP_R_DIS] > 0.0 else 0.0
+        # C dU/dt = i_4QC - i_inverters - i_chopper - i_discharge - i_filter; the bridges'
+        # freewheeling diodes keep the link from reversing (clamp at zero)
+        u_new = u + h * (i_link[link, 1] - i_link[link, 0] - i_ch - i_dis - i_f) / kp[link, KP_C]
+        u_new = max(u_new, 0.0)
+        lst[link, LS_UDC] = u_new
+        lst[link, LS_ICH] += i_ch * h
+        e_ch = i_ch * u * h
+        lst[link, LS_E_CH] += e_ch
+        lst[link, LS_Q_CH] += e_ch
+        lst[link, LS_E_DIS] += i_dis * u * h
+        if u_new > kp[link, KP_U_OVP]:
+            lst[link, LS_OVP] = 1.0
+        elif u_new < 0.95 * kp[link, KP_U_OVP]:
+            lst[link, LS_OVP] = 0.0
+
+
+@compiled
+def line_frame_start(ss, ls2, lst):
+    """Reset the per-frame accumulators of the line side."""
+    for col in range(SS_PQ_T, SS_PQ_IS + 1):
+        ss[col] = 0.0
+    for k in range(ls2.shape[0]):
+        ls2[k, LS2_IDC] = 0.0
+    for link in range(lst.shape[0]):
+        lst[link, LS_I4Q] = 0.0
+        lst[link, LS_ICH] = 0.0
+
+
+@compiled
+def line_frame_end(frame, sp, ss, ls2, kp, lst, ambient):
+    """Frame means, the non-receptive line's reverse power, the brake resistors' heat."""
+    for k in range(ls2.shape[0]):
+        ls2[k, LS2_IDC] /= frame
+    for link in range(lst.shape[0]):
+        lst[link, LS_I4Q] /= frame
+        lst[link, LS_ICH] /= frame
+        # one-node resistor: C dT/dt = P - G (T - Ta), exact for the frame's mean power
+        c = kp[link, KP_TH_C]
+        g = kp[link, KP_TH_G]
+        if c > 0.0 and g > 0.0:
+            p = lst[link, LS_Q_CH] / frame
+            decay = math.exp(-frame * g / c)
+            t_inf = ambient + p / g
+            lst[link, LS_T_RES] = t_inf + (lst[link, LS_T_RES] - t_inf) * decay
+        lst[link, LS_Q_CH] = 0.0
+    if ss[SS_PQ_T] > 0.0:
+        ss[SS_REVERSE_W] = max(-ss[SS_PQ_P] / ss[SS_PQ_T], 0.0)
