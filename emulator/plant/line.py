@@ -173,8 +173,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         return
     _contactors(lp, lu, ls2, sp, ss, h)
     n = sp[SP_RATIO]
-    e = supply_emf(sp, harmonics, ss, t + 0.5 * h)
-    ss[SS_EMF] = e
+    e = supply_emf(sp, harmonics, ss, t + 0.5 * h)  # held over the step: its mean
     breaker = ss[SS_BREAKER] > 0.5
     lc_src = (sp[SP_L] + 0.5 * h * sp[SP_R]) / (n * n)  # c of Sherman-Morrison
     lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n)
@@ -184,7 +183,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     # converter voltages held over the step, and the rows of the active windings
     s_b = 0.0
     s_1 = 0.0
-    u_sec_est = ss[SS_UP] / n
+    u_sec_est = ss[SS_UP] / n  # at the start of the step
     for k in range(n_lc):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
@@ -246,16 +245,20 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         ls2[k, LS2_E_AC] += u * i_avg * h
         ls2[k, LS2_E_DC] += udc * i_dc * h
         ls2[k, LS2_E_LOSS] += (u - s * udc) * i_avg * h + p_sw * h
-        ls2[k, LS2_E_R] += r * 0.5 * (i_old * i_old + i_new * i_new) * h
+        ls2[k, LS2_E_R] += r * i_avg * i_avg * h  # consistent with the trapezoidal step
     # primary side
     ip_old = ss[SS_IP]
     ip_new = sum_new / n
     ss[SS_IP] = ip_new
     ip_avg = 0.5 * (ip_old + ip_new)
-    up = e - sp[SP_R] * ip_avg - sp[SP_L] * (ip_new - ip_old) / h
-    ss[SS_UP] = up
+    di_dt = (ip_new - ip_old) / h
+    up = e - sp[SP_R] * ip_avg - sp[SP_L] * di_dt  # mean over the step
+    # the sample at the end instant: the EMF there, the current there
+    e_end = supply_emf(sp, harmonics, ss, t + h)
+    ss[SS_EMF] = e_end
+    ss[SS_UP] = e_end - sp[SP_R] * ip_new - sp[SP_L] * di_dt
     ss[SS_E_SOURCE] += e * ip_avg * h
-    ss[SS_E_SOURCE_R] += sp[SP_R] * 0.5 * (ip_old * ip_old + ip_new * ip_new) * h
+    ss[SS_E_SOURCE_R] += sp[SP_R] * ip_avg * ip_avg * h
     theta = supply_phase(sp, t + 0.5 * h)
     c = math.cos(theta)
     sn = math.sin(theta)
@@ -319,7 +322,7 @@ def line_frame_start(ss, ls2, lst):
 
 @compiled
 def line_frame_end(frame, sp, ss, ls2, kp, lst, ambient):
-    """Frame means, the non-receptive line's reverse power, the brake resistors' heat."""
+    """Frame means and the brake resistors' heat (the stepper sets the reverse power)."""
     for k in range(ls2.shape[0]):
         ls2[k, LS2_IDC] /= frame
     for link in range(lst.shape[0]):
@@ -334,5 +337,13 @@ def line_frame_end(frame, sp, ss, ls2, kp, lst, ambient):
             t_inf = ambient + p / g
             lst[link, LS_T_RES] = t_inf + (lst[link, LS_T_RES] - t_inf) * decay
         lst[link, LS_Q_CH] = 0.0
-    if ss[SS_PQ_T] > 0.0:
-        ss[SS_REVERSE_W] = max(-ss[SS_PQ_P] / ss[SS_PQ_T], 0.0)
+
+
+#: EN 50163 / IEC 60850 supply voltages, rms V (REFERENCES.md, seen in IEC 60038 and a
+#: secondary table); U_max3 deliberately absent.
+SUPPLY_LEVELS: dict[float, dict[str, float]] = {
+    25000.0: {"U_min2": 17500.0, "U_min1": 19000.0, "U_n": 25000.0, "U_max1": 27500.0,
+              "U_max2": 29000.0},
+    15000.0: {"U_min2": 11000.0, "U_min1": 12000.0, "U_n": 15000.0, "U_max1": 17250.0,
+              "U_max2": 18000.0},
+}

@@ -22,6 +22,7 @@ from .kernel import (
     load_commands,
     load_line_commands,
 )
+from .line import SUPPLY_LEVELS
 from .machine import currents, magnetic_energy
 from .params import (
     ConverterParams,
@@ -105,6 +106,17 @@ class EnergyAccount:
     potential: float
     magnetic_stored: float
     kinetic_stored: float
+    source: float = 0.0  # delivered by the catenary EMF
+    source_resistance: float = 0.0
+    winding_resistance: float = 0.0  # transformer secondaries and precharge resistors
+    line_converter_loss: float = 0.0
+    line_converter_dc: float = 0.0  # delivered by the line converters to the links
+    line_inductive_stored: float = 0.0  # source and leakage inductances
+    link_capacitive_stored: float = 0.0
+    filter_stored: float = 0.0
+    chopper: float = 0.0
+    discharge: float = 0.0
+    filter_resistance: float = 0.0
 
 
 class Plant:
@@ -239,6 +251,7 @@ class Plant:
         self.ku = np.zeros((n_link, L.KU_N))
         self.i_link = np.zeros((n_link, 2))
         self._pq_ring = np.zeros((1, L.SS_PQ_IS - L.SS_PQ_T + 1))
+        self._pq_sum = np.zeros(L.SS_PQ_IS - L.SS_PQ_T + 1)
         ambient = params.train.ambient_temperature_k
         su = params.supply
         for i, (order, fraction, phase) in enumerate(su.harmonics[:L.N_HARMONICS]):
@@ -292,6 +305,7 @@ class Plant:
         periods = max(1, math.ceil(0.1 * su.frequency_hz))
         frames = max(1, round(periods / su.frequency_hz / params.frame_s))
         self._pq_ring = np.zeros((frames, L.SS_PQ_IS - L.SS_PQ_T + 1))
+        self._pq_sum = np.zeros(L.SS_PQ_IS - L.SS_PQ_T + 1)
 
     @property
     def line_side(self) -> bool:
@@ -362,7 +376,13 @@ class Plant:
                       self.iint, self.iu, self.ist, self.lst, self.tpar, self.tu, self.ts,
                       self.sp, self.harmonics, self.ss, self.lp, self.li, self.lu, self.ls2,
                       self.kp, self.ku, self.i_link)
-        self._pq_ring[self.frames % len(self._pq_ring)] = self.ss[L.SS_PQ_T:L.SS_PQ_IS + 1]
+        row = self.frames % len(self._pq_ring)
+        new = self.ss[L.SS_PQ_T:L.SS_PQ_IS + 1]
+        self._pq_sum += new - self._pq_ring[row]
+        self._pq_ring[row] = new
+        if self._pq_sum[0] > 0.0:
+            # a non-receptive line answers the mean reverse power over whole periods
+            self.ss[L.SS_REVERSE_W] = max(-self._pq_sum[1] / self._pq_sum[0], 0.0)
         self.frames += 1
         self.substeps += n_sub
         # integer nanoseconds: t_k = k T exactly for a constant frame, no drift
@@ -411,6 +431,75 @@ class Plant:
             raise CommandError("line commands must be finite (NaN or inf received)")
         if code == COMMAND_OUT_OF_RANGE:
             raise CommandError("modulation must lie within -1..1 and chopper duty within 0..1")
+
+    # --- the supply (used by scenarios: level steps, dips, neutral sections) -----------
+    def set_supply(self, *, voltage_rms_v: float | None = None,
+                   frequency_hz: float | None = None, phase_jump_rad: float = 0.0,
+                   live: bool | None = None, droop_v_per_w: float | None = None) -> None:
+        """Change the catenary now; the phase stays continuous across a frequency change.
+
+        voltage_rms_v: EMF behind the source impedance; live=False: a dead section
+        (neutral section, interruption); phase_jump_rad: added to the phase (the jump a
+        line shows on return after an interruption); droop_v_per_w: the EMF rise per
+        watt of reverse power of a non-receptive line (0: receptive).
+        """
+        if not self.line_side:
+            raise CommandError("this plant has no line side (ideal DC links)")
+        t = self.time_s
+        sp = self.sp
+        if frequency_hz is not None or phase_jump_rad:
+            self._finite("frequency", sp[L.SP_FREQUENCY] if frequency_hz is None
+                         else frequency_hz, 1.0, 100.0)
+            self._finite("phase jump", phase_jump_rad, -10.0, 10.0)
+            theta = sp[L.SP_PHASE_REF] + 2 * math.pi * sp[L.SP_FREQUENCY] * (t - sp[L.SP_T_REF])
+            sp[L.SP_PHASE_REF] = math.fmod(theta + phase_jump_rad, 2 * math.pi)
+            sp[L.SP_T_REF] = t
+            if frequency_hz is not None:
+                sp[L.SP_FREQUENCY] = frequency_hz
+        if voltage_rms_v is not None:
+            self._finite("supply voltage", voltage_rms_v, 0.0, 50e3)
+            sp[L.SP_AMPLITUDE] = voltage_rms_v * math.sqrt(2.0)
+        if live is not None:
+            sp[L.SP_LIVE] = 1.0 if live else 0.0
+        if droop_v_per_w is not None:
+            self._finite("droop", droop_v_per_w, 0.0, 10.0)
+            sp[L.SP_DROOP] = droop_v_per_w
+
+    def supply_level(self, name: str) -> float:
+        """An EN 50163 level (U_min2, U_min1, U_n, U_max1, U_max2) of this system, V rms."""
+        levels = SUPPLY_LEVELS.get(self.params.supply.nominal_voltage_v)
+        if levels is None or name not in levels:
+            raise CommandError(f"no EN 50163 level {name!r} for a "
+                               f"{self.params.supply.nominal_voltage_v:g} V system")
+        return levels[name]
+
+    def power_quality(self) -> dict[str, float]:
+        """Pantograph power quality over the last whole line periods (>= 100 ms).
+
+        Fundamentals by Fourier integrals over the window; true power factor P/(U I),
+        displacement factor cos(phi_u - phi_i) of the fundamentals, current THD.
+        """
+        t_w, p, u2, i2, uc, us, ic, is_ = self._pq_ring.sum(axis=0)
+        if t_w <= 0:
+            return {}
+        u_rms, i_rms = math.sqrt(u2 / t_w), math.sqrt(i2 / t_w)
+        # u = A sin(theta + phi): int u sin = A cos(phi) T/2, int u cos = A sin(phi) T/2
+        au, phi_u = math.hypot(uc, us) * 2 / t_w, math.atan2(uc, us)
+        ai, phi_i = math.hypot(ic, is_) * 2 / t_w, math.atan2(ic, is_)
+        i1_rms = ai / math.sqrt(2)
+        p_w = p / t_w
+        s_va = u_rms * i_rms
+        return {
+            "voltage_rms_v": u_rms, "current_rms_a": i_rms, "active_power_w": p_w,
+            "apparent_power_va": s_va,
+            "reactive_power_var": 0.5 * au * ai * math.sin(phi_u - phi_i),
+            "power_factor": p_w / s_va if s_va > 0 else 0.0,
+            "displacement_factor": math.cos(phi_u - phi_i) if ai > 0 else 0.0,
+            "current_thd": (math.sqrt(max(i_rms**2 - i1_rms**2, 0.0)) / i1_rms
+                            if i1_rms > 1e-9 else 0.0),
+            "voltage_fundamental_v": au, "voltage_phase_rad": phi_u,
+            "current_fundamental_a": ai, "current_phase_rad": phi_i, "window_s": t_w,
+        }
 
     # --- inputs from the track and the driver -----------------------------------------
     def set_gradient(self, gradient: float) -> None:
@@ -541,7 +630,29 @@ class Plant:
                 kinetic += 0.5 * j_eq * (ms[m, L.MS_OMEGA_M] / gear) ** 2
             elif self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_FREE:
                 kinetic += 0.5 * self.mpar[m, L.MP_J_ROTOR] * ms[m, L.MS_OMEGA_M] ** 2
+        line = {}
+        if self.line_side:
+            n = self.sp[L.SP_RATIO]
+            lst, ls2, kp = self.lst, self.ls2, self.kp
+            line = dict(
+                source=float(self.ss[L.SS_E_SOURCE]),
+                source_resistance=float(self.ss[L.SS_E_SOURCE_R]),
+                winding_resistance=float(ls2[:, L.LS2_E_R].sum()),
+                line_converter_loss=float(ls2[:, L.LS2_E_LOSS].sum()),
+                line_converter_dc=float(ls2[:, L.LS2_E_DC].sum()),
+                line_inductive_stored=float(
+                    0.5 * self.sp[L.SP_L] * (ls2[:, L.LS2_I].sum() / n) ** 2
+                    + 0.5 * (self.lp[:, L.LP_L] * ls2[:, L.LS2_I] ** 2).sum()),
+                link_capacitive_stored=float((0.5 * kp[:, L.KP_C] * lst[:, L.LS_UDC] ** 2)
+                                             .sum()),
+                filter_stored=float((0.5 * kp[:, L.KP_LF] * lst[:, L.LS_IF] ** 2
+                                     + 0.5 * kp[:, L.KP_CF] * lst[:, L.LS_UCF] ** 2).sum()),
+                chopper=float(lst[:, L.LS_E_CH].sum()),
+                discharge=float(lst[:, L.LS_E_DIS].sum()),
+                filter_resistance=float(lst[:, L.LS_E_RF].sum()),
+            )
         return EnergyAccount(
+            **line,
             dc_link_in=float(ist[:, L.IS_E_DC].sum()),
             semiconductor_conduction=float(ist[:, L.IS_E_COND].sum()),
             semiconductor_switching=float(ist[:, L.IS_E_SW].sum()),
