@@ -42,6 +42,8 @@ def _cmd_demo(args: argparse.Namespace) -> int:
         ("final speed", f"{s.final_speed_kmh:.2f} km/h"),
         ("energy drawn from the DC links", f"{s.energy_drawn_kwh:.2f} kWh"),
         ("energy regenerated into the DC links", f"{s.energy_regenerated_kwh:.2f} kWh"),
+        ("energy from the catenary", f"{s.catenary_energy_kwh:.2f} kWh"),
+        ("energy into the brake resistors", f"{s.brake_resistor_energy_kwh:.2f} kWh"),
         ("hottest stator winding", f"{s.max_motor_temperature_c:.1f} °C"),
         ("wall time", f"{s.wall_time_s:.1f} s"),
         ("real-time factor", f"{s.realtime_factor:.1f}x"),
@@ -140,7 +142,8 @@ def _cmd_serve(args: argparse.Namespace) -> int:
 
         rig = Rig(params, link, mode=args.mode, period_s=args.period_ms / 1e3,
                   command_delay=args.command_delay, watchdog_frames=args.watchdog_frames,
-                  seed=args.seed, clock=MonotonicClock(spin_ns=round(args.spin_us * 1e3)))
+                  seed=args.seed, clock=MonotonicClock(spin_ns=round(args.spin_us * 1e3)),
+                  ideal_dc_links=args.ideal_dc_links)
     except (LinkError, RigError) as exc:
         console.print(f"[red]error:[/red] {exc}")
         return 2
@@ -177,6 +180,12 @@ def _cmd_serve(args: argparse.Namespace) -> int:
         with open(args.report_json, "w") as fh:
             json.dump(report, fh, indent=1)
     t = report["timing"]
+    pq = report["power_quality"]
+    if pq:
+        console.print(f"pantograph: {pq['voltage_rms_v']:.0f} V rms, {pq['current_rms_a']:.1f} A "
+                      f"rms, {pq['active_power_w'] / 1e3:.0f} kW, power factor "
+                      f"{pq['power_factor']:.3f} (displacement {pq['displacement_factor']:.3f}), "
+                      f"current THD {100 * pq['current_thd']:.1f} %")
     console.print(f"{report['frames']} frames, plant time {report['plant_time_s']:.3f} s; "
                   f"link: {report['link']}; lateness median {t['lateness_us_median']:.1f} us, "
                   f"p99 {t['lateness_us_p99']:.1f} us, late frames {t['late_frames']}, "
@@ -220,6 +229,9 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--frames", type=int, default=None, help="stop after N frames")
     serve.add_argument("--duration", type=float, default=None, help="stop after S seconds "
                        "of plant time")
+    serve.add_argument("--ideal-dc-links", action="store_true",
+                       help="hold the DC links at their nominal voltage, no line side "
+                       "(motor-side studies)")
     serve.add_argument("--allow-remote", action="store_true",
                        help="let UDP bind or talk beyond loopback")
     serve.add_argument("--report-json", default=None, help="write the run's counters here")

@@ -31,6 +31,8 @@ class DemoSummary:
     energy_regenerated_kwh: float
     final_speed_kmh: float
     max_motor_temperature_c: float
+    catenary_energy_kwh: float = 0.0
+    brake_resistor_energy_kwh: float = 0.0
 
     @property
     def realtime_factor(self) -> float:
@@ -111,6 +113,8 @@ def run_open_loop_demo(params: TrainsetParams, target_kmh: float = 80.0,
             progress(plant.time_s, v * 3.6, phase)
     wall = time.perf_counter() - t_wall
     temps = plant.read("motor.stator_temperature_k")
+    energy = plant.energy()
     return DemoSummary(plant.time_s, wall, plant.read("train.position_m"), top * 3.6,
                        drawn / 3.6e6, regenerated / 3.6e6, plant.read("train.speed_mps") * 3.6,
-                       float(np.max(temps)) - 273.15)
+                       float(np.max(temps)) - 273.15, energy.source / 3.6e6,
+                       energy.chopper / 3.6e6)

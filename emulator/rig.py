@@ -298,4 +298,5 @@ class Rig:
                               "rx_overflow": self.link.stats.rx_overflow,
                               "foreign_dropped": self.link.stats.foreign_dropped,
                               "framing": vars(self.link.stats.framing)},
-                "timing": self.stats.summary()}
+                "timing": self.stats.summary(),
+                "power_quality": self.plant.power_quality() if self.plant.line_side else {}}
