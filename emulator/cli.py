@@ -18,39 +18,73 @@ console = Console(stderr=True)
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
-    from emulator.demo import run_open_loop_demo
+    import asyncio
+
+    from emulator.controller.events import NAMES
+    from emulator.demo import run_reference_demo
+    from emulator.profile import resolve_profile
     from emulator.warmup import warm_up
 
-    params = load_trainset(args.profile)
+    profile = resolve_profile(args.profile)
+    params = load_trainset(profile)
     console.print(f"[bold]railrig demo[/bold]: {params.name}")
     warm_up(params, say=console.print)
-    console.print("Open-loop run (no controller yet): accelerate to "
-                  f"{args.target_kmh:g} km/h, coast, brake electrically, stop.")
+    where = "in this process" if args.in_process else "as a separate process over UDP"
+    console.print(f"Reference controller {where}; lockstep. The train switches on, "
+                  f"accelerates to {args.target_kmh:g} km/h, cruises, coasts and brakes to a "
+                  f"stop at {args.stop_at_m:g} m.")
 
-    def progress(t: float, kmh: float, phase: str) -> None:
-        if args.verbose:
-            console.print(f"  t={t:7.1f} s  v={kmh:6.1f} km/h  {phase}")
+    def progress(t: float, kmh: float, x: float, phase: str) -> None:
+        console.print(f"  t={t:6.1f} s  v={kmh:6.1f} km/h  x={x:7.0f} m  {phase}")
 
-    s = run_open_loop_demo(params, target_kmh=args.target_kmh, progress=progress)
-    table = Table(title="Demo run (open loop, as fast as possible)")
+    s = asyncio.run(run_reference_demo(profile, in_process=args.in_process,
+                                       target_kmh=args.target_kmh, stop_at_m=args.stop_at_m,
+                                       progress=progress))
+    table = Table(title="Demo run (reference controller, lockstep)")
     table.add_column("quantity")
     table.add_column("value", justify="right")
     for name, value in [
+        ("completed", "yes" if s.completed else "no"),
         ("plant time", f"{s.plant_time_s:.1f} s"),
         ("distance", f"{s.distance_m:.0f} m"),
+        ("stop position error", f"{s.stop_error_m:+.1f} m"),
         ("top speed", f"{s.top_speed_kmh:.1f} km/h"),
-        ("final speed", f"{s.final_speed_kmh:.2f} km/h"),
-        ("energy drawn from the DC links", f"{s.energy_drawn_kwh:.2f} kWh"),
-        ("energy regenerated into the DC links", f"{s.energy_regenerated_kwh:.2f} kWh"),
-        ("energy from the catenary", f"{s.catenary_energy_kwh:.2f} kWh"),
-        ("energy into the brake resistors", f"{s.brake_resistor_energy_kwh:.2f} kWh"),
-        ("hottest stator winding", f"{s.max_motor_temperature_c:.1f} °C"),
+        ("energy drawn from the catenary", f"{s.catenary_drawn_kwh:.2f} kWh"),
+        ("energy regenerated into the catenary", f"{s.catenary_returned_kwh:.2f} kWh"),
+        ("energy into the brake resistors", f"{s.brake_resistor_kwh:.2f} kWh"),
+        ("protective trips", ", ".join(NAMES[c] for c in s.trips) or "none"),
+        ("events reported", ", ".join(str(c) for c in s.events) or "none"),
         ("wall time", f"{s.wall_time_s:.1f} s"),
         ("real-time factor", f"{s.realtime_factor:.1f}x"),
     ]:
         table.add_row(name, value)
     Console().print(table)
-    return 0 if s.final_speed_kmh == 0.0 else 1
+    return 0 if s.completed and not s.trips else 1
+
+
+def _cmd_controller(args: argparse.Namespace) -> int:
+    import asyncio
+    import signal
+
+    from emulator.controller.process import serve_controller
+    from emulator.link import LinkError
+    from emulator.profile import resolve_profile
+
+    async def run() -> None:
+        stop = asyncio.Event()
+        loop = asyncio.get_running_loop()
+        for sig in (signal.SIGINT, signal.SIGTERM):
+            loop.add_signal_handler(sig, stop.set)
+        await serve_controller(resolve_profile(args.profile), args.link,
+                               allow_remote=args.allow_remote,
+                               idle_timeout_s=args.idle_timeout, stop=stop)
+
+    try:
+        asyncio.run(run())
+    except LinkError as exc:
+        console.print(f"[red]link error:[/red] {exc}")
+        return 2
+    return 0
 
 
 def _cmd_bench(args: argparse.Namespace) -> int:
@@ -200,13 +234,24 @@ def build_parser() -> argparse.ArgumentParser:
         "firmware without a train.")
     sub = parser.add_subparsers(dest="command", required=True)
 
-    demo = sub.add_parser("demo", help="run the demo trainset headless and print a summary")
+    demo = sub.add_parser("demo", help="run the demo trainset with the reference controller")
     demo.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     demo.add_argument("--target-kmh", type=float, default=80.0, help="speed to reach")
+    demo.add_argument("--stop-at-m", type=float, default=2000.0, help="where to stop")
     demo.add_argument("--headless", action="store_true",
                       help="no dashboard (the only mode until the dashboard lands)")
-    demo.add_argument("-v", "--verbose", action="store_true", help="print progress")
+    demo.add_argument("--in-process", action="store_true",
+                      help="run the controller in this process (faster, deterministic)")
     demo.set_defaults(func=_cmd_demo)
+
+    ctl = sub.add_parser("controller", help="run the reference controller on a link")
+    ctl.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
+    ctl.add_argument("--link", required=True, help="udp://HOST:PORT?peer=HOST:PORT or "
+                     "serial:///dev/ttyX?baud=N")
+    ctl.add_argument("--allow-remote", action="store_true", help="allow non-loopback UDP")
+    ctl.add_argument("--idle-timeout", type=float, default=30.0,
+                     help="stop after this many seconds without a telegram")
+    ctl.set_defaults(func=_cmd_controller)
 
     serve = sub.add_parser("serve", help="run the plant behind a controller link")
     serve.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")

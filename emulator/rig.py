@@ -107,6 +107,7 @@ class Rig:
             np.array([s.hi for s in sm.commands]))
         self.rng = np.random.default_rng(seed)
         self.driver = DriverDemand()
+        self.program = None  # a driver program: update(rig) after every frame
         self.sampler = MeasurementSampler(self.plant, sm, params.sensors, self.rng)
         self.mapper = CommandMapper(self.plant, sm)
         self.health = LinkHealth()
@@ -120,6 +121,8 @@ class Rig:
         self._flags = 0
         self._last_seq = -1
         self._last_used = -1
+        self._started = False
+        self._sent_frame = -1  # the frame whose measurement went out last
         self._last_payload = b""
         self.repeats = 0  # lockstep: measurements said again to a silent controller
         self._y = np.zeros(len(sm.measurements))
@@ -131,6 +134,7 @@ class Rig:
                                     self._y)
         self.link.send(payload)
         self._last_payload = payload
+        self._sent_frame = k
         self._flags = 0
 
     def _receive(self, payloads: list[bytes]) -> None:
@@ -197,6 +201,8 @@ class Rig:
     def _step(self, period_us: int) -> None:
         commands = self.mapper.commands(self._held, gates_allowed=not self.tripped)
         self.plant.advance(commands, period_us / 1e6)
+        if self.program is not None:
+            self.program.update(self)  # the train's demands for the next measurement
         self._y = self.sampler.sample(period_us / 1e6, self.driver)
         self.frame += 1
 
@@ -210,8 +216,10 @@ class Rig:
 
     # --- pacing -----------------------------------------------------------------------
     async def run(self, frames: int | None = None, stop: asyncio.Event | None = None) -> None:
-        """Run frames until the count is reached or stop is set."""
-        self.start()
+        """Run frames until the count is reached or stop is set; may be called again."""
+        if not self._started:
+            self.start()
+            self._started = True
         gc.collect()
         gc.freeze()  # warm-up objects out of the collector's way (DESIGN.md timing facts)
         try:
@@ -257,7 +265,8 @@ class Rig:
 
     async def _run_lockstep(self, frames: int | None, stop: asyncio.Event | None) -> None:
         """Each telegram received paces one frame: the controller is the clock."""
-        self._send_measurement(self.frame)
+        if self._sent_frame != self.frame:  # not when resuming a run already under way
+            self._send_measurement(self.frame)
         self.stats.restart_cpu_window()
         while not self._done(frames, stop):
             # poll briefly before blocking: a sleeping process wakes late on some machines

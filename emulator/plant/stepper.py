@@ -614,6 +614,10 @@ class Plant:
         return currents(ps, pr, self.mpar[motor, L.MP_LLS] + lm,
                         self.mpar[motor, L.MP_LLR] + lm, lm)
 
+    def energy_from_source(self) -> float:
+        """Net energy the catenary EMF delivered since the start, J (cheap to call)."""
+        return float(self.ss[L.SS_E_SOURCE])
+
     def energy(self) -> EnergyAccount:
         """Energy bookkeeping since the start, for balance checks and reports."""
         ms, ist, ts = self.ms, self.ist, self.ts

@@ -1,0 +1,29 @@
+"""Event codes the reference controller reports in ``tcu.event_code``."""
+
+SEQUENCE_TIMEOUT = 1
+INVERTER_OVERCURRENT = 10
+LINK_OVERVOLTAGE = 20
+LINK_UNDERVOLTAGE = 21
+OVERSPEED = 30
+MOTOR_TEMPERATURE_DERATING = 40
+MOTOR_OVERTEMPERATURE = 41
+LINK_WATCHDOG = 50
+LINE_UNDERVOLTAGE = 60
+WHEEL_SLIP = 70
+
+NAMES = {
+    SEQUENCE_TIMEOUT: "switch-on sequence timed out",
+    INVERTER_OVERCURRENT: "inverter overcurrent: gates blocked",
+    LINK_OVERVOLTAGE: "DC-link overvoltage: line side tripped",
+    LINK_UNDERVOLTAGE: "DC-link undervoltage: traction blocked",
+    OVERSPEED: "overspeed: traction cut",
+    MOTOR_TEMPERATURE_DERATING: "motor temperature: torque derated",
+    MOTOR_OVERTEMPERATURE: "motor overtemperature: traction cut",
+    LINK_WATCHDOG: "the rig reported a link watchdog trip",
+    LINE_UNDERVOLTAGE: "line voltage below U_min2",
+    WHEEL_SLIP: "wheel slip or slide: torque reduced",
+}
+
+#: events that are protective trips (a demo run must not see them)
+TRIPS = {INVERTER_OVERCURRENT, LINK_OVERVOLTAGE, OVERSPEED, MOTOR_OVERTEMPERATURE,
+         SEQUENCE_TIMEOUT}

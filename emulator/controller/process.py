@@ -1,0 +1,44 @@
+"""``railrig controller``: the reference controller as a process of its own.
+
+It opens a link (UDP or serial, the same URLs as the rig), answers every measurement
+telegram with a command telegram, and never touches the plant: the wire protocol is all
+it knows, as a board would.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import logging
+
+from emulator.link import open_link
+from emulator.signals import build_signal_map
+
+from .config import config_from_profile
+from .tcu import ReferenceController
+
+log = logging.getLogger(__name__)
+
+
+async def serve_controller(profile, link_url: str, *, allow_remote: bool = False,
+                           idle_timeout_s: float = 30.0, stop: asyncio.Event | None = None
+                           ) -> ReferenceController:
+    """Answer telegrams until stopped or silent for idle_timeout_s."""
+    from emulator.profile import load_trainset
+
+    signal_map = build_signal_map(load_trainset(profile)).as_dict()
+    tcu = ReferenceController(config_from_profile(profile), signal_map)
+    link = open_link(link_url, allow_remote=allow_remote)
+    await link.open()
+    try:
+        while stop is None or not stop.is_set():
+            if not await link.wait(idle_timeout_s):
+                log.info("rig silent for %.0f s: controller stops", idle_timeout_s)
+                break
+            for payload in link.take():
+                try:
+                    link.send(tcu.answer(payload))
+                except Exception as exc:  # a telegram we cannot read: count, go on
+                    log.warning("unreadable measurement telegram: %s", exc)
+    finally:
+        link.close()
+    return tcu

@@ -1,0 +1,274 @@
+"""The reference traction controller: one measurement telegram in, one command out.
+
+It speaks only the wire protocol: it reads values by their names in the signal map and
+answers with a command telegram, as a board would. Per period, in this order:
+protections -> switch-on sequence -> train demand (modes, jerk limit, tractive-effort
+curve) -> adhesion control -> motor control per inverter -> line-converter control per
+link (with the motors' power as feedforward) -> train-interface replies.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+
+import msgpack
+
+from . import events
+from .adhesion import AdhesionControl
+from .config import ControllerConfig
+from .line_converter import LinkControl, power_limits
+from .motor_scalar import ScalarControl
+from .pll import SogiPll
+from .sequence import RUNNING, SwitchOnSequence
+
+GEAR_EFFICIENCY = 0.975  # design value of the TCU's effort estimate
+# motors and inverters at full power, with margin: what the line converters are rated for
+DRIVE_EFFICIENCY = 0.85
+OVERLOAD = 1.4  # starting torque / rated torque
+POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
+FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
+
+
+class ReferenceController:
+    """Reads telegrams by name, runs the control, writes telegrams by name."""
+
+    def __init__(self, cfg: ControllerConfig, signal_map: dict) -> None:
+        self.cfg = cfg
+        self.version = signal_map["protocol_version"]
+        self.m_index = {s["name"]: i for i, s in enumerate(signal_map["measurements"])}
+        self.m_scale = [s["scale"] for s in signal_map["measurements"]]
+        self.c_names = [s["name"] for s in signal_map["commands"]]
+        self.c_scale = [s["scale"] for s in signal_map["commands"]]
+        self._c_inv_scale = [1.0 / sc for sc in self.c_scale]
+        self._out = [0.0] * len(self.c_names)
+        T = cfg.period_s
+        self.T = T
+        n_inv = len(cfg.inverter_names)
+        self.motors = [[f"{inv}.m{j + 1}" for j in range(n)]
+                       for inv, n in zip(cfg.inverter_names, cfg.n_motors_per_inverter,
+                                         strict=True)]
+        axle_inverter = [k for k, ms in enumerate(self.motors) for _ in ms]
+        self.scalar = [ScalarControl(cfg, len(ms)) for ms in self.motors]
+        self.adhesion = AdhesionControl(T, axle_inverter, n_inv)
+        n_motors = len(axle_inverter)
+        self.p_rated_link = [  # the motors' maximum power plus the drive's losses
+            POWER_OVERLOAD * cfg.rated_power_w / DRIVE_EFFICIENCY * sum(
+                n for n, link in zip(cfg.n_motors_per_inverter, cfg.inverter_links, strict=True)
+                if link == i) for i in range(len(cfg.link_names))]
+        self.links = [LinkControl(cfg, cfg.n_line_converters_per_link[i], self.p_rated_link[i])
+                      for i in range(len(cfg.link_names))]
+        self.pll = SogiPll(cfg.line_frequency_hz, T)
+        charged = 0.85 * cfg.secondary_v * math.sqrt(2) if cfg.line_side else 0.0
+        self.sequence = SwitchOnSequence(T, charged)
+        self.t_max_motor = OVERLOAD * cfg.rated_torque_nm
+        self.p_max_motor = POWER_OVERLOAD * cfg.rated_power_w
+        self.n_motors = n_motors
+        self.effort_n = 0.0  # jerk-limited effort reference of the whole train
+        self.speed_integral = 0.0
+        self.enabled_for = [0.0] * n_inv
+        self.block_until = [0.0] * n_inv
+        self.t = 0.0
+        self.event = 0
+        self.events: Counter = Counter()
+        self.achieved_n = 0.0
+        self.available_n = 0.0
+        self._index_signals(cfg)
+
+    # --- telegrams ----------------------------------------------------------------------
+    def answer(self, payload: bytes) -> bytes:
+        """The command telegram for a measurement telegram."""
+        m = msgpack.unpackb(payload)
+        seq, period_us, flags = m[1], m[3], m[4]
+        y = [b * sc for b, sc in zip(m[5:], self.m_scale, strict=True)]
+        out = self._out
+        self.step(y, flags, period_us * 1e-6, out)
+        wire = [round(v * k) for v, k in zip(out, self._c_inv_scale, strict=True)]
+        return msgpack.packb([self.version, seq, 0, 0, 0, *wire])
+
+    def _index_signals(self, cfg: ControllerConfig) -> None:
+        """Positions of every value the control reads and writes (looked up once)."""
+        mi = self.m_index.__getitem__
+        ci = {n: i for i, n in enumerate(self.c_names)}.__getitem__
+        self.ix_link_v = [mi(f"{n}.voltage_v") for n in cfg.link_names]
+        self.ix_mode, self.ix_demand = mi("train.mode"), mi("train.effort_demand")
+        self.ix_direction = mi("train.direction")
+        self.ix_neutral = mi("train.neutral_section_ahead")
+        self.ix_regen = mi("train.regeneration_allowed")
+        self.ix_cruise = mi("train.cruise_speed_kmh")
+        self.ix_speed = [mi(f"{mo}.speed_rad_s") for ms in self.motors for mo in ms]
+        self.ix_temp = [mi(f"{mo}.stator_temperature_degc") for ms in self.motors for mo in ms]
+        self.ix_phase = [[mi(f"{inv}.current_{x}_a") for x in "abc"]
+                         for inv in cfg.inverter_names]
+        self.ox_duty = [[ci(f"{inv}.duty_{x}") for x in "abc"] for inv in cfg.inverter_names]
+        self.ox_gates = [ci(f"{inv}.gates_enabled") for inv in cfg.inverter_names]
+        self.ox_achieved, self.ox_available = ci("tcu.achieved_effort_kn"), ci(
+            "tcu.available_effort_kn")
+        self.ox_status, self.ox_event = ci("tcu.status"), ci("tcu.event_code")
+        if cfg.line_side:
+            names = cfg.line_converter_names
+            self.ix_line_v, self.ix_breaker = mi("line.voltage_v"), mi("line.breaker_closed")
+            self.ix_ovp = [mi(f"{n}.overvoltage") for n in cfg.link_names]
+            self.ix_pre = [mi(f"{n}.precharge_closed") for n in names]
+            self.ix_line = [mi(f"{n}.line_contactor_closed") for n in names]
+            self.ox_breaker = ci("line.breaker_close")
+            self.ox_pre = [ci(f"{n}.precharge_close") for n in names]
+            self.ox_line = [ci(f"{n}.line_contactor_close") for n in names]
+            by_link = [[k for k, lk in enumerate(cfg.line_converter_links) if lk == i]
+                       for i in range(len(cfg.link_names))]
+            self.ix_isec = [[mi(f"{names[k]}.current_a") for k in ks] for ks in by_link]
+            self.ox_mod = [[ci(f"{names[k]}.modulation") for k in ks] for ks in by_link]
+            self.ox_lc_gates = [[ci(f"{names[k]}.gates_enabled") for k in ks] for ks in by_link]
+            self.ox_chopper = [ci(f"{n}.chopper_duty") for n in cfg.link_names]
+
+    def _raise(self, code: int) -> None:
+        self.event = code
+        self.events[code] += 1
+
+    # --- one period ---------------------------------------------------------------------
+    def step(self, y: list[float], flags: int, period_s: float, out: list[float]) -> None:
+        """The control laws: y the measurements in SI units (map order), out the commands."""
+        cfg = self.cfg
+        self.t += period_s
+        if flags & 1:
+            self._raise(events.LINK_WATCHDOG)
+        u_links = [y[i] for i in self.ix_link_v]
+        u_link_min = min(u_links)
+        mode = round(y[self.ix_mode])
+        demand = y[self.ix_demand]
+        direction = y[self.ix_direction] or 1.0
+        neutral = y[self.ix_neutral] > 0.5
+        regen_ok = y[self.ix_regen] > 0.5
+        cruise_mps = y[self.ix_cruise] / 3.6
+
+        # --- line side: PLL, protections, sequence ----------------------------------
+        line_rms = cfg.line_nominal_v
+        theta = 0.0
+        if cfg.line_side:
+            theta = self.pll.update(y[self.ix_line_v])
+            line_rms = self.pll.amplitude / math.sqrt(2)
+            if any(y[i] > 0.5 for i in self.ix_ovp):
+                self._raise(events.LINK_OVERVOLTAGE)
+                self.sequence.trip(events.LINK_OVERVOLTAGE)
+            pre = all(y[i] > 0.5 for i in self.ix_pre)
+            line = all(y[i] > 0.5 for i in self.ix_line)
+            sw = self.sequence.step(y[self.ix_breaker] > 0.5, pre, line, u_link_min, neutral,
+                                    enabled=True)
+            running = self.sequence.state == RUNNING
+            out[self.ox_breaker] = float(sw.breaker)
+            for i in self.ox_pre:
+                out[i] = float(sw.precharge)
+            for i in self.ox_line:
+                out[i] = float(sw.line_contactor)
+        else:
+            running = True
+
+        # --- train speed, effort demand, limits ---------------------------------------
+        r, gear = cfg.wheel_radius_m, cfg.gear_ratio
+        speeds = [y[i] for i in self.ix_speed]
+        k_wheel = r / gear
+        wheel_mps = [w * k_wheel for w in speeds]
+        v = sum(wheel_mps) / len(wheel_mps)
+        f_max = self.n_motors * self._motor_torque_limit(abs(v)) * gear * GEAR_EFFICIENCY / r
+        self.available_n = f_max if running else 0.0
+        if mode == 1:
+            target = max(demand, 0.0) * f_max
+        elif mode == 2:
+            err = cruise_mps - abs(v)
+            kp = cfg.mass_kg * 0.5  # N per m/s: about 2 s to close the gap
+            self.speed_integral = min(max(self.speed_integral + kp * 0.1 * err * period_s,
+                                          -f_max), f_max)
+            target = min(max(kp * err + self.speed_integral, -f_max), f_max)
+        elif mode == 4:
+            target = -abs(demand) * f_max
+        else:
+            target = 0.0
+            self.speed_integral = 0.0
+        if abs(v) > 1.05 * cfg.max_speed_mps and target > 0:
+            self._raise(events.OVERSPEED)
+            target = 0.0
+        hottest = max(y[i] for i in self.ix_temp)
+        derate = min(max((180.0 - hottest) / 20.0, 0.0), 1.0)  # 160 -> 180 degC
+        if derate < 1.0:
+            self._raise(events.MOTOR_TEMPERATURE_DERATING if derate > 0
+                        else events.MOTOR_OVERTEMPERATURE)
+        target *= derate
+        if not running or (cfg.line_side and neutral):
+            target = 0.0
+        jerk = f_max / 1.5 * period_s  # full effort in 1.5 s (comfort: common practice)
+        self.effort_n += min(max(target - self.effort_n, -jerk), jerk)
+        braking = self.effort_n < 0
+
+        # --- adhesion and motor control per inverter ----------------------------------
+        factors = self.adhesion.step(wheel_mps, braking)
+        torque_motor = self.effort_n * r / (gear * GEAR_EFFICIENCY * self.n_motors)
+        p_links = [0.0] * len(cfg.link_names)
+        achieved = 0.0
+        first = 0
+        u_min_run = 0.6 * cfg.link_nominal_v
+        for k, n_mot in enumerate(cfg.n_motors_per_inverter):
+            link = cfg.inverter_links[k]
+            u_d = u_links[link]
+            ia, ib, ic = (y[i] for i in self.ix_phase[k])
+            if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
+                self._raise(events.INVERTER_OVERCURRENT)
+                self.block_until[k] = self.t + 0.1
+            if factors[k] < 0.95:
+                self.event = events.WHEEL_SLIP
+            demanded = mode in (1, 2, 4)
+            if running and demanded and u_d <= u_min_run:
+                self._raise(events.LINK_UNDERVOLTAGE)
+            active = (running and demanded and self.t >= self.block_until[k] and u_d > u_min_run
+                      and (self.effort_n != 0.0 or mode == 2))
+            torque = direction * torque_motor * factors[k]
+            motor_speed = sum(speeds[first:first + n_mot]) / n_mot
+            first += n_mot
+            duty_ix = self.ox_duty[k]
+            if active:
+                self.enabled_for[k] += period_s
+                duties, _ = self.scalar[k].step(torque, motor_speed, u_d)
+                ramp = min(self.enabled_for[k] / FLUX_RAMP_S, 1.0)
+                for i, d in zip(duty_ix, duties, strict=True):
+                    out[i] = 0.5 + ramp * (d - 0.5)
+                p_links[link] += torque * motor_speed * n_mot
+                achieved += torque * n_mot
+            else:
+                self.enabled_for[k] = 0.0
+                for i in duty_ix:
+                    out[i] = 0.5
+            out[self.ox_gates[k]] = float(active)
+        self.achieved_n = achieved * gear * GEAR_EFFICIENCY / r * direction
+
+        # --- line converters ----------------------------------------------------------
+        if cfg.line_side:
+            if line_rms < cfg.line_u_min2_v and not neutral and running:
+                self._raise(events.LINE_UNDERVOLTAGE)
+            u_sec_peak = self.pll.amplitude / cfg.transformer_ratio
+            for i, link in enumerate(self.links):
+                p_min, p_max = power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i])
+                if running:
+                    i_sec = [y[j] for j in self.ix_isec[i]]
+                    mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,
+                                              p_links[i] / DRIVE_EFFICIENCY, p_min, p_max)
+                else:
+                    link.reset()
+                    mods = [0.0] * len(self.ox_mod[i])
+                    chopper = min(max((u_links[i] - cfg.link_nominal_v - 150.0) / 150.0, 0), 1)
+                for j, mod in zip(self.ox_mod[i], mods, strict=True):
+                    out[j] = mod
+                for j in self.ox_lc_gates[i]:
+                    out[j] = float(running)
+                out[self.ox_chopper[i]] = chopper
+        out[self.ox_achieved] = self.achieved_n / 1e3
+        out[self.ox_available] = self.available_n / 1e3
+        out[self.ox_status] = float(self.sequence.state)
+        out[self.ox_event] = float(self.event)
+
+    def _axles(self, inverter: int) -> range:
+        first = sum(len(ms) for ms in self.motors[:inverter])
+        return range(first, first + len(self.motors[inverter]))
+
+    def _motor_torque_limit(self, v_mps: float) -> float:
+        """Tractive-effort curve per motor: constant torque, then constant power, N m."""
+        w_motor = max(v_mps / self.cfg.wheel_radius_m * self.cfg.gear_ratio, 1e-3)
+        return min(self.t_max_motor, self.p_max_motor / w_motor)

@@ -1,0 +1,33 @@
+"""Helpers: the reference controller in the rig's process, through telegrams."""
+
+from __future__ import annotations
+
+import asyncio
+import itertools
+
+import pytest
+
+from emulator.controller.config import config_from_profile
+from emulator.controller.inprocess import attach
+from emulator.controller.tcu import ReferenceController
+from emulator.link import open_link
+from emulator.profile import PROFILES_DIR, load_trainset
+from emulator.rig import Rig
+
+TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
+_names = itertools.count()
+
+
+async def rig_with_controller(**rig_kw) -> tuple[Rig, ReferenceController]:
+    name = f"ctl{next(_names)}"
+    link = open_link(f"loop://{name}")
+    await link.open()
+    rig = Rig(load_trainset(TRAINSET), link, mode="lockstep", **rig_kw)
+    tcu = ReferenceController(config_from_profile(TRAINSET), rig.signal_map.as_dict())
+    await attach(name, tcu.answer)
+    return rig, tcu
+
+
+@pytest.fixture
+def run():
+    return asyncio.run

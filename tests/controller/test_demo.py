@@ -1,0 +1,33 @@
+"""The demo run with the reference controller, in lockstep.
+
+Checks from the issue: reaches the target speed, stops at the target position within a
+stated tolerance (5 m), no protective trip. Lockstep is deterministic: the controller in
+its own process over UDP gives the same run as in the rig's process.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from emulator.demo import run_reference_demo
+
+from .conftest import TRAINSET
+
+
+def test_demo_reaches_speed_and_stops_on_the_mark(run) -> None:
+    s = run(run_reference_demo(TRAINSET, in_process=True, target_kmh=60.0, stop_at_m=1200.0))
+    assert s.completed
+    assert s.top_speed_kmh >= 60.0
+    assert abs(s.stop_error_m) <= 5.0
+    assert s.trips == ()
+    assert s.catenary_returned_kwh > 0.3 * s.catenary_drawn_kwh  # it regenerated
+
+
+def test_controller_over_udp_gives_the_same_run(run) -> None:
+    kw = dict(target_kmh=30.0, stop_at_m=250.0, cruise_s=2.0, coast_s=2.0)
+    local = run(run_reference_demo(TRAINSET, in_process=True, **kw))
+    remote = run(run_reference_demo(TRAINSET, in_process=False, **kw))
+    assert remote.completed and local.completed
+    assert remote.distance_m == pytest.approx(local.distance_m, abs=1e-9)
+    assert remote.plant_time_s == local.plant_time_s
+    assert remote.link["valid"] == local.link["valid"]
