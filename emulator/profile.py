@@ -479,10 +479,15 @@ def load_trainset(path: Path | str) -> TrainsetParams:
         if i not in fed:
             raise root.error("dc_link", f"link {lk.name!r} has no line converter feeding it")
     sensors = _sensors(root.table("sensors")) if root.has("sensors") else SensorParams()
+    motor_control = "scalar"
+    if root.has("controller"):  # the reference controller's settings
+        ctl = root.table("controller")
+        motor_control = ctl.string("motor_control", ("scalar", "vector"))
+        ctl.finish()
     root.finish()
     return TrainsetParams(name=name, source=str(path), substep_s=substep, frame_s=frame,
                           train=train, supply=supply, machine=machine, drivetrain=drivetrain,
                           inverter=inverter, dc_links=tuple(links),
                           converters=tuple(converters), notes=notes,
-                          sensors=sensors, transformer=transformer,
+                          sensors=sensors, transformer=transformer, motor_control=motor_control,
                           line_converter=line_converter, line_converters=tuple(units))

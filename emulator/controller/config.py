@@ -38,6 +38,7 @@ class ControllerConfig:
     magnetising_h: float
     rotor_resistance_ohm: float
     rotor_leakage_h: float
+    stator_leakage_h: float
     stator_resistance_ohm: float
     gear_ratio: float
     wheel_radius_m: float
@@ -47,6 +48,7 @@ class ControllerConfig:
     n_motors_per_inverter: tuple[int, ...]
     n_line_converters_per_link: tuple[int, ...]
     line_side: bool
+    motor_control: str = "scalar"
     link_names: tuple[str, ...] = ()
     line_converter_names: tuple[str, ...] = ()
     line_converter_links: tuple[int, ...] = ()
@@ -127,6 +129,7 @@ def config_from_profile(path, period_s: float | None = None) -> ControllerConfig
         magnetising_h=m.magnetising_h,
         rotor_resistance_ohm=m.rotor_resistance_ohm,
         rotor_leakage_h=m.rotor_leakage_h,
+        stator_leakage_h=m.stator_leakage_h,
         stator_resistance_ohm=m.stator_resistance_ohm,
         gear_ratio=p.drivetrain.gear_ratio,
         wheel_radius_m=0.5 * sum(wheels) / len(wheels),
@@ -137,6 +140,7 @@ def config_from_profile(path, period_s: float | None = None) -> ControllerConfig
         n_line_converters_per_link=tuple(sum(1 for u in p.line_converters if u.dc_link == i)
                                          for i in range(len(links))),
         line_side=tr is not None,
+        motor_control=p.motor_control,
         link_names=tuple(lk.name for lk in links),
         line_converter_names=tuple(u.name for u in p.line_converters),
         line_converter_links=tuple(u.dc_link for u in p.line_converters),

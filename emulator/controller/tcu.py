@@ -19,6 +19,7 @@ from .adhesion import AdhesionControl
 from .config import ControllerConfig
 from .line_converter import LinkControl, power_limits
 from .motor_scalar import ScalarControl
+from .motor_vector import VectorControl
 from .pll import SogiPll
 from .sequence import RUNNING, SwitchOnSequence
 
@@ -50,6 +51,8 @@ class ReferenceController:
                                          strict=True)]
         axle_inverter = [k for k, ms in enumerate(self.motors) for _ in ms]
         self.scalar = [ScalarControl(cfg, len(ms)) for ms in self.motors]
+        self.vector = ([VectorControl(cfg, len(ms)) for ms in self.motors]
+                       if cfg.motor_control == "vector" else None)
         self.adhesion = AdhesionControl(T, axle_inverter, n_inv)
         n_motors = len(axle_inverter)
         self.p_rated_link = [  # the motors' maximum power plus the drive's losses
@@ -226,14 +229,20 @@ class ReferenceController:
             duty_ix = self.ox_duty[k]
             if active:
                 self.enabled_for[k] += period_s
-                duties, _ = self.scalar[k].step(torque, motor_speed, u_d)
-                ramp = min(self.enabled_for[k] / FLUX_RAMP_S, 1.0)
+                if self.vector is not None:
+                    duties = self.vector[k].step(torque, motor_speed, u_d, (ia, ib, ic))
+                    ramp = 1.0  # the flux model builds the flux up itself
+                else:
+                    duties, _ = self.scalar[k].step(torque, motor_speed, u_d)
+                    ramp = min(self.enabled_for[k] / FLUX_RAMP_S, 1.0)
                 for i, d in zip(duty_ix, duties, strict=True):
                     out[i] = 0.5 + ramp * (d - 0.5)
                 p_links[link] += torque * motor_speed * n_mot
                 achieved += torque * n_mot
             else:
                 self.enabled_for[k] = 0.0
+                if self.vector is not None:
+                    self.vector[k].reset()
                 for i in duty_ix:
                     out[i] = 0.5
             out[self.ox_gates[k]] = float(active)

@@ -179,6 +179,7 @@ class TrainsetParams:
     line_converters: tuple[LineConverterUnit, ...] = ()
     notes: dict[str, str] = field(default_factory=dict)
     sensors: Any = None  # emulator.sensors.SensorParams; the plant does not use it
+    motor_control: str = "scalar"  # the reference controller's method: scalar or vector
 
     @property
     def motor_count(self) -> int:

@@ -31,3 +31,12 @@ def test_controller_over_udp_gives_the_same_run(run) -> None:
     assert remote.distance_m == pytest.approx(local.distance_m, abs=1e-9)
     assert remote.plant_time_s == local.plant_time_s
     assert remote.link["valid"] == local.link["valid"]
+
+
+def test_16_7_hz_variant_with_vector_control(run) -> None:
+    profile = TRAINSET.with_name("tern-15kv.toml")
+    s = run(run_reference_demo(profile, in_process=True, target_kmh=40.0, stop_at_m=400.0,
+                               cruise_s=3.0, coast_s=2.0))
+    assert s.completed and s.trips == ()
+    assert s.top_speed_kmh >= 40.0
+    assert abs(s.stop_error_m) <= 5.0
