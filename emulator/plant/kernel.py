@@ -33,11 +33,6 @@ from .layout import (
     II_LINK,
     II_MOTOR_COUNT,
     II_SOURCE,
-    IP_TH_CH,
-    IP_TH_CJ,
-    IP_TH_GHA,
-    IP_TH_GJH,
-    IP_THERMAL_ON,
     IP_VF0,
     IS_E_COND,
     IS_E_DC,
@@ -47,8 +42,6 @@ from .layout import (
     IS_IC,
     IS_IDC,
     IS_Q,
-    IS_T_H,
-    IS_T_J,
     IS_U_ALPHA,
     IS_U_BETA,
     IU_DA,
@@ -58,19 +51,13 @@ from .layout import (
     IU_SINE_AMP,
     IU_SINE_FREQ,
     IU_SINE_PHASE,
-    KU_CHOPPER,
     LS_IDC,
     LS_UDC,
-    LU_ENABLE,
-    LU_LINE_CMD,
-    LU_MOD,
-    LU_PRE_CMD,
     MI_INVERTER,
     MI_SAT_POINTS,
     MI_SHAFT_MODE,
     MP_ADHESION_FACTOR,
     MP_AXLE_LOAD,
-    MP_COOLING,
     MP_CREEP_VREF,
     MP_GEAR,
     MP_GEAR_EFF,
@@ -87,12 +74,6 @@ from .layout import (
     MP_POL_KAPPA,
     MP_POL_SCALE,
     MP_POLE_PAIRS,
-    MP_TH_CR,
-    MP_TH_CS,
-    MP_TH_GRA,
-    MP_TH_GSA,
-    MP_TH_GSR,
-    MP_THERMAL_ON,
     MP_WHEEL_R,
     MS_ACCEL,
     MS_ADHESION_UTIL,
@@ -115,8 +96,6 @@ from .layout import (
     MS_Q_STATOR,
     MS_RR,
     MS_RS,
-    MS_T_ROTOR,
-    MS_T_STATOR,
     MS_THETA_M,
     MS_TORQUE,
     MU_IMPOSED_SPEED,
@@ -134,7 +113,6 @@ from .layout import (
     SHAFT_FREE,
     SHAFT_IMPOSED_SPEED,
     SOURCE_SINE,
-    SS_BREAKER_CMD,
     TP_AMBIENT,
     TP_DAVIS_A,
     TP_DAVIS_B,
@@ -163,7 +141,7 @@ from .machine import (
     step_flux_sine,
     torque,
 )
-from .thermal import two_node_step
+from .thermal import thermal_frame
 from .train import gradient_force, step_speed
 
 
@@ -396,85 +374,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     for k in range(n_i):
         lst[iint[k, II_LINK], LS_IDC] += ist[k, IS_IDC]
     line_frame_end(frame, sp, ss, ls2, kp, lst, tpar[TP_AMBIENT])
-    _thermal_frame(mpar, ms, ipar, ist, tpar[TP_AMBIENT], frame)
-
-
-@compiled
-def _thermal_frame(mpar, ms, ipar, ist, ambient, frame):
-    """Give the frame's losses to the thermal networks and advance them by one frame."""
-    for m in range(mpar.shape[0]):
-        if mpar[m, MP_THERMAL_ON] > 0.5:
-            cool = mpar[m, MP_COOLING]
-            ts_, tr_ = two_node_step(ms[m, MS_T_STATOR], ms[m, MS_T_ROTOR],
-                                     ms[m, MS_Q_STATOR] / frame, ms[m, MS_Q_ROTOR] / frame,
-                                     mpar[m, MP_TH_CS], mpar[m, MP_TH_CR], mpar[m, MP_TH_GSR],
-                                     cool * mpar[m, MP_TH_GSA], cool * mpar[m, MP_TH_GRA],
-                                     ambient, frame)
-            ms[m, MS_T_STATOR] = ts_
-            ms[m, MS_T_ROTOR] = tr_
-        ms[m, MS_Q_STATOR] = 0.0
-        ms[m, MS_Q_ROTOR] = 0.0
-    for k in range(ipar.shape[0]):
-        if ipar[k, IP_THERMAL_ON] > 0.5:
-            tj, th = two_node_step(ist[k, IS_T_J], ist[k, IS_T_H], ist[k, IS_Q] / frame, 0.0,
-                                   ipar[k, IP_TH_CJ], ipar[k, IP_TH_CH], ipar[k, IP_TH_GJH],
-                                   0.0, ipar[k, IP_TH_GHA], ambient, frame)
-            ist[k, IS_T_J] = tj
-            ist[k, IS_T_H] = th
-        ist[k, IS_Q] = 0.0
-
-
-COMMAND_OK = 0
-COMMAND_NOT_FINITE = 1
-COMMAND_OUT_OF_RANGE = 2
-
-
-@compiled
-def load_commands(duty, gates, iu) -> int:
-    """Validate duties (finite, 0..1) and load them with the gate enables into iu.
-
-    Nothing is written unless every value is valid; returns a COMMAND_* code.
-    """
-    n = iu.shape[0]
-    for k in range(n):
-        for x in range(3):
-            d = duty[k, x]
-            if not math.isfinite(d):
-                return COMMAND_NOT_FINITE
-            if d < 0.0 or d > 1.0:
-                return COMMAND_OUT_OF_RANGE
-    for k in range(n):
-        iu[k, IU_DA] = duty[k, 0]
-        iu[k, IU_DB] = duty[k, 1]
-        iu[k, IU_DC] = duty[k, 2]
-        iu[k, IU_ENABLE] = 1.0 if gates[k] else 0.0
-    return COMMAND_OK
-
-
-@compiled
-def load_line_commands(mod, gates, pre, line, breaker, chopper, lu, ss, ku) -> int:
-    """Validate and load the line side's commands; nothing is written unless all are valid."""
-    for k in range(mod.shape[0]):
-        # flags may come as bool or float arrays: x * 1.0 is a float for both
-        if not (math.isfinite(mod[k]) and math.isfinite(gates[k] * 1.0)
-                and math.isfinite(pre[k] * 1.0) and math.isfinite(line[k] * 1.0)):
-            return COMMAND_NOT_FINITE
-        if mod[k] < -1.0 or mod[k] > 1.0:
-            return COMMAND_OUT_OF_RANGE
-    for j in range(chopper.shape[0]):
-        if not math.isfinite(chopper[j]):
-            return COMMAND_NOT_FINITE
-        if chopper[j] < 0.0 or chopper[j] > 1.0:
-            return COMMAND_OUT_OF_RANGE
-    for k in range(mod.shape[0]):
-        lu[k, LU_MOD] = mod[k]
-        lu[k, LU_ENABLE] = gates[k] * 1.0
-        lu[k, LU_PRE_CMD] = pre[k] * 1.0
-        lu[k, LU_LINE_CMD] = line[k] * 1.0
-    for j in range(chopper.shape[0]):
-        ku[j, KU_CHOPPER] = chopper[j]
-    ss[SS_BREAKER_CMD] = breaker
-    return COMMAND_OK
+    thermal_frame(mpar, ms, ipar, ist, tpar[TP_AMBIENT], frame)
 
 
 def empty_sat_tables(n_motor: int, n_points: int = 1) -> tuple[np.ndarray, np.ndarray]:

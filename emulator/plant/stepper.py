@@ -8,22 +8,19 @@ compiled kernel over it in fixed sub-steps. States are read by name (``plant.rea
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
+from .build import build_line_side, build_motor_side, build_train
+from .commands import CommandError, Commands, LineCommands
 from .drivetrain import RAIL_CONDITIONS
-from .kernel import (
-    COMMAND_NOT_FINITE,
-    COMMAND_OUT_OF_RANGE,
-    advance_frame,
-    load_commands,
-    load_line_commands,
-)
+from .energy import EnergyAccount, energy_account
+from .inputs import COMMAND_NOT_FINITE, COMMAND_OUT_OF_RANGE, load_commands, load_line_commands
+from .kernel import advance_frame
 from .line import SUPPLY_LEVELS
-from .machine import currents, magnetic_energy
+from .machine import currents
 from .params import (
     ConverterParams,
     DcLinkParams,
@@ -34,89 +31,6 @@ from .params import (
     TrainParams,
     TrainsetParams,
 )
-
-
-class CommandError(ValueError):
-    """A command the plant cannot apply (non-finite, out of range, wrong shape)."""
-
-
-@dataclass
-class Commands:
-    """What the power stages are told for one frame.
-
-    Attributes:
-        duty: per inverter, the three leg duty cycles, shape (n_inverter, 3), 0..1.
-        gates_enabled: per inverter, True when the gates are released.
-    """
-
-    duty: np.ndarray
-    gates_enabled: np.ndarray
-    line: LineCommands | None = None  # None: keep the line side's previous commands
-
-    @classmethod
-    def blocked(cls, n_inverter: int) -> Commands:
-        """All gates blocked, duties at 0.5."""
-        return cls(np.full((n_inverter, 3), 0.5), np.zeros(n_inverter, dtype=bool))
-
-
-@dataclass
-class LineCommands:
-    """What the line side is told for one frame.
-
-    Attributes:
-        modulation: per line converter, m in -1..1 (converter voltage m U_dc).
-        gates_enabled: per line converter.
-        precharge: per line converter, precharge contactor commanded closed.
-        line_contactor: per line converter, line contactor commanded closed.
-        breaker: main breaker commanded closed.
-        chopper: per DC link, brake chopper duty 0..1.
-    """
-
-    modulation: np.ndarray
-    gates_enabled: np.ndarray
-    precharge: np.ndarray
-    line_contactor: np.ndarray
-    breaker: bool
-    chopper: np.ndarray
-
-    @classmethod
-    def open(cls, n_converters: int, n_links: int) -> LineCommands:
-        """Everything open and blocked."""
-        return cls(np.zeros(n_converters), np.zeros(n_converters, dtype=bool),
-                   np.zeros(n_converters, dtype=bool), np.zeros(n_converters, dtype=bool),
-                   False, np.zeros(n_links))
-
-
-@dataclass(frozen=True)
-class EnergyAccount:
-    """Energies since the start of the run, J; stored energies are present values."""
-
-    dc_link_in: float
-    semiconductor_conduction: float
-    semiconductor_switching: float
-    motor_terminals: float
-    stator_copper: float
-    rotor_copper: float
-    electromagnetic: float
-    gear_loss: float
-    slip_loss: float
-    load: float
-    running_resistance: float
-    friction_brake: float
-    potential: float
-    magnetic_stored: float
-    kinetic_stored: float
-    source: float = 0.0  # delivered by the catenary EMF
-    source_resistance: float = 0.0
-    winding_resistance: float = 0.0  # transformer secondaries and precharge resistors
-    line_converter_loss: float = 0.0
-    line_converter_dc: float = 0.0  # delivered by the line converters to the links
-    line_inductive_stored: float = 0.0  # source and leakage inductances
-    link_capacitive_stored: float = 0.0
-    filter_stored: float = 0.0
-    chopper: float = 0.0
-    discharge: float = 0.0
-    filter_resistance: float = 0.0
 
 
 class Plant:
@@ -138,174 +52,10 @@ class Plant:
         self._n_sub, self._h = 1, params.substep_s
         self.frames = 0
         self.substeps = 0
-        mp, dp, ip = params.machine, params.drivetrain, params.inverter
-        n_m = params.motor_count
-        n_i = len(params.converters)
-        self.n_motors, self.n_inverters, self.n_links = n_m, n_i, len(params.dc_links)
-        self.mpar = np.zeros((n_m, L.MP_N))
-        self.mint = np.zeros((n_m, L.MI_N), dtype=np.int64)
-        self.mu = np.zeros((n_m, L.MU_N))
-        self.ms = np.zeros((n_m, L.MS_N))
-        self.mx = np.zeros((n_m, L.MX_N), dtype=np.complex128)
-        n_sat = max(1, len(mp.saturation_current_a))
-        self.sat_i = np.ones((n_m, n_sat))
-        self.sat_psi = np.ones((n_m, n_sat))
-        self.ipar = np.zeros((n_i, L.IP_N))
-        self.iint = np.zeros((n_i, L.II_N), dtype=np.int64)
-        self.iu = np.zeros((n_i, L.IU_N))
-        self.ist = np.zeros((n_i, L.IS_N))
-        self.lst = np.zeros((self.n_links, L.LS_N))
-        self.tpar = np.zeros(L.TP_N)
-        self.tu = np.zeros(L.TU_N)
-        self.ts = np.zeros(L.TS_N)
-        ambient = params.train.ambient_temperature_k
-        polach = RAIL_CONDITIONS[dp.rail_condition]
-        m = 0
-        for k, conv in enumerate(params.converters):
-            self.iint[k] = (conv.dc_link, m, len(conv.wheel_diameters_m), L.SOURCE_INVERTER)
-            for diameter in conv.wheel_diameters_m:
-                row = self.mpar[m]
-                row[L.MP_RS20] = mp.stator_resistance_ohm
-                row[L.MP_RR20] = mp.rotor_resistance_ohm
-                row[L.MP_LLS] = mp.stator_leakage_h
-                row[L.MP_LLR] = mp.rotor_leakage_h
-                row[L.MP_LM] = mp.magnetising_h
-                row[L.MP_POLE_PAIRS] = mp.pole_pairs
-                row[L.MP_J_ROTOR] = mp.rotor_inertia_kgm2
-                row[L.MP_ALPHA_S] = mp.stator_temp_coeff_per_k
-                row[L.MP_ALPHA_R] = mp.rotor_temp_coeff_per_k
-                row[L.MP_T_REF] = mp.reference_temperature_k
-                row[L.MP_GEAR] = dp.gear_ratio
-                row[L.MP_GEAR_EFF] = dp.gear_efficiency
-                row[L.MP_J_WHEELSET] = dp.wheelset_inertia_kgm2
-                row[L.MP_WHEEL_R] = 0.5 * diameter
-                row[L.MP_AXLE_LOAD] = dp.axle_load_n
-                row[L.MP_KALKER] = dp.kalker_coefficient_n
-                (row[L.MP_KA], row[L.MP_KS], row[L.MP_MU0], row[L.MP_POL_A],
-                 row[L.MP_POL_B]) = polach
-                row[L.MP_ADHESION_FACTOR] = 1.0
-                row[L.MP_CREEP_VREF] = dp.creep_reference_speed_mps
-                row[L.MP_COOLING] = 1.0
-                if mp.thermal is not None:
-                    th = mp.thermal
-                    row[L.MP_TH_CS] = th.stator_capacity_j_per_k
-                    row[L.MP_TH_CR] = th.rotor_capacity_j_per_k
-                    row[L.MP_TH_GSR] = th.stator_rotor_conductance_w_per_k
-                    row[L.MP_TH_GSA] = th.stator_coolant_conductance_w_per_k
-                    row[L.MP_TH_GRA] = th.rotor_coolant_conductance_w_per_k
-                    row[L.MP_THERMAL_ON] = 1.0
-                    self.ms[m, L.MS_T_STATOR] = ambient
-                    self.ms[m, L.MS_T_ROTOR] = ambient
-                else:
-                    self.ms[m, L.MS_T_STATOR] = mp.reference_temperature_k
-                    self.ms[m, L.MS_T_ROTOR] = mp.reference_temperature_k
-                self.ms[m, L.MS_LM] = mp.magnetising_h
-                self.mint[m] = (k, L.SHAFT_DRIVETRAIN, len(mp.saturation_current_a))
-                if mp.saturation_current_a:
-                    self.sat_i[m] = mp.saturation_current_a
-                    self.sat_psi[m] = mp.saturation_flux_vs
-                m += 1
-            row = self.ipar[k]
-            row[L.IP_FSW] = ip.switching_frequency_hz
-            row[L.IP_TDEAD] = ip.dead_time_s
-            row[L.IP_VCE0] = ip.igbt_threshold_v
-            row[L.IP_RCE] = ip.igbt_slope_ohm
-            row[L.IP_VF0] = ip.diode_threshold_v
-            row[L.IP_RF] = ip.diode_slope_ohm
-            row[L.IP_ESW] = ip.switching_energy_j
-            row[L.IP_ESW_VREF] = ip.switching_energy_ref_v
-            row[L.IP_ESW_IREF] = ip.switching_energy_ref_a
-            row[L.IP_IBAND] = ip.sign_band_a
-            row[L.IP_TH_CJ] = ip.junction_capacity_j_per_k
-            row[L.IP_TH_CH] = ip.heatsink_capacity_j_per_k
-            row[L.IP_TH_GJH] = ip.junction_heatsink_w_per_k
-            row[L.IP_TH_GHA] = ip.heatsink_coolant_w_per_k
-            row[L.IP_THERMAL_ON] = 1.0 if ip.thermal else 0.0
-            self.ist[k, L.IS_T_J] = ambient
-            self.ist[k, L.IS_T_H] = ambient
-            self.iu[k, L.IU_DA:L.IU_DC + 1] = 0.5
-        self._build_line_side(params, ideal_dc_links or params.transformer is None)
+        build_motor_side(self, params)
+        build_line_side(self, params, ideal_dc_links or params.transformer is None)
         self.derive_drivetrain()
-        tp = params.train
-        self.tpar[L.TP_MASS] = tp.mass_kg
-        self.tpar[L.TP_ROT_ALLOWANCE] = tp.rotating_mass_allowance
-        self.tpar[L.TP_DAVIS_A] = tp.davis_a_n
-        self.tpar[L.TP_DAVIS_B] = tp.davis_b_n_per_mps
-        self.tpar[L.TP_DAVIS_C] = tp.davis_c_n_per_mps2
-        self.tpar[L.TP_GRAVITY] = 9.80665
-        self.tpar[L.TP_AMBIENT] = ambient
-
-    def _build_line_side(self, params: TrainsetParams, ideal: bool) -> None:
-        n_link = len(params.dc_links)
-        units = params.line_converters
-        n_lc = len(units)
-        self.n_line_converters = n_lc
-        self.sp = np.zeros(L.SP_N)
-        self.harmonics = np.zeros((L.N_HARMONICS, 3))
-        self.ss = np.zeros(L.SS_N)
-        self.lp = np.zeros((n_lc, L.LP_N))
-        self.li = np.zeros((n_lc, L.LI_N), dtype=np.int64)
-        self.lu = np.zeros((n_lc, L.LU_N))
-        self.ls2 = np.zeros((n_lc, L.LS2_N))
-        self.kp = np.zeros((n_link, L.KP_N))
-        self.ku = np.zeros((n_link, L.KU_N))
-        self.i_link = np.zeros((n_link, 2))
-        self._pq_ring = np.zeros((1, L.SS_PQ_IS - L.SS_PQ_T + 1))
-        self._pq_sum = np.zeros(L.SS_PQ_IS - L.SS_PQ_T + 1)
-        ambient = params.train.ambient_temperature_k
-        su = params.supply
-        for i, (order, fraction, phase) in enumerate(su.harmonics[:L.N_HARMONICS]):
-            self.harmonics[i] = (order, fraction, phase)
-        for link, lk in enumerate(params.dc_links):
-            row = self.kp[link]
-            row[L.KP_C] = lk.capacitance_f
-            row[L.KP_R_DIS] = lk.discharge_ohm
-            row[L.KP_LF] = lk.filter_inductance_h
-            row[L.KP_CF] = lk.filter_capacitance_f
-            row[L.KP_RF] = lk.filter_resistance_ohm
-            row[L.KP_R_CH] = lk.chopper_ohm
-            row[L.KP_U_OVP] = lk.overvoltage_v
-            row[L.KP_U_IDEAL] = lk.voltage_v
-            row[L.KP_TH_C] = lk.resistor_capacity_j_per_k
-            row[L.KP_TH_G] = lk.resistor_conductance_w_per_k
-            row[L.KP_IDEAL] = 1.0 if ideal else 0.0
-            self.lst[link, L.LS_UDC] = lk.voltage_v if ideal else 0.0
-            self.lst[link, L.LS_T_RES] = ambient
-        if ideal:
-            return
-        tr, lc = params.transformer, params.line_converter
-        assert tr is not None and lc is not None
-        self.sp[L.SP_ACTIVE] = 1.0
-        self.sp[L.SP_RATIO] = tr.primary_voltage_v / tr.secondary_voltage_v
-        self.sp[L.SP_AMPLITUDE] = su.nominal_voltage_v * math.sqrt(2.0)
-        self.sp[L.SP_FREQUENCY] = su.frequency_hz
-        self.sp[L.SP_R] = su.source_resistance_ohm
-        self.sp[L.SP_L] = su.source_inductance_h
-        self.sp[L.SP_LIVE] = 1.0
-        self.sp[L.SP_DROOP] = su.reverse_power_droop_v_per_w
-        self.sp[L.SP_BREAKER_DELAY] = tr.breaker_delay_s
-        self.ss[L.SS_BREAKER_TIMER] = tr.breaker_delay_s
-        for k, unit in enumerate(units):
-            row = self.lp[k]
-            row[L.LP_L] = tr.leakage_h
-            row[L.LP_R] = tr.resistance_ohm
-            row[L.LP_R_PRE] = lc.precharge_ohm
-            row[L.LP_V0] = lc.device_threshold_v
-            row[L.LP_RD] = lc.device_slope_ohm
-            row[L.LP_FSW] = lc.switching_frequency_hz
-            row[L.LP_ESW] = lc.switching_energy_j
-            row[L.LP_ESW_VREF] = lc.switching_energy_ref_v
-            row[L.LP_ESW_IREF] = lc.switching_energy_ref_a
-            row[L.LP_PRE_DELAY] = lc.precharge_delay_s
-            row[L.LP_LINE_DELAY] = lc.line_contactor_delay_s
-            self.li[k, L.LI_LINK] = unit.dc_link
-            self.ls2[k, L.LS2_PRE_TIMER] = lc.precharge_delay_s
-            self.ls2[k, L.LS2_LINE_TIMER] = lc.line_contactor_delay_s
-        # power-quality window: a whole number of line periods, at least 100 ms
-        periods = max(1, math.ceil(0.1 * su.frequency_hz))
-        frames = max(1, round(periods / su.frequency_hz / params.frame_s))
-        self._pq_ring = np.zeros((frames, L.SS_PQ_IS - L.SS_PQ_T + 1))
-        self._pq_sum = np.zeros(L.SS_PQ_IS - L.SS_PQ_T + 1)
+        build_train(self, params)
 
     @property
     def line_side(self) -> bool:
@@ -620,56 +370,4 @@ class Plant:
 
     def energy(self) -> EnergyAccount:
         """Energy bookkeeping since the start, for balance checks and reports."""
-        ms, ist, ts = self.ms, self.ist, self.ts
-        magnetic = 0.0
-        kinetic = 0.5 * self.tpar[L.TP_MASS] * (1 + self.tpar[L.TP_ROT_ALLOWANCE]) * (
-            ts[L.TS_SPEED] ** 2)
-        for m in range(self.n_motors):
-            ps, pr = self.flux_linkages(m)
-            i_s, i_r = self._currents(m)
-            magnetic += magnetic_energy(ps, i_s, pr, i_r)
-            gear = self.mpar[m, L.MP_GEAR]
-            if self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_DRIVETRAIN:
-                j_eq = self.mpar[m, L.MP_J_WHEELSET] + gear * gear * self.mpar[m, L.MP_J_ROTOR]
-                kinetic += 0.5 * j_eq * (ms[m, L.MS_OMEGA_M] / gear) ** 2
-            elif self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_FREE:
-                kinetic += 0.5 * self.mpar[m, L.MP_J_ROTOR] * ms[m, L.MS_OMEGA_M] ** 2
-        line = {}
-        if self.line_side:
-            n = self.sp[L.SP_RATIO]
-            lst, ls2, kp = self.lst, self.ls2, self.kp
-            line = dict(
-                source=float(self.ss[L.SS_E_SOURCE]),
-                source_resistance=float(self.ss[L.SS_E_SOURCE_R]),
-                winding_resistance=float(ls2[:, L.LS2_E_R].sum()),
-                line_converter_loss=float(ls2[:, L.LS2_E_LOSS].sum()),
-                line_converter_dc=float(ls2[:, L.LS2_E_DC].sum()),
-                line_inductive_stored=float(
-                    0.5 * self.sp[L.SP_L] * (ls2[:, L.LS2_I].sum() / n) ** 2
-                    + 0.5 * (self.lp[:, L.LP_L] * ls2[:, L.LS2_I] ** 2).sum()),
-                link_capacitive_stored=float((0.5 * kp[:, L.KP_C] * lst[:, L.LS_UDC] ** 2)
-                                             .sum()),
-                filter_stored=float((0.5 * kp[:, L.KP_LF] * lst[:, L.LS_IF] ** 2
-                                     + 0.5 * kp[:, L.KP_CF] * lst[:, L.LS_UCF] ** 2).sum()),
-                chopper=float(lst[:, L.LS_E_CH].sum()),
-                discharge=float(lst[:, L.LS_E_DIS].sum()),
-                filter_resistance=float(lst[:, L.LS_E_RF].sum()),
-            )
-        return EnergyAccount(
-            **line,
-            dc_link_in=float(ist[:, L.IS_E_DC].sum()),
-            semiconductor_conduction=float(ist[:, L.IS_E_COND].sum()),
-            semiconductor_switching=float(ist[:, L.IS_E_SW].sum()),
-            motor_terminals=float(ms[:, L.MS_E_TERMINAL].sum()),
-            stator_copper=float(ms[:, L.MS_E_CU_S].sum()),
-            rotor_copper=float(ms[:, L.MS_E_CU_R].sum()),
-            electromagnetic=float(ms[:, L.MS_E_SHAFT].sum()),
-            gear_loss=float(ms[:, L.MS_E_GEAR].sum()),
-            slip_loss=float(ms[:, L.MS_E_SLIP].sum()),
-            load=float(ms[:, L.MS_E_LOAD].sum()),
-            running_resistance=float(ts[L.TS_E_RESIST]),
-            friction_brake=float(ts[L.TS_E_BRAKE]),
-            potential=float(ts[L.TS_E_GRADE]),
-            magnetic_stored=magnetic,
-            kinetic_stored=float(kinetic),
-        )
+        return energy_account(self)

@@ -14,6 +14,27 @@ equivalent circuit (Cauer form), e.g. IEC 60349 thermal practice, common practic
 from __future__ import annotations
 
 from .jit import compiled
+from .layout import (
+    IP_TH_CH,
+    IP_TH_CJ,
+    IP_TH_GHA,
+    IP_TH_GJH,
+    IP_THERMAL_ON,
+    IS_Q,
+    IS_T_H,
+    IS_T_J,
+    MP_COOLING,
+    MP_TH_CR,
+    MP_TH_CS,
+    MP_TH_GRA,
+    MP_TH_GSA,
+    MP_TH_GSR,
+    MP_THERMAL_ON,
+    MS_Q_ROTOR,
+    MS_Q_STATOR,
+    MS_T_ROTOR,
+    MS_T_STATOR,
+)
 
 
 @compiled
@@ -29,3 +50,28 @@ def two_node_step(t1: float, t2: float, p1: float, p2: float, c1: float, c2: flo
     b2 = c2 / dt * t2 + p2 + g2a * ta
     det = a11 * a22 - a12 * a21
     return (b1 * a22 - a12 * b2) / det, (a11 * b2 - a21 * b1) / det
+
+
+@compiled
+def thermal_frame(mpar, ms, ipar, ist, ambient, frame):
+    """Give the frame's losses to the thermal networks and advance them by one frame."""
+    for m in range(mpar.shape[0]):
+        if mpar[m, MP_THERMAL_ON] > 0.5:
+            cool = mpar[m, MP_COOLING]
+            ts_, tr_ = two_node_step(ms[m, MS_T_STATOR], ms[m, MS_T_ROTOR],
+                                     ms[m, MS_Q_STATOR] / frame, ms[m, MS_Q_ROTOR] / frame,
+                                     mpar[m, MP_TH_CS], mpar[m, MP_TH_CR], mpar[m, MP_TH_GSR],
+                                     cool * mpar[m, MP_TH_GSA], cool * mpar[m, MP_TH_GRA],
+                                     ambient, frame)
+            ms[m, MS_T_STATOR] = ts_
+            ms[m, MS_T_ROTOR] = tr_
+        ms[m, MS_Q_STATOR] = 0.0
+        ms[m, MS_Q_ROTOR] = 0.0
+    for k in range(ipar.shape[0]):
+        if ipar[k, IP_THERMAL_ON] > 0.5:
+            tj, th = two_node_step(ist[k, IS_T_J], ist[k, IS_T_H], ist[k, IS_Q] / frame, 0.0,
+                                   ipar[k, IP_TH_CJ], ipar[k, IP_TH_CH], ipar[k, IP_TH_GJH],
+                                   0.0, ipar[k, IP_TH_GHA], ambient, frame)
+            ist[k, IS_T_J] = tj
+            ist[k, IS_T_H] = th
+        ist[k, IS_Q] = 0.0
