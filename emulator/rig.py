@@ -108,6 +108,8 @@ class Rig:
         self.rng = np.random.default_rng(seed)
         self.driver = DriverDemand()
         self.program = None  # a driver program: update(rig) after every frame
+        self.faults = None  # an emulator.faults.FaultSet, applied every frame
+        self._command_index = {s.name: i for i, s in enumerate(sm.commands)}
         self.sampler = MeasurementSampler(self.plant, sm, params.sensors, self.rng)
         self.mapper = CommandMapper(self.plant, sm)
         self.health = LinkHealth()
@@ -141,6 +143,9 @@ class Rig:
         """Decode telegrams; keep valid answers by the sequence number they answer."""
         k = self.frame
         for payload in payloads:
+            if self.faults is not None and self.faults.drop():
+                self.health.rejected["fault_dropped"] += 1
+                continue
             try:
                 tg = self.codec.decode(payload)
             except TelegramError as exc:
@@ -199,7 +204,12 @@ class Rig:
         return 0
 
     def _step(self, period_us: int) -> None:
-        commands = self.mapper.commands(self._held, gates_allowed=not self.tripped)
+        held = self._held
+        if self.faults is not None:
+            self.faults.update()
+            held = held.copy()
+            self.faults.transform_command(held, self._command_index)
+        commands = self.mapper.commands(held, gates_allowed=not self.tripped)
         self.plant.advance(commands, period_us / 1e6)
         if self.program is not None:
             self.program.update(self)  # the train's demands for the next measurement

@@ -114,6 +114,7 @@ class MeasurementSampler:
                                -KELVIN, sensors.temperature))
                 m += 1
         plan = analog + [(*f, 0.0) for f in flags]
+        self.analog_names = [a[0] for a in analog]  # fault targets: the analog channels
         self.analog = AnalogChannels([a[5] for a in analog], rng)
         self._plan = (np.array([p[1] for p in plan], dtype=np.int64),
                       np.array([p[2] for p in plan], dtype=np.int64),

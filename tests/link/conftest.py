@@ -7,11 +7,10 @@ import itertools
 from collections.abc import Callable
 
 import msgpack
-import pytest
 
 from emulator.clock import FakeClock
 from emulator.link import open_link
-from emulator.profile import PROFILES_DIR, load_trainset
+from emulator.profile import PROFILES_DIR
 from emulator.rig import Rig
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
@@ -48,11 +47,6 @@ def command(rig: Rig, seq: int, duty: float = 0.5, gates: int = 1, **over) -> by
             v = 0.0
         values.append(round(over.get(s.name, v) / s.scale))
     return msgpack.packb([rig.signal_map.version, seq, 0, 0, 0, *values])
-
-
-@pytest.fixture(scope="session")
-def params():
-    return load_trainset(TRAINSET)
 
 
 async def make_rig(params, answer, *, mode: str = "afap", **kw) -> tuple[Rig, SyncController]:
