@@ -198,11 +198,22 @@ def _cmd_serve(args: argparse.Namespace) -> int:
         frames = args.frames
         if args.duration is not None:
             frames = round(args.duration * 1e6 / rig.period_us)
+        recorder = None
+        if args.record:
+            from emulator.record import Recorder
+
+            recorder = Recorder(args.record, rig.record_columns(),
+                                {"profile": str(args.profile), "seed": args.seed,
+                                 "mode": args.mode, "period_us": rig.period_us,
+                                 "version": __import__("emulator").__version__})
+            rig.recorder = recorder
         try:
             await rig.run(frames=frames, stop=stop)
         finally:
             link.close()
             rig.clock.close()
+            if recorder is not None:
+                recorder.close()
 
     try:
         asyncio.run(serve())
@@ -224,6 +235,27 @@ def _cmd_serve(args: argparse.Namespace) -> int:
                   f"link: {report['link']}; lateness median {t['lateness_us_median']:.1f} us, "
                   f"p99 {t['lateness_us_p99']:.1f} us, late frames {t['late_frames']}, "
                   f"CPU {100 * t['cpu_share']:.0f} %")
+    return 0
+
+
+def _cmd_export(args: argparse.Namespace) -> int:
+    from emulator.record import RecordingError, export_csv, export_npz, read_recording
+
+    try:
+        rec = read_recording(args.file)
+    except (OSError, RecordingError) as exc:
+        console.print(f"[red]error:[/red] {exc}")
+        return 2
+    if not rec.complete:
+        console.print(f"[yellow]note:[/yellow] {rec.note}; exporting the "
+                      f"{len(rec.data)} frames before it")
+    base = args.file.rsplit(".", 1)[0]
+    if args.csv:
+        export_csv(rec, base + ".csv")
+        console.print(f"wrote {base}.csv")
+    if args.npz or not args.csv:
+        export_npz(rec, base + ".npz")
+        console.print(f"wrote {base}.npz")
     return 0
 
 
@@ -280,12 +312,19 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--allow-remote", action="store_true",
                        help="let UDP bind or talk beyond loopback")
     serve.add_argument("--report-json", default=None, help="write the run's counters here")
+    serve.add_argument("--record", default=None, help="record every frame to this file")
     serve.set_defaults(func=_cmd_serve)
 
     protocol = sub.add_parser("protocol", help="print the signal map of a trainset")
     protocol.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     protocol.add_argument("--json", action="store_true", help="machine-readable")
     protocol.set_defaults(func=_cmd_protocol)
+
+    export = sub.add_parser("export", help="convert a recording to CSV or NPZ")
+    export.add_argument("file", help="a recording (.rrec)")
+    export.add_argument("--csv", action="store_true", help="write FILE.csv")
+    export.add_argument("--npz", action="store_true", help="write FILE.npz (the default)")
+    export.set_defaults(func=_cmd_export)
 
     bench = sub.add_parser("bench", help="print the plant's cost per frame")
     bench.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")

@@ -109,7 +109,9 @@ class Rig:
         self.driver = DriverDemand()
         self.program = None  # a driver program: update(rig) after every frame
         self.faults = None  # an emulator.faults.FaultSet, applied every frame
+        self.recorder = None  # an emulator.record.Recorder, see record_columns()
         self._command_index = {s.name: i for i, s in enumerate(sm.commands)}
+        self.record_columns()  # allocates the row a recorder is given each frame
         self.sampler = MeasurementSampler(self.plant, sm, params.sensors, self.rng)
         self.mapper = CommandMapper(self.plant, sm)
         self.health = LinkHealth()
@@ -211,10 +213,23 @@ class Rig:
             self.faults.transform_command(held, self._command_index)
         commands = self.mapper.commands(held, gates_allowed=not self.tripped)
         self.plant.advance(commands, period_us / 1e6)
+        if self.recorder is not None:
+            self._row[0] = self.plant.time_s
+            self._row[1:1 + len(self._y)] = self._y  # y_k, what the controller saw
+            self._row[1 + len(self._y):] = held  # the command that acted in this frame
+            self.recorder.append(self._row)
         if self.program is not None:
             self.program.update(self)  # the train's demands for the next measurement
         self._y = self.sampler.sample(period_us / 1e6, self.driver)
         self.frame += 1
+
+    def record_columns(self) -> list[str]:
+        """Columns of a recording: plant time, the measurements, the commands applied."""
+        sm = self.signal_map
+        cols = (["time_s"] + [f"y.{s.name}" for s in sm.measurements]
+                + [f"u.{s.name}" for s in sm.commands])
+        self._row = np.zeros(len(cols))
+        return cols
 
     def start(self) -> None:
         """Warm every compiled path and take y_0 (call before the first frame)."""
