@@ -40,9 +40,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     s = asyncio.run(run_reference_demo(profile, in_process=args.in_process,
                                        target_kmh=args.target_kmh, stop_at_m=args.stop_at_m,
                                        progress=progress))
-    table = Table(title="Demo run (reference controller, lockstep)")
-    table.add_column("quantity")
-    table.add_column("value", justify="right")
+    table = _pairs_table("Demo run (reference controller, lockstep)", "quantity")
     for name, value in [
         ("completed", "yes" if s.completed else "no"),
         ("plant time", f"{s.plant_time_s:.1f} s"),
@@ -100,9 +98,7 @@ def _cmd_bench(args: argparse.Namespace) -> int:
         if args.json:
             print(json.dumps(figures))
             return 0
-        table = Table(title=f"Rig pacing and link: {params.name}, {args.seconds:g} s at 1 kHz")
-        table.add_column("figure")
-        table.add_column("value", justify="right")
+        table = _pairs_table(f"Rig pacing and link: {params.name}, {args.seconds:g} s at 1 kHz")
         for key, value in figures.items():
             table.add_row(key, str(value))
         Console().print(table)
@@ -111,9 +107,7 @@ def _cmd_bench(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(figures))
         return 0
-    table = Table(title=f"Plant cost per frame: {params.name}")
-    table.add_column("figure")
-    table.add_column("value", justify="right")
+    table = _pairs_table(f"Plant cost per frame: {params.name}")
     table.add_row("frame / sub-step", f"{figures['frame_us']:.0f} us / "
                   f"{figures['substep_us']:.0f} us")
     table.add_row("motors", str(figures["motors"]))
@@ -257,6 +251,14 @@ def _cmd_export(args: argparse.Namespace) -> int:
         export_npz(rec, base + ".npz")
         console.print(f"wrote {base}.npz")
     return 0
+
+
+def _pairs_table(title: str, first: str = "figure") -> Table:
+    """A two-column table of names and right-aligned values."""
+    table = Table(title=title)
+    table.add_column(first)
+    table.add_column("value", justify="right")
+    return table
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -23,8 +23,6 @@ from __future__ import annotations
 import cmath
 import math
 
-import numpy as np
-
 from .drivetrain import polach_core, wheel_torque
 from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents
 from .jit import compiled, compiled_inline
@@ -375,8 +373,3 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         lst[iint[k, II_LINK], LS_IDC] += ist[k, IS_IDC]
     line_frame_end(frame, sp, ss, ls2, kp, lst, tpar[TP_AMBIENT])
     thermal_frame(mpar, ms, ipar, ist, tpar[TP_AMBIENT], frame)
-
-
-def empty_sat_tables(n_motor: int, n_points: int = 1) -> tuple[np.ndarray, np.ndarray]:
-    """Saturation tables for motors with linear magnetics."""
-    return np.ones((n_motor, n_points)), np.ones((n_motor, n_points))

@@ -30,7 +30,7 @@ import math
 
 import numpy as np
 
-from .jit import compiled
+from .jit import compiled, compiled_inline
 from .layout import (
     KP_C,
     KP_CF,
@@ -160,6 +160,15 @@ def _contactors(lp, lu, ls2, sp, ss, h):
                 ls2[k, timer_col] = lp[k, delay_col]
 
 
+@compiled_inline
+def _path_resistance(lp, ls2, k, breaker) -> float:
+    """Series resistance of winding k's path (winding plus precharge resistor while only the
+    precharge contactor is closed), or -1 when the path is open."""
+    if not breaker or (ls2[k, LS2_LINE] < 0.5 and ls2[k, LS2_PRE] < 0.5):
+        return -1.0
+    return lp[k, LP_R] + (0.0 if ls2[k, LS2_LINE] > 0.5 else lp[k, LP_R_PRE])
+
+
 @compiled
 def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     """Advance supply, transformer, line converters and DC links by one sub-step.
@@ -188,11 +197,10 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
         i = ls2[k, LS2_I]
-        closed = breaker and (ls2[k, LS2_LINE] > 0.5 or ls2[k, LS2_PRE] > 0.5)
-        if not closed:
+        r = _path_resistance(lp, ls2, k, breaker)
+        if r < 0.0:
             ls2[k, LS2_U] = 0.0
             continue
-        r = lp[k, LP_R] + (0.0 if ls2[k, LS2_LINE] > 0.5 else lp[k, LP_R_PRE])
         v_f = 2.0 * lp[k, LP_V0]
         if lu[k, LU_ENABLE] > 0.5:
             sg = 1.0 if i > 0.0 else (-1.0 if i < 0.0 else 0.0)
@@ -213,11 +221,10 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
         i_old = ls2[k, LS2_I]
-        closed = breaker and (ls2[k, LS2_LINE] > 0.5 or ls2[k, LS2_PRE] > 0.5)
-        if not closed:
+        r = _path_resistance(lp, ls2, k, breaker)
+        if r < 0.0:
             ls2[k, LS2_I] = 0.0
             continue
-        r = lp[k, LP_R] + (0.0 if ls2[k, LS2_LINE] > 0.5 else lp[k, LP_R_PRE])
         a_k = lp[k, LP_L] + 0.5 * h * r
         b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e / n - ls2[k, LS2_U])
         i_new = (b_k - corr) / a_k

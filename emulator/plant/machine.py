@@ -21,7 +21,6 @@ e^{A h} = e^s (cosh q I + sinh(q)/q N).
 from __future__ import annotations
 
 import cmath
-import math
 
 import numpy as np
 
@@ -258,13 +257,3 @@ def magnetic_energy(psi_s: complex, i_s: complex, psi_r: complex, i_r: complex) 
     W = 3/2 * 1/2 Re(psi_s conj(i_s) + psi_r conj(i_r)) with amplitude-invariant vectors.
     """
     return 0.75 * ((psi_s * i_s.conjugate()).real + (psi_r * i_r.conjugate()).real)
-
-
-def synchronous_speed_rpm(frequency_hz: float, poles: int) -> float:
-    """Synchronous speed n_s = 120 f / P in r/min (P poles, not pole pairs)."""
-    return 120.0 * frequency_hz / poles
-
-
-def clarke(a: float, b: float, c: float) -> complex:
-    """Amplitude-invariant Clarke transform of three phase quantities."""
-    return complex((2.0 * a - b - c) / 3.0, (b - c) / math.sqrt(3.0))
