@@ -253,6 +253,18 @@ def _cmd_export(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_run(args: argparse.Namespace) -> int:
+    from emulator.scenario.command import cmd_run
+
+    return cmd_run(args)
+
+
+def _cmd_replay(args: argparse.Namespace) -> int:
+    from emulator.scenario.command import cmd_replay
+
+    return cmd_replay(args)
+
+
 def _pairs_table(title: str, first: str = "figure") -> Table:
     """A two-column table of names and right-aligned values."""
     table = Table(title=title)
@@ -327,6 +339,24 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--csv", action="store_true", help="write FILE.csv")
     export.add_argument("--npz", action="store_true", help="write FILE.npz (the default)")
     export.set_defaults(func=_cmd_export)
+
+    run = sub.add_parser("run", help="run scenario files headless and judge their checks")
+    run.add_argument("scenario", nargs="+", help="scenario file(s), e.g. "
+                     "profiles/scenarios/four-modes.toml")
+    run.add_argument("--controller", default="reference",
+                     help="'reference' (in this process) or the link URL of the controller "
+                     "under test, e.g. udp://127.0.0.1:5000?peer=127.0.0.1:5001")
+    run.add_argument("--mode", choices=("lockstep", "realtime"), default="lockstep")
+    run.add_argument("--seed", type=int, default=None,
+                     help="seed of the sensor noise and random faults (default: the file's)")
+    run.add_argument("--record", default=None, help="write the recording to this file")
+    run.add_argument("--junit", default=None, help="write JUnit XML here")
+    run.add_argument("--report", default=None, help="write PNG plots and index.html here")
+    run.set_defaults(func=_cmd_run)
+
+    replay = sub.add_parser("replay", help="run a recorded scenario again and compare")
+    replay.add_argument("recording", help="a recording made by railrig run --record")
+    replay.set_defaults(func=_cmd_replay, controller="reference", mode="lockstep", seed=None)
 
     bench = sub.add_parser("bench", help="print the plant's cost per frame")
     bench.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")

@@ -80,7 +80,7 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
     from emulator.link import open_link
     from emulator.profile import load_trainset
     from emulator.rig import Rig
-    from emulator.scenario import DemoRun
+    from emulator.scenario.driver import demo_program
 
     params = load_trainset(profile)
     child = None
@@ -108,8 +108,8 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
             [sys.executable, "-m", "emulator.cli", "controller", "--profile", str(profile),
              "--link", f"udp://127.0.0.1:{ctl_port}?peer=127.0.0.1:{rig_port}",
              "--idle-timeout", "5"])
-    program = DemoRun(target_kmh=target_kmh, stop_at_m=stop_at_m, cruise_s=cruise_s,
-                      coast_s=coast_s)
+    program = demo_program(target_kmh=target_kmh, stop_at_m=stop_at_m, cruise_s=cruise_s,
+                           coast_s=coast_s)
     rig.program = program
     t_wall = time.perf_counter()
     try:

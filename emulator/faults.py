@@ -8,7 +8,9 @@ exist:
 - ``command``: the command vector on its way from the link to the plant (a gate that
   will not turn on, a contactor that will not close);
 - ``plant``: a plant parameter (adhesion, rail condition, cooling, link capacitance);
-- ``link``: the receive path (telegrams dropped before decoding).
+- ``line``: the catenary (level, dead line, phase, frequency, receptivity);
+- ``link``: the receive path (telegrams dropped before decoding); delays, duplicates,
+  reordering and corruption are the ``loop://`` link's manipulator's.
 
 Triggers: a plant time (``at_s``), a position (``at_m``) or a condition on a readable
 state (``when = "train.speed_mps > 22"``), parsed by a small grammar, never evaluated.
@@ -42,44 +44,92 @@ class FaultKind:
     """An entry of the catalogue."""
 
     name: str
-    point: str  # measurement, command, plant, link
+    point: str  # measurement, command, plant, line, link
     target: str  # what it needs: "analog channel", "encoder", "inverter", "axle", ...
     params: dict[str, Param]
     description: str
 
 
+def _kind(name, point, target, params, description) -> FaultKind:
+    return FaultKind(name, point, target, {k: Param(*v) for k, v in params.items()},
+                     description)
+
+
 CATALOGUE: dict[str, FaultKind] = {k.name: k for k in [
-    FaultKind("sensor-offset", "measurement", "analog channel",
-              {"offset": Param("SI unit of the channel", -1e5, 1e5, 0.0)},
-              "adds a constant to a measured value (a transducer offset)"),
-    FaultKind("sensor-gain", "measurement", "analog channel",
-              {"gain": Param("1", 0.0, 10.0, 1.0)},
-              "scales a measured value (a gain error)"),
-    FaultKind("sensor-stuck", "measurement", "analog channel",
-              {"value": Param("SI unit of the channel", -1e5, 1e5, 0.0)},
-              "the measured value freezes at a value (a dead sensor reads 0)"),
-    FaultKind("encoder-pulse-loss", "measurement", "encoder",
-              {"counts_per_s": Param("count/s", -1e5, 1e5, 100.0)},
-              "the counter loses (or gains) edges at a steady rate"),
-    FaultKind("gate-driver-fault", "command", "inverter",
-              {}, "the inverter's gates stay blocked and its fault flag is set"),
-    FaultKind("leg-wont-turn-on", "command", "inverter leg",
-              {"leg": Param("0..2 (a, b, c)", 0, 2, 0)},
-              "one leg's upper IGBT does not turn on: its duty is forced to 0"),
-    FaultKind("contactor-wont-close", "command", "line converter",
-              {}, "the line contactor stays open whatever it is commanded"),
-    FaultKind("low-adhesion", "plant", "axle",
-              {"factor": Param("1", 0.0, 2.0, 0.3)},
-              "the friction coefficient of an axle falls to factor x mu0 (leaves, oil)"),
-    FaultKind("lost-cooling", "plant", "motor",
-              {"effectiveness": Param("1", 0.0, 1.0, 0.0)},
-              "the motor's cooling falls to a fraction of its design value"),
-    FaultKind("link-capacitance-loss", "plant", "DC link",
-              {"remaining": Param("1", 0.05, 1.0, 0.5)},
-              "a DC-link capacitor bank loses part of its capacitance"),
-    FaultKind("telegram-loss", "link", "link",
-              {"probability": Param("1", 0.0, 1.0, 0.1)},
-              "received telegrams are dropped before decoding"),
+    # --- measurement: the sensor chain -------------------------------------------------
+    _kind("sensor-offset", "measurement", "analog channel",
+          {"offset": ("SI unit of the channel", -1e5, 1e5, 0.0)},
+          "adds a constant to a measured value (a transducer offset)"),
+    _kind("sensor-gain", "measurement", "analog channel", {"gain": ("1", 0.0, 10.0, 1.0)},
+          "scales a measured value (a gain error)"),
+    _kind("sensor-stuck", "measurement", "analog channel",
+          {"value": ("SI unit of the channel", -1e5, 1e5, 0.0)},
+          "the measured value freezes at a value (a dead sensor reads 0)"),
+    _kind("sensor-dropout", "measurement", "analog channel",
+          {"probability": ("1", 0.0, 1.0, 0.2)},
+          "the reading falls to 0 in a random fraction of frames (a loose contact)"),
+    _kind("sensor-noise", "measurement", "analog channel",
+          {"rms": ("SI unit of the channel", 0.0, 1e5, 1.0)},
+          "extra white noise on the reading, from the rig's seeded generator"),
+    _kind("sensor-drift", "measurement", "analog channel",
+          {"rate_per_s": ("SI unit of the channel per s", -1e4, 1e4, 1.0)},
+          "the offset grows at a steady rate (a drifting transducer)"),
+    _kind("sensor-saturation", "measurement", "analog channel",
+          {"limit": ("SI unit of the channel", 0.0, 1e5, 100.0)},
+          "the reading clips at +-limit (a transducer or ADC range too small)"),
+    _kind("encoder-pulse-loss", "measurement", "encoder",
+          {"counts_per_s": ("count/s", -1e5, 1e5, 100.0)},
+          "the counter loses (or gains) edges at a steady rate"),
+    _kind("encoder-channel-loss", "measurement", "encoder", {},
+          "one quadrature channel is lost: no countable edges, the count stands still"),
+    _kind("encoder-wrong-ppr", "measurement", "encoder", {"ratio": ("1", 0.1, 10.0, 0.5)},
+          "the encoder gives ratio x the pulses per revolution the controller expects"),
+    # --- power stage and switchgear ----------------------------------------------------
+    _kind("gate-driver-fault", "command", "inverter", {},
+          "the inverter's gates stay blocked and its fault flag is set"),
+    _kind("leg-wont-turn-on", "command", "inverter leg", {"leg": ("0..2 (a, b, c)", 0, 2, 0)},
+          "one leg's upper IGBT does not turn on: its duty is forced to 0"),
+    _kind("shorted-leg", "command", "inverter leg",
+          {"leg": ("0..2 (a, b, c)", 0, 2, 0), "spike_a": ("A", 0.0, 1e4, 2500.0)},
+          "a leg shoots through: the driver's desaturation trip blocks the gates and flags "
+          "the leg; the phase current reading shows a spike for one period"),
+    _kind("contactor-wont-close", "command", "line converter", {},
+          "the line contactor stays open whatever it is commanded"),
+    _kind("contactor-welded", "command", "line converter", {},
+          "the line contactor is welded: it stays closed whatever it is commanded"),
+    _kind("chopper-failed", "command", "DC link", {},
+          "the brake chopper does not switch: its duty is forced to 0"),
+    # --- plant parameters --------------------------------------------------------------
+    _kind("low-adhesion", "plant", "axle", {"factor": ("1", 0.0, 2.0, 0.3)},
+          "the friction coefficient of an axle falls to factor x mu0 (leaves, oil)"),
+    _kind("sanding", "plant", "axle",
+          {"gain": ("1", 1.0, 3.0, 1.5), "delay_s": ("s", 0.0, 10.0, 1.0)},
+          "sand reaches the contact after a delay and raises the friction by a gain"),
+    _kind("wheel-diameter-error", "plant", "axle", {"error_pct": ("%", -10.0, 10.0, -2.0)},
+          "the wheel's real diameter differs from the controller's value by error_pct"),
+    _kind("lost-cooling", "plant", "motor", {"effectiveness": ("1", 0.0, 1.0, 0.0)},
+          "the motor's cooling falls to a fraction of its design value"),
+    _kind("rotor-temperature", "plant", "motor",
+          {"temperature_degc": ("degC", -40.0, 250.0, 150.0)},
+          "the rotor cage is held at a temperature the stator sensor does not see "
+          "(rotor resistance detuning)"),
+    _kind("link-capacitance-loss", "plant", "DC link", {"remaining": ("1", 0.05, 1.0, 0.5)},
+          "a DC-link capacitor bank loses part of its capacitance"),
+    # --- line: catenary events ---------------------------------------------------------
+    _kind("catenary-dip", "line", "catenary", {"voltage_pu": ("1", 0.0, 1.5, 0.7)},
+          "the line EMF steps to a fraction of nominal (a dip, or a rise above 1)"),
+    _kind("catenary-interruption", "line", "catenary", {},
+          "the line goes dead (a feeding breaker opens, a phase break)"),
+    _kind("phase-jump", "line", "catenary", {"angle_deg": ("deg", -180.0, 180.0, 30.0)},
+          "the line voltage's phase jumps once when the fault starts"),
+    _kind("line-frequency", "line", "catenary", {"frequency_hz": ("Hz", 1.0, 100.0, 49.5)},
+          "the line frequency changes, phase-continuously"),
+    _kind("non-receptive-line", "line", "catenary",
+          {"droop_v_per_kw": ("V/kW", 0.0, 100.0, 10.0)},
+          "the line cannot take regenerated power: its EMF rises with the reverse power"),
+    # --- link ------------------------------------------------------------------------
+    _kind("telegram-loss", "link", "link", {"probability": ("1", 0.0, 1.0, 0.1)},
+          "received telegrams are dropped before decoding"),
 ]}
 
 _CONDITION = re.compile(r"^\s*([a-z_]+\.[a-z_0-9]+)(?:\[(\d+)\])?\s*(<=|>=|<|>|==)\s*"
@@ -128,6 +178,7 @@ class Fault:
     start_m: float | None = None
     start_when: Condition | None = None
     stop_s: float | None = None
+    label: str = ""
     active: bool = False
     done: bool = False
     applied: dict[str, Any] = field(default_factory=dict)
@@ -149,7 +200,7 @@ class Fault:
 def make_fault(name: str, target: str, params: dict[str, float] | None = None, *,
                at_s: float | None = None, at_m: float | None = None,
                when: str | None = None, until_s: float | None = None,
-               known_states=()) -> Fault:
+               known_states=(), label: str = "") -> Fault:
     """A fault from the catalogue, its parameters checked against their ranges."""
     kind = CATALOGUE.get(name)
     if kind is None:
@@ -169,138 +220,11 @@ def make_fault(name: str, target: str, params: dict[str, float] | None = None, *
     if at_s is None and at_m is None and when is None:
         at_s = 0.0
     condition = Condition.parse(when, known_states) if when else None
-    return Fault(kind, target, values, at_s, at_m, condition, until_s)
+    return Fault(kind, target, values, at_s, at_m, condition, until_s,
+                 label or f"{name}@{target}")
 
 
-class FaultSet:
-    """The faults of a run, applied to a rig at their points each frame."""
+from emulator.fault_points import FaultSet  # noqa: E402  (applies the catalogue)
 
-    def __init__(self, rig, seed: int = 0) -> None:
-        import random
-
-        self.rig = rig
-        self.faults: list[Fault] = []
-        self._rng = random.Random(seed)
-        p = rig.plant.params
-        self._motors = [f"{c.name}.m{j + 1}" for c in p.converters
-                        for j in range(len(c.wheel_diameters_m))]
-        self._inverters = [c.name for c in p.converters]
-        self._links = [lk.name for lk in p.dc_links]
-        self._line_converters = [u.name for u in p.line_converters]
-        self.drop_probability = 0.0
-
-    def add(self, name: str, target: str, params: dict[str, float] | None = None,
-            **triggers) -> Fault:
-        """Schedule a fault; the target is checked now, not when the fault starts."""
-        fault = make_fault(name, target, params, known_states=self.rig.plant.names(),
-                           **triggers)
-        self._index(fault)  # raises FaultError for an unknown target
-        self.faults.append(fault)
-        return fault
-
-    def clear(self, name: str) -> None:
-        """End every active fault of that name (catalogue name or name@target)."""
-        for f in self.faults:
-            if f.active and name in (f.kind.name, f.name):
-                self._remove(f)
-
-    def _index(self, f: Fault) -> int:
-        target = f.target
-        table = {"analog channel": self.rig.sampler.analog_names, "encoder": self._motors,
-                 "axle": self._motors, "motor": self._motors, "inverter": self._inverters,
-                 "inverter leg": self._inverters, "DC link": self._links,
-                 "line converter": self._line_converters, "link": ["link"]}[f.kind.target]
-        if target not in table:
-            raise FaultError(f"{f.kind.name}: no {f.kind.target} named {target!r} "
-                             f"(known: {', '.join(table[:6])}{'...' if len(table) > 6 else ''})")
-        return table.index(target)
-
-    def update(self) -> None:
-        """Start faults whose trigger fired, end those whose time is up; per frame."""
-        plant = self.rig.plant
-        for f in self.faults:
-            if not f.active and not f.done and f.due(plant):
-                self._apply(f)
-            elif f.active and f.stop_s is not None and plant.time_s >= f.stop_s:
-                self._remove(f)
-            if f.active and f.kind.name == "encoder-pulse-loss":
-                acc = f.applied.setdefault("acc", 0.0) + f.params["counts_per_s"] * (
-                    self.rig.period_us * 1e-6)
-                whole = math.trunc(acc)
-                f.applied["acc"] = acc - whole
-                self.rig.sampler.encoders.count_offset[self._index(f)] -= whole
-
-    def _apply(self, f: Fault) -> None:
-        i, kind, rig = self._index(f), f.kind.name, self.rig
-        analog, plant = rig.sampler.analog, rig.plant
-        if kind == "sensor-offset":
-            analog.fault_offset[i] += f.params["offset"]
-        elif kind == "sensor-gain":
-            analog.fault_gain[i] *= f.params["gain"]
-        elif kind == "sensor-stuck":
-            analog.stuck[i] = f.params["value"]
-        elif kind == "gate-driver-fault":
-            rig.sampler.gate_fault[i] = 7
-        elif kind == "low-adhesion":
-            f.applied["was"] = float(plant.mpar[i, _col("MP_ADHESION_FACTOR")])
-            plant.set_adhesion_factor(i, f.params["factor"])
-        elif kind == "lost-cooling":
-            f.applied["was"] = float(plant.mpar[i, _col("MP_COOLING")])
-            plant.mpar[i, _col("MP_COOLING")] = f.params["effectiveness"]
-        elif kind == "link-capacitance-loss":
-            f.applied["was"] = float(plant.kp[i, _col("KP_C")])
-            plant.kp[i, _col("KP_C")] *= f.params["remaining"]
-        elif kind == "telegram-loss":
-            self.drop_probability = f.params["probability"]
-        f.active = True
-
-    def _remove(self, f: Fault) -> None:
-        i, kind, rig = self._index(f), f.kind.name, self.rig
-        analog, plant = rig.sampler.analog, rig.plant
-        if kind == "sensor-offset":
-            analog.fault_offset[i] -= f.params["offset"]
-        elif kind == "sensor-gain":
-            analog.fault_gain[i] /= f.params["gain"] or 1.0
-        elif kind == "sensor-stuck":
-            analog.stuck[i] = math.nan
-        elif kind == "gate-driver-fault":
-            rig.sampler.gate_fault[i] = 0
-        elif kind == "low-adhesion":
-            plant.set_adhesion_factor(i, f.applied["was"])
-        elif kind == "lost-cooling":
-            plant.mpar[i, _col("MP_COOLING")] = f.applied["was"]
-        elif kind == "link-capacitance-loss":
-            plant.kp[i, _col("KP_C")] = f.applied["was"]
-        elif kind == "telegram-loss":
-            self.drop_probability = 0.0
-        f.active, f.done = False, True
-
-    def transform_command(self, values, names_index) -> None:
-        """Command-point faults act on the command vector (physical units) in place."""
-        for f in self.faults:
-            if not f.active:
-                continue
-            kind = f.kind.name
-            if kind == "gate-driver-fault":
-                values[names_index[f"{f.target}.gates_enabled"]] = 0.0
-            elif kind == "leg-wont-turn-on":
-                leg = "abc"[int(f.params["leg"])]
-                values[names_index[f"{f.target}.duty_{leg}"]] = 0.0
-            elif kind == "contactor-wont-close":
-                values[names_index[f"{f.target}.line_contactor_close"]] = 0.0
-
-    def drop(self) -> bool:
-        """Whether the link fault eats this telegram."""
-        return self.drop_probability > 0.0 and self._rng.random() < self.drop_probability
-
-    def listing(self) -> list[dict[str, Any]]:
-        """The faults with their state, for reports and the monitor."""
-        return [{"name": f.name, "point": f.kind.point, "params": f.params,
-                 "state": "active" if f.active else ("cleared" if f.done else "armed")}
-                for f in self.faults]
-
-
-def _col(name: str) -> int:
-    from emulator.plant import layout
-
-    return getattr(layout, name)
+__all__ = ["CATALOGUE", "Condition", "Fault", "FaultError", "FaultKind", "FaultSet",
+           "Param", "make_fault"]

@@ -28,7 +28,7 @@ from emulator.plant.params import (
     TrainsetParams,
     TransformerParams,
 )
-from emulator.profile_table import ProfileError, Table, read_toml
+from emulator.profile_table import ProfileError, Table, read_toml, read_toml_lines
 from emulator.sensors import ChannelSpec, SensorParams
 
 __all__ = ["ProfileError", "Table", "load_machine", "load_trainset", "read_toml",
@@ -52,10 +52,16 @@ def resolve_profile(name: str | Path) -> Path:
     return path
 
 
+def _read(path: Path | str) -> tuple[dict, Path | str, str, dict]:
+    """Data, file, root section and key lines, for a root Table."""
+    data, lines, _ = read_toml_lines(path)
+    return data, path, "", lines
+
+
 def load_machine(path: Path | str) -> MachineParams:
     """Load a machine profile (a file with a [machine] table)."""
     path = resolve_profile(path)
-    root = Table(read_toml(path), path, "")
+    root = Table(*_read(path))
     t = root.table("machine")
     root.finish()
     name = t.string("name")
@@ -295,7 +301,7 @@ def _dc_link(t: Table) -> DcLinkParams:
 def load_trainset(path: Path | str) -> TrainsetParams:
     """Load a trainset profile and the machine profile it names."""
     path = resolve_profile(path)
-    root = Table(read_toml(path), path, "")
+    root = Table(*_read(path))
     ts = root.table("trainset")
     machine_file = ts.string("machine_profile")
     machine_path = (path.parent / machine_file).resolve()

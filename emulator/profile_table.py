@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 import tomllib
 from pathlib import Path
 from typing import Any
@@ -20,15 +21,35 @@ class ProfileError(ValueError):
 class Table:
     """Reads one TOML table, checking each key once and rejecting unknown ones."""
 
-    def __init__(self, data: dict[str, Any], file: Path | str, section: str) -> None:
+    def __init__(self, data: dict[str, Any], file: Path | str, section: str,
+                 lines: dict[tuple[str, str], int] | None = None) -> None:
         self._data = data
         self._file = str(file)
         self._section = section
+        self._lines = lines or {}  # (section, key) -> line number, from key_lines()
         self._seen: set[str] = set()
 
+    def _sub(self, data: dict[str, Any], section: str) -> Table:
+        return Table(data, self._file, section, self._lines)
+
+    def line_of(self, key: str) -> int | None:
+        """The line where key (or, failing that, its table) is written, if known."""
+        section, key = self._section, key.split("[")[0]
+        while True:
+            for k in (key, ""):
+                if (section, k) in self._lines:
+                    return self._lines[section, k]
+            if not section:
+                return None
+            # an inline table: the line of the key that holds it
+            section, _, key = section.rpartition(".")
+            key = key.split("[")[0]
+
     def error(self, key: str, message: str) -> ProfileError:
-        """An error naming the file, the table and the key."""
-        return ProfileError(f"{self._file}: [{self._section}] {key}: {message}")
+        """An error naming the file, its line (when known), the table and the key."""
+        line = self.line_of(key)
+        where = f"{self._file}:{line}" if line else self._file
+        return ProfileError(f"{where}: [{self._section}] {key}: {message}")
 
     def has(self, key: str) -> bool:
         """Whether the table holds key."""
@@ -79,7 +100,7 @@ class Table:
             raise self.error(key, f"expected a list of at least {min_len} numbers in {unit}")
         out = []
         for i, item in enumerate(value):
-            sub = Table({f"{key}[{i}]": item}, self._file, self._section)
+            sub = self._sub({f"{key}[{i}]": item}, self._section)
             out.append(sub.number(f"{key}[{i}]", unit, lo, hi, lo_open=lo_open))
         return tuple(out)
 
@@ -88,7 +109,7 @@ class Table:
         value = self._get(key)
         if not isinstance(value, dict):
             raise self.error(key, "expected a table")
-        return Table(value, self._file, f"{self._section}.{key}" if self._section else key)
+        return self._sub(value, f"{self._section}.{key}" if self._section else key)
 
     def tables(self, key: str) -> list[Table]:
         """An array of tables ([[key]] in TOML), at least one."""
@@ -96,7 +117,28 @@ class Table:
         if not isinstance(value, list) or not value or not all(isinstance(v, dict)
                                                                 for v in value):
             raise self.error(key, "expected one or more [[" + key + "]] tables")
-        return [Table(v, self._file, f"{key}[{i}]") for i, v in enumerate(value)]
+        prefix = f"{self._section}.{key}" if self._section else key
+        return [self._sub(v, f"{prefix}[{i}]") for i, v in enumerate(value)]
+
+    def optional(self, key: str) -> bool:
+        """Whether an optional key is present (marks it as read)."""
+        self._seen.add(key)
+        return key in self._data
+
+    def boolean(self, key: str) -> bool:
+        """true or false."""
+        value = self._get(key)
+        if not isinstance(value, bool):
+            raise self.error(key, f"expected true or false, got {value!r}")
+        return value
+
+    def raw(self, key: str) -> Any:
+        """The value as written (the caller checks it)."""
+        return self._get(key)
+
+    def written_keys(self) -> list[str]:
+        """The keys written in this table."""
+        return list(self._data)
 
     def finish(self) -> None:
         """Raise on keys nobody asked for: a misspelt key is an error, not a default."""
@@ -117,3 +159,48 @@ def read_toml(path: Path | str) -> dict[str, Any]:
         raise ProfileError(f"{path}: not valid TOML: {exc}") from None
     except OSError as exc:
         raise ProfileError(f"{path}: cannot read: {exc}") from None
+
+
+_HEADER = re.compile(r"^\s*(\[\[?)\s*([^\]]+?)\s*\]\]?")
+_KEY = re.compile(r"^\s*([A-Za-z0-9_\-]+|\"[^\"]*\")\s*=")
+
+
+def key_lines(text: str) -> dict[tuple[str, str], int]:
+    """Line numbers of tables and keys: (section, key) -> line, ("section", "") for headers.
+
+    Sections are named as ``Table`` names them: ``track.gradient[1]`` for the second
+    ``[[track.gradient]]``. Keys inside inline tables are found through their parent key.
+    """
+    lines: dict[tuple[str, str], int] = {}
+    counts: dict[str, int] = {}
+    section = ""
+    for number, line in enumerate(text.splitlines(), start=1):
+        m = _HEADER.match(line)
+        if m:
+            brackets, name = m.groups()
+            parts = [p.strip().strip('"') for p in name.split(".")]
+            # a table inside the newest element of an array of tables
+            path = ""
+            for i, part in enumerate(parts):
+                path = f"{path}.{part}" if path else part
+                if i < len(parts) - 1 and path in counts:
+                    path = f"{path}[{counts[path] - 1}]"
+            if brackets == "[[":
+                base = path
+                counts[base] = counts.get(base, 0) + 1
+                path = f"{base}[{counts[base] - 1}]"
+            section = path
+            lines.setdefault((section, ""), number)
+            continue
+        m = _KEY.match(line)
+        if m:
+            lines.setdefault((section, m.group(1).strip('"')), number)
+    return lines
+
+
+def read_toml_lines(path: Path | str) -> tuple[dict[str, Any], dict[tuple[str, str], int],
+                                               str]:
+    """Parse a TOML file and locate its keys: (data, key lines, text)."""
+    data = read_toml(path)
+    text = Path(path).read_text(encoding="utf-8")
+    return data, key_lines(text), text

@@ -5,6 +5,8 @@ File layout (our own; all integers little-endian)::
     chunk := b"RRC1" | length (uint32) | crc32 of the payload (uint32) | payload
     payload of the first chunk: msgpack {"meta": {...}, "columns": [...]}
     payload of the others:     msgpack {"frame0": int, "rows": int, "data": float64 bytes}
+                            or {"mark": {...}}: something that happened (a fault began,
+                            a driver step started), written after the rows before it
 
 CRC-32 is zlib's (the IEEE polynomial; check value 0xCBF43926 over "123456789"). Rows are
 buffered and written as a chunk at least every ``flush_s`` of wall time (and whenever the
@@ -71,6 +73,12 @@ class Recorder:
             self._frame0 += self._n
             self._n = 0
 
+    def mark(self, **what: Any) -> None:
+        """Note a moment (e.g. ``label=..., t=...``) in order with the rows."""
+        if not self._fh.closed:
+            self.flush()
+            self._write({"mark": what})
+
     def close(self) -> None:
         """Flush and close."""
         if not self._fh.closed:
@@ -93,6 +101,7 @@ class Recording:
     data: np.ndarray  # frames x columns
     complete: bool  # False: the file ended in a truncated or corrupt chunk
     note: str = ""
+    marks: list[dict[str, Any]] = None  # moments noted with Recorder.mark, in order
 
     def column(self, name: str) -> np.ndarray:
         """One column by name."""
@@ -122,12 +131,15 @@ def read_recording(path: str | Path) -> Recording:
         pos += _HEAD.size + length
     if not chunks or "columns" not in chunks[0]:
         raise RecordingError(f"{path}: not a railrig recording ({note or 'empty'})")
-    head, body = chunks[0], chunks[1:]
+    head = chunks[0]
+    body = [c for c in chunks[1:] if "data" in c]
+    marks = [c["mark"] for c in chunks[1:] if "mark" in c]
     n_cols = len(head["columns"])
     data = (np.concatenate([np.frombuffer(c["data"], dtype=np.float64).reshape(c["rows"],
                                                                             n_cols)
                             for c in body]) if body else np.zeros((0, n_cols)))
-    return Recording(head["meta"], head["columns"], data, complete=not note, note=note)
+    return Recording(head["meta"], head["columns"], data, complete=not note, note=note,
+                     marks=marks)
 
 
 def export_csv(rec: Recording, path: str | Path) -> None:

@@ -214,20 +214,37 @@ class Rig:
         commands = self.mapper.commands(held, gates_allowed=not self.tripped)
         self.plant.advance(commands, period_us / 1e6)
         if self.recorder is not None:
-            self._row[0] = self.plant.time_s
-            self._row[1:1 + len(self._y)] = self._y  # y_k, what the controller saw
-            self._row[1 + len(self._y):] = held  # the command that acted in this frame
-            self.recorder.append(self._row)
+            row, ny, nu = self._row, len(self._y), len(held)
+            row[0] = self.plant.time_s
+            row[1:1 + ny] = self._y  # y_k, what the controller saw
+            row[1 + ny:1 + ny + nu] = held  # the command that acted in this frame
+            i = 1 + ny + nu
+            for array, col, n in self._states:  # the plant's own states at t_(k+1)
+                row[i:i + n] = array[:n, col] if n > 1 or array.ndim == 2 else array[col]
+                i += n
+            row[i:] = self.extras
+            self.recorder.append(row)
         if self.program is not None:
             self.program.update(self)  # the train's demands for the next measurement
         self._y = self.sampler.sample(period_us / 1e6, self.driver)
         self.frame += 1
 
-    def record_columns(self) -> list[str]:
-        """Columns of a recording: plant time, the measurements, the commands applied."""
+    def record_columns(self, states: list[str] = (), extras: list[str] = ()) -> list[str]:
+        """Columns of a recording: plant time, the measurements, the commands applied,
+        then any plant states asked for (``p.<state>``, ``p.<state>[i]`` per element),
+        then ``extras``: values a driver program keeps in ``rig.extras`` (a frame late)."""
         sm = self.signal_map
         cols = (["time_s"] + [f"y.{s.name}" for s in sm.measurements]
                 + [f"u.{s.name}" for s in sm.commands])
+        self._states = []
+        for name in states:
+            array, col = self.plant.state_column(name)
+            n = array.shape[0] if array.ndim == 2 else 1
+            self._states.append((array, col, n))
+            cols += [f"p.{name}"] if n == 1 and array.ndim == 1 else [
+                f"p.{name}[{i}]" for i in range(n)]
+        self.extras = np.zeros(len(extras))
+        cols += [f"p.{name}" for name in extras]
         self._row = np.zeros(len(cols))
         return cols
 
@@ -245,7 +262,7 @@ class Rig:
         if not self._started:
             self.start()
             self._started = True
-        gc.collect()
+            gc.collect()  # once: a full collection costs tens of ms with numba loaded
         gc.freeze()  # warm-up objects out of the collector's way (DESIGN.md timing facts)
         try:
             if self.mode == "lockstep":

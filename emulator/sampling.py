@@ -148,7 +148,8 @@ class MeasurementSampler:
         enc = self.encoders
         self._train[:] = driver.values()
         _assemble(analog, self._analog_pos, self._values[n:], self._flag_pos, self._angle,
-                  enc.edges_per_rev / (2 * math.pi), enc.count_offset, enc.COUNTER_MODULUS,
+                  enc.edges_per_rev / (2 * math.pi), enc.edge_scale, enc.count_offset,
+                  enc.COUNTER_MODULUS,
                   self._count_pos, self.gate_fault, self._fault_pos, self._train,
                   self._train_pos, out)
         return out
@@ -175,15 +176,15 @@ def _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle):
 
 
 @nb.njit(cache=True)
-def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, count_offset,
-              modulus, count_pos, gate_fault, fault_pos, train, train_pos, out):
+def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, edge_scale,
+              count_offset, modulus, count_pos, gate_fault, fault_pos, train, train_pos, out):
     """Scatter the channel outputs, flags, encoder counts, fault flags and demands into y."""
     for i in range(analog.shape[0]):
         out[analog_pos[i]] = analog[i]
     for i in range(flags.shape[0]):
         out[flag_pos[i]] = flags[i]
     for m in range(angle.shape[0]):
-        edges = np.int64(math.floor(angle[m] * edges_per_rad)) + count_offset[m]
+        edges = np.int64(math.floor(angle[m] * edges_per_rad * edge_scale[m])) + count_offset[m]
         out[count_pos[m]] = edges % modulus
     for k in range(gate_fault.shape[0]):
         out[fault_pos[k]] = gate_fault[k]

@@ -120,16 +120,24 @@ class Encoders:
     def __init__(self, n: int, lines: int) -> None:
         self.edges_per_rev = 4 * lines
         self.count_offset = np.zeros(n, dtype=np.int64)  # fault hook: lost pulses
+        self.edge_scale = np.ones(n)  # fault hook: wrong pulses per revolution (0: frozen)
+
+    def set_edge_scale(self, i: int, scale: float, angle_rad: float) -> None:
+        """Change encoder i's edges per radian without a jump in its count."""
+        k = self.edges_per_rev / (2 * math.pi) * angle_rad
+        before = math.floor(k * self.edge_scale[i])
+        self.edge_scale[i] = scale
+        self.count_offset[i] += before - math.floor(k * scale)
 
     def counts(self, angle_rad: np.ndarray) -> np.ndarray:
         """Counter values for the shaft angles (unwrapped, rad)."""
         out = np.empty(len(angle_rad), dtype=np.int64)
-        _counts(angle_rad, self.edges_per_rev / (2 * math.pi), self.count_offset,
-                self.COUNTER_MODULUS, out)
+        _counts(angle_rad, self.edges_per_rev / (2 * math.pi), self.edge_scale,
+                self.count_offset, self.COUNTER_MODULUS, out)
         return out
 
 
 @nb.njit(cache=True)
-def _counts(angle, edges_per_rad, offset, modulus, out):
+def _counts(angle, edges_per_rad, scale, offset, modulus, out):
     for i in range(angle.shape[0]):
-        out[i] = (np.int64(math.floor(angle[i] * edges_per_rad)) + offset[i]) % modulus
+        out[i] = (np.int64(math.floor(angle[i] * edges_per_rad * scale[i])) + offset[i]) % modulus

@@ -56,7 +56,8 @@ def test_conditions_are_parsed_never_evaluated(params, when: str) -> None:
 
 
 def test_every_catalogue_entry_names_its_point() -> None:
-    assert {k.point for k in CATALOGUE.values()} == {"measurement", "command", "plant", "link"}
+    assert {k.point for k in CATALOGUE.values()} == {"measurement", "command", "plant", "line",
+                                                     "link"}
 
 
 def test_stuck_sensor_applies_and_clears_by_time(params) -> None:

@@ -27,3 +27,12 @@ NAMES = {
 #: events that are protective trips (a demo run must not see them)
 TRIPS = {INVERTER_OVERCURRENT, LINK_OVERVOLTAGE, OVERSPEED, MOTOR_OVERTEMPERATURE,
          SEQUENCE_TIMEOUT}
+
+#: names a scenario's checks may use for the codes above ("trip": any of TRIPS)
+SLUGS = {
+    "sequence-timeout": SEQUENCE_TIMEOUT, "inverter-overcurrent": INVERTER_OVERCURRENT,
+    "link-overvoltage": LINK_OVERVOLTAGE, "link-undervoltage": LINK_UNDERVOLTAGE,
+    "overspeed": OVERSPEED, "motor-derating": MOTOR_TEMPERATURE_DERATING,
+    "motor-overtemperature": MOTOR_OVERTEMPERATURE, "link-watchdog": LINK_WATCHDOG,
+    "line-undervoltage": LINE_UNDERVOLTAGE, "wheel-slip": WHEEL_SLIP,
+}

@@ -336,14 +336,17 @@ class Plant:
     # --- reading ----------------------------------------------------------------------
     def read(self, name: str) -> np.ndarray | float:
         """A state by name: an array over motors/inverters/links, or a train scalar."""
-        try:
-            array, column, _unit, _ = L.READABLE[name]
-        except KeyError:
-            raise KeyError(f"no state named {name!r}; see Plant.names()") from None
-        data = getattr(self, {"motor_state": "ms", "inverter_state": "ist",
-                              "link_state": "lst", "train_state": "ts", "supply_state": "ss",
-                              "lc_state": "ls2"}[array])
+        data, column = self.state_column(name)
         return float(data[column]) if data.ndim == 1 else data[:, column].copy()
+
+    def state_column(self, name: str) -> tuple[np.ndarray, int]:
+        """The live array and column of a state (for recorders that gather each frame)."""
+        if name not in L.READABLE:
+            raise KeyError(f"no state named {name!r}; see Plant.names()")
+        array, column, _unit, _ = L.READABLE[name]
+        return getattr(self, {"motor_state": "ms", "inverter_state": "ist",
+                              "link_state": "lst", "train_state": "ts", "supply_state": "ss",
+                              "lc_state": "ls2"}[array]), column
 
     @staticmethod
     def names() -> dict[str, str]:

@@ -1,0 +1,113 @@
+"""The track under the train: gradient, curves, speed limits, neutral sections, adhesion.
+
+Applied to the plant once per frame at the train's position (one point: the pantograph
+and every axle are taken at the train's position, a simplification of a train some
+tens of metres long).
+
+Curve resistance enters as an equivalent gradient, by Röckl's formula for standard
+gauge (from memory, as quoted in running-time texts, e.g. Hansen & Pachl, *Railway
+Timetabling & Operations*, ch. on running time calculation):
+
+    r_c = 650 / (R - 55) N/kN   for R >= 300 m,      r_c = 500 / (R - 30) N/kN below,
+
+and 1 N/kN of resistance is 1 per mille of gradient (F = m g r_c / 1000).
+"""
+
+from __future__ import annotations
+
+import math
+
+from .spec import Stretch, TrackSpec
+
+
+def curve_resistance_per_mille(radius_m: float) -> float:
+    """Röckl's curve resistance, N/kN (= per mille of equivalent gradient)."""
+    if radius_m >= 300.0:
+        return 650.0 / (radius_m - 55.0)
+    return 500.0 / (radius_m - 30.0)
+
+
+def _at(stretches: tuple[Stretch, ...], x: float, default: float) -> float:
+    value = default
+    for s in stretches:
+        if s.from_m <= x < s.to_m:
+            value = s.value
+    return value
+
+
+class Track:
+    """Applies a TrackSpec to a plant and tells the driver and controller what is ahead."""
+
+    def __init__(self, spec: TrackSpec, plant) -> None:
+        self.spec = spec
+        self.plant = plant
+        p = plant.params
+        self.motor_names = [f"{c.name}.m{j + 1}" for c in p.converters
+                            for j in range(len(c.wheel_diameters_m))]
+        for zone in spec.adhesion_zones:
+            for axle in zone.axles:
+                if axle not in self.motor_names:
+                    raise ValueError(f"low-adhesion zone at {zone.from_m:g} m: no motored "
+                                     f"axle named {axle!r}")
+        self.base_rail = p.drivetrain.rail_condition
+        self._gradient = math.nan
+        self._live: bool | None = None
+        self._axle_state: list[tuple[str, float] | None] = [None] * len(self.motor_names)
+        self.decel = 0.5
+        self.on_event = None  # callback(label, "start" | "end", time)
+        self._inside: set[str] = set()
+
+    def gradient(self, x: float) -> float:
+        """Gradient plus the curve's equivalent gradient at x, rise over run."""
+        g = _at(self.spec.gradients, x, 0.0)
+        radius = _at(self.spec.curves, x, 0.0)
+        return g + (curve_resistance_per_mille(radius) * 1e-3 if radius else 0.0)
+
+    def ceiling(self, x: float, v: float) -> float:
+        """The highest speed allowed now: each limit here or ahead, by a braking curve."""
+        best = float("inf")
+        for s in self.spec.speed_limits:
+            if s.to_m <= x:
+                continue
+            gap = max(s.from_m - x, 0.0)
+            best = min(best, math.sqrt(s.value * s.value + 2 * self.decel * gap))
+        return best
+
+    def update(self, rig) -> None:
+        """Set gradient, supply and adhesion for the train's position; once per frame."""
+        plant = self.plant
+        x = plant.read("train.position_m")
+        g = self.gradient(x)
+        if g != self._gradient:
+            plant.set_gradient(g)
+            self._gradient = g
+        if self.spec.neutral_sections and plant.line_side:
+            live, ahead = True, False
+            for n in self.spec.neutral_sections:
+                if n.from_m <= x < n.to_m:
+                    live = False
+                self._note(n.label, n.from_m <= x < n.to_m, plant.time_s)
+                if n.from_m - n.notice_m <= x < n.to_m:
+                    ahead = True
+            if live != self._live:
+                plant.set_supply(live=live)
+                self._live = live
+            rig.driver.neutral_section_ahead = int(ahead)
+        for i, name in enumerate(self.motor_names):
+            state = None
+            for z in self.spec.adhesion_zones if i == 0 else ():
+                self._note(z.label, z.from_m <= x < z.to_m, plant.time_s)
+            for z in self.spec.adhesion_zones:
+                if z.from_m <= x < z.to_m and (not z.axles or name in z.axles):
+                    state = (z.rail, z.factor)
+            if state != self._axle_state[i]:
+                rail, factor = state or (self.base_rail, 1.0)
+                plant.set_rail_condition(i, rail)
+                plant.set_adhesion_factor(i, factor)
+                self._axle_state[i] = state
+
+    def _note(self, label: str, inside: bool, t: float) -> None:
+        if inside != (label in self._inside):
+            (self._inside.add if inside else self._inside.discard)(label)
+            if self.on_event is not None:
+                self.on_event(label, "start" if inside else "end", t)
