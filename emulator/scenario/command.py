@@ -31,8 +31,9 @@ def _progress() -> Progress:
                     console=console, transient=False)
 
 
-async def _run_one(path: Path, args, bar: Progress, record: Path | None) -> RunResult:
-    scenario = load_scenario(path)
+async def _run_one(path: Path, args, bar: Progress, record: Path | None,
+                   trainset: Path | None = None) -> RunResult:
+    scenario = load_scenario(path, trainset=trainset)
     task = bar.add_task(path.stem, total=scenario.duration_s, status="starting")
 
     def progress(t: float, total: float, kmh: float, x: float, phase: str) -> None:
@@ -131,14 +132,13 @@ def cmd_replay(args) -> int:
         return EXIT_UNRUNNABLE
     with tempfile.TemporaryDirectory() as tmp:
         scenario_path, trainset = _rebuild(meta, Path(tmp))
-        try:
-            scenario = load_scenario(scenario_path, trainset=trainset)
-        except ProfileError as exc:
-            console.print(f"[red]{exc}[/red]")
-            return EXIT_UNRUNNABLE
         args.controller, args.mode, args.seed = "reference", "lockstep", meta["seed"]
-        with _progress() as bar:
-            new = asyncio.run(_run_one(scenario_path, args, bar, None))
+        try:
+            with _progress() as bar:
+                new = asyncio.run(_run_one(scenario_path, args, bar, None, trainset))
+        except (ProfileError, RunError, ValueError, OSError) as exc:
+            console.print(f"[red]cannot replay: {exc}[/red]")
+            return EXIT_UNRUNNABLE
     same, note = compare(old, new.recording)
     out = Console()
     out.print(summary(judge(new.scenario, old)))

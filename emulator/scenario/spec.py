@@ -104,8 +104,8 @@ def load_scenario(path: str | Path, *, trainset: str | Path | None = None) -> Sc
     head = root.table("scenario")
     name = head.string("name")
     description = head.string("description") if head.optional("description") else ""
+    written = head.string("trainset")
     if trainset is None:
-        written = head.string("trainset")
         trainset = (path.parent / written).resolve()
         if not trainset.is_file():
             raise head.error("trainset", f"no trainset profile at {trainset}")
