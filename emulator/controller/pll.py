@@ -21,8 +21,11 @@ class SogiPll:
     """Tracks theta (rad), the frequency (Hz) and the amplitude of a sinusoid."""
 
     def __init__(self, f_nominal_hz: float, period_s: float, k_sogi: float = 1.41,
-                 bandwidth_hz: float | None = None) -> None:
+                 bandwidth_hz: float | None = None, min_amplitude: float = 0.0) -> None:
         self.T = period_s
+        # below this amplitude the line is dead: the loop holds the nominal frequency
+        # instead of chasing noise (and winding up), so it relocks at once on return
+        self.min_amplitude = min_amplitude
         self.k = k_sogi
         self.w_nom = 2 * math.pi * f_nominal_hz
         self.w = self.w_nom
@@ -59,8 +62,12 @@ class SogiPll:
         # the trapezoidal SOGI's outputs sit half a sample ahead of the input's instant:
         # its vector is longer by 1/cos(wT/2) and leads by wT/2 (corrected below)
         self.amplitude = max(abs(v_d), 1e-9) * math.cos(w * T / 2)
-        self._integral += self.ki * err * T
-        self.w = min(max(self._integral + self.kp * err, 0.5 * self.w_nom), 1.5 * self.w_nom)
+        lo, hi = 0.5 * self.w_nom, 1.5 * self.w_nom
+        if self.amplitude >= self.min_amplitude:
+            self._integral = min(max(self._integral + self.ki * err * T, lo), hi)
+            self.w = min(max(self._integral + self.kp * err, lo), hi)
+        else:
+            self._integral = self.w = self.w_nom
         theta_now = self.theta - w * T / 2
         self.theta = (self.theta + self.w * T) % (2 * math.pi)
         return theta_now % (2 * math.pi)

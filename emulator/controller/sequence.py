@@ -1,7 +1,8 @@
 """Switch-on sequence of the line side, with trip handling and a retry policy.
 
 Off -> main breaker -> precharge contactors (link charges through the resistors) ->
-line contactors -> precharge open -> running (line converters released). A trip opens
+line contactors -> precharge open -> running (line converters released, once the line
+voltage's phase is tracked again: ``line_locked``). A trip opens
 everything; after ``retry_s`` the sequence starts again, at most ``max_retries`` times in a
 row. A neutral section ahead opens the breaker after the power has been taken off, and
 the sequence recloses once the notice is gone (common practice).
@@ -48,7 +49,8 @@ class SwitchOnSequence:
             self.retries += 1
 
     def step(self, breaker_closed: bool, precharge_closed: bool, line_closed: bool,
-             link_min_v: float, neutral_ahead: bool, enabled: bool) -> SwitchgearCommand:
+             link_min_v: float, neutral_ahead: bool, enabled: bool,
+             line_locked: bool = True) -> SwitchgearCommand:
         """Advance one period."""
         self.timer += self.T
         s = self.state
@@ -66,7 +68,7 @@ class SwitchOnSequence:
             self.timer = 0.0
         elif s == PRECHARGE and link_min_v >= self.charged_v and precharge_closed:
             self.state, self.timer = LINE, 0.0
-        elif s == LINE and line_closed and self.timer >= 0.05:
+        elif s == LINE and line_closed and self.timer >= 0.05 and line_locked:
             self.state, self.timer = RUNNING, 0.0
             self.retries = 0
         elif s in (BREAKER, PRECHARGE, LINE) and self.timer > self.timeout_s:

@@ -29,6 +29,7 @@ DRIVE_EFFICIENCY = 0.85
 OVERLOAD = 1.4  # starting torque / rated torque
 POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
 FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
+LOCK_S = 0.2  # a live line tracked this long before the line converters run
 
 
 class ReferenceController:
@@ -61,7 +62,8 @@ class ReferenceController:
                 if link == i) for i in range(len(cfg.link_names))]
         self.links = [LinkControl(cfg, cfg.n_line_converters_per_link[i], self.p_rated_link[i])
                       for i in range(len(cfg.link_names))]
-        self.pll = SogiPll(cfg.line_frequency_hz, T)
+        self.pll = SogiPll(cfg.line_frequency_hz, T,
+                           min_amplitude=0.2 * cfg.line_nominal_v * math.sqrt(2))
         charged = 0.85 * cfg.secondary_v * math.sqrt(2) if cfg.line_side else 0.0
         self.sequence = SwitchOnSequence(T, charged)
         self.t_max_motor = OVERLOAD * cfg.rated_torque_nm
@@ -70,6 +72,7 @@ class ReferenceController:
         self.effort_n = 0.0  # jerk-limited effort reference of the whole train
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
+        self.line_live_s = 0.0
         self.block_until = [0.0] * n_inv
         self.t = 0.0
         self.event = 0
@@ -155,8 +158,13 @@ class ReferenceController:
                 self.sequence.trip(events.LINK_OVERVOLTAGE)
             pre = all(y[i] > 0.5 for i in self.ix_pre)
             line = all(y[i] > 0.5 for i in self.ix_line)
+            # release the line converters only after the PLL has tracked a live line for
+            # LOCK_S (after a neutral section or an interruption its phase is stale)
+            peak = cfg.line_nominal_v * math.sqrt(2)
+            live = 0.7 * peak < self.pll.amplitude < 1.3 * peak
+            self.line_live_s = self.line_live_s + period_s if live else 0.0
             sw = self.sequence.step(y[self.ix_breaker] > 0.5, pre, line, u_link_min, neutral,
-                                    enabled=True)
+                                    enabled=True, line_locked=self.line_live_s >= LOCK_S)
             running = self.sequence.state == RUNNING
             out[self.ox_breaker] = float(sw.breaker)
             for i in self.ox_pre:

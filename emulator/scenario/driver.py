@@ -218,6 +218,13 @@ class DriverProgram:
         if step.mode in ("accelerate", "cruise", "coast") and v > ceiling + 3 / 3.6:
             return "brake", 0.5  # over a limit: service braking until below it
         if step.mode == "accelerate":
+            if v < 0.3 and t - self.step_since < 5.0:
+                # hill start: the holding brake stays on until the drive's effort carries
+                # the train up the gradient (common practice of hill-start aids)
+                grade = self.track.gradient(x) if self.track is not None else 0.0
+                achieved = rig.replies.get("achieved_effort_kn", 0.0) * 1e3
+                if grade > 0 and achieved < 1.1 * m_eff * 9.81 * grade:
+                    plant.set_brake_force(min(m_eff * 0.5, 3e5))
             if v < ceiling - 1 / 3.6:
                 return "accelerate", step.effort
             d.cruise_speed_kmh = ceiling * 3.6
