@@ -56,12 +56,12 @@ class SogiPll:
         self.v_alpha, self.v_beta = va, vb
         # v = V sin(theta): v_alpha ~ V sin(theta), v_beta ~ -V cos(theta)
         s, c = math.sin(self.theta), math.cos(self.theta)
-        v_d = va * s - vb * c  # ~ V
         v_q = va * c + vb * s  # ~ V sin(theta_true - theta)
-        err = v_q / max(abs(v_d), 1e-9)
+        magnitude = max(math.hypot(va, vb), 1e-9)  # = |v_d + j v_q|, locked or not
+        err = v_q / magnitude  # sin of the phase error
         # the trapezoidal SOGI's outputs sit half a sample ahead of the input's instant:
         # its vector is longer by 1/cos(wT/2) and leads by wT/2 (corrected below)
-        self.amplitude = max(abs(v_d), 1e-9) * math.cos(w * T / 2)
+        self.amplitude = magnitude * math.cos(w * T / 2)
         lo, hi = 0.5 * self.w_nom, 1.5 * self.w_nom
         if self.amplitude >= self.min_amplitude:
             self._integral = min(max(self._integral + self.ki * err * T, lo), hi)

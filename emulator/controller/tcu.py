@@ -73,6 +73,10 @@ class ReferenceController:
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
         self.line_live_s = 0.0
+        self._recent = [0.0] * max(round(1 / (4 * cfg.line_frequency_hz * T)), 1)
+        self._recent_i = 0
+        self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
+                                  for i in range(len(cfg.link_names))]
         self.block_until = [0.0] * n_inv
         self.t = 0.0
         self.event = 0
@@ -161,7 +165,12 @@ class ReferenceController:
             # release the line converters only after the PLL has tracked a live line for
             # LOCK_S (after a neutral section or an interruption its phase is stale)
             peak = cfg.line_nominal_v * math.sqrt(2)
-            live = 0.7 * peak < self.pll.amplitude < 1.3 * peak
+            # a quarter period of a live sine always reaches 0.71 of its peak: a dead line
+            # is seen within 5 ms (50 Hz), far sooner than the PLL's amplitude falls
+            self._recent[self._recent_i] = abs(y[self.ix_line_v])
+            self._recent_i = (self._recent_i + 1) % len(self._recent)
+            live = (0.7 * peak < self.pll.amplitude < 1.3 * peak
+                    and max(self._recent) > 0.5 * peak)
             self.line_live_s = self.line_live_s + period_s if live else 0.0
             sw = self.sequence.step(y[self.ix_breaker] > 0.5, pre, line, u_link_min, neutral,
                                     enabled=True, line_locked=self.line_live_s >= LOCK_S)
@@ -217,6 +226,12 @@ class ReferenceController:
         achieved = 0.0
         first = 0
         u_min_run = 0.6 * cfg.link_nominal_v
+        # what each link may draw: the line's power limit (EN 50388, 0 on a dead line)
+        # shared by its inverters; a sagging link cuts traction too (ride-through)
+        line_live = not cfg.line_side or self.line_live_s >= LOCK_S
+        p_draw = [power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i])[1]
+                  * DRIVE_EFFICIENCY / self.inverters_on_link[i] if line_live else 0.0
+                  for i in range(len(cfg.link_names))] if cfg.line_side else None
         for k, n_mot in enumerate(cfg.n_motors_per_inverter):
             link = cfg.inverter_links[k]
             u_d = u_links[link]
@@ -233,6 +248,11 @@ class ReferenceController:
                       and (self.effort_n != 0.0 or mode == 2))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
+            if p_draw is not None and torque * motor_speed > 0:  # motoring
+                sag = min(max((u_d - 0.75 * cfg.link_nominal_v)
+                              / (0.15 * cfg.link_nominal_v), 0.0), 1.0)
+                t_power = p_draw[link] / max(abs(motor_speed) * n_mot, 1.0)
+                torque = math.copysign(min(abs(torque), t_power) * sag, torque)
             first += n_mot
             duty_ix = self.ox_duty[k]
             if active:
@@ -263,7 +283,7 @@ class ReferenceController:
             u_sec_peak = self.pll.amplitude / cfg.transformer_ratio
             for i, link in enumerate(self.links):
                 p_min, p_max = power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i])
-                if running:
+                if running and line_live:
                     i_sec = [y[j] for j in self.ix_isec[i]]
                     mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,
                                               p_links[i] / DRIVE_EFFICIENCY, p_min, p_max)
@@ -274,7 +294,7 @@ class ReferenceController:
                 for j, mod in zip(self.ox_mod[i], mods, strict=True):
                     out[j] = mod
                 for j in self.ox_lc_gates[i]:
-                    out[j] = float(running)
+                    out[j] = float(running and line_live)
                 out[self.ox_chopper[i]] = chopper
         out[self.ox_achieved] = self.achieved_n / 1e3
         out[self.ox_available] = self.available_n / 1e3
