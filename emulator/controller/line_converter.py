@@ -54,6 +54,12 @@ def power_limits(cfg: ControllerConfig, line_rms_v: float, regeneration_allowed:
     return -regen * p_rated_w, traction * p_rated_w
 
 
+def chopper_duty(nominal_v: float, u_d: float) -> float:
+    """Brake chopper duty: 0 at nominal + 100 V rising to 1 at nominal + 250 V, so the
+    resistor takes its full power below the link's overvoltage trip."""
+    return min(max((u_d - nominal_v - 100.0) / 150.0, 0.0), 1.0)
+
+
 class LinkControl:
     """One DC link and its line converters."""
 
@@ -115,5 +121,5 @@ class LinkControl:
             m = min(max(u / max(u_d, 1.0), -1.0), 1.0)
             self.u_applied[k] = m * u_d
             mods.append(m)
-        chopper = min(max((u_d - (self.cfg.link_nominal_v + 150.0)) / 150.0, 0.0), 1.0)
+        chopper = chopper_duty(self.cfg.link_nominal_v, u_d)
         return mods, chopper

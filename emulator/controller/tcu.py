@@ -17,7 +17,7 @@ import msgpack
 from . import events
 from .adhesion import AdhesionControl
 from .config import ControllerConfig
-from .line_converter import LinkControl, power_limits
+from .line_converter import LinkControl, chopper_duty, power_limits
 from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
 from .pll import SogiPll
@@ -73,6 +73,7 @@ class ReferenceController:
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
         self.line_live_s = 0.0
+        self.line_rms_f = cfg.line_nominal_v
         self._recent = [0.0] * max(round(1 / (4 * cfg.line_frequency_hz * T)), 1)
         self._recent_i = 0
         self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
@@ -156,7 +157,12 @@ class ReferenceController:
         theta = 0.0
         if cfg.line_side:
             theta = self.pll.update(y[self.ix_line_v])
-            line_rms = self.pll.amplitude / math.sqrt(2)
+            # the power limits follow the line voltage through a 0.2 s lag: on a weak or
+            # non-receptive line the voltage answers the power within the same period,
+            # and an unfiltered limit would chase it into a limit cycle
+            self.line_rms_f += (self.pll.amplitude / math.sqrt(2) - self.line_rms_f) * min(
+                period_s / 0.2, 1.0)
+            line_rms = self.line_rms_f
             if any(y[i] > 0.5 for i in self.ix_ovp):
                 self._raise(events.LINK_OVERVOLTAGE)
                 self.sequence.trip(events.LINK_OVERVOLTAGE)
@@ -229,9 +235,15 @@ class ReferenceController:
         # what each link may draw: the line's power limit (EN 50388, 0 on a dead line)
         # shared by its inverters; a sagging link cuts traction too (ride-through)
         line_live = not cfg.line_side or self.line_live_s >= LOCK_S
-        p_draw = [power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i])[1]
-                  * DRIVE_EFFICIENCY / self.inverters_on_link[i] if line_live else 0.0
-                  for i in range(len(cfg.link_names))] if cfg.line_side else None
+        limits = [power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i]) if line_live
+                  else (0.0, 0.0) for i in range(len(cfg.link_names))]
+        p_draw = [hi * DRIVE_EFFICIENCY / self.inverters_on_link[i]
+                  for i, (_, hi) in enumerate(limits)] if cfg.line_side else None
+        # electric braking: what the resistor takes below the trip, plus half of what the
+        # line may take back (a non-receptive line takes less than its limit says)
+        p_chop = 0.8 * (cfg.link_nominal_v + 200.0) ** 2 / cfg.chopper_ohm
+        p_feed = [(p_chop - 0.5 * lo) / DRIVE_EFFICIENCY / self.inverters_on_link[i]
+                  for i, (lo, _) in enumerate(limits)] if cfg.line_side else None
         for k, n_mot in enumerate(cfg.n_motors_per_inverter):
             link = cfg.inverter_links[k]
             u_d = u_links[link]
@@ -253,6 +265,9 @@ class ReferenceController:
                               / (0.15 * cfg.link_nominal_v), 0.0), 1.0)
                 t_power = p_draw[link] / max(abs(motor_speed) * n_mot, 1.0)
                 torque = math.copysign(min(abs(torque), t_power) * sag, torque)
+            elif p_feed is not None and torque * motor_speed < 0:  # generating
+                t_power = p_feed[link] / max(abs(motor_speed) * n_mot, 1.0)
+                torque = math.copysign(min(abs(torque), t_power), torque)
             first += n_mot
             duty_ix = self.ox_duty[k]
             if active:
@@ -290,7 +305,7 @@ class ReferenceController:
                 else:
                     link.reset()
                     mods = [0.0] * len(self.ox_mod[i])
-                    chopper = min(max((u_links[i] - cfg.link_nominal_v - 150.0) / 150.0, 0), 1)
+                    chopper = chopper_duty(cfg.link_nominal_v, u_links[i])
                 for j, mod in zip(self.ox_mod[i], mods, strict=True):
                     out[j] = mod
                 for j in self.ox_lc_gates[i]:
