@@ -45,9 +45,9 @@ class Table:
             section, _, key = section.rpartition(".")
             key = key.split("[")[0]
 
-    def error(self, key: str, message: str) -> ProfileError:
-        """An error naming the file, its line (when known), the table and the key."""
-        line = self.line_of(key)
+    def error(self, key: str, message: str, at: str | None = None) -> ProfileError:
+        """An error naming the file, its line (of ``at`` if given), the table and the key."""
+        line = self.line_of(at or key)
         where = f"{self._file}:{line}" if line else self._file
         return ProfileError(f"{where}: [{self._section}] {key}: {message}")
 
@@ -60,7 +60,7 @@ class Table:
         if key not in self._data:
             near = difflib.get_close_matches(key, [k for k in self._data if k != key], n=1)
             hint = f" (is {near[0]!r} a misspelling of it?)" if near else ""
-            raise self.error(key, "missing" + hint)
+            raise self.error(key, "missing" + hint, at=near[0] if near else None)
         return self._data[key]
 
     def number(self, key: str, unit: str, lo: float, hi: float, *, lo_open: bool = False,

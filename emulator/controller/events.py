@@ -10,6 +10,7 @@ MOTOR_OVERTEMPERATURE = 41
 LINK_WATCHDOG = 50
 LINE_UNDERVOLTAGE = 60
 WHEEL_SLIP = 70
+SPEED_SENSOR_FAULT = 80
 
 NAMES = {
     SEQUENCE_TIMEOUT: "switch-on sequence timed out",
@@ -22,6 +23,7 @@ NAMES = {
     LINK_WATCHDOG: "the rig reported a link watchdog trip",
     LINE_UNDERVOLTAGE: "line voltage below U_min2",
     WHEEL_SLIP: "wheel slip or slide: torque reduced",
+    SPEED_SENSOR_FAULT: "implausible speed reading: sensor taken as failed",
 }
 
 #: events that are protective trips (a demo run must not see them)
@@ -35,4 +37,5 @@ SLUGS = {
     "overspeed": OVERSPEED, "motor-derating": MOTOR_TEMPERATURE_DERATING,
     "motor-overtemperature": MOTOR_OVERTEMPERATURE, "link-watchdog": LINK_WATCHDOG,
     "line-undervoltage": LINE_UNDERVOLTAGE, "wheel-slip": WHEEL_SLIP,
+    "speed-sensor-fault": SPEED_SENSOR_FAULT,
 }

@@ -30,6 +30,7 @@ OVERLOAD = 1.4  # starting torque / rated torque
 POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
 FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
+SENSOR_JUMP = 20.0  # rad/s in one period: a speed reading no motor can follow
 
 
 class ReferenceController:
@@ -73,6 +74,8 @@ class ReferenceController:
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
         self.line_live_s = 0.0
+        self.sensor_ok = [True] * n_motors
+        self._last_speeds: list[float | None] = [None] * n_motors
         self.line_rms_f = cfg.line_nominal_v
         self._recent = [0.0] * max(round(1 / (4 * cfg.line_frequency_hz * T)), 1)
         self._recent_i = 0
@@ -191,7 +194,7 @@ class ReferenceController:
 
         # --- train speed, effort demand, limits ---------------------------------------
         r, gear = cfg.wheel_radius_m, cfg.gear_ratio
-        speeds = [y[i] for i in self.ix_speed]
+        speeds = self._plausible_speeds([y[i] for i in self.ix_speed])
         k_wheel = r / gear
         wheel_mps = [w * k_wheel for w in speeds]
         v = sum(wheel_mps) / len(wheel_mps)
@@ -315,6 +318,32 @@ class ReferenceController:
         out[self.ox_available] = self.available_n / 1e3
         out[self.ox_status] = float(self.sequence.state)
         out[self.ox_event] = float(self.event)
+
+    def _plausible_speeds(self, readings: list[float]) -> list[float]:
+        """Speed readings with failed sensors replaced by their healthy neighbours'.
+
+        A reading that jumps by more than SENSOR_JUMP in one period is physically
+        impossible for a motor on a wheelset (its acceleration is a few hundred rad/s^2
+        at most): the sensor is taken as failed for the rest of the run (latched, as a
+        board would until a service reset) and event SPEED_SENSOR_FAULT is raised.
+        """
+        last = self._last_speeds
+        for m, (now, before) in enumerate(zip(readings, last, strict=True)):
+            if self.sensor_ok[m] and before is not None and abs(now - before) > SENSOR_JUMP:
+                self.sensor_ok[m] = False
+                self._raise(events.SPEED_SENSOR_FAULT)
+        self._last_speeds = list(readings)
+        healthy = [r for r, ok in zip(readings, self.sensor_ok, strict=True) if ok]
+        if len(healthy) == len(readings) or not healthy:
+            return readings
+        out = list(readings)
+        for k in range(len(self.motors)):
+            axles = self._axles(k)
+            own = [readings[a] for a in axles if self.sensor_ok[a]]
+            for a in axles:
+                if not self.sensor_ok[a]:
+                    out[a] = sum(own) / len(own) if own else sum(healthy) / len(healthy)
+        return out
 
     def _axles(self, inverter: int) -> range:
         first = sum(len(ms) for ms in self.motors[:inverter])

@@ -51,8 +51,7 @@ def write_report(run: RunResult, directory: str | Path) -> Path:
     out.mkdir(parents=True, exist_ok=True)
     rec = run.recording
     t_all = rec.column("time_s")
-    step = max(int(round(STRIDE_S / max(t_all[1] - t_all[0], 1e-6))), 1) if len(t_all) > 1 \
-        else 1
+    step = max(round(STRIDE_S / max(t_all[1] - t_all[0], 1e-6)), 1) if len(t_all) > 1 else 1
     rows = slice(None, None, step)
     t = t_all[rows]
     figures = []

@@ -1,0 +1,132 @@
+"""Scenario files: bad input gives an error naming the file, the line and the key;
+nothing in a file is evaluated. The checks language judged against numpy's own
+reductions on a synthetic recording (independent arithmetic)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from emulator.record import Recording
+from emulator.scenario import ScenarioError, load_scenario
+from emulator.scenario.checks import CheckSpec, evaluate
+from emulator.scenario.track import curve_resistance_per_mille
+
+ROOT = Path(__file__).parents[2]
+GOOD = (ROOT / "profiles" / "scenarios" / "four-modes.toml").read_text()
+
+
+def _write(tmp_path: Path, text: str) -> Path:
+    (tmp_path / "trainsets").mkdir(exist_ok=True)
+    for name in ("tern-25kv.toml",):
+        (tmp_path / "trainsets" / name).write_text(
+            (ROOT / "profiles" / "trainsets" / name).read_text())
+    (tmp_path / "machines").mkdir(exist_ok=True)
+    (tmp_path / "machines" / "tern-tm310.toml").write_text(
+        (ROOT / "profiles" / "machines" / "tern-tm310.toml").read_text())
+    (tmp_path / "scenarios").mkdir(exist_ok=True)
+    path = tmp_path / "scenarios" / "s.toml"
+    path.write_text(text)
+    return path
+
+
+def _line_of(text: str, needle: str) -> int:
+    return next(i for i, line in enumerate(text.splitlines(), 1) if needle in line)
+
+
+@pytest.mark.parametrize(("old", "new", "key"), [
+    ("duration_s = 90.0", "duraton_s = 90.0", "duraton_s"),  # misspelt
+    ('mode = "coast"', 'mode = "glide"', "mode"),  # not a mode
+    ("rises_to = 59.5", "rises_to = \"fast\"", "rises_to"),  # not a number
+    ('after = "cruise"', 'after = "cruising"', "after"),  # no such label
+    ("permille = 2.0", "permille = 200.0", "permille"),  # out of range
+])
+def test_errors_name_file_line_and_key(tmp_path: Path, old: str, new: str, key: str) -> None:
+    assert old in GOOD
+    text = GOOD.replace(old, new, 1)
+    path = _write(tmp_path, text)
+    with pytest.raises(ScenarioError) as err:
+        load_scenario(path)
+    message = str(err.value)
+    assert f"{path}:{_line_of(text, new)}:" in message
+    assert key in message
+
+
+def test_not_toml_names_the_line(tmp_path: Path) -> None:
+    path = _write(tmp_path, GOOD + "\n[[check]\n")
+    with pytest.raises(ScenarioError, match=r"not valid TOML.*line"):
+        load_scenario(path)
+
+
+def test_a_check_with_two_kinds_is_refused(tmp_path: Path) -> None:
+    text = GOOD.replace("rises_to = 59.5", "rises_to = 59.5\nmax = 3.0", 1)
+    with pytest.raises(ScenarioError, match="exactly one of"):
+        load_scenario(_write(tmp_path, text))
+
+
+def test_unknown_fault_is_refused(tmp_path: Path) -> None:
+    text = GOOD + '\n[[fault]]\nname = "gremlins"\ntarget = "INV-A1"\n'
+    with pytest.raises(ScenarioError, match="gremlins"):
+        load_scenario(_write(tmp_path, text))
+
+
+def _recording() -> Recording:
+    t = np.arange(1, 1001) * 1e-3
+    speed = np.where(t < 0.5, 0.0, 10.0 * (1 - np.exp(-(t - 0.5) / 0.05)))
+    creep = np.stack([np.sin(2 * np.pi * 5 * t), 0.5 * np.cos(2 * np.pi * 5 * t)], axis=1)
+    code = np.where((t > 0.3) & (t < 0.4), 70.0, 0.0)
+    data = np.column_stack([t, speed, 20.0 * t, creep, code])
+    cols = ["time_s", "p.train.speed_mps", "p.train.position_m",
+            "p.motor.creep_velocity_mps[0]", "p.motor.creep_velocity_mps[1]",
+            "u.tcu.event_code"]
+    return Recording({}, cols, data, True, marks=[])
+
+
+@pytest.mark.parametrize(("spec", "passed", "expected"), [
+    (CheckSpec("m", "max", signal="motor.creep_velocity_mps", value=1.0), True, 1.0),
+    (CheckSpec("m", "max", signal="motor.creep_velocity_mps", value=0.99), False, 1.0),
+    (CheckSpec("m", "min", signal="motor.creep_velocity_mps", index=1, value=-0.5), True, -0.5),
+    (CheckSpec("b", "band", signal="train.speed_kmh", band=(0.0, 36.0)), True, 36.0),
+])
+def test_max_min_band_agree_with_numpy(spec: CheckSpec, passed: bool, expected: float) -> None:
+    rec = _recording()
+    r = evaluate(spec, rec, {})
+    assert r.passed is passed
+    numbers = [float(x) for x in r.measured.replace("..", " ").split()]
+    assert min(abs(n - expected) for n in numbers) < 1e-3
+
+
+def test_settling_time_of_a_first_order_step() -> None:
+    # 10 (1 - exp(-t/tau)) enters the 2 % band after tau ln(50) = 0.1956 s (textbook)
+    spec = CheckSpec("s", "settles", signal="train.speed_mps", band=(9.8, 10.2),
+                     within_s=0.25, after="step")
+    r = evaluate(spec, _recording(), {"step": 0.5})
+    assert r.passed
+    assert float(r.measured.split()[0]) == pytest.approx(0.05 * np.log(50), abs=2e-3)
+
+
+def test_reaches_by_time_and_position() -> None:
+    rec = _recording()
+    t_hit = 0.5 - 0.05 * np.log(0.5)  # 5 m/s of the step
+    r = evaluate(CheckSpec("r", "rises_to", signal="train.speed_mps", value=5.0, by_s=0.54),
+                 rec, {})
+    assert r.passed
+    assert float(r.measured.split()[1]) == pytest.approx(t_hit, abs=6e-3)  # 2 decimals
+    r = evaluate(CheckSpec("r", "rises_to", signal="train.speed_mps", value=5.0, by_m=10.0),
+                 rec, {})
+    assert not r.passed  # at 0.535 s the train is at 10.7 m
+
+
+def test_event_raised_in_its_window_only() -> None:
+    rec = _recording()
+    assert evaluate(CheckSpec("e", "raised", codes=(70,)), rec, {}).passed
+    assert not evaluate(CheckSpec("e", "raised", codes=(70,), from_s=0.5), rec, {}).passed
+    assert not evaluate(CheckSpec("e", "not_raised", codes=(70,)), rec, {}).passed
+
+
+def test_roeckl_curve_resistance() -> None:
+    # Röckl's formula from memory: 650 / (R - 55) N/kN for R >= 300 m (standard gauge)
+    assert curve_resistance_per_mille(600.0) == pytest.approx(650.0 / 545.0)
+    assert curve_resistance_per_mille(250.0) == pytest.approx(500.0 / 220.0)
