@@ -296,7 +296,8 @@ class ReferenceController:
 
         # --- line converters ----------------------------------------------------------
         if cfg.line_side:
-            if line_rms < cfg.line_u_min2_v and not neutral and running:
+            if (self.pll.amplitude / math.sqrt(2) < cfg.line_u_min2_v and not neutral
+                    and running):
                 self._raise(events.LINE_UNDERVOLTAGE)
             u_sec_peak = self.pll.amplitude / cfg.transformer_ratio
             for i, link in enumerate(self.links):
