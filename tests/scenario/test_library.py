@@ -44,7 +44,7 @@ def test_shipped_scenario_passes_in_lockstep(path: Path) -> None:
     assert run.link["valid"] == len(run.recording.data) - 1  # every frame had its command
 
 
-def test_broken_adhesion_control_fails_the_wet_rail_start() -> None:  # noqa: D103
+def test_broken_adhesion_control_fails_the_wet_rail_start() -> None:
     scenario = load_scenario(LIBRARY[0].parent / "wet-gradient-start.toml")
 
     def break_it(tcu) -> None:
