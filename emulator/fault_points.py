@@ -25,8 +25,7 @@ class FaultSet:
         self.faults: list[Fault] = []
         self._rng = random.Random(seed)
         p = rig.plant.params
-        self._motors = [f"{c.name}.m{j + 1}" for c in p.converters
-                        for j in range(len(c.wheel_diameters_m))]
+        self._motors = p.motor_names
         self._targets = {
             "analog channel": rig.sampler.analog_names, "encoder": self._motors,
             "axle": self._motors, "motor": self._motors,
@@ -43,7 +42,7 @@ class FaultSet:
         """Schedule a fault; the target is checked now, not when the fault starts."""
         fault = make_fault(name, target, params, known_states=self.rig.plant.names(),
                            **triggers)
-        self._index(fault)  # raises FaultError for an unknown target
+        fault.index = self._resolve(fault)  # raises FaultError for an unknown target
         self.faults.append(fault)
         return fault
 
@@ -53,7 +52,7 @@ class FaultSet:
             if f.active and name in (f.kind.name, f.name, f.label):
                 self._remove(f)
 
-    def _index(self, f: Fault) -> int:
+    def _resolve(self, f: Fault) -> int:
         table = self._targets[f.kind.target]
         if f.target not in table:
             known = ", ".join(table[:6]) + ("..." if len(table) > 6 else "")
@@ -75,7 +74,7 @@ class FaultSet:
     # --- the points ---------------------------------------------------------------------
     def _each_frame(self, f: Fault) -> None:
         """Faults that act anew every frame."""
-        i, kind, rig = self._index(f), f.kind.name, self.rig
+        i, kind, rig = f.index, f.kind.name, self.rig
         analog, dt = rig.sampler.analog, rig.period_us * 1e-6
         if kind == "encoder-pulse-loss":
             acc = f.applied.setdefault("acc", 0.0) + f.params["counts_per_s"] * dt
@@ -101,7 +100,7 @@ class FaultSet:
             rig.plant.ms[i, L.MS_T_ROTOR] = f.params["temperature_degc"] + 273.15
 
     def _apply(self, f: Fault) -> None:
-        i, kind, rig = self._index(f), f.kind.name, self.rig
+        i, kind, rig = f.index, f.kind.name, self.rig
         analog, plant, enc = rig.sampler.analog, rig.plant, rig.sampler.encoders
         if kind == "sensor-offset":
             analog.fault_offset[i] += f.params["offset"]
@@ -111,8 +110,7 @@ class FaultSet:
             analog.stuck[i] = f.params["value"]
         elif kind == "sensor-noise":
             f.applied["was"] = float(analog.noise[i])
-            analog.noise[i] = math.hypot(analog.noise[i], f.params["rms"])
-            analog._noisy = True
+            analog.set_noise(i, math.hypot(analog.noise[i], f.params["rms"]))
         elif kind == "sensor-saturation":
             f.applied["was"] = (float(analog.lo[i]), float(analog.hi[i]))
             analog.lo[i] = max(analog.lo[i], -f.params["limit"])
@@ -140,8 +138,6 @@ class FaultSet:
         elif kind == "lost-cooling":
             f.applied["was"] = float(plant.mpar[i, L.MP_COOLING])
             plant.mpar[i, L.MP_COOLING] = f.params["effectiveness"]
-        elif kind == "rotor-temperature":
-            f.applied["was"] = float(plant.ms[i, L.MS_T_ROTOR])
         elif kind == "link-capacitance-loss":
             f.applied["was"] = float(plant.kp[i, L.KP_C])
             plant.kp[i, L.KP_C] *= f.params["remaining"]
@@ -170,7 +166,7 @@ class FaultSet:
             plant.set_supply(droop_v_per_w=f.params["droop_v_per_kw"] * 1e-3)
 
     def _remove(self, f: Fault) -> None:
-        i, kind, rig = self._index(f), f.kind.name, self.rig
+        i, kind, rig = f.index, f.kind.name, self.rig
         analog, plant, enc = rig.sampler.analog, rig.plant, rig.sampler.encoders
         was = f.applied.get("was")
         if kind == "sensor-offset":
@@ -182,7 +178,7 @@ class FaultSet:
         elif kind == "sensor-drift":
             analog.fault_offset[i] -= f.applied.get("drifted", 0.0)
         elif kind == "sensor-noise":
-            analog.noise[i] = was
+            analog.set_noise(i, was)
         elif kind == "sensor-saturation":
             analog.lo[i], analog.hi[i] = was
         elif kind in ("encoder-channel-loss", "encoder-wrong-ppr"):

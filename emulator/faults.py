@@ -179,6 +179,7 @@ class Fault:
     start_when: Condition | None = None
     stop_s: float | None = None
     label: str = ""
+    index: int = -1  # the target's position among its kind, set when scheduled
     active: bool = False
     done: bool = False
     applied: dict[str, Any] = field(default_factory=dict)

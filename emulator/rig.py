@@ -219,8 +219,8 @@ class Rig:
             row[1:1 + ny] = self._y  # y_k, what the controller saw
             row[1 + ny:1 + ny + nu] = held  # the command that acted in this frame
             i = 1 + ny + nu
-            for array, col, n in self._states:  # the plant's own states at t_(k+1)
-                row[i:i + n] = array[:n, col] if n > 1 or array.ndim == 2 else array[col]
+            for array, key, n in self._states:  # the plant's own states at t_(k+1)
+                row[i:i + n] = array[key]
                 i += n
             row[i:] = self.extras
             self.recorder.append(row)
@@ -239,10 +239,13 @@ class Rig:
         self._states = []
         for name in states:
             array, col = self.plant.state_column(name)
-            n = array.shape[0] if array.ndim == 2 else 1
-            self._states.append((array, col, n))
-            cols += [f"p.{name}"] if n == 1 and array.ndim == 1 else [
-                f"p.{name}[{i}]" for i in range(n)]
+            if array.ndim == 2:  # one element per motor, inverter or link
+                n = array.shape[0]
+                self._states.append((array, (slice(None), col), n))
+                cols += [f"p.{name}[{i}]" for i in range(n)]
+            else:
+                self._states.append((array, col, 1))
+                cols.append(f"p.{name}")
         self.extras = np.zeros(len(extras))
         cols += [f"p.{name}" for name in extras]
         self._row = np.zeros(len(cols))

@@ -125,9 +125,8 @@ class MeasurementSampler:
         self._flag_pos = np.array([names.index(f[0]) for f in flags], dtype=np.int64)
         self.encoders = Encoders(plant.n_motors, sensors.encoder_lines)
         self.gate_fault = np.zeros(plant.n_inverters, dtype=np.int64)  # fault hook
-        self._count_pos = np.array([names.index(f"{c.name}.m{j + 1}.encoder_count")
-                                    for c in params.converters
-                                    for j in range(len(c.wheel_diameters_m))], dtype=np.int64)
+        self._count_pos = np.array([names.index(f"{m}.encoder_count")
+                                    for m in params.motor_names], dtype=np.int64)
         self._fault_pos = np.array([names.index(f"{c.name}.gate_fault")
                                     for c in params.converters], dtype=np.int64)
         self._train_pos = names.index("train.effort_demand")

@@ -78,6 +78,11 @@ class AnalogChannels:
         self._alpha_for: float = -1.0
         self._alpha = np.zeros(len(specs))
 
+    def set_noise(self, i: int, rms: float) -> None:
+        """Channel i's noise, rms in its unit (a fault hook)."""
+        self.noise[i] = rms
+        self._noisy = bool(np.any(self.noise > 0))
+
     def sample(self, true_values: np.ndarray, period_s: float) -> np.ndarray:
         """The channel outputs for the plant values at the sampling instant."""
         if period_s != self._alpha_for:

@@ -301,7 +301,7 @@ class ReferenceController:
                 self._raise(events.LINE_UNDERVOLTAGE)
             u_sec_peak = self.pll.amplitude / cfg.transformer_ratio
             for i, link in enumerate(self.links):
-                p_min, p_max = power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i])
+                p_min, p_max = limits[i]  # (0, 0) on a dead line, where they are unused
                 if running and line_live:
                     i_sec = [y[j] for j in self.ix_isec[i]]
                     mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,

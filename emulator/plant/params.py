@@ -185,3 +185,9 @@ class TrainsetParams:
     def motor_count(self) -> int:
         """Number of motors (and motored axles) of the trainset."""
         return sum(len(c.wheel_diameters_m) for c in self.converters)
+
+    @property
+    def motor_names(self) -> list[str]:
+        """Motor (and motored axle) names in plant order: "<inverter>.m<j>", j from 1."""
+        return [f"{c.name}.m{j + 1}" for c in self.converters
+                for j in range(len(c.wheel_diameters_m))]

@@ -42,8 +42,7 @@ class Track:
         self.spec = spec
         self.plant = plant
         p = plant.params
-        self.motor_names = [f"{c.name}.m{j + 1}" for c in p.converters
-                            for j in range(len(c.wheel_diameters_m))]
+        self.motor_names = p.motor_names
         for zone in spec.adhesion_zones:
             for axle in zone.axles:
                 if axle not in self.motor_names:
@@ -93,12 +92,18 @@ class Track:
                 plant.set_supply(live=live)
                 self._live = live
             rig.driver.neutral_section_ahead = int(ahead)
+        if not self.spec.adhesion_zones:
+            return
+        here = []
+        for z in self.spec.adhesion_zones:
+            inside = z.from_m <= x < z.to_m
+            self._note(z.label, inside, plant.time_s)
+            if inside:
+                here.append(z)
         for i, name in enumerate(self.motor_names):
             state = None
-            for z in self.spec.adhesion_zones if i == 0 else ():
-                self._note(z.label, z.from_m <= x < z.to_m, plant.time_s)
-            for z in self.spec.adhesion_zones:
-                if z.from_m <= x < z.to_m and (not z.axles or name in z.axles):
+            for z in here:  # the last zone written wins where zones overlap
+                if not z.axles or name in z.axles:
                     state = (z.rail, z.factor)
             if state != self._axle_state[i]:
                 rail, factor = state or (self.base_rail, 1.0)
