@@ -135,6 +135,8 @@ class FaultSet:
         elif kind == "wheel-diameter-error":
             f.applied["was"] = float(plant.mpar[i, L.MP_WHEEL_R])
             plant.mpar[i, L.MP_WHEEL_R] *= 1 + f.params["error_pct"] / 100
+        elif kind == "open-motor-phase":
+            plant.set_open_phase(i, int(f.params["phase"]))
         elif kind == "lost-cooling":
             f.applied["was"] = float(plant.mpar[i, L.MP_COOLING])
             plant.mpar[i, L.MP_COOLING] = f.params["effectiveness"]
@@ -193,6 +195,8 @@ class FaultSet:
             plant.set_adhesion_factor(i, was)
         elif kind == "wheel-diameter-error":
             plant.mpar[i, L.MP_WHEEL_R] = was
+        elif kind == "open-motor-phase":
+            plant.set_open_phase(i, None)
         elif kind == "lost-cooling":
             plant.mpar[i, L.MP_COOLING] = was
         elif kind == "link-capacitance-loss":

@@ -93,6 +93,10 @@ CATALOGUE: dict[str, FaultKind] = {k.name: k for k in [
           {"leg": ("0..2 (a, b, c)", 0, 2, 0), "spike_a": ("A", 0.0, 1e4, 2500.0)},
           "a leg shoots through: the driver's desaturation trip blocks the gates and flags "
           "the leg; the phase current reading shows a spike for one period"),
+    _kind("open-motor-phase", "plant", "motor", {"phase": ("0..2 (a, b, c)", 0, 2, 0)},
+          "one stator phase of one motor opens (a broken cable or lug): that phase carries "
+          "no current, the inverter's phase current reading loses that motor's share and "
+          "its torque pulsates at twice the stator frequency"),
     _kind("contactor-wont-close", "command", "line converter", {},
           "the line contactor stays open whatever it is commanded"),
     _kind("contactor-welded", "command", "line converter", {},

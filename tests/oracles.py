@@ -104,3 +104,35 @@ def induction_machine_rhs(ls: float, lr: float, lm: float, rs: float, rr: float,
         return [dps.real, dps.imag, dpr.real, dpr.imag, (torque - load_torque) / j]
 
     return rhs
+
+
+def single_phased_machine_rhs(ls: float, lr: float, lm: float, rs: float, rr: float,
+                              p: int, omega_m: float, u_beta):
+    """Induction machine with stator phase a open, shaft at a held speed.
+
+    With phase a open in a star winding with no neutral, i_sa = i_s_alpha = 0 and only
+    the beta axis (phases b and c in series) takes the supply u_beta(t). Flux linkages in
+    the stator frame: psi_s_alpha = Lm i_r_alpha, psi_r_alpha = Lr i_r_alpha, and on the
+    beta axis [psi_s; psi_r] = [[Ls, Lm], [Lm, Lr]] [i_s; i_r]. Voltage equations
+    d psi_s_beta/dt = u_beta - Rs i_s_beta, d psi_r/dt = -Rr i_r + j p omega_m psi_r
+    (Krause, Analysis of Electric Machinery, stationary reference frame; the open-phase
+    constraint from the circuit). State [psi_s_beta, psi_r_alpha, psi_r_beta]; returns
+    (rhs, currents) where currents(y) gives (i_s_beta, torque)."""
+    d = ls * lr - lm * lm
+    w_r = p * omega_m
+
+    def currents(y):
+        psb, pra, prb = y
+        i_sb = (lr * psb - lm * prb) / d
+        i_ra = pra / lr
+        # T = 3/2 p (psi_s_alpha i_s_beta - psi_s_beta i_s_alpha), i_s_alpha = 0
+        return i_sb, 1.5 * p * lm * i_ra * i_sb
+
+    def rhs(t: float, y: np.ndarray) -> list[float]:
+        psb, pra, prb = y
+        i_sb = (lr * psb - lm * prb) / d
+        i_rb = (ls * prb - lm * psb) / d
+        i_ra = pra / lr
+        return [u_beta(t) - rs * i_sb, -rr * i_ra - w_r * prb, -rr * i_rb + w_r * pra]
+
+    return rhs, currents

@@ -126,3 +126,14 @@ def test_telegram_loss_at_the_link(params) -> None:
     assert 400 < dropped < 600  # binomial, n = 1000, p = 0.5
     assert math.isclose(dropped + rig.health.accepted, 1000, abs_tol=1)
     assert np.all(np.isfinite(rig.plant.ms))
+
+
+def test_open_motor_phase_opens_and_reconnects(params) -> None:
+    # The physics of the open phase is checked against scipy in
+    # tests/plant/test_open_phase.py; here: the fault reaches the right motor and clears.
+    rig, _ = rig_with_faults(params)
+    rig.faults.add("open-motor-phase", "INV-A2.m2", {"phase": 2}, at_s=0.01, until_s=0.03)
+    run(rig.run(frames=20))
+    assert list(rig.plant.mu[:, L.MU_OPEN_PHASE]) == [0, 0, 0, 3.0, 0, 0, 0, 0]
+    run(rig.run(frames=40))  # frames counts from the start of the run
+    assert not rig.plant.mu[:, L.MU_OPEN_PHASE].any()

@@ -98,6 +98,7 @@ from .layout import (
     MS_TORQUE,
     MU_IMPOSED_SPEED,
     MU_LOAD_TORQUE,
+    MU_OPEN_PHASE,
     MX_CG,
     MX_IR,
     MX_IS,
@@ -133,6 +134,7 @@ from .machine import (
     abs2,
     currents,
     currents_frozen,
+    open_phase_flux,
     refresh_matrices,
     stator_current_integral,
     step_flux,
@@ -281,6 +283,10 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
             int_is = stator_current_integral(mx, m, ps0, pr0, ps1, pr1, u, h)
             int_i += int_is
             e_in = 1.5 * (u * int_is.conjugate()).real  # exact for the held voltage
+        open_phase = int(mu[m, MU_OPEN_PHASE])
+        if open_phase > 0:
+            ps1 = open_phase_flux(ms, m, ps1, pr1, open_phase - 1)
+            is1, ir1 = currents_frozen(ms, m, ps1, pr1)
         mx[m, MX_PSI_S] = ps1
         mx[m, MX_PSI_R] = pr1
         mx[m, MX_IS] = is1

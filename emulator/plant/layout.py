@@ -63,7 +63,8 @@ SHAFT_FREE = 2
 # --- motor inputs: float64 [n_motor, MU_N] --------------------------------------------
 MU_LOAD_TORQUE = 0  # load torque on a free shaft, N m (opposes positive speed)
 MU_IMPOSED_SPEED = 1  # dynamometer shaft speed, rad/s (mechanical)
-MU_N = 2
+MU_OPEN_PHASE = 2  # open stator phase: 0 none, 1 a, 2 b, 3 c (a broken cable or lug)
+MU_N = 3
 
 # --- motor state and outputs: float64 [n_motor, MS_N] ---------------------------------
 MS_OMEGA_M = 0  # rotor mechanical speed, rad/s

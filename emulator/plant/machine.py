@@ -21,6 +21,7 @@ e^{A h} = e^s (cosh q I + sinh(q)/q N).
 from __future__ import annotations
 
 import cmath
+import math
 
 import numpy as np
 
@@ -116,6 +117,31 @@ def currents_frozen(ms: np.ndarray, m: int, psi_s: complex, psi_r: complex):
     css = ms[m, MS_CSS]
     csr = ms[m, MS_CSR]
     return css * psi_s - csr * psi_r, ms[m, MS_CRR] * psi_r - csr * psi_s
+
+
+@compiled_inline
+def open_phase_flux(ms: np.ndarray, m: int, psi_s: complex, psi_r: complex,
+                    phase: int) -> complex:
+    """Stator flux with the current of an open phase forced to zero.
+
+    A star-connected stator with no neutral and phase k open (k = 0, 1, 2 for a, b, c)
+    carries no current in that phase: i_k = Re(i_s conj(d_k)) = 0 with
+    d_k = exp(j 2 pi k / 3) (amplitude-invariant Clarke transform). The floating terminal
+    takes whatever voltage that needs, so the stator flux along d_k is slaved to the rest
+    of the state: with i_s = c_ss psi_s - c_sr psi_r, subtracting
+    d_k Re(i_s conj(d_k)) / c_ss from psi_s zeroes i_k and leaves the perpendicular axis
+    and the rotor untouched. Applied after each sub-step, the constraint holds to first
+    order in the step (the stator's open-circuit axis is infinitely stiff). The magnetic
+    energy of the interrupted current (an arc) leaves the energy ledger unaccounted.
+    Model of our own from the circuit constraint; the signature it gives (no current in
+    one phase, torque pulsating at twice the stator frequency) is the textbook one
+    (Fitzgerald, Kingsley and Umans, Electric Machinery, single-phasing).
+    """
+    d = cmath.exp(complex(0.0, 2.0 * math.pi * phase / 3.0))
+    css = ms[m, MS_CSS]
+    i_s = css * psi_s - ms[m, MS_CSR] * psi_r
+    i_k = (i_s * d.conjugate()).real
+    return psi_s - d * (i_k / css)
 
 
 @compiled_inline

@@ -329,6 +329,12 @@ class Plant:
         self.mint[motor, L.MI_SHAFT_MODE] = L.SHAFT_FREE
         self.mu[motor, L.MU_LOAD_TORQUE] = load_torque_nm
 
+    def set_open_phase(self, motor: int, phase: int | None) -> None:
+        """Open one stator phase of a motor (0, 1, 2 for a, b, c), or None to reconnect."""
+        if phase is not None and phase not in (0, 1, 2):
+            raise ValueError(f"open phase must be 0, 1 or 2 (a, b, c), got {phase!r}")
+        self.mu[motor, L.MU_OPEN_PHASE] = 0.0 if phase is None else phase + 1.0
+
     def couple_drivetrain(self, motor: int) -> None:
         """Couple a motor back to its gear and axle."""
         self.mint[motor, L.MI_SHAFT_MODE] = L.SHAFT_DRIVETRAIN

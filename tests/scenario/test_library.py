@@ -24,20 +24,7 @@ def test_library_covers_the_trade_practice() -> None:
             "rotor-detuning", "low-adhesion-braking"} <= names
 
 
-# Known defect, open in issue 6: the plant kernel freshly compiled and the same kernel
-# loaded from numba's cache differ in the last bits (measured: the wet start parts from
-# frame 3383, at the hill-start brake release), and these three marginal cases flip with
-# it: they pass on a fresh compile (as in CI on a clean checkout) and fail from a cache
-# made by an earlier process. Non-strict until the divergence is found.
-KNOWN = {"catenary-dip-interruption": "inverter overcurrent at the interruption with a "
-                                      "cached kernel (open)",
-         "wet-gradient-start": "creep peaks 2.6 m/s with a cached kernel, 2.0 fresh (open)",
-         "neutral-section": "line-undervoltage on re-entry with a cached kernel (open)"}
-
-
-@pytest.mark.parametrize("path", [
-    pytest.param(p, marks=pytest.mark.xfail(reason=KNOWN[p.stem], strict=False))
-    if p.stem in KNOWN else p for p in LIBRARY], ids=[p.stem for p in LIBRARY])
+@pytest.mark.parametrize("path", LIBRARY, ids=[p.stem for p in LIBRARY])
 def test_shipped_scenario_passes_in_lockstep(path: Path) -> None:
     run = asyncio.run(run_scenario(load_scenario(path)))
     failed = [f"{r.spec.name}: measured {r.measured} {r.detail}" for r in run.results
