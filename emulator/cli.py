@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
 from collections.abc import Sequence
 
@@ -151,85 +150,15 @@ def _cmd_protocol(args: argparse.Namespace) -> int:
 
 
 def _cmd_serve(args: argparse.Namespace) -> int:
-    import asyncio
-    import signal
+    from emulator.serve import cmd_serve
 
-    from emulator.link import LinkError, open_link
-    from emulator.rig import Rig, RigError
+    return cmd_serve(args)
 
-    params = load_trainset(args.profile)
-    if args.cpu is not None:
-        try:
-            os.sched_setaffinity(0, {args.cpu})
-        except (AttributeError, OSError, ValueError) as exc:
-            console.print(f"[red]error:[/red] cannot pin to CPU {args.cpu}: {exc}")
-            return 2
-    try:
-        link = open_link(args.link, allow_remote=args.allow_remote)
-        from emulator.clock import MonotonicClock
 
-        rig = Rig(params, link, mode=args.mode, period_s=args.period_ms / 1e3,
-                  command_delay=args.command_delay, watchdog_frames=args.watchdog_frames,
-                  seed=args.seed, clock=MonotonicClock(spin_ns=round(args.spin_us * 1e3)),
-                  ideal_dc_links=args.ideal_dc_links)
-    except (LinkError, RigError) as exc:
-        console.print(f"[red]error:[/red] {exc}")
-        return 2
+def _cmd_dash(args: argparse.Namespace) -> int:
+    from tui.app import run_dashboard
 
-    async def serve() -> None:
-        stop = asyncio.Event()
-        loop = asyncio.get_running_loop()
-        for sig in (signal.SIGINT, signal.SIGTERM):
-            loop.add_signal_handler(sig, stop.set)
-        try:
-            await link.open()
-        except (LinkError, OSError) as exc:
-            raise LinkError(f"{args.link}: {exc}") from None
-        console.print(f"railrig serve: {params.name}; link {args.link}; mode {args.mode}; "
-                      f"period {rig.period_us} us; command delay {rig.delay} frame(s)"
-                      + (f"; clock {rig.clock.method}" if args.mode == "realtime" else "")
-                      + ". Ctrl-C stops.")
-        frames = args.frames
-        if args.duration is not None:
-            frames = round(args.duration * 1e6 / rig.period_us)
-        recorder = None
-        if args.record:
-            from emulator.record import Recorder
-
-            recorder = Recorder(args.record, rig.record_columns(),
-                                {"profile": str(args.profile), "seed": args.seed,
-                                 "mode": args.mode, "period_us": rig.period_us,
-                                 "version": __import__("emulator").__version__})
-            rig.recorder = recorder
-        try:
-            await rig.run(frames=frames, stop=stop)
-        finally:
-            link.close()
-            rig.clock.close()
-            if recorder is not None:
-                recorder.close()
-
-    try:
-        asyncio.run(serve())
-    except LinkError as exc:
-        console.print(f"[red]link error:[/red] {exc}")
-        return 2
-    report = rig.report()
-    if args.report_json:
-        with open(args.report_json, "w") as fh:
-            json.dump(report, fh, indent=1)
-    t = report["timing"]
-    pq = report["power_quality"]
-    if pq:
-        console.print(f"pantograph: {pq['voltage_rms_v']:.0f} V rms, {pq['current_rms_a']:.1f} A "
-                      f"rms, {pq['active_power_w'] / 1e3:.0f} kW, power factor "
-                      f"{pq['power_factor']:.3f} (displacement {pq['displacement_factor']:.3f}), "
-                      f"current THD {100 * pq['current_thd']:.1f} %")
-    console.print(f"{report['frames']} frames, plant time {report['plant_time_s']:.3f} s; "
-                  f"link: {report['link']}; lateness median {t['lateness_us_median']:.1f} us, "
-                  f"p99 {t['lateness_us_p99']:.1f} us, late frames {t['late_frames']}, "
-                  f"CPU {100 * t['cpu_share']:.0f} %")
-    return 0
+    return run_dashboard(args.rig)
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
@@ -290,6 +219,12 @@ def build_parser() -> argparse.ArgumentParser:
                       help="run the controller in this process (faster, deterministic)")
     demo.set_defaults(func=_cmd_demo)
 
+    dash = sub.add_parser("dash", help="the terminal dashboard of a running rig")
+    dash.add_argument("--rig", default=None, metavar="ADDRESS",
+                      help="the rig's monitor: a Unix socket path or 127.0.0.1:PORT "
+                      "(default: where railrig serve listens by default)")
+    dash.set_defaults(func=_cmd_dash)
+
     ctl = sub.add_parser("controller", help="run the reference controller on a link")
     ctl.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     ctl.add_argument("--link", required=True, help="udp://HOST:PORT?peer=HOST:PORT or "
@@ -300,33 +235,9 @@ def build_parser() -> argparse.ArgumentParser:
     ctl.set_defaults(func=_cmd_controller)
 
     serve = sub.add_parser("serve", help="run the plant behind a controller link")
-    serve.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
-    serve.add_argument("--link", required=True,
-                       help="udp://HOST:PORT?peer=HOST:PORT, serial:///dev/ttyX?baud=N, "
-                       "loop://NAME")
-    serve.add_argument("--mode", choices=("realtime", "lockstep", "afap"), default="realtime")
-    serve.add_argument("--period-ms", type=float, default=1.0, help="control period T")
-    serve.add_argument("--command-delay", type=int, default=1,
-                       help="frames between a measurement and the command acting on it "
-                       "(1 as on a real signal processor; 0 only for studies)")
-    serve.add_argument("--watchdog-frames", type=int, default=10,
-                       help="frames a missing command is held before the gates are blocked")
-    serve.add_argument("--spin-us", type=float, default=150.0,
-                       help="realtime: spin this long before each deadline (150 on bare "
-                       "metal; up to the period on a VM whose timers wake late)")
-    serve.add_argument("--cpu", type=int, default=None,
-                       help="pin the rig to this CPU (the controller gets the others)")
-    serve.add_argument("--seed", type=int, default=0, help="seed of the sensor noise")
-    serve.add_argument("--frames", type=int, default=None, help="stop after N frames")
-    serve.add_argument("--duration", type=float, default=None, help="stop after S seconds "
-                       "of plant time")
-    serve.add_argument("--ideal-dc-links", action="store_true",
-                       help="hold the DC links at their nominal voltage, no line side "
-                       "(motor-side studies)")
-    serve.add_argument("--allow-remote", action="store_true",
-                       help="let UDP bind or talk beyond loopback")
-    serve.add_argument("--report-json", default=None, help="write the run's counters here")
-    serve.add_argument("--record", default=None, help="record every frame to this file")
+    from emulator.serve import add_arguments
+
+    add_arguments(serve, DEFAULT_TRAINSET)
     serve.set_defaults(func=_cmd_serve)
 
     protocol = sub.add_parser("protocol", help="print the signal map of a trainset")

@@ -117,6 +117,8 @@ class MonotonicClock:
                 finally:
                     loop.remove_reader(self._timer.fd)
                     self._timer.clear()
+            else:
+                await asyncio.sleep(0)  # behind: still let I/O (the monitor) in once
         elif deadline_ns - now > max(FALLBACK_EARLY_NS, self.spin_ns):
             await asyncio.sleep((deadline_ns - now - max(FALLBACK_EARLY_NS, self.spin_ns)) / 1e9)
         else:

@@ -37,6 +37,10 @@ class FaultSet:
         self.drop_probability = 0.0
         self.on_change = None  # callback(fault, "start" | "end", plant time)
 
+    def targets(self) -> dict[str, list[str]]:
+        """Names of the targets in this trainset, by the kind of target faults take."""
+        return {kind: list(names) for kind, names in self._targets.items()}
+
     def add(self, name: str, target: str, params: dict[str, float] | None = None,
             **triggers) -> Fault:
         """Schedule a fault; the target is checked now, not when the fault starts."""

@@ -110,6 +110,7 @@ class Rig:
         self.program = None  # a driver program: update(rig) after every frame
         self.faults = None  # an emulator.faults.FaultSet, applied every frame
         self.recorder = None  # an emulator.record.Recorder, see record_columns()
+        self.monitor = None  # an emulator.monitor.Monitor: service() after every frame
         self._command_index = {s.name: i for i, s in enumerate(sm.commands)}
         self.record_columns()  # allocates the row a recorder is given each frame
         self.sampler = MeasurementSampler(self.plant, sm, params.sensors, self.rng)
@@ -228,6 +229,8 @@ class Rig:
             self.program.update(self)  # the train's demands for the next measurement
         self._y = self.sampler.sample(period_us / 1e6, self.driver)
         self.frame += 1
+        if self.monitor is not None:
+            self.monitor.service()
 
     def record_columns(self, states: list[str] = (), extras: list[str] = ()) -> list[str]:
         """Columns of a recording: plant time, the measurements, the commands applied,
@@ -286,6 +289,10 @@ class Rig:
         self.stats.restart_cpu_window()
         first = self.frame
         while not self._done(frames, stop):
+            if self.monitor is not None and not self.monitor.may_run():
+                if not await self.monitor.hold(stop):
+                    continue  # stopped while paused
+                t0, first = clock.now_ns(), self.frame  # after a pause: deadlines anew
             deadline = t0 + (self.frame - first) * period_ns
             if self.mode == "realtime":
                 await clock.sleep_until(deadline)
@@ -334,6 +341,9 @@ class Rig:
                 self._receive([payload])
                 if k not in self._answers and sum(self.health.rejected.values()) == rejected:
                     continue  # a duplicate or stale telegram does not pace a frame
+                if (self.monitor is not None and not self.monitor.may_run()
+                        and not await self.monitor.hold(stop)):
+                    break  # stopped while paused (the controller waits for y_k meanwhile)
                 start = self.clock.now_ns()
                 period = self._take_command(k) or self.period_us
                 self._step(period)

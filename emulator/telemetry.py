@@ -1,0 +1,168 @@
+"""What the monitor tells a dashboard: the rig's layout once, then decimated snapshots.
+
+Plain dictionaries of numbers and strings, so msgpack carries them and a client needs
+none of our code. SI units inside the rig; the snapshot uses the units people read on a
+cab display (km/h, kV, kN, degC, rpm), and every key names its unit.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from emulator.controller.events import NAMES as EVENT_NAMES
+from emulator.controller.events import TRIPS
+from emulator.faults import CATALOGUE
+from emulator.plant import layout as L  # noqa: N812  (as in the plant)
+from emulator.plant.drivetrain import RAIL_CONDITIONS
+from emulator.signals import MODES
+
+RPM_PER_RAD_S = 60.0 / (2.0 * math.pi)
+DRY_MU0 = RAIL_CONDITIONS["dry"][2]
+WET_MU0 = RAIL_CONDITIONS["wet"][2]
+
+
+def catalogue() -> list[dict[str, Any]]:
+    """The fault catalogue as plain data: name, point, target kind, parameters."""
+    return [{"name": k.name, "point": k.point, "target": k.target,
+             "description": k.description,
+             "params": [{"name": n, "unit": p.unit, "lo": p.lo, "hi": p.hi,
+                         "default": p.default} for n, p in k.params.items()]}
+            for k in CATALOGUE.values()]
+
+
+def rail_condition(mu0: float) -> str:
+    """A word for an axle's friction coefficient: dry, wet, or low below wet."""
+    if mu0 >= 0.5 * (DRY_MU0 + WET_MU0):
+        return "dry"
+    return "wet" if mu0 >= 0.8 * WET_MU0 else "low"
+
+
+class TelemetryBuilder:
+    """Reads a rig into the hello message and into snapshots."""
+
+    def __init__(self, rig) -> None:
+        self.rig = rig
+        p = rig.plant.params
+        self.motor_names = p.motor_names
+        self.links = [lk.name for lk in p.dc_links]
+        self.inverters = [c.name for c in p.converters]
+        self.line_converters = [u.name for u in p.line_converters]
+        self._inv_link = [c.dc_link for c in p.converters]
+        self._lc_link = [u.dc_link for u in p.line_converters]
+
+    def hello(self, targets: dict[str, list[str]]) -> dict[str, Any]:
+        """Layout, catalogue and names, sent once when a client connects."""
+        rig = self.rig
+        p = rig.plant.params
+        return {"kind": "hello", "trainset": p.name, "mode": rig.mode,
+                "period_us": rig.period_us, "line_side": rig.plant.line_side,
+                "motors": self.motor_names, "inverters": self.inverters,
+                "dc_links": self.links, "line_converters": self.line_converters,
+                "groups": [{"name": lk, "line_converters": [u for u, j in zip(
+                    self.line_converters, self._lc_link, strict=True) if j == i],
+                            "inverters": [c for c, j in zip(
+                                self.inverters, self._inv_link, strict=True) if j == i]}
+                           for i, lk in enumerate(self.links)],
+                "catalogue": catalogue(), "targets": targets,
+                "event_names": {str(k): v for k, v in EVENT_NAMES.items()},
+                "trips": sorted(TRIPS), "modes": {str(k): v for k, v in MODES.items()}}
+
+    def snapshot(self, paused: bool, recording: str | None, program: str) -> dict[str, Any]:
+        """The rig's state now, for a dashboard."""
+        rig = self.rig
+        plant = rig.plant
+        d = rig.driver
+        replies = rig.replies
+        v = plant.read("train.speed_mps")
+        mu0 = plant.mpar[:, L.MP_MU0] * plant.mpar[:, L.MP_ADHESION_FACTOR]
+        worst = int(np.argmin(mu0))
+        health = rig.health
+        framing = rig.link.stats.framing
+        stats = rig.stats
+        return {
+            "kind": "telemetry", "t_s": plant.time_s, "frame": rig.frame, "mode": rig.mode,
+            "paused": paused, "recording": recording,
+            "timing": self._timing(stats),
+            "link": {"telegrams": health.accepted, "valid": health.valid,
+                     "held": health.missing, "late": health.sequence.get("late", 0)
+                     + health.expired, "rejected": sum(health.rejected.values()),
+                     "crc_errors": getattr(framing, "crc_errors", 0),
+                     "watchdog": bool(rig.tripped), "watchdog_trips": health.watchdog_trips},
+            "train": {"speed_kmh": v * 3.6, "position_m": plant.read("train.position_m"),
+                      "acceleration_mps2": plant.read("train.acceleration_mps2"),
+                      "tractive_force_kn": plant.read("train.tractive_force_n") / 1e3,
+                      "demand": d.effort_demand, "driver_mode": MODES.get(d.mode, "?"),
+                      "program": program,
+                      "achieved_kn": replies.get("achieved_effort_kn", 0.0),
+                      "available_kn": replies.get("available_effort_kn", 0.0),
+                      "event_code": int(replies.get("event_code", 0)),
+                      "adhesion": rail_condition(float(mu0[worst])),
+                      "mu0_min": float(mu0[worst]),
+                      "adhesion_use_max": float(np.max(plant.ms[:, L.MS_ADHESION_UTIL]))},
+            "line": self._line(),
+            "groups": self._groups(),
+            "motors": self._motors(),
+            "faults": rig.faults.listing() if rig.faults is not None else [],
+        }
+
+    @staticmethod
+    def _timing(stats) -> dict[str, float]:
+        n = min(stats.frames, 256)
+        if n == 0:
+            return {"frames": 0, "lateness_us_p99": 0.0, "compute_us_median": 0.0,
+                    "late_frames": 0}
+        i = (stats.frames - n + np.arange(n)) % stats.capacity
+        return {"frames": stats.frames,
+                "lateness_us_p99": float(np.percentile(stats.lateness_us[i], 99)),
+                "compute_us_median": float(np.median(stats.compute_us[i])),
+                "late_frames": stats.late_frames}
+
+    def _line(self) -> dict[str, Any]:
+        plant = self.rig.plant
+        if not plant.line_side:
+            return {}
+        pq = plant.power_quality()
+        return {"voltage_kv_rms": pq.get("voltage_rms_v", 0.0) / 1e3,
+                "current_a_rms": pq.get("current_rms_a", 0.0),
+                "power_kw": pq.get("active_power_w", 0.0) / 1e3,
+                "power_factor": pq.get("power_factor", 0.0),
+                "breaker_closed": bool(plant.read("line.breaker_closed") > 0.5)}
+
+    def _groups(self) -> list[dict[str, Any]]:
+        plant = self.rig.plant
+        udc = plant.read("dc_link.voltage_v")
+        chop = plant.read("dc_link.chopper_current_a")
+        out = []
+        lc = {}
+        if plant.line_side:
+            lc = {"current": plant.read("line_converter.current_a"),
+                  "pre": plant.read("line_converter.precharge_closed"),
+                  "main": plant.read("line_converter.line_contactor_closed")}
+        idc = plant.read("inverter.dc_current_a")
+        for i, name in enumerate(self.links):
+            units = [{"name": u, "current_a": float(lc["current"][j]),
+                      "precharge": bool(lc["pre"][j] > 0.5),
+                      "contactor": bool(lc["main"][j] > 0.5)}
+                     for j, u in enumerate(self.line_converters)
+                     if lc and self._lc_link[j] == i]
+            out.append({"name": name, "dc_link_v": float(udc[i]),
+                        "chopper_a": float(chop[i]), "line_converters": units,
+                        "inverter_dc_a": float(sum(idc[j] for j, k in enumerate(self._inv_link)
+                                                   if k == i))})
+        return out
+
+    def _motors(self) -> list[dict[str, Any]]:
+        plant = self.rig.plant
+        speed = plant.ms[:, L.MS_OMEGA_M] * RPM_PER_RAD_S
+        torque = plant.ms[:, L.MS_TORQUE]
+        current = np.abs(plant.mx[:, L.MX_IS]) / math.sqrt(2.0)
+        creep = plant.ms[:, L.MS_CREEP_VEL]
+        ts = plant.ms[:, L.MS_T_STATOR] - 273.15
+        tr = plant.ms[:, L.MS_T_ROTOR] - 273.15
+        return [{"name": n, "speed_rpm": float(speed[m]), "torque_nm": float(torque[m]),
+                 "current_a_rms": float(current[m]), "creep_mps": float(creep[m]),
+                 "stator_degc": float(ts[m]), "rotor_degc": float(tr[m])}
+                for m, n in enumerate(self.motor_names)]

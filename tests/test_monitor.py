@@ -1,0 +1,174 @@
+"""The monitor endpoint: telemetry rate, operator commands, bad and slow clients.
+
+A real rig (reference controller in this process, afap pacing) and real Unix sockets;
+the clients here speak the documented protocol with msgpack directly.
+"""
+
+from __future__ import annotations
+
+import asyncio
+
+import msgpack
+import pytest
+
+from emulator import monitor as monitor_module
+from emulator.monitor import MonitorError, parse_address
+from emulator.plant import layout as L  # noqa: N812
+from emulator.record import read_recording
+
+from .tui.conftest import live_rig  # noqa: F401  (fixture)
+
+
+class RawClient:
+    """A monitor client with no dashboard: msgpack maps over the socket."""
+
+    def __init__(self, reader, writer) -> None:
+        self.reader, self.writer = reader, writer
+        self.unpacker = msgpack.Unpacker(strict_map_key=False)
+        self.seen: list[dict] = []
+
+    @classmethod
+    async def open(cls, address: str) -> RawClient:
+        return cls(*await asyncio.open_unix_connection(address))
+
+    async def next(self, kind: str, timeout: float = 20.0, **match) -> dict:
+        async def find() -> dict:
+            while True:
+                for m in self.unpacker:
+                    self.seen.append(m)
+                    if m.get("kind") == kind and all(m.get(k) == v for k, v in match.items()):
+                        return m
+                data = await self.reader.read(65536)
+                if not data:
+                    raise ConnectionError("closed by the rig")
+                self.unpacker.feed(data)
+        return await asyncio.wait_for(find(), timeout)
+
+    async def ask(self, op: str, **args) -> dict:
+        ident = len(self.seen) + 1000
+        self.writer.write(msgpack.packb({"op": op, "id": ident, **args}))
+        return await self.next("reply", id=ident)
+
+
+@pytest.mark.parametrize(("address", "kind"), [
+    ("/run/user/1/railrig.sock", "unix"), ("unix:rel.sock", "unix"),
+    ("127.0.0.1:7400", "tcp"), ("localhost:7400", "tcp"), ("[::1]:7400", "tcp")])
+def test_addresses_are_local(address: str, kind: str) -> None:
+    assert parse_address(address)[0] == kind
+
+
+@pytest.mark.parametrize("address", ["10.1.2.3:7400", "0.0.0.0:7400", "rig.lab:7400",
+                                     "127.0.0.1"])
+def test_remote_or_malformed_addresses_are_refused(address: str) -> None:
+    with pytest.raises(MonitorError):
+        parse_address(address)
+
+
+async def test_hello_then_telemetry_at_about_30_hz(live_rig) -> None:  # noqa: F811
+    rig, monitor = live_rig
+    c = await RawClient.open(monitor.address)
+    hello = await c.next("hello")
+    assert hello["motors"] == rig.plant.params.motor_names
+    assert {k["name"] for k in hello["catalogue"]} >= {"open-motor-phase", "catenary-dip"}
+    assert hello["targets"]["catenary"] == ["catenary"]
+    await c.next("telemetry")  # the first comes at once, on connect
+    a = await c.next("telemetry")
+    b = await c.next("telemetry")
+    # one snapshot every round(1 / (30 Hz * 1 ms)) = 33 frames of plant time
+    assert monitor.every == 33
+    assert b["frame"] - a["frame"] == 33
+    assert len(b["motors"]) == 8 and len(b["groups"]) == 2
+
+
+async def test_inject_clear_and_errors_reach_the_rig(live_rig) -> None:  # noqa: F811
+    rig, monitor = live_rig
+    c = await RawClient.open(monitor.address)
+    await c.next("hello")
+    r = await c.ask("inject", fault="open-motor-phase", target="INV-B1.m2",
+                    params={"phase": 1})
+    assert r["ok"], r
+    await c.next("event", type="fault")
+    assert rig.plant.mu[5, L.MU_OPEN_PHASE] == 2.0
+    snap = await c.next("telemetry")
+    assert snap["faults"][0]["state"] == "active"
+    r = await c.ask("clear", fault="open-motor-phase@INV-B1.m2")
+    assert r["ok"] and rig.plant.mu[5, L.MU_OPEN_PHASE] == 0.0
+    bad = await c.ask("inject", fault="open-motor-phase", target="INV-Z9.m1")
+    assert not bad["ok"] and "no motor named 'INV-Z9.m1'" in bad["text"]
+    bad = await c.ask("inject", fault="catenary-dip", target="catenary",
+                      params={"voltage_pu": float("nan")})
+    assert not bad["ok"]
+    bad = await c.ask("warp", speed=9)
+    assert not bad["ok"] and "unknown op" in bad["text"]
+    bad = await c.ask("demand", effort=3.0)
+    assert not bad["ok"] and "-1..1" in bad["text"]
+
+
+async def test_pause_step_resume(live_rig) -> None:  # noqa: F811
+    rig, monitor = live_rig
+    c = await RawClient.open(monitor.address)
+    await c.next("hello")
+    await c.ask("pause")
+    frame = rig.frame
+    await asyncio.sleep(0.3)
+    assert rig.frame == frame
+    await c.ask("step", frames=5)
+    for _ in range(50):
+        await asyncio.sleep(0.02)
+    assert rig.frame == frame + 5
+    await c.ask("resume")
+    await asyncio.sleep(0.3)
+    assert rig.frame > frame + 100
+
+
+async def test_operator_demand_record_and_mark(live_rig, tmp_path) -> None:  # noqa: F811
+    rig, monitor = live_rig
+    c = await RawClient.open(monitor.address)
+    await c.next("hello")
+    program = rig.program
+    assert (await c.ask("demand", effort=-0.5))["ok"]
+    assert rig.program is None and rig.driver.effort_demand == -0.5
+    assert rig.driver.mode == 4  # brake
+    path = tmp_path / "op.rrec"
+    assert (await c.ask("record", path=str(path)))["ok"]
+    await asyncio.sleep(0.3)
+    assert (await c.ask("mark", text="before the dip"))["ok"]
+    await asyncio.sleep(0.1)
+    assert (await c.ask("record", stop=True))["ok"]
+    assert (await c.ask("demand", release=True))["ok"]
+    assert rig.program is program
+    rec = read_recording(path)
+    assert rec.complete and len(rec.data) > 100
+    assert any(m.get("label") == "before the dip" for m in rec.marks)
+
+
+async def test_garbage_drops_only_that_client(live_rig) -> None:  # noqa: F811
+    rig, monitor = live_rig
+    good = await RawClient.open(monitor.address)
+    await good.next("hello")
+    reader, writer = await asyncio.open_unix_connection(monitor.address)
+    writer.write(b"\xc1" * 64)  # 0xc1 is never used in msgpack
+    await asyncio.sleep(0.3)
+    assert monitor.counts["bad_messages"] >= 1
+    assert len(monitor.clients) == 1
+    frame = rig.frame
+    await good.next("telemetry")
+    assert rig.frame > frame
+    writer.close()
+
+
+async def test_a_client_that_does_not_read_is_dropped(live_rig, monkeypatch) -> None:  # noqa: F811
+    rig, monitor = live_rig
+    monkeypatch.setattr(monitor_module, "MAX_BACKLOG", 4096)
+    reader, writer = await asyncio.open_unix_connection(monitor.address)
+    # never read: the socket buffers fill, then the rig's backlog for this client
+    for _ in range(400):
+        await asyncio.sleep(0.01)
+        if monitor.counts["clients_dropped"]:
+            break
+    assert monitor.counts["clients_dropped"] == 1
+    assert monitor.clients == []
+    frame = rig.frame
+    await asyncio.sleep(0.2)
+    assert rig.frame > frame  # the frame loop went on
+    writer.close()

@@ -1,0 +1,1 @@
+"""railrig's terminal dashboard: a client of the rig's monitor endpoint only."""

@@ -1,0 +1,94 @@
+"""A monitor client: connect, read the rig's messages, send operator commands.
+
+The protocol is the one ``emulator/monitor.py`` documents: msgpack maps one after
+another on a Unix socket or a loopback TCP connection. This module does not import the
+emulator, so a dashboard attaches to a rig on a bench PC over SSH without the plant.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import os
+from collections.abc import AsyncIterator
+from pathlib import Path
+from typing import Any
+
+import msgpack
+
+MAX_MESSAGE = 16 * 1024 * 1024  # a hello with a large catalogue stays far below this
+
+
+def default_address() -> str:
+    """Where ``railrig serve`` listens by default (as emulator.monitor.default_address)."""
+    base = os.environ.get("XDG_RUNTIME_DIR") or f"/tmp/railrig-{os.getuid()}"
+    return str(Path(base) / "railrig-monitor.sock")
+
+
+class RigConnectionError(ConnectionError):
+    """The rig's monitor cannot be reached or went away."""
+
+
+class RigClient:
+    """One connection to a rig's monitor."""
+
+    def __init__(self, address: str | None = None) -> None:
+        self.address = address or default_address()
+        self.hello: dict[str, Any] = {}
+        self._reader: asyncio.StreamReader | None = None
+        self._writer: asyncio.StreamWriter | None = None
+        self._unpacker = msgpack.Unpacker(max_buffer_size=MAX_MESSAGE, strict_map_key=False)
+        self._next_id = 0
+
+    async def connect(self, timeout_s: float = 5.0) -> dict[str, Any]:
+        """Connect and return the rig's hello (layout, catalogue, events so far)."""
+        a = self.address
+        try:
+            if a.startswith("unix:") or "/" in a:
+                opening = asyncio.open_unix_connection(a.removeprefix("unix:"))
+            else:
+                host, _, port = a.rpartition(":")
+                opening = asyncio.open_connection(host.strip("[]") or "127.0.0.1", int(port))
+            self._reader, self._writer = await asyncio.wait_for(opening, timeout_s)
+            first = await asyncio.wait_for(self._next_message(), timeout_s)
+        except (OSError, ValueError, TimeoutError) as exc:
+            raise RigConnectionError(f"no rig monitor at {a}: {exc}") from None
+        if first is None or first.get("kind") != "hello":
+            raise RigConnectionError(f"{a} did not greet as a rig monitor")
+        self.hello = first
+        return first
+
+    async def _next_message(self) -> dict[str, Any] | None:
+        assert self._reader is not None
+        while True:
+            for message in self._unpacker:
+                if isinstance(message, dict):
+                    return message
+            data = await self._reader.read(65536)
+            if not data:
+                return None
+            self._unpacker.feed(data)
+
+    async def messages(self) -> AsyncIterator[dict[str, Any]]:
+        """Telemetry, events and replies until the rig goes away."""
+        while True:
+            try:
+                message = await self._next_message()
+            except (OSError, ValueError, msgpack.UnpackException) as exc:
+                raise RigConnectionError(f"monitor stream broken: {exc}") from None
+            if message is None:
+                return
+            yield message
+
+    def send(self, op: str, **args: Any) -> int:
+        """Send a command without waiting; returns its id (the reply carries it)."""
+        if self._writer is None or self._writer.is_closing():
+            raise RigConnectionError("not connected to a rig")
+        self._next_id += 1
+        self._writer.write(msgpack.packb({"op": op, "id": self._next_id, **args}))
+        return self._next_id
+
+    def close(self) -> None:
+        """Detach; the rig runs on."""
+        if self._writer is not None:
+            self._writer.close()
+            self._writer = None
