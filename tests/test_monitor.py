@@ -146,7 +146,7 @@ async def test_garbage_drops_only_that_client(live_rig) -> None:  # noqa: F811
     rig, monitor = live_rig
     good = await RawClient.open(monitor.address)
     await good.next("hello")
-    reader, writer = await asyncio.open_unix_connection(monitor.address)
+    _reader, writer = await asyncio.open_unix_connection(monitor.address)
     writer.write(b"\xc1" * 64)  # 0xc1 is never used in msgpack
     await asyncio.sleep(0.3)
     assert monitor.counts["bad_messages"] >= 1
@@ -160,7 +160,7 @@ async def test_garbage_drops_only_that_client(live_rig) -> None:  # noqa: F811
 async def test_a_client_that_does_not_read_is_dropped(live_rig, monkeypatch) -> None:  # noqa: F811
     rig, monitor = live_rig
     monkeypatch.setattr(monitor_module, "MAX_BACKLOG", 4096)
-    reader, writer = await asyncio.open_unix_connection(monitor.address)
+    _reader, writer = await asyncio.open_unix_connection(monitor.address)
     # never read: the socket buffers fill, then the rig's backlog for this client
     for _ in range(400):
         await asyncio.sleep(0.01)
