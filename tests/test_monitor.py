@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import asyncio
 
-import msgpack
 import pytest
 
 from emulator import monitor as monitor_module
@@ -16,38 +15,7 @@ from emulator.monitor import MonitorError, parse_address
 from emulator.plant import layout as L  # noqa: N812
 from emulator.record import read_recording
 
-from .tui.conftest import live_rig  # noqa: F401  (fixture)
-
-
-class RawClient:
-    """A monitor client with no dashboard: msgpack maps over the socket."""
-
-    def __init__(self, reader, writer) -> None:
-        self.reader, self.writer = reader, writer
-        self.unpacker = msgpack.Unpacker(strict_map_key=False)
-        self.seen: list[dict] = []
-
-    @classmethod
-    async def open(cls, address: str) -> RawClient:
-        return cls(*await asyncio.open_unix_connection(address))
-
-    async def next(self, kind: str, timeout: float = 20.0, **match) -> dict:
-        async def find() -> dict:
-            while True:
-                for m in self.unpacker:
-                    self.seen.append(m)
-                    if m.get("kind") == kind and all(m.get(k) == v for k, v in match.items()):
-                        return m
-                data = await self.reader.read(65536)
-                if not data:
-                    raise ConnectionError("closed by the rig")
-                self.unpacker.feed(data)
-        return await asyncio.wait_for(find(), timeout)
-
-    async def ask(self, op: str, **args) -> dict:
-        ident = len(self.seen) + 1000
-        self.writer.write(msgpack.packb({"op": op, "id": ident, **args}))
-        return await self.next("reply", id=ident)
+from .tui.conftest import RawClient, live_rig  # noqa: F401  (fixture)
 
 
 @pytest.mark.parametrize(("address", "kind"), [
@@ -152,8 +120,9 @@ async def test_garbage_drops_only_that_client(live_rig) -> None:  # noqa: F811
     assert monitor.counts["bad_messages"] >= 1
     assert len(monitor.clients) == 1
     frame = rig.frame
-    await good.next("telemetry")
+    await asyncio.sleep(0.3)
     assert rig.frame > frame
+    assert (await good.ask("mark", text="still here"))["ok"]
     writer.close()
 
 

@@ -79,7 +79,7 @@ class RigDashboard(App):
         self.snap: dict[str, Any] | None = None
         self.attached = False
         self.history = History()
-        self.events_seen = 0
+        self.log_lines: list[str] = []  # what the event log shows, as plain text
 
     def compose(self) -> ComposeResult:
         yield Static(id="status")
@@ -160,6 +160,8 @@ class RigDashboard(App):
     def _log(self, kind: str, text: str, t_s: float | None = None) -> None:
         when = f"{t_s:9.3f} s" if t_s is not None else "          -"
         line = Text(f"{when}  {kind:<10} {text}")
+        self.log_lines.append(line.plain)
+        del self.log_lines[:-2000]
         self.query_one("#event-log", RichLog).write(line)
         self.query_one("#last-event", Static).update(Text(f"last: {line.plain}"))
 

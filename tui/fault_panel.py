@@ -145,5 +145,6 @@ class FaultPanel(Vertical):
         self._listing = names
         menu.clear_options()
         menu.add_options(lines)
-        if highlighted is not None and highlighted < len(lines):
-            menu.highlighted = highlighted
+        if names:
+            menu.highlighted = highlighted if highlighted is not None and \
+                highlighted < len(names) else 0
