@@ -142,7 +142,7 @@ class Monitor:
         self._last_watchdog = False
         self._seed = seed
         if rig.faults is None:
-            from emulator.fault_points import FaultSet
+            from emulator.faults import FaultSet
 
             rig.faults = FaultSet(rig, seed=seed)
         chained = rig.faults.on_change
@@ -227,8 +227,10 @@ class Monitor:
             client, message = self.commands.popleft()
             self._apply(client, message)
         self._watch()
-        if self.clients and self.rig.frame % self.every == 0:
-            self.publish()
+        if self.clients:
+            self.builder.accumulate()
+            if self.rig.frame % self.every == 0:
+                self.publish()
 
     def publish(self) -> None:
         """One snapshot to every client, without waiting."""

@@ -41,7 +41,12 @@ def rail_condition(mu0: float) -> str:
 
 
 class TelemetryBuilder:
-    """Reads a rig into the hello message and into snapshots."""
+    """Reads a rig into the hello message and into snapshots.
+
+    DC-side currents (line converters into the links, choppers, inverters) are means
+    over the frames since the last snapshot (``accumulate`` once per frame); voltages,
+    speeds, torques and temperatures are the values at the snapshot's frame.
+    """
 
     def __init__(self, rig) -> None:
         self.rig = rig
@@ -52,6 +57,32 @@ class TelemetryBuilder:
         self.line_converters = [u.name for u in p.line_converters]
         self._inv_link = [c.dc_link for c in p.converters]
         self._lc_link = [u.dc_link for u in p.line_converters]
+        plant = rig.plant
+        self._means = [plant.state_column(n) for n in (
+            "line_converter.dc_current_a", "dc_link.chopper_current_a",
+            "inverter.dc_current_a")] if plant.line_side else [
+            plant.state_column(n) for n in ("dc_link.chopper_current_a",
+                                            "inverter.dc_current_a")]
+        self._sums = [np.zeros(a.shape[0]) for a, _ in self._means]
+        self._count = 0
+
+    def accumulate(self) -> None:
+        """Add this frame's DC-side currents (frame means) to the next snapshot's mean,
+        so that a snapshot shows them averaged over its ~33 ms rather than one frame."""
+        for total, (array, col) in zip(self._sums, self._means, strict=True):
+            total += array[:, col]
+        self._count += 1
+
+    def _take_means(self) -> list[np.ndarray]:
+        n = max(self._count, 1)
+        means = [total / n if self._count else array[:, col].copy()
+                 for total, (array, col) in zip(self._sums, self._means, strict=True)]
+        for total in self._sums:
+            total[:] = 0.0
+        self._count = 0
+        if len(means) == 2:  # no line side
+            means.insert(0, np.zeros(0))
+        return means
 
     def hello(self, targets: dict[str, list[str]]) -> dict[str, Any]:
         """Layout, catalogue and names, sent once when a client connects."""
@@ -134,16 +165,14 @@ class TelemetryBuilder:
     def _groups(self) -> list[dict[str, Any]]:
         plant = self.rig.plant
         udc = plant.read("dc_link.voltage_v")
-        chop = plant.read("dc_link.chopper_current_a")
+        lc_dc, chop, idc = self._take_means()
         out = []
         lc = {}
         if plant.line_side:
-            lc = {"current": plant.read("line_converter.current_a"),
-                  "pre": plant.read("line_converter.precharge_closed"),
+            lc = {"pre": plant.read("line_converter.precharge_closed"),
                   "main": plant.read("line_converter.line_contactor_closed")}
-        idc = plant.read("inverter.dc_current_a")
         for i, name in enumerate(self.links):
-            units = [{"name": u, "current_a": float(lc["current"][j]),
+            units = [{"name": u, "dc_current_a": float(lc_dc[j]),
                       "precharge": bool(lc["pre"][j] > 0.5),
                       "contactor": bool(lc["main"][j] > 0.5)}
                      for j, u in enumerate(self.line_converters)

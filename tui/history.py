@@ -29,7 +29,7 @@ def flatten(snapshot: dict[str, Any]) -> dict[str, float]:
         for k in ("dc_link_v", "chopper_a", "inverter_dc_a"):
             out[f"{g['name']}.{k}"] = float(g[k])
         for u in g.get("line_converters", []):
-            out[f"{u['name']}.current_a"] = float(u["current_a"])
+            out[f"{u['name']}.dc_current_a"] = float(u["dc_current_a"])
     for m in snapshot.get("motors", []):
         for k, v in m.items():
             if k != "name":

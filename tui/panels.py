@@ -51,8 +51,10 @@ def train_text(hello: dict[str, Any], snap: dict[str, Any], width: int) -> Text:
     t = Text()
     t.append(f"speed {tr['speed_kmh']:6.1f} km/h   position {tr['position_m']:8.1f} m   "
              f"accel {tr['acceleration_mps2']:+5.2f} m/s²\n")
+    who = "operator" if tr["program"] == "operator" else (
+        f"program: {tr['program']}" if tr["program"] else "no program")
     t.append(f"demand   {demand:+5.2f} [{gauge(demand, -1.0, 1.0, bar)}] "
-             f"{tr['driver_mode']} ({tr['program'] or 'no program'})\n")
+             f"{tr['driver_mode']} [{who}]\n")
     achieved = gauge(tr["achieved_kn"], -avail, avail, bar)
     t.append(f"achieved {tr['achieved_kn']:+6.1f} kN [{achieved}]"
              f" of {tr['available_kn']:.0f} kN; at rail {tr['tractive_force_kn']:+6.1f} kN\n")
@@ -84,7 +86,7 @@ def switchgear(unit: dict[str, Any]) -> str:
 class GroupTable(DataTable):
     """One row per converter group (DC link): link voltage, chopper, line converters."""
 
-    COLUMNS = ("group", "DC link V", "chopper A", "inverters A", "line converters")
+    COLUMNS = ("group", "DC V", "chop A", "inv A", "line converters: contactor, A to link")
 
     def on_mount(self) -> None:
         self.cursor_type = "none"
@@ -93,7 +95,7 @@ class GroupTable(DataTable):
     def show(self, snap: dict[str, Any]) -> None:
         rows = []
         for g in snap["groups"]:
-            units = "  ".join(f"{u['name']} {switchgear(u)} {u['current_a']:5.0f} A"
+            units = "  ".join(f"{u['name']} {switchgear(u):>4} {u['dc_current_a']:5.0f}"
                               for u in g["line_converters"]) or "ideal source"
             rows.append((g["name"], f"{g['dc_link_v']:6.0f}", f"{g['chopper_a']:5.0f}",
                          f"{g['inverter_dc_a']:6.0f}", units))
