@@ -46,23 +46,37 @@ def strip_plot(t: np.ndarray, v: np.ndarray, t_end: float, span_s: float, width:
     cols, rows = 2 * width, 4 * height
     cells = [[0] * width for _ in range(height)]
     t0 = t_end - span_s
-    ok = np.isfinite(v) & (t >= t0) & (t <= t_end)
-    t, v = t[ok], v[ok]
-    column = np.minimum(((t - t0) / span_s * cols).astype(int), cols - 1)
+    inside = (t >= t0) & (t <= t_end)
+    gap = np.zeros(cols, dtype=bool)  # columns holding a NaN sample: a dropped signal
+    gap[_columns(t[inside & ~np.isfinite(v)], t0, span_s, cols)] = True
+    ok = np.isfinite(v) & inside
+    column = _columns(t[ok], t0, span_s, cols)
     scale = (rows - 1) / (hi - lo) if hi > lo else 0.0
-    pixel = np.clip(np.rint((hi - v) * scale), 0, rows - 1).astype(int)
-    prev = None
-    for x in range(cols):
-        here = pixel[column == x]
-        if here.size == 0:
-            continue
-        top, bottom = int(here.min()), int(here.max())
-        if prev is not None:
-            top, bottom = min(top, prev), max(bottom, prev)
-        for y in range(top, bottom + 1):
+    pixel = np.clip(np.rint((hi - v[ok]) * scale), 0, rows - 1).astype(int)
+
+    def fill(x: int, y0: int, y1: int) -> None:
+        for y in range(min(y0, y1), max(y0, y1) + 1):
             cells[y // 4][x // 2] |= DOT[x % 2][y % 4]
-        prev = int(here[-1])
+
+    prev_x = prev_y = None
+    for x in np.unique(column):
+        here = pixel[column == x]
+        first = int(here[0])
+        if prev_x is not None and not gap[prev_x + 1:x].any():
+            # join the last sample of the previous column to the first of this one,
+            # straight across any columns between them that had no sample
+            for xi in range(prev_x + 1, x + 1):
+                ya = prev_y + (first - prev_y) * (xi - 1 - prev_x) / (x - prev_x)
+                yb = prev_y + (first - prev_y) * (xi - prev_x) / (x - prev_x)
+                fill(xi, round(ya), round(yb))
+        fill(int(x), int(here.min()), int(here.max()))
+        prev_x, prev_y = int(x), int(here[-1])
     return ["".join(chr(BRAILLE + c) if c else " " for c in row) for row in cells]
+
+
+def _columns(t: np.ndarray, t0: float, span_s: float, cols: int) -> np.ndarray:
+    """Dot column of each time."""
+    return np.minimum(((t - t0) / span_s * cols).astype(int), cols - 1)
 
 
 def gauge(value: float, lo: float, hi: float, width: int) -> str:
