@@ -28,6 +28,12 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     params = load_trainset(profile)
     console.print(f"[bold]railrig demo[/bold]: {params.name}")
     warm_up(params, say=console.print)
+    if not args.headless and not args.in_process:
+        if sys.stdout.isatty() and sys.stdin.isatty():
+            from emulator.live_demo import run_live_demo
+
+            return run_live_demo(profile, args.target_kmh, args.stop_at_m, console.print)
+        console.print("no terminal for the dashboard: running headless")
     where = "in this process" if args.in_process else "as a separate process over UDP"
     console.print(f"Reference controller {where}; lockstep. The train switches on, "
                   f"accelerates to {args.target_kmh:g} km/h, cruises, coasts and brakes to a "
@@ -90,6 +96,29 @@ def _cmd_bench(args: argparse.Namespace) -> int:
 
     params = load_trainset(args.profile)
     warm_up(params, say=console.print)
+    if args.monitor:
+        from emulator.bench_monitor import monitor_benchmark
+        from emulator.profile import resolve_profile
+
+        figures = monitor_benchmark(resolve_profile(args.profile), seconds=args.seconds)
+        if args.json:
+            print(json.dumps(figures))
+            return 0
+        table = Table(title=f"Rig lateness, dashboard detached / attached / detached: "
+                      f"{params.name}, {args.seconds:g} s each, clock {figures['clock']}")
+        table.add_column("figure")
+        names = ("detached_before", "attached", "detached_after")
+        for name in names:
+            table.add_column(name.replace("_", " "), justify="right")
+        for key in ("frames", "snapshots", "lateness_us_median", "lateness_us_p99",
+                    "lateness_us_p999", "late_frames", "compute_us_median",
+                    "compute_us_p99"):
+            table.add_row(key, *(f"{figures[n][key]:.1f}" if isinstance(figures[n][key], float)
+                                 else str(figures[n][key]) for n in names))
+        Console().print(table)
+        console.print(f"p99 lateness attached / detached (mean of the two windows): "
+                      f"{figures['p99_ratio_attached_to_detached']:.2f}")
+        return 0
     if args.link:
         from emulator.bench_link import link_benchmark
 
@@ -214,9 +243,10 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--target-kmh", type=float, default=80.0, help="speed to reach")
     demo.add_argument("--stop-at-m", type=float, default=2000.0, help="where to stop")
     demo.add_argument("--headless", action="store_true",
-                      help="no dashboard (the only mode until the dashboard lands)")
+                      help="no dashboard: run in lockstep as fast as it goes and print a "
+                      "summary (the default when there is no terminal)")
     demo.add_argument("--in-process", action="store_true",
-                      help="run the controller in this process (faster, deterministic)")
+                      help="headless, with the controller in this process (deterministic)")
     demo.set_defaults(func=_cmd_demo)
 
     dash = sub.add_parser("dash", help="the terminal dashboard of a running rig")
@@ -273,10 +303,12 @@ def build_parser() -> argparse.ArgumentParser:
     bench.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     bench.add_argument("--frames", type=int, default=3000, help="frames to time")
     bench.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    bench.add_argument("--monitor", action="store_true",
+                       help="the rig's lateness with a dashboard attached vs detached")
     bench.add_argument("--link", action="store_true",
                        help="benchmark the rig's pacing and UDP link instead of the plant")
     bench.add_argument("--seconds", type=float, default=10.0,
-                       help="length of each timed run of --link")
+                       help="length of each timed run of --link and --monitor")
     bench.set_defaults(func=_cmd_bench)
     return parser
 

@@ -1,0 +1,104 @@
+"""The rig's lateness with a dashboard attached and detached, in one run: figures printed,
+never asserted.
+
+The demo rig (reference controller in this process, real time, monitor on a private
+Unix socket) runs for three equal windows: detached, then with a dashboard attached (the
+real Textual app in a child process, headless: it draws every view but to no terminal),
+then detached again. The two detached windows bracket the attached one, so a drift of a
+shared host's speed shows as a difference between them rather than as the dashboard's.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import shutil
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+DASHBOARD = ("import sys; from tui.app import RigDashboard; "
+             "RigDashboard(sys.argv[1]).run(headless=True)")
+
+
+def _window(stats, first: int, last: int) -> dict[str, float]:
+    i = np.arange(first, last) % stats.capacity
+    late = stats.lateness_us[i]
+    return {"frames": int(last - first), "lateness_us_median": float(np.median(late)),
+            "lateness_us_p99": float(np.percentile(late, 99)),
+            "lateness_us_p999": float(np.percentile(late, 99.9)),
+            "late_frames": int(np.sum(late > 1000.0)),
+            "compute_us_median": float(np.median(stats.compute_us[i])),
+            "compute_us_p99": float(np.percentile(stats.compute_us[i], 99))}
+
+
+async def _run(profile: Path, seconds: float) -> dict[str, Any]:
+    from emulator.clock import MonotonicClock
+    from emulator.controller.config import config_from_profile
+    from emulator.controller.inprocess import attach
+    from emulator.controller.tcu import ReferenceController
+    from emulator.link import open_link
+    from emulator.monitor import Monitor
+    from emulator.profile import load_trainset
+    from emulator.rig import Rig
+    from emulator.scenario.driver import demo_program
+
+    where = Path(tempfile.mkdtemp(prefix="railrig-bench-"))
+    link = open_link("loop://bench-monitor")
+    await link.open()
+    rig = Rig(load_trainset(profile), link, mode="realtime", clock=MonotonicClock())
+    await attach("bench-monitor", ReferenceController(config_from_profile(profile),
+                                                      rig.signal_map.as_dict()).answer)
+    rig.program = demo_program(target_kmh=80.0, stop_at_m=4000.0)
+    monitor = Monitor(rig, str(where / "monitor.sock"))
+    await monitor.start()
+    stop = asyncio.Event()
+    task = asyncio.create_task(rig.run(stop=stop))
+    windows: dict[str, dict] = {}
+    child = None
+    try:
+        await asyncio.sleep(3.0)  # switch-on and the first allocations, not measured
+        for name in ("detached_before", "attached", "detached_after"):
+            if name == "attached":
+                child = subprocess.Popen([sys.executable, "-c", DASHBOARD, monitor.address],
+                                         stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+                for _ in range(300):
+                    if monitor.clients and monitor.counts["snapshots"] > 10:
+                        break
+                    await asyncio.sleep(0.05)
+                else:
+                    raise RuntimeError("the dashboard did not attach")
+            first = rig.stats.frames
+            sent = monitor.counts["snapshots"]
+            await asyncio.sleep(seconds)
+            windows[name] = _window(rig.stats, first, rig.stats.frames)
+            windows[name]["snapshots"] = monitor.counts["snapshots"] - sent
+            if name == "attached":
+                child.terminate()
+                child.wait(10)
+                for _ in range(100):
+                    if not monitor.clients:
+                        break
+                    await asyncio.sleep(0.05)
+    finally:
+        if child is not None and child.poll() is None:
+            child.kill()
+        stop.set()
+        await task
+        monitor.close()
+        link.close()
+        rig.clock.close()
+        shutil.rmtree(where, ignore_errors=True)
+    detached_p99 = 0.5 * (windows["detached_before"]["lateness_us_p99"]
+                          + windows["detached_after"]["lateness_us_p99"])
+    return {"seconds_per_window": seconds, "clock": rig.clock.method, **windows,
+            "p99_ratio_attached_to_detached": windows["attached"]["lateness_us_p99"]
+            / max(detached_p99, 1e-3)}
+
+
+def monitor_benchmark(profile: Path, seconds: float = 20.0) -> dict[str, Any]:
+    """Lateness detached / attached / detached, each window ``seconds`` long."""
+    return asyncio.run(_run(profile, seconds))
