@@ -349,6 +349,9 @@ class Rig:
                 self._step(period)
                 self._send_measurement(self.frame)
                 self.stats.record(0, self.clock.now_ns() - start, period * 1000)
+                if self.monitor is not None and self.frame % self.monitor.every == 0:
+                    await asyncio.sleep(0)  # an in-process controller never waits: let
+                    # the monitor's socket and snapshot in
 
     def report(self) -> dict[str, Any]:
         """Counters and timing of the run so far."""

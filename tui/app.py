@@ -130,7 +130,7 @@ class RigDashboard(App):
         self.hello = hello
         self.attached = True
         self.snap = None
-        self.history = History()
+        self.history = History(hello["motors"])
         self.sub_title = f"{hello['trainset']} ({hello['mode']}) at {self.client.address}"
         self.query_one(FaultPanel).load(hello)
         self._log("dashboard", f"attached to {self.client.address}")
@@ -183,7 +183,7 @@ class RigDashboard(App):
         if tabs == "drive":
             self.query_one(TrainPanel).show(self.hello, snap)
             self.query_one(GroupTable).show(snap)
-            self.query_one(MotorTable).show(snap)
+            self.query_one(MotorTable).show(self.hello, snap)
         elif tabs == "traces":
             self.query_one(TracePanel).show(self.history)
         self.query_one(FaultPanel).show(snap.get("faults", []))

@@ -14,11 +14,12 @@ PREFERRED = ("train.speed_kmh", "train.tractive_force_kn", "train.achieved_kn",
              "line.power_factor", "line.voltage_kv_rms")
 
 
-def flatten(snapshot: dict[str, Any]) -> dict[str, float]:
+def flatten(snapshot: dict[str, Any], motors: list[str]) -> dict[str, float]:
     """Numeric values of a telemetry snapshot by dotted name.
 
     ``train.speed_kmh``, ``line.power_kw``, ``DC-A.dc_link_v``, ``LC-A1.current_a``,
-    ``INV-A1.m1.torque_nm``: the names the dashboard lists for plotting.
+    ``INV-A1.m1.torque_nm``: the names the dashboard lists for plotting. Motor values
+    come as columns in motor order; ``motors`` (from the hello) names them.
     """
     out: dict[str, float] = {}
     for section in ("train", "line"):
@@ -30,17 +31,17 @@ def flatten(snapshot: dict[str, Any]) -> dict[str, float]:
             out[f"{g['name']}.{k}"] = float(g[k])
         for u in g.get("line_converters", []):
             out[f"{u['name']}.dc_current_a"] = float(u["dc_current_a"])
-    for m in snapshot.get("motors", []):
-        for k, v in m.items():
-            if k != "name":
-                out[f"{m['name']}.{k}"] = float(v)
+    for key, column in snapshot.get("motors", {}).items():
+        for name, v in zip(motors, column, strict=False):
+            out[f"{name}.{key}"] = float(v)
     return out
 
 
 class History:
     """Signals over the last ``span_s`` of plant time."""
 
-    def __init__(self, span_s: float = SPAN_S) -> None:
+    def __init__(self, motors: list[str] = (), span_s: float = SPAN_S) -> None:
+        self.motors = list(motors)
         self.span_s = span_s
         self.times: deque[float] = deque()
         self.rows: deque[dict[str, float]] = deque()
@@ -52,7 +53,7 @@ class History:
         if self.times and t < self.times[-1]:  # a new run behind the same address
             self.times.clear()
             self.rows.clear()
-        row = flatten(snapshot)
+        row = flatten(snapshot, self.motors)
         if not self.names:
             first = [n for n in PREFERRED if n in row]
             self.names = first + sorted(n for n in row if n not in first)

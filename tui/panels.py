@@ -111,11 +111,12 @@ class MotorTable(DataTable):
         self.cursor_type = "none"
         self.add_columns(*self.COLUMNS)
 
-    def show(self, snap: dict[str, Any]) -> None:
-        _fill(self, [(m["name"], f"{m['speed_rpm']:6.0f}", f"{m['torque_nm']:7.0f}",
-                      f"{m['current_a_rms']:6.0f}", f"{m['creep_mps']:+6.2f}",
-                      f"{m['stator_degc']:5.0f}", f"{m['rotor_degc']:5.0f}")
-                     for m in snap["motors"]])
+    def show(self, hello: dict[str, Any], snap: dict[str, Any]) -> None:
+        m = snap["motors"]
+        _fill(self, [(name, f"{m['speed_rpm'][i]:6.0f}", f"{m['torque_nm'][i]:7.0f}",
+                      f"{m['current_a_rms'][i]:6.0f}", f"{m['creep_mps'][i]:+6.2f}",
+                      f"{m['stator_degc'][i]:5.0f}", f"{m['rotor_degc'][i]:5.0f}")
+                     for i, name in enumerate(hello["motors"])])
 
 
 def _fill(table: DataTable, rows: list[tuple[str, ...]]) -> None:

@@ -86,13 +86,13 @@ def test_si_prefixes(value: float, unit: str, text: str) -> None:
 
 
 def test_history_names_every_signal_and_forgets_after_a_minute() -> None:
-    _, snaps = load()
-    flat = flatten(snaps[-1])
+    hello, snaps = load()
+    flat = flatten(snaps[-1], hello["motors"])
     assert flat["train.speed_kmh"] == snaps[-1]["train"]["speed_kmh"]
-    assert flat["INV-B2.m2.creep_mps"] == snaps[-1]["motors"][7]["creep_mps"]
+    assert flat["INV-B2.m2.creep_mps"] == snaps[-1]["motors"]["creep_mps"][7]
     assert flat["DC-A.dc_link_v"] == snaps[-1]["groups"][0]["dc_link_v"]
     assert "LC-B2.dc_current_a" in flat and "train.adhesion" not in flat
-    h = History(span_s=5.0)
+    h = History(hello["motors"], span_s=5.0)
     for snap in snaps:
         h.add(snap)
     assert h.names[0] == "train.speed_kmh"
