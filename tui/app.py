@@ -38,8 +38,8 @@ class RigDashboard(App):
     TabbedContent { height: 1fr; }
     TabPane { padding: 0; }
     #train { height: auto; }
-    GroupTable { height: auto; max-height: 7; }
-    MotorTable { height: 1fr; }
+    GroupTable { height: auto; }
+    MotorTable { height: auto; }
     TracePanel { height: 1fr; }
     #fault-top { height: 1fr; }
     #catalogue { width: 34; }

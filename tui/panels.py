@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from rich.text import Text
-from textual.widgets import DataTable, Static
+from textual.widgets import Static
 
 from tui.draw import gauge, si, strip_plot
 from tui.history import History
@@ -83,51 +83,46 @@ def switchgear(unit: dict[str, Any]) -> str:
     return "pre" if unit["precharge"] else "open"
 
 
-class GroupTable(DataTable):
-    """One row per converter group (DC link): link voltage, chopper, line converters."""
+def group_text(snap: dict[str, Any]) -> Text:
+    """One line per converter group (DC link): link voltage, chopper, inverters, and each
+    line converter's contactor and current into the link (means since the last snapshot).
+    """
+    t = Text("group    DC V  chop A   inv A  line converters: contactor, A to link\n",
+             style="bold")
+    for g in snap["groups"]:
+        units = "  ".join(f"{u['name']} {switchgear(u):>4} {u['dc_current_a']:5.0f}"
+                          for u in g["line_converters"]) or "ideal source"
+        t.append(f"{g['name']:<6} {g['dc_link_v']:6.0f} {g['chopper_a']:7.0f} "
+                 f"{g['inverter_dc_a']:7.0f}  {units}\n")
+    t.rstrip()
+    return t
 
-    COLUMNS = ("group", "DC V", "chop A", "inv A", "line converters: contactor, A to link")
 
-    def on_mount(self) -> None:
-        self.cursor_type = "none"
-        self.add_columns(*self.COLUMNS)
+def motor_text(hello: dict[str, Any], snap: dict[str, Any]) -> Text:
+    """One line per motor: speed, torque, current, creep velocity, temperatures."""
+    m = snap["motors"]
+    t = Text("motor         rpm  torque N·m  I A rms  creep m/s  stator °C  rotor °C\n",
+             style="bold")
+    for i, name in enumerate(hello["motors"]):
+        t.append(f"{name:<10} {m['speed_rpm'][i]:6.0f} {m['torque_nm'][i]:11.0f} "
+                 f"{m['current_a_rms'][i]:8.0f} {m['creep_mps'][i]:+10.2f} "
+                 f"{m['stator_degc'][i]:10.0f} {m['rotor_degc'][i]:9.0f}\n")
+    t.rstrip()
+    return t
+
+
+class GroupTable(Static):
+    """The converter groups, as text (cheap to redraw ten times a second)."""
 
     def show(self, snap: dict[str, Any]) -> None:
-        rows = []
-        for g in snap["groups"]:
-            units = "  ".join(f"{u['name']} {switchgear(u):>4} {u['dc_current_a']:5.0f}"
-                              for u in g["line_converters"]) or "ideal source"
-            rows.append((g["name"], f"{g['dc_link_v']:6.0f}", f"{g['chopper_a']:5.0f}",
-                         f"{g['inverter_dc_a']:6.0f}", units))
-        _fill(self, rows)
+        self.update(group_text(snap))
 
 
-class MotorTable(DataTable):
-    """One row per motor: speed, torque, current, creep, temperatures."""
-
-    COLUMNS = ("motor", "rpm", "torque N·m", "I A rms", "creep m/s", "stator °C", "rotor °C")
-
-    def on_mount(self) -> None:
-        self.cursor_type = "none"
-        self.add_columns(*self.COLUMNS)
+class MotorTable(Static):
+    """The motors, as text."""
 
     def show(self, hello: dict[str, Any], snap: dict[str, Any]) -> None:
-        m = snap["motors"]
-        _fill(self, [(name, f"{m['speed_rpm'][i]:6.0f}", f"{m['torque_nm'][i]:7.0f}",
-                      f"{m['current_a_rms'][i]:6.0f}", f"{m['creep_mps'][i]:+6.2f}",
-                      f"{m['stator_degc'][i]:5.0f}", f"{m['rotor_degc'][i]:5.0f}")
-                     for i, name in enumerate(hello["motors"])])
-
-
-def _fill(table: DataTable, rows: list[tuple[str, ...]]) -> None:
-    """Update a table in place (rows keyed by their first cell), adding rows once."""
-    for row in rows:
-        key = row[0]
-        if key not in table.rows:
-            table.add_row(*row, key=key)
-            continue
-        for col, value in zip(table.columns, row, strict=False):
-            table.update_cell(key, col, value)
+        self.update(motor_text(hello, snap))
 
 
 class TracePanel(Static):
