@@ -14,8 +14,8 @@ clear     fault (the name@target the listing shows)
 pause     -
 resume    -
 step      frames (default 1): run that many frames, then pause again
-demand    effort (-1..1, negative brakes): the operator takes the driver's demand;
-          release = true hands it back to the driver program
+demand    effort (-1..1, negative brakes) or change (added to the demand now): the
+          operator takes the driver's demand; release = true hands it back
 record    path (optional): start recording every frame; stop = true ends it
 mark      text: a mark in the recording and the event log
 ========  ==============================================================================
@@ -387,7 +387,11 @@ class Monitor:
             rig.program, self._held_program = self._held_program, None
             self.event("operator", "demand handed back to the driver program")
             return "driver program drives"
-        effort = float(m["effort"])
+        if "change" in m:  # a step from the demand now (keys pressed faster than telemetry)
+            effort = round(min(1.0, max(-1.0, rig.driver.effort_demand + float(m["change"]))),
+                           3)
+        else:
+            effort = float(m["effort"])
         if not -1.0 <= effort <= 1.0:
             raise ValueError(f"effort must be within -1..1, got {effort}")
         if self._held_program is None and rig.program is not None:

@@ -97,6 +97,8 @@ async def test_operator_demand_record_and_mark(live_rig, tmp_path) -> None:  # n
     assert (await c.ask("demand", effort=-0.5))["ok"]
     assert rig.program is None and rig.driver.effort_demand == -0.5
     assert rig.driver.mode == 4  # brake
+    assert (await c.ask("demand", change=-0.2))["ok"]
+    assert rig.driver.effort_demand == -0.7
     path = tmp_path / "op.rrec"
     assert (await c.ask("record", path=str(path)))["ok"]
     await asyncio.sleep(0.3)

@@ -211,9 +211,7 @@ class RigDashboard(App):
         self._send("step", frames=1)
 
     def action_demand(self, direction: int) -> None:
-        now = self.snap["train"]["demand"] if self.snap else 0.0
-        effort = max(-1.0, min(1.0, round(now + direction * DEMAND_STEP, 2)))
-        self._send("demand", effort=effort)
+        self._send("demand", change=direction * DEMAND_STEP)
 
     def action_coast(self) -> None:
         self._send("demand", effort=0.0)
