@@ -292,6 +292,9 @@ def build_parser() -> argparse.ArgumentParser:
                      help="seed of the sensor noise and random faults (default: the file's)")
     run.add_argument("--record", default=None, help="write the recording to this file")
     run.add_argument("--junit", default=None, help="write JUnit XML here")
+    run.add_argument("--monitor", default=None, metavar="ADDRESS",
+                     help="let dashboards watch the run here (socket path or "
+                     "127.0.0.1:PORT); the checks' verdicts reach them as events")
     run.add_argument("--report", default=None, help="write PNG plots and index.html here")
     run.set_defaults(func=_cmd_run)
 

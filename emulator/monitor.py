@@ -112,8 +112,12 @@ class _Client:
         transport.write(packed)
         return True
 
-    def close(self) -> None:
-        self.writer.transport.abort()
+    def close(self, flush: bool = False) -> None:
+        """Drop the connection; ``flush`` first sends what is queued (a clean end)."""
+        if flush:
+            self.writer.transport.close()
+        else:
+            self.writer.transport.abort()
 
 
 class Monitor:
@@ -176,9 +180,9 @@ class Monitor:
                 self.where = (host, port)
 
     def close(self) -> None:
-        """Stop listening and drop every client."""
+        """Stop listening and close every client (queued messages are still sent)."""
         for c in self.clients:
-            c.close()
+            c.close(flush=True)
         self.clients.clear()
         if self._server is not None:
             self._server.close()

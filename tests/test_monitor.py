@@ -143,3 +143,30 @@ async def test_a_client_that_does_not_read_is_dropped(live_rig, monkeypatch) -> 
     await asyncio.sleep(0.2)
     assert rig.frame > frame  # the frame loop went on
     writer.close()
+
+
+async def test_a_scenario_run_sends_its_verdicts_to_a_watching_client(tmp_path) -> None:
+    import dataclasses
+    import os
+    import tempfile
+
+    from emulator.scenario import load_scenario, run_scenario
+
+    from .scenario.test_determinism import SCENARIO
+
+    scenario = dataclasses.replace(load_scenario(SCENARIO), duration_s=2.5)
+    address = os.path.join(tempfile.mkdtemp(prefix="rr"), "m.sock")
+    run = asyncio.create_task(run_scenario(scenario, monitor=address))
+    for _ in range(600):
+        if os.path.exists(address):
+            break
+        await asyncio.sleep(0.05)
+    c = await RawClient.open(address)
+    hello = await c.next("hello")
+    assert hello["events"][0]["text"].endswith(": started")
+    verdict = await c.next("event", type="scenario", timeout=120.0)
+    result = await run
+    checks = [m for m in c.seen if m.get("type") == "check"]
+    assert len(checks) == len(result.results) > 0
+    assert verdict["text"].endswith("passed" if result.passed else "FAILED")
+    assert not os.path.exists(address)  # the monitor went with the run

@@ -41,6 +41,7 @@ async def _run_one(path: Path, args, bar: Progress, record: Path | None,
                                              f"x={x:7.0f} m  {phase}")
 
     result = await run_scenario(scenario, controller=args.controller, mode=args.mode,
+                                monitor=getattr(args, "monitor", None),
                                 seed=args.seed, record=record, progress=progress)
     bar.update(task, completed=scenario.duration_s)
     return result

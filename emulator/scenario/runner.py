@@ -76,6 +76,11 @@ class ScenarioProgram:
         self.driver.on_step = lambda name, t: self.mark(name, "start", t)
         self._n = 0
 
+    @property
+    def phase(self) -> str:
+        """The driver's step now (for the monitor)."""
+        return self.driver.phase
+
     def mark(self, label: str, what: str, t: float) -> None:
         """Note a labelled moment in the recording."""
         self.recorder.mark(label=label, what=what, t=t)
@@ -107,12 +112,13 @@ def _texts(scenario: Scenario) -> dict:
 async def run_scenario(scenario: Scenario, *, controller: str = "reference",
                        mode: str = "lockstep", seed: int | None = None,
                        record: str | Path | None = None, progress=None,
-                       tune=None) -> RunResult:
+                       tune=None, monitor: str | None = None) -> RunResult:
     """Run a scenario to its end and judge its checks.
 
     controller: "reference" (in this process, through telegrams) or a link URL where the
     controller under test answers. tune(controller) may alter the reference controller
-    before the run (tests use it to break one of its functions).
+    before the run (tests use it to break one of its functions). monitor: an address
+    where dashboards may watch the run; the checks' verdicts go to them as events.
     """
     from emulator.controller.config import config_from_profile
     from emulator.controller.inprocess import attach
@@ -129,6 +135,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
     except (ValueError, OSError) as exc:
         raise RunError(f"cannot open the controller link {url!r}: {exc}") from None
     temp = None
+    watch = None
     try:
         rig = Rig(params, link, mode=mode, seed=seed)
         if controller == "reference":
@@ -164,15 +171,31 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
                 raise ScenarioError(f"{scenario.path}:{spec.line}: [fault] {exc}") from None
         if scenario.initial_speed_mps:
             rig.plant.set_speed(scenario.initial_speed_mps)
+        if monitor is not None:
+            from emulator.monitor import Monitor
+
+            watch = Monitor(rig, monitor, seed=seed)  # chains the fault marks above
+            await watch.start()
+            watch.event("scenario", f"{scenario.name}: started")
         wall = await _run(scenario, rig, program, progress)
         recorder.close()
         rec = read_recording(path)
+        result = judge(scenario, rec, wall_s=wall, path=Path(record) if record else None,
+                       link=rig.health.as_dict())
+        if watch is not None:
+            for r in result.results:
+                watch.event("check", f"{'pass' if r.passed else 'FAIL'} {r.spec.name}: "
+                            f"{r.measured} {r.detail}".rstrip())
+            watch.event("scenario", f"{scenario.name}: "
+                        f"{'passed' if result.passed else 'FAILED'}")
+            watch.publish()
     finally:
+        if watch is not None:
+            watch.close()
         link.close()
         if temp is not None:  # the recording is in memory by now, or the run failed
             Path(temp).unlink(missing_ok=True)
-    return judge(scenario, rec, wall_s=wall, path=Path(record) if record else None,
-                 link=rig.health.as_dict())
+    return result
 
 
 async def _run(scenario: Scenario, rig: Rig, program: ScenarioProgram, progress) -> float:
