@@ -47,6 +47,8 @@ class RigDashboard(App):
     #fault-params { height: auto; }
     #fault-params Input { width: 24; }
     #active-faults { height: 6; }
+    /* reverse video marks the highlighted entry on a terminal without colour too */
+    OptionList > .option-list--option-highlighted { text-style: bold reverse; }
     """
     BINDINGS: ClassVar = [
         Binding("d", "show('drive')", "drive"),

@@ -72,7 +72,7 @@ class FaultPanel(Vertical):
             return
         self.current = kind
         self.query_one("#fault-description", Static).update(
-            f"{kind['name']} — at the {kind['point']} point, on a {kind['target']}:\n"
+            f"{kind['name']} — at the {kind['point']} point; target: {kind['target']}\n"
             f"{kind['description']}")
         select = self.query_one("#fault-target", Select)
         names = self.targets.get(kind["target"], [])
