@@ -41,6 +41,8 @@ class RigDashboard(App):
     GroupTable { height: auto; }
     MotorTable { height: auto; }
     TracePanel { height: 1fr; }
+    #drive-trace { display: none; }
+    .tall #drive-trace { display: block; }
     #fault-top { height: 1fr; }
     #catalogue { width: 34; }
     #fault-form { width: 1fr; padding: 0 1; }
@@ -90,6 +92,7 @@ class RigDashboard(App):
                 yield TrainPanel(id="train")
                 yield GroupTable(id="groups")
                 yield MotorTable(id="motors")
+                yield TracePanel(slots=2, selectable=False, id="drive-trace")  # 40 rows or more only
             with TabPane("Traces (t)", id="traces"):
                 yield TracePanel(id="trace-panel")
             with TabPane("Log (l)", id="log"):
@@ -99,7 +102,11 @@ class RigDashboard(App):
         yield Static("no events yet", id="last-event")
         yield Footer()
 
+    def on_resize(self, event) -> None:
+        self.set_class(event.size.height >= 40, "tall")  # room for traces under the motors
+
     def on_mount(self) -> None:
+        self.set_class(self.size.height >= 40, "tall")
         self.run_worker(self._follow(), exclusive=True, name="monitor")
         self.set_interval(REFRESH_S, self.refresh_views)
         self.refresh_views()
@@ -186,8 +193,10 @@ class RigDashboard(App):
             self.query_one(TrainPanel).show(self.hello, snap)
             self.query_one(GroupTable).show(snap)
             self.query_one(MotorTable).show(self.hello, snap)
+            if self.has_class("tall"):
+                self.query_one("#drive-trace", TracePanel).show(self.history)
         elif tabs == "traces":
-            self.query_one(TracePanel).show(self.history)
+            self.query_one("#trace-panel", TracePanel).show(self.history)
         self.query_one(FaultPanel).show(snap.get("faults", []))
 
     # --- commands ---------------------------------------------------------------------
@@ -239,10 +248,10 @@ class RigDashboard(App):
         self.query_one(FaultPanel).clear_highlighted()
 
     def action_trace(self, step: int) -> None:
-        self.query_one(TracePanel).cycle(self.history, step)
+        self.query_one("#trace-panel", TracePanel).cycle(self.history, step)
 
     def action_slot(self, slot: int) -> None:
-        self.query_one(TracePanel).selected = slot
+        self.query_one("#trace-panel", TracePanel).selected = slot
 
     def on_fault_panel_inject(self, message: FaultPanel.Inject) -> None:
         self._send("inject", fault=message.fault, target=message.target,

@@ -109,6 +109,12 @@ class FaultPanel(Vertical):
             params[p["name"]] = value
         return FaultPanel.Inject(self.current["name"], target, params)
 
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        """Enter in a parameter field injects (there, ``i`` types an i)."""
+        event.stop()
+        self.inject()
+        self.query_one("#catalogue", OptionList).focus()  # letters are keys again
+
     def on_button_pressed(self, event: Button.Pressed) -> None:
         if event.button.id == "inject":
             self.inject()

@@ -34,7 +34,7 @@ def status_text(hello: dict[str, Any], snap: dict[str, Any] | None, attached: bo
     text.append(f" {snap['mode']} t {snap['t_s']:.2f} s  margin {100 * margin:.0f} %"
                 f"  late p99 {timing['lateness_us_p99'] / 1e3:.2f} ms  ")
     text.append(rec, style="bold reverse" if snap.get("recording") else "")
-    text.append(f"\n link: telegrams {link['telegrams']}  late {link['late']}  held "
+    text.append(f"\n link: telegrams {link['telegrams']}  late {link['late']}  lost "
                 f"{link['held']}  rej {link['rejected']}  crc {link['crc_errors']}  ")
     text.append(wd, style="bold reverse" if link["watchdog"] else "")
     return text
@@ -128,10 +128,10 @@ class MotorTable(Static):
 class TracePanel(Static):
     """Strip plots of chosen signals over the last minute, one per slot."""
 
-    def __init__(self, slots: int = 3, **kw) -> None:
+    def __init__(self, slots: int = 3, selectable: bool = True, **kw) -> None:
         super().__init__(**kw)
         self.choice = [0] * slots  # index into History.names per slot
-        self.selected = 0
+        self.selected = 0 if selectable else -1  # the slot that n / p change
         self._defaults_set = False
 
     def cycle(self, history: History, step: int) -> None:
