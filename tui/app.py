@@ -92,7 +92,8 @@ class RigDashboard(App):
                 yield TrainPanel(id="train")
                 yield GroupTable(id="groups")
                 yield MotorTable(id="motors")
-                yield TracePanel(slots=2, selectable=False, id="drive-trace")  # 40 rows or more only
+                # two traces under the motors, on terminals of 40 rows or more
+                yield TracePanel(slots=2, selectable=False, id="drive-trace")
             with TabPane("Traces (t)", id="traces"):
                 yield TracePanel(id="trace-panel")
             with TabPane("Log (l)", id="log"):
