@@ -139,7 +139,6 @@ class Monitor:
         self.steps = 0
         self.resumed = asyncio.Event()
         self._server: asyncio.AbstractServer | None = None
-        self._tasks: set[asyncio.Task] = set()
         self._own_recorder = None
         self._held_program = None  # the driver program while the operator drives
         self._last_code = 0
@@ -163,12 +162,20 @@ class Monitor:
 
     # --- the socket -------------------------------------------------------------------
     async def start(self) -> None:
-        """Listen; a stale Unix socket file from a killed rig is replaced."""
+        """Listen. A socket file left by a killed rig is replaced; one where another rig
+        still answers is not (MonitorError)."""
         if self.kind == "unix":
             path = Path(self.where)
             path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
             if path.exists() and path.is_socket():
-                path.unlink()
+                try:
+                    _, writer = await asyncio.open_unix_connection(str(path))
+                except OSError:  # refused: nobody listens, the file is stale
+                    path.unlink(missing_ok=True)
+                else:
+                    writer.close()
+                    raise MonitorError(f"another rig's monitor listens at {path}; give this "
+                                       "one --monitor with another address")
             self._server = await asyncio.start_unix_server(self._serve, path=str(path))
             os.chmod(path, 0o600)
         else:

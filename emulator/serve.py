@@ -115,7 +115,8 @@ def cmd_serve(args: argparse.Namespace) -> int:
         if monitor is not None:
             try:
                 await monitor.start()
-            except OSError as exc:
+            except (OSError, MonitorError) as exc:
+                link.close()
                 raise LinkError(f"monitor {monitor.address}: {exc}") from None
         controller = args.link or "the reference controller in this process"
         console.print(f"railrig serve: {params.name}; controller {controller}; mode "

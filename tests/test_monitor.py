@@ -170,3 +170,24 @@ async def test_a_scenario_run_sends_its_verdicts_to_a_watching_client(tmp_path) 
     assert len(checks) == len(result.results) > 0
     assert verdict["text"].endswith("passed" if result.passed else "FAILED")
     assert not os.path.exists(address)  # the monitor went with the run
+
+
+async def test_a_second_rig_does_not_take_a_live_socket(live_rig, tmp_path) -> None:  # noqa: F811
+    from emulator.link import open_link
+    from emulator.monitor import Monitor
+    from emulator.rig import Rig
+
+    rig, monitor = live_rig
+    link = open_link("loop://second-rig")
+    other = Rig(rig.plant.params, link)
+    with pytest.raises(MonitorError, match="another rig's monitor listens"):
+        await Monitor(other, monitor.address).start()
+    stale = tmp_path / "stale.sock"
+    first = Monitor(other, str(stale))
+    await first.start()
+    first._server.close()  # a rig killed without cleaning up leaves the file behind
+    await first._server.wait_closed()
+    assert stale.exists()
+    second = Monitor(other, str(stale))
+    await second.start()  # replaces the stale file
+    second.close()
