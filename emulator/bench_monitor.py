@@ -6,11 +6,14 @@ Unix socket) runs for three equal windows: detached, then with a dashboard attac
 real Textual app in a child process, headless: it draws every view but to no terminal),
 then detached again. The two detached windows bracket the attached one, so a drift of a
 shared host's speed shows as a difference between them rather than as the dashboard's.
+With ``pty=True`` the dashboard draws into a pseudo-terminal (util-linux ``script``), as it
+would in a terminal, which costs it more than drawing headless.
 """
 
 from __future__ import annotations
 
 import asyncio
+import shlex
 import shutil
 import subprocess
 import sys
@@ -35,7 +38,7 @@ def _window(stats, first: int, last: int) -> dict[str, float]:
             "compute_us_p99": float(np.percentile(stats.compute_us[i], 99))}
 
 
-async def _run(profile: Path, seconds: float) -> dict[str, Any]:
+async def _run(profile: Path, seconds: float, pty: bool) -> dict[str, Any]:
     from emulator.clock import MonotonicClock
     from emulator.controller.config import config_from_profile
     from emulator.controller.inprocess import attach
@@ -63,8 +66,13 @@ async def _run(profile: Path, seconds: float) -> dict[str, Any]:
         await asyncio.sleep(3.0)  # switch-on and the first allocations, not measured
         for name in ("detached_before", "attached", "detached_after"):
             if name == "attached":
-                child = subprocess.Popen([sys.executable, "-c", DASHBOARD, monitor.address],
-                                         stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+                argv = [sys.executable, "-c", DASHBOARD, monitor.address]
+                if pty:
+                    drawn = DASHBOARD.replace(".run(headless=True)", ".run()")
+                    argv = ["script", "-q", "-e", "-c", shlex.join(
+                        [sys.executable, "-c", drawn, monitor.address]), "/dev/null"]
+                child = subprocess.Popen(argv, stdout=subprocess.DEVNULL,
+                                         stderr=subprocess.DEVNULL, stdin=subprocess.PIPE)
                 for _ in range(300):
                     if monitor.clients and monitor.counts["snapshots"] > 10:
                         break
@@ -77,12 +85,14 @@ async def _run(profile: Path, seconds: float) -> dict[str, Any]:
             windows[name] = _window(rig.stats, first, rig.stats.frames)
             windows[name]["snapshots"] = monitor.counts["snapshots"] - sent
             if name == "attached":
-                child.terminate()
-                child.wait(10)
-                for _ in range(100):
-                    if not monitor.clients:
+                child.terminate()  # and wait without blocking the rig's loop
+                for _ in range(200):
+                    if child.poll() is not None and not monitor.clients:
                         break
                     await asyncio.sleep(0.05)
+                else:
+                    child.kill()
+                await asyncio.sleep(1.0)  # the next window starts on a settled rig
     finally:
         if child is not None and child.poll() is None:
             child.kill()
@@ -94,11 +104,16 @@ async def _run(profile: Path, seconds: float) -> dict[str, Any]:
         shutil.rmtree(where, ignore_errors=True)
     detached_p99 = 0.5 * (windows["detached_before"]["lateness_us_p99"]
                           + windows["detached_after"]["lateness_us_p99"])
-    return {"seconds_per_window": seconds, "clock": rig.clock.method, **windows,
+    return {"seconds_per_window": seconds, "clock": rig.clock.method,
+            "dashboard": "in a pseudo-terminal" if pty else "headless", **windows,
             "p99_ratio_attached_to_detached": windows["attached"]["lateness_us_p99"]
             / max(detached_p99, 1e-3)}
 
 
-def monitor_benchmark(profile: Path, seconds: float = 20.0) -> dict[str, Any]:
-    """Lateness detached / attached / detached, each window ``seconds`` long."""
-    return asyncio.run(_run(profile, seconds))
+def monitor_benchmark(profile: Path, seconds: float = 20.0,
+                      pty: bool | None = None) -> dict[str, Any]:
+    """Lateness detached / attached / detached, each window ``seconds`` long; the
+    dashboard in a pseudo-terminal if ``script`` is there (pty=None) or as told."""
+    if pty is None:
+        pty = shutil.which("script") is not None
+    return asyncio.run(_run(profile, seconds, pty))

@@ -105,7 +105,8 @@ def _cmd_bench(args: argparse.Namespace) -> int:
             print(json.dumps(figures))
             return 0
         table = Table(title=f"Rig lateness, dashboard detached / attached / detached: "
-                      f"{params.name}, {args.seconds:g} s each, clock {figures['clock']}")
+                      f"{params.name}, {args.seconds:g} s each, clock {figures['clock']}, "
+                      f"dashboard {figures['dashboard']}")
         table.add_column("figure")
         names = ("detached_before", "attached", "detached_after")
         for name in names:
