@@ -20,7 +20,7 @@ from textual.widgets import Footer, RichLog, Static, TabbedContent, TabPane
 from tui.client import RigClient, RigConnectionError
 from tui.fault_panel import FaultPanel
 from tui.history import History
-from tui.panels import GroupTable, MotorTable, TracePanel, TrainPanel, status_text
+from tui.panels import GroupTable, MotorTable, TracePanel, TrainPanel, paint, status_text
 
 REFRESH_S = 0.1  # views redraw at 10 Hz; telemetry arrives at ~30 Hz into the history
 RETRY_S = 1.0
@@ -173,7 +173,7 @@ class RigDashboard(App):
         self.log_lines.append(line.plain)
         del self.log_lines[:-2000]
         self.query_one("#event-log", RichLog).write(line)
-        self.query_one("#last-event", Static).update(Text(f"last: {line.plain}"))
+        paint(self.query_one("#last-event", Static), Text(f"last: {line.plain}"))
 
     # --- drawing ----------------------------------------------------------------------
     def refresh_views(self) -> None:
@@ -184,7 +184,7 @@ class RigDashboard(App):
             return
 
     def _redraw(self) -> None:
-        self.query_one("#status", Static).update(status_text(self.hello, self.snap,
+        paint(self.query_one("#status", Static), status_text(self.hello, self.snap,
                                                              self.attached))
         snap = self.snap
         if snap is None:

@@ -16,6 +16,15 @@ from tui.draw import gauge, si, strip_plot
 from tui.history import History
 
 
+def paint(view: Static, text: Text | str) -> None:
+    """Show text in a view, with a layout pass only when its line count changes (a layout
+    pass reflows the whole screen; at 10 Hz that was most of the dashboard's CPU)."""
+    lines = str(text).count("\n") + 1
+    changed = getattr(view, "_painted_lines", None) != lines
+    view._painted_lines = lines
+    view.update(text, layout=changed)
+
+
 def status_text(hello: dict[str, Any], snap: dict[str, Any] | None, attached: bool) -> Text:
     """The status line: run state, mode, plant time, real-time margin, link health."""
     if not attached:
@@ -73,7 +82,7 @@ class TrainPanel(Static):
     """The train and the line, a few lines of text."""
 
     def show(self, hello: dict[str, Any], snap: dict[str, Any]) -> None:
-        self.update(train_text(hello, snap, self.size.width or 80))
+        paint(self, train_text(hello, snap, self.size.width or 80))
 
 
 def switchgear(unit: dict[str, Any]) -> str:
@@ -115,14 +124,14 @@ class GroupTable(Static):
     """The converter groups, as text (cheap to redraw ten times a second)."""
 
     def show(self, snap: dict[str, Any]) -> None:
-        self.update(group_text(snap))
+        paint(self, group_text(snap))
 
 
 class MotorTable(Static):
     """The motors, as text."""
 
     def show(self, hello: dict[str, Any], snap: dict[str, Any]) -> None:
-        self.update(motor_text(hello, snap))
+        paint(self, motor_text(hello, snap))
 
 
 class TracePanel(Static):
@@ -142,7 +151,7 @@ class TracePanel(Static):
 
     def show(self, history: History) -> None:
         if not history.names:
-            self.update("no telemetry yet")
+            paint(self, "no telemetry yet")
             return
         if not self._defaults_set:
             self.choice = [min(i, len(history.names) - 1) for i in range(len(self.choice))]
@@ -165,4 +174,4 @@ class TracePanel(Static):
             for r, row in enumerate(rows):
                 label = hi if r == 0 else (lo if r == len(rows) - 1 else "")
                 out.append(f"{label:>9} │{row}\n")
-        self.update(out)
+        paint(self, out)
