@@ -208,7 +208,7 @@ class Rig:
 
     def _step(self, period_us: int) -> None:
         held = self._held
-        if self.faults is not None:
+        if self.faults is not None and self.faults.faults:  # none scheduled: nothing to do
             self.faults.update()
             held = held.copy()
             self.faults.transform_command(held, self._command_index)
