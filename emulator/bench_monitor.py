@@ -40,9 +40,7 @@ def _window(stats, first: int, last: int) -> dict[str, float]:
 
 async def _run(profile: Path, seconds: float, pty: bool) -> dict[str, Any]:
     from emulator.clock import MonotonicClock
-    from emulator.controller.config import config_from_profile
-    from emulator.controller.inprocess import attach
-    from emulator.controller.tcu import ReferenceController
+    from emulator.controller.inprocess import attach_reference
     from emulator.link import open_link
     from emulator.monitor import Monitor
     from emulator.profile import load_trainset
@@ -53,8 +51,7 @@ async def _run(profile: Path, seconds: float, pty: bool) -> dict[str, Any]:
     link = open_link("loop://bench-monitor")
     await link.open()
     rig = Rig(load_trainset(profile), link, mode="realtime", clock=MonotonicClock())
-    await attach("bench-monitor", ReferenceController(config_from_profile(profile),
-                                                      rig.signal_map.as_dict()).answer)
+    await attach_reference("bench-monitor", rig, profile)
     rig.program = demo_program(target_kmh=80.0, stop_at_m=4000.0)
     monitor = Monitor(rig, str(where / "monitor.sock"))
     await monitor.start()

@@ -85,15 +85,12 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
     params = load_trainset(profile)
     child = None
     if in_process:
-        from emulator.controller.config import config_from_profile
-        from emulator.controller.inprocess import attach
-        from emulator.controller.tcu import ReferenceController
+        from emulator.controller.inprocess import attach_reference
 
         link = open_link("loop://railrig-demo")
         await link.open()
         rig = Rig(params, link, mode="lockstep")
-        tcu = ReferenceController(config_from_profile(profile), rig.signal_map.as_dict())
-        await attach("railrig-demo", tcu.answer)
+        await attach_reference("railrig-demo", rig, profile)
     else:
         ports = []
         for _ in range(2):

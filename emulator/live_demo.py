@@ -23,15 +23,16 @@ STOP_GRACE_S = 10.0
 
 
 def start_rig(profile: Path, where: Path, target_kmh: float, stop_at_m: float,
-              log_path: Path) -> tuple[subprocess.Popen, str]:
-    """Start the rig child; returns it and its monitor address."""
+              log_path: Path, extra: tuple[str, ...] = ()) -> tuple[subprocess.Popen, str]:
+    """Start the rig child (``extra``: more ``railrig serve`` options); returns it and its
+    monitor address."""
     address = str(where / "monitor.sock")
     log = log_path.open("w")
     child = subprocess.Popen(
         [sys.executable, "-m", "emulator.cli", "serve", "--profile", str(profile),
          "--controller", "reference", "--program", "demo", "--mode", "realtime",
          "--target-kmh", f"{target_kmh:g}", "--stop-at-m", f"{stop_at_m:g}",
-         "--monitor", address],
+         "--monitor", address, *extra],
         stdout=log, stderr=subprocess.STDOUT, stdin=subprocess.DEVNULL)
     log.close()
     return child, address

@@ -45,6 +45,7 @@ import msgpack
 from emulator.faults import FaultError
 from emulator.signals import MODES
 from emulator.telemetry import TelemetryBuilder
+from tui.client import default_address  # one place for it; the client needs no emulator
 
 log = logging.getLogger(__name__)
 
@@ -69,12 +70,6 @@ def pack(message: dict[str, Any]) -> bytes:
 
 class MonitorError(ValueError):
     """A monitor address that cannot be used."""
-
-
-def default_address() -> str:
-    """A Unix socket in the user's runtime directory (or a private directory in /tmp)."""
-    base = os.environ.get("XDG_RUNTIME_DIR") or f"/tmp/railrig-{os.getuid()}"
-    return str(Path(base) / "railrig-monitor.sock")
 
 
 def parse_address(address: str) -> tuple[str, Any]:
@@ -123,8 +118,7 @@ class _Client:
 class Monitor:
     """Publishes a rig's state and applies operator commands between frames."""
 
-    def __init__(self, rig, address: str | None = None, *, rate_hz: float = RATE_HZ,
-                 seed: int = 0) -> None:
+    def __init__(self, rig, address: str | None = None, *, rate_hz: float = RATE_HZ) -> None:
         self.rig = rig
         self.address = address or default_address()
         self.kind, self.where = parse_address(self.address)
@@ -145,11 +139,10 @@ class Monitor:
         self._publish_pending = False
         self._last_phase = ""
         self._last_watchdog = False
-        self._seed = seed
         if rig.faults is None:
             from emulator.faults import FaultSet
 
-            rig.faults = FaultSet(rig, seed=seed)
+            rig.faults = FaultSet(rig, seed=rig.seed)
         chained = rig.faults.on_change
 
         def on_change(fault, what: str, t: float) -> None:
@@ -257,9 +250,12 @@ class Monitor:
         if self.clients:
             self._publish_to(list(self.clients))
 
+    def _program_phase(self) -> str:
+        """The driver program's step now ("" without a program)."""
+        return getattr(self.rig.program, "phase", "") if self.rig.program is not None else ""
+
     def _publish_to(self, clients: list[_Client]) -> None:
-        program = "operator" if self._held_program is not None else (
-            getattr(self.rig.program, "phase", "") if self.rig.program is not None else "")
+        program = "operator" if self._held_program is not None else self._program_phase()
         recording = getattr(self.rig.recorder, "path", None)
         snap = self.builder.snapshot(self.paused, str(recording) if recording else None,
                                      str(program))
@@ -284,7 +280,7 @@ class Monitor:
     def _watch(self) -> None:
         """Turn changes of the controller's event code, the watchdog and the driver
         program's step into events."""
-        phase = getattr(self.rig.program, "phase", "") if self.rig.program is not None else ""
+        phase = self._program_phase()
         if phase != self._last_phase:
             self._last_phase = phase
             if phase:
@@ -426,16 +422,8 @@ class Monitor:
             return f"recording stopped: {path}"
         if rig.recorder is not None:
             raise ValueError(f"already recording to {rig.recorder.path}")
-        from emulator import __version__
-        from emulator.record import Recorder
-
         path = m.get("path") or time.strftime("railrig-%Y%m%d-%H%M%S.rrec")
-        self._own_recorder = Recorder(str(path), rig.record_columns(),
-                                      {"profile": rig.plant.params.source,
-                                       "seed": self._seed, "mode": rig.mode,
-                                       "period_us": rig.period_us, "version": __version__,
-                                       "started_at_s": rig.plant.time_s})
-        rig.recorder = self._own_recorder
+        self._own_recorder = rig.start_recording(str(path))
         self.event("operator", f"recording to {path}")
         return f"recording to {path}"
 

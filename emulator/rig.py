@@ -105,6 +105,7 @@ class Rig:
             PROTOCOL_VERSION, np.array([s.scale for s in sm.measurements]),
             np.array([s.scale for s in sm.commands]), np.array([s.lo for s in sm.commands]),
             np.array([s.hi for s in sm.commands]))
+        self.seed = seed
         self.rng = np.random.default_rng(seed)
         self.driver = DriverDemand()
         self.program = None  # a driver program: update(rig) after every frame
@@ -253,6 +254,18 @@ class Rig:
         cols += [f"p.{name}" for name in extras]
         self._row = np.zeros(len(cols))
         return cols
+
+    def start_recording(self, path: str, **meta: Any):
+        """Record every frame from now on to ``path`` (time, y, u), headed with what a
+        reader needs to know of the run; returns the emulator.record.Recorder."""
+        from emulator import __version__
+        from emulator.record import Recorder
+
+        self.recorder = Recorder(path, self.record_columns(), {
+            "profile": self.plant.params.source, "seed": self.seed, "mode": self.mode,
+            "period_us": self.period_us, "version": __version__,
+            "started_at_s": self.plant.time_s, **meta})
+        return self.recorder
 
     def start(self) -> None:
         """Warm every compiled path and take y_0 (call before the first frame)."""

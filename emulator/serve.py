@@ -85,7 +85,7 @@ def cmd_serve(args: argparse.Namespace) -> int:
                   command_delay=args.command_delay, watchdog_frames=args.watchdog_frames,
                   seed=args.seed, clock=MonotonicClock(spin_ns=round(args.spin_us * 1e3)),
                   ideal_dc_links=args.ideal_dc_links)
-        monitor = None if args.no_monitor else Monitor(rig, args.monitor, seed=args.seed)
+        monitor = None if args.no_monitor else Monitor(rig, args.monitor)
     except (LinkError, RigError, MonitorError) as exc:
         console.print(f"[red]error:[/red] {exc}")
         return 2
@@ -105,13 +105,10 @@ def cmd_serve(args: argparse.Namespace) -> int:
         except (LinkError, OSError) as exc:
             raise LinkError(f"{link_url}: {exc}") from None
         if args.controller == "reference":
-            from emulator.controller.config import config_from_profile
-            from emulator.controller.inprocess import attach
-            from emulator.controller.tcu import ReferenceController
+            from emulator.controller.inprocess import attach_reference
 
-            tcu = ReferenceController(config_from_profile(profile, args.period_ms / 1e3),
-                                      rig.signal_map.as_dict())
-            await attach(link_url.removeprefix("loop://"), tcu.answer)
+            await attach_reference(link_url.removeprefix("loop://"), rig, profile,
+                                   args.period_ms / 1e3)
         if monitor is not None:
             try:
                 await monitor.start()
@@ -127,16 +124,7 @@ def cmd_serve(args: argparse.Namespace) -> int:
         frames = args.frames
         if args.duration is not None:
             frames = round(args.duration * 1e6 / rig.period_us)
-        recorder = None
-        if args.record:
-            from emulator import __version__
-            from emulator.record import Recorder
-
-            recorder = Recorder(args.record, rig.record_columns(),
-                                {"profile": str(profile), "seed": args.seed,
-                                 "mode": args.mode, "period_us": rig.period_us,
-                                 "version": __version__})
-            rig.recorder = recorder
+        recorder = rig.start_recording(args.record) if args.record else None
         try:
             await rig.run(frames=frames, stop=stop)
         finally:

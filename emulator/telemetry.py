@@ -58,36 +58,34 @@ class TelemetryBuilder:
         self._inv_link = [c.dc_link for c in p.converters]
         self._lc_link = [u.dc_link for u in p.line_converters]
         plant = rig.plant
-        self._means = [plant.state_column(n) for n in (
-            "line_converter.dc_current_a", "dc_link.chopper_current_a",
-            "inverter.dc_current_a")] if plant.line_side else [
-            plant.state_column(n) for n in ("dc_link.chopper_current_a",
-                                            "inverter.dc_current_a")]
-        self._sums = [np.zeros(a.shape[0]) for a, _ in self._means]
+        names = ["dc_link.chopper_current_a", "inverter.dc_current_a"]
+        if plant.line_side:
+            names.append("line_converter.dc_current_a")
+        self._means = {n: plant.state_column(n) for n in names}
+        self._sums = {n: np.zeros(a.shape[0]) for n, (a, _) in self._means.items()}
         self._udc = plant.state_column("dc_link.voltage_v")
-        self._breaker = plant.state_column("line.breaker_closed") if plant.line_side else None
-        self._lc_pre = (plant.state_column("line_converter.precharge_closed")
-                        if plant.line_side else None)
-        self._lc_main = (plant.state_column("line_converter.line_contactor_closed")
-                         if plant.line_side else None)
+        self._breaker = self._lc_pre = self._lc_main = None
+        if plant.line_side:
+            self._breaker = plant.state_column("line.breaker_closed")
+            self._lc_pre = plant.state_column("line_converter.precharge_closed")
+            self._lc_main = plant.state_column("line_converter.line_contactor_closed")
         self._count = 0
 
     def accumulate(self) -> None:
         """Add this frame's DC-side currents (frame means) to the next snapshot's mean,
         so that a snapshot shows them averaged over its ~33 ms rather than one frame."""
-        for total, (array, col) in zip(self._sums, self._means, strict=True):
-            total += array[:, col]
+        for name, (array, col) in self._means.items():
+            self._sums[name] += array[:, col]
         self._count += 1
 
-    def _take_means(self) -> list[np.ndarray]:
-        n = max(self._count, 1)
-        means = [total / n if self._count else array[:, col].copy()
-                 for total, (array, col) in zip(self._sums, self._means, strict=True)]
-        for total in self._sums:
+    def _take_means(self) -> dict[str, list[float]]:
+        """The means since the last snapshot (this frame's values if none), then reset."""
+        means = {}
+        for name, (array, col) in self._means.items():
+            total = self._sums[name]
+            means[name] = (total / self._count if self._count else array[:, col]).tolist()
             total[:] = 0.0
         self._count = 0
-        if len(means) == 2:  # no line side
-            means.insert(0, np.zeros(0))
         return means
 
     def hello(self, targets: dict[str, list[str]]) -> dict[str, Any]:
@@ -178,7 +176,9 @@ class TelemetryBuilder:
 
     def _groups(self) -> list[dict[str, Any]]:
         udc = self._udc[0][:, self._udc[1]].tolist()
-        lc_dc, chop, idc = (m.tolist() for m in self._take_means())
+        means = self._take_means()
+        lc_dc = means.get("line_converter.dc_current_a", [])
+        chop, idc = means["dc_link.chopper_current_a"], means["inverter.dc_current_a"]
         pre = main = ()
         if self._lc_pre is not None:
             pre = self._lc_pre[0][:, self._lc_pre[1]].tolist()

@@ -19,7 +19,7 @@ MAX_MESSAGE = 16 * 1024 * 1024  # a hello with a large catalogue stays far below
 
 
 def default_address() -> str:
-    """Where ``railrig serve`` listens by default (as emulator.monitor.default_address)."""
+    """Where ``railrig serve`` listens by default (the rig's monitor uses this too)."""
     base = os.environ.get("XDG_RUNTIME_DIR") or f"/tmp/railrig-{os.getuid()}"
     return str(Path(base) / "railrig-monitor.sock")
 

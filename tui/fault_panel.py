@@ -38,7 +38,8 @@ class FaultPanel(Vertical):
         self.targets: dict[str, list[str]] = {}
         self.inputs: list[tuple[dict[str, Any], Input]] = []
         self.current: dict[str, Any] | None = None
-        self._listing: list[str] = []
+        self._listing: list[str] = []  # the names of the run's faults, in list order
+        self._lines: list[str] = []  # what the list shows
 
     def compose(self) -> ComposeResult:
         with Horizontal(id="fault-top"):
@@ -140,13 +141,12 @@ class FaultPanel(Vertical):
         """The faults of the run with their states; rebuilt only when they change."""
         lines = [f"{f['state']:>7}  {f['name']}  "
                  + " ".join(f"{k}={v:g}" for k, v in f["params"].items()) for f in faults]
+        lines = lines or ["none"]
+        if lines == self._lines:
+            return
+        self._lines = lines
         names = [f["name"] for f in faults]
         menu = self.query_one("#active-faults", OptionList)
-        lines = lines or ["none"]
-        if names == self._listing and menu.option_count == len(lines) and \
-                all(str(menu.get_option_at_index(i).prompt) == line
-                    for i, line in enumerate(lines)):
-            return
         highlighted = menu.highlighted
         self._listing = names
         menu.clear_options()

@@ -11,6 +11,17 @@ from emulator.link import open_link
 from emulator.link.loop import LoopLink
 
 
+async def attach_reference(channel: str, rig, profile, period_s: float | None = None):
+    """The reference controller for ``profile``, answering ``rig`` through
+    ``loop://channel``; returned so callers may inspect or alter it."""
+    from emulator.controller.config import config_from_profile
+    from emulator.controller.tcu import ReferenceController
+
+    tcu = ReferenceController(config_from_profile(profile, period_s), rig.signal_map.as_dict())
+    await attach(channel, tcu.answer)
+    return tcu
+
+
 async def attach(channel: str, answer) -> LoopLink:
     """Open the controller's end of ``loop://channel``; answer(payload) -> payload."""
     end = open_link(f"loop://{channel}")

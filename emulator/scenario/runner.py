@@ -120,9 +120,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
     before the run (tests use it to break one of its functions). monitor: an address
     where dashboards may watch the run; the checks' verdicts go to them as events.
     """
-    from emulator.controller.config import config_from_profile
-    from emulator.controller.inprocess import attach
-    from emulator.controller.tcu import ReferenceController
+    from emulator.controller.inprocess import attach_reference
     from emulator.faults import FaultSet
 
     seed = scenario.seed if seed is None else seed
@@ -139,11 +137,9 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
     try:
         rig = Rig(params, link, mode=mode, seed=seed)
         if controller == "reference":
-            tcu = ReferenceController(config_from_profile(scenario.trainset),
-                                      rig.signal_map.as_dict())
+            tcu = await attach_reference(channel, rig, scenario.trainset)
             if tune is not None:
                 tune(tcu)
-            await attach(channel, tcu.answer)
         states = MOTOR_SIDE + (LINE_SIDE if rig.plant.line_side else [])
         columns = rig.record_columns(states, LINE_EXTRAS if rig.plant.line_side else [])
         try:
@@ -174,7 +170,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
         if monitor is not None:
             from emulator.monitor import Monitor
 
-            watch = Monitor(rig, monitor, seed=seed)  # chains the fault marks above
+            watch = Monitor(rig, monitor)  # chains the fault marks above
             await watch.start()
             watch.event("scenario", f"{scenario.name}: started")
         wall = await _run(scenario, rig, program, progress)

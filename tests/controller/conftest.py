@@ -7,8 +7,7 @@ import itertools
 
 import pytest
 
-from emulator.controller.config import config_from_profile
-from emulator.controller.inprocess import attach
+from emulator.controller.inprocess import attach_reference
 from emulator.controller.tcu import ReferenceController
 from emulator.link import open_link
 from emulator.profile import PROFILES_DIR, load_trainset
@@ -23,9 +22,7 @@ async def rig_with_controller(**rig_kw) -> tuple[Rig, ReferenceController]:
     link = open_link(f"loop://{name}")
     await link.open()
     rig = Rig(load_trainset(TRAINSET), link, mode="lockstep", **rig_kw)
-    tcu = ReferenceController(config_from_profile(TRAINSET), rig.signal_map.as_dict())
-    await attach(name, tcu.answer)
-    return rig, tcu
+    return rig, await attach_reference(name, rig, TRAINSET)
 
 
 @pytest.fixture

@@ -24,9 +24,7 @@ def load() -> tuple[dict, list[dict]]:
 
 
 async def _record() -> dict:
-    from emulator.controller.config import config_from_profile
-    from emulator.controller.inprocess import attach
-    from emulator.controller.tcu import ReferenceController
+    from emulator.controller.inprocess import attach_reference
     from emulator.faults import FaultSet
     from emulator.link import open_link
     from emulator.profile import load_trainset
@@ -39,8 +37,7 @@ async def _record() -> dict:
     link = open_link("loop://canned")
     await link.open()
     rig = Rig(load_trainset(TRAINSET), link, mode="lockstep")
-    await attach("canned", ReferenceController(config_from_profile(TRAINSET),
-                                               rig.signal_map.as_dict()).answer)
+    await attach_reference("canned", rig, TRAINSET)
     rig.program = demo_program(target_kmh=60.0, stop_at_m=3000.0)
     rig.faults = FaultSet(rig)
     rig.faults.add("low-adhesion", "INV-B2.m2", {"factor": 0.4}, at_s=15.0)

@@ -6,24 +6,18 @@ from __future__ import annotations
 
 import asyncio
 import itertools
-import os
 import shutil
-import signal
-import subprocess
-import sys
 import tempfile
 import threading
-import time
 from pathlib import Path
 
 import msgpack
 import pytest
 
 from emulator.clock import MonotonicClock
-from emulator.controller.config import config_from_profile
-from emulator.controller.inprocess import attach
-from emulator.controller.tcu import ReferenceController
+from emulator.controller.inprocess import attach_reference
 from emulator.link import open_link
+from emulator.live_demo import START_TIMEOUT_S, start_rig, stop_rig, wait_for_socket
 from emulator.monitor import Monitor
 from emulator.profile import PROFILES_DIR, load_trainset
 from emulator.rig import Rig
@@ -61,8 +55,7 @@ class RigThread:
         await link.open()
         self.rig = rig = Rig(load_trainset(TRAINSET), link, mode="realtime",
                              clock=MonotonicClock(spin_ns=0))
-        tcu = ReferenceController(config_from_profile(TRAINSET), rig.signal_map.as_dict())
-        await attach(channel, tcu.answer)
+        await attach_reference(channel, rig, TRAINSET)
         rig.program = demo_program(target_kmh=60.0, stop_at_m=3000.0)
         self.monitor = Monitor(rig, str(self.where / "monitor.sock"))
         await self.monitor.start()
@@ -123,26 +116,15 @@ class RawClient:
 @pytest.fixture(scope="module")
 def rig_process():
     """The monitor address of ``railrig serve`` running the demo in real time in its own
-    process (the dashboard's pilot waits for its own process to go idle, so the rig must
-    not share it). Stopped with SIGTERM, as a user's Ctrl-C would."""
+    process, started and stopped as ``railrig demo`` does (the dashboard's pilot waits for
+    its own process to go idle, so the rig must not share it)."""
     where = Path(tempfile.mkdtemp(prefix="rr"))
-    address = str(where / "monitor.sock")
-    rig = subprocess.Popen(
-        [sys.executable, "-m", "emulator.cli", "serve", "--controller", "reference",
-         "--program", "demo", "--target-kmh", "60", "--stop-at-m", "3000",
-         "--spin-us", "0", "--monitor", address],
-        stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    log = where / "rig.log"
+    rig, address = start_rig(TRAINSET, where, 60.0, 3000.0, log, extra=("--spin-us", "0"))
     try:
-        deadline = time.monotonic() + 120
-        while not os.path.exists(address):
-            if rig.poll() is not None or time.monotonic() > deadline:
-                raise RuntimeError(f"railrig serve did not start: {rig.stderr.read()}")
-            time.sleep(0.1)
+        if not wait_for_socket(rig, address, START_TIMEOUT_S):
+            raise RuntimeError(f"railrig serve did not start: {log.read_text()}")
         yield address
     finally:
-        rig.send_signal(signal.SIGTERM)
-        try:
-            rig.wait(30)
-        except subprocess.TimeoutExpired:
-            rig.kill()
+        stop_rig(rig)
         shutil.rmtree(where, ignore_errors=True)
