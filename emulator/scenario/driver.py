@@ -153,7 +153,9 @@ class DriverProgram:
             mode, effort = self._table(rig, v)
         d.mode = MODE[mode]
         rate = self.spec.demand_rate_per_s * plant.params.frame_s
-        target = effort if mode in ("accelerate", "brake") else 0.0
+        # steps and table rows give a magnitude; on the wire braking is negative
+        # (train.effort_demand in the signal map), as the operator's demand is too
+        target = {"accelerate": effort, "brake": -effort}.get(mode, 0.0)
         d.effort_demand = min(max(target, d.effort_demand - rate), d.effort_demand + rate)
 
     # --- the step sequence -------------------------------------------------------------
