@@ -10,7 +10,7 @@ from collections.abc import Sequence
 from rich.console import Console
 from rich.table import Table
 
-from emulator.profile import ProfileError, load_trainset
+from emulator.profiles.reader import ProfileError, load_trainset
 
 DEFAULT_TRAINSET = "trainsets/tern-25kv"
 console = Console(stderr=True)
@@ -19,10 +19,10 @@ console = Console(stderr=True)
 def _cmd_demo(args: argparse.Namespace) -> int:
     import asyncio
 
+    from emulator.commands.demo import run_reference_demo
     from emulator.controller.events import NAMES
-    from emulator.demo import run_reference_demo
-    from emulator.profile import resolve_profile
-    from emulator.warmup import warm_up
+    from emulator.profiles.reader import resolve_profile
+    from emulator.rig.warmup import warm_up
 
     profile = resolve_profile(args.profile)
     params = load_trainset(profile)
@@ -30,7 +30,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     warm_up(params, say=console.print)
     if not args.headless and not args.in_process:
         if sys.stdout.isatty() and sys.stdin.isatty():
-            from emulator.live_demo import run_live_demo
+            from emulator.commands.demo_live import run_live_demo
 
             return run_live_demo(profile, args.target_kmh, args.stop_at_m, console.print)
         console.print("no terminal for the dashboard: running headless")
@@ -71,7 +71,7 @@ def _cmd_controller(args: argparse.Namespace) -> int:
 
     from emulator.controller.process import serve_controller
     from emulator.link import LinkError
-    from emulator.profile import resolve_profile
+    from emulator.profiles.reader import resolve_profile
 
     async def run() -> None:
         stop = asyncio.Event()
@@ -91,14 +91,14 @@ def _cmd_controller(args: argparse.Namespace) -> int:
 
 
 def _cmd_bench(args: argparse.Namespace) -> int:
-    from emulator.bench import plant_benchmark
-    from emulator.warmup import warm_up
+    from emulator.bench.plant import plant_benchmark
+    from emulator.rig.warmup import warm_up
 
     params = load_trainset(args.profile)
     warm_up(params, say=console.print)
     if args.monitor:
-        from emulator.bench_monitor import monitor_benchmark
-        from emulator.profile import resolve_profile
+        from emulator.bench.monitor import monitor_benchmark
+        from emulator.profiles.reader import resolve_profile
 
         figures = monitor_benchmark(resolve_profile(args.profile), seconds=args.seconds)
         if args.json:
@@ -121,7 +121,7 @@ def _cmd_bench(args: argparse.Namespace) -> int:
                       f"{figures['p99_ratio_attached_to_detached']:.2f}")
         return 0
     if args.link:
-        from emulator.bench_link import link_benchmark
+        from emulator.bench.link import link_benchmark
 
         figures = link_benchmark(params, seconds=args.seconds)
         if args.json:
@@ -155,7 +155,7 @@ def _cmd_bench(args: argparse.Namespace) -> int:
 
 
 def _cmd_protocol(args: argparse.Namespace) -> int:
-    from emulator.signals import HEADER, build_signal_map
+    from emulator.protocol.signal_map import HEADER, build_signal_map
 
     params = load_trainset(args.profile)
     sm = build_signal_map(params)
@@ -180,7 +180,7 @@ def _cmd_protocol(args: argparse.Namespace) -> int:
 
 
 def _cmd_serve(args: argparse.Namespace) -> int:
-    from emulator.serve import cmd_serve
+    from emulator.commands.serve import cmd_serve
 
     return cmd_serve(args)
 
@@ -192,7 +192,7 @@ def _cmd_dash(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from emulator.record import RecordingError, export_csv, export_npz, read_recording
+    from emulator.recording.recorder import RecordingError, export_csv, export_npz, read_recording
 
     try:
         rec = read_recording(args.file)
@@ -213,13 +213,13 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
-    from emulator.scenario.command import cmd_run
+    from emulator.commands.run import cmd_run
 
     return cmd_run(args)
 
 
 def _cmd_replay(args: argparse.Namespace) -> int:
-    from emulator.scenario.command import cmd_replay
+    from emulator.commands.run import cmd_replay
 
     return cmd_replay(args)
 
@@ -266,7 +266,7 @@ def build_parser() -> argparse.ArgumentParser:
     ctl.set_defaults(func=_cmd_controller)
 
     serve = sub.add_parser("serve", help="run the plant behind a controller link")
-    from emulator.serve import add_arguments
+    from emulator.commands.serve import add_arguments
 
     add_arguments(serve, DEFAULT_TRAINSET)
     serve.set_defaults(func=_cmd_serve)

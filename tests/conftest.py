@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from emulator.profile import PROFILES_DIR, load_trainset
+from emulator.profiles.reader import PROFILES_DIR, load_trainset
 
 
 @pytest.fixture(scope="session")

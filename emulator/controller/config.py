@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from emulator.profile import load_trainset
+from emulator.profiles.reader import load_trainset
 
 
 @dataclass(frozen=True)

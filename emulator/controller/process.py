@@ -11,7 +11,7 @@ import asyncio
 import logging
 
 from emulator.link import open_link
-from emulator.signals import build_signal_map
+from emulator.protocol.signal_map import build_signal_map
 
 from .config import config_from_profile
 from .tcu import ReferenceController
@@ -23,7 +23,7 @@ async def serve_controller(profile, link_url: str, *, allow_remote: bool = False
                            idle_timeout_s: float = 30.0, stop: asyncio.Event | None = None
                            ) -> ReferenceController:
     """Answer telegrams until stopped or silent for idle_timeout_s."""
-    from emulator.profile import load_trainset
+    from emulator.profiles.reader import load_trainset
 
     signal_map = build_signal_map(load_trainset(profile)).as_dict()
     tcu = ReferenceController(config_from_profile(profile), signal_map)

@@ -1,4 +1,4 @@
-"""Typed, validated plant parameters in SI units (built by emulator.profile)."""
+"""Typed, validated plant parameters in SI units (built by emulator.profiles.reader)."""
 
 from __future__ import annotations
 
@@ -178,7 +178,7 @@ class TrainsetParams:
     line_converter: LineConverterParams | None = None
     line_converters: tuple[LineConverterUnit, ...] = ()
     notes: dict[str, str] = field(default_factory=dict)
-    sensors: Any = None  # emulator.sensors.SensorParams; the plant does not use it
+    sensors: Any = None  # emulator.rig.sensors.SensorParams; the plant does not use it
     motor_control: str = "scalar"  # the reference controller's method: scalar or vector
 
     @property

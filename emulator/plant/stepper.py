@@ -73,8 +73,8 @@ class Plant:
 
     @classmethod
     def from_profile(cls, path: str | Path, **kwargs: bool) -> Plant:
-        """Build a plant from a trainset profile file (see emulator.profile)."""
-        from emulator.profile import load_trainset  # the loader sits beside the plant
+        """Build a plant from a trainset profile file (see emulator.profiles.reader)."""
+        from emulator.profiles.reader import load_trainset  # the loader sits beside the plant
 
         return cls(load_trainset(path), **kwargs)
 

@@ -12,8 +12,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from emulator.profile_table import Table
-from emulator.signals import MODES
+from emulator.profiles.table import Table
+from emulator.protocol.signal_map import MODES
 
 MODE = {name: code for code, name in MODES.items()}
 STEP_MODES = ("off", "accelerate", "cruise", "coast", "brake", "hold")

@@ -17,9 +17,9 @@ from pathlib import Path
 import emulator
 from emulator.faults import FaultError
 from emulator.link import open_link
-from emulator.profile import load_trainset
-from emulator.record import Recorder, Recording, read_recording
-from emulator.rig import Rig
+from emulator.profiles.reader import load_trainset
+from emulator.recording.recorder import Recorder, Recording, read_recording
+from emulator.rig.frame_loop import Rig
 
 from .checks import CheckError, CheckResult, check_signals, evaluate
 from .driver import DriverProgram
@@ -97,7 +97,7 @@ class ScenarioProgram:
 
 
 def _texts(scenario: Scenario) -> dict:
-    from emulator.profile_table import read_toml
+    from emulator.profiles.table import read_toml
 
     trainset_text = scenario.trainset.read_text(encoding="utf-8")
     machine = read_toml(scenario.trainset).get("trainset", {}).get("machine_profile")
@@ -168,7 +168,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
         if scenario.initial_speed_mps:
             rig.plant.set_speed(scenario.initial_speed_mps)
         if monitor is not None:
-            from emulator.monitor import Monitor
+            from emulator.monitor.endpoint import Monitor
 
             watch = Monitor(rig, monitor)  # chains the fault marks above
             await watch.start()

@@ -11,7 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from emulator.profile_table import ProfileError, Table, read_toml_lines
+from emulator.profiles.table import ProfileError, Table, read_toml_lines
 
 from .checks import CheckSpec, read_check
 from .driver import STOPPED, DemandPoint, DriverSpec, DriverStep, read_driver
@@ -179,7 +179,7 @@ def _track(t: Table) -> TrackSpec:
 
 
 def _fault(t: Table) -> FaultSpec:
-    from emulator.faults import CATALOGUE
+    from emulator.faults.catalogue import CATALOGUE
 
     name = t.string("name", tuple(sorted(CATALOGUE)))
     target = t.string("target")

@@ -10,8 +10,8 @@ import pytest
 from emulator.controller.inprocess import attach_reference
 from emulator.controller.tcu import ReferenceController
 from emulator.link import open_link
-from emulator.profile import PROFILES_DIR, load_trainset
-from emulator.rig import Rig
+from emulator.profiles.reader import PROFILES_DIR, load_trainset
+from emulator.rig.frame_loop import Rig
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 _names = itertools.count()

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 from emulator.plant.drivetrain import POLACH_WET, polach_force
-from emulator.signals import MODES
+from emulator.protocol.signal_map import MODES
 
 from .conftest import rig_with_controller
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from emulator.signals import MODES
+from emulator.protocol.signal_map import MODES
 
 from .conftest import rig_with_controller
 

@@ -16,7 +16,7 @@ import pytest
 from emulator.controller.config import config_from_profile
 from emulator.controller.motor_vector import VectorControl
 from emulator.plant import Commands, Plant
-from emulator.profile import load_trainset
+from emulator.profiles.reader import load_trainset
 
 from .conftest import TRAINSET
 

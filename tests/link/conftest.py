@@ -8,10 +8,10 @@ from collections.abc import Callable
 
 import msgpack
 
-from emulator.clock import FakeClock
 from emulator.link import open_link
-from emulator.profile import PROFILES_DIR
-from emulator.rig import Rig
+from emulator.profiles.reader import PROFILES_DIR
+from emulator.rig.clock import FakeClock
+from emulator.rig.frame_loop import Rig
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 _names = itertools.count()

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from emulator.link.loop import Manipulator
-from emulator.signals import FLAG_BAD_TELEGRAM, FLAG_COMMAND_HELD, FLAG_WATCHDOG
+from emulator.protocol.signal_map import FLAG_BAD_TELEGRAM, FLAG_COMMAND_HELD, FLAG_WATCHDOG
 
 from .conftest import command, make_rig, run
 

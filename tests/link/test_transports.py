@@ -18,10 +18,10 @@ import msgpack
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from emulator.clock import FakeClock
 from emulator.link import open_link
-from emulator.rig import Rig
-from emulator.signals import build_signal_map
+from emulator.protocol.signal_map import build_signal_map
+from emulator.rig.clock import FakeClock
+from emulator.rig.frame_loop import Rig
 
 BOARD = Path(__file__).with_name("board.py")
 

@@ -9,7 +9,7 @@ import pytest
 
 from emulator.controller.open_loop import SlipFrequencyVf
 from emulator.plant import Commands, Plant
-from emulator.profile import PROFILES_DIR, load_machine, load_trainset
+from emulator.profiles.reader import PROFILES_DIR, load_machine, load_trainset
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 

@@ -155,7 +155,7 @@ def test_blocked_bridge_charges_to_the_secondary_peak_through_the_precharge_resi
 
 
 def test_energy_from_catenary_to_motors_balances() -> None:
-    from emulator.demo import OpenLoopLineSide
+    from emulator.commands.demo import OpenLoopLineSide
 
     plant = Plant.from_profile(TRAINSET)
     line = OpenLoopLineSide(plant)

@@ -5,10 +5,10 @@ the monitor is."""
 from __future__ import annotations
 
 from emulator.link import open_link
-from emulator.profile import PROFILES_DIR, load_trainset
-from emulator.rig import Rig
+from emulator.profiles.reader import PROFILES_DIR, load_trainset
+from emulator.protocol.signal_map import MODES
+from emulator.rig.frame_loop import Rig
 from emulator.scenario.driver import DriverProgram, DriverSpec, DriverStep
-from emulator.signals import MODES
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 

@@ -9,7 +9,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from emulator.record import Recording
+from emulator.recording.recorder import Recording
 from emulator.scenario import ScenarioError, load_scenario
 from emulator.scenario.checks import CheckSpec, evaluate
 from emulator.scenario.track import curve_resistance_per_mille

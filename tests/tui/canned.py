@@ -27,10 +27,10 @@ async def _record() -> dict:
     from emulator.controller.inprocess import attach_reference
     from emulator.faults import FaultSet
     from emulator.link import open_link
-    from emulator.profile import load_trainset
-    from emulator.rig import Rig
+    from emulator.monitor.telemetry import TelemetryBuilder
+    from emulator.profiles.reader import load_trainset
+    from emulator.rig.frame_loop import Rig
     from emulator.scenario.driver import demo_program
-    from emulator.telemetry import TelemetryBuilder
 
     from .conftest import TRAINSET
 

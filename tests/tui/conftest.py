@@ -14,13 +14,13 @@ from pathlib import Path
 import msgpack
 import pytest
 
-from emulator.clock import MonotonicClock
+from emulator.commands.demo_live import START_TIMEOUT_S, start_rig, stop_rig, wait_for_socket
 from emulator.controller.inprocess import attach_reference
 from emulator.link import open_link
-from emulator.live_demo import START_TIMEOUT_S, start_rig, stop_rig, wait_for_socket
-from emulator.monitor import Monitor
-from emulator.profile import PROFILES_DIR, load_trainset
-from emulator.rig import Rig
+from emulator.monitor.endpoint import Monitor
+from emulator.profiles.reader import PROFILES_DIR, load_trainset
+from emulator.rig.clock import MonotonicClock
+from emulator.rig.frame_loop import Rig
 from emulator.scenario.driver import demo_program
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"

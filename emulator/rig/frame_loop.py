@@ -25,13 +25,11 @@ from typing import Any
 
 import numpy as np
 
-from emulator.clock import FrameStats, MonotonicClock
 from emulator.link import Link
 from emulator.link.telegram import TelegramCodec, TelegramError
 from emulator.plant import Plant
 from emulator.plant.params import TrainsetParams
-from emulator.sampling import CommandMapper, DriverDemand, MeasurementSampler
-from emulator.signals import (
+from emulator.protocol.signal_map import (
     FLAG_BAD_TELEGRAM,
     FLAG_COMMAND_HELD,
     FLAG_OVERRUN,
@@ -40,6 +38,8 @@ from emulator.signals import (
     PROTOCOL_VERSION,
     build_signal_map,
 )
+from emulator.rig.clock import FrameStats, MonotonicClock
+from emulator.rig.sampling import CommandMapper, DriverDemand, MeasurementSampler
 
 log = logging.getLogger(__name__)
 
@@ -110,7 +110,7 @@ class Rig:
         self.driver = DriverDemand()
         self.program = None  # a driver program: update(rig) after every frame
         self.faults = None  # an emulator.faults.FaultSet, applied every frame
-        self.recorder = None  # an emulator.record.Recorder, see record_columns()
+        self.recorder = None  # an emulator.recording.recorder.Recorder, see record_columns()
         self.monitor = None  # an emulator.monitor.Monitor: service() after every frame
         self._command_index = {s.name: i for i, s in enumerate(sm.commands)}
         self.record_columns()  # allocates the row a recorder is given each frame
@@ -257,9 +257,9 @@ class Rig:
 
     def start_recording(self, path: str, **meta: Any):
         """Record every frame from now on to ``path`` (time, y, u), headed with what a
-        reader needs to know of the run; returns the emulator.record.Recorder."""
+        reader needs to know of the run; returns the emulator.recording.recorder.Recorder."""
         from emulator import __version__
-        from emulator.record import Recorder
+        from emulator.recording.recorder import Recorder
 
         self.recorder = Recorder(path, self.record_columns(), {
             "profile": self.plant.params.source, "seed": self.seed, "mode": self.mode,

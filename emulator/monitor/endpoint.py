@@ -43,8 +43,8 @@ from typing import Any
 import msgpack
 
 from emulator.faults import FaultError
-from emulator.signals import MODES
-from emulator.telemetry import TelemetryBuilder
+from emulator.monitor.telemetry import TelemetryBuilder
+from emulator.protocol.signal_map import MODES
 from tui.client import default_address  # one place for it; the client needs no emulator
 
 log = logging.getLogger(__name__)

@@ -15,11 +15,10 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
-from emulator.profile_table import ProfileError
-from emulator.record import RecordingError, read_recording
-
-from .runner import RunError, RunResult, judge, run_scenario
-from .spec import load_scenario
+from emulator.profiles.table import ProfileError
+from emulator.recording.recorder import RecordingError, read_recording
+from emulator.scenario.runner import RunError, RunResult, judge, run_scenario
+from emulator.scenario.spec import load_scenario
 
 console = Console(stderr=True)
 EXIT_PASSED, EXIT_FAILED, EXIT_UNRUNNABLE = 0, 1, 2
@@ -81,7 +80,7 @@ def cmd_run(args) -> int:
         if not run.passed and code == EXIT_PASSED:
             code = EXIT_FAILED
         if args.report:
-            from .report import write_report
+            from emulator.scenario.report import write_report
 
             where = Path(args.report) / (run.scenario.path.stem if len(paths) > 1 else "")
             try:
@@ -91,7 +90,7 @@ def cmd_run(args) -> int:
                 console.print(f"[red]{exc}[/red]")
                 code = max(code, EXIT_UNRUNNABLE)
     if args.junit:
-        from .junit import write_junit
+        from emulator.scenario.junit import write_junit
 
         write_junit(runs, args.junit)
         out.print(f"JUnit XML: {args.junit}")

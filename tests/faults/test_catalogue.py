@@ -10,8 +10,7 @@ import pytest
 
 from emulator.faults import CATALOGUE, FaultError, FaultSet
 from emulator.plant import layout as L  # noqa: N812
-
-from .link.conftest import command, make_rig, run
+from tests.link.conftest import command, make_rig, run
 
 
 def echo(rig, m):

@@ -16,7 +16,7 @@ import signal
 
 from rich.console import Console
 
-from emulator.profile import load_trainset, resolve_profile
+from emulator.profiles.reader import load_trainset, resolve_profile
 
 console = Console(stderr=True)
 
@@ -62,10 +62,10 @@ def add_arguments(serve: argparse.ArgumentParser, default_trainset: str) -> None
 
 def cmd_serve(args: argparse.Namespace) -> int:
     """Run the rig until the frame count, the duration, or Ctrl-C/SIGTERM."""
-    from emulator.clock import MonotonicClock
     from emulator.link import LinkError, open_link
-    from emulator.monitor import Monitor, MonitorError
-    from emulator.rig import Rig, RigError
+    from emulator.monitor.endpoint import Monitor, MonitorError
+    from emulator.rig.clock import MonotonicClock
+    from emulator.rig.frame_loop import Rig, RigError
 
     if (args.link is None) == (args.controller is None):
         console.print("[red]error:[/red] give either --link or --controller reference")

@@ -15,8 +15,8 @@ from typing import Any
 
 import numpy as np
 
+from emulator.commands.demo import OpenLoopLineSide
 from emulator.controller.open_loop import SlipFrequencyVf
-from emulator.demo import OpenLoopLineSide
 from emulator.plant import Commands, Plant
 from emulator.plant.params import TrainsetParams
 

@@ -16,7 +16,7 @@ import zlib
 import numpy as np
 import pytest
 
-from emulator.record import (
+from emulator.recording.recorder import (
     Recorder,
     RecordingError,
     export_csv,
@@ -69,7 +69,7 @@ def test_a_killed_writer_leaves_a_readable_file(tmp_path) -> None:
     path = tmp_path / "k.rrec"
     script = (
         "import sys, time, numpy as np\n"
-        "from emulator.record import Recorder\n"
+        "from emulator.recording.recorder import Recorder\n"
         "rec = Recorder(sys.argv[1], ['i'], {'run': 'killed'}, chunk_rows=100000, flush_s=0.1)\n"
         "i = 0\n"
         "while True:\n"
@@ -101,8 +101,7 @@ def test_rig_records_frames_and_export_command(tmp_path, params) -> None:
     import asyncio
 
     from emulator.cli import main
-
-    from .link.conftest import command, make_rig
+    from tests.link.conftest import command, make_rig
 
     async def go():
         rig, _ = await make_rig(params, lambda r, m: command(r, m[1]), ideal_dc_links=True)

@@ -21,10 +21,10 @@ from typing import Any
 import msgpack
 import numpy as np
 
-from emulator.clock import MonotonicClock
 from emulator.link import open_link
 from emulator.plant.params import TrainsetParams
-from emulator.rig import Rig
+from emulator.rig.clock import MonotonicClock
+from emulator.rig.frame_loop import Rig
 
 
 class NaiveSleepClock:
@@ -81,7 +81,7 @@ def echo_main(argv: list[str]) -> None:
 
 
 def _start_echo(rig_port: int, echo_port: int, values: list[int]) -> subprocess.Popen:
-    return subprocess.Popen([sys.executable, "-m", "emulator.bench_link", str(echo_port),
+    return subprocess.Popen([sys.executable, "-m", "emulator.bench.link", str(echo_port),
                              str(rig_port), str(len(values)), json.dumps(values)])
 
 
@@ -128,7 +128,7 @@ async def _rig_run(params: TrainsetParams, rig_port: int, echo_port: int, mode: 
 def link_benchmark(params: TrainsetParams, seconds: float = 10.0) -> dict[str, Any]:
     """Figures of the rig's pacing and link (see the module docstring)."""
     rig_port, echo_port = _free_port(), _free_port()
-    from emulator.signals import build_signal_map
+    from emulator.protocol.signal_map import build_signal_map
 
     sm = build_signal_map(params)  # the echo answers duties 0.5, gates blocked, zeros
     values = [round((0.5 if s.name.endswith(("duty_a", "duty_b", "duty_c")) else 0.0) / s.scale)

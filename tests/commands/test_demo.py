@@ -9,9 +9,8 @@ from __future__ import annotations
 
 import pytest
 
-from emulator.demo import run_reference_demo
-
-from .conftest import TRAINSET
+from emulator.commands.demo import run_reference_demo
+from tests.controller.conftest import TRAINSET
 
 
 def test_demo_reaches_speed_and_stops_on_the_mark(run) -> None:

@@ -28,15 +28,15 @@ from emulator.plant.params import (
     TrainsetParams,
     TransformerParams,
 )
-from emulator.profile_table import ProfileError, Table, read_toml, read_toml_lines
-from emulator.sensors import ChannelSpec, SensorParams
+from emulator.profiles.table import ProfileError, Table, read_toml, read_toml_lines
+from emulator.rig.sensors import ChannelSpec, SensorParams
 
 __all__ = ["ProfileError", "Table", "load_machine", "load_trainset", "read_toml",
            "resolve_profile"]
 
 GRAVITY = 9.80665  # standard gravity, m/s^2 (CGPM 1901)
 KELVIN = 273.15
-PROFILES_DIR = Path(__file__).resolve().parent.parent / "profiles"
+PROFILES_DIR = Path(__file__).resolve().parents[2] / "profiles"
 
 
 def resolve_profile(name: str | Path) -> Path:

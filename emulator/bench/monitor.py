@@ -39,12 +39,12 @@ def _window(stats, first: int, last: int) -> dict[str, float]:
 
 
 async def _run(profile: Path, seconds: float, pty: bool) -> dict[str, Any]:
-    from emulator.clock import MonotonicClock
     from emulator.controller.inprocess import attach_reference
     from emulator.link import open_link
-    from emulator.monitor import Monitor
-    from emulator.profile import load_trainset
-    from emulator.rig import Rig
+    from emulator.monitor.endpoint import Monitor
+    from emulator.profiles.reader import load_trainset
+    from emulator.rig.clock import MonotonicClock
+    from emulator.rig.frame_loop import Rig
     from emulator.scenario.driver import demo_program
 
     where = Path(tempfile.mkdtemp(prefix="railrig-bench-"))

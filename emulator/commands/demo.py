@@ -78,8 +78,8 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
 
     from emulator.controller import events as ev
     from emulator.link import open_link
-    from emulator.profile import load_trainset
-    from emulator.rig import Rig
+    from emulator.profiles.reader import load_trainset
+    from emulator.rig.frame_loop import Rig
     from emulator.scenario.driver import demo_program
 
     params = load_trainset(profile)

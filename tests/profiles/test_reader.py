@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from emulator.profile import PROFILES_DIR, ProfileError, load_machine, load_trainset
+from emulator.profiles.reader import PROFILES_DIR, ProfileError, load_machine, load_trainset
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 MACHINE = PROFILES_DIR / "machines" / "tern-tm310.toml"

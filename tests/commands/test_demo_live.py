@@ -8,9 +8,8 @@ import shutil
 import tempfile
 from pathlib import Path
 
-from emulator.live_demo import START_TIMEOUT_S, start_rig, stop_rig, wait_for_socket
-
-from .tui.conftest import TRAINSET, RawClient
+from emulator.commands.demo_live import START_TIMEOUT_S, start_rig, stop_rig, wait_for_socket
+from tests.tui.conftest import TRAINSET, RawClient
 
 
 def test_the_demo_rig_starts_serves_and_stops() -> None:

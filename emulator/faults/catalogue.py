@@ -228,8 +228,3 @@ def make_fault(name: str, target: str, params: dict[str, float] | None = None, *
     return Fault(kind, target, values, at_s, at_m, condition, until_s,
                  label or f"{name}@{target}")
 
-
-from emulator.fault_points import FaultSet  # noqa: E402  (applies the catalogue)
-
-__all__ = ["CATALOGUE", "Condition", "Fault", "FaultError", "FaultKind", "FaultSet",
-           "Param", "make_fault"]

@@ -13,7 +13,7 @@ import math
 import random
 from typing import Any
 
-from emulator.faults import Fault, FaultError, make_fault
+from emulator.faults.catalogue import Fault, FaultError, make_fault
 from emulator.plant import layout as L  # noqa: N812  (as in the plant)
 
 

@@ -33,8 +33,8 @@ from emulator.plant.layout import (
     SS_UP,
 )
 from emulator.plant.stepper import LineCommands
-from emulator.sensors import AnalogChannels, Encoders, SensorParams
-from emulator.signals import SignalMap
+from emulator.protocol.signal_map import SignalMap
+from emulator.rig.sensors import AnalogChannels, Encoders, SensorParams
 
 KELVIN = 273.15
 
@@ -45,7 +45,7 @@ class DriverDemand:
 
     effort_demand: float = 0.0  # fraction of maximum, negative brakes
     direction: int = 1
-    mode: int = 0  # see emulator.signals.MODES
+    mode: int = 0  # see emulator.protocol.signal_map.MODES
     cruise_speed_kmh: float = 0.0
     neutral_section_ahead: int = 0
     regeneration_allowed: int = 1

@@ -11,11 +11,10 @@ import asyncio
 import pytest
 
 from emulator import monitor as monitor_module
-from emulator.monitor import MonitorError, parse_address
+from emulator.monitor.endpoint import MonitorError, parse_address
 from emulator.plant import layout as L  # noqa: N812
-from emulator.record import read_recording
-
-from .tui.conftest import RawClient, live_rig  # noqa: F401  (fixture)
+from emulator.recording.recorder import read_recording
+from tests.tui.conftest import RawClient, live_rig  # noqa: F401  (fixture)
 
 
 @pytest.mark.parametrize(("address", "kind"), [
@@ -174,8 +173,8 @@ async def test_a_scenario_run_sends_its_verdicts_to_a_watching_client(tmp_path) 
 
 async def test_a_second_rig_does_not_take_a_live_socket(live_rig, tmp_path) -> None:  # noqa: F811
     from emulator.link import open_link
-    from emulator.monitor import Monitor
-    from emulator.rig import Rig
+    from emulator.monitor.endpoint import Monitor
+    from emulator.rig.frame_loop import Rig
 
     rig, monitor = live_rig
     link = open_link("loop://second-rig")
