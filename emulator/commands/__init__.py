@@ -1,4 +1,19 @@
 """One module per ``railrig`` subcommand: its arguments, and what it runs and prints.
 
-The top layer: may import any room; nothing imports it but ``emulator.cli``.
+The top layer: may import any room; nothing imports it but ``emulator.cli``. Each module
+has ``HELP``, ``add_arguments(parser)`` and ``run(args) -> exit code``.
 """
+
+from __future__ import annotations
+
+from rich.table import Table
+
+DEFAULT_TRAINSET = "trainsets/tern-25kv"
+
+
+def pairs_table(title: str, first: str = "figure") -> Table:
+    """A two-column table of names and right-aligned values."""
+    table = Table(title=title)
+    table.add_column(first)
+    table.add_column("value", justify="right")
+    return table

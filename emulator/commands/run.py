@@ -1,36 +1,35 @@
-"""``railrig run`` and ``railrig replay``: headless scenario runs with a verdict.
+"""``railrig run``: headless scenario runs with a verdict (JUnit, report, recording).
 
-Exit codes: 0 every check passed (replay: and the run repeated bit for bit), 1 a check
-failed (or the replay differs), 2 the run could not be made (a bad file, no controller).
+Exit codes: 0 every check passed, 1 a check failed, 2 the run could not be made (a bad
+file, no controller). The progress bar and summary table are shared with ``replay``.
 """
 
 from __future__ import annotations
 
+import argparse
 import asyncio
-import tempfile
 from pathlib import Path
 
-import numpy as np
 from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
 from emulator.profiles.table import ProfileError
-from emulator.recording.recorder import RecordingError, read_recording
-from emulator.scenario.runner import RunError, RunResult, judge, run_scenario
+from emulator.scenario.runner import RunError, RunResult, run_scenario
 from emulator.scenario.spec import load_scenario
 
 console = Console(stderr=True)
+HELP = "run scenario files headless and judge their checks"
 EXIT_PASSED, EXIT_FAILED, EXIT_UNRUNNABLE = 0, 1, 2
 
 
-def _progress() -> Progress:
+def progress_bar() -> Progress:
     return Progress(TextColumn("[bold]{task.description}"), BarColumn(),
                     TextColumn("{task.fields[status]}"), TimeElapsedColumn(),
                     console=console, transient=False)
 
 
-async def _run_one(path: Path, args, bar: Progress, record: Path | None,
+async def run_one(path: Path, args, bar: Progress, record: Path | None,
                    trainset: Path | None = None) -> RunResult:
     scenario = load_scenario(path, trainset=trainset)
     task = bar.add_task(path.stem, total=scenario.duration_s, status="starting")
@@ -58,7 +57,25 @@ def summary(run: RunResult) -> Table:
     return table
 
 
-def cmd_run(args) -> int:
+def add_arguments(run: argparse.ArgumentParser) -> None:
+    """The options of ``railrig run``."""
+    run.add_argument("scenario", nargs="+", help="scenario file(s), e.g. "
+                     "profiles/scenarios/four-modes.toml")
+    run.add_argument("--controller", default="reference",
+                     help="'reference' (in this process) or the link URL of the controller "
+                     "under test, e.g. udp://127.0.0.1:5000?peer=127.0.0.1:5001")
+    run.add_argument("--mode", choices=("lockstep", "realtime"), default="lockstep")
+    run.add_argument("--seed", type=int, default=None,
+                     help="seed of the sensor noise and random faults (default: the file's)")
+    run.add_argument("--record", default=None, help="write the recording to this file")
+    run.add_argument("--junit", default=None, help="write JUnit XML here")
+    run.add_argument("--monitor", default=None, metavar="ADDRESS",
+                     help="let dashboards watch the run here (socket path or "
+                     "127.0.0.1:PORT); the checks' verdicts reach them as events")
+    run.add_argument("--report", default=None, help="write PNG plots and index.html here")
+
+
+def run(args: argparse.Namespace) -> int:
     """railrig run SCENARIO..."""
     paths = [Path(p) for p in args.scenario]
     if args.record and len(paths) > 1:
@@ -66,25 +83,25 @@ def cmd_run(args) -> int:
         return EXIT_UNRUNNABLE
     runs: list[RunResult] = []
     code = EXIT_PASSED
-    with _progress() as bar:
+    with progress_bar() as bar:
         for path in paths:
             try:
                 record = Path(args.record) if args.record else None
-                runs.append(asyncio.run(_run_one(path, args, bar, record)))
+                runs.append(asyncio.run(run_one(path, args, bar, record)))
             except (ProfileError, RunError, ValueError, OSError) as exc:
                 console.print(f"[red]cannot run {path}:[/red] {exc}")
                 code = EXIT_UNRUNNABLE
     out = Console()
-    for run in runs:
-        out.print(summary(run))
-        if not run.passed and code == EXIT_PASSED:
+    for result in runs:
+        out.print(summary(result))
+        if not result.passed and code == EXIT_PASSED:
             code = EXIT_FAILED
         if args.report:
             from emulator.scenario.report import write_report
 
-            where = Path(args.report) / (run.scenario.path.stem if len(paths) > 1 else "")
+            where = Path(args.report) / (result.scenario.path.stem if len(paths) > 1 else "")
             try:
-                index = write_report(run, where)
+                index = write_report(result, where)
                 out.print(f"report: {index}")
             except RuntimeError as exc:
                 console.print(f"[red]{exc}[/red]")
@@ -97,65 +114,3 @@ def cmd_run(args) -> int:
     if args.record and runs:
         out.print(f"recording: {args.record}")
     return code
-
-
-def _rebuild(meta: dict, where: Path) -> tuple[Path, Path]:
-    """Write the recorded scenario, trainset and machine texts: (scenario, trainset)."""
-    machine = meta.get("machine")
-    depth = machine["relative"].count("..") + 1 if machine else 1
-    trainset = where.joinpath(*["t"] * depth, Path(meta["trainset"]["path"]).name)
-    trainset.parent.mkdir(parents=True)
-    trainset.write_text(meta["trainset"]["text"], encoding="utf-8")
-    if machine:
-        target = (trainset.parent / machine["relative"]).resolve()
-        target.parent.mkdir(parents=True, exist_ok=True)
-        target.write_text(machine["text"], encoding="utf-8")
-    scenario = where / Path(meta["scenario"]["path"]).name
-    scenario.write_text(meta["scenario"]["text"], encoding="utf-8")
-    return scenario, trainset
-
-
-def cmd_replay(args) -> int:
-    """railrig replay RECORDING: run again from what the recording holds; compare."""
-    try:
-        old = read_recording(args.recording)
-    except (RecordingError, OSError) as exc:
-        console.print(f"[red]{exc}[/red]")
-        return EXIT_UNRUNNABLE
-    meta = old.meta
-    if "scenario" not in meta:
-        console.print("[red]this recording was not made by `railrig run` (no scenario)[/red]")
-        return EXIT_UNRUNNABLE
-    if meta.get("controller") != "reference" or meta.get("mode") != "lockstep":
-        console.print("[red]only lockstep runs with the reference controller repeat bit for "
-                      f"bit; this one ran {meta.get('mode')} with {meta.get('controller')}[/red]")
-        return EXIT_UNRUNNABLE
-    with tempfile.TemporaryDirectory() as tmp:
-        scenario_path, trainset = _rebuild(meta, Path(tmp))
-        args.controller, args.mode, args.seed = "reference", "lockstep", meta["seed"]
-        try:
-            with _progress() as bar:
-                new = asyncio.run(_run_one(scenario_path, args, bar, None, trainset))
-        except (ProfileError, RunError, ValueError, OSError) as exc:
-            console.print(f"[red]cannot replay: {exc}[/red]")
-            return EXIT_UNRUNNABLE
-    same, note = compare(old, new.recording)
-    out = Console()
-    out.print(summary(judge(new.scenario, old)))
-    out.print(f"replay: {note}")
-    return EXIT_PASSED if same else EXIT_FAILED
-
-
-def compare(a, b) -> tuple[bool, str]:
-    """Whether two recordings hold the same frames bit for bit, and where they part."""
-    if a.columns != b.columns:
-        return False, "the recordings have different columns"
-    n = min(len(a.data), len(b.data))
-    diff = np.flatnonzero((a.data[:n].view(np.uint64) != b.data[:n].view(np.uint64)).any(1))
-    if diff.size:
-        k = int(diff[0])
-        col = a.columns[int(np.flatnonzero(a.data[k] != b.data[k])[0])]
-        return False, f"differs from frame {k} (t={a.data[k, 0]:.3f} s), first in {col}"
-    if len(a.data) != len(b.data):
-        return False, f"same first {n} frames, lengths {len(a.data)} and {len(b.data)}"
-    return True, f"identical, bit for bit: {n} frames of {len(a.columns)} columns"

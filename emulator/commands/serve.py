@@ -16,14 +16,16 @@ import signal
 
 from rich.console import Console
 
+from emulator.commands import DEFAULT_TRAINSET
 from emulator.profiles.reader import load_trainset, resolve_profile
 
 console = Console(stderr=True)
+HELP = "run the plant behind a controller link"
 
 
-def add_arguments(serve: argparse.ArgumentParser, default_trainset: str) -> None:
+def add_arguments(serve: argparse.ArgumentParser) -> None:
     """The options of ``railrig serve``."""
-    serve.add_argument("--profile", default=default_trainset, help="trainset profile")
+    serve.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     serve.add_argument("--link", default=None,
                        help="udp://HOST:PORT?peer=HOST:PORT or serial:///dev/ttyX?baud=N "
                        "(not with --controller reference)")
@@ -60,7 +62,7 @@ def add_arguments(serve: argparse.ArgumentParser, default_trainset: str) -> None
     serve.add_argument("--no-monitor", action="store_true", help="no monitor endpoint")
 
 
-def cmd_serve(args: argparse.Namespace) -> int:
+def run(args: argparse.Namespace) -> int:
     """Run the rig until the frame count, the duration, or Ctrl-C/SIGTERM."""
     from emulator.link import LinkError, open_link
     from emulator.monitor.endpoint import Monitor, MonitorError

@@ -1,0 +1,96 @@
+"""``railrig bench``: figures of the plant's cost, the rig's pacing and link, the monitor.
+
+Benchmarks print figures and assert nothing: the machines are shared and noisy.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+
+from rich.console import Console
+from rich.table import Table
+
+from emulator.commands import DEFAULT_TRAINSET, pairs_table
+
+console = Console(stderr=True)
+HELP = "print the plant's cost per frame"
+
+
+def add_arguments(bench: argparse.ArgumentParser) -> None:
+    """The options of ``railrig bench``."""
+    bench.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
+    bench.add_argument("--frames", type=int, default=3000, help="frames to time")
+    bench.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    bench.add_argument("--monitor", action="store_true",
+                       help="the rig's lateness with a dashboard attached vs detached")
+    bench.add_argument("--link", action="store_true",
+                       help="benchmark the rig's pacing and UDP link instead of the plant")
+    bench.add_argument("--seconds", type=float, default=10.0,
+                       help="length of each timed run of --link and --monitor")
+
+
+def run(args: argparse.Namespace) -> int:
+    """Print the chosen benchmark's figures (a table, or JSON)."""
+    from emulator.bench.plant import plant_benchmark
+    from emulator.profiles.reader import load_trainset
+    from emulator.rig.warmup import warm_up
+
+    params = load_trainset(args.profile)
+    warm_up(params, say=console.print)
+    if args.monitor:
+        from emulator.bench.monitor import monitor_benchmark
+        from emulator.profiles.reader import resolve_profile
+
+        figures = monitor_benchmark(resolve_profile(args.profile), seconds=args.seconds)
+        if args.json:
+            print(json.dumps(figures))
+            return 0
+        table = Table(title=f"Rig lateness, dashboard detached / attached / detached: "
+                      f"{params.name}, {args.seconds:g} s each, clock {figures['clock']}, "
+                      f"dashboard {figures['dashboard']}")
+        table.add_column("figure")
+        names = ("detached_before", "attached", "detached_after")
+        for name in names:
+            table.add_column(name.replace("_", " "), justify="right")
+        for key in ("frames", "snapshots", "lateness_us_median", "lateness_us_p99",
+                    "lateness_us_p999", "late_frames", "compute_us_median",
+                    "compute_us_p99"):
+            table.add_row(key, *(f"{figures[n][key]:.1f}" if isinstance(figures[n][key], float)
+                                 else str(figures[n][key]) for n in names))
+        Console().print(table)
+        console.print(f"p99 lateness attached / detached (mean of the two windows): "
+                      f"{figures['p99_ratio_attached_to_detached']:.2f}")
+        return 0
+    if args.link:
+        from emulator.bench.link import link_benchmark
+
+        figures = link_benchmark(params, seconds=args.seconds)
+        if args.json:
+            print(json.dumps(figures))
+            return 0
+        table = pairs_table(f"Rig pacing and link: {params.name}, {args.seconds:g} s at 1 kHz")
+        for key, value in figures.items():
+            table.add_row(key, str(value))
+        Console().print(table)
+        return 0
+    figures = plant_benchmark(params, frames=args.frames)
+    if args.json:
+        print(json.dumps(figures))
+        return 0
+    table = pairs_table(f"Plant cost per frame: {params.name}")
+    table.add_row("frame / sub-step", f"{figures['frame_us']:.0f} us / "
+                  f"{figures['substep_us']:.0f} us")
+    table.add_row("motors", str(figures["motors"]))
+    table.add_row("plant frame median", f"{figures['plant_frame_us_median']:.1f} us")
+    table.add_row("plant frame p99", f"{figures['plant_frame_us_p99']:.1f} us")
+    table.add_row("share of the frame (median)", f"{100 * figures['frame_fraction']:.2f} %")
+    for n, c in figures["cost_us_by_motor_count"].items():
+        table.add_row(f"  {n} motors", f"{c:.1f} us")
+    table.add_row("cost per motor", f"{figures['us_per_motor']:.2f} us")
+    table.add_row("motors within 10 % of a frame", str(figures["motors_in_10pct"]))
+    table.add_row("same frame by solve_ivp (RK45, machines only)",
+                  f"{figures['solve_ivp_frame_us_median']:.0f} us")
+    table.add_row("solve_ivp / plant", f"{figures['solve_ivp_ratio']:.0f}x")
+    Console().print(table)
+    return 0

@@ -1,0 +1,98 @@
+"""``railrig replay``: run a recorded scenario again from what the recording holds.
+
+Exit codes: 0 the checks passed and the run repeated bit for bit, 1 it differs, 2 the
+recording cannot be replayed (unreadable, not from ``railrig run``, not lockstep).
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import tempfile
+from pathlib import Path
+
+import numpy as np
+from rich.console import Console
+
+from emulator.commands.run import (
+    EXIT_FAILED,
+    EXIT_PASSED,
+    EXIT_UNRUNNABLE,
+    console,
+    progress_bar,
+    run_one,
+    summary,
+)
+from emulator.profiles.table import ProfileError
+from emulator.recording.recorder import RecordingError, read_recording
+from emulator.scenario.runner import RunError, judge
+
+HELP = "run a recorded scenario again and compare"
+
+
+def _rebuild(meta: dict, where: Path) -> tuple[Path, Path]:
+    """Write the recorded scenario, trainset and machine texts: (scenario, trainset)."""
+    machine = meta.get("machine")
+    depth = machine["relative"].count("..") + 1 if machine else 1
+    trainset = where.joinpath(*["t"] * depth, Path(meta["trainset"]["path"]).name)
+    trainset.parent.mkdir(parents=True)
+    trainset.write_text(meta["trainset"]["text"], encoding="utf-8")
+    if machine:
+        target = (trainset.parent / machine["relative"]).resolve()
+        target.parent.mkdir(parents=True, exist_ok=True)
+        target.write_text(machine["text"], encoding="utf-8")
+    scenario = where / Path(meta["scenario"]["path"]).name
+    scenario.write_text(meta["scenario"]["text"], encoding="utf-8")
+    return scenario, trainset
+
+
+def add_arguments(replay: argparse.ArgumentParser) -> None:
+    """The options of ``railrig replay``."""
+    replay.add_argument("recording", help="a recording made by railrig run --record")
+    replay.set_defaults(controller="reference", mode="lockstep", seed=None)
+
+
+def run(args: argparse.Namespace) -> int:
+    """railrig replay RECORDING: run again from what the recording holds; compare."""
+    try:
+        old = read_recording(args.recording)
+    except (RecordingError, OSError) as exc:
+        console.print(f"[red]{exc}[/red]")
+        return EXIT_UNRUNNABLE
+    meta = old.meta
+    if "scenario" not in meta:
+        console.print("[red]this recording was not made by `railrig run` (no scenario)[/red]")
+        return EXIT_UNRUNNABLE
+    if meta.get("controller") != "reference" or meta.get("mode") != "lockstep":
+        console.print("[red]only lockstep runs with the reference controller repeat bit for "
+                      f"bit; this one ran {meta.get('mode')} with {meta.get('controller')}[/red]")
+        return EXIT_UNRUNNABLE
+    with tempfile.TemporaryDirectory() as tmp:
+        scenario_path, trainset = _rebuild(meta, Path(tmp))
+        args.controller, args.mode, args.seed = "reference", "lockstep", meta["seed"]
+        try:
+            with progress_bar() as bar:
+                new = asyncio.run(run_one(scenario_path, args, bar, None, trainset))
+        except (ProfileError, RunError, ValueError, OSError) as exc:
+            console.print(f"[red]cannot replay: {exc}[/red]")
+            return EXIT_UNRUNNABLE
+    same, note = compare(old, new.recording)
+    out = Console()
+    out.print(summary(judge(new.scenario, old)))
+    out.print(f"replay: {note}")
+    return EXIT_PASSED if same else EXIT_FAILED
+
+
+def compare(a, b) -> tuple[bool, str]:
+    """Whether two recordings hold the same frames bit for bit, and where they part."""
+    if a.columns != b.columns:
+        return False, "the recordings have different columns"
+    n = min(len(a.data), len(b.data))
+    diff = np.flatnonzero((a.data[:n].view(np.uint64) != b.data[:n].view(np.uint64)).any(1))
+    if diff.size:
+        k = int(diff[0])
+        col = a.columns[int(np.flatnonzero(a.data[k] != b.data[k])[0])]
+        return False, f"differs from frame {k} (t={a.data[k, 0]:.3f} s), first in {col}"
+    if len(a.data) != len(b.data):
+        return False, f"same first {n} frames, lengths {len(a.data)} and {len(b.data)}"
+    return True, f"identical, bit for bit: {n} frames of {len(a.columns)} columns"
