@@ -15,10 +15,9 @@ from typing import Any
 
 import numpy as np
 
-from emulator.commands.demo import OpenLoopLineSide
-from emulator.controller.open_loop import SlipFrequencyVf
 from emulator.plant import Commands, Plant
 from emulator.plant.params import TrainsetParams
+from emulator.rig.open_loop import OpenLoopLineSide, SlipFrequencyVf
 
 
 def _loaded_plant(params: TrainsetParams) -> tuple[Plant, SlipFrequencyVf]:

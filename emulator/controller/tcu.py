@@ -14,7 +14,8 @@ from collections import Counter
 
 import msgpack
 
-from . import events
+from emulator.protocol import events
+
 from .adhesion import AdhesionControl
 from .config import ControllerConfig
 from .line_converter import LinkControl, chopper_duty, power_limits

@@ -104,3 +104,11 @@ class Link:
 def _expire(waiter: asyncio.Future) -> None:
     if not waiter.done():
         waiter.set_result(False)
+
+
+def host_port(text: str, what: str, url: str) -> tuple[str, int]:
+    """Split HOST:PORT, with a message naming the URL on error."""
+    host, sep, port = text.rpartition(":")
+    if not sep or not host or not port.isdigit() or not 0 <= int(port) <= 65535:
+        raise LinkError(f"{url}: {what} must be HOST:PORT, got {text!r}")
+    return host.strip("[]"), int(port)

@@ -14,7 +14,6 @@ from dataclasses import dataclass
 from urllib.parse import SplitResult
 
 from .base import Link, LinkError
-from .registry import register
 
 _channels: dict[str, list[LoopLink]] = {}
 
@@ -85,7 +84,6 @@ class Manipulator:
         return out
 
 
-@register("loop")
 class LoopLink(Link):
     """One end of an in-memory channel named by the URL's host part."""
 

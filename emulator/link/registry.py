@@ -1,37 +1,42 @@
-"""Transports chosen by URL through a registry (one class per scheme)."""
+"""Transports chosen by URL: the registry owns the table of schemes (one class each).
+
+The transports do not import the registry; it imports a transport's module only when a
+URL asks for its scheme (so pyserial loads only for ``serial://``).
+"""
 
 from __future__ import annotations
 
-from collections.abc import Callable
+import importlib
 from urllib.parse import parse_qs, urlsplit
 
 from .base import Link, LinkError
 
-_SCHEMES: dict[str, Callable[..., Link]] = {}
-
-
-def register(scheme: str) -> Callable[[type[Link]], type[Link]]:
-    """Class decorator: make a transport available under a URL scheme."""
-
-    def wrap(cls: type[Link]) -> type[Link]:
-        _SCHEMES[scheme] = cls
-        return cls
-
-    return wrap
+SCHEMES: dict[str, tuple[str, str]] = {
+    "loop": ("emulator.link.loop", "LoopLink"),
+    "serial": ("emulator.link.serial_link", "SerialLink"),
+    "udp": ("emulator.link.udp", "UdpLink"),
+}
 
 
 def schemes() -> list[str]:
     """The URL schemes known."""
-    return sorted(_SCHEMES)
+    return sorted(SCHEMES)
+
+
+def transport_class(scheme: str) -> type[Link] | None:
+    """The transport class of a scheme, or None if the scheme is unknown."""
+    where = SCHEMES.get(scheme)
+    if where is None:
+        return None
+    module, name = where
+    return getattr(importlib.import_module(module), name)
 
 
 def open_link(url: str, *, allow_remote: bool = False) -> Link:
     """A transport for a URL: ``udp://HOST:PORT?peer=HOST:PORT``,
     ``serial:///dev/ttyX?baud=N``, ``loop://NAME``. Call ``await link.open()`` next."""
-    from . import loop, serial_link, udp  # noqa: F401  (register the schemes)
-
     parts = urlsplit(url)
-    cls = _SCHEMES.get(parts.scheme)
+    cls = transport_class(parts.scheme)
     if cls is None:
         raise LinkError(f"{url}: unknown link scheme {parts.scheme!r}; use one of "
                         f"{', '.join(s + '://' for s in schemes())}")
@@ -39,11 +44,3 @@ def open_link(url: str, *, allow_remote: bool = False) -> Link:
     link = cls(parts, query, allow_remote=allow_remote)
     link.url = url
     return link
-
-
-def host_port(text: str, what: str, url: str) -> tuple[str, int]:
-    """Split HOST:PORT, with a message naming the URL on error."""
-    host, sep, port = text.rpartition(":")
-    if not sep or not host or not port.isdigit() or not 0 <= int(port) <= 65535:
-        raise LinkError(f"{url}: {what} must be HOST:PORT, got {text!r}")
-    return host.strip("[]"), int(port)

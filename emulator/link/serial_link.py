@@ -14,10 +14,8 @@ import serial
 
 from .base import Link, LinkError
 from .framing import FrameDecoder, encode_frame
-from .registry import register
 
 
-@register("serial")
 class SerialLink(Link):
     """``serial:///dev/ttyUSB0?baud=2000000`` (8N1)."""
 

@@ -8,8 +8,7 @@ import os
 import socket
 from urllib.parse import SplitResult
 
-from .base import Link, LinkError
-from .registry import host_port, register
+from .base import Link, LinkError, host_port
 
 
 def _is_loopback(host: str) -> bool:
@@ -32,7 +31,6 @@ class _Protocol(asyncio.DatagramProtocol):
         self.link.stats.tx_errors += 1
 
 
-@register("udp")
 class UdpLink(Link):
     """``udp://BIND_HOST:BIND_PORT?peer=HOST:PORT``; loopback only without allow_remote."""
 

@@ -12,11 +12,11 @@ from typing import Any
 
 import numpy as np
 
-from emulator.controller.events import NAMES as EVENT_NAMES
-from emulator.controller.events import TRIPS
 from emulator.faults.catalogue import CATALOGUE
 from emulator.plant import layout as L  # noqa: N812  (as in the plant)
 from emulator.plant.drivetrain import RAIL_CONDITIONS
+from emulator.protocol.events import NAMES as EVENT_NAMES
+from emulator.protocol.events import TRIPS
 from emulator.protocol.signal_map import MODES
 
 RPM_PER_RAD_S = 60.0 / (2.0 * math.pi)

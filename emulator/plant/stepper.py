@@ -8,7 +8,6 @@ compiled kernel over it in fixed sub-steps. States are read by name (``plant.rea
 from __future__ import annotations
 
 import math
-from pathlib import Path
 
 import numpy as np
 
@@ -70,13 +69,6 @@ class Plant:
         mp[:, L.MP_GEAR_INV] = 1.0 / gear
         mp[:, L.MP_POL_KAPPA] = 0.25 * math.pi * mp[:, L.MP_KALKER] / mp[:, L.MP_AXLE_LOAD]
         mp[:, L.MP_POL_SCALE] = 2.0 * mp[:, L.MP_AXLE_LOAD] / math.pi
-
-    @classmethod
-    def from_profile(cls, path: str | Path, **kwargs: bool) -> Plant:
-        """Build a plant from a trainset profile file (see emulator.profiles.reader)."""
-        from emulator.profiles.reader import load_trainset  # the loader sits beside the plant
-
-        return cls(load_trainset(path), **kwargs)
 
     @classmethod
     def test_bench(cls, machine: MachineParams, motors: int = 1, *, dc_link_v: float = 0.0,

@@ -10,7 +10,7 @@ One ``[[check]]`` table is one check, of one kind:
   or a position;
 - ``raised = [...]`` / ``not_raised = [...]``: the controller reports (or never
   reports) these event codes in the window; codes are numbers or names of
-  ``emulator.controller.events.SLUGS``, "trip" meaning any protective trip.
+  ``emulator.protocol.events.SLUGS``, "trip" meaning any protective trip.
 
 The window: ``from_s``/``to_s`` (relative to the labelled moment when ``after`` is
 given, else to the start of the run) and ``from_m``/``to_m`` (train position). A
@@ -26,8 +26,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from emulator.controller import events as ev
-from emulator.profile_table import Table
+from emulator.profiles.table import Table
+from emulator.protocol import events as ev
 
 KINDS = ("max", "min", "band", "settles", "rises_to", "falls_to", "raised", "not_raised")
 CONVERSIONS = {"_kmh": ("_mps", 3.6, 0.0), "_degc": ("_k", 1.0, -273.15),

@@ -7,9 +7,9 @@ import math
 import numpy as np
 import pytest
 
-from emulator.controller.open_loop import SlipFrequencyVf
 from emulator.plant import Commands, Plant
 from emulator.profiles.reader import PROFILES_DIR, load_machine, load_trainset
+from emulator.rig.open_loop import SlipFrequencyVf
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 

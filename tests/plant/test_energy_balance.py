@@ -10,6 +10,7 @@ from __future__ import annotations
 import pytest
 
 from emulator.plant import Plant
+from emulator.profiles.reader import load_trainset
 
 from .conftest import TRAINSET, SlipFrequencyDrive
 
@@ -23,7 +24,7 @@ def balance(plant: Plant) -> tuple[float, float]:
 
 
 def test_traction_run_on_a_gradient() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     plant.set_gradient(0.005)
     drive = SlipFrequencyDrive(plant, slip_hz=1.2, volts_per_hz=15.8)
     for _ in range(6000):
@@ -34,7 +35,7 @@ def test_traction_run_on_a_gradient() -> None:
 
 
 def test_regenerative_braking_returns_energy() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     plant.set_speed(20.0)
     drive = SlipFrequencyDrive(plant, slip_hz=-1.0, volts_per_hz=15.8)
     e_kin0 = plant.energy().kinetic_stored

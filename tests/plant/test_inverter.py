@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 
 from emulator.plant import CommandError, Commands, Plant
+from emulator.profiles.reader import load_trainset
 
 from .conftest import TRAINSET, SlipFrequencyDrive
 
@@ -18,7 +19,7 @@ def applied_voltage(plant: Plant) -> complex:
 
 
 def test_applied_voltage_is_clarke_of_leg_voltages_at_zero_current() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     duty = np.array([[0.8, 0.4, 0.3]] * plant.n_inverters)
     plant.advance(Commands(duty, np.ones(plant.n_inverters, dtype=bool)), 50e-6)
     udc = 1800.0
@@ -30,7 +31,7 @@ def test_applied_voltage_is_clarke_of_leg_voltages_at_zero_current() -> None:
 
 def test_dead_time_reduces_the_voltage_against_the_current() -> None:
     # dead-time error t_d f_sw U_dc per leg against sgn(i) (common practice, REFERENCES.md)
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     drive = SlipFrequencyDrive(plant, slip_hz=1.2, volts_per_hz=15.8)
     for _ in range(500):
         plant.advance(drive.commands())
@@ -46,7 +47,7 @@ def test_dead_time_reduces_the_voltage_against_the_current() -> None:
 
 
 def test_blocked_gates_stop_the_current_at_zero_without_chatter() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     drive = SlipFrequencyDrive(plant, slip_hz=1.2, volts_per_hz=15.8)
     for _ in range(1500):
         plant.advance(drive.commands())
@@ -63,7 +64,7 @@ def test_blocked_gates_stop_the_current_at_zero_without_chatter() -> None:
 def test_back_emf_above_the_link_drives_current_into_it() -> None:
     # a fluxed machine spinning fast with blocked gates and a low link: uncontrolled
     # rectification through the freewheeling diodes
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     plant.set_speed(40.0)
     drive = SlipFrequencyDrive(plant, slip_hz=0.0, volts_per_hz=15.8)
     for _ in range(300):
@@ -75,7 +76,7 @@ def test_back_emf_above_the_link_drives_current_into_it() -> None:
 
 @pytest.mark.parametrize("bad", [np.nan, np.inf, -0.1, 1.5])
 def test_non_finite_or_out_of_range_duty_is_rejected(bad: float) -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     cmd = Commands.blocked(plant.n_inverters)
     cmd.duty[1, 2] = bad
     before = plant.ms.copy()
@@ -85,7 +86,7 @@ def test_non_finite_or_out_of_range_duty_is_rejected(bad: float) -> None:
 
 
 def test_wrong_shape_and_bad_inputs_are_rejected() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     with pytest.raises(CommandError):
         plant.advance(Commands(np.full((2, 3), 0.5), np.ones(2, dtype=bool)))
     with pytest.raises(CommandError):

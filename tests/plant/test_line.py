@@ -23,6 +23,7 @@ import pytest
 from emulator.plant import Commands, Plant
 from emulator.plant import layout as L  # noqa: N812
 from emulator.plant.stepper import LineCommands
+from emulator.profiles.reader import load_trainset
 
 from .conftest import TRAINSET, SlipFrequencyDrive
 
@@ -62,7 +63,7 @@ class PhasorLineConverters:
 
 def energised(profile=TRAINSET, udc: float | None = 1800.0, harmonics: bool = False) -> Plant:
     """A plant whose breaker and line contactors are closed, link charged to udc."""
-    plant = Plant.from_profile(profile)
+    plant = Plant(load_trainset(profile))
     if not harmonics:
         plant.harmonics[:] = 0.0
     if udc is not None:
@@ -109,7 +110,7 @@ def ripple_run(profile, with_filter: bool) -> tuple[float, float, float]:
 @pytest.mark.parametrize("profile", [TRAINSET, PROFILE_15KV], ids=["50Hz", "16.7Hz"])
 def test_unfiltered_2f_ripple_follows_the_power_balance(profile) -> None:
     pp, s, u_mean = ripple_run(profile, with_filter=False)
-    plant = Plant.from_profile(profile)
+    plant = Plant(load_trainset(profile))
     omega = 2 * math.pi * plant.params.supply.frequency_hz
     expected = s / (omega * plant.params.dc_links[0].capacitance_f * u_mean)
     assert 1500 < u_mean < 2100 and s > 5e5  # the operating point is a real one
@@ -123,7 +124,7 @@ def test_reference_example_of_the_ripple_formula() -> None:
 
 @pytest.mark.parametrize("profile", [TRAINSET, PROFILE_15KV], ids=["50Hz", "16.7Hz"])
 def test_tuned_filter_removes_90_percent_of_the_ripple(profile) -> None:
-    plant = Plant.from_profile(profile)
+    plant = Plant(load_trainset(profile))
     omega = 2 * math.pi * plant.params.supply.frequency_hz
     link = plant.params.dc_links[0]
     assert link.filter_inductance_h * link.filter_capacitance_f == pytest.approx(
@@ -134,7 +135,7 @@ def test_tuned_filter_removes_90_percent_of_the_ripple(profile) -> None:
 
 
 def test_blocked_bridge_charges_to_the_secondary_peak_through_the_precharge_resistor() -> None:
-    plant = Plant.from_profile(TRAINSET)
+    plant = Plant(load_trainset(TRAINSET))
     plant.harmonics[:] = 0.0
     line = LineCommands.open(plant.n_line_converters, plant.n_links)
     line.breaker = True
@@ -155,9 +156,9 @@ def test_blocked_bridge_charges_to_the_secondary_peak_through_the_precharge_resi
 
 
 def test_energy_from_catenary_to_motors_balances() -> None:
-    from emulator.commands.demo import OpenLoopLineSide
+    from emulator.rig.open_loop import OpenLoopLineSide
 
-    plant = Plant.from_profile(TRAINSET)
+    plant = Plant(load_trainset(TRAINSET))
     line = OpenLoopLineSide(plant)
     blocked = Commands.blocked(plant.n_inverters)
     while not line.ready:
@@ -230,7 +231,7 @@ def test_a_non_receptive_line_raises_the_voltage_further() -> None:
 
 @pytest.mark.parametrize("f_hz", [49.5, 50.5, 16.5, 17.0])
 def test_sampled_line_voltage_is_exact_at_off_multiple_frequencies(f_hz: float) -> None:
-    plant = Plant.from_profile(TRAINSET)  # breaker open: the pantograph sees the EMF
+    plant = Plant(load_trainset(TRAINSET))  # breaker open: the pantograph sees the EMF
     plant.harmonics[:] = 0.0
     plant.set_supply(frequency_hz=f_hz, voltage_rms_v=25e3)
     amp = 25e3 * math.sqrt(2)
@@ -244,15 +245,15 @@ def test_sampled_line_voltage_is_exact_at_off_multiple_frequencies(f_hz: float) 
 
 
 def test_supply_levels_of_en_50163() -> None:
-    plant = Plant.from_profile(TRAINSET)
+    plant = Plant(load_trainset(TRAINSET))
     assert [plant.supply_level(n) for n in ("U_min2", "U_min1", "U_n", "U_max1", "U_max2")] \
         == [17500, 19000, 25000, 27500, 29000]
-    other = Plant.from_profile(PROFILE_15KV)
+    other = Plant(load_trainset(PROFILE_15KV))
     assert other.supply_level("U_max2") == 18000
 
 
 def test_phase_jump_and_dead_section() -> None:
-    plant = Plant.from_profile(TRAINSET)
+    plant = Plant(load_trainset(TRAINSET))
     plant.harmonics[:] = 0.0
     for _ in range(5):
         plant.advance(None)

@@ -7,6 +7,7 @@ from scipy import constants
 
 from emulator.plant import Plant
 from emulator.plant.train import davis_passenger_imperial_n_per_t, davis_resistance
+from emulator.profiles.reader import load_trainset
 
 from .conftest import TRAINSET, SlipFrequencyDrive
 
@@ -25,7 +26,7 @@ def test_davis_abc_form() -> None:
 
 
 def test_no_creeping_drift_at_zero_effort_on_the_level() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     for _ in range(2000):
         plant.advance(None)
     assert plant.read("train.speed_mps") == 0.0
@@ -33,7 +34,7 @@ def test_no_creeping_drift_at_zero_effort_on_the_level() -> None:
 
 
 def test_rolls_back_on_a_gradient_with_brakes_off_and_holds_with_brakes_on() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     plant.set_gradient(0.03)  # 30 per mille uphill: m g 0.03 >> Davis A
     plant.set_brake_force(100e3)
     for _ in range(1000):
@@ -53,7 +54,7 @@ def test_rolls_back_on_a_gradient_with_brakes_off_and_holds_with_brakes_on() -> 
 
 
 def test_start_from_standstill_at_the_default_substep_is_stable() -> None:
-    plant = Plant.from_profile(TRAINSET, ideal_dc_links=True)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     drive = SlipFrequencyDrive(plant, slip_hz=1.2, volts_per_hz=15.8)
     for _ in range(3000):
         plant.advance(drive.commands())

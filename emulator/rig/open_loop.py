@@ -6,7 +6,9 @@ sine-triangle modulation, leg duties d_x = 1/2 + 1/2 m cos(theta - x 2 pi/3) wit
 m = U / (U_dc/2) (Mohan, Undeland & Robbins, *Power Electronics*, ch. 8; Bose, *Modern
 Power Electronics and AC Drives*, scalar control). Positive slip motors, negative slip
 brakes. It keeps no current loop and no protection: a signal source for plant checks and
-the headless demo, not a controller to learn from.
+the plant benchmark, not a controller to learn from. ``OpenLoopLineSide`` attaches the
+diode-bridge switch-on sequence and the chopper to plant commands, for checks that need a
+charged line side without a controller or a link.
 """
 
 from __future__ import annotations
@@ -14,6 +16,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
+
+from emulator.plant import Commands, Plant
+from emulator.plant.stepper import LineCommands
 
 
 class SlipFrequencyVf:
@@ -82,3 +87,26 @@ class DiodeBridgeSequencer:
     def ready(self) -> bool:
         """Whether the line contactors are (commanded) closed."""
         return self.line_closed_at is not None and self.t >= self.line_closed_at + self.overlap_s
+
+
+class OpenLoopLineSide:
+    """The diode-bridge switch-on sequence and chopper, attached to plant commands."""
+
+    def __init__(self, plant: Plant) -> None:
+        self.plant = plant
+        tr = plant.params.transformer
+        peak = tr.secondary_voltage_v * math.sqrt(2) if tr else 0.0
+        self.seq = DiodeBridgeSequencer(plant.n_line_converters, plant.n_links, peak)
+        self.line = LineCommands.open(plant.n_line_converters, plant.n_links)
+
+    @property
+    def ready(self) -> bool:
+        return self.seq.ready
+
+    def commands(self, command: Commands) -> Commands:
+        c = self.seq.step(self.plant.read("dc_link.voltage_v"), self.plant.params.frame_s)
+        self.line.breaker = c["breaker"]
+        self.line.precharge[:] = c["precharge"]
+        self.line.line_contactor[:] = c["line_contactor"]
+        self.line.chopper[:] = c["chopper"]
+        return Commands(command.duty, command.gates_enabled, self.line)

@@ -1,4 +1,8 @@
-"""Event codes the reference controller reports in ``tcu.event_code``."""
+"""Event codes a controller reports in ``tcu.event_code``, with their names.
+
+The reference controller reports these; scenario checks, the monitor and the dashboard
+name them; a board may report the same codes to have its events named too.
+"""
 
 SEQUENCE_TIMEOUT = 1
 INVERTER_OVERCURRENT = 10
