@@ -10,7 +10,7 @@ import asyncio
 
 import pytest
 
-from emulator import monitor as monitor_module
+from emulator.monitor import endpoint as monitor_module
 from emulator.monitor.endpoint import MonitorError, parse_address
 from emulator.plant import layout as L  # noqa: N812
 from emulator.recording.recorder import read_recording
@@ -151,7 +151,7 @@ async def test_a_scenario_run_sends_its_verdicts_to_a_watching_client(tmp_path) 
 
     from emulator.scenario import load_scenario, run_scenario
 
-    from .scenario.test_determinism import SCENARIO
+    from tests.scenario.test_determinism import SCENARIO
 
     scenario = dataclasses.replace(load_scenario(SCENARIO), duration_s=2.5)
     address = os.path.join(tempfile.mkdtemp(prefix="rr"), "m.sock")
