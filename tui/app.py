@@ -75,9 +75,10 @@ class RigDashboard(App):
         Binding("q", "quit", "quit"),
     ]
 
-    def __init__(self, address: str | None = None, *, retry: bool = True) -> None:
+    def __init__(self, address: str | None = None, *, retry: bool = True,
+                 token: str | None = None) -> None:
         super().__init__()
-        self.client = RigClient(address)
+        self.client = RigClient(address, token)
         self.retry = retry
         self.hello: dict[str, Any] = {}
         self.snap: dict[str, Any] | None = None
@@ -265,7 +266,7 @@ class RigDashboard(App):
         self.client.close()
 
 
-def run_dashboard(address: str | None = None) -> int:
+def run_dashboard(address: str | None = None, token: str | None = None) -> int:
     """Run the dashboard in this terminal until the operator quits."""
-    RigDashboard(address).run()
+    RigDashboard(address, token=token).run()
     return 0

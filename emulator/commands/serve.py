@@ -60,6 +60,9 @@ def add_arguments(serve: argparse.ArgumentParser) -> None:
                        help="monitor endpoint: a Unix socket path or 127.0.0.1:PORT "
                        "(default: railrig-monitor.sock in the runtime directory)")
     serve.add_argument("--no-monitor", action="store_true", help="no monitor endpoint")
+    serve.add_argument("--record-dir", default="recordings",
+                       help="folder of the recordings a dashboard starts (it may name a file "
+                       "in it, never a path); default ./recordings")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -87,7 +90,8 @@ def run(args: argparse.Namespace) -> int:
                   command_delay=args.command_delay, watchdog_frames=args.watchdog_frames,
                   seed=args.seed, clock=MonotonicClock(spin_ns=round(args.spin_us * 1e3)),
                   ideal_dc_links=args.ideal_dc_links)
-        monitor = None if args.no_monitor else Monitor(rig, args.monitor)
+        monitor = None if args.no_monitor else Monitor(rig, args.monitor,
+                                                        record_dir=args.record_dir)
     except (LinkError, RigError, MonitorError) as exc:
         console.print(f"[red]error:[/red] {exc}")
         return 2

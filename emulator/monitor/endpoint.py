@@ -16,9 +16,23 @@ resume    -
 step      frames (default 1): run that many frames, then pause again
 demand    effort (-1..1, negative brakes) or change (added to the demand now): the
           operator takes the driver's demand; release = true hands it back
-record    path (optional): start recording every frame; stop = true ends it
+record    name (optional, a bare file name): start recording every frame into the rig's
+          recordings folder (``--record-dir``); stop = true ends it
 mark      text: a mark in the recording and the event log
+auth      token: the first message on a TCP connection (see below)
 ========  ==============================================================================
+
+Every operand is checked for type, finiteness and range (``operands.py``); a bad one, an
+unknown op, or a handler that fails anyway gets ``{"kind": "reply", "ok": false}`` with
+the reason, and the frame loop never sees the exception.
+
+Who can reach it: the Unix socket is created with mode 0600 (under a umask, before it
+listens) in a folder that must belong to the rig's user and be writable by nobody else,
+so only that user connects. A TCP endpoint (loopback only) is open to every local user,
+so it asks for a token first: the rig writes a random one, mode 0600, beside its runtime
+files (``tui.client.token_file``), where ``railrig dash`` of the same user finds it; a
+client that does not send ``{"op": "auth", "token": ...}`` as its first message gets one
+error message and is closed.
 
 It never slows the frame loop: the rig calls ``service()`` once per frame, which applies
 queued commands and, every Nth frame and only with clients attached, schedules one
@@ -32,9 +46,11 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import hmac
 import ipaddress
 import logging
 import os
+import secrets
 import time
 from collections import deque
 from pathlib import Path
@@ -42,18 +58,20 @@ from typing import Any
 
 import msgpack
 
-from emulator.faults import FaultError
+from emulator.monitor.operations import OperatorCommands
 from emulator.monitor.telemetry import TelemetryBuilder
-from emulator.protocol.signal_map import MODES
-from tui.client import default_address  # one place for it; the client needs no emulator
+
+# one place for where a monitor lives; the client imports no emulator code
+from tui.client import default_address, private_dir, token_file
 
 log = logging.getLogger(__name__)
 
 RATE_HZ = 30.0
 MAX_BACKLOG = 256 * 1024  # bytes queued for one client before it counts as too slow
 MAX_MESSAGE = 64 * 1024  # a command larger than this is not a command
+MAX_QUEUED = 256  # commands waiting for the next frame, from all clients
 HISTORY = 200  # events kept for clients that attach later
-MODE_OF_DEMAND = {1: "accelerate", 0: "coast", -1: "brake"}
+AUTH_TIMEOUT_S = 5.0  # a TCP client sends its token within this time or is closed
 
 
 def _plain(obj: Any) -> Any:
@@ -115,20 +133,24 @@ class _Client:
             self.writer.transport.abort()
 
 
-class Monitor:
+class Monitor(OperatorCommands):
     """Publishes a rig's state and applies operator commands between frames."""
 
-    def __init__(self, rig, address: str | None = None, *, rate_hz: float = RATE_HZ) -> None:
+    def __init__(self, rig, address: str | None = None, *, rate_hz: float = RATE_HZ,
+                 record_dir: str | Path = "recordings") -> None:
         self.rig = rig
         self.address = address or default_address()
         self.kind, self.where = parse_address(self.address)
+        self.record_dir = Path(record_dir)
+        self.token = secrets.token_hex(16) if self.kind == "tcp" else None
+        self.token_path: Path | None = None
         self.every = max(1, round(1e6 / (rate_hz * rig.period_us)))
         self.builder = TelemetryBuilder(rig)
         self.clients: list[_Client] = []
         self.commands: deque[tuple[_Client, dict]] = deque()
         self.events: deque[dict] = deque(maxlen=HISTORY)
         self.counts = {"clients_dropped": 0, "bad_messages": 0, "commands": 0,
-                       "snapshots": 0}
+                       "snapshots": 0, "refused": 0, "handler_errors": 0}
         self.paused = False
         self.steps = 0
         self.resumed = asyncio.Event()
@@ -159,7 +181,10 @@ class Monitor:
         still answers is not (MonitorError)."""
         if self.kind == "unix":
             path = Path(self.where)
-            path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
+            try:
+                private_dir(path.parent)
+            except PermissionError as exc:
+                raise MonitorError(str(exc)) from None
             if path.exists() and path.is_socket():
                 try:
                     _, writer = await asyncio.open_unix_connection(str(path))
@@ -169,8 +194,11 @@ class Monitor:
                     writer.close()
                     raise MonitorError(f"another rig's monitor listens at {path}; give this "
                                        "one --monitor with another address")
-            self._server = await asyncio.start_unix_server(self._serve, path=str(path))
-            os.chmod(path, 0o600)
+            old = os.umask(0o177)  # the socket file is born 0600: no window before chmod
+            try:
+                self._server = await asyncio.start_unix_server(self._serve, path=str(path))
+            finally:
+                os.umask(old)
         else:
             host, port = self.where
             self._server = await asyncio.start_server(self._serve, host, port)
@@ -178,6 +206,17 @@ class Monitor:
                 port = self._server.sockets[0].getsockname()[1]
                 self.address = f"{host}:{port}"
                 self.where = (host, port)
+            try:
+                self.token_path = token_file(port)
+                private_dir(self.token_path.parent)
+                fd = os.open(self.token_path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC
+                             | os.O_NOFOLLOW, 0o600)
+                with os.fdopen(fd, "w") as fh:
+                    fh.write(self.token + "\n")
+            except OSError as exc:
+                self.close()
+                raise MonitorError(f"cannot keep the monitor's token at {self.token_path}: "
+                                   f"{exc}") from None
 
     def close(self) -> None:
         """Stop listening and close every client (queued messages are still sent)."""
@@ -189,12 +228,43 @@ class Monitor:
             self._server = None
         if self.kind == "unix":
             Path(self.where).unlink(missing_ok=True)
+        elif self.token_path is not None:
+            self.token_path.unlink(missing_ok=True)
+            self.token_path = None
         if self._own_recorder is not None:
             self._own_recorder.close()
             self.rig.recorder = self._own_recorder = None
 
+    async def _authenticate(self, client: _Client, unpacker: msgpack.Unpacker) -> bool:
+        """TCP: the first message must carry the token (compared in constant time)."""
+        message = None
+        try:
+            async with asyncio.timeout(AUTH_TIMEOUT_S):
+                while message is None:
+                    data = await client.reader.read(4096)
+                    if not data:
+                        return False
+                    unpacker.feed(data)
+                    message = next(unpacker, None)
+        except Exception:  # silence, garbage or a reset: refused like a wrong token
+            message = None
+        token = message.get("token") if isinstance(message, dict) else None
+        if (isinstance(message, dict) and message.get("op") == "auth"
+                and isinstance(token, str)
+                and hmac.compare_digest(token.encode(), self.token.encode())):
+            return True
+        self.counts["refused"] += 1
+        client.send(pack({"kind": "error", "text": "this monitor needs its token first: "
+                          "{'op': 'auth', 'token': ...} (railrig dash reads it from "
+                          f"{self.token_path})"}))
+        client.close(flush=True)
+        return False
+
     async def _serve(self, reader: asyncio.StreamReader, writer: asyncio.StreamWriter) -> None:
         client = _Client(reader, writer)
+        unpacker = msgpack.Unpacker(max_buffer_size=MAX_MESSAGE, strict_map_key=False)
+        if self.token is not None and not await self._authenticate(client, unpacker):
+            return
         hello = self.builder.hello(self.rig.faults.targets())
         hello["events"] = list(self.events)
         if not client.send(pack(hello)):
@@ -202,22 +272,25 @@ class Monitor:
             return
         self.clients.append(client)
         self._publish_to([client])
-        unpacker = msgpack.Unpacker(max_buffer_size=MAX_MESSAGE, strict_map_key=False)
         try:
             while data := await reader.read(4096):
                 unpacker.feed(data)
                 for message in unpacker:
-                    if isinstance(message, dict) and isinstance(message.get("op"), str):
-                        self.commands.append((client, message))
-                    else:
+                    if not (isinstance(message, dict) and isinstance(message.get("op"), str)):
                         self.counts["bad_messages"] += 1
                         self._reply(client, message, False, "not a command: expected a map "
                                     "with an 'op' key")
-        except (msgpack.UnpackException, ValueError, ConnectionError) as exc:
-            self.counts["bad_messages"] += 1
-            log.info("monitor: %s dropped: %s", client.name, exc)
+                    elif len(self.commands) >= MAX_QUEUED:
+                        self.counts["bad_messages"] += 1
+                        self._reply(client, message, False, "busy: too many commands "
+                                    "waiting for the next frame; this one was dropped")
+                    else:
+                        self.commands.append((client, message))
         except asyncio.CancelledError:  # the loop is closing with the client attached
             pass
+        except Exception as exc:  # undecodable bytes, unhashable keys, a reset: this client
+            self.counts["bad_messages"] += 1
+            log.info("monitor: %s dropped: %s", client.name, exc)
         finally:
             self._drop(client)
 
@@ -324,112 +397,9 @@ class Monitor:
                 await asyncio.wait_for(self.resumed.wait(), 0.05)
         return False
 
-    # --- commands ---------------------------------------------------------------------
+    # --- replies ------------------------------------------------------------------------
     def _reply(self, client: _Client, message: Any, ok: bool, text: str) -> None:
         ident = message.get("id") if isinstance(message, dict) else None
         if not client.send(pack({"kind": "reply", "id": ident, "ok": ok,
                                           "text": text})):
             self._drop(client)
-
-    def _apply(self, client: _Client, message: dict) -> None:
-        self.counts["commands"] += 1
-        op = message["op"]
-        handler = getattr(self, f"_op_{op}", None)
-        if handler is None:
-            self.counts["bad_messages"] += 1
-            self._reply(client, message, False, f"unknown op {op!r}")
-            return
-        try:
-            text = handler(message)
-        except (FaultError, ValueError, TypeError, KeyError, OSError) as exc:
-            self._reply(client, message, False, f"{op}: {exc}")
-            return
-        self._reply(client, message, True, text)
-        self.resumed.set()
-
-    def _op_inject(self, m: dict) -> str:
-        params = m.get("params") or {}
-        if not isinstance(params, dict):
-            raise ValueError("params must be a map of name to number")
-        until = m.get("until_s")
-        fault = self.rig.faults.add(str(m["fault"]), str(m["target"]),
-                                    {str(k): float(v) for k, v in params.items()},
-                                    at_s=self.rig.plant.time_s,
-                                    until_s=None if until is None else float(until))
-        self.event("operator", f"inject {fault.name}")
-        return f"{fault.name} scheduled"
-
-    def _op_clear(self, m: dict) -> str:
-        name = str(m["fault"])
-        active = [f for f in self.rig.faults.faults if f.active and name in (f.name, f.label)]
-        if not active:
-            raise ValueError(f"no active fault named {name!r}")
-        self.rig.faults.clear(name)
-        self.event("operator", f"clear {name}")
-        return f"{name} cleared"
-
-    def _op_pause(self, m: dict) -> str:
-        self.paused, self.steps = True, 0
-        self.event("operator", "paused")
-        return "paused"
-
-    def _op_resume(self, m: dict) -> str:
-        self.paused = False
-        self.event("operator", "resumed")
-        return "running"
-
-    def _op_step(self, m: dict) -> str:
-        frames = int(m.get("frames", 1))
-        if not 1 <= frames <= 100_000:
-            raise ValueError("frames must be 1..100000")
-        self.paused = True
-        self.steps += frames
-        return f"stepping {frames} frame(s)"
-
-    def _op_demand(self, m: dict) -> str:
-        rig = self.rig
-        if m.get("release"):
-            if self._held_program is None:
-                return "the driver program has the demand already"
-            rig.program, self._held_program = self._held_program, None
-            self.event("operator", "demand handed back to the driver program")
-            return "driver program drives"
-        if "change" in m:  # a step from the demand now (keys pressed faster than telemetry)
-            effort = round(min(1.0, max(-1.0, rig.driver.effort_demand + float(m["change"]))),
-                           3)
-        else:
-            effort = float(m["effort"])
-        if not -1.0 <= effort <= 1.0:
-            raise ValueError(f"effort must be within -1..1, got {effort}")
-        if self._held_program is None and rig.program is not None:
-            self._held_program, rig.program = rig.program, None
-        rig.driver.effort_demand = effort
-        sign = (effort > 0) - (effort < 0)
-        mode = MODE_OF_DEMAND[sign]
-        rig.driver.mode = next(k for k, v in MODES.items() if v == mode)
-        self.event("operator", f"demand {effort:+.2f} ({mode})")
-        return f"demand {effort:+.2f}"
-
-    def _op_record(self, m: dict) -> str:
-        rig = self.rig
-        if m.get("stop"):
-            if self._own_recorder is None:
-                raise ValueError("no recording started from the monitor is running")
-            path = self._own_recorder.path
-            self._own_recorder.close()
-            rig.recorder = self._own_recorder = None
-            self.event("operator", f"recording stopped: {path}")
-            return f"recording stopped: {path}"
-        if rig.recorder is not None:
-            raise ValueError(f"already recording to {rig.recorder.path}")
-        path = m.get("path") or time.strftime("railrig-%Y%m%d-%H%M%S.rrec")
-        self._own_recorder = rig.start_recording(str(path))
-        self.event("operator", f"recording to {path}")
-        return f"recording to {path}"
-
-    def _op_mark(self, m: dict) -> str:
-        text = str(m.get("text", "mark"))[:200]
-        if self.rig.recorder is not None:
-            self.rig.recorder.mark(label=text, what="operator", t=self.rig.plant.time_s)
-        self.event("mark", text)
-        return "marked"

@@ -39,10 +39,11 @@ class Recorder:
     """Writes rows of floats (one per frame) with a header of metadata and column names."""
 
     def __init__(self, path: str | Path, columns: list[str], meta: dict[str, Any],
-                 chunk_rows: int = 256, flush_s: float = 0.1) -> None:
+                 chunk_rows: int = 256, flush_s: float = 0.1, exclusive: bool = False) -> None:
+        """``exclusive``: create the file or raise FileExistsError, never overwrite one."""
         self.path = Path(path)
         self.columns = list(columns)
-        self._fh = self.path.open("wb")
+        self._fh = self.path.open("xb" if exclusive else "wb")
         self._buf = np.zeros((chunk_rows, len(columns)))
         self._n = 0
         self._frame0 = 0

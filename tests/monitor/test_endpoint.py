@@ -14,6 +14,7 @@ from emulator.monitor import endpoint as monitor_module
 from emulator.monitor.endpoint import MonitorError, parse_address
 from emulator.plant import layout as L  # noqa: N812
 from emulator.recording.recorder import read_recording
+from tests.conftest import wait_until
 from tests.tui.conftest import RawClient, live_rig  # noqa: F401  (fixture)
 
 
@@ -77,15 +78,14 @@ async def test_pause_step_resume(live_rig) -> None:  # noqa: F811
     await c.next("hello")
     await c.ask("pause")
     frame = rig.frame
-    await asyncio.sleep(0.3)
+    await asyncio.sleep(0.3)  # paused: nothing to wait for, the frame must stay
     assert rig.frame == frame
     await c.ask("step", frames=5)
-    for _ in range(50):
-        await asyncio.sleep(0.02)
+    await wait_until(lambda: rig.frame == frame + 5, what="five single steps")
+    await asyncio.sleep(0.3)  # and no more than five
     assert rig.frame == frame + 5
     await c.ask("resume")
-    await asyncio.sleep(0.3)
-    assert rig.frame > frame + 100
+    await wait_until(lambda: rig.frame > frame + 100, what="running again")
 
 
 async def test_operator_demand_record_and_mark(live_rig, tmp_path) -> None:  # noqa: F811
@@ -98,11 +98,11 @@ async def test_operator_demand_record_and_mark(live_rig, tmp_path) -> None:  # n
     assert rig.driver.mode == 4  # brake
     assert (await c.ask("demand", change=-0.2))["ok"]
     assert rig.driver.effort_demand == -0.7
-    path = tmp_path / "op.rrec"
-    assert (await c.ask("record", path=str(path)))["ok"]
-    await asyncio.sleep(0.3)
+    assert (await c.ask("record", name="op"))["ok"]
+    path = monitor.record_dir / "op.rrec"
+    start = rig.frame
+    await wait_until(lambda: rig.frame > start + 150, what="frames recorded")
     assert (await c.ask("mark", text="before the dip"))["ok"]
-    await asyncio.sleep(0.1)
     assert (await c.ask("record", stop=True))["ok"]
     assert (await c.ask("demand", release=True))["ok"]
     assert rig.program is program
@@ -117,12 +117,10 @@ async def test_garbage_drops_only_that_client(live_rig) -> None:  # noqa: F811
     await good.next("hello")
     _reader, writer = await asyncio.open_unix_connection(monitor.address)
     writer.write(b"\xc1" * 64)  # 0xc1 is never used in msgpack
-    await asyncio.sleep(0.3)
-    assert monitor.counts["bad_messages"] >= 1
-    assert len(monitor.clients) == 1
+    await wait_until(lambda: monitor.counts["bad_messages"] >= 1, what="garbage counted")
+    await wait_until(lambda: len(monitor.clients) == 1, what="the garbling client dropped")
     frame = rig.frame
-    await asyncio.sleep(0.3)
-    assert rig.frame > frame
+    await wait_until(lambda: rig.frame > frame, what="frames going on")
     assert (await good.ask("mark", text="still here"))["ok"]
     writer.close()
 
@@ -132,15 +130,12 @@ async def test_a_client_that_does_not_read_is_dropped(live_rig, monkeypatch) -> 
     monkeypatch.setattr(monitor_module, "MAX_BACKLOG", 4096)
     _reader, writer = await asyncio.open_unix_connection(monitor.address)
     # never read: the socket buffers fill (~45 kB/s of snapshots), then the rig's backlog
-    for _ in range(600):
-        await asyncio.sleep(0.05)
-        if monitor.counts["clients_dropped"]:
-            break
+    await wait_until(lambda: monitor.counts["clients_dropped"] >= 1, timeout_s=60,
+                     what="the non-reading client dropped")
     assert monitor.counts["clients_dropped"] == 1
     assert monitor.clients == []
     frame = rig.frame
-    await asyncio.sleep(0.2)
-    assert rig.frame > frame  # the frame loop went on
+    await wait_until(lambda: rig.frame > frame, what="frames going on")  # the loop went on
     writer.close()
 
 
@@ -156,10 +151,7 @@ async def test_a_scenario_run_sends_its_verdicts_to_a_watching_client(tmp_path) 
     scenario = dataclasses.replace(load_scenario(SCENARIO), duration_s=2.5)
     address = os.path.join(tempfile.mkdtemp(prefix="rr"), "m.sock")
     run = asyncio.create_task(run_scenario(scenario, monitor=address))
-    for _ in range(600):
-        if os.path.exists(address):
-            break
-        await asyncio.sleep(0.05)
+    await wait_until(lambda: os.path.exists(address), timeout_s=60, what="the run's monitor")
     c = await RawClient.open(address)
     hello = await c.next("hello")
     assert hello["events"][0]["text"].endswith(": started")

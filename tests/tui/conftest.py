@@ -57,7 +57,8 @@ class RigThread:
                              clock=MonotonicClock(spin_ns=0))
         await attach_reference(channel, rig, TRAINSET)
         rig.program = demo_program(target_kmh=60.0, stop_at_m=3000.0)
-        self.monitor = Monitor(rig, str(self.where / "monitor.sock"))
+        self.monitor = Monitor(rig, str(self.where / "monitor.sock"),
+                               record_dir=self.where / "recordings")
         await self.monitor.start()
         self.loop = asyncio.get_running_loop()
         self.stop = asyncio.Event()
