@@ -145,7 +145,6 @@ async def test_a_scenario_run_sends_its_verdicts_to_a_watching_client(tmp_path) 
     import tempfile
 
     from emulator.scenario import load_scenario, run_scenario
-
     from tests.scenario.test_determinism import SCENARIO
 
     scenario = dataclasses.replace(load_scenario(SCENARIO), duration_s=2.5)
