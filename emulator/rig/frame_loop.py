@@ -48,6 +48,10 @@ MIN_PERIOD_US, MAX_PERIOD_US = 100, 10_000  # 0.1 .. 10 ms
 START_LEAD_NS = 20_000_000  # first deadline after warm-up
 LOCKSTEP_REPEAT_S = 0.5  # lockstep: repeat the last measurement after this much silence
 LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking on it
+#: real time: a missing command counts against the controller only if it had at least
+#: (delay - FAIR_SLACK) periods between our measurement and the frame that wanted the
+#: answer; less than that (a frame started late, a catch-up burst) is the rig's overrun
+FAIR_SLACK = 0.25
 
 
 class RigError(ValueError):
@@ -60,7 +64,8 @@ class LinkHealth:
 
     accepted: int = 0  # telegrams that passed the checks and were queued
     valid: int = 0  # frames that ran on a fresh command
-    missing: int = 0  # frames that held the previous command
+    missing: int = 0  # frames that held the previous command (the controller's doing)
+    overrun_held: int = 0  # frames that held it because the rig left too little time
     watchdog_trips: int = 0
     rejected: Counter = field(default_factory=Counter)  # by TelegramError kind
     sequence: Counter = field(default_factory=Counter)  # duplicate, late, unexpected
@@ -70,7 +75,8 @@ class LinkHealth:
     def as_dict(self) -> dict[str, Any]:
         """Plain dictionary, for reports and JSON."""
         return {"accepted": self.accepted, "valid": self.valid, "missing": self.missing,
-                "expired": self.expired, "reordered": self.reordered,
+                "overrun_held": self.overrun_held, "expired": self.expired,
+                "reordered": self.reordered,
                 "watchdog_trips": self.watchdog_trips, "rejected": dict(self.rejected),
                 "sequence": dict(self.sequence)}
 
@@ -132,6 +138,7 @@ class Rig:
         self._last_payload = b""
         self.repeats = 0  # lockstep: measurements said again to a silent controller
         self._y = np.zeros(len(sm.measurements))
+        self._sent_ns = np.zeros(8, dtype=np.int64)  # when y_k went out, by k mod 8
 
     # --- one frame, without waiting ----------------------------------------------------
     def _send_measurement(self, k: int) -> None:
@@ -139,6 +146,7 @@ class Rig:
         payload = self.codec.encode(k, round(self.plant.time_s * 1e6), self.period_us, flags,
                                     self._y)
         self.link.send(payload)
+        self._sent_ns[k % len(self._sent_ns)] = self.clock.now_ns()
         self._last_payload = payload
         self._sent_frame = k
         self._flags = 0
@@ -180,8 +188,19 @@ class Rig:
         self.health.sequence[kind] += 1
         self._flags |= FLAG_SEQUENCE
 
-    def _take_command(self, k: int) -> int:
-        """The command for frame k (answering y_(k-d)); returns its period (0: default)."""
+    def _fair(self, want: int, start_ns: int | None) -> bool:
+        """Whether the controller had its time to answer y_want by ``start_ns`` (the
+        start of the frame that wants it); always so outside real time or with d = 0."""
+        if start_ns is None or self.mode != "realtime" or self.delay == 0:
+            return True
+        window = start_ns - int(self._sent_ns[want % len(self._sent_ns)])
+        return window >= (self.delay - FAIR_SLACK) * self.period_us * 1000
+
+    def _take_command(self, k: int, start_ns: int | None = None) -> int:
+        """The command for frame k (answering y_(k-d)); returns its period (0: default).
+
+        ``start_ns``: when frame k started (real time), to tell a controller that was
+        late from a rig that left it too little time (see FAIR_SLACK)."""
         want = k - self.delay
         answer = self._answers.pop(want, None)
         for stale in [s for s in self._answers if s < want]:
@@ -196,7 +215,10 @@ class Rig:
             self.tripped = False
             self.replies = self.mapper.replies(self._held)
             return answer[1]
-        if want >= 0:  # before the first answer can exist, holding is not a fault
+        if want >= 0 and not self._fair(want, start_ns):  # the rig's overrun, not theirs
+            self.health.overrun_held += 1
+            self._flags |= FLAG_COMMAND_HELD | FLAG_OVERRUN
+        elif want >= 0:  # before the first answer can exist, holding is not a fault
             self.health.missing += 1
             self._missing_run += 1
             self._flags |= FLAG_COMMAND_HELD
@@ -255,16 +277,17 @@ class Rig:
         self._row = np.zeros(len(cols))
         return cols
 
-    def start_recording(self, path: str, **meta: Any):
+    def start_recording(self, path: str, *, exclusive: bool = False, **meta: Any):
         """Record every frame from now on to ``path`` (time, y, u), headed with what a
-        reader needs to know of the run; returns the emulator.recording.recorder.Recorder."""
+        reader needs to know of the run; returns the emulator.recording.recorder.Recorder.
+        ``exclusive``: refuse (FileExistsError) rather than overwrite a file."""
         from emulator import __version__
         from emulator.recording.recorder import Recorder
 
         self.recorder = Recorder(path, self.record_columns(), {
             "profile": self.plant.params.source, "seed": self.seed, "mode": self.mode,
             "period_us": self.period_us, "version": __version__,
-            "started_at_s": self.plant.time_s, **meta})
+            "started_at_s": self.plant.time_s, **meta}, exclusive=exclusive)
         return self.recorder
 
     def start(self) -> None:
@@ -322,7 +345,7 @@ class Rig:
                     budget = (deadline + period_ns // 2 - clock.now_ns()) / 1e9
             self.link.poll()
             self._receive(self.link.take())
-            self._take_command(k)
+            self._take_command(k, start)
             self._step(self.period_us)
             self.stats.record(lateness, clock.now_ns() - start, period_ns)
             if self.mode == "afap" and self.frame % 64 == 0:

@@ -7,7 +7,12 @@ import numpy as np
 import pytest
 
 from emulator.link.loop import Manipulator
-from emulator.protocol.signal_map import FLAG_BAD_TELEGRAM, FLAG_COMMAND_HELD, FLAG_WATCHDOG
+from emulator.protocol.signal_map import (
+    FLAG_BAD_TELEGRAM,
+    FLAG_COMMAND_HELD,
+    FLAG_OVERRUN,
+    FLAG_WATCHDOG,
+)
 
 from .conftest import command, make_rig, run
 
@@ -183,3 +188,79 @@ def test_measurements_do_not_depend_on_the_same_exchange(params) -> None:
     bumped = run(go(30))
     assert base[:32] == bumped[:32]  # y_31 unaffected; the bump acts in frame 31
     assert base[32:] != bumped[32:]
+
+
+class TimedController:
+    """Answers y_k once ``compute`` of the rig's (fake) time has passed since y_k went
+    out, as a board that computes during its period; answers go out when it next hears
+    from the rig (its next measurement)."""
+
+    def __init__(self, rig, link, compute_ns: int, silent_from: int | None = None) -> None:
+        self.rig, self.link, self.compute_ns = rig, link, compute_ns
+        self.silent_from = silent_from
+        self.pending: list[tuple[int, int]] = []  # (due, sequence)
+        self.flags: list[int] = []
+
+    def deliver(self, payload: bytes) -> None:
+        m = msgpack.unpackb(payload)
+        now = self.rig.clock.now_ns()
+        self.flags.append(m[4])
+        if self.silent_from is None or m[1] < self.silent_from:
+            self.pending.append((now + self.compute_ns, m[1]))
+        for due, seq in [p for p in self.pending if p[0] <= now]:
+            self.link.send(command(self.rig, seq))
+            self.pending.remove((due, seq))
+
+
+class Stall:
+    """A driver program that stalls the rig's (fake) clock once, after one frame."""
+
+    def __init__(self, after_frame: int, stall_ns: int) -> None:
+        self.after_frame, self.stall_ns = after_frame, stall_ns
+
+    def update(self, rig) -> None:
+        if rig.frame == self.after_frame:
+            rig.clock.advance(self.stall_ns)
+
+
+async def _timed_rig(params, compute_ns: int, stall: Stall | None = None,
+                     silent_from: int | None = None):
+    from emulator.link import open_link
+    from emulator.rig.clock import FakeClock
+    from emulator.rig.frame_loop import Rig
+
+    rig_link, ctl_link = open_link("loop://timed"), open_link("loop://timed")
+    await rig_link.open()
+    await ctl_link.open()
+    rig = Rig(params, rig_link, mode="realtime", clock=FakeClock(), watchdog_frames=3)
+    ctl = TimedController(rig, ctl_link, compute_ns, silent_from)
+    ctl_link._deliver = ctl.deliver
+    rig.program = stall
+    await rig.run(frames=300)
+    rig_link.close()
+    ctl_link.close()
+    return rig, ctl
+
+
+def test_a_rig_stall_is_not_blamed_on_a_punctual_controller(params) -> None:
+    # the controller needs half a period; after a 5 ms stall the rig runs four frames
+    # back to back (catch-up) and gives it no time: those are the rig's overruns
+    rig, ctl = run(_timed_rig(params, compute_ns=500_000, stall=Stall(100, 5_000_000)))
+    assert rig.health.watchdog_trips == 0 and not rig.tripped
+    assert rig.health.missing == 0
+    assert rig.health.overrun_held == 4  # frames 102..105 wanted answers not yet due
+    assert all(f & FLAG_OVERRUN for f in ctl.flags[102:106])  # the board is told
+    assert not any(f & FLAG_OVERRUN for f in ctl.flags[:101] + ctl.flags[107:])
+
+
+def test_a_controller_too_slow_for_its_period_still_trips_the_watchdog(params) -> None:
+    # 1.5 periods of computing with the rig on time: every answer misses its frame
+    rig, _ = run(_timed_rig(params, compute_ns=1_500_000))
+    assert rig.health.overrun_held == 0
+    assert rig.health.watchdog_trips >= 1 and rig.health.missing > 3
+
+
+def test_a_controller_that_falls_silent_trips_the_watchdog(params) -> None:
+    rig, _ = run(_timed_rig(params, compute_ns=500_000, silent_from=150))
+    assert rig.tripped and rig.health.watchdog_trips == 1
+    assert rig.health.missing >= 4 and rig.health.overrun_held == 0
