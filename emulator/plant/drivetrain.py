@@ -14,9 +14,6 @@ in both, so an axle is one contact with twice a wheel's load and stiffness.
 
 Near standstill the creep denominator is regularised, s = w / sqrt(v^2 + v_ref^2), so
 the force stays finite and smooth when the train starts or rolls back.
-
-Maximum adhesion by Curtius & Kniffler (Elektrische Bahnen 20, 1950), dry rail:
-mu_max = 7.5 / (v + 44) + 0.161, v in km/h.
 """
 
 from __future__ import annotations
@@ -29,11 +26,6 @@ from .jit import compiled, compiled_inline
 POLACH_DRY = (1.0, 0.4, 0.55, 0.4, 0.6)
 POLACH_WET = (0.3, 0.1, 0.30, 0.4, 0.2)
 RAIL_CONDITIONS = {"dry": POLACH_DRY, "wet": POLACH_WET}
-
-
-def curtius_kniffler(speed_kmh: float) -> float:
-    """Maximum adhesion coefficient on dry rail, mu = 7.5/(v + 44) + 0.161, v in km/h."""
-    return 7.5 / (speed_kmh + 44.0) + 0.161
 
 
 @compiled
@@ -93,12 +85,3 @@ def wheel_torque(motor_torque: float, motor_speed: float, gear: float, eff: floa
     if motor_torque * motor_speed >= 0.0:
         return gear * eff * motor_torque
     return gear * motor_torque / eff
-
-
-def wheel_speed_to_motor_frequency(speed_mps: float, wheel_diameter_m: float, gear: float,
-                                   pole_pairs: int) -> float:
-    """Stator electrical frequency at zero slip for a train speed, Hz.
-
-    f = p * i * v / (pi D): wheel revolutions v/(pi D), times gear, times pole pairs.
-    """
-    return pole_pairs * gear * speed_mps / (math.pi * wheel_diameter_m)

@@ -18,16 +18,6 @@ import math
 
 from .jit import compiled, compiled_inline
 
-#: 1 lbf per short ton in N per tonne: 4.4482216 N / 0.90718474 t
-LBF_PER_SHORT_TON_IN_N_PER_T = 4.4482216152605 / 0.90718474
-
-
-@compiled_inline
-def davis_resistance(v: float, a: float, b: float, c: float) -> float:
-    """Magnitude of Davis running resistance A + B|v| + C v^2 at speed v, N."""
-    av = abs(v)
-    return a + b * av + c * av * av
-
 
 @compiled_inline
 def gradient_force(mass: float, gravity: float, gradient: float) -> float:
@@ -64,15 +54,3 @@ def step_speed(v: float, drive: float, static: float, b: float, c: float, m_eff:
         # the friction forces stopped the train within the step
         return 0.0, resist
     return v_new, resist
-
-
-def davis_passenger_imperial_n_per_t(speed_mph: float, tons_per_axle: float, axles: int,
-                                     frontal_area_ft2: float) -> float:
-    """Davis passenger-car resistance converted to N per tonne of train.
-
-    R = 1.3 + 29/w + 0.03 V + 0.00034 A V^2 / (w n) in lbf per short ton (w short tons
-    per axle, n axles, V mph, A ft^2); Davis, General Electric Review 29 (1926).
-    """
-    lbf_per_ton = (1.3 + 29.0 / tons_per_axle + 0.03 * speed_mph
-                   + 0.00034 * frontal_area_ft2 * speed_mph ** 2 / (tons_per_axle * axles))
-    return lbf_per_ton * LBF_PER_SHORT_TON_IN_N_PER_T

@@ -100,7 +100,7 @@ def test_the_shipped_layout_rebuilds_inside_the_folder(recorded, tmp_path) -> No
     assert meta["machine"]["relative"].startswith("../")  # trainsets/ -> machines/
     where = tmp_path / "rebuilt"
     where.mkdir()
-    scenario, trainset = _rebuild(meta, where)
+    scenario, _trainset = _rebuild(meta, where)
     written = sorted(p for p in where.rglob("*") if p.is_file())
     assert len(written) == 3
     assert all(p.resolve().is_relative_to(where.resolve()) for p in written)

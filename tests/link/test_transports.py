@@ -120,19 +120,53 @@ async def _rig_receiving(params, datagrams: list[bytes], from_peer: bool) -> Rig
     return rig
 
 
-@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.one_of(
-    st.binary(min_size=1, max_size=120),
-    st.lists(st.one_of(st.integers(-2**40, 2**40), st.floats(allow_nan=True),
-                       st.text(max_size=4), st.none(), st.booleans()),
-             max_size=30).map(lambda items: msgpack.packb([1, *items])),
-), min_size=1, max_size=60))
-def test_fuzzed_datagrams_from_another_process_are_counted(params, datagrams) -> None:
+HOSTILE_VALUE = st.one_of(st.integers(-2**40, 2**40), st.floats(allow_nan=True),
+                         st.text(max_size=4), st.none(), st.booleans())
+
+
+@settings(max_examples=8, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(data=st.data())
+def test_fuzzed_datagrams_from_another_process_are_counted(params, data) -> None:
+    # telegrams of the protocol's own version and length, with hostile header fields and
+    # values, so that the rig's value checks are reached; beside them raw bytes and
+    # arrays of any length
+    sm = build_signal_map(params)
+    n = len(sm.commands)
+    telegram = st.tuples(st.integers(0, 2**32), st.integers(0, 2**32), st.integers(0, 20_000),
+                         st.integers(0, 255), st.lists(HOSTILE_VALUE, min_size=n, max_size=n))
+    well_formed = telegram.map(lambda t: msgpack.packb([sm.version, *t[:4], *t[4]]))
+    other = st.one_of(st.binary(min_size=1, max_size=120),
+                      st.lists(HOSTILE_VALUE, max_size=30).map(msgpack.packb))
+    tagged = st.one_of(well_formed.map(lambda d: (True, d)), other.map(lambda d: (False, d)))
+    drawn = data.draw(st.lists(tagged, min_size=1, max_size=60))
+    datagrams = [d for _, d in drawn]
     rig = asyncio.run(_rig_receiving(params, datagrams, from_peer=True))
     h = rig.health
     assert rig.link.stats.received == len(datagrams)
     # every datagram is accounted for exactly once: rejected, a sequence error, or accepted
     assert sum(h.rejected.values()) + sum(h.sequence.values()) + h.accepted == len(datagrams)
+    # the well-formed ones got past the version and length checks to the value checks
+    others = sum(1 for ok, _ in drawn if not ok)
+    assert h.rejected["version"] + h.rejected["length"] + h.rejected["malformed"] <= others
+
+
+def test_a_well_formed_telegram_with_a_nan_is_rejected_by_its_value(params) -> None:
+    sm = build_signal_map(params)
+    values = [0] * len(sm.commands)
+    values[sm.index("command", "INV-A1.duty_a")] = float("nan")
+    good_header = [sm.version, 0, 0, 0, 0]
+    rig = asyncio.run(_rig_receiving(params, [msgpack.packb(good_header + values)],
+                                     from_peer=True))
+    assert dict(rig.health.rejected) == {"non_finite": 1}
+
+
+def test_oversized_datagrams_are_counted_not_fatal(params) -> None:
+    sm = build_signal_map(params)
+    huge = msgpack.packb([sm.version, 0, 0, 0, 0, *([0.5] * 4000)])  # ~36 kB, far too long
+    rig = asyncio.run(_rig_receiving(params, [huge, b"\x00" * 60_000], from_peer=True))
+    assert rig.link.stats.received == 2
+    assert sum(rig.health.rejected.values()) == 2 and rig.health.accepted == 0
 
 
 def test_datagrams_from_a_stranger_are_dropped(params) -> None:

@@ -1,7 +1,7 @@
-"""Wheel-rail adhesion: Curtius-Kniffler and Polach's creep-force model.
+"""Wheel-rail adhesion: Polach's creep-force model, the compiled function the kernel calls.
 
-Sources: Curtius & Kniffler, Elektrische Bahnen 20 (1950); Polach, Wear 258 (2005)
-992-1000, parameter sets from REFERENCES.md [memory, corroborated].
+Source: Polach, Wear 258 (2005) 992-1000, parameter sets from REFERENCES.md [memory,
+corroborated].
 """
 
 from __future__ import annotations
@@ -15,9 +15,7 @@ from hypothesis import strategies as st
 from emulator.plant.drivetrain import (
     POLACH_DRY,
     POLACH_WET,
-    curtius_kniffler,
     polach_force,
-    wheel_speed_to_motor_frequency,
 )
 
 Q = 2 * 75e3  # axle load, N
@@ -28,10 +26,11 @@ def force(w: float, v: float, params=POLACH_DRY, v_ref: float = 1e-6) -> tuple[f
     return polach_force(w, v, Q, K, *params, v_ref)
 
 
-@pytest.mark.parametrize(("speed_kmh", "mu"), [(0, 0.3314), (100, 0.2131), (200, 0.1917)])
-def test_curtius_kniffler_values(speed_kmh: float, mu: float) -> None:
-    # REFERENCES.md [derived] from mu = 7.5/(v + 44) + 0.161
-    assert curtius_kniffler(speed_kmh) == pytest.approx(mu, abs=1e-4)
+@pytest.fixture(scope="module", autouse=True)
+def compiled_before_the_deadline():
+    """Compile (or load) the contact function once, so that Hypothesis's per-example
+    deadline times the function and not numba's first call (the tests ran alone failed)."""
+    force(0.1, 1.0)
 
 
 @pytest.mark.parametrize("params", [POLACH_DRY, POLACH_WET])
@@ -75,11 +74,3 @@ def test_force_is_odd_and_bounded_by_mu0_q(w: float, v: float) -> None:
     f_neg, _ = force(-w, v, v_ref=0.1)
     assert f_pos == pytest.approx(-f_neg)
     assert 0.0 <= f_pos <= POLACH_DRY[2] * Q * (1 + 1e-12)
-
-
-def test_speed_to_frequency_through_gear_and_wheel() -> None:
-    # f = p i v / (pi D): at 100 km/h, D = 0.85 m, i = 4.1, p = 2 (common practice)
-    v = 100 / 3.6
-    wheel_rpm = v / (math.pi * 0.85) * 60
-    expected = 2 * (wheel_rpm * 4.1) / 60  # motor r/min times pole pairs / 60
-    assert wheel_speed_to_motor_frequency(v, 0.85, 4.1, 2) == pytest.approx(expected)

@@ -15,6 +15,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+import itertools
 import math
 
 import numpy as np
@@ -135,23 +137,38 @@ def test_tuned_filter_removes_90_percent_of_the_ripple(profile) -> None:
 
 
 def test_blocked_bridge_charges_to_the_secondary_peak_through_the_precharge_resistor() -> None:
-    plant = Plant(load_trainset(TRAINSET))
+    # A peak rectifier charging through a resistor from a sine source approaches
+    # U_peak - 2 V_T from below (two diodes conduct) and never passes it; the conduction
+    # angle shrinks as it nears it, so it gets there slowly (any power-electronics text,
+    # rectifier with capacitive filter). Bleeder and diode slope resistance are removed
+    # so that the asymptote is exactly U_peak - 2 V_T; harmonics are switched off.
+    shipped = load_trainset(TRAINSET)
+    params = dataclasses.replace(
+        shipped, dc_links=tuple(dataclasses.replace(d, discharge_ohm=0.0)
+                                for d in shipped.dc_links),
+        line_converter=dataclasses.replace(shipped.line_converter, device_slope_ohm=0.0))
+    plant = Plant(params)
     plant.harmonics[:] = 0.0
     line = LineCommands.open(plant.n_line_converters, plant.n_links)
     line.breaker = True
     line.precharge[:] = True
     cmd = Commands(np.full((plant.n_inverters, 3), 0.5), np.zeros(plant.n_inverters, bool), line)
-    peak_current = 0.0
-    for k in range(3000):
-        if k == 1500:
-            line.line_contactor[:] = True
-        plant.advance(cmd)
-        i_sec = np.abs(plant.read("line_converter.current_a"))
-        peak_current = max(peak_current, float(i_sec.max()))
-    tr, lc = plant.params.transformer, plant.params.line_converter
+    tr, lc = params.transformer, params.line_converter
     u_peak = tr.secondary_voltage_v * math.sqrt(2)
-    expected = u_peak - 2 * lc.device_threshold_v  # two diodes conduct
-    assert plant.read("dc_link.voltage_v") == pytest.approx([expected] * 2, rel=0.02)
+    asymptote = u_peak - 2 * lc.device_threshold_v
+    peak_current, highest, gaps = 0.0, 0.0, []
+    for k in range(6000):
+        plant.advance(cmd)
+        u = plant.read("dc_link.voltage_v")
+        highest = max(highest, float(u.max()))
+        peak_current = max(peak_current, float(np.abs(plant.read("line_converter.current_a"))
+                                               .max()))
+        if k % 1000 == 999:
+            gaps.append(asymptote - float(u.min()))
+    assert highest <= asymptote * (1 + 1e-12)  # never past the two diode drops
+    assert all(b < a for a, b in itertools.pairwise(gaps))  # still approaching
+    assert gaps[-1] < lc.device_threshold_v  # nearer than one drop: drops that were not
+    # modelled (or only one) would have put it above the asymptote
     assert peak_current <= u_peak / lc.precharge_ohm
 
 
