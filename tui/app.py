@@ -24,6 +24,9 @@ from tui.panels import GroupTable, MotorTable, TracePanel, TrainPanel, paint, st
 
 REFRESH_S = 0.1  # views redraw at 10 Hz; telemetry arrives at ~30 Hz into the history
 RETRY_S = 1.0
+#: what a message of the wrong shape raises while it is read or drawn: the dashboard
+#: says so in its log and keeps the last good snapshot, never a traceback
+MALFORMED = (KeyError, TypeError, ValueError, AttributeError, IndexError)
 DEMAND_STEP = 0.1
 
 
@@ -85,6 +88,8 @@ class RigDashboard(App):
         self.attached = False
         self.history = History()
         self.log_lines: list[str] = []  # what the event log shows, as plain text
+        self.good_snap: dict[str, Any] | None = None  # the last snapshot drawn whole
+        self.malformed = 0  # messages of the wrong shape, dropped
 
     def compose(self) -> ComposeResult:
         yield Static(id="status")
@@ -125,10 +130,22 @@ class RigDashboard(App):
                     return
                 await asyncio.sleep(RETRY_S)
                 continue
-            self._attached(hello)
+            try:
+                self._attached(hello)
+            except MALFORMED as exc:
+                self.client.close()
+                self._detached(f"the rig's hello is malformed ({exc!r})")
+                self._log("dashboard", f"not attached: the hello is malformed ({exc!r})")
+                if not self.retry:
+                    return
+                await asyncio.sleep(RETRY_S)
+                continue
             try:
                 async for message in self.client.messages():
-                    self._take(message)
+                    try:
+                        self._take(message)
+                    except MALFORMED as exc:
+                        self._malformed(message, exc)
             except RigConnectionError as exc:
                 self._log("dashboard", str(exc))
             self.client.close()
@@ -154,16 +171,24 @@ class RigDashboard(App):
         self.attached = False
 
     def _take(self, message: dict[str, Any]) -> None:
-        kind = message.get("kind")
+        kind = message["kind"]
         if kind == "telemetry":
+            self.history.add(message)  # raises on a malformed one before it is kept
             self.snap = message
-            self.history.add(message)
         elif kind == "event":
             self._event(message)
         elif kind == "reply":
             if not message.get("ok"):
                 self.notify(message.get("text", "refused"), severity="error")
             self._log("reply", message.get("text", ""))
+
+    def _malformed(self, message: Any, exc: Exception) -> None:
+        """Drop a message of the wrong shape; say so in the log (the first of a run)."""
+        self.malformed += 1
+        if self.malformed == 1 or self.malformed % 100 == 0:
+            kind = message.get("kind") if isinstance(message, dict) else type(message).__name__
+            self._log("dashboard", f"malformed {kind} from the rig dropped ({exc!r}); "
+                      f"{self.malformed} so far")
 
     def _event(self, e: dict[str, Any]) -> None:
         self._log(e.get("type", "event"), e.get("text", ""), e.get("t_s"))
@@ -178,11 +203,16 @@ class RigDashboard(App):
 
     # --- drawing ----------------------------------------------------------------------
     def refresh_views(self) -> None:
-        """Redraw every view from the latest snapshot (10 Hz)."""
+        """Redraw every view from the latest snapshot (10 Hz); a snapshot that cannot be
+        drawn is dropped for the last good one."""
         try:
             self._redraw()
+            self.good_snap = self.snap
         except NoMatches:  # a tick between the screen's teardown and the timer's end
             return
+        except MALFORMED as exc:
+            self._malformed(self.snap, exc)
+            self.snap = self.good_snap
 
     def _redraw(self) -> None:
         paint(self.query_one("#status", Static), status_text(self.hello, self.snap,

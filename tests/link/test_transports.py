@@ -174,3 +174,86 @@ def test_datagrams_from_a_stranger_are_dropped(params) -> None:
                                      from_peer=False))
     assert rig.link.stats.foreign_dropped == 20
     assert rig.link.stats.received == 0
+
+
+async def _rig_with_a_board_that_dies(params, tmp_path, mode: str, answered: int,
+                                      wall_s: float) -> tuple[Rig, int]:
+    """The board answers ``answered`` measurements over UDP and exits; the rig runs on
+    for ``wall_s`` seconds of wall time. Returns the rig and the frame the board left at."""
+    from emulator.rig.clock import MonotonicClock
+
+    rig_port, board_port = free_port(), free_port()
+    link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}")
+    await link.open()
+    # 5 ms periods: a busy 2-core machine keeps up, so only the board's death trips
+    rig = Rig(params, link, mode=mode, period_s=5e-3, watchdog_frames=10,
+              clock=MonotonicClock(spin_ns=0))
+    board = await asyncio.create_subprocess_exec(
+        sys.executable, str(BOARD), str(signal_map_file(params, tmp_path)), "udp",
+        f"127.0.0.1:{rig_port}", f"127.0.0.1:{board_port}", str(answered),
+        stdout=asyncio.subprocess.DEVNULL)
+    stop = asyncio.Event()
+    running = asyncio.create_task(rig.run(stop=stop))
+    await asyncio.wait_for(board.wait(), 120)
+    left_at = rig.frame
+    await asyncio.sleep(wall_s)
+    stop.set()
+    await asyncio.wait_for(running, 30)  # the rig ends cleanly, no exception
+    link.close()
+    rig.clock.close()
+    return rig, left_at
+
+
+def test_realtime_watchdog_when_the_udp_peer_dies(params, tmp_path) -> None:
+    rig, left_at = asyncio.run(_rig_with_a_board_that_dies(params, tmp_path, "realtime",
+                                                           300, 1.0))
+    assert rig.frame > left_at + 50  # plant time went on without the board
+    assert rig.tripped and rig.health.watchdog_trips >= 1
+    assert not rig.plant.iu[:, 3].any()  # every inverter's gates blocked
+
+
+def test_lockstep_waits_for_a_udp_peer_that_died(params, tmp_path) -> None:
+    # in lockstep the board is the clock: without it plant time stands still, the rig
+    # says its last measurement again now and then, and nothing trips
+    rig, left_at = asyncio.run(_rig_with_a_board_that_dies(params, tmp_path, "lockstep",
+                                                           300, 1.2))
+    assert rig.frame == left_at == 300
+    assert rig.repeats >= 2 and rig.health.watchdog_trips == 0
+
+
+def test_hostile_bytes_on_the_serial_line_are_counted_and_the_rig_goes_on(params) -> None:
+    # noise, a damaged frame, a run with no delimiter longer than the cap, a frame that is
+    # not msgpack, then good command telegrams: the rig counts each kind and takes the good
+    from emulator.link.framing import encode_frame
+
+    from .conftest import command
+
+    async def go():
+        master, slave = os.openpty()
+        link = open_link(f"serial://{os.ttyname(slave)}?baud=921600")
+        await link.open()
+        rig = Rig(params, link, mode="realtime", clock=FakeClock())
+        good = encode_frame(command(rig, 0))
+        bad_crc = bytearray(good)
+        bad_crc[3] ^= 0x40
+        hostile = [os.urandom(300), bytes(bad_crc), b"\x07" * 6000 + b"\x00",
+                   encode_frame(b"\xc1\xc1 not msgpack"), b"\x00\x00\x00"]
+        try:
+            for chunk in hostile:
+                os.write(master, chunk)
+                await rig.run(frames=rig.frame + 20)
+            for k in range(rig.frame, rig.frame + 50):  # answers to what the rig sends
+                os.write(master, encode_frame(command(rig, k)))
+                await rig.run(frames=k + 1)
+                await asyncio.sleep(0.002)
+        finally:
+            link.close()
+            os.close(master)
+            os.close(slave)
+        return rig
+
+    rig = asyncio.run(go())
+    f = rig.link.stats.framing
+    assert f.crc_errors + f.cobs_errors >= 2 and f.oversized >= 1
+    assert rig.health.rejected["malformed"] >= 1
+    assert rig.health.accepted >= 20  # the good telegrams after the noise were taken

@@ -130,3 +130,76 @@ def test_roeckl_curve_resistance() -> None:
     # Röckl's formula from memory: 650 / (R - 55) N/kN for R >= 300 m (standard gauge)
     assert curve_resistance_per_mille(600.0) == pytest.approx(650.0 / 545.0)
     assert curve_resistance_per_mille(250.0) == pytest.approx(500.0 / 220.0)
+
+
+def _falling() -> Recording:
+    """A coasting-down speed: v = 20 exp(-t / 0.4) m/s, position its integral."""
+    t = np.arange(1, 2001) * 1e-3
+    v = 20.0 * np.exp(-t / 0.4)
+    x = 8.0 * (1 - np.exp(-t / 0.4))  # integral of v
+    torque = -300.0 * np.sin(2 * np.pi * 3 * t)  # braking torque, negative first
+    code = np.zeros_like(t)
+    data = np.column_stack([t, v, x, torque, code])
+    cols = ["time_s", "p.train.speed_mps", "p.train.position_m", "p.motor.torque_nm[0]",
+            "u.tcu.event_code"]
+    return Recording({}, cols, data, True, marks=[])
+
+
+def test_falls_to_by_time_and_by_position() -> None:
+    rec = _falling()
+    t_hit = 0.4 * np.log(20.0 / 5.0)  # 20 exp(-t/0.4) = 5 m/s at 0.5545 s
+    x_hit = 8.0 * (1 - 5.0 / 20.0)  # there the train is at 6 m
+    r = evaluate(CheckSpec("f", "falls_to", signal="train.speed_mps", value=5.0, by_s=0.56),
+                 rec, {})
+    assert r.passed
+    assert float(r.measured.split()[1]) == pytest.approx(t_hit, abs=6e-3)  # 2 decimals
+    assert not evaluate(CheckSpec("f", "falls_to", signal="train.speed_mps", value=5.0,
+                                  by_s=0.54), rec, {}).passed
+    assert evaluate(CheckSpec("f", "falls_to", signal="train.speed_mps", value=5.0,
+                              by_m=x_hit + 0.05), rec, {}).passed
+    assert not evaluate(CheckSpec("f", "falls_to", signal="train.speed_mps", value=5.0,
+                                  by_m=x_hit - 0.05), rec, {}).passed
+    r = evaluate(CheckSpec("f", "falls_to", signal="train.speed_mps", value=-1.0, by_s=2.0),
+                 rec, {})
+    assert not r.passed and r.measured == "not reached"
+
+
+def test_abs_checks_the_magnitude() -> None:
+    rec = _falling()
+    signed = evaluate(CheckSpec("a", "max", signal="motor.torque_nm", value=250.0), rec, {})
+    magnitude = evaluate(CheckSpec("a", "max", signal="motor.torque_nm", value=250.0,
+                                   absolute=True), rec, {})
+    assert signed.passed is False  # +300 N m half a period later
+    assert magnitude.passed is False
+    assert float(magnitude.measured) == pytest.approx(np.abs(rec.data[:, 3]).max(), rel=1e-3)
+    assert evaluate(CheckSpec("a", "min", signal="motor.torque_nm", value=0.0, absolute=True),
+                    rec, {}).passed  # |x| is never below zero, x is
+
+
+def test_a_position_window_judges_only_the_frames_inside_it() -> None:
+    rec = _falling()
+    x, v = rec.column("p.train.position_m"), rec.column("p.train.speed_mps")
+    inside = (x >= 2.0) & (x <= 4.0)
+    r = evaluate(CheckSpec("w", "max", signal="train.speed_mps", value=100.0, from_m=2.0,
+                           to_m=4.0), rec, {})
+    assert float(r.measured) == pytest.approx(v[inside].max(), rel=1e-3)
+    assert r.window == (rec.column("time_s")[inside][0], rec.column("time_s")[inside][-1])
+
+
+def test_an_empty_window_fails_saying_so() -> None:
+    rec = _falling()
+    for spec in (CheckSpec("e", "max", signal="train.speed_mps", value=100.0, from_m=50.0),
+                 CheckSpec("e", "min", signal="train.speed_mps", value=0.0, from_s=10.0),
+                 CheckSpec("e", "not_raised", codes=(70,), from_s=5.0, to_s=6.0)):
+        r = evaluate(spec, rec, {})
+        assert not r.passed and "no recorded frame" in r.detail
+
+
+def test_an_event_that_never_happened() -> None:
+    rec = _falling()  # the controller reported nothing
+    raised = evaluate(CheckSpec("e", "raised", codes=(70, 10)), rec, {})
+    assert not raised.passed and raised.measured == "none"
+    assert evaluate(CheckSpec("e", "not_raised", codes=(70, 10)), rec, {}).passed
+    late = evaluate(CheckSpec("e", "max", signal="train.speed_mps", value=100.0,
+                              after="brake"), rec, {})
+    assert not late.passed and "never happened" in late.detail
