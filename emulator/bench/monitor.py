@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 
 DASHBOARD = ("import sys; from tui.app import RigDashboard; "
-             "RigDashboard(sys.argv[1]).run(headless=True)")
+             "RigDashboard(sys.argv[1], retry=False).run(headless=True)")
 
 
 def _window(stats, first: int, last: int) -> dict[str, float]:

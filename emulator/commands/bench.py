@@ -28,6 +28,10 @@ def add_arguments(bench: argparse.ArgumentParser) -> None:
                        help="benchmark the rig's pacing and UDP link instead of the plant")
     bench.add_argument("--seconds", type=float, default=10.0,
                        help="length of each timed run of --link and --monitor")
+    bench.add_argument("--soak", type=float, default=None, metavar="MINUTES",
+                       help="run the demo rig in real time this long with a dashboard "
+                       "attached: memory growth, late frames (and the host's own stalls), "
+                       "counters")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -38,6 +42,8 @@ def run(args: argparse.Namespace) -> int:
 
     params = load_trainset(args.profile)
     warm_up(params, say=console.print)
+    if args.soak is not None:
+        return _print_soak(args, params.name)
     if args.monitor:
         from emulator.bench.monitor import monitor_benchmark
         from emulator.profiles.reader import resolve_profile
@@ -93,4 +99,37 @@ def run(args: argparse.Namespace) -> int:
                   f"{figures['solve_ivp_frame_us_median']:.0f} us")
     table.add_row("solve_ivp / plant", f"{figures['solve_ivp_ratio']:.0f}x")
     Console().print(table)
+    return 0
+
+
+def _print_soak(args: argparse.Namespace, name: str) -> int:
+    from emulator.bench.soak import soak_benchmark
+    from emulator.profiles.reader import resolve_profile
+
+    console.print(f"soak: {name}, {args.soak:g} min in real time with a dashboard attached")
+    figures = soak_benchmark(resolve_profile(args.profile), minutes=args.soak)
+    if args.json:
+        print(json.dumps(figures))
+        return 0
+    samples = Table(title="Samples")
+    columns = ("t_s", "rig_rss_mb", "dashboard_rss_mb", "late_frames", "held",
+               "watchdog_trips", "clients", "legs")
+    for col in columns:
+        samples.add_column(col.replace("_", " "), justify="right")
+    for s in figures["samples"]:
+        samples.add_row(*(str(s[c]) for c in columns))
+    out = Console()
+    out.print(samples)
+    table = pairs_table(f"Soak: {name}, {figures['minutes']:g} min, clock {figures['clock']}, "
+                        f"dashboard {figures['dashboard']}")
+    for key in ("frames", "plant_time_s", "legs_driven", "rig_rss_mb_first_last",
+                "rig_rss_growth_mb_per_h", "dashboard_rss_growth_mb_per_h", "late_frames",
+                "late_frames_during_host_stalls", "late_frames_rig_alone", "host_stalls",
+                "lateness_us_median", "lateness_us_p99", "lateness_us_max", "watchdog_trips",
+                "held", "overrun_held"):
+        value = figures[key]
+        table.add_row(key.replace("_", " "), f"{value:.2f}" if isinstance(value, float)
+                      else str(value))
+    table.add_row("monitor", ", ".join(f"{k} {v}" for k, v in figures["monitor"].items()))
+    out.print(table)
     return 0
