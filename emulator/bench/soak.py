@@ -94,7 +94,19 @@ def _growth_mb_per_h(t_s: np.ndarray, mb: np.ndarray, skip_s: float = 60.0) -> f
     return float(np.polyfit(t_s[keep] / 3600.0, mb[keep], 1)[0])
 
 
-async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool) -> dict[str, Any]:
+def _free_udp_ports(n: int) -> list[int]:
+    import socket
+
+    ports = []
+    for _ in range(n):
+        with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
+            s.bind(("127.0.0.1", 0))
+            ports.append(s.getsockname()[1])
+    return ports
+
+
+async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool,
+                controller: str) -> dict[str, Any]:
     from emulator.controller.inprocess import attach_reference
     from emulator.link import open_link
     from emulator.monitor.endpoint import Monitor
@@ -103,10 +115,21 @@ async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool) -> di
     from emulator.rig.frame_loop import Rig
 
     where = Path(tempfile.mkdtemp(prefix="railrig-soak-"))
-    link = open_link("loop://bench-soak")
-    await link.open()
-    rig = Rig(load_trainset(profile), link, mode="realtime", clock=MonotonicClock())
-    await attach_reference("bench-soak", rig, profile)
+    board = None
+    if controller == "process":  # as a board: the reference controller over UDP
+        rig_port, ctl_port = _free_udp_ports(2)
+        link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{ctl_port}")
+        board = subprocess.Popen(
+            [sys.executable, "-m", "emulator.cli", "controller", "--profile", str(profile),
+             "--link", f"udp://127.0.0.1:{ctl_port}?peer=127.0.0.1:{rig_port}",
+             "--idle-timeout", "5"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        await link.open()
+        rig = Rig(load_trainset(profile), link, mode="realtime", clock=MonotonicClock())
+    else:
+        link = open_link("loop://bench-soak")
+        await link.open()
+        rig = Rig(load_trainset(profile), link, mode="realtime", clock=MonotonicClock())
+        await attach_reference("bench-soak", rig, profile)
     driver = StationToStation()
     rig.program = driver
     monitor = Monitor(rig, str(where / "monitor.sock"), record_dir=where / "recordings")
@@ -157,6 +180,9 @@ async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool) -> di
             dashboard.kill()
         probe.send_signal(signal.SIGTERM)
         out, _ = probe.communicate(timeout=10)
+        if board is not None:
+            board.terminate()
+            board.wait(10)
         monitor.close()
         link.close()
         rig.clock.close()
@@ -172,7 +198,7 @@ async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool) -> di
     t = np.array([s["t_s"] for s in samples])
     timing = rig.stats.summary()
     return {
-        "minutes": minutes, "clock": rig.clock.method,
+        "minutes": minutes, "clock": rig.clock.method, "controller": controller,
         "dashboard": "in a pseudo-terminal" if pty else "headless",
         "frames": rig.stats.frames, "plant_time_s": rig.plant.time_s,
         "legs_driven": driver.legs,
@@ -205,8 +231,10 @@ def _dashboard_pid(child: subprocess.Popen) -> int | None:
 
 
 def soak_benchmark(profile: Path, minutes: float = 10.0, sample_s: float = 30.0,
-                   pty: bool | None = None) -> dict[str, Any]:
-    """Run the soak; the dashboard in a pseudo-terminal if ``script`` is there."""
+                   pty: bool | None = None, controller: str = "inprocess") -> dict[str, Any]:
+    """Run the soak; the dashboard in a pseudo-terminal if ``script`` is there; the
+    reference controller in the rig's process ("inprocess") or in its own over UDP
+    ("process", as a board: the rig's frame then holds only the rig's own work)."""
     if pty is None:
         pty = shutil.which("script") is not None
-    return asyncio.run(_soak(profile, minutes, sample_s, pty))
+    return asyncio.run(_soak(profile, minutes, sample_s, pty, controller))

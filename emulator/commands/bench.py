@@ -32,6 +32,9 @@ def add_arguments(bench: argparse.ArgumentParser) -> None:
                        help="run the demo rig in real time this long with a dashboard "
                        "attached: memory growth, late frames (and the host's own stalls), "
                        "counters")
+    bench.add_argument("--soak-controller", choices=("inprocess", "process"),
+                       default="inprocess", help="--soak: the reference controller in the "
+                       "rig's process, or in its own over UDP as a board would be")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -107,7 +110,8 @@ def _print_soak(args: argparse.Namespace, name: str) -> int:
     from emulator.profiles.reader import resolve_profile
 
     console.print(f"soak: {name}, {args.soak:g} min in real time with a dashboard attached")
-    figures = soak_benchmark(resolve_profile(args.profile), minutes=args.soak)
+    figures = soak_benchmark(resolve_profile(args.profile), minutes=args.soak,
+                             controller=args.soak_controller)
     if args.json:
         print(json.dumps(figures))
         return 0
@@ -121,7 +125,7 @@ def _print_soak(args: argparse.Namespace, name: str) -> int:
     out = Console()
     out.print(samples)
     table = pairs_table(f"Soak: {name}, {figures['minutes']:g} min, clock {figures['clock']}, "
-                        f"dashboard {figures['dashboard']}")
+                        f"controller {figures['controller']}, dashboard {figures['dashboard']}")
     for key in ("frames", "plant_time_s", "legs_driven", "rig_rss_mb_first_last",
                 "rig_rss_growth_mb_per_h", "dashboard_rss_growth_mb_per_h", "late_frames",
                 "late_frames_during_host_stalls", "late_frames_rig_alone", "host_stalls",
