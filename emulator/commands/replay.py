@@ -112,10 +112,15 @@ def run(args: argparse.Namespace) -> int:
     with tempfile.TemporaryDirectory() as tmp:
         try:
             scenario_path, trainset = _rebuild(meta, Path(tmp))
+            seed = meta["seed"]
+            if isinstance(seed, bool) or not isinstance(seed, int):
+                raise UnsafeRecordingError(f"the recording's seed is not a whole number: "
+                                           f"{seed!r}")
         except (UnsafeRecordingError, KeyError, TypeError, AttributeError) as exc:
-            console.print(f"[red]cannot replay: {exc}[/red]")
+            what = f"the recording has no {exc}" if isinstance(exc, KeyError) else exc
+            console.print(f"[red]cannot replay: {what}[/red]")
             return EXIT_UNRUNNABLE
-        args.controller, args.mode, args.seed = "reference", "lockstep", meta["seed"]
+        args.controller, args.mode, args.seed = "reference", "lockstep", seed
         try:
             with progress_bar() as bar:
                 new = asyncio.run(run_one(scenario_path, args, bar, None, trainset))

@@ -51,6 +51,7 @@ import ipaddress
 import logging
 import os
 import secrets
+import socket
 import time
 from collections import deque
 from pathlib import Path
@@ -144,6 +145,7 @@ class Monitor(OperatorCommands):
         self.record_dir = Path(record_dir)
         self.token = secrets.token_hex(16) if self.kind == "tcp" else None
         self.token_path: Path | None = None
+        self._socket_inode: int | None = None  # of the socket file this monitor bound
         self.every = max(1, round(1e6 / (rate_hz * rig.period_us)))
         self.builder = TelemetryBuilder(rig)
         self.clients: list[_Client] = []
@@ -194,11 +196,19 @@ class Monitor(OperatorCommands):
                     writer.close()
                     raise MonitorError(f"another rig's monitor listens at {path}; give this "
                                        "one --monitor with another address")
-            old = os.umask(0o177)  # the socket file is born 0600: no window before chmod
+            # bound here, synchronously, under a umask: the file is born 0600, and no other
+            # coroutine or thread runs while the process's umask is narrowed
+            sock = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
+            old = os.umask(0o177)
             try:
-                self._server = await asyncio.start_unix_server(self._serve, path=str(path))
+                sock.bind(str(path))
+            except OSError:
+                sock.close()
+                raise
             finally:
                 os.umask(old)
+            self._socket_inode = path.stat().st_ino
+            self._server = await asyncio.start_unix_server(self._serve, sock=sock)
         else:
             host, port = self.where
             self._server = await asyncio.start_server(self._serve, host, port)
@@ -227,13 +237,26 @@ class Monitor(OperatorCommands):
             self._server.close()
             self._server = None
         if self.kind == "unix":
-            Path(self.where).unlink(missing_ok=True)
+            self._remove_own_socket()
         elif self.token_path is not None:
             self.token_path.unlink(missing_ok=True)
             self.token_path = None
         if self._own_recorder is not None:
             self._own_recorder.close()
             self.rig.recorder = self._own_recorder = None
+
+    def _remove_own_socket(self) -> None:
+        """Remove the socket file if it is the one this monitor bound (a monitor that
+        failed to start must not remove the live socket of another rig)."""
+        if self._socket_inode is None:
+            return
+        path = Path(self.where)
+        try:
+            if path.stat().st_ino == self._socket_inode:
+                path.unlink()
+        except OSError:
+            pass
+        self._socket_inode = None
 
     async def _authenticate(self, client: _Client, unpacker: msgpack.Unpacker) -> bool:
         """TCP: the first message must carry the token (compared in constant time)."""
@@ -273,9 +296,8 @@ class Monitor(OperatorCommands):
         self.clients.append(client)
         self._publish_to([client])
         try:
-            while data := await reader.read(4096):
-                unpacker.feed(data)
-                for message in unpacker:
+            while True:
+                for message in unpacker:  # first what came with the token, if anything
                     if not (isinstance(message, dict) and isinstance(message.get("op"), str)):
                         self.counts["bad_messages"] += 1
                         self._reply(client, message, False, "not a command: expected a map "
@@ -286,6 +308,10 @@ class Monitor(OperatorCommands):
                                     "waiting for the next frame; this one was dropped")
                     else:
                         self.commands.append((client, message))
+                data = await reader.read(4096)
+                if not data:
+                    break
+                unpacker.feed(data)
         except asyncio.CancelledError:  # the loop is closing with the client attached
             pass
         except Exception as exc:  # undecodable bytes, unhashable keys, a reset: this client

@@ -34,7 +34,7 @@ class OperatorCommands:
             return
         try:
             text = handler(message)
-        except (ValueError, TypeError, KeyError, OSError) as exc:
+        except (ValueError, OSError) as exc:  # a refused operand or fault; a file refused
             self._reply(client, message, False, f"{name}: {exc}")
             return
         except Exception as exc:  # a defect of ours: contained to this message

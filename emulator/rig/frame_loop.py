@@ -129,6 +129,7 @@ class Rig:
         self._answers: dict[int, tuple[np.ndarray, int]] = {}  # seq -> (values, period_us)
         self._held = self.mapper.safe.copy()
         self._missing_run = 0
+        self._excused_run = 0  # held frames in a row excused as the rig's overruns
         self.tripped = False
         self._flags = 0
         self._last_seq = -1
@@ -212,10 +213,15 @@ class Rig:
             self._last_used = want
             self.health.valid += 1
             self._missing_run = 0
+            self._excused_run = 0
             self.tripped = False
             self.replies = self.mapper.replies(self._held)
             return answer[1]
-        if want >= 0 and not self._fair(want, start_ns):  # the rig's overrun, not theirs
+        if (want >= 0 and not self._fair(want, start_ns)
+                and self._excused_run < self.watchdog_frames):  # the rig's overrun, not theirs
+            # excused at most watchdog_frames in a row: after a long stall a controller
+            # that stays silent trips the watchdog all the same (stale command, gates on)
+            self._excused_run += 1
             self.health.overrun_held += 1
             self._flags |= FLAG_COMMAND_HELD | FLAG_OVERRUN
         elif want >= 0:  # before the first answer can exist, holding is not a fault

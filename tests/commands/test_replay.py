@@ -105,3 +105,17 @@ def test_the_shipped_layout_rebuilds_inside_the_folder(recorded, tmp_path) -> No
     assert len(written) == 3
     assert all(p.resolve().is_relative_to(where.resolve()) for p in written)
     assert scenario.read_text() == meta["scenario"]["text"]
+
+
+@pytest.mark.parametrize("seed", [None, "7", 1.5])
+def test_a_recording_without_a_usable_seed_exits_2(recorded, tmp_path, seed) -> None:
+    meta = copy.deepcopy(read_recording(recorded).meta)
+    if seed is None:
+        del meta["seed"]
+    else:
+        meta["seed"] = seed
+    crafted = _rewrite(recorded, tmp_path / "seedless.rrec", meta=meta)
+    done = _railrig("replay", str(crafted), cwd=tmp_path)
+    assert done.returncode == 2, done.stdout + done.stderr
+    assert "cannot replay" in done.stderr and "seed" in done.stderr
+    assert "Traceback" not in done.stderr

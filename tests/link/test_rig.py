@@ -224,7 +224,7 @@ class Stall:
 
 
 async def _timed_rig(params, compute_ns: int, stall: Stall | None = None,
-                     silent_from: int | None = None):
+                     silent_from: int | None = None, watchdog_frames: int = 3):
     from emulator.link import open_link
     from emulator.rig.clock import FakeClock
     from emulator.rig.frame_loop import Rig
@@ -232,7 +232,8 @@ async def _timed_rig(params, compute_ns: int, stall: Stall | None = None,
     rig_link, ctl_link = open_link("loop://timed"), open_link("loop://timed")
     await rig_link.open()
     await ctl_link.open()
-    rig = Rig(params, rig_link, mode="realtime", clock=FakeClock(), watchdog_frames=3)
+    rig = Rig(params, rig_link, mode="realtime", clock=FakeClock(),
+              watchdog_frames=watchdog_frames)
     ctl = TimedController(rig, ctl_link, compute_ns, silent_from)
     ctl_link._deliver = ctl.deliver
     rig.program = stall
@@ -245,7 +246,8 @@ async def _timed_rig(params, compute_ns: int, stall: Stall | None = None,
 def test_a_rig_stall_is_not_blamed_on_a_punctual_controller(params) -> None:
     # the controller needs half a period; after a 5 ms stall the rig runs four frames
     # back to back (catch-up) and gives it no time: those are the rig's overruns
-    rig, ctl = run(_timed_rig(params, compute_ns=500_000, stall=Stall(100, 5_000_000)))
+    rig, ctl = run(_timed_rig(params, compute_ns=500_000, stall=Stall(100, 5_000_000),
+                              watchdog_frames=4))
     assert rig.health.watchdog_trips == 0 and not rig.tripped
     assert rig.health.missing == 0
     assert rig.health.overrun_held == 4  # frames 102..105 wanted answers not yet due
@@ -264,3 +266,12 @@ def test_a_controller_that_falls_silent_trips_the_watchdog(params) -> None:
     rig, _ = run(_timed_rig(params, compute_ns=500_000, silent_from=150))
     assert rig.tripped and rig.health.watchdog_trips == 1
     assert rig.health.missing >= 4 and rig.health.overrun_held == 0
+
+
+def test_a_long_stall_does_not_excuse_a_silent_controller_for_ever(params) -> None:
+    # 150 ms of stall, and the controller falls silent with it: at most watchdog_frames
+    # (3) held frames are excused as the rig's, then the watchdog counts and trips
+    rig, _ = run(_timed_rig(params, compute_ns=500_000, stall=Stall(100, 150_000_000),
+                            silent_from=101))
+    assert rig.tripped and rig.health.watchdog_trips == 1
+    assert rig.health.overrun_held == 3

@@ -29,17 +29,25 @@ def runtime(tmp_path, monkeypatch):
     return where
 
 
-async def test_the_socket_is_born_private(idle_rig, tmp_path) -> None:
+async def test_the_socket_is_born_private(idle_rig, tmp_path, monkeypatch) -> None:
+    # its mode is looked at when the server is handed the socket, before it listens
+    seen = []
+    real = asyncio.start_unix_server
+
+    async def spy(*args, **kw):
+        seen.append(stat.S_IMODE(os.stat(tmp_path / "m.sock").st_mode))
+        return await real(*args, **kw)
+
+    monkeypatch.setattr(asyncio, "start_unix_server", spy)
     before = os.umask(0o022)
     try:
         monitor = Monitor(idle_rig, str(tmp_path / "m.sock"))
         await monitor.start()
-        mode = stat.S_IMODE(os.stat(tmp_path / "m.sock").st_mode)
         assert os.umask(0o022) == 0o022  # the process's umask is given back
         monitor.close()
     finally:
         os.umask(before)
-    assert mode == 0o600
+    assert seen == [0o600]
 
 
 async def test_a_folder_others_may_write_into_is_refused(idle_rig, tmp_path) -> None:
@@ -100,7 +108,7 @@ async def test_tcp_without_the_token_gets_one_error_and_is_closed(idle_rig, runt
         assert [m["kind"] for m in seen] == ["error"]
         assert "token" in seen[0]["text"]
         assert monitor.counts["refused"] == 1 and monitor.clients == []
-        assert not idle_rig.monitor.paused
+        assert not monitor.commands and monitor.counts["commands"] == 0  # nothing queued
     finally:
         monitor.close()
 

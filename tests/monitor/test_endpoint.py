@@ -7,6 +7,7 @@ the clients here speak the documented protocol with msgpack directly.
 from __future__ import annotations
 
 import asyncio
+import os
 
 import pytest
 
@@ -170,8 +171,13 @@ async def test_a_second_rig_does_not_take_a_live_socket(live_rig, tmp_path) -> N
     rig, monitor = live_rig
     link = open_link("loop://second-rig")
     other = Rig(rig.plant.params, link)
+    refused = Monitor(other, monitor.address)
     with pytest.raises(MonitorError, match="another rig's monitor listens"):
-        await Monitor(other, monitor.address).start()
+        await refused.start()
+    refused.close()  # as a runner's cleanup does: the live rig's socket must stay
+    assert os.path.exists(monitor.address)
+    c = await RawClient.open(monitor.address)
+    assert (await c.next("hello"))["kind"] == "hello"
     stale = tmp_path / "stale.sock"
     first = Monitor(other, str(stale))
     await first.start()

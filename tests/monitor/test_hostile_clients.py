@@ -9,6 +9,7 @@ from __future__ import annotations
 import asyncio
 import json
 import math
+import re
 import shutil
 import socket
 import tempfile
@@ -39,32 +40,43 @@ async def test_step_with_infinite_frames_is_refused_and_the_rig_runs_on(live_rig
     await wait_until(lambda: rig.frame > frame + 50, what="frames after the bad step")
 
 
-@pytest.mark.parametrize("message", [
-    {"op": "step", "frames": math.nan}, {"op": "step", "frames": 2**64 - 1},
-    {"op": "step", "frames": "10"}, {"op": "step", "frames": -1},
-    {"op": "demand", "effort": math.inf}, {"op": "demand", "effort": math.nan},
-    {"op": "demand", "change": -(2**63)}, {"op": "demand", "effort": "full"},
-    {"op": "demand", "release": "yes"},
-    {"op": "inject", "fault": "catenary-dip", "target": "catenary",
-     "params": {"depth": math.nan}},
-    {"op": "inject", "fault": "catenary-dip", "target": "catenary",
-     "params": {"depth": 2**64 - 1}},
-    {"op": "inject", "fault": "catenary-dip", "target": "catenary", "params": [1, 2]},
-    {"op": "inject", "fault": ["x"], "target": "catenary"},
-    {"op": "inject", "fault": "catenary-dip", "target": "catenary", "until_s": math.inf},
-    {"op": "inject"}, {"op": "clear"}, {"op": "clear", "fault": 12},
-    {"op": "mark", "text": 3}, {"op": "mark", "text": "x" * 20_000},
-    {"op": "record", "name": "../../etc/evil"}, {"op": "record", "path": "/tmp/evil.rrec"},
-    {"op": "record", "stop": 1},
-    {"op": "__init__"}, {"op": "_apply"}, {"op": "x" * 1000}, {"op": "no such op"},
+@pytest.mark.parametrize(("message", "says"), [
+    ({"op": "step", "frames": math.nan}, "frames must"),
+    ({"op": "step", "frames": 2**64 - 1}, "frames must"),
+    ({"op": "step", "frames": "10"}, "frames must"), ({"op": "step", "frames": -1}, "frames must"),
+    ({"op": "demand", "effort": math.inf}, "effort must"),
+    ({"op": "demand", "effort": math.nan}, "effort must"),
+    ({"op": "demand", "change": -(2**63)}, "change must"),
+    ({"op": "demand", "effort": "full"}, "effort must"),
+    ({"op": "demand", "release": "yes"}, "release must"),
+    ({"op": "inject", "fault": "catenary-dip", "target": "catenary",
+      "params": {"depth": math.nan}}, "depth must"),
+    ({"op": "inject", "fault": "catenary-dip", "target": "catenary",
+      "params": {"depth": 2**64 - 1}}, "depth must"),
+    ({"op": "inject", "fault": "catenary-dip", "target": "catenary", "params": [1, 2]},
+     "params must"),
+    ({"op": "inject", "fault": ["x"], "target": "catenary"}, "fault must"),
+    ({"op": "inject", "fault": "catenary-dip", "target": "catenary", "until_s": math.inf},
+     "until_s must"),
+    ({"op": "inject"}, "fault is missing"), ({"op": "clear"}, "fault is missing"),
+    ({"op": "clear", "fault": 12}, "fault must"), ({"op": "mark", "text": 3}, "text must"),
+    ({"op": "mark", "text": "x" * 20_000}, "text is longer"),
+    ({"op": "record", "name": "../escaped"}, "name must be a bare file name"),
+    ({"op": "record", "path": "/tmp/evil.rrec"}, "bare 'name'"),
+    ({"op": "record", "stop": 1}, "stop must"),
+    ({"op": "__init__"}, "unknown op"), ({"op": "_apply"}, "unknown op"),
+    ({"op": "x" * 1000}, "unknown op"), ({"op": "no such op"}, "unknown op"),
 ])
-async def test_hostile_operands_get_an_error_reply(live_rig, message) -> None:  # noqa: F811
+async def test_hostile_operands_get_an_error_reply(live_rig, message, says) -> None:  # noqa: F811
     rig, monitor = live_rig
     c = await RawClient.open(monitor.address)
     await c.next("hello")
     r = await c.ask(**message)
-    assert r["ok"] is False and r["text"]
+    assert r["ok"] is False and says in r["text"], r["text"]
     assert monitor.counts["handler_errors"] == 0  # every refusal was a checked one
+    outside = monitor.record_dir.parent
+    assert sorted(p.name for p in outside.iterdir()) == ["monitor.sock"] + (
+        ["recordings"] if monitor.record_dir.exists() else [])  # nothing written beside
     frame = rig.frame
     await wait_until(lambda: rig.frame > frame + 20, what="frames after the refusal")
 
@@ -130,21 +142,33 @@ messages = st.one_of(
 )
 
 
-@pytest.fixture(scope="module")
-def served_rig():
-    """``railrig serve`` (demo, real time) recording, its monitor on a socket."""
+def _serve(record: bool):
+    """``railrig serve`` (demo, real time), its monitor on a socket; recording from the
+    start if ``record``. Yields (process, address, recording, report, folder)."""
     where = Path(tempfile.mkdtemp(prefix="rr"))
     recording, report = where / "run.rrec", where / "report.json"
-    rig, address = start_rig(TRAINSET, where, 60.0, 3000.0, where / "rig.log", extra=(
-        "--spin-us", "0", "--record", str(recording), "--record-dir", str(where / "recs"),
-        "--report-json", str(report)))
+    extra = ("--spin-us", "0", "--record-dir", str(where / "recs"), "--report-json",
+             str(report)) + (("--record", str(recording)) if record else ())
+    rig, address = start_rig(TRAINSET, where, 60.0, 3000.0, where / "rig.log", extra=extra)
     try:
         if not wait_for_socket(rig, address, START_TIMEOUT_S):
             raise RuntimeError(f"railrig serve did not start: {(where / 'rig.log').read_text()}")
-        yield rig, address, recording, report
+        yield rig, address, recording, report, where
     finally:
         stop_rig(rig)
         shutil.rmtree(where, ignore_errors=True)
+
+
+@pytest.fixture(scope="module")
+def served_rig():
+    """A rig recording from its start: the fuzz must leave that recording whole."""
+    yield from _serve(record=True)
+
+
+@pytest.fixture(scope="module")
+def unrecorded_rig():
+    """A rig not recording: the fuzz reaches the monitor's own recordings."""
+    yield from _serve(record=False)
 
 
 def _send(address: str, payload: bytes) -> None:
@@ -166,13 +190,13 @@ def _send(address: str, payload: bytes) -> None:
                                  HealthCheck.too_slow, HealthCheck.data_too_large])
 @given(payload=messages)
 def test_fuzzed_monitor_messages_never_stop_the_rig(served_rig, payload: bytes) -> None:
-    rig, address, _, _ = served_rig
+    rig, address, _, _, _ = served_rig
     _send(address, payload)
     assert rig.poll() is None, "the rig process ended"
 
 
 def test_after_the_fuzz_the_rig_runs_and_its_recording_is_whole(served_rig) -> None:
-    rig, address, recording, report = served_rig
+    rig, address, recording, report, _ = served_rig
 
     async def frames() -> tuple[int, int]:
         c = await RawClient.open(address)
@@ -193,3 +217,24 @@ def test_after_the_fuzz_the_rig_runs_and_its_recording_is_whole(served_rig) -> N
     rec = read_recording(recording)
     assert rec.complete
     assert len(rec.data) == counters["frames"]  # every frame the rig ran is in it
+
+
+record_commands = st.fixed_dictionaries({"op": st.just("record")}, optional={
+    "name": st.one_of(st.text(max_size=80), values), "path": values,
+    "stop": st.one_of(st.booleans(), values)})
+
+
+@settings(max_examples=80, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(command=record_commands)
+def test_fuzzed_record_commands_write_only_bare_names_in_the_folder(unrecorded_rig,
+                                                                    command) -> None:
+    rig, address, _, _, where = unrecorded_rig
+    _send(address, msgpack.packb(command))
+    _send(address, msgpack.packb({"op": "record", "stop": True}))
+    assert rig.poll() is None
+    assert {p.name for p in where.iterdir()} <= {"monitor.sock", "rig.log", "recs",
+                                                  "report.json"}
+    recs = where / "recs"
+    for p in recs.iterdir() if recs.exists() else ():
+        assert p.is_file() and re.fullmatch(r"[A-Za-z0-9][A-Za-z0-9._-]*\.rrec", p.name)

@@ -20,8 +20,9 @@ class FakeMonitor:
     """A Unix-socket server that plays a script of messages to each client, then hangs
     up (as a rig that dies)."""
 
-    def __init__(self, script: list) -> None:
+    def __init__(self, script: list, pace=None) -> None:
         self.script = script
+        self.pace = pace  # awaited after each message: the test says when to go on
         self.where = Path(tempfile.mkdtemp(prefix="rr"))
         self.address = str(self.where / "m.sock")
         self.done = asyncio.Event()
@@ -35,12 +36,21 @@ class FakeMonitor:
         shutil.rmtree(self.where, ignore_errors=True)
 
     async def _serve(self, reader, writer) -> None:
-        for message in self.script:
+        for k, message in enumerate(self.script):
             writer.write(message if isinstance(message, bytes) else msgpack.packb(message))
             await writer.drain()
-            await asyncio.sleep(0.15)  # more than one redraw of the dashboard apart
+            if self.pace is not None:
+                await self.pace(k, message)
         writer.close()
         self.done.set()
+
+
+async def _wait(condition, seconds: float = 30.0) -> None:
+    for _ in range(int(seconds / 0.02)):
+        if condition():
+            return
+        await asyncio.sleep(0.02)
+    raise AssertionError("the dashboard did not take the message")
 
 
 async def _until(pilot, condition, seconds: float = 30.0) -> None:
@@ -59,20 +69,34 @@ async def test_malformed_telemetry_is_dropped_and_the_rig_dying_is_said() -> Non
     bad_types["train"]["speed_kmh"] = "fast"
     bad_groups = copy.deepcopy(good)
     bad_groups["groups"] = [{"name": "DC-A"}]
+    # each malformed message is either refused on arrival or drawn once and dropped; the
+    # fake rig waits for the dashboard to have dealt with one before it sends the next
+    # (lists and strings never reach the dashboard: its client takes maps only)
     script = [hello, good, no_motors, bad_types, bad_groups, {"kind": "telemetry"},
-              {"no kind": 1}, [1, 2, 3], "text", later]
-    async with FakeMonitor(script) as rig:
-        app = RigDashboard(rig.address, retry=False)
+              {"no kind": 1}, later]
+    holder = {}
+
+    async def pace(k: int, message) -> None:
+        app = holder["app"]
+        if k == 0:
+            return
+        if message is good or message is later:
+            await _wait(lambda: app.good_snap is not None
+                        and app.good_snap["t_s"] == message["t_s"])
+        else:
+            await _wait(lambda: app.malformed >= k - 1)
+
+    async with FakeMonitor(script, pace) as rig:
+        app = holder["app"] = RigDashboard(rig.address, retry=False)
         async with app.run_test(size=(100, 30)) as pilot:
             await _until(pilot, lambda: rig.done.is_set() and not app.attached)
-            await pilot.pause(0.3)
             assert app.is_running
-            assert app.malformed >= 4
+            assert app.malformed == 5
             assert app.good_snap is not None and app.good_snap["t_s"] == later["t_s"]
             log = "\n".join(app.log_lines)
             assert "malformed" in log
             assert "detached" in log  # the rig went away: said, not raised
-            assert "DETACHED" in str(app.query_one("#status").render())
+            await _until(pilot, lambda: "DETACHED" in str(app.query_one("#status").render()))
 
 
 async def test_a_malformed_hello_is_refused_with_a_message() -> None:

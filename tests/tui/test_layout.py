@@ -44,6 +44,7 @@ async def fed_app(pilot, app, tab: str) -> str:
     app.refresh_views()
     await pilot.pause(0.2)
     await pilot.wait_for_animation()
+    assert app.malformed == 0  # good telemetry draws whole: no drawing error hidden
     return screen_text(app)
 
 

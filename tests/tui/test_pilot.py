@@ -102,6 +102,7 @@ async def test_inject_a_catenary_dip_by_keys_see_it_then_clear_it(rig_process) -
             panel.get_option_at_index(0).prompt))
         await pilot.press("d")
         assert await wait_for(pilot, lambda: line_kv(app) > 0.9 * NOMINAL_KV)
+        assert app.malformed == 0  # the real rig's telemetry drew whole throughout
 
 
 async def test_pause_step_and_demand_keys(rig_process) -> None:  # noqa: F811
@@ -125,6 +126,7 @@ async def test_pause_step_and_demand_keys(rig_process) -> None:  # noqa: F811
         assert await wait_for(pilot, lambda: app.snap["train"]["program"] != "operator")
         await pilot.press("space")
         assert await wait_for(pilot, lambda: app.snap["frame"] > a["frame"] + 300)
+        assert app.malformed == 0
 
 
 async def test_attach_detach_attach_while_the_rig_runs(rig_process) -> None:  # noqa: F811
