@@ -49,6 +49,10 @@ class ControllerConfig:
     n_line_converters_per_link: tuple[int, ...]
     line_side: bool
     motor_control: str = "scalar"
+    #: the motor's magnetising curve (type test): main flux (V s, peak) against the
+    #: magnetising current (A, peak); empty: linear with magnetising_h
+    saturation_current_a: tuple[float, ...] = ()
+    saturation_flux_vs: tuple[float, ...] = ()
     link_names: tuple[str, ...] = ()
     line_converter_names: tuple[str, ...] = ()
     line_converter_links: tuple[int, ...] = ()
@@ -141,6 +145,8 @@ def config_from_profile(path, period_s: float | None = None) -> ControllerConfig
                                          for i in range(len(links))),
         line_side=tr is not None,
         motor_control=p.motor_control,
+        saturation_current_a=tuple(m.saturation_current_a),
+        saturation_flux_vs=tuple(m.saturation_flux_vs),
         link_names=tuple(lk.name for lk in links),
         line_converter_names=tuple(u.name for u in p.line_converters),
         line_converter_links=tuple(u.dc_link for u in p.line_converters),

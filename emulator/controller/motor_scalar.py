@@ -34,6 +34,7 @@ class ScalarControl:
         self.n_motors = n_motors
         self.T = cfg.period_s
         self.theta = 0.0
+        self.theta_slip = 0.0  # angle-based slip regulation: the integrated slip, rad
         self.f_s = 0.0
         self.u_peak_rated = cfg.rated_voltage_v * math.sqrt(2 / 3)
         self.volts_per_hz = self.u_peak_rated / cfg.rated_frequency_hz
@@ -65,12 +66,15 @@ class ScalarControl:
 
     def step(self, torque_per_motor: float, rotor_speed_rad_s: float, u_d: float,
              f_command_hz: float | None = None,
-             phase_currents: tuple[float, float, float] | None = None
-             ) -> tuple[list[float], float]:
+             phase_currents: tuple[float, float, float] | None = None,
+             rotor_angle_rad: float | None = None) -> tuple[list[float], float]:
         """Duties for this period and the stator frequency used, Hz.
 
         With f_command_hz, classic V/f; given phase_currents too, the estimated slip is
-        added to the command (slip compensation).
+        added to the command (slip compensation). With rotor_angle_rad (the counted
+        mechanical angle), slip regulation is angle-based: the stator angle is the rotor's
+        electrical angle plus the integrated slip, so the slip is what was asked for
+        whatever the lag or quantisation of the speed reading.
         """
         cfg = self.cfg
         f_rotor = cfg.pole_pairs * rotor_speed_rad_s / (2 * math.pi)
@@ -84,7 +88,12 @@ class ScalarControl:
                 t_est = self.estimated_torque(phase_currents)
                 self.torque_estimate += (t_est - self.torque_estimate) * self.T / 0.05
                 f_s += self.slip_for_torque(self.torque_estimate, f_s)
-        self.theta = (self.theta + 2 * math.pi * f_s * self.T) % (2 * math.pi)
+        if rotor_angle_rad is not None and f_command_hz is None:
+            f_slip = f_s - f_rotor
+            self.theta_slip = (self.theta_slip + 2 * math.pi * f_slip * self.T) % (2 * math.pi)
+            self.theta = (cfg.pole_pairs * rotor_angle_rad + self.theta_slip) % (2 * math.pi)
+        else:
+            self.theta = (self.theta + 2 * math.pi * f_s * self.T) % (2 * math.pi)
         self.f_s = f_s
         u_max = u_d / math.sqrt(3)
         u = min(self.boost_v + self.volts_per_hz * abs(f_s), u_max)

@@ -18,6 +18,7 @@ from emulator.protocol import events
 
 from .adhesion import AdhesionControl
 from .config import ControllerConfig
+from .encoder import EncoderSpeed
 from .line_converter import LinkControl, chopper_duty, power_limits
 from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
@@ -27,10 +28,17 @@ from .sequence import RUNNING, SwitchOnSequence
 GEAR_EFFICIENCY = 0.975  # design value of the TCU's effort estimate
 # motors and inverters at full power, with margin: what the line converters are rated for
 DRIVE_EFFICIENCY = 0.85
+#: motor, gear and inverter efficiency the line converters' feed-forward expects near the
+#: rated point (traction drives of a few hundred kW: common practice, no source)
+FEEDFORWARD_EFFICIENCY = 0.93
 OVERLOAD = 1.4  # starting torque / rated torque
 POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
 FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
+ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
+# multiple units: from memory, REFERENCES.md)
+MAGNETISED_ABOVE_MPS = 1.0  # in a driving mode, the motors stay fluxed above this speed
+FLUX_HOLD_S = 3.0  # ... and as long after the last demand (coasting between brake steps)
 SENSOR_JUMP = 20.0  # rad/s in one period: a speed reading no motor can follow
 
 
@@ -77,12 +85,16 @@ class ReferenceController:
         self.line_live_s = 0.0
         self.sensor_ok = [True] * n_motors
         self._last_speeds: list[float | None] = [None] * n_motors
+        # speed and angle from the encoders' counts, as a board has them
+        self.encoders = [EncoderSpeed(cfg.encoder_lines, T) for _ in range(n_motors)]
+        self._fallback_angle: dict[int, float] = {}
         self.line_rms_f = cfg.line_nominal_v
         self._recent = [0.0] * max(round(1 / (4 * cfg.line_frequency_hz * T)), 1)
         self._recent_i = 0
         self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
                                   for i in range(len(cfg.link_names))]
         self.block_until = [0.0] * n_inv
+        self.demanded_at = [-math.inf] * n_inv
         self.t = 0.0
         self.event = 0
         self.events: Counter = Counter()
@@ -111,7 +123,7 @@ class ReferenceController:
         self.ix_neutral = mi("train.neutral_section_ahead")
         self.ix_regen = mi("train.regeneration_allowed")
         self.ix_cruise = mi("train.cruise_speed_kmh")
-        self.ix_speed = [mi(f"{mo}.speed_rad_s") for ms in self.motors for mo in ms]
+        self.ix_count = [mi(f"{mo}.encoder_count") for ms in self.motors for mo in ms]
         self.ix_temp = [mi(f"{mo}.stator_temperature_degc") for ms in self.motors for mo in ms]
         self.ix_phase = [[mi(f"{inv}.current_{x}_a") for x in "abc"]
                          for inv in cfg.inverter_names]
@@ -195,9 +207,15 @@ class ReferenceController:
 
         # --- train speed, effort demand, limits ---------------------------------------
         r, gear = cfg.wheel_radius_m, cfg.gear_ratio
-        speeds = self._plausible_speeds([y[i] for i in self.ix_speed])
+        for enc, i in zip(self.encoders, self.ix_count, strict=True):
+            enc.update(y[i])
+        speeds = self._plausible_speeds([e.speed_raw for e in self.encoders],
+                                        [e.speed for e in self.encoders])
         k_wheel = r / gear
-        wheel_mps = [w * k_wheel for w in speeds]
+        # the adhesion control watches the wheels with the shorter window (2 ms less lag,
+        # 0.16 m/s resolution at the rail), the rest uses the smoother one
+        quick = self._plausible_fill([e.speed_short for e in self.encoders])
+        wheel_mps = [w * k_wheel for w in quick]
         v = sum(wheel_mps) / len(wheel_mps)
         f_max = self.n_motors * self._motor_torque_limit(abs(v)) * gear * GEAR_EFFICIENCY / r
         self.available_n = f_max if running else 0.0
@@ -230,7 +248,12 @@ class ReferenceController:
         braking = self.effort_n < 0
 
         # --- adhesion and motor control per inverter ----------------------------------
-        factors = self.adhesion.step(wheel_mps, braking)
+        if all(e.settled for e in self.encoders):
+            # what the train itself can do now: its effort over its mass
+            plausible = self.effort_n / (cfg.mass_kg * ROTATING_FACTOR)
+            factors = self.adhesion.step(wheel_mps, braking, plausible)
+        else:  # until the encoders' windows hold measured speeds there is no creep to judge
+            factors = self.adhesion.factor
         torque_motor = self.effort_n * r / (gear * GEAR_EFFICIENCY * self.n_motors)
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
@@ -260,10 +283,21 @@ class ReferenceController:
             demanded = mode in (1, 2, 4)
             if running and demanded and u_d <= u_min_run:
                 self._raise(events.LINK_UNDERVOLTAGE)
-            active = (running and demanded and self.t >= self.block_until[k] and u_d > u_min_run
-                      and (self.effort_n != 0.0 or mode == 2))
+            # magnetised while a mode asks for effort, and for FLUX_HOLD_S after it at speed
+            # (a driver modulating the brake goes to coast and back): rebuilding the flux
+            # takes a rotor time constant (~0.6 s) each time
+            if demanded:
+                self.demanded_at[k] = self.t
+            held = (abs(v) > MAGNETISED_ABOVE_MPS
+                    and self.t - self.demanded_at[k] < FLUX_HOLD_S)
+            active = (running and (demanded or held) and self.t >= self.block_until[k]
+                      and u_d > u_min_run
+                      and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
+            healthy = [a for a in range(first, first + n_mot) if self.sensor_ok[a]]
+            angle = (sum(self.encoders[a].angle for a in healthy) / len(healthy) if healthy
+                     else self.vector_angle_fallback(k, motor_speed, period_s))
             if p_draw is not None and torque * motor_speed > 0:  # motoring
                 sag = min(max((u_d - 0.75 * cfg.link_nominal_v)
                               / (0.15 * cfg.link_nominal_v), 0.0), 1.0)
@@ -277,15 +311,19 @@ class ReferenceController:
             if active:
                 self.enabled_for[k] += period_s
                 if self.vector is not None:
-                    duties = self.vector[k].step(torque, motor_speed, u_d, (ia, ib, ic))
+                    ctl = self.vector[k]
+                    duties = ctl.step(torque, angle, motor_speed, u_d, (ia, ib, ic))
                     ramp = 1.0  # the flux model builds the flux up itself
+                    estimate = ctl.torque_estimate  # from the measured currents and flux
                 else:
-                    duties, _ = self.scalar[k].step(torque, motor_speed, u_d)
+                    estimate = self.scalar[k].estimated_torque((ia, ib, ic))
+                    duties, _ = self.scalar[k].step(torque, motor_speed, u_d,
+                                                    rotor_angle_rad=angle)
                     ramp = min(self.enabled_for[k] / FLUX_RAMP_S, 1.0)
                 for i, d in zip(duty_ix, duties, strict=True):
                     out[i] = 0.5 + ramp * (d - 0.5)
                 p_links[link] += torque * motor_speed * n_mot
-                achieved += torque * n_mot
+                achieved += estimate * n_mot
             else:
                 self.enabled_for[k] = 0.0
                 if self.vector is not None:
@@ -293,6 +331,7 @@ class ReferenceController:
                 for i in duty_ix:
                     out[i] = 0.5
             out[self.ox_gates[k]] = float(active)
+        # the effort achieved: torque estimated from the measured currents, not the demand
         self.achieved_n = achieved * gear * GEAR_EFFICIENCY / r * direction
 
         # --- line converters ----------------------------------------------------------
@@ -306,7 +345,7 @@ class ReferenceController:
                 if running and line_live:
                     i_sec = [y[j] for j in self.ix_isec[i]]
                     mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,
-                                              p_links[i] / DRIVE_EFFICIENCY, p_min, p_max)
+                                              _link_power(p_links[i]), p_min, p_max)
                 else:
                     link.reset()
                     mods = [0.0] * len(self.ox_mod[i])
@@ -321,20 +360,31 @@ class ReferenceController:
         out[self.ox_status] = float(self.sequence.state)
         out[self.ox_event] = float(self.event)
 
-    def _plausible_speeds(self, readings: list[float]) -> list[float]:
+    def vector_angle_fallback(self, inverter: int, speed: float, period_s: float) -> float:
+        """A rotor angle for an inverter whose encoders have all failed: integrated from
+        the speed its neighbours give (the drive goes on, less precisely)."""
+        self._fallback_angle[inverter] = (self._fallback_angle.get(inverter, 0.0)
+                                          + speed * period_s)
+        return self._fallback_angle[inverter]
+
+    def _plausible_speeds(self, raw: list[float], readings: list[float]) -> list[float]:
         """Speed readings with failed sensors replaced by their healthy neighbours'.
 
-        A reading that jumps by more than SENSOR_JUMP in one period is physically
-        impossible for a motor on a wheelset (its acceleration is a few hundred rad/s^2
-        at most): the sensor is taken as failed for the rest of the run (latched, as a
-        board would until a service reset) and event SPEED_SENSOR_FAULT is raised.
+        ``raw`` is each encoder's count difference over the last period (counting
+        method), ``readings`` the windowed speeds the control uses. A raw speed that
+        jumps by more than SENSOR_JUMP in one period is physically impossible for a motor
+        on a wheelset (its acceleration is a few hundred rad/s^2 at most; the counting
+        resolution is 6.1 rad/s at 256 lines and 1 ms): the sensor is taken as failed for
+        the rest of the run (latched, as a board would until a service reset) and event
+        SPEED_SENSOR_FAULT is raised.
         """
         last = self._last_speeds
-        for m, (now, before) in enumerate(zip(readings, last, strict=True)):
-            if self.sensor_ok[m] and before is not None and abs(now - before) > SENSOR_JUMP:
+        for m, (now, before) in enumerate(zip(raw, last, strict=True)):
+            if (self.sensor_ok[m] and before is not None and now is not None
+                    and abs(now - before) > SENSOR_JUMP):
                 self.sensor_ok[m] = False
                 self._raise(events.SPEED_SENSOR_FAULT)
-        self._last_speeds = list(readings)
+        self._last_speeds = list(raw)
         healthy = [r for r, ok in zip(readings, self.sensor_ok, strict=True) if ok]
         if len(healthy) == len(readings) or not healthy:
             return readings
@@ -347,6 +397,21 @@ class ReferenceController:
                     out[a] = sum(own) / len(own) if own else sum(healthy) / len(healthy)
         return out
 
+    def _plausible_fill(self, readings: list[float]) -> list[float]:
+        """Readings with the failed sensors' replaced by their neighbours' (no new
+        judgement: _plausible_speeds decides which sensors failed)."""
+        if all(self.sensor_ok):
+            return readings
+        healthy = [r for r, ok in zip(readings, self.sensor_ok, strict=True) if ok]
+        out = list(readings)
+        for k in range(len(self.motors)):
+            own = [readings[a] for a in self._axles(k) if self.sensor_ok[a]]
+            for a in self._axles(k):
+                if not self.sensor_ok[a]:
+                    out[a] = (sum(own) / len(own) if own
+                              else sum(healthy) / len(healthy) if healthy else readings[a])
+        return out
+
     def _axles(self, inverter: int) -> range:
         first = sum(len(ms) for ms in self.motors[:inverter])
         return range(first, first + len(self.motors[inverter]))
@@ -355,3 +420,11 @@ class ReferenceController:
         """Tractive-effort curve per motor: constant torque, then constant power, N m."""
         w_motor = max(v_mps / self.cfg.wheel_radius_m * self.cfg.gear_ratio, 1e-3)
         return min(self.t_max_motor, self.p_max_motor / w_motor)
+
+
+def _link_power(p_shaft: float) -> float:
+    """The power the motors draw from (> 0) or return to (< 0) their link, from their
+    shaft power: divided by the efficiency when motoring, multiplied when generating."""
+    if p_shaft >= 0.0:
+        return p_shaft / FEEDFORWARD_EFFICIENCY
+    return p_shaft * FEEDFORWARD_EFFICIENCY
