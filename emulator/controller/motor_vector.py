@@ -39,7 +39,6 @@ from __future__ import annotations
 import bisect
 import cmath
 import math
-from collections import deque
 
 from .config import ControllerConfig
 from .motor_scalar import TWO_PI_3
@@ -142,8 +141,9 @@ class VectorControl:
         self.mean_offset = 0j  # a period's mean current less its end current, field frame
         self.flux_integral = 0.0  # the flux regulator's integral, A
         self.i_expected: complex | None = None  # the current predicted for this sample
-        self.planned: deque[complex] = deque(maxlen=2)  # mean dq currents of the periods
-        # whose voltage was sent last and the time before, A
+        self.prev_mean: complex | None = None  # the model's mean current over the period
+        self.prev_theta = 0.0  # under way, stator frame; the field angle at its start
+        self.prev_turn = 1 + 0j
         self.dpsi = 0.0  # field-weakening loop's flux reduction, V s (<= 0)
         self.u_sent = 0j  # stator-frame voltage acting from now to the next sample
         self.i_d = self.i_q = 0.0
@@ -238,9 +238,14 @@ class VectorControl:
         T, p = self.T, self.p
         w_m = rotor_speed_rad_s
         u_lim = max(u_dc, 1.0) / math.sqrt(3)
+        # the flux and the torque limit are planned on no more than the nominal link: a
+        # link that rides high on regeneration can fall by a tenth within a 2f half-period,
+        # faster than the rotor flux can follow (tau_r), and the current control would lose
+        # its voltage
+        u_plan = min(u_lim, self.cfg.link_nominal_v / math.sqrt(3))
         # --- flux reference: the most the voltage allows for this torque, then the loop --
         w_e_est = p * w_m
-        psi_ff = self.flux_for(torque_per_motor, w_e_est, MARGIN * u_lim)
+        psi_ff = self.flux_for(torque_per_motor, w_e_est, MARGIN * u_plan)
         self.psi_ref = max(psi_ff + self.dpsi, 0.1 * self.psi_rated)
         sigma_ls = self._machine(self.psi_ref)[3]
         i_d_ref = self.curve.current(self.psi_ref)
@@ -262,8 +267,14 @@ class VectorControl:
             if abs(self.du) > cap:
                 self.du *= cap / abs(self.du)
         # the flux follows the period's mean d current, not the sample's: the mean the
-        # model gave for the period that has just ended (the sample's while none yet)
-        mean_dq = self.planned[0] if len(self.planned) == 2 else i_dq
+        # model gave for the period that has just ended, corrected by half of how far the
+        # sample ended from its prediction (an error that grows through the period shows
+        # at its end and half of it in its mean), so the model stays on the measurement
+        if self.prev_mean is not None:
+            mean_s = self.prev_mean + 0.5 * (i_s - self.i_expected)
+            mean_dq = mean_s * cmath.exp(-1j * self.prev_theta) / self.prev_turn
+        else:
+            mean_dq = i_dq
         i_d_mean = mean_dq.real
         psi_ss = self.curve.flux(i_d_mean)  # the rotor flux that d current holds
         self.psi_r = psi_ss + (self.psi_r - psi_ss) * math.exp(-T / tau_now)
@@ -281,7 +292,7 @@ class VectorControl:
         # --- torque and its limits: current, and the voltage left beside the flux's -------
         i_q_cur = math.sqrt(max(self.i_max**2 - i_d_ref**2, 0.0))
         lo, hi = self._i_q_window(i_d_ref, psi * lm_now / lr_now, w_e_est, sigma_ls,
-                                  MARGIN * u_lim)
+                                  MARGIN * u_plan)
         lo, hi = max(lo, -i_q_cur), min(hi, i_q_cur)
         self.torque_limit = k_t * (hi if torque_per_motor >= 0 else -lo)
         i_q_ref = min(max(torque_per_motor / k_t, lo), hi)
@@ -319,7 +330,7 @@ class VectorControl:
         # --- voltage limit, field-weakening loop, anti-windup ----------------------------
         mag = abs(u)
         self.modulation = mag / u_lim
-        excess = mag / (MARGIN * u_lim) - 1.0
+        excess = mag / (MARGIN * u_plan) - 1.0
         # the loop lowers the flux further while the voltage asked for passes the margin
         # (what the steady-state feed-forward missed) and gives it back when there is
         # room; it waits while the flux is still on its way (tau_r), or it would wind up
@@ -332,14 +343,10 @@ class VectorControl:
             # the flux first: keep the d goal and take from the q goal (the torque) what
             # the voltage cannot carry; only if that is not enough, scale the whole vector
             u = _fit_q(gain, offset, goal_dq, u_lim)
-        # the mean current this voltage gives over its period, field frame: the flux
-        # model's input two samples from now
-        _, mean = self._interval(i_next, u - self.du * cmath.exp(1j * (theta_next + 0.5 * w_e
-                                                                              * T)),
-                                 e_next, w_e, rp, sigma_ls)
-        self.planned.append(mean / (cmath.exp(1j * theta_next) * turn))
-        # what this voltage will make of the current by the next sample, for the observer
+        # what the voltage under way makes of the current by the next sample and over the
+        # period: for the observer and the flux model at the next sample
         self.i_expected = i_next
+        self.prev_mean, self.prev_theta, self.prev_turn = mean_now, theta, turn
         self.u_sent = u
         self.theta_slip += w_slip * T
         # --- duties: the stator-frame vector held over the period, min-max injection -----

@@ -269,7 +269,8 @@ class ReferenceController:
         # electric braking: what the resistor takes below the trip, plus half of what the
         # line may take back (a non-receptive line takes less than its limit says)
         p_chop = 0.8 * (cfg.link_nominal_v + 200.0) ** 2 / cfg.chopper_ohm
-        p_feed = [(p_chop - 0.5 * lo) / DRIVE_EFFICIENCY / self.inverters_on_link[i]
+        # (shaft power: the link receives it times the efficiency, so divide by that)
+        p_feed = [(p_chop - 0.5 * lo) / FEEDFORWARD_EFFICIENCY / self.inverters_on_link[i]
                   for i, (lo, _) in enumerate(limits)] if cfg.line_side else None
         for k, n_mot in enumerate(cfg.n_motors_per_inverter):
             link = cfg.inverter_links[k]

@@ -9,7 +9,6 @@ controller).
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from emulator.plant.drivetrain import POLACH_WET, polach_force
 from emulator.protocol.signal_map import MODES

