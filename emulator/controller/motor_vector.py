@@ -22,16 +22,23 @@ controller predicts i(t_(k+1)) from the sample and the voltage already sent, the
 chooses the voltage that moves the current a fraction LAMBDA of the way to the
 reference by t_(k+2) (a gain-reduced deadbeat, i.e. predictive current control: Holmes
 & Lipo, *PWM for Power Converters*, 2003, ch. on current regulation; Buso & Mattavelli,
-*Digital Control in Power Electronics*, 2006, delay compensation; from memory). An
-integrator in the rotor-flux frame removes what the model misses (dead time, drops,
-parameters) and stops while the voltage is limited (anti-windup).
+*Digital Control in Power Electronics*, 2006, delay compensation; from memory). The
+torque and the flux follow the period's mean current, which at a few samples per
+electrical period differs from the sample by tens of amperes: the sample is aimed at the
+reference shifted by the modelled mean-to-end offset, and the flux model is fed the
+model's mean over the period just ended, corrected by half the sample's prediction error.
+A disturbance observer in the field frame takes what the model misses (dead time,
+drops, parameters) into the voltage.
 
-Field weakening: the flux reference is the rated flux times base speed over speed
-(feed-forward) lowered further by a voltage-margin loop that keeps the voltage the
-current control asks for below MARGIN times the inverter's limit U_dc / sqrt(3) (linear
-modulation with min-max injection); the torque reference is limited by the current limit
-and by the voltage-limited (breakdown) torque of the steady-state model at that speed and
-voltage, T_k = 3/2 p (L_m^2 / L_r) U^2 / (2 w_e^2 sigma L_s^2) (any drives text).
+Field weakening: the flux reference is the largest flux (at most rated) whose steady
+state carries the torque within MARGIN of the voltage U_dc / sqrt(3) (linear modulation
+with min-max injection), planned on no more than the nominal link; where no flux carries
+it, the breakdown flux. A slow voltage-margin loop lowers it further where the model
+misses. The torque is limited by the current limit and by the q current the voltage can
+carry beside the flux's (steady state with R_s, so motoring and braking differ); its
+largest value is the breakdown torque T_k = 3/2 p (L_m^2 / L_r) U^2 / (2 w_e^2 L_s sigma
+L_s) (any drives text). At the voltage limit the flux goes first: the q part of the goal
+is cut until the voltage fits.
 """
 
 from __future__ import annotations
@@ -45,7 +52,6 @@ from .motor_scalar import TWO_PI_3
 
 LAMBDA = 0.6  # share of the current's error removed per period
 FLUX_KP = 2.0  # flux forcing: d current per flux error, in units of 1 / L_m
-FLUX_KI = 0.0  # A per (V s) of flux error, per second
 OFFSET_SHARE = 0.2  # per period: how fast the mean-to-end offset estimate follows
 OBSERVER_GAIN = 0.1  # share of a period's prediction error taken into the voltage error
 MARGIN = 0.93  # voltage the control plans to use, of U_dc / sqrt(3): room for dynamics
@@ -139,7 +145,6 @@ class VectorControl:
         self.theta_slip = 0.0
         self.du = 0j  # observed voltage error (dead time, drops, model), field frame, V
         self.mean_offset = 0j  # a period's mean current less its end current, field frame
-        self.flux_integral = 0.0  # the flux regulator's integral, A
         self.i_expected: complex | None = None  # the current predicted for this sample
         self.prev_mean: complex | None = None  # the model's mean current over the period
         self.prev_theta = 0.0  # under way, stator frame; the field angle at its start
@@ -279,14 +284,10 @@ class VectorControl:
         psi_ss = self.curve.flux(i_d_mean)  # the rotor flux that d current holds
         self.psi_r = psi_ss + (self.psi_r - psi_ss) * math.exp(-T / tau_now)
         psi = max(self.psi_r, 0.05 * self.psi_rated)
-        # flux regulation on the model: the d current the curve gives for the reference,
-        # plus a proportional forcing and an integral of the flux error (whatever the mean
-        # current control leaves, the flux goes where its reference says)
+        # the d current the curve gives for the flux reference, plus a forcing on the
+        # model's flux error: the flux gets there faster than its rotor time constant
         flux_error = self.psi_ref - self.psi_r
-        self.flux_integral = min(max(self.flux_integral + FLUX_KI * flux_error * T,
-                                     -0.3 * self.i_max), 0.3 * self.i_max)
-        i_d_ref = min(max(i_d_ref + FLUX_KP * flux_error / lm_now + self.flux_integral,
-                          0.0), 0.8 * self.i_max)
+        i_d_ref = min(max(i_d_ref + FLUX_KP * flux_error / lm_now, 0.0), 0.8 * self.i_max)
         k_t = 1.5 * p * lm_now / lr_now * psi  # N m per A of i_q
         self.torque_estimate = k_t * mean_dq.imag  # over the period just ended
         # --- torque and its limits: current, and the voltage left beside the flux's -------

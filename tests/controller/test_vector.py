@@ -73,7 +73,7 @@ def bench_run(speed_rad_s: float, torque_nm: float, step_at: int = 3000,
             if torque_nm > 0 else max(after.min() / torque_nm - 1.0, 0.0),
             "flux_change": float(np.abs(flux[step_at:] / flux[step_at - 1] - 1).max()),
             "final_nm": float(after[-50:].mean()), "voltage_v": float(np.mean(u_mean[-50:])),
-            "electrical_hz": None, "cfg": cfg, "ctl": ctl}
+            "ctl": ctl}
 
 
 @pytest.mark.parametrize("speed", [60.0, 150.0])  # 0.3 and 0.8 of base (193 rad/s)
