@@ -281,8 +281,13 @@ class VectorControl:
         else:
             mean_dq = i_dq
         i_d_mean = mean_dq.real
-        psi_ss = self.curve.flux(i_d_mean)  # the rotor flux that d current holds
-        self.psi_r = psi_ss + (self.psi_r - psi_ss) * math.exp(-T / tau_now)
+        # rotor d circuit, 0 = R_r i_rd + dpsi_r/dt with i_rd = i_m - i_d: the flux moves
+        # with the difference between the d current and the magnetising current its
+        # present level takes on the curve (L_m/L_r for the rotor leakage). In saturation
+        # a large i_d builds the flux faster than psi(i_d) / tau_r would say: the
+        # magnetising current, not i_d, sets L_m while the flux is still low.
+        self.psi_r = max(self.psi_r + T * self.rr * lm_now / lr_now
+                         * (i_d_mean - self.curve.current(self.psi_r)), 0.0)
         psi = max(self.psi_r, 0.05 * self.psi_rated)
         # the d current the curve gives for the flux reference, plus a forcing on the
         # model's flux error: the flux gets there faster than its rotor time constant
