@@ -11,13 +11,20 @@ from emulator.link import open_link
 from emulator.link.loop import LoopLink
 
 
-async def attach_reference(channel: str, rig, profile, period_s: float | None = None):
+async def attach_reference(channel: str, rig, profile, period_s: float | None = None,
+                           motor_control: str | None = None):
     """The reference controller for ``profile``, answering ``rig`` through
-    ``loop://channel``; returned so callers may inspect or alter it."""
+    ``loop://channel``; returned so callers may inspect or alter it. ``motor_control``
+    ("scalar" or "vector") overrides the profile's choice."""
+    import dataclasses
+
     from emulator.controller.config import config_from_profile
     from emulator.controller.tcu import ReferenceController
 
-    tcu = ReferenceController(config_from_profile(profile, period_s), rig.signal_map.as_dict())
+    cfg = config_from_profile(profile, period_s)
+    if motor_control is not None:
+        cfg = dataclasses.replace(cfg, motor_control=motor_control)
+    tcu = ReferenceController(cfg, rig.signal_map.as_dict())
     await attach(channel, tcu.answer)
     return tcu
 

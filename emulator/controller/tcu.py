@@ -249,12 +249,19 @@ class ReferenceController:
 
         # --- adhesion and motor control per inverter ----------------------------------
         if all(e.settled for e in self.encoders):
-            # what the train itself can do now: its effort over its mass
+            # what the train itself can do now: its effort over its mass; without effort
+            # the wheels roll with the train, so the reference starts anew from them (a
+            # train moved by the track or by gravity keeps a true reference)
             plausible = self.effort_n / (cfg.mass_kg * ROTATING_FACTOR)
+            if self.effort_n == 0.0:
+                self.adhesion.v_ref = None
             factors = self.adhesion.step(wheel_mps, braking, plausible)
         else:  # until the encoders' windows hold measured speeds there is no creep to judge
             factors = self.adhesion.factor
-        torque_motor = self.effort_n * r / (gear * GEAR_EFFICIENCY * self.n_motors)
+        # the gear's loss comes from the power flow: the motors give more than the rail
+        # gets in traction, the rail gives more than the motors get in braking
+        eta = GEAR_EFFICIENCY if self.effort_n >= 0 else 1.0 / GEAR_EFFICIENCY
+        torque_motor = self.effort_n * r / (gear * eta * self.n_motors)
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
@@ -333,7 +340,8 @@ class ReferenceController:
                     out[i] = 0.5
             out[self.ox_gates[k]] = float(active)
         # the effort achieved: torque estimated from the measured currents, not the demand
-        self.achieved_n = achieved * gear * GEAR_EFFICIENCY / r * direction
+        eta = GEAR_EFFICIENCY if achieved * direction >= 0 else 1.0 / GEAR_EFFICIENCY
+        self.achieved_n = achieved * gear * eta / r * direction
 
         # --- line converters ----------------------------------------------------------
         if cfg.line_side:

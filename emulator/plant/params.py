@@ -160,6 +160,24 @@ class TrainParams:
 
 
 @dataclass(frozen=True)
+class EffortLimits:
+    """The trainset's specified tractive- and braking-effort curve at the rail: constant
+    effort up to the speed where it meets constant power (the controller is designed to
+    it; `railrig characteristic` measures against it)."""
+
+    tractive_effort_n: float
+    tractive_power_w: float
+    braking_effort_n: float
+    braking_power_w: float
+
+    def at(self, speed_mps: float, braking: bool = False) -> float:
+        """The effort limit at a speed, N (positive)."""
+        f, p = ((self.braking_effort_n, self.braking_power_w) if braking
+                else (self.tractive_effort_n, self.tractive_power_w))
+        return min(f, p / max(abs(speed_mps), 1e-6))
+
+
+@dataclass(frozen=True)
 class TrainsetParams:
     """Everything the plant needs to build its state arrays."""
 
@@ -180,6 +198,7 @@ class TrainsetParams:
     notes: dict[str, str] = field(default_factory=dict)
     sensors: Any = None  # emulator.rig.sensors.SensorParams; the plant does not use it
     motor_control: str = "scalar"  # the reference controller's method: scalar or vector
+    effort_limits: EffortLimits | None = None  # the specified effort curve, if given
 
     @property
     def motor_count(self) -> int:

@@ -281,6 +281,13 @@ class Plant:
                 self.ms[m, L.MS_OMEGA_M] = om
                 self.ms[m, L.MS_OMEGA_AT_REFRESH] = om
 
+    def hold_speed(self, speed_mps: float) -> None:
+        """Hold the train (not its wheelsets) at speed_mps, as a dynamometer or the track of
+        a characteristic measurement would: the wheels keep their own speed, so the creep
+        and the creep force come from the drive."""
+        self._finite("speed", speed_mps, -200.0, 200.0)
+        self.ts[L.TS_SPEED] = speed_mps
+
     @staticmethod
     def _finite(what: str, value: float, lo: float, hi: float) -> None:
         if not (isinstance(value, int | float) and math.isfinite(value) and lo <= value <= hi):

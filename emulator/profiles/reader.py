@@ -18,6 +18,7 @@ from emulator.plant.params import (
     ConverterParams,
     DcLinkParams,
     DrivetrainParams,
+    EffortLimits,
     InverterParams,
     LineConverterParams,
     LineConverterUnit,
@@ -381,9 +382,16 @@ def load_trainset(path: Path | str) -> TrainsetParams:
             raise root.error("dc_link", f"link {lk.name!r} has no line converter feeding it")
     sensors = _sensors(root.table("sensors")) if root.has("sensors") else SensorParams()
     motor_control = "scalar"
+    effort_limits = None
     if root.has("controller"):  # the reference controller's settings
         ctl = root.table("controller")
         motor_control = ctl.string("motor_control", ("scalar", "vector"))
+        if ctl.has("max_tractive_effort_kn"):  # the specified effort curve at the rail
+            effort_limits = EffortLimits(
+                ctl.number("max_tractive_effort_kn", "kN", 1.0, 5000.0, scale=1e3),
+                ctl.number("max_tractive_power_kw", "kW", 1.0, 50000.0, scale=1e3),
+                ctl.number("max_braking_effort_kn", "kN", 1.0, 5000.0, scale=1e3),
+                ctl.number("max_braking_power_kw", "kW", 1.0, 50000.0, scale=1e3))
         ctl.finish()
     root.finish()
     return TrainsetParams(name=name, source=str(path), substep_s=substep, frame_s=frame,
@@ -391,4 +399,5 @@ def load_trainset(path: Path | str) -> TrainsetParams:
                           inverter=inverter, dc_links=tuple(links),
                           converters=tuple(converters), notes=notes,
                           sensors=sensors, transformer=transformer, motor_control=motor_control,
+                          effort_limits=effort_limits,
                           line_converter=line_converter, line_converters=tuple(units))

@@ -1,0 +1,93 @@
+"""``railrig characteristic``: the effort/speed characteristic of the reference controller.
+
+The train held at each speed (a dynamometer), full and partial demands in motoring and
+braking, the force at the rail set beside the trainset's specified curve; a table, JSON,
+or a PNG plot (``--report DIR``). See ``emulator.scenario.characteristic``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import json
+from pathlib import Path
+
+from rich.console import Console
+from rich.table import Table
+
+from emulator.commands import DEFAULT_TRAINSET
+
+console = Console(stderr=True)
+HELP = "measure the controller's tractive- and braking-effort characteristic"
+
+
+def add_arguments(ch: argparse.ArgumentParser) -> None:
+    """The options of ``railrig characteristic``."""
+    ch.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
+    ch.add_argument("--controller", choices=("reference",), default="reference",
+                    help="the controller measured (the reference, in this process)")
+    ch.add_argument("--control", choices=("vf", "vector"), default=None,
+                    help="override the profile's motor control of the reference")
+    ch.add_argument("--speeds-kmh", default=None,
+                    help="comma-separated speed points (default: 5, then every 20 km/h "
+                    "up to the trainset's maximum)")
+    ch.add_argument("--demands", default="1,0.5,-0.5,-1",
+                    help="comma-separated demands, negative brakes")
+    ch.add_argument("--json", action="store_true", help="the points as JSON on stdout")
+    ch.add_argument("--report", default=None, metavar="DIR",
+                    help="write characteristic.png and characteristic.json here")
+
+
+def run(args: argparse.Namespace) -> int:
+    """Measure, then print (or write) the characteristic; 1 if a protective trip came."""
+    from emulator.profiles.reader import load_trainset, resolve_profile
+    from emulator.scenario.characteristic import as_json, measure, plot
+
+    profile = resolve_profile(args.profile)
+    params = load_trainset(profile)
+    try:
+        speeds = ([float(s) for s in args.speeds_kmh.split(",")] if args.speeds_kmh else
+                  [5.0, *range(20, int(params.train.max_speed_mps * 3.6) + 1, 20)])
+        demands = [float(d) for d in args.demands.split(",")]
+    except ValueError as exc:
+        console.print(f"[red]error:[/red] speeds and demands are numbers: {exc}")
+        return 2
+    if not demands or any(not -1.0 <= d <= 1.0 or d == 0 for d in demands):
+        console.print("[red]error:[/red] demands are within -1..1 and not 0")
+        return 2
+    control = {"vf": "scalar", "vector": "vector", None: None}[args.control]
+    shown = control or params.motor_control
+    console.print(f"characteristic of {params.name}, {shown} control: {len(speeds)} speeds x "
+                  f"{len(demands)} demands")
+
+    def progress(v: float, d: float) -> None:
+        console.print(f"  {v:5.0f} km/h, demand {d:+.2f}")
+
+    try:
+        points = asyncio.run(measure(profile, speeds, demands, control=control,
+                                     progress=progress))
+    except ValueError as exc:
+        console.print(f"[red]error:[/red] {exc}")
+        return 2
+    data = as_json(points)
+    if args.report:
+        where = Path(args.report)
+        where.mkdir(parents=True, exist_ok=True)
+        (where / "characteristic.json").write_text(json.dumps(data, indent=1))
+        png = plot(points, f"{params.name}, {shown} control", where / "characteristic.png")
+        console.print(f"wrote {png} and {where / 'characteristic.json'}")
+    if args.json:
+        print(json.dumps(data))
+    else:
+        table = Table(title=f"Effort characteristic: {params.name}, {shown} control")
+        for col in ("km/h", "demand", "rail kN", "curve kN", "of curve", "inv A rms",
+                    "flux V s", "modulation", "link V", "line PF", "trips"):
+            table.add_column(col, justify="left" if col == "trips" else "right")
+        for p in points:
+            table.add_row(f"{p.speed_kmh:.0f}", f"{p.demand:+.2f}", f"{p.rail_force_kn:+.1f}",
+                          f"{p.demand * abs(p.limit_kn):+.1f}", f"{p.share_of_limit:.1%}",
+                          f"{p.inverter_current_a_rms:.0f}", f"{p.rotor_flux_vs:.2f}",
+                          f"{p.modulation:.2f}", f"{p.dc_link_v:.0f}",
+                          f"{p.line_power_factor:.3f}", ", ".join(p.trips) or "none")
+        Console().print(table)
+    return 1 if any(p.trips for p in points) else 0

@@ -1,0 +1,60 @@
+"""``railrig characteristic``: the reference controller's effort against the trainset's curve.
+
+The train is held at each speed by the rig (a dynamometer) and the controller, with the
+rig's one-frame command delay, is given full demand in motoring and braking. Checks (the
+issue's targets for the reference controller): the force at the rail within 5 % of the
+specified curve below base speed (about 72 km/h) and 10 % above it, no protective trip,
+line power factor at least 0.95 above 20 % of rated power (a PWM four-quadrant converter
+runs near unity power factor: common practice, REFERENCES.md).
+"""
+
+from __future__ import annotations
+
+import asyncio
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from emulator.profiles.reader import PROFILES_DIR
+from emulator.scenario.characteristic import measure
+
+ROOT = Path(__file__).parents[2]
+BASE_KMH = 72.0  # the Tern's base speed at 62 Hz, 1.24 % slip, gear 4.1, wheel 0.85 m
+
+
+def _check(points: list[dict]) -> None:
+    for p in points:
+        tolerance = 0.05 if p["speed_kmh"] < BASE_KMH else 0.10
+        assert p["share_of_limit"] == pytest.approx(1.0, abs=tolerance), p
+        assert not p["trips"], p
+        if abs(p["rail_force_kn"] * p["speed_kmh"] / 3.6) > 0.2 * 8 * 310.0:  # kW
+            assert abs(p["line_power_factor"]) >= 0.95, p
+
+
+def test_vector_control_meets_the_curve_as_a_user_measures_it(tmp_path) -> None:
+    out = subprocess.run(
+        [sys.executable, "-m", "emulator.cli", "characteristic", "--profile",
+         "trainsets/tern-15kv", "--speeds-kmh", "20,70,140", "--demands", "1,-1", "--json",
+         "--report", str(tmp_path)], cwd=ROOT, capture_output=True, text=True, timeout=600)
+    assert out.returncode == 0, out.stderr
+    points = json.loads(out.stdout)
+    assert [(p["speed_kmh"], p["demand"]) for p in points] == [
+        (20.0, 1.0), (20.0, -1.0), (70.0, 1.0), (70.0, -1.0), (140.0, 1.0), (140.0, -1.0)]
+    _check(points)
+    assert (tmp_path / "characteristic.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert json.loads((tmp_path / "characteristic.json").read_text()) == points
+
+
+# Measured this session (V/f, tern-25kv, full demand): braking gives 105-140 % of the curve
+# at 20-120 km/h, motoring 83-91 % at low and high speed, and full motoring trips the
+# inverter overcurrent protection between 40 and 120 km/h. The V/f control's slip-to-torque
+# law and its limits are still to be redone. Strict: the marker goes when it passes.
+@pytest.mark.xfail(strict=True, reason="V/f characteristic not yet on the curve: braking "
+                   "up to 140 %, motoring trips the inverter overcurrent at 40-120 km/h")
+def test_scalar_control_meets_the_curve() -> None:
+    points = asyncio.run(measure(PROFILES_DIR / "trainsets" / "tern-25kv.toml",
+                                 [20.0, 70.0, 140.0], [1.0, -1.0]))
+    _check([dict(p.__dict__, share_of_limit=p.share_of_limit) for p in points])
