@@ -22,6 +22,7 @@ import msgpack
 import numpy as np
 
 from emulator.link import open_link
+from emulator.link.udp import free_loopback_port
 from emulator.plant.params import TrainsetParams
 from emulator.rig.clock import MonotonicClock
 from emulator.rig.frame_loop import Rig
@@ -41,12 +42,6 @@ class NaiveSleepClock:
 
     def close(self) -> None:
         pass
-
-
-def _free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 def echo_main(argv: list[str]) -> None:
@@ -127,7 +122,7 @@ async def _rig_run(params: TrainsetParams, rig_port: int, echo_port: int, mode: 
 
 def link_benchmark(params: TrainsetParams, seconds: float = 10.0) -> dict[str, Any]:
     """Figures of the rig's pacing and link (see the module docstring)."""
-    rig_port, echo_port = _free_port(), _free_port()
+    rig_port, echo_port = free_loopback_port(), free_loopback_port()
     from emulator.protocol.signal_map import build_signal_map
 
     sm = build_signal_map(params)  # the echo answers duties 0.5, gates blocked, zeros

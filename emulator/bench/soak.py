@@ -94,17 +94,6 @@ def _growth_mb_per_h(t_s: np.ndarray, mb: np.ndarray, skip_s: float = 60.0) -> f
     return float(np.polyfit(t_s[keep] / 3600.0, mb[keep], 1)[0])
 
 
-def _free_udp_ports(n: int) -> list[int]:
-    import socket
-
-    ports = []
-    for _ in range(n):
-        with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
-            s.bind(("127.0.0.1", 0))
-            ports.append(s.getsockname()[1])
-    return ports
-
-
 async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool,
                 controller: str) -> dict[str, Any]:
     from emulator.controller.inprocess import attach_reference
@@ -117,12 +106,10 @@ async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool,
     where = Path(tempfile.mkdtemp(prefix="railrig-soak-"))
     board = None
     if controller == "process":  # as a board: the reference controller over UDP
-        rig_port, ctl_port = _free_udp_ports(2)
-        link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{ctl_port}")
-        board = subprocess.Popen(
-            [sys.executable, "-m", "emulator.cli", "controller", "--profile", str(profile),
-             "--link", f"udp://127.0.0.1:{ctl_port}?peer=127.0.0.1:{rig_port}",
-             "--idle-timeout", "5"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        from emulator.controller.process import spawn_controller
+
+        url, board = spawn_controller(profile, quiet=True)
+        link = open_link(url)
         await link.open()
         rig = Rig(load_trainset(profile), link, mode="realtime", clock=MonotonicClock())
     else:

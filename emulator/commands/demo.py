@@ -53,9 +53,7 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
     controller``), or in this process through the in-process adapter.
     """
     import asyncio
-    import socket
     import subprocess
-    import sys
 
     from emulator.link import open_link
     from emulator.profiles.reader import load_trainset
@@ -73,19 +71,12 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
         rig = Rig(params, link, mode="lockstep")
         await attach_reference("railrig-demo", rig, profile)
     else:
-        ports = []
-        for _ in range(2):
-            with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
-                s.bind(("127.0.0.1", 0))
-                ports.append(s.getsockname()[1])
-        rig_port, ctl_port = ports
-        link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{ctl_port}")
+        from emulator.controller.process import spawn_controller
+
+        url, child = spawn_controller(profile)
+        link = open_link(url)
         await link.open()
         rig = Rig(params, link, mode="lockstep")
-        child = subprocess.Popen(
-            [sys.executable, "-m", "emulator.cli", "controller", "--profile", str(profile),
-             "--link", f"udp://127.0.0.1:{ctl_port}?peer=127.0.0.1:{rig_port}",
-             "--idle-timeout", "5"])
     program = demo_program(target_kmh=target_kmh, stop_at_m=stop_at_m, cruise_s=cruise_s,
                            coast_s=coast_s)
     rig.program = program

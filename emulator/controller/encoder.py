@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 from collections import deque
+from itertools import islice
 
 COUNTER_MODULUS = 1 << 16
 
@@ -52,7 +53,7 @@ class EncoderSpeed:
             self.counts.append(delta)
         self.speed_raw = delta * self.rad_per_count / self.T
         self.speed = sum(self.counts) * self.rad_per_count / (self.window * self.T)
-        recent = sum(list(self.counts)[-self.short:])
+        recent = sum(islice(reversed(self.counts), self.short))
         self.speed_short = recent * self.rad_per_count / (self.short * self.T)
         return self.speed
 

@@ -9,8 +9,11 @@ from __future__ import annotations
 
 import asyncio
 import logging
+import subprocess
+import sys
 
 from emulator.link import open_link
+from emulator.link.udp import free_loopback_port
 from emulator.protocol.signal_map import build_signal_map
 
 from .config import config_from_profile
@@ -42,3 +45,16 @@ async def serve_controller(profile, link_url: str, *, allow_remote: bool = False
     finally:
         link.close()
     return tcu
+
+
+def spawn_controller(profile, idle_timeout_s: float = 5.0,
+                     quiet: bool = False) -> tuple[str, subprocess.Popen]:
+    """Start ``railrig controller`` in a process of its own on loopback UDP; returns the
+    link URL the rig opens to reach it, and the process."""
+    rig_port, ctl_port = free_loopback_port(), free_loopback_port()
+    out = subprocess.DEVNULL if quiet else None
+    child = subprocess.Popen(
+        [sys.executable, "-m", "emulator.cli", "controller", "--profile", str(profile),
+         "--link", f"udp://127.0.0.1:{ctl_port}?peer=127.0.0.1:{rig_port}",
+         "--idle-timeout", f"{idle_timeout_s:g}"], stdout=out, stderr=out)
+    return f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{ctl_port}", child

@@ -258,10 +258,8 @@ class ReferenceController:
             factors = self.adhesion.step(wheel_mps, braking, plausible)
         else:  # until the encoders' windows hold measured speeds there is no creep to judge
             factors = self.adhesion.factor
-        # the gear's loss comes from the power flow: the motors give more than the rail
-        # gets in traction, the rail gives more than the motors get in braking
-        eta = GEAR_EFFICIENCY if self.effort_n >= 0 else 1.0 / GEAR_EFFICIENCY
-        torque_motor = self.effort_n * r / (gear * eta * self.n_motors)
+        torque_motor = (self.effort_n * r
+                        / (gear * _gear_efficiency(self.effort_n) * self.n_motors))
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
@@ -305,7 +303,7 @@ class ReferenceController:
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
             healthy = [a for a in range(first, first + n_mot) if self.sensor_ok[a]]
             angle = (sum(self.encoders[a].angle for a in healthy) / len(healthy) if healthy
-                     else self.vector_angle_fallback(k, motor_speed, period_s))
+                     else self._fallback_angle_for(k, motor_speed, period_s))
             if p_draw is not None and torque * motor_speed > 0:  # motoring
                 sag = min(max((u_d - 0.75 * cfg.link_nominal_v)
                               / (0.15 * cfg.link_nominal_v), 0.0), 1.0)
@@ -340,8 +338,8 @@ class ReferenceController:
                     out[i] = 0.5
             out[self.ox_gates[k]] = float(active)
         # the effort achieved: torque estimated from the measured currents, not the demand
-        eta = GEAR_EFFICIENCY if achieved * direction >= 0 else 1.0 / GEAR_EFFICIENCY
-        self.achieved_n = achieved * gear * eta / r * direction
+        self.achieved_n = (achieved * gear * _gear_efficiency(achieved * direction) / r
+                           * direction)
 
         # --- line converters ----------------------------------------------------------
         if cfg.line_side:
@@ -369,7 +367,7 @@ class ReferenceController:
         out[self.ox_status] = float(self.sequence.state)
         out[self.ox_event] = float(self.event)
 
-    def vector_angle_fallback(self, inverter: int, speed: float, period_s: float) -> float:
+    def _fallback_angle_for(self, inverter: int, speed: float, period_s: float) -> float:
         """A rotor angle for an inverter whose encoders have all failed: integrated from
         the speed its neighbours give (the drive goes on, less precisely)."""
         self._fallback_angle[inverter] = (self._fallback_angle.get(inverter, 0.0)
@@ -394,17 +392,7 @@ class ReferenceController:
                 self.sensor_ok[m] = False
                 self._raise(events.SPEED_SENSOR_FAULT)
         self._last_speeds = list(raw)
-        healthy = [r for r, ok in zip(readings, self.sensor_ok, strict=True) if ok]
-        if len(healthy) == len(readings) or not healthy:
-            return readings
-        out = list(readings)
-        for k in range(len(self.motors)):
-            axles = self._axles(k)
-            own = [readings[a] for a in axles if self.sensor_ok[a]]
-            for a in axles:
-                if not self.sensor_ok[a]:
-                    out[a] = sum(own) / len(own) if own else sum(healthy) / len(healthy)
-        return out
+        return self._plausible_fill(readings)
 
     def _plausible_fill(self, readings: list[float]) -> list[float]:
         """Readings with the failed sensors' replaced by their neighbours' (no new
@@ -437,3 +425,10 @@ def _link_power(p_shaft: float) -> float:
     if p_shaft >= 0.0:
         return p_shaft / FEEDFORWARD_EFFICIENCY
     return p_shaft * FEEDFORWARD_EFFICIENCY
+
+
+def _gear_efficiency(rail_force: float) -> float:
+    """Rail force over (motor torque x gear / r): the gear's loss comes from the power
+    flow, so the motors give more than the rail gets in traction and the rail gives
+    more than the motors get in braking."""
+    return GEAR_EFFICIENCY if rail_force >= 0 else 1.0 / GEAR_EFFICIENCY

@@ -11,6 +11,14 @@ from urllib.parse import SplitResult
 from .base import Link, LinkError, host_port
 
 
+def free_loopback_port() -> int:
+    """A UDP port on 127.0.0.1 that nobody holds now (for a rig and a controller on one
+    machine; another process may take it before it is bound again)."""
+    with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
 def _is_loopback(host: str) -> bool:
     if host == "localhost":
         return True

@@ -5,8 +5,6 @@ from __future__ import annotations
 
 import copy
 import shutil
-import subprocess
-import sys
 from pathlib import Path
 
 import pytest
@@ -14,12 +12,7 @@ import pytest
 from emulator.commands.replay import UnsafeRecordingError, _rebuild
 from emulator.recording.recorder import Recorder, read_recording
 
-from .test_run import ROOT, SHORT
-
-
-def _railrig(*args: str, cwd: Path) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "emulator.cli", *args], cwd=cwd,
-                          capture_output=True, text=True, timeout=600)
+from .test_run import ROOT, SHORT, _railrig
 
 
 @pytest.fixture(scope="module")
