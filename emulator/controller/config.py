@@ -45,10 +45,16 @@ class ControllerConfig:
     mass_kg: float
     max_speed_mps: float
     encoder_lines: int
+    #: the inverter's own PWM settings (the firmware sets them): for dead-time compensation
+    switching_frequency_hz: float
+    dead_time_s: float
     n_motors_per_inverter: tuple[int, ...]
     n_line_converters_per_link: tuple[int, ...]
     line_side: bool
     motor_control: str = "scalar"
+    #: above this train speed the effort curve falls as 1/v^2 (profile's
+    #: natural_characteristic_from_kmh), m/s
+    natural_from_mps: float = math.inf
     #: the motor's magnetising curve (type test): main flux (V s, peak) against the
     #: magnetising current (A, peak); empty: linear with magnetising_h
     saturation_current_a: tuple[float, ...] = ()
@@ -140,11 +146,15 @@ def config_from_profile(path, period_s: float | None = None) -> ControllerConfig
         mass_kg=p.train.mass_kg,
         max_speed_mps=p.train.max_speed_mps,
         encoder_lines=p.sensors.encoder_lines if p.sensors else 256,
+        switching_frequency_hz=p.inverter.switching_frequency_hz,
+        dead_time_s=p.inverter.dead_time_s,
         n_motors_per_inverter=tuple(len(c.wheel_diameters_m) for c in p.converters),
         n_line_converters_per_link=tuple(sum(1 for u in p.line_converters if u.dc_link == i)
                                          for i in range(len(links))),
         line_side=tr is not None,
         motor_control=p.motor_control,
+        natural_from_mps=(p.effort_limits.natural_from_mps if p.effort_limits
+                          else math.inf),
         saturation_current_a=tuple(m.saturation_current_a),
         saturation_flux_vs=tuple(m.saturation_flux_vs),
         link_names=tuple(lk.name for lk in links),

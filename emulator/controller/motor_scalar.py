@@ -1,38 +1,68 @@
 """Scalar (V/f) motor control of one inverter and its parallel motors.
 
-Torque is set by the slip frequency at (near) rated flux: the stator frequency is the
-measured rotor frequency plus the slip that gives the torque, f_s = p n + f_slip(T), and
-the voltage follows V/f with a low-speed boost (Bose, *Modern Power Electronics and AC
-Drives*, 2002, ch. 8, slip-regulated scalar control; Mohan, *Advanced Electric Drives*,
-from memory). Above the base frequency the voltage is at its limit and the flux falls
-as 1/f: the slip for a torque grows as (f_s / f_base)^2 (constant-power region).
+Torque is set by the slip at a held main (air-gap) flux, the stator voltage and frequency
+following from the steady-state equivalent circuit (T form, amplitude-invariant peak
+vectors; Bose, *Modern Power Electronics and AC Drives*, 2002, ch. 8, slip-regulated
+scalar control with stator-drop compensation; Fitzgerald, Kingsley & Umans, ch. 6):
 
-Modulation: space-vector equivalent by min-max zero-sequence injection, voltage up to
-U_dc / sqrt(3) per phase; the duty is computed with the measured link voltage each period,
-which also compensates the DC-link 2f ripple (beat suppression). Delay compensation:
-the angle is advanced to the middle of the period in which the command acts (1.5 T).
+    E_m = j w_s psi_m,  I_r = j psi_m w_sl / (R_r + j w_sl L_lr),  I_s = psi_m / L_m + I_r,
+    U_s = (R_s + j w_s L_ls) I_s + E_m = psi_m G(w_sl),
+    T = 3/2 p psi_m^2 w_sl R_r / (R_r^2 + (w_sl L_lr)^2),
 
-``speed_mode``: classic V/f with a frequency command instead of a torque command (and
-optional slip compensation from the estimated air-gap power), for the speed-regulation
-check.
+w_s = p w_m + w_sl. The I R (and leakage) compensation is the whole stator branch, so the
+flux holds at low frequency and in braking, where a fixed boost over- or under-fluxes.
+Where U_s would pass the voltage the link gives, psi_m = U / |G(w_sl)| (field weakening:
+the torque at a slip falls as (U / w_s)^2) and the slip for the torque is found on that
+curve. The slip is limited to 0.9 of the breakdown slip of the circuit at that voltage
+(Kloss: T / T_k = 2 / (s / s_k + s_k / s), 99 % of the breakdown torque there) and by the
+inverter current limit. L_m is the secant of the magnetising curve at the flux.
+
+Slip regulation is angle-based: the stator angle is the counted rotor angle (times p)
+plus the integrated slip, so the slip is what the torque needs whatever the lag and
+quantisation of the speed reading. The inverter's dead time is compensated by the sign of
+each phase current (``modulation.duties``), so the voltage the circuit asks for is what the motor
+gets at low frequency.
+
+Modulation and dead-time compensation: ``modulation.duties``. Delay compensation: the
+angle is advanced to the middle of the period in which the command acts (1.5 T).
+
+``f_command_hz``: classic V/f with a boost, a frequency command instead of a torque
+command (and optional slip compensation from the estimated air-gap power), for the
+speed-regulation check.
 """
 
 from __future__ import annotations
 
+import cmath
 import math
 
 from .config import ControllerConfig
+from .flux_curve import MagnetisingCurve
+from .modulation import duties
 
-TWO_PI_3 = 2 * math.pi / 3
+VOLTAGE_MARGIN = 0.97  # of U_dc / sqrt(3): what the plan uses (ripple, dead time)
+SLIP_LIMIT_SHARE = 0.9  # of the breakdown slip: 99 % of the breakdown torque (Kloss)
+CURRENT_LIMIT_FACTOR = 2.2  # peak current per motor, of the rated peak (inverter limit)
+BISECTIONS = 16
+BREAKDOWN_EVERY = 16  # periods between searches for the breakdown slip
+FLUX_TRIM_S = 0.2  # time constant of the voltage trim that holds the flux on the current's
+FLUX_TRIM_RANGE = 0.15
+TRIM_UP_TO = 0.5  # of the rated frequency
+LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple  # the most the trim may change the voltage, of the circuit's
 
 
 class ScalarControl:
-    """V/f with slip regulation for one inverter."""
+    """V/f with slip regulation and stator-drop compensation for one inverter."""
 
     def __init__(self, cfg: ControllerConfig, n_motors: int) -> None:
         self.cfg = cfg
         self.n_motors = n_motors
         self.T = cfg.period_s
+        self.p = cfg.pole_pairs
+        self.rs, self.rr = cfg.stator_resistance_ohm, cfg.rotor_resistance_ohm
+        self.lls, self.llr = cfg.stator_leakage_h, cfg.rotor_leakage_h
+        self.curve = MagnetisingCurve(cfg.magnetising_h, cfg.saturation_current_a,
+                                      cfg.saturation_flux_vs)
         self.theta = 0.0
         self.theta_slip = 0.0  # angle-based slip regulation: the integrated slip, rad
         self.f_s = 0.0
@@ -40,18 +70,131 @@ class ScalarControl:
         self.volts_per_hz = self.u_peak_rated / cfg.rated_frequency_hz
         i_rated = cfg.rated_power_w / (math.sqrt(3) * cfg.rated_voltage_v * 0.87)
         self.boost_v = math.sqrt(2) * cfg.stator_resistance_ohm * i_rated * 1.2
+        self.i_max = CURRENT_LIMIT_FACTOR * math.sqrt(2) * i_rated
+        self.sign_band_a = 0.05 * math.sqrt(2) * i_rated * n_motors  # 5 % of rated
         self.f_slip_rated = cfg.rated_slip * cfg.rated_frequency_hz
+        self.psi_rated = self._rated_main_flux()
+        self.w_breakdown = [0.0, 0.0]  # motoring, generating: signed, rad/s
+        self.breakdown_age = [0, 0]  # periods until each is found anew
+        self.psi_m = self.psi_rated
+        self.w_slip = 0.0
+        self.u_trim = 1.0
+        self.u_d_mean = 0.0
         self.u_vec = 0j
         self.u_last = 0.0
         self.torque_estimate = 0.0
+        self.torque_limit = 0.0
 
-    def slip_for_torque(self, torque_per_motor: float, f_s_estimate: float) -> float:
-        """Slip frequency for a torque, Hz (linear region, flux-weakening corrected)."""
-        f_slip = torque_per_motor / self.cfg.rated_torque_nm * self.f_slip_rated
-        ratio = abs(f_s_estimate) / self.cfg.rated_frequency_hz
-        return f_slip * max(ratio, 1.0) ** 2
+    def _rated_main_flux(self) -> float:
+        """The main flux at no load with the rated voltage and frequency, V s:
+        U = w (psi_m + L_ls i_m(psi_m)), solved by bisection on the curve."""
+        w = 2 * math.pi * self.cfg.rated_frequency_hz
+        lo, hi = 0.0, self.u_peak_rated / w
+        for _ in range(40):
+            mid = 0.5 * (lo + hi)
+            u = w * (mid + self.lls * self.curve.current(mid))
+            lo, hi = (mid, hi) if u < self.u_peak_rated else (lo, mid)
+        return lo
+
+    # --- the steady-state circuit, per motor, at the secant L_m of the present flux -----
+    def _branches(self, w_sl: float, lm: float) -> tuple[complex, float]:
+        """(I_s / psi_m, T / psi_m^2) at a slip frequency (rad/s)."""
+        rotor = 1j * w_sl / complex(self.rr, w_sl * self.llr)
+        torque = 1.5 * self.p * w_sl * self.rr / (self.rr**2 + (w_sl * self.llr) ** 2)
+        return 1.0 / lm + rotor, torque
+
+    def operating_point(self, w_sl: float, w_r: float, u_room: float,
+                        lm: float) -> tuple[float, float, float, complex]:
+        """(torque N m, stator current A peak, main flux V s, stator voltage V) at a slip
+        with the rotor at electrical speed w_r and u_room the voltage there is."""
+        y, t_per_psi2 = self._branches(w_sl, lm)
+        w_s = w_r + w_sl
+        g = complex(self.rs, w_s * self.lls) * y + 1j * w_s
+        psi = min(self.psi_rated, u_room / max(abs(g), 1e-9))
+        return t_per_psi2 * psi * psi, abs(y) * psi, psi, g * psi
+
+    def breakdown_slip(self, sign: float, w_r: float, u_room: float, lm: float) -> float:
+        """The slip frequency of the largest torque (rad/s, signed) at this voltage and
+        speed: golden-section search on the circuit's torque between a fifth and three
+        times R_r / (L_ls + L_lr), the breakdown slip without R_s and the magnetising
+        branch (its one maximum lies in there)."""
+        w_k = self.rr / (self.lls + self.llr)
+        lo, hi = 0.2 * w_k, 3.0 * w_k
+        g = (math.sqrt(5.0) - 1.0) / 2.0
+        a, b = hi - g * (hi - lo), lo + g * (hi - lo)
+        ta = abs(self.operating_point(sign * a, w_r, u_room, lm)[0])
+        tb = abs(self.operating_point(sign * b, w_r, u_room, lm)[0])
+        for _ in range(BISECTIONS):
+            if ta > tb:
+                hi, b, tb = b, a, ta
+                a = hi - g * (hi - lo)
+                ta = abs(self.operating_point(sign * a, w_r, u_room, lm)[0])
+            else:
+                lo, a, ta = a, b, tb
+                b = lo + g * (hi - lo)
+                tb = abs(self.operating_point(sign * b, w_r, u_room, lm)[0])
+        return sign * 0.5 * (lo + hi)
+
+    def slip_for(self, torque: float, w_r: float, u_room: float) -> float:
+        """The slip frequency (rad/s) that gives the torque per motor, within the slip
+        and current limits (the torque there otherwise); sets torque_limit. The slip
+        limit is a share of the breakdown slip, found anew every BREAKDOWN_EVERY periods
+        (it moves with the speed and the voltage, slowly beside a period)."""
+        lm = self.curve.lm(self.psi_m)
+        sign = 1.0 if torque >= 0 else -1.0
+        key = 0 if sign > 0 else 1
+        if self.breakdown_age[key] <= 0:
+            self.w_breakdown[key] = self.breakdown_slip(sign, w_r, u_room, lm)
+            self.breakdown_age[key] = BREAKDOWN_EVERY
+        self.breakdown_age[key] -= 1
+        cap = SLIP_LIMIT_SHARE * self.w_breakdown[key]
+        t_cap, i_cap, _, _ = self.operating_point(cap, w_r, u_room, lm)
+        if i_cap > self.i_max:  # the current limit comes first: its slip
+            lo, hi = 0.0, cap
+            for _ in range(BISECTIONS):
+                mid = 0.5 * (lo + hi)
+                if self.operating_point(mid, w_r, u_room, lm)[1] < self.i_max:
+                    lo = mid
+                else:
+                    hi = mid
+            cap = lo
+            t_cap = self.operating_point(cap, w_r, u_room, lm)[0]
+        self.torque_limit = abs(t_cap)
+        if abs(torque) >= abs(t_cap):
+            return cap
+        lo, hi = 0.0, cap
+        for _ in range(BISECTIONS):
+            mid = 0.5 * (lo + hi)
+            if abs(self.operating_point(mid, w_r, u_room, lm)[0]) < abs(torque):
+                lo = mid
+            else:
+                hi = mid
+        return 0.5 * (lo + hi)
+
+    def _trim(self, phase_currents, weight: float) -> None:
+        """Hold the flux the circuit planned by the current it draws: the voltage is
+        trimmed by the ratio of the planned flux to the one the measured current gives
+        at the slip applied (|I_s| = psi_m |I_s / psi_m|), which no voltage error (dead
+        time left over, device drops, R_s warm) biases."""
+        ia, ib, ic = phase_currents
+        i = abs(complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3))) / self.n_motors
+        y, _ = self._branches(self.w_slip, self.curve.lm(self.psi_m))
+        psi_seen = i / abs(y)
+        if psi_seen <= 0.2 * self.psi_m:
+            return
+        self.u_trim += weight * self.T / FLUX_TRIM_S * (self.psi_m / psi_seen - 1.0)
+        self.u_trim = min(max(self.u_trim, 1.0 - FLUX_TRIM_RANGE), 1.0 + FLUX_TRIM_RANGE)
 
     def estimated_torque(self, phase_currents: tuple[float, float, float]) -> float:
+        """Torque per motor from the measured current and the slip applied, N m: the
+        circuit's flux for that current, psi_m = |I_s| / |I_s / psi_m|, then T(psi_m)."""
+        ia, ib, ic = phase_currents
+        i = abs(complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3))) / self.n_motors
+        y, t_per_psi2 = self._branches(self.w_slip, self.curve.lm(self.psi_m))
+        psi = i / abs(y)
+        return t_per_psi2 * psi * psi
+
+    def airgap_torque(self, phase_currents: tuple[float, float, float]) -> float:
         """Torque per motor from the air-gap power of the last applied voltage, N m.
 
         P_airgap = 3/2 Re(u i*) - 3/2 R_s |i|^2 (amplitude-invariant vectors), T = P / w_s
@@ -70,37 +213,72 @@ class ScalarControl:
              rotor_angle_rad: float | None = None) -> tuple[list[float], float]:
         """Duties for this period and the stator frequency used, Hz.
 
-        With f_command_hz, classic V/f; given phase_currents too, the estimated slip is
-        added to the command (slip compensation). With rotor_angle_rad (the counted
-        mechanical angle), slip regulation is angle-based: the stator angle is the rotor's
-        electrical angle plus the integrated slip, so the slip is what was asked for
-        whatever the lag or quantisation of the speed reading.
+        With f_command_hz, classic V/f with a boost; given phase_currents too, the
+        estimated slip is added to the command (slip compensation). Otherwise torque
+        control by the circuit, with rotor_angle_rad (the counted mechanical angle) for
+        angle-based slip regulation and phase_currents for the dead-time compensation.
         """
         cfg = self.cfg
-        f_rotor = cfg.pole_pairs * rotor_speed_rad_s / (2 * math.pi)
+        u_max = u_d / math.sqrt(3)
+        w_r = self.p * rotor_speed_rad_s
+        f_rotor = w_r / (2 * math.pi)
         if f_command_hz is None:
-            f_s = f_rotor + self.slip_for_torque(torque_per_motor, f_rotor)
-            f_s = f_rotor + self.slip_for_torque(torque_per_motor, f_s)
+            # the plan takes the link's mean (no more than nominal): the duty follows the
+            # ripple each period, so the voltage planned is what the motor gets while the
+            # trough leaves the margin
+            if self.u_d_mean == 0.0:
+                self.u_d_mean = u_d
+            self.u_d_mean += (u_d - self.u_d_mean) * min(self.T / LINK_FILTER_S, 1.0)
+            # a vector held over a period while the field turns by w_s T has a fundamental
+            # of sin(x) / x of it, x = w_s T / 2 (the mean of e^(j w t) over the period):
+            # the circuit is planned on what the motor gets, the command is raised by it
+            x = 0.5 * abs(w_r + self.w_slip) * self.T
+            hold = math.sin(x) / x if x > 1e-6 else 1.0
+            u_room = hold * min(VOLTAGE_MARGIN * min(self.u_d_mean, cfg.link_nominal_v),
+                                u_d) / math.sqrt(3)
+            self.w_slip = self.slip_for(torque_per_motor, w_r, u_room)
+            _, _, psi, u_s = self.operating_point(self.w_slip, w_r, u_room,
+                                                  self.curve.lm(self.psi_m))
+            f_s = f_rotor + self.w_slip / (2 * math.pi)
+            # the trim acts at low frequency, where the voltage errors weigh; none from
+            # half the rated frequency up (the sampled current's own error takes over)
+            weight = max(1.0 - abs(f_s) / (TRIM_UP_TO * cfg.rated_frequency_hz), 0.0)
+            if phase_currents is not None and weight > 0.0:
+                self._trim(phase_currents, weight)
+            self.psi_m = psi
+            u = abs(u_s) * (1.0 + weight * (self.u_trim - 1.0)) / hold
+            lead = cmath.phase(u_s) if u > 0 else 0.0  # the voltage leads the flux's axis
         else:
             f_s = f_command_hz
             if phase_currents is not None and self.f_s:
                 # slip compensation: the estimated torque, low-pass filtered (50 ms)
-                t_est = self.estimated_torque(phase_currents)
+                t_est = self.airgap_torque(phase_currents)
                 self.torque_estimate += (t_est - self.torque_estimate) * self.T / 0.05
                 f_s += self.slip_for_torque(self.torque_estimate, f_s)
+            u = min(self.boost_v + self.volts_per_hz * abs(f_s), u_max)
+            lead = 0.0
         if rotor_angle_rad is not None and f_command_hz is None:
-            f_slip = f_s - f_rotor
-            self.theta_slip = (self.theta_slip + 2 * math.pi * f_slip * self.T) % (2 * math.pi)
-            self.theta = (cfg.pole_pairs * rotor_angle_rad + self.theta_slip) % (2 * math.pi)
+            self.theta_slip = (self.theta_slip + self.w_slip * self.T) % (2 * math.pi)
+            self.theta = (self.p * rotor_angle_rad + self.theta_slip) % (2 * math.pi)
         else:
             self.theta = (self.theta + 2 * math.pi * f_s * self.T) % (2 * math.pi)
         self.f_s = f_s
-        u_max = u_d / math.sqrt(3)
-        u = min(self.boost_v + self.volts_per_hz * abs(f_s), u_max)
+        u = min(u, u_max)
         self.u_last = u
-        angle = self.theta + 2 * math.pi * f_s * 1.5 * self.T  # acts from t+T to t+2T
-        self.u_vec = complex(u * math.cos(angle), u * math.sin(angle))
-        v = [u * math.cos(angle - x * TWO_PI_3) for x in range(3)]
-        v_cm = -0.5 * (max(v) + min(v))
-        duties = [min(max(0.5 + (vx + v_cm) / max(u_d, 1.0), 0.0), 1.0) for vx in v]
-        return duties, f_s
+        angle = self.theta + lead + 2 * math.pi * f_s * 1.5 * self.T  # acts t+T to t+2T
+        self.u_vec = cmath.rect(u, angle)
+        current = None
+        if phase_currents is not None and f_command_hz is None:
+            ia, ib, ic = phase_currents  # turned on to the middle of the acting period
+            current = (complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3))
+                       * cmath.exp(1j * 2 * math.pi * f_s * 1.5 * self.T))
+        return duties(self.u_vec, u_d, current=current, dead_time_s=cfg.dead_time_s,
+                      switching_frequency_hz=cfg.switching_frequency_hz,
+                      sign_band_a=self.sign_band_a), f_s
+
+    def slip_for_torque(self, torque_per_motor: float, f_s_estimate: float) -> float:
+        """Slip frequency for a torque in classic V/f, Hz (linear region, 1/f flux above
+        the base frequency)."""
+        f_slip = torque_per_motor / self.cfg.rated_torque_nm * self.f_slip_rated
+        ratio = abs(f_s_estimate) / self.cfg.rated_frequency_hz
+        return f_slip * max(ratio, 1.0) ** 2

@@ -43,17 +43,17 @@ is cut until the voltage fits.
 
 from __future__ import annotations
 
-import bisect
 import cmath
 import math
 
 from .config import ControllerConfig
-from .motor_scalar import TWO_PI_3
+from .flux_curve import MagnetisingCurve
+from .modulation import duties
 
 LAMBDA = 0.6  # share of the current's error removed per period
 FLUX_KP = 2.0  # flux forcing: d current per flux error, in units of 1 / L_m
 OFFSET_SHARE = 0.2  # per period: how fast the mean-to-end offset estimate follows
-OBSERVER_GAIN = 0.1  # share of a period's prediction error taken into the voltage error
+OBSERVER_GAIN = 0.3  # share of a period's prediction error taken into the voltage error
 MARGIN = 0.93  # voltage the control plans to use, of U_dc / sqrt(3): room for dynamics
 FW_GAIN = 0.5  # voltage-margin loop: flux change, of rated, per unit of excess voltage, per s
 CURRENT_LIMIT_FACTOR = 2.2  # peak current per motor, of the rated peak (inverter limit)
@@ -83,39 +83,6 @@ def _mean_turn(x: float) -> complex:
     if abs(x) < 1e-9:
         return complex(1.0, 0.5 * x)
     return (cmath.exp(1j * x) - 1.0) / (1j * x)
-
-
-class MagnetisingCurve:
-    """Main flux against magnetising current from the motor's data (type test), with the
-    secant inductance L_m = psi / i_m; linear with the first point's secant below it."""
-
-    def __init__(self, lm_linear: float, currents_a: tuple[float, ...] = (),
-                 fluxes_vs: tuple[float, ...] = ()) -> None:
-        self.i = list(currents_a) or [1.0]
-        self.psi = list(fluxes_vs) or [lm_linear]
-
-    @staticmethod
-    def _interp(x: float, xs: list[float], ys: list[float]) -> float:
-        if x <= xs[0]:
-            return ys[0] * x / xs[0]  # linear through the origin below the first point
-        k = min(max(bisect.bisect_left(xs, x), 1), len(xs) - 1) if len(xs) > 1 else 0
-        if k == 0:
-            return ys[0] * x / xs[0]
-        slope = (ys[k] - ys[k - 1]) / (xs[k] - xs[k - 1])
-        return ys[k - 1] + slope * (x - xs[k - 1])  # extrapolates past the last point
-
-    def flux(self, i_m: float) -> float:
-        """Main flux (V s) a magnetising current (A, peak) holds."""
-        return math.copysign(self._interp(abs(i_m), self.i, self.psi), i_m)
-
-    def current(self, psi: float) -> float:
-        """Magnetising current (A, peak) for a main flux (V s)."""
-        return math.copysign(self._interp(abs(psi), self.psi, self.i), psi)
-
-    def lm(self, psi: float) -> float:
-        """Secant magnetising inductance at a main flux, H."""
-        psi = max(abs(psi), 1e-6)
-        return psi / self.current(psi)
 
 
 class VectorControl:
@@ -250,7 +217,11 @@ class VectorControl:
         u_plan = min(u_lim, self.cfg.link_nominal_v / math.sqrt(3))
         # --- flux reference: the most the voltage allows for this torque, then the loop --
         w_e_est = p * w_m
-        psi_ff = self.flux_for(torque_per_motor, w_e_est, MARGIN * u_plan)
+        # planned for no less than the rated power's torque (rated torque up to base
+        # speed): a step to full torque then finds the voltage there, not a flux to lower
+        reserve = self.cfg.rated_power_w / max(abs(w_m), self.w_base_mech)
+        planned = math.copysign(max(abs(torque_per_motor), reserve), torque_per_motor)
+        psi_ff = self.flux_for(planned, w_e_est, MARGIN * u_plan)
         self.psi_ref = max(psi_ff + self.dpsi, 0.1 * self.psi_rated)
         sigma_ls = self._machine(self.psi_ref)[3]
         i_d_ref = self.curve.current(self.psi_ref)
@@ -355,7 +326,6 @@ class VectorControl:
         self.prev_mean, self.prev_theta, self.prev_turn = mean_now, theta, turn
         self.u_sent = u
         self.theta_slip += w_slip * T
-        # --- duties: the stator-frame vector held over the period, min-max injection -----
-        v = [abs(u) * math.cos(cmath.phase(u) - x * TWO_PI_3) for x in range(3)]
-        v_cm = -0.5 * (max(v) + min(v))
-        return [min(max(0.5 + (vx + v_cm) / max(u_dc, 1.0), 0.0), 1.0) for vx in v]
+        # --- duties: the stator-frame vector held over the period (the dead time is the
+        # observer's: a feed-forward by the current's sign made the steps overshoot more)
+        return duties(u, u_dc)

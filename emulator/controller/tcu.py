@@ -169,7 +169,7 @@ class ReferenceController:
         cruise_mps = y[self.ix_cruise] / 3.6
 
         # --- line side: PLL, protections, sequence ----------------------------------
-        line_rms = cfg.line_nominal_v
+        line_rms = regen_rms = cfg.line_nominal_v
         theta = 0.0
         if cfg.line_side:
             theta = self.pll.update(y[self.ix_line_v])
@@ -179,6 +179,10 @@ class ReferenceController:
             self.line_rms_f += (self.pll.amplitude / math.sqrt(2) - self.line_rms_f) * min(
                 period_s / 0.2, 1.0)
             line_rms = self.line_rms_f
+            # regeneration is cut at once when the voltage rises and given back at the
+            # filter's pace (fast attack, slow release: no limit cycle, and no overshoot
+            # past U_max2 while the filter catches up)
+            regen_rms = max(self.line_rms_f, self.pll.amplitude / math.sqrt(2))
             if any(y[i] > 0.5 for i in self.ix_ovp):
                 self._raise(events.LINK_OVERVOLTAGE)
                 self.sequence.trip(events.LINK_OVERVOLTAGE)
@@ -267,8 +271,9 @@ class ReferenceController:
         # what each link may draw: the line's power limit (EN 50388, 0 on a dead line)
         # shared by its inverters; a sagging link cuts traction too (ride-through)
         line_live = not cfg.line_side or self.line_live_s >= LOCK_S
-        limits = [power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i]) if line_live
-                  else (0.0, 0.0) for i in range(len(cfg.link_names))]
+        limits = [(power_limits(cfg, regen_rms, regen_ok, self.p_rated_link[i])[0],
+                   power_limits(cfg, line_rms, regen_ok, self.p_rated_link[i])[1])
+                  if line_live else (0.0, 0.0) for i in range(len(cfg.link_names))]
         p_draw = [hi * DRIVE_EFFICIENCY / self.inverters_on_link[i]
                   for i, (_, hi) in enumerate(limits)] if cfg.line_side else None
         # electric braking: what the resistor takes below the trip, plus half of what the
@@ -324,11 +329,18 @@ class ReferenceController:
                 else:
                     estimate = self.scalar[k].estimated_torque((ia, ib, ic))
                     duties, _ = self.scalar[k].step(torque, motor_speed, u_d,
+                                                    phase_currents=(ia, ib, ic),
                                                     rotor_angle_rad=angle)
                     ramp = min(self.enabled_for[k] / FLUX_RAMP_S, 1.0)
                 for i, d in zip(duty_ix, duties, strict=True):
                     out[i] = 0.5 + ramp * (d - 0.5)
-                p_links[link] += torque * motor_speed * n_mot
+                # the line converter's feed-forward: the torque the motor control can
+                # give now (its limit from the current and the voltage), not the demand; a
+                # drive at its voltage limit in braking returns less than asked, and a
+                # line converter that takes the demand's power empties the link
+                ctl_k = self.vector[k] if self.vector is not None else self.scalar[k]
+                given = math.copysign(min(abs(torque), ctl_k.torque_limit), torque)
+                p_links[link] += given * motor_speed * n_mot
                 achieved += estimate * n_mot
             else:
                 self.enabled_for[k] = 0.0
@@ -414,8 +426,13 @@ class ReferenceController:
         return range(first, first + len(self.motors[inverter]))
 
     def _motor_torque_limit(self, v_mps: float) -> float:
-        """Tractive-effort curve per motor: constant torque, then constant power, N m."""
-        w_motor = max(v_mps / self.cfg.wheel_radius_m * self.cfg.gear_ratio, 1e-3)
+        """Tractive-effort curve per motor: constant torque, constant power, then above
+        the natural-characteristic speed falling as 1/w^2 with the breakdown torque, N m."""
+        k = self.cfg.gear_ratio / self.cfg.wheel_radius_m
+        w_motor = max(v_mps * k, 1e-3)
+        w_natural = self.cfg.natural_from_mps * k
+        if w_motor > w_natural:
+            return min(self.t_max_motor, self.p_max_motor * w_natural / (w_motor * w_motor))
         return min(self.t_max_motor, self.p_max_motor / w_motor)
 
 

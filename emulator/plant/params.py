@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -162,19 +164,26 @@ class TrainParams:
 @dataclass(frozen=True)
 class EffortLimits:
     """The trainset's specified tractive- and braking-effort curve at the rail: constant
-    effort up to the speed where it meets constant power (the controller is designed to
-    it; `railrig characteristic` measures against it)."""
+    effort up to the speed where it meets constant power, then constant power up to the
+    natural-characteristic speed, above which the effort falls as 1/v^2 with the motors'
+    voltage-limited breakdown torque (the three regions of a traction characteristic:
+    common practice). The controller is designed to it; `railrig characteristic`
+    measures against it."""
 
     tractive_effort_n: float
     tractive_power_w: float
     braking_effort_n: float
     braking_power_w: float
+    natural_from_mps: float = math.inf
 
     def at(self, speed_mps: float, braking: bool = False) -> float:
         """The effort limit at a speed, N (positive)."""
         f, p = ((self.braking_effort_n, self.braking_power_w) if braking
                 else (self.tractive_effort_n, self.tractive_power_w))
-        return min(f, p / max(abs(speed_mps), 1e-6))
+        v = max(abs(speed_mps), 1e-6)
+        if v > self.natural_from_mps:
+            return min(f, p * self.natural_from_mps / (v * v))
+        return min(f, p / v)
 
 
 @dataclass(frozen=True)

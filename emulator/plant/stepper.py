@@ -73,12 +73,14 @@ class Plant:
     @classmethod
     def test_bench(cls, machine: MachineParams, motors: int = 1, *, dc_link_v: float = 0.0,
                    substep_s: float = 50e-6, frame_s: float = 1e-3,
-                   refresh_each_substep: bool = True) -> Plant:
+                   refresh_each_substep: bool = True,
+                   inverter: InverterParams | None = None) -> Plant:
         """One inverter feeding ``motors`` machines whose shafts are on a test bench.
 
         Every shaft starts free (rotor inertia only, no load); use impose_speed() for a
         dynamometer and drive_from_sine() for an ideal source. No train, gear or wheel
-        takes part; the drivetrain data below only satisfy the layout.
+        takes part; the drivetrain data below only satisfy the layout. The inverter is
+        ideal (no dead time, drops or switching loss) unless one is given.
         """
         bench = TrainsetParams(
             name=f"test bench: {machine.name}", source="test bench", substep_s=substep_s,
@@ -87,7 +89,8 @@ class Plant:
             supply=SupplyParams(1.0, 50.0),
             machine=machine,
             drivetrain=DrivetrainParams(1.0, 1.0, 1.0, 1.0, 1.0, "dry", 0.1),
-            inverter=InverterParams(1000.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 1.0, 1.0),
+            inverter=inverter or InverterParams(1000.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 1.0,
+                                                1.0),
             dc_links=(DcLinkParams("bench", dc_link_v),),
             converters=(ConverterParams("bench", 0, (1.0,) * motors),),
         )

@@ -391,7 +391,10 @@ def load_trainset(path: Path | str) -> TrainsetParams:
                 ctl.number("max_tractive_effort_kn", "kN", 1.0, 5000.0, scale=1e3),
                 ctl.number("max_tractive_power_kw", "kW", 1.0, 50000.0, scale=1e3),
                 ctl.number("max_braking_effort_kn", "kN", 1.0, 5000.0, scale=1e3),
-                ctl.number("max_braking_power_kw", "kW", 1.0, 50000.0, scale=1e3))
+                ctl.number("max_braking_power_kw", "kW", 1.0, 50000.0, scale=1e3),
+                ctl.number("natural_characteristic_from_kmh", "km/h", 1.0, 1000.0,
+                           scale=1 / 3.6) if ctl.has("natural_characteristic_from_kmh")
+                else math.inf)
         ctl.finish()
     root.finish()
     return TrainsetParams(name=name, source=str(path), substep_s=substep, frame_s=frame,

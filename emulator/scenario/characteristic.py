@@ -28,6 +28,10 @@ SWITCH_ON_S = 3.0  # breaker, precharge, line contactors: before the first point
 SETTLE_S = 2.5  # the demand ramps in 1.5 s (jerk limit), then settles
 AVERAGE_S = 0.5  # the measuring window at the end of each point
 RAMP_MPS2 = 2.0  # between speed points, coasting
+# after a point, coasting before the speed moves: the effort ramps out as it ramped in;
+# a train that speeds up on the dynamometer while its drive still brakes looks, to any
+# slip control, like wheels spinning up
+RELEASE_S = 2.0
 
 
 @dataclass(frozen=True)
@@ -135,7 +139,7 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     line_power_factor=float(pq.get("power_factor", math.nan)),
                     trips=trips))
                 rig.driver.mode, rig.driver.effort_demand = MODE["coast"], 0.0
-                await rig.run(frames=rig.frame + round(0.5 / frame_s))
+                await rig.run(frames=rig.frame + round(RELEASE_S / frame_s))
     finally:
         link.close()
     return points

@@ -204,12 +204,16 @@ class DriverProgram:
         if step.mode in ("accelerate", "cruise", "coast"):  # a stop ahead to brake for?
             for j in range(self.index + 1, len(steps)):
                 stop = steps[j].stop_at_m
-                if steps[j].mode == "brake" and stop is not None:
+                if steps[j].mode != "brake":
+                    continue
+                # the next brake step is the one to plan for; one that ends at a speed
+                # is begun when its own step comes, not skipped for a stop beyond it
+                if stop is not None:
                     a_cap = max(0.8 * available / m_eff, 0.2)
                     if stop - x <= v * v / (2 * a_cap) + 5 * v:
                         self._begin(j, t, x, v)
                         step = steps[j]
-                    break
+                break
         ceiling = self.track.ceiling(x, v) if self.track is not None else float("inf")
         plant.set_brake_force(0.0)
         if step.mode == "off":

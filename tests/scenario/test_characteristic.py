@@ -48,13 +48,10 @@ def test_vector_control_meets_the_curve_as_a_user_measures_it(tmp_path) -> None:
     assert json.loads((tmp_path / "characteristic.json").read_text()) == points
 
 
-# Measured this session (V/f, tern-25kv, full demand): braking gives 105-140 % of the curve
-# at 20-120 km/h, motoring 83-91 % at low and high speed, and full motoring trips the
-# inverter overcurrent protection between 40 and 120 km/h. The V/f control's slip-to-torque
-# law and its limits are still to be redone. Strict: the marker goes when it passes.
-@pytest.mark.xfail(strict=True, reason="V/f characteristic not yet on the curve: braking "
-                   "up to 140 %, motoring trips the inverter overcurrent at 40-120 km/h")
-def test_scalar_control_meets_the_curve() -> None:
-    points = asyncio.run(measure(PROFILES_DIR / "trainsets" / "tern-25kv.toml",
-                                 [20.0, 70.0, 140.0], [1.0, -1.0]))
+@pytest.mark.parametrize(("trainset", "control"), [
+    ("tern-25kv", "scalar"), ("tern-25kv", "vector"), ("tern-15kv", "scalar")])
+def test_each_trainset_and_control_meets_the_curve(trainset: str, control: str) -> None:
+    # constant effort, constant power and the natural characteristic (above 130 km/h)
+    points = asyncio.run(measure(PROFILES_DIR / "trainsets" / f"{trainset}.toml",
+                                 [20.0, 70.0, 120.0, 160.0], [1.0, -1.0], control=control))
     _check([dict(p.__dict__, share_of_limit=p.share_of_limit) for p in points])

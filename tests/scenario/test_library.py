@@ -26,16 +26,7 @@ def test_library_covers_the_trade_practice() -> None:
 
 #: scenarios the reference controller does not yet pass, with what was measured; strict,
 #: so each marker must go when its scenario passes
-KNOWN = {
-    "full-braking-from-160-15kv": "inverter overcurrent and link overvoltage while the "
-    "line side switches on at 160 km/h (1.9 s), and in braking the link falls 300 V in "
-    "50 ms at the voltage limit (5.1 s), leaving the vector control without voltage",
-    "full-braking-from-160-25kv": "V/f brakes too weakly through field weakening: 80 km/h "
-    "only after 44 s of braking, stops 479 m past the mark",
-    "regeneration-non-receptive": "pantograph 18.07 kV for a moment when the braking eases "
-    "(21 s) against U_max2 18 kV: the regeneration limit follows a 0.2 s lag of the line "
-    "voltage, and the vector control now brakes with its full torque",
-}
+KNOWN: dict[str, str] = {}
 
 
 def _library_params():

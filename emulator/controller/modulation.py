@@ -1,0 +1,36 @@
+"""From a stator voltage vector to the three duty cycles of a two-level inverter.
+
+Space-vector equivalent modulation by min-max zero-sequence injection: the phase
+voltages u cos(angle - k 2 pi/3) plus the common-mode voltage -(max + min)/2, linear up to
+U_dc / sqrt(3) per phase (Holmes & Lipo, *Pulse Width Modulation for Power Converters*,
+2003, ch. 6). The duty is computed with the measured link voltage each period, which also
+compensates the link's ripple.
+
+Dead-time compensation: during the blanking time t_d the diode conducts, so each leg's
+mean voltage falls short by t_d f_sw U_dc sgn(i) (same book, ch. 2 on dead time): the
+command adds it back, the sign taken from the current expected while the command acts,
+changing linearly within a band around zero (a sample near a zero crossing says little).
+"""
+
+from __future__ import annotations
+
+import math
+
+TWO_PI_3 = 2 * math.pi / 3
+_COS = tuple(complex(math.cos(x * TWO_PI_3), -math.sin(x * TWO_PI_3)) for x in range(3))
+
+
+def duties(u: complex, u_dc: float, *, current: complex | None = None,
+           dead_time_s: float = 0.0, switching_frequency_hz: float = 0.0,
+           sign_band_a: float = 1.0) -> list[float]:
+    """Duties (0..1) that give the stator-frame voltage vector u (amplitude-invariant,
+    V) from a link at u_dc, with the dead time compensated for the current vector
+    expected while they act (A, the inverter's total)."""
+    v = [(u * c).real for c in _COS]  # phase voltages, u cos(angle - k 2 pi / 3)
+    if current is not None and dead_time_s > 0.0:
+        du = dead_time_s * switching_frequency_hz * u_dc
+        for k, c in enumerate(_COS):
+            v[k] += du * min(max((current * c).real / sign_band_a, -1.0), 1.0)
+    v_cm = -0.5 * (max(v) + min(v))
+    scale = max(u_dc, 1.0)
+    return [min(max(0.5 + (vx + v_cm) / scale, 0.0), 1.0) for vx in v]
