@@ -12,6 +12,7 @@ import asyncio
 import json
 from pathlib import Path
 
+from rich import box
 from rich.console import Console
 from rich.table import Table
 
@@ -24,8 +25,9 @@ HELP = "measure the controller's tractive- and braking-effort characteristic"
 def add_arguments(ch: argparse.ArgumentParser) -> None:
     """The options of ``railrig characteristic``."""
     ch.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
-    ch.add_argument("--controller", choices=("reference",), default="reference",
-                    help="the controller measured (the reference, in this process)")
+    ch.add_argument("--controller", default="reference",
+                    help="'reference' (in this process) or the link URL of the controller "
+                    "under test, e.g. udp://127.0.0.1:5000?peer=127.0.0.1:5001")
     ch.add_argument("--control", choices=("vf", "vector"), default=None,
                     help="override the profile's motor control of the reference")
     ch.add_argument("--speeds-kmh", default=None,
@@ -64,9 +66,9 @@ def run(args: argparse.Namespace) -> int:
         console.print(f"  {v:5.0f} km/h, demand {d:+.2f}")
 
     try:
-        points = asyncio.run(measure(profile, speeds, demands, control=control,
-                                     progress=progress))
-    except ValueError as exc:
+        points = asyncio.run(measure(profile, speeds, demands, controller=args.controller,
+                                     control=control, progress=progress))
+    except (ValueError, OSError) as exc:
         console.print(f"[red]error:[/red] {exc}")
         return 2
     data = as_json(points)
@@ -79,15 +81,27 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(data))
     else:
-        table = Table(title=f"Effort characteristic: {params.name}, {shown} control")
-        for col in ("km/h", "demand", "rail kN", "curve kN", "of curve", "inv A rms",
-                    "flux V s", "modulation", "link V", "line PF", "trips"):
-            table.add_column(col, justify="left" if col == "trips" else "right")
+        table = Table(title=f"Effort characteristic: {params.name}, {shown} control",
+                      box=box.SIMPLE_HEAD, padding=(0, 0, 0, 1), show_edge=False)
+        # two-line headings: the table fits 80 columns; the trips are listed under it
+        for col in ("km/h", "demand", "rail\nkN", "curve\nkN", "of\ncurve", "said\nkN",
+                    "I\nA rms", "flux\nV s", "mod", "link\nV", "PF"):
+            table.add_column(col, justify="right", no_wrap=True,
+                             min_width=6 if col.endswith("kN") else None)
         for p in points:
-            table.add_row(f"{p.speed_kmh:.0f}", f"{p.demand:+.2f}", f"{p.rail_force_kn:+.1f}",
-                          f"{p.demand * abs(p.limit_kn):+.1f}", f"{p.share_of_limit:.1%}",
-                          f"{p.inverter_current_a_rms:.0f}", f"{p.rotor_flux_vs:.2f}",
-                          f"{p.modulation:.2f}", f"{p.dc_link_v:.0f}",
-                          f"{p.line_power_factor:.3f}", ", ".join(p.trips) or "none")
-        Console().print(table)
+            table.add_row(f"{p.speed_kmh:.0f}", f"{p.demand:+.2f}", f"{p.rail_force_kn:.1f}",
+                          f"{p.demand * abs(p.limit_kn):.1f}", f"{p.share_of_limit:.0%}",
+                          f"{p.reported_kn:.1f}", f"{p.inverter_current_a_rms:.0f}",
+                          f"{p.rotor_flux_vs:.2f}", f"{p.modulation:.2f}",
+                          f"{p.dc_link_v:.0f}", f"{p.line_power_factor:.2f}")
+        out = Console()
+        out.print(table)
+        out.print("said kN: the effort the controller reports achieving (its reply); "
+                  "flux: the motors' rotor flux; mod: voltage over U_dc / sqrt(3)")
+        for p in points:
+            if p.trips:
+                out.print(f"[red]trips[/red] at {p.speed_kmh:.0f} km/h, demand "
+                          f"{p.demand:+.2f}: " + ", ".join(p.trips))
+        if not any(p.trips for p in points):
+            out.print("no protective trip")
     return 1 if any(p.trips for p in points) else 0

@@ -79,10 +79,13 @@ class ScalarControl:
         self.psi_m = self.psi_rated
         self.w_slip = 0.0
         self.u_trim = 1.0
+        self._i_prev: complex | None = None  # the last sample's current, per motor
+        self._u_history = (0j, 0j)  # held from the last sample to the next; the one after
         self.u_d_mean = 0.0
         self.u_vec = 0j
         self.u_last = 0.0
         self.torque_estimate = 0.0
+        self._slip_torque = 0.0  # classic V/f's slip compensation: its filtered torque
         self.torque_limit = 0.0
 
     def _rated_main_flux(self) -> float:
@@ -186,13 +189,38 @@ class ScalarControl:
         self.u_trim = min(max(self.u_trim, 1.0 - FLUX_TRIM_RANGE), 1.0 + FLUX_TRIM_RANGE)
 
     def estimated_torque(self, phase_currents: tuple[float, float, float]) -> float:
-        """Torque per motor from the measured current and the slip applied, N m: the
-        circuit's flux for that current, psi_m = |I_s| / |I_s / psi_m|, then T(psi_m)."""
+        """Torque per motor over the period that has just ended, from the measured
+        currents and the voltage held in it, N m (call once a period, before step).
+
+        Air-gap power P = 3/2 Re(u i_mean*) - 3/2 R_s |i_mean|^2 (amplitude-invariant
+        vectors), T = p P / w_s (Bose 2002, torque from the air-gap power). The voltage is
+        the vector held over the period (computed two periods ago: the one-period command
+        delay), with the dead time compensated; the period's mean current is the mean of
+        its end samples, corrected for a vector turning by 2x within it (the trapezoid
+        gives cos x of the fundamental, the mean sin(x)/x). Below half the rated frequency
+        the current's magnitude at the slip applied is blended in. Low-pass 10 ms.
+        """
         ia, ib, ic = phase_currents
-        i = abs(complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3))) / self.n_motors
-        y, t_per_psi2 = self._branches(self.w_slip, self.curve.lm(self.psi_m))
-        psi = i / abs(y)
-        return t_per_psi2 * psi * psi
+        i = complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3)) / self.n_motors
+        i_prev, self._i_prev = self._i_prev, i
+        u_held = self._u_history[0]
+        w_s = 2 * math.pi * self.f_s
+        if i_prev is None or abs(w_s) < 1.0:
+            return self.torque_estimate
+        x = 0.5 * w_s * self.T
+        mean = 0.5 * (i + i_prev) * (math.tan(x) / x if abs(x) > 1e-6 else 1.0)
+        p_air = 1.5 * ((u_held * mean.conjugate()).real - self.rs * abs(mean) ** 2)
+        t_now = self.p * p_air / w_s
+        # at low frequency the voltage's own error (what the dead-time compensation
+        # leaves) weighs: there the current's magnitude at the slip applied says more
+        # (psi_m = |I_s| / |I_s / psi_m|, then T(psi_m)), blended in below half rated
+        weight = max(1.0 - abs(self.f_s) / (TRIM_UP_TO * self.cfg.rated_frequency_hz), 0.0)
+        if weight > 0.0:
+            y, t_per_psi2 = self._branches(self.w_slip, self.curve.lm(self.psi_m))
+            psi = abs(mean) / abs(y)
+            t_now = weight * t_per_psi2 * psi * psi + (1.0 - weight) * t_now
+        self.torque_estimate += (t_now - self.torque_estimate) * min(self.T / 0.01, 1.0)
+        return self.torque_estimate
 
     def airgap_torque(self, phase_currents: tuple[float, float, float]) -> float:
         """Torque per motor from the air-gap power of the last applied voltage, N m.
@@ -253,8 +281,8 @@ class ScalarControl:
             if phase_currents is not None and self.f_s:
                 # slip compensation: the estimated torque, low-pass filtered (50 ms)
                 t_est = self.airgap_torque(phase_currents)
-                self.torque_estimate += (t_est - self.torque_estimate) * self.T / 0.05
-                f_s += self.slip_for_torque(self.torque_estimate, f_s)
+                self._slip_torque += (t_est - self._slip_torque) * self.T / 0.05
+                f_s += self.slip_for_torque(self._slip_torque, f_s)
             u = min(self.boost_v + self.volts_per_hz * abs(f_s), u_max)
             lead = 0.0
         if rotor_angle_rad is not None and f_command_hz is None:
@@ -267,6 +295,7 @@ class ScalarControl:
         self.u_last = u
         angle = self.theta + lead + 2 * math.pi * f_s * 1.5 * self.T  # acts t+T to t+2T
         self.u_vec = cmath.rect(u, angle)
+        self._u_history = (self._u_history[1], self.u_vec)  # (acting next, after it)
         current = None
         if phase_currents is not None and f_command_hz is None:
             ia, ib, ic = phase_currents  # turned on to the middle of the acting period

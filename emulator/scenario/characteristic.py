@@ -48,6 +48,7 @@ class Point:
     dc_link_v: float
     line_power_factor: float
     trips: tuple[str, ...]
+    reported_kn: float = math.nan  # the effort the controller says it achieves (its reply)
 
     @property
     def share_of_limit(self) -> float:
@@ -57,22 +58,29 @@ class Point:
 
 
 class _Dynamometer:
-    """A driver program that holds the train's speed and sets the demand."""
+    """A driver program that holds the train's speed and sets the demand; it notes the
+    event codes the controller reports (any controller: they come in its replies)."""
 
     def __init__(self) -> None:
         self.speed_mps = 0.0
         self.phase = "characteristic"
+        self.events: set[int] = set()
 
     def update(self, rig) -> None:
         rig.plant.hold_speed(self.speed_mps)
+        code = int(rig.replies.get("event_code", 0))
+        if code:
+            self.events.add(code)
 
 
 async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], *,
-                  control: str | None = None,
+                  controller: str = "reference", control: str | None = None,
                   progress: Callable[[float, float], None] | None = None) -> list[Point]:
-    """The characteristic of the reference controller for a trainset profile.
+    """The characteristic of a controller for a trainset profile.
 
-    control: "scalar" or "vector" to override the profile's motor control.
+    controller: "reference" (in this process, through telegrams) or the link URL where
+    the controller under test answers. control: "scalar" or "vector" to override the
+    reference's motor control (not for a controller under test).
     """
     from emulator.controller.inprocess import attach_reference
     from emulator.link import open_link
@@ -83,11 +91,16 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
     if params.effort_limits is None:
         raise ValueError(f"{profile}: [controller] gives no max_tractive_effort_kn etc.: "
                          "no effort curve to measure against")
+    if controller != "reference" and control is not None:
+        raise ValueError("the motor control can be chosen for the reference controller only")
     channel = f"characteristic-{id(params)}"
-    link = open_link(f"loop://{channel}")
+    url = f"loop://{channel}" if controller == "reference" else controller
+    link = open_link(url)
     await link.open()
     rig = Rig(params, link, mode="lockstep")
-    tcu = await attach_reference(channel, rig, profile, motor_control=control)
+    tcu = None
+    if controller == "reference":
+        tcu = await attach_reference(channel, rig, profile, motor_control=control)
     dyno = _Dynamometer()
     rig.program = dyno
     frame_s = rig.period_us * 1e-6
@@ -107,11 +120,14 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     dyno.speed_mps += min(max(target - dyno.speed_mps, -step), step)
                     rig.plant.set_speed(dyno.speed_mps)
                     await rig.run(frames=rig.frame + 1)
-                tcu.events.clear()
+                dyno.events.clear()
+                if tcu is not None:
+                    tcu.events.clear()
                 rig.driver.mode = MODE["accelerate"] if demand > 0 else MODE["brake"]
                 rig.driver.effort_demand = demand
                 await rig.run(frames=rig.frame + round(SETTLE_S / frame_s))
-                sums = {"force": 0.0, "i2": 0.0, "flux": 0.0, "mod": 0.0, "udc": 0.0}
+                sums = {"force": 0.0, "i2": 0.0, "flux": 0.0, "mod": 0.0, "udc": 0.0,
+                        "reported": 0.0}
                 n = round(AVERAGE_S / frame_s)
                 for _ in range(n):
                     await rig.run(frames=rig.frame + 1)
@@ -127,9 +143,12 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     feeds = [c.dc_link for c in params.converters]
                     sums["mod"] += float(np.mean(u / (udc[feeds] / math.sqrt(3))))
                     sums["udc"] += float(np.mean(udc))
+                    sums["reported"] += float(rig.replies.get("achieved_effort_kn", math.nan))
                 pq = rig.plant.power_quality()
                 limit = params.effort_limits.at(dyno.speed_mps, braking=demand < 0)
-                trips = tuple(sorted(ev.NAMES[c] for c in tcu.events if c in ev.TRIPS))
+                seen = dyno.events | (set(tcu.events) if tcu is not None else set())
+                trips = tuple(sorted(ev.NAMES.get(c, f"event {c}") for c in seen
+                                     if c in ev.TRIPS))
                 points.append(Point(
                     speed_kmh=v_kmh, demand=demand, rail_force_kn=sums["force"] / n / 1e3,
                     limit_kn=math.copysign(limit / 1e3, demand),
@@ -137,7 +156,7 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     rotor_flux_vs=sums["flux"] / n, modulation=sums["mod"] / n,
                     dc_link_v=sums["udc"] / n,
                     line_power_factor=float(pq.get("power_factor", math.nan)),
-                    trips=trips))
+                    trips=trips, reported_kn=sums["reported"] / n))
                 rig.driver.mode, rig.driver.effort_demand = MODE["coast"], 0.0
                 await rig.run(frames=rig.frame + round(RELEASE_S / frame_s))
     finally:

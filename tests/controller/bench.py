@@ -49,7 +49,7 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
     encoder = EncoderSpeed(cfg.encoder_lines, frame_s)
     edges_per_rad = 4 * cfg.encoder_lines / (2 * math.pi)
     acting = (0.5, 0.5, 0.5)  # the duties held in the frame now: computed a frame ago
-    torque, flux, voltage = [], [], []
+    torque, flux, voltage, estimates = [], [], [], []
     for k in range(frames):
         t_ref = torque_nm if k >= step_at else before_nm
         currents = tuple(float(plant.read(f"inverter.phase_current_{x}_a")[0]) for x in "abc")
@@ -57,7 +57,9 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
         speed = encoder.update(count)
         if control == "vector":
             computed = ctl.step(t_ref, encoder.angle, speed, u_dc, currents)
+            estimates.append(ctl.torque_estimate)  # over the period just ended
         else:
+            estimates.append(ctl.estimated_torque(currents))
             computed, _ = ctl.step(t_ref, speed, u_dc, phase_currents=currents,
                                    rotor_angle_rad=encoder.angle)
         cmd = Commands(np.array([acting]), np.array([True]))
@@ -90,6 +92,9 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
             "overshoot": max((peak - final) / (final - before_nm), 0.0),
             "flux_change": float(np.abs(flux[step_at:] / flux[step_at - 1] - 1).max()),
             "final_nm": final,
+            # the controller's own estimate from its measured currents (the effort it
+            # reports), over the same frames
+            "estimate_nm": float(np.mean(estimates[-WINDOW:])),
             "voltage_v": float(fundamental), "frequency_hz": w_e / (2 * math.pi),
             "torque_nm": torque, "ctl": ctl}
 
