@@ -3,8 +3,10 @@
 Space-vector equivalent modulation by min-max zero-sequence injection: the phase
 voltages u cos(angle - k 2 pi/3) plus the common-mode voltage -(max + min)/2, linear up to
 U_dc / sqrt(3) per phase (Holmes & Lipo, *Pulse Width Modulation for Power Converters*,
-2003, ch. 6). The duty is computed with the measured link voltage each period, which also
-compensates the link's ripple.
+2003, ch. 6). The duty is computed with the link voltage measured at the sample, which
+follows the link's slow changes; its 2f ripple it follows only in part, the duty acting a
+period later (at 100 Hz and 1 ms about a tenth of the ripple is taken out, at 33 Hz about
+two thirds).
 
 Dead-time compensation: during the blanking time t_d the diode conducts, so each leg's
 mean voltage falls short by t_d f_sw U_dc sgn(i) (same book, ch. 2 on dead time): the

@@ -46,9 +46,9 @@ CURRENT_LIMIT_FACTOR = 2.2  # peak current per motor, of the rated peak (inverte
 BISECTIONS = 16
 BREAKDOWN_EVERY = 16  # periods between searches for the breakdown slip
 FLUX_TRIM_S = 0.2  # time constant of the voltage trim that holds the flux on the current's
-FLUX_TRIM_RANGE = 0.15
+FLUX_TRIM_RANGE = 0.15  # the most the trim may change the voltage, of the circuit's
 TRIM_UP_TO = 0.5  # of the rated frequency
-LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple  # the most the trim may change the voltage, of the circuit's
+LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple
 
 
 class ScalarControl:
@@ -76,11 +76,14 @@ class ScalarControl:
         self.psi_rated = self._rated_main_flux()
         self.w_breakdown = [0.0, 0.0]  # motoring, generating: signed, rad/s
         self.breakdown_age = [0, 0]  # periods until each is found anew
+        self.breakdown_key = 0  # the direction searched last
         self.psi_m = self.psi_rated
         self.w_slip = 0.0
         self.u_trim = 1.0
         self._i_prev: complex | None = None  # the last sample's current, per motor
-        self._u_history = (0j, 0j)  # held from the last sample to the next; the one after
+        # what each command carried (voltage, stator frequency Hz, slip rad/s, main flux),
+        # for the period just measured (sent two steps back) and the one after it
+        self._history = ((0j, 0.0, 0.0, self.psi_rated),) * 2
         self.u_d_mean = 0.0
         self.u_vec = 0j
         self.u_last = 0.0
@@ -146,6 +149,9 @@ class ScalarControl:
         lm = self.curve.lm(self.psi_m)
         sign = 1.0 if torque >= 0 else -1.0
         key = 0 if sign > 0 else 1
+        if key != self.breakdown_key:  # the other direction's cap is from another time
+            self.breakdown_age[key] = 0
+            self.breakdown_key = key
         if self.breakdown_age[key] <= 0:
             self.w_breakdown[key] = self.breakdown_slip(sign, w_r, u_room, lm)
             self.breakdown_age[key] = BREAKDOWN_EVERY
@@ -181,11 +187,12 @@ class ScalarControl:
         time left over, device drops, R_s warm) biases."""
         ia, ib, ic = phase_currents
         i = abs(complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3))) / self.n_motors
-        y, _ = self._branches(self.w_slip, self.curve.lm(self.psi_m))
+        _, _, slip_held, psi_held = self._history[0]  # what the sampled current answers
+        y, _ = self._branches(slip_held, self.curve.lm(psi_held))
         psi_seen = i / abs(y)
-        if psi_seen <= 0.2 * self.psi_m:
+        if psi_seen <= 0.2 * psi_held:
             return
-        self.u_trim += weight * self.T / FLUX_TRIM_S * (self.psi_m / psi_seen - 1.0)
+        self.u_trim += weight * self.T / FLUX_TRIM_S * (psi_held / psi_seen - 1.0)
         self.u_trim = min(max(self.u_trim, 1.0 - FLUX_TRIM_RANGE), 1.0 + FLUX_TRIM_RANGE)
 
     def estimated_torque(self, phase_currents: tuple[float, float, float]) -> float:
@@ -203,8 +210,8 @@ class ScalarControl:
         ia, ib, ic = phase_currents
         i = complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3)) / self.n_motors
         i_prev, self._i_prev = self._i_prev, i
-        u_held = self._u_history[0]
-        w_s = 2 * math.pi * self.f_s
+        u_held, f_held, slip_held, psi_held = self._history[0]
+        w_s = 2 * math.pi * f_held
         if i_prev is None or abs(w_s) < 1.0:
             return self.torque_estimate
         x = 0.5 * w_s * self.T
@@ -214,25 +221,27 @@ class ScalarControl:
         # at low frequency the voltage's own error (what the dead-time compensation
         # leaves) weighs: there the current's magnitude at the slip applied says more
         # (psi_m = |I_s| / |I_s / psi_m|, then T(psi_m)), blended in below half rated
-        weight = max(1.0 - abs(self.f_s) / (TRIM_UP_TO * self.cfg.rated_frequency_hz), 0.0)
+        weight = max(1.0 - abs(f_held) / (TRIM_UP_TO * self.cfg.rated_frequency_hz), 0.0)
         if weight > 0.0:
-            y, t_per_psi2 = self._branches(self.w_slip, self.curve.lm(self.psi_m))
+            y, t_per_psi2 = self._branches(slip_held, self.curve.lm(psi_held))
             psi = abs(mean) / abs(y)
             t_now = weight * t_per_psi2 * psi * psi + (1.0 - weight) * t_now
         self.torque_estimate += (t_now - self.torque_estimate) * min(self.T / 0.01, 1.0)
         return self.torque_estimate
 
     def airgap_torque(self, phase_currents: tuple[float, float, float]) -> float:
-        """Torque per motor from the air-gap power of the last applied voltage, N m.
+        """Torque per motor from the air-gap power of the voltage held in the period the
+        sample ends (classic V/f's slip compensation), N m.
 
         P_airgap = 3/2 Re(u i*) - 3/2 R_s |i|^2 (amplitude-invariant vectors), T = P / w_s
         with w_s the synchronous mechanical speed (Bose 2002, slip compensation).
         """
         ia, ib, ic = phase_currents
         i = complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3)) / self.n_motors
-        p_air = 1.5 * ((self.u_vec * i.conjugate()).real
+        u_held, f_held, _, _ = self._history[0]
+        p_air = 1.5 * ((u_held * i.conjugate()).real
                        - self.cfg.stator_resistance_ohm * abs(i) ** 2)
-        w_sync = 2 * math.pi * self.f_s / self.cfg.pole_pairs
+        w_sync = 2 * math.pi * f_held / self.cfg.pole_pairs
         return p_air / w_sync if abs(w_sync) > 1.0 else 0.0
 
     def step(self, torque_per_motor: float, rotor_speed_rad_s: float, u_d: float,
@@ -295,7 +304,7 @@ class ScalarControl:
         self.u_last = u
         angle = self.theta + lead + 2 * math.pi * f_s * 1.5 * self.T  # acts t+T to t+2T
         self.u_vec = cmath.rect(u, angle)
-        self._u_history = (self._u_history[1], self.u_vec)  # (acting next, after it)
+        self._history = (self._history[1], (self.u_vec, f_s, self.w_slip, self.psi_m))
         current = None
         if phase_currents is not None and f_command_hz is None:
             ia, ib, ic = phase_currents  # turned on to the middle of the acting period

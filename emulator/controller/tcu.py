@@ -180,8 +180,10 @@ class ReferenceController:
                 period_s / 0.2, 1.0)
             line_rms = self.line_rms_f
             # regeneration is cut at once when the voltage rises and given back at the
-            # filter's pace (fast attack, slow release: no limit cycle, and no overshoot
-            # past U_max2 while the filter catches up)
+            # filter's pace (no limit cycle, and no overshoot past U_max2 while the filter
+            # catches up). A peak hold of the amplitude (releasing at the filter's pace)
+            # was tried: it held the SOGI amplitude's ripple peaks, cut the regeneration
+            # below what the chopper could take, and the link tripped on overvoltage
             regen_rms = max(self.line_rms_f, self.pll.amplitude / math.sqrt(2))
             if any(y[i] > 0.5 for i in self.ix_ovp):
                 self._raise(events.LINK_OVERVOLTAGE)

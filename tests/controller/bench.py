@@ -73,7 +73,10 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
         acting = computed  # the board's answer to y_k acts from t_(k+1)
         torque.append(np.mean(frame_torque))
         flux.append(abs(plant.flux_linkages(0)[1]))
-    w_e = ctl.w_e if control == "vector" else 2 * math.pi * ctl.f_s
+    # the stator frequency from the voltage itself: its turn from frame to frame (the
+    # value held in each frame), not from the controller under test
+    held = np.array(voltage[::SUBSTEPS])
+    w_e = float(np.angle(np.sum(held[1:] * np.conj(held[:-1])))) / frame_s
     h = frame_s / SUBSTEPS
     # each sub-step holds its value for h: the exact projection of the staircase
     times = np.arange(len(voltage)) * h
@@ -96,8 +99,15 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
             # reports), over the same frames
             "estimate_nm": float(np.mean(estimates[-WINDOW:])),
             "voltage_v": float(fundamental), "frequency_hz": w_e / (2 * math.pi),
+            # the linear modulation's most, U_dc / sqrt(3), as a fundamental when held
+            # for a frame while it turns (sin(x)/x, x = w T / 2)
+            "voltage_limit_v": u_dc / math.sqrt(3) * _hold(0.5 * w_e * frame_s),
             "torque_nm": torque, "ctl": ctl}
 
+
+
+def _hold(x: float) -> float:
+    return math.sin(x) / x if abs(x) > 1e-9 else 1.0
 
 
 def circuit_breakdown_nm(trainset: Path, run: dict, generating: bool) -> float:

@@ -62,8 +62,19 @@ def test_torque_step(share: float, sign: float) -> None:
     assert r["estimate_nm"] == pytest.approx(r["final_nm"], rel=0.05)
 
 
-@pytest.mark.parametrize("speed", [300.0, 430.0])  # 1.55 and 2.2 of base speed
-@pytest.mark.parametrize("sign", [1.0, -1.0])
+# Measured (this controller, bench): braking at 300 rad/s it reaches the circuit's
+# breakdown torque at the voltage it applies, but applies only 87.6 % of the linear
+# limit: the breakdown flux it plans (i_d = u / (sqrt 2 w_e L_s), lossless) is low for
+# generating, where the stator drop gives voltage back. A search for the flux on the
+# steady state with R_s was tried and lost the 2.5 x base step; strict: the marker goes
+# when it uses its voltage.
+SHORT_OF_VOLTAGE = pytest.mark.xfail(strict=True, reason="braking at 300 rad/s uses 87.6 % "
+                                     "of the linear modulation's voltage")
+
+
+@pytest.mark.parametrize(("speed", "sign"), [
+    (300.0, 1.0), (430.0, 1.0),  # 1.55 and 2.2 of base speed
+    pytest.param(300.0, -1.0, marks=SHORT_OF_VOLTAGE), (430.0, -1.0)])
 def test_voltage_limited_torque_is_the_circuits_breakdown_torque(speed: float,
                                                                   sign: float) -> None:
     # ask for twice rated torque: the voltage, not the current, sets what comes; after
@@ -72,5 +83,10 @@ def test_voltage_limited_torque_is_the_circuits_breakdown_torque(speed: float,
     r = vector_run(speed, sign * 2 * cfg.rated_torque_nm, step_at=1000, frames=2400)
     t_k = circuit_breakdown_nm(TRAINSET, r, generating=sign < 0)
     print(f"vector, {speed:.0f} rad/s: {r['final_nm']:+.0f} N m at {r['voltage_v']:.0f} V "
-          f"peak (fundamental), {r['frequency_hz']:.1f} Hz; circuit breakdown {t_k:.0f} N m")
+          f"peak (fundamental, {r['voltage_v'] / r['voltage_limit_v']:.1%} of the linear "
+          f"limit), {r['frequency_hz']:.1f} Hz; circuit breakdown {t_k:.0f} N m")
     assert abs(r["final_nm"]) == pytest.approx(t_k, rel=0.05)
+    # and that breakdown is the link's: the drive uses at least 90 % of the linear
+    # modulation's voltage there (a reserve of 5-10 % for the current control is common
+    # practice, no source)
+    assert r["voltage_v"] >= 0.9 * r["voltage_limit_v"]
