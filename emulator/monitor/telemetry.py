@@ -20,8 +20,10 @@ from emulator.protocol.events import TRIPS
 from emulator.protocol.signal_map import MODES
 
 RPM_PER_RAD_S = 60.0 / (2.0 * math.pi)
-DRY_MU0 = RAIL_CONDITIONS["dry"][2]
-WET_MU0 = RAIL_CONDITIONS["wet"][2]
+#: the plant's rail conditions from the most friction down (sanding is something done to
+#: a rail, not a level of friction to name)
+_BY_FRICTION = sorted((n for n in RAIL_CONDITIONS if n != "sanded"),
+                      key=lambda name: -RAIL_CONDITIONS[name][2])
 
 
 def catalogue() -> list[dict[str, Any]]:
@@ -34,10 +36,13 @@ def catalogue() -> list[dict[str, Any]]:
 
 
 def rail_condition(mu0: float) -> str:
-    """A word for an axle's friction coefficient: dry, wet, or low below wet."""
-    if mu0 >= 0.5 * (DRY_MU0 + WET_MU0):
-        return "dry"
-    return "wet" if mu0 >= 0.8 * WET_MU0 else "low"
+    """A word for an axle's friction coefficient: the first of the plant's rail
+    conditions (from the most friction down) it reaches within a fifth, or "low" below
+    them all."""
+    for name in _BY_FRICTION:
+        if mu0 >= 0.8 * RAIL_CONDITIONS[name][2]:
+            return name
+    return "low"
 
 
 class TelemetryBuilder:

@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from emulator.plant.drivetrain import RAIL_CONDITIONS
 from emulator.profiles.table import ProfileError, Table, read_toml_lines
 
 from .checks import CheckSpec, read_check
@@ -44,7 +45,7 @@ class AdhesionZone:
 
     from_m: float
     to_m: float
-    rail: str  # "dry" or "wet": the Polach parameter set
+    rail: str  # a rail condition of the plant (dry, wet, contaminated, sanded)
     factor: float  # scales mu0 on top of the rail condition
     axles: tuple[str, ...]  # motor names; empty: every motored axle
     label: str
@@ -163,7 +164,7 @@ def _track(t: Table) -> TrackSpec:
     for i, s in enumerate(t.tables("low_adhesion") if t.optional("low_adhesion") else ()):
         x0 = s.number("from_m", "m", -1e6, 1e6)
         x1 = s.number("to_m", "m", x0, 1e6, lo_open=True)
-        rail = s.string("rail", ("dry", "wet")) if s.optional("rail") else "dry"
+        rail = s.string("rail", tuple(RAIL_CONDITIONS)) if s.optional("rail") else "dry"
         factor = s.number("factor", "1", 0.0, 2.0) if s.optional("factor") else 1.0
         axles = ()
         if s.optional("axles"):

@@ -1,4 +1,4 @@
-"""Adhesion control on wet rail (Polach wet parameter set, REFERENCES.md).
+"""Adhesion control on wet rail (the plant's wet condition: Polach's wet shape, REFERENCES.md).
 
 Target from the issue: the creep velocity stays bounded and the axles transmit at least
 85 % of the adhesion that the plant's creep-force curve allows at that speed; without
@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from emulator.plant.drivetrain import POLACH_WET, polach_force
+from emulator.plant.drivetrain import RAIL_CONDITIONS, polach_force
 from emulator.protocol.signal_map import MODES
 
 from .conftest import rig_with_controller
 
-ADHESION_FACTOR = 0.4  # wet rail, further reduced (a leaf film), so the drive exceeds adhesion
+ADHESION_FACTOR = 0.78  # wet rail (mu0 0.154) further reduced (a leaf film) to mu0 0.12,
+# so the drive exceeds adhesion
 
 
 async def _wet_start(enabled: bool):
@@ -43,7 +44,7 @@ def _adhesion_limit(plant) -> float:
     """Highest creep force of one axle the plant's Polach curve allows at this speed, N."""
     v = plant.read("train.speed_mps")
     dt = plant.params.drivetrain
-    k_a, k_s, mu0, a, b = POLACH_WET
+    k_a, k_s, mu0, a, b = RAIL_CONDITIONS["wet"]
     w = np.linspace(0.001, 3.0, 3000)
     return max(polach_force(x, v, dt.axle_load_n, dt.kalker_coefficient_n, k_a, k_s,
                             mu0 * ADHESION_FACTOR, a, b, dt.creep_reference_speed_mps)[0]
