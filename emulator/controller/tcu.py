@@ -18,6 +18,14 @@ from emulator.protocol import events
 
 from .adhesion import AdhesionControl
 from .config import ControllerConfig
+from .effort import (
+    FEEDFORWARD_EFFICIENCY,
+    GEAR_EFFICIENCY,
+    POWER_OVERLOAD,
+    gear_efficiency,
+    link_power,
+    motor_torque_limit,
+)
 from .encoder import EncoderSpeed
 from .line_converter import LinkControl, chopper_duty, power_limits
 from .motor_scalar import ScalarControl
@@ -25,14 +33,8 @@ from .motor_vector import VectorControl
 from .pll import SogiPll
 from .sequence import RUNNING, SwitchOnSequence
 
-GEAR_EFFICIENCY = 0.975  # design value of the TCU's effort estimate
 # motors and inverters at full power, with margin: what the line converters are rated for
 DRIVE_EFFICIENCY = 0.85
-#: motor, gear and inverter efficiency the line converters' feed-forward expects near the
-#: rated point (traction drives of a few hundred kW: common practice, no source)
-FEEDFORWARD_EFFICIENCY = 0.93
-OVERLOAD = 1.4  # starting torque / rated torque
-POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
 FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
@@ -76,8 +78,6 @@ class ReferenceController:
                            min_amplitude=0.2 * cfg.line_nominal_v * math.sqrt(2))
         charged = 0.85 * cfg.secondary_v * math.sqrt(2) if cfg.line_side else 0.0
         self.sequence = SwitchOnSequence(T, charged)
-        self.t_max_motor = OVERLOAD * cfg.rated_torque_nm
-        self.p_max_motor = POWER_OVERLOAD * cfg.rated_power_w
         self.n_motors = n_motors
         self.effort_n = 0.0  # jerk-limited effort reference of the whole train
         self.speed_integral = 0.0
@@ -223,7 +223,7 @@ class ReferenceController:
         quick = self._plausible_fill([e.speed_short for e in self.encoders])
         wheel_mps = [w * k_wheel for w in quick]
         v = sum(wheel_mps) / len(wheel_mps)
-        f_max = self.n_motors * self._motor_torque_limit(abs(v)) * gear * GEAR_EFFICIENCY / r
+        f_max = self.n_motors * motor_torque_limit(cfg, abs(v)) * gear * GEAR_EFFICIENCY / r
         self.available_n = f_max if running else 0.0
         if mode == 1:
             target = max(demand, 0.0) * f_max
@@ -265,7 +265,7 @@ class ReferenceController:
         else:  # until the encoders' windows hold measured speeds there is no creep to judge
             factors = self.adhesion.factor
         torque_motor = (self.effort_n * r
-                        / (gear * _gear_efficiency(self.effort_n) * self.n_motors))
+                        / (gear * gear_efficiency(self.effort_n) * self.n_motors))
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
@@ -352,7 +352,7 @@ class ReferenceController:
                     out[i] = 0.5
             out[self.ox_gates[k]] = float(active)
         # the effort achieved: torque estimated from the measured currents, not the demand
-        self.achieved_n = (achieved * gear * _gear_efficiency(achieved * direction) / r
+        self.achieved_n = (achieved * gear * gear_efficiency(achieved * direction) / r
                            * direction)
 
         # --- line converters ----------------------------------------------------------
@@ -366,7 +366,7 @@ class ReferenceController:
                 if running and line_live:
                     i_sec = [y[j] for j in self.ix_isec[i]]
                     mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,
-                                              _link_power(p_links[i]), p_min, p_max)
+                                              link_power(p_links[i]), p_min, p_max)
                 else:
                     link.reset()
                     mods = [0.0] * len(self.ox_mod[i])
@@ -426,28 +426,3 @@ class ReferenceController:
     def _axles(self, inverter: int) -> range:
         first = sum(len(ms) for ms in self.motors[:inverter])
         return range(first, first + len(self.motors[inverter]))
-
-    def _motor_torque_limit(self, v_mps: float) -> float:
-        """Tractive-effort curve per motor: constant torque, constant power, then above
-        the natural-characteristic speed falling as 1/w^2 with the breakdown torque, N m."""
-        k = self.cfg.gear_ratio / self.cfg.wheel_radius_m
-        w_motor = max(v_mps * k, 1e-3)
-        w_natural = self.cfg.natural_from_mps * k
-        if w_motor > w_natural:
-            return min(self.t_max_motor, self.p_max_motor * w_natural / (w_motor * w_motor))
-        return min(self.t_max_motor, self.p_max_motor / w_motor)
-
-
-def _link_power(p_shaft: float) -> float:
-    """The power the motors draw from (> 0) or return to (< 0) their link, from their
-    shaft power: divided by the efficiency when motoring, multiplied when generating."""
-    if p_shaft >= 0.0:
-        return p_shaft / FEEDFORWARD_EFFICIENCY
-    return p_shaft * FEEDFORWARD_EFFICIENCY
-
-
-def _gear_efficiency(rail_force: float) -> float:
-    """Rail force over (motor torque x gear / r): the gear's loss comes from the power
-    flow, so the motors give more than the rail gets in traction and the rail gives
-    more than the motors get in braking."""
-    return GEAR_EFFICIENCY if rail_force >= 0 else 1.0 / GEAR_EFFICIENCY

@@ -19,7 +19,7 @@ from emulator.controller.motor_scalar import ScalarControl
 from emulator.plant import Commands, Plant
 from emulator.profiles.reader import load_trainset
 
-from .bench import bench_run, circuit_breakdown_nm
+from .bench import bench_run, check_voltage_limited_torque
 from .conftest import TRAINSET
 
 
@@ -90,18 +90,4 @@ def test_torque_step(share: float, sign: float) -> None:
 @pytest.mark.parametrize("sign", [1.0, -1.0])
 def test_voltage_limited_torque_is_the_circuits_breakdown_torque(speed: float,
                                                                   sign: float) -> None:
-    # twice rated torque asked: the slip limit (0.9 of the breakdown slip) gives 99 % of
-    # the breakdown torque by Kloss' formula; the check is the circuit at the voltage
-    # (fundamental) and frequency applied, within 5 %
-    cfg = config_from_profile(TRAINSET)
-    r = bench_run(TRAINSET, "scalar", speed, sign * 2 * cfg.rated_torque_nm, step_at=1000,
-                  frames=2400)
-    t_k = circuit_breakdown_nm(TRAINSET, r, generating=sign < 0)
-    print(f"V/f, {speed:.0f} rad/s: {r['final_nm']:+.0f} N m at {r['voltage_v']:.0f} V "
-          f"peak (fundamental, {r['voltage_v'] / r['voltage_limit_v']:.1%} of the linear "
-          f"limit), {r['frequency_hz']:.1f} Hz; circuit breakdown {t_k:.0f} N m")
-    assert abs(r["final_nm"]) == pytest.approx(t_k, rel=0.05)
-    # and that breakdown is the link's: the drive uses at least 90 % of the linear
-    # modulation's voltage there (a reserve of 5-10 % for the current control is common
-    # practice, no source)
-    assert r["voltage_v"] >= 0.9 * r["voltage_limit_v"]
+    check_voltage_limited_torque(TRAINSET, "scalar", speed, sign)

@@ -6,8 +6,9 @@ delay), never in the frame they were computed (tests/controller/bench.py).
 
 Checks: a torque step at 0.3, 1 and 2.5 x base speed reaches 90 % (the crossing must
 exist) within 15 ms and overshoots by no more than 10 % (this project's targets); the
-steady torque is within 5 % of the reference (the accuracy commonly expected of field-oriented control
-without a torque sensor: common practice, no source) and the rotor flux holds within 3 %;
+steady torque is within 5 % of the reference (the accuracy commonly expected of
+field-oriented control without a torque sensor: common practice, no source) and the rotor
+flux holds within 3 %;
 above base speed, at the voltage limit, the torque is what the steady-state equivalent
 circuit gives at the same stator voltage (its fundamental) and frequency
 (tests/oracles.py), within 5 %.
@@ -21,7 +22,7 @@ import pytest
 from emulator.controller.config import config_from_profile
 from emulator.profiles.reader import PROFILES_DIR
 
-from .bench import bench_run, circuit_breakdown_nm
+from .bench import bench_run, check_voltage_limited_torque
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-15kv.toml"
 
@@ -77,16 +78,4 @@ SHORT_OF_VOLTAGE = pytest.mark.xfail(strict=True, reason="braking at 300 rad/s u
     pytest.param(300.0, -1.0, marks=SHORT_OF_VOLTAGE), (430.0, -1.0)])
 def test_voltage_limited_torque_is_the_circuits_breakdown_torque(speed: float,
                                                                   sign: float) -> None:
-    # ask for twice rated torque: the voltage, not the current, sets what comes; after
-    # 1.4 s the rotor flux (tau_r ~ 0.6 s) has settled at the field-weakening level
-    cfg = config_from_profile(TRAINSET)
-    r = vector_run(speed, sign * 2 * cfg.rated_torque_nm, step_at=1000, frames=2400)
-    t_k = circuit_breakdown_nm(TRAINSET, r, generating=sign < 0)
-    print(f"vector, {speed:.0f} rad/s: {r['final_nm']:+.0f} N m at {r['voltage_v']:.0f} V "
-          f"peak (fundamental, {r['voltage_v'] / r['voltage_limit_v']:.1%} of the linear "
-          f"limit), {r['frequency_hz']:.1f} Hz; circuit breakdown {t_k:.0f} N m")
-    assert abs(r["final_nm"]) == pytest.approx(t_k, rel=0.05)
-    # and that breakdown is the link's: the drive uses at least 90 % of the linear
-    # modulation's voltage there (a reserve of 5-10 % for the current control is common
-    # practice, no source)
-    assert r["voltage_v"] >= 0.9 * r["voltage_limit_v"]
+    check_voltage_limited_torque(TRAINSET, "vector", speed, sign)

@@ -1,0 +1,47 @@
+"""The reference controller's effort curve and its power-flow factors.
+
+The tractive-effort curve per motor has three regions: constant torque (OVERLOAD x rated),
+constant power (POWER_OVERLOAD x rated), and above the natural-characteristic speed a
+torque falling as 1/w^2 with the breakdown torque (the profile's
+natural_characteristic_from_kmh; common practice of traction curves). The gear's loss and
+the drive's efficiency are taken by the direction the power flows.
+"""
+
+from __future__ import annotations
+
+from .config import ControllerConfig
+
+GEAR_EFFICIENCY = 0.975  # design value of the TCU's effort estimate
+#: motor, gear and inverter efficiency the line converters' feed-forward expects near the
+#: rated point (traction drives of a few hundred kW: common practice, no source)
+FEEDFORWARD_EFFICIENCY = 0.93
+OVERLOAD = 1.4  # starting torque / rated torque
+POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
+
+
+def motor_torque_limit(cfg: ControllerConfig, v_mps: float) -> float:
+    """Tractive-effort curve per motor at a train speed: constant torque, constant power,
+    then above the natural-characteristic speed falling as 1/w^2, N m."""
+    t_max = OVERLOAD * cfg.rated_torque_nm
+    p_max = POWER_OVERLOAD * cfg.rated_power_w
+    k = cfg.gear_ratio / cfg.wheel_radius_m
+    w_motor = max(v_mps * k, 1e-3)
+    w_natural = cfg.natural_from_mps * k
+    if w_motor > w_natural:
+        return min(t_max, p_max * w_natural / (w_motor * w_motor))
+    return min(t_max, p_max / w_motor)
+
+
+def link_power(p_shaft: float) -> float:
+    """The power the motors draw from (> 0) or return to (< 0) their link, from their
+    shaft power: divided by the efficiency when motoring, multiplied when generating."""
+    if p_shaft >= 0.0:
+        return p_shaft / FEEDFORWARD_EFFICIENCY
+    return p_shaft * FEEDFORWARD_EFFICIENCY
+
+
+def gear_efficiency(rail_force: float) -> float:
+    """Rail force over (motor torque x gear / r): the gear's loss comes from the power
+    flow, so the motors give more than the rail gets in traction and the rail gives
+    more than the motors get in braking."""
+    return GEAR_EFFICIENCY if rail_force >= 0 else 1.0 / GEAR_EFFICIENCY
