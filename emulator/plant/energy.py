@@ -22,7 +22,7 @@ class EnergyAccount:
     gear_loss: float
     slip_loss: float
     load: float
-    running_resistance: float
+    running_resistance: float  # Davis and the curves
     friction_brake: float
     potential: float
     magnetic_stored: float

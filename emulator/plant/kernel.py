@@ -127,6 +127,7 @@ from .layout import (
     TS_SPEED,
     TS_TRACTIVE_FORCE,
     TU_BRAKE_FORCE,
+    TU_CURVE_RESISTANCE,
     TU_GRADIENT,
 )
 from .line import line_frame_end, line_frame_start, line_substep
@@ -338,6 +339,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     mass = tpar[TP_MASS]
     m_eff = mass * (1.0 + tpar[TP_ROT_ALLOWANCE])
     brake = max(tu[TU_BRAKE_FORCE], 0.0)
+    curve = max(tu[TU_CURVE_RESISTANCE], 0.0)  # a friction: against motion, holds at rest
     line_frame_start(ss, ls2, lst)
     for s in range(n_sub):
         t = t0 + s * h
@@ -352,7 +354,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
                                        lst, v, ts[TS_ACCEL], i_link)
         line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link)
         f_grade = gradient_force(mass, tpar[TP_GRAVITY], tu[TU_GRADIENT])
-        v_new, resist = step_speed(v, force - f_grade, tpar[TP_DAVIS_A] + brake,
+        v_new, resist = step_speed(v, force - f_grade, tpar[TP_DAVIS_A] + brake + curve,
                                    tpar[TP_DAVIS_B], tpar[TP_DAVIS_C], m_eff, h)
         v_avg = 0.5 * (v + v_new)
         ts[TS_POSITION] += v_avg * h

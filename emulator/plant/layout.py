@@ -183,7 +183,8 @@ TP_N = 7
 
 TU_GRADIENT = 0  # track gradient, rise over run (positive uphill), 1
 TU_BRAKE_FORCE = 1  # friction brake force demanded, N (>= 0)
-TU_N = 2
+TU_CURVE_RESISTANCE = 2  # curve resistance, N (>= 0): against the motion, static at rest
+TU_N = 3
 
 TS_SPEED = 0  # train speed, m/s
 TS_POSITION = 1  # position along the track, m

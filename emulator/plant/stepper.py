@@ -257,6 +257,12 @@ class Plant:
         self._finite("brake force", force_n, 0.0, 1e7)
         self.tu[L.TU_BRAKE_FORCE] = force_n
 
+    def set_curve_resistance(self, force_n: float) -> None:
+        """Curve resistance of the whole train, N: like friction it acts against the
+        motion and, at rest, holds up to its size (it never pushes a train)."""
+        self._finite("curve resistance", force_n, 0.0, 1e7)
+        self.tu[L.TU_CURVE_RESISTANCE] = force_n
+
     def set_adhesion_factor(self, motor: int, factor: float) -> None:
         """Scale the friction coefficient mu0 of one motored axle (1 = profile value)."""
         self._finite("adhesion factor", factor, 0.0, 2.0)

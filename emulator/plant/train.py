@@ -1,10 +1,11 @@
 """Longitudinal train dynamics: lumped mass, running resistance, gradient, brakes.
 
-m (1 + k_rot) dv/dt = sum F_creep - R(v) - m g sin(theta) - F_brake
+m (1 + k_rot) dv/dt = sum F_creep - R(v) - m g sin(theta) - F_brake - F_curve
 
 Running resistance after Davis (General Electric Review 29, 1926):
-R(v) = A + B v + C v^2, acting against the motion. The constant term A and the friction
-brake hold the train at rest like static friction: a train at standstill moves only
+R(v) = A + B v + C v^2, acting against the motion. The constant term A, the friction
+brake and the curve resistance (Röckl's, from the track: m g r_c, r_c in N/kN) act
+against the motion and hold the train at rest like static friction: a train at standstill moves only
 when the other forces exceed them, so it neither creeps on the level at zero effort
 nor stays put on a gradient steeper than A allows when its brakes are off.
 

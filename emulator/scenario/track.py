@@ -17,6 +17,8 @@ from __future__ import annotations
 
 import math
 
+from emulator.profiles.reader import GRAVITY
+
 from .spec import Stretch, TrackSpec
 
 
@@ -50,6 +52,7 @@ class Track:
                                      f"axle named {axle!r}")
         self.base_rail = p.drivetrain.rail_condition
         self._gradient = math.nan
+        self._curve = math.nan
         self._live: bool | None = None
         self._axle_state: list[tuple[str, float] | None] = [None] * len(self.motor_names)
         self.decel = 0.5
@@ -57,10 +60,16 @@ class Track:
         self._inside: set[str] = set()
 
     def gradient(self, x: float) -> float:
-        """Gradient plus the curve's equivalent gradient at x, rise over run."""
-        g = _at(self.spec.gradients, x, 0.0)
+        """The track's gradient at x, rise over run."""
+        return _at(self.spec.gradients, x, 0.0)
+
+    def curve_resistance(self, x: float) -> float:
+        """The curve resistance of the train at x, N (Röckl's, over the train's weight)."""
         radius = _at(self.spec.curves, x, 0.0)
-        return g + (curve_resistance_per_mille(radius) * 1e-3 if radius else 0.0)
+        if not radius:
+            return 0.0
+        p = self.plant.params
+        return curve_resistance_per_mille(radius) * 1e-3 * p.train.mass_kg * GRAVITY
 
     def ceiling(self, x: float, v: float) -> float:
         """The highest speed allowed now: each limit here or ahead, by a braking curve."""
@@ -80,6 +89,10 @@ class Track:
         if g != self._gradient:
             plant.set_gradient(g)
             self._gradient = g
+        r = self.curve_resistance(x)
+        if r != self._curve:
+            plant.set_curve_resistance(r)
+            self._curve = r
         if self.spec.neutral_sections and plant.line_side:
             live, ahead = True, False
             for n in self.spec.neutral_sections:

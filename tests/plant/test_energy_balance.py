@@ -23,9 +23,11 @@ def balance(plant: Plant) -> tuple[float, float]:
     return e.dc_link_in, out
 
 
-def test_traction_run_on_a_gradient() -> None:
+@pytest.mark.parametrize("curve_n", [0.0, 5.2e3])  # straight; a 300 m curve (Röckl)
+def test_traction_run_on_a_gradient(curve_n: float) -> None:
     plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     plant.set_gradient(0.005)
+    plant.set_curve_resistance(curve_n)  # booked with the running resistance
     drive = SlipFrequencyDrive(plant, slip_hz=1.2, volts_per_hz=15.8)
     for _ in range(6000):
         plant.advance(drive.commands())

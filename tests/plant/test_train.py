@@ -60,3 +60,47 @@ def test_start_from_standstill_at_the_default_substep_is_stable() -> None:
     creep = plant.read("motor.creep_velocity_mps")
     assert 0.5 < v < 10.0
     assert abs(creep).max() < 0.2  # dry rail, moderate effort: micro-slip only
+
+
+def _roeckl_300m(mass_kg: float) -> float:
+    """Röckl's curve resistance for a 300 m radius, 650 / (R - 55) N/kN (R >= 300 m; a
+    standard-gauge formula in any railway-operation text), over the train's weight."""
+    return 650.0 / (300.0 - 55.0) * 1e-3 * mass_kg * 9.80665
+
+
+def test_a_train_at_rest_in_a_curve_stays_put() -> None:
+    # on level track in a 300 m curve the resistance (about 5 kN here, more than Davis A)
+    # holds the train like friction: it never pushes it
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+    plant.set_curve_resistance(_roeckl_300m(plant.params.train.mass_kg))
+    for _ in range(2000):
+        plant.advance(None)
+    assert plant.read("train.speed_mps") == 0.0
+    assert plant.read("train.position_m") == 0.0
+
+
+@pytest.mark.parametrize("direction", [1.0, -1.0])
+def test_a_moving_train_is_braked_by_the_curve_either_way(direction: float) -> None:
+    # coasting forwards or reversing, the curve takes speed off: the deceleration grows
+    # by F_curve / m_eff over the same run on straight track (Newton)
+    def coast(curve_n: float) -> float:
+        plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+        plant.set_speed(direction * 5.0)
+        plant.set_curve_resistance(curve_n)
+        for _ in range(500):
+            plant.advance(None)
+        return plant.read("train.speed_mps")
+
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+    p = plant.params
+    curve = _roeckl_300m(p.train.mass_kg)
+    straight, curved = coast(0.0), coast(curve)
+    assert abs(curved) < abs(straight) < 5.0  # slower, never pushed
+    assert direction * curved > 0.0  # still moving the same way after 0.5 s
+    tr, dt = p.train, p.drivetrain
+    j_eq = dt.wheelset_inertia_kgm2 + dt.gear_ratio**2 * p.machine.rotor_inertia_kgm2
+    rotating = sum(j_eq / (d / 2) ** 2 for c in p.converters for d in c.wheel_diameters_m)
+    m_eff = tr.mass_kg * (1 + tr.rotating_mass_allowance) + rotating
+    # the difference after 0.5 s is the curve's impulse over m_eff (the Davis terms differ
+    # by B and C over a speed difference of a few mm/s: far below the 1 % allowed)
+    assert abs(straight) - abs(curved) == pytest.approx(curve * 0.5 / m_eff, rel=0.01)
