@@ -28,17 +28,17 @@ POLACH_DRY = (1.0, 0.4, 0.55, 0.4, 0.6)
 POLACH_WET = (0.3, 0.1, 0.30, 0.4, 0.2)
 
 #: The rail conditions the plant offers: Polach's shapes, with mu0 set so that the peak of
-#: the creep curve (15.5 t axle, K = 1.7e7 N, 0.1 m/s creep reference: the Tern's) sits
+#: the creep curve (11.9 t axle, K = 1.7e7 N, 0.1 m/s creep reference: the Tern's) sits
 #: where the literature puts it (peaks by `railrig adhesion`, 0 -> 160 km/h):
-#: - dry: 0.33 -> 0.23, Curtius-Kniffler mu = 0.161 + 7.5 / (v + 44) within 14 %
+#: - dry: 0.32 -> 0.23, Curtius-Kniffler mu = 0.161 + 7.5 / (v + 44) within 14 %
 #:   (Curtius & Kniffler 1950, REFERENCES.md);
 #: - wet: 0.15 -> 0.11, inside "wet 0.10-0.20" (industry adhesion manual, REFERENCES.md);
 #: - contaminated (leaf film, oil): 0.05 -> 0.04; the manual goes down to 0.01, 0.05 is a
 #:   middle chosen here (invented);
-#: - sanded (sand on wet rail): 0.22 -> 0.16 [from memory: sanding restores most of the
+#: - sanded (sand on wet rail): 0.22 -> 0.17 [from memory: sanding restores most of the
 #:   dry level, no source at hand].
 RAIL_CONDITIONS = {
-    "dry": (1.0, 0.4, 0.341, 0.4, 0.6),
+    "dry": (1.0, 0.4, 0.324, 0.4, 0.6),
     "wet": (0.3, 0.1, 0.154, 0.4, 0.2),
     "contaminated": (0.3, 0.1, 0.051, 0.4, 0.2),
     "sanded": (1.0, 0.4, 0.227, 0.4, 0.6),

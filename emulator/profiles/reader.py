@@ -331,18 +331,26 @@ def load_trainset(path: Path | str) -> TrainsetParams:
         ambient_temperature_k=tr.number("ambient_temperature_degc", "degC", -60.0, 80.0,
                                         offset=KELVIN),
     )
+    # the weight is spread evenly over the axles (a multiple unit's cars weigh much the
+    # same): each motored axle carries m g / n, static (load transfer not modelled)
+    axle_count = tr.number("axle_count", "1", 2.0, 400.0)
+    if axle_count != int(axle_count):
+        raise tr.error("axle_count", f"a whole number of axles, not {axle_count:g}")
     tr.finish()
 
     supply = _supply(root.table("supply"))
 
     dt = root.table("drivetrain")
+    if dt.has("axle_load_kg"):
+        raise dt.error("axle_load_kg", "the axle load follows the train's mass now: give "
+                       "[train] axle_count (the load is mass_kg / axle_count) and remove it")
     gear = dt.number("gear_ratio", "1", 0.0, 50.0, lo_open=True)
     drivetrain = DrivetrainParams(
         gear_ratio=gear,
         gear_efficiency=dt.number("gear_efficiency", "1", 0.5, 1.0),
         wheelset_inertia_kgm2=dt.number("wheelset_inertia_kgm2", "kg m^2", 0.0, 1e4,
                                         lo_open=True),
-        axle_load_n=dt.number("axle_load_kg", "kg", 0.0, 5e4, lo_open=True, scale=GRAVITY),
+        axle_load_n=train.mass_kg * GRAVITY / axle_count,
         kalker_coefficient_n=dt.number("kalker_coefficient_n", "N", 0.0, 1e9, lo_open=True),
         rail_condition=dt.string("rail_condition", tuple(RAIL_CONDITIONS)),
         creep_reference_speed_mps=dt.number("creep_reference_speed_mps", "m/s", 0.0, 5.0,
@@ -367,6 +375,9 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     conv_names = [c.name for c in converters]
     if len(set(conv_names)) != len(conv_names):
         raise root.error("converter", "names must be unique")
+    if sum(len(c.wheel_diameters_m) for c in converters) > axle_count:
+        raise root.error("converter", f"more motored axles than the train's axle_count "
+                         f"({axle_count:g})")
     transformer = _transformer(root.table("transformer"))
     line_converter = _four_quadrant(root.table("four_quadrant"))
     units = []

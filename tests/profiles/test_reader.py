@@ -66,6 +66,11 @@ def edited(tmp_path: Path, source: Path, old: str, new: str) -> Path:
     ("substep_us = 125.0", "substep_us = 70.0", "substep_us", "divide frame_ms"),
     ('rail_condition = "dry"', 'rail_condition = "icy"', "rail_condition", "dry, wet"),
     ("dead_time_us = 10.0", "dead_time_us = nan", "dead_time_us", "got nan"),
+    ("axle_count = 16", "axle_count = 15.5", "axle_count", "whole number"),
+    ("axle_count = 16", "axle_count = 6", "converter", "more motored axles"),
+    ("axle_count = 16", "", "axle_count", "missing"),
+    ("gear_ratio = 4.1", "gear_ratio = 4.1\naxle_load_kg = 15500.0", "axle_load_kg",
+     "follows the train's mass"),
 ])
 def test_bad_trainset_names_file_table_and_key(tmp_path, old, new, key, words) -> None:
     path = edited(tmp_path, TRAINSET, old, new)
@@ -89,6 +94,11 @@ def test_bad_machine_names_key(tmp_path, old, new, key, words) -> None:
     with pytest.raises(ProfileError) as err:
         load_machine(path)
     assert key in str(err.value) and words in str(err.value)
+
+
+def test_axle_load_is_the_trains_weight_over_its_axles() -> None:
+    p = load_trainset(TRAINSET)
+    assert p.drivetrain.axle_load_n == pytest.approx(190000.0 * 9.80665 / 16)
 
 
 def test_not_toml_and_missing_file(tmp_path) -> None:
