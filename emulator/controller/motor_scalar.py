@@ -86,7 +86,6 @@ class ScalarControl:
         self._history = ((0j, 0.0, 0.0, self.psi_rated),) * 2
         self.u_d_mean = 0.0
         self.u_vec = 0j
-        self.u_last = 0.0
         self.torque_estimate = 0.0
         self._slip_torque = 0.0  # classic V/f's slip compensation: its filtered torque
         self.torque_limit = 0.0
@@ -301,7 +300,6 @@ class ScalarControl:
             self.theta = (self.theta + 2 * math.pi * f_s * self.T) % (2 * math.pi)
         self.f_s = f_s
         u = min(u, u_max)
-        self.u_last = u
         angle = self.theta + lead + 2 * math.pi * f_s * 1.5 * self.T  # acts t+T to t+2T
         self.u_vec = cmath.rect(u, angle)
         self._history = (self._history[1], (self.u_vec, f_s, self.w_slip, self.psi_m))
