@@ -22,6 +22,13 @@ TWO_PI_3 = 2 * math.pi / 3
 _COS = tuple(complex(math.cos(x * TWO_PI_3), -math.sin(x * TWO_PI_3)) for x in range(3))
 
 
+def space_vector(phases: tuple[float, float, float]) -> complex:
+    """The amplitude-invariant space vector of three phase values (Clarke):
+    (2a - b - c) / 3 + j (b - c) / sqrt(3)."""
+    a, b, c = phases
+    return complex((2 * a - b - c) / 3, (b - c) / math.sqrt(3))
+
+
 def duties(u: complex, u_dc: float, *, current: complex | None = None,
            dead_time_s: float = 0.0, switching_frequency_hz: float = 0.0,
            sign_band_a: float = 1.0) -> list[float]:

@@ -38,7 +38,7 @@ import math
 
 from .config import ControllerConfig
 from .flux_curve import MagnetisingCurve
-from .modulation import duties
+from .modulation import duties, space_vector
 
 VOLTAGE_MARGIN = 0.97  # of U_dc / sqrt(3): what the plan uses (ripple, dead time)
 SLIP_LIMIT_SHARE = 0.9  # of the breakdown slip: 99 % of the breakdown torque (Kloss)
@@ -158,34 +158,28 @@ class ScalarControl:
         cap = SLIP_LIMIT_SHARE * self.w_breakdown[key]
         t_cap, i_cap, _, _ = self.operating_point(cap, w_r, u_room, lm)
         if i_cap > self.i_max:  # the current limit comes first: its slip
-            lo, hi = 0.0, cap
-            for _ in range(BISECTIONS):
-                mid = 0.5 * (lo + hi)
-                if self.operating_point(mid, w_r, u_room, lm)[1] < self.i_max:
-                    lo = mid
-                else:
-                    hi = mid
-            cap = lo
+            cap = _bisect(lambda w: self.operating_point(w, w_r, u_room, lm)[1] < self.i_max,
+                          cap)[0]
             t_cap = self.operating_point(cap, w_r, u_room, lm)[0]
         self.torque_limit = abs(t_cap)
         if abs(torque) >= abs(t_cap):
             return cap
-        lo, hi = 0.0, cap
-        for _ in range(BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            if abs(self.operating_point(mid, w_r, u_room, lm)[0]) < abs(torque):
-                lo = mid
-            else:
-                hi = mid
+        lo, hi = _bisect(
+            lambda w: abs(self.operating_point(w, w_r, u_room, lm)[0]) < abs(torque), cap)
         return 0.5 * (lo + hi)
+
+    def _low_frequency_weight(self, f_hz: float) -> float:
+        """1 at standstill falling to 0 at TRIM_UP_TO of the rated frequency: how much the
+        measured current's magnitude is trusted over the voltage (whose errors weigh at
+        low frequency)."""
+        return max(1.0 - abs(f_hz) / (TRIM_UP_TO * self.cfg.rated_frequency_hz), 0.0)
 
     def _trim(self, phase_currents, weight: float) -> None:
         """Hold the flux the circuit planned by the current it draws: the voltage is
         trimmed by the ratio of the planned flux to the one the measured current gives
         at the slip applied (|I_s| = psi_m |I_s / psi_m|), which no voltage error (dead
         time left over, device drops, R_s warm) biases."""
-        ia, ib, ic = phase_currents
-        i = abs(complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3))) / self.n_motors
+        i = abs(space_vector(phase_currents)) / self.n_motors
         _, _, slip_held, psi_held = self._history[0]  # what the sampled current answers
         y, _ = self._branches(slip_held, self.curve.lm(psi_held))
         psi_seen = i / abs(y)
@@ -206,8 +200,7 @@ class ScalarControl:
         gives cos x of the fundamental, the mean sin(x)/x). Below half the rated frequency
         the current's magnitude at the slip applied is blended in. Low-pass 10 ms.
         """
-        ia, ib, ic = phase_currents
-        i = complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3)) / self.n_motors
+        i = space_vector(phase_currents) / self.n_motors
         i_prev, self._i_prev = self._i_prev, i
         u_held, f_held, slip_held, psi_held = self._history[0]
         w_s = 2 * math.pi * f_held
@@ -220,7 +213,7 @@ class ScalarControl:
         # at low frequency the voltage's own error (what the dead-time compensation
         # leaves) weighs: there the current's magnitude at the slip applied says more
         # (psi_m = |I_s| / |I_s / psi_m|, then T(psi_m)), blended in below half rated
-        weight = max(1.0 - abs(f_held) / (TRIM_UP_TO * self.cfg.rated_frequency_hz), 0.0)
+        weight = self._low_frequency_weight(f_held)
         if weight > 0.0:
             y, t_per_psi2 = self._branches(slip_held, self.curve.lm(psi_held))
             psi = abs(mean) / abs(y)
@@ -235,8 +228,7 @@ class ScalarControl:
         P_airgap = 3/2 Re(u i*) - 3/2 R_s |i|^2 (amplitude-invariant vectors), T = P / w_s
         with w_s the synchronous mechanical speed (Bose 2002, slip compensation).
         """
-        ia, ib, ic = phase_currents
-        i = complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3)) / self.n_motors
+        i = space_vector(phase_currents) / self.n_motors
         u_held, f_held, _, _ = self._history[0]
         p_air = 1.5 * ((u_held * i.conjugate()).real
                        - self.cfg.stator_resistance_ohm * abs(i) ** 2)
@@ -278,7 +270,7 @@ class ScalarControl:
             f_s = f_rotor + self.w_slip / (2 * math.pi)
             # the trim acts at low frequency, where the voltage errors weigh; none from
             # half the rated frequency up (the sampled current's own error takes over)
-            weight = max(1.0 - abs(f_s) / (TRIM_UP_TO * cfg.rated_frequency_hz), 0.0)
+            weight = self._low_frequency_weight(f_s)
             if phase_currents is not None and weight > 0.0:
                 self._trim(phase_currents, weight)
             self.psi_m = psi
@@ -305,8 +297,8 @@ class ScalarControl:
         self._history = (self._history[1], (self.u_vec, f_s, self.w_slip, self.psi_m))
         current = None
         if phase_currents is not None and f_command_hz is None:
-            ia, ib, ic = phase_currents  # turned on to the middle of the acting period
-            current = (complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3))
+            # the current turned on to the middle of the acting period
+            current = (space_vector(phase_currents)
                        * cmath.exp(1j * 2 * math.pi * f_s * 1.5 * self.T))
         return duties(self.u_vec, u_d, current=current, dead_time_s=cfg.dead_time_s,
                       switching_frequency_hz=cfg.switching_frequency_hz,
@@ -318,3 +310,13 @@ class ScalarControl:
         f_slip = torque_per_motor / self.cfg.rated_torque_nm * self.f_slip_rated
         ratio = abs(f_s_estimate) / self.cfg.rated_frequency_hz
         return f_slip * max(ratio, 1.0) ** 2
+
+
+def _bisect(below, end: float) -> tuple[float, float]:
+    """The bracket [lo, hi] between 0 and end (either sign) where below(w) turns False,
+    below being True at 0 and monotone along the way: BISECTIONS halvings."""
+    lo, hi = 0.0, end
+    for _ in range(BISECTIONS):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if below(mid) else (lo, mid)
+    return lo, hi

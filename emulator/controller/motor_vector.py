@@ -48,7 +48,7 @@ import math
 
 from .config import ControllerConfig
 from .flux_curve import MagnetisingCurve
-from .modulation import duties
+from .modulation import duties, space_vector
 
 LAMBDA = 0.6  # share of the current's error removed per period
 FLUX_KP = 2.0  # flux forcing: d current per flux error, in units of 1 / L_m
@@ -227,8 +227,7 @@ class VectorControl:
         i_d_ref = self.curve.current(self.psi_ref)
         # --- measured current in the field frame (the angle at the sample instant) -------
         theta = p * rotor_angle_rad + self.theta_slip
-        ia, ib, ic = phase_currents
-        i_s = complex((2 * ia - ib - ic) / 3, (ib - ic) / math.sqrt(3)) / self.n
+        i_s = space_vector(phase_currents) / self.n
         i_dq = i_s * cmath.exp(-1j * theta)
         self.i_d, self.i_q = i_dq.real, i_dq.imag
         # the voltage the model misses, from how far the current is from its prediction:
