@@ -59,6 +59,10 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
             (row[L.MP_KA], row[L.MP_KS], row[L.MP_MU0], row[L.MP_POL_A],
              row[L.MP_POL_B]) = polach
             row[L.MP_ADHESION_FACTOR] = 1.0
+            row[L.MP_K_SHAFT] = dp.shaft_stiffness_nm_per_rad
+            row[L.MP_C_SHAFT] = dp.shaft_damping_nms_per_rad
+            row[L.MP_BRAKE_TAU] = params.train.brake_cylinder_time_constant_s
+            plant.ms[m, L.MS_AXLE_LOAD] = dp.axle_load_n
             row[L.MP_CREEP_VREF] = dp.creep_reference_speed_mps
             row[L.MP_COOLING] = 1.0
             if mp.thermal is not None:
@@ -75,7 +79,9 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
                 plant.ms[m, L.MS_T_STATOR] = mp.reference_temperature_k
                 plant.ms[m, L.MS_T_ROTOR] = mp.reference_temperature_k
             plant.ms[m, L.MS_LM] = mp.magnetising_h
-            plant.mint[m] = (k, L.SHAFT_DRIVETRAIN, len(mp.saturation_current_a))
+            plant.mint[m, :L.MI_LT_AXLE0] = (k, L.SHAFT_DRIVETRAIN,
+                                             len(mp.saturation_current_a))
+            plant.mint[m, L.MI_LT_AXLE0:] = -1
             if mp.saturation_current_a:
                 plant.sat_i[m] = mp.saturation_current_a
                 plant.sat_psi[m] = mp.saturation_flux_vs
@@ -99,6 +105,84 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
         plant.ist[k, L.IS_T_J] = ambient
         plant.ist[k, L.IS_T_H] = ambient
         plant.iu[k, L.IU_DA:L.IU_DC + 1] = 0.5
+
+
+def build_load_transfer(plant, params: TrainsetParams) -> None:
+    """Load-transfer coefficients: Delta Q_i = sum_j c_ij F_j over the motored axles of a car.
+
+    With x the distance behind the train's front end and F > 0 a force pushing the train
+    forwards, the moment balances give (rigid bodies, suspension statics; e.g. Iwnicki
+    (ed.), *Handbook of Railway Vehicle Dynamics*, ch. on traction, and any locomotive
+    text on weight transfer):
+
+    - in a bogie of wheelbase a whose frame passes its force F_b to the body through a
+      traction link at height h_b: the front axle loses F_b h_b / a, the rear one gains it;
+    - in a car whose bogies, L apart, push the body at h_b while the train resists at the
+      coupler height h_c: the front bogie loses F_car (h_c - h_b) / L, shared by its axles.
+
+    A bogie is a converter's axles within 1.05 wheelbases of each other; a car, the
+    converters on one DC link. Unmotored axles and the cars' own inertia are left out.
+    """
+    dp = params.drivetrain
+    if dp.bogie_wheelbase_m <= 0.0:
+        return
+    first = 0
+    bogies: list[list[int]] = []  # motor indices, front to rear within each converter
+    car_of_bogie: list[int] = []
+    for conv in params.converters:
+        n = len(conv.wheel_diameters_m)
+        order = sorted(range(first, first + n), key=lambda m: conv.axle_positions_m[m - first])
+        group = [order[0]]
+        for m in order[1:]:
+            if (conv.axle_positions_m[m - first] - conv.axle_positions_m[group[-1] - first]
+                    <= 1.05 * dp.bogie_wheelbase_m):
+                group.append(m)
+            else:
+                bogies.append(group)
+                car_of_bogie.append(conv.dc_link)
+                group = [m]
+        bogies.append(group)
+        car_of_bogie.append(conv.dc_link)
+        first += n
+    x = [p for conv in params.converters for p in conv.axle_positions_m]
+    coef: dict[tuple[int, int], float] = {}
+
+    def add(i: int, j: int, c: float) -> None:
+        coef[i, j] = coef.get((i, j), 0.0) + c
+
+    for bogie in bogies:
+        if len(bogie) > 1:
+            a = x[bogie[-1]] - x[bogie[0]]
+            mid = 0.5 * (x[bogie[0]] + x[bogie[-1]])
+            for i in bogie:
+                side = 0.0 if x[i] == mid else (-1.0 if x[i] < mid else 1.0)
+                for j in bogie:
+                    add(i, j, side * dp.traction_link_height_m / a)
+    for car in set(car_of_bogie):
+        members = [b for b, c in zip(bogies, car_of_bogie, strict=True) if c == car]
+        if len(members) < 2:
+            continue
+        centres = [sum(x[m] for m in b) / len(b) for b in members]
+        span = max(centres) - min(centres)
+        mid = 0.5 * (max(centres) + min(centres))
+        axles = [m for b in members for m in b]
+        lever = (dp.coupler_height_m - dp.traction_link_height_m) / span
+        for b, centre in zip(members, centres, strict=True):
+            side = 0.0 if centre == mid else (-1.0 if centre < mid else 1.0)
+            for i in b:
+                for j in axles:
+                    add(i, j, side * lever / len(b))
+    terms: dict[int, list[tuple[int, float]]] = {}
+    for (i, j), c in sorted(coef.items()):
+        if c != 0.0:
+            terms.setdefault(i, []).append((j, c))
+    for i, row in terms.items():
+        if len(row) > L.LT_TERMS:
+            raise ValueError(f"load transfer: axle {i} depends on {len(row)} axles, more "
+                             f"than the {L.LT_TERMS} the plant keeps")
+        for t, (j, c) in enumerate(row):
+            plant.mint[i, L.MI_LT_AXLE0 + t] = j
+            plant.mpar[i, L.MP_LT_COEF0 + t] = c
 
 
 def build_line_side(plant, params: TrainsetParams, ideal: bool) -> None:
@@ -185,3 +269,4 @@ def build_train(plant, params: TrainsetParams) -> None:
     plant.tpar[L.TP_DAVIS_C] = tp.davis_c_n_per_mps2
     plant.tpar[L.TP_GRAVITY] = 9.80665
     plant.tpar[L.TP_AMBIENT] = params.train.ambient_temperature_k
+    plant.tu[L.TU_BRAKE_TAU] = tp.brake_cylinder_time_constant_s

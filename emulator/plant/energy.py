@@ -38,22 +38,26 @@ class EnergyAccount:
     chopper: float = 0.0
     discharge: float = 0.0
     filter_resistance: float = 0.0
+    torsion_damping: float = 0.0  # lost in the drivetrains' torsional damping
+    torsion_stored: float = 0.0  # in the drivetrains' torsional springs
 
 
 def energy_account(self) -> EnergyAccount:
     """The energy books of a plant: integrals since the start, present stored energies."""
     ms, ist, ts = self.ms, self.ist, self.ts
     magnetic = 0.0
+    torsion = 0.0
     kinetic = 0.5 * self.tpar[L.TP_MASS] * (1 + self.tpar[L.TP_ROT_ALLOWANCE]) * (
         ts[L.TS_SPEED] ** 2)
     for m in range(self.n_motors):
         ps, pr = self.flux_linkages(m)
         i_s, i_r = self._currents(m)
         magnetic += magnetic_energy(ps, i_s, pr, i_r)
-        gear = self.mpar[m, L.MP_GEAR]
         if self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_DRIVETRAIN:
-            j_eq = self.mpar[m, L.MP_J_WHEELSET] + gear * gear * self.mpar[m, L.MP_J_ROTOR]
-            kinetic += 0.5 * j_eq * (ms[m, L.MS_OMEGA_M] / gear) ** 2
+            # rotor and wheelset apart (in a rigid drivetrain they turn as one)
+            kinetic += 0.5 * (self.mpar[m, L.MP_J_ROTOR] * ms[m, L.MS_OMEGA_M] ** 2
+                              + self.mpar[m, L.MP_J_WHEELSET] * ms[m, L.MS_OMEGA_W] ** 2)
+            torsion += 0.5 * self.mpar[m, L.MP_K_SHAFT] * ms[m, L.MS_TWIST] ** 2
         elif self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_FREE:
             kinetic += 0.5 * self.mpar[m, L.MP_J_ROTOR] * ms[m, L.MS_OMEGA_M] ** 2
     line = {}
@@ -90,7 +94,9 @@ def energy_account(self) -> EnergyAccount:
         slip_loss=float(ms[:, L.MS_E_SLIP].sum()),
         load=float(ms[:, L.MS_E_LOAD].sum()),
         running_resistance=float(ts[L.TS_E_RESIST]),
-        friction_brake=float(ts[L.TS_E_BRAKE]),
+        friction_brake=float(ts[L.TS_E_BRAKE] + ms[:, L.MS_E_BRAKE].sum()),
+        torsion_damping=float(ms[:, L.MS_E_DAMPER].sum()),
+        torsion_stored=float(torsion),
         potential=float(ts[L.TS_E_GRADE]),
         magnetic_stored=magnetic,
         kinetic_stored=float(kinetic),

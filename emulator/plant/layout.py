@@ -47,14 +47,23 @@ MP_THERMAL_ON = 29  # 1 thermal model active, 0 temperatures held
 MP_J_EQ_INV = 30  # 1 / (J_wheelset + gear^2 J_rotor), 1/(kg m^2)
 MP_GEAR_INV = 31  # 1 / gear, 1
 MP_POL_KAPPA = 32  # pi/4 K / Q, creep-to-epsilon factor of Polach's model, 1
-MP_POL_SCALE = 33  # 2 Q / pi, N
-MP_N = 34
+MP_POL_SCALE = 33  # 2 Q / pi, N (both follow the axle load in use, MS_AXLE_LOAD)
+MP_K_SHAFT = 34  # torsional stiffness between rotor and gear, at the motor shaft, N m/rad
+# (0: a rigid drivetrain, rotor and wheelset one inertia through the gear)
+MP_C_SHAFT = 35  # torsional damping between rotor and gear, at the motor shaft, N m s/rad
+MP_BRAKE_TAU = 36  # brake-cylinder time constant (first-order lag of the brake force), s
+MP_LT_COEF0 = 37  # load transfer: axle load change per newton of creep force of the axles
+# named by MI_LT_AXLE0.. (Delta Q = sum_j coef_j F_j), 1; LT_TERMS columns from here
+LT_TERMS = 6  # load-transfer terms per axle (the motored axles of its car)
+MP_N = MP_LT_COEF0 + LT_TERMS
 
 # --- motor integer data: int64 [n_motor, MI_N] ----------------------------------------
 MI_INVERTER = 0  # index of the feeding inverter
 MI_SHAFT_MODE = 1  # SHAFT_DRIVETRAIN, SHAFT_IMPOSED_SPEED or SHAFT_FREE
 MI_SAT_POINTS = 2  # points in the saturation table (0: linear magnetics)
-MI_N = 3
+MI_LT_AXLE0 = 3  # load transfer: the motored axles whose creep forces move this axle's
+# load (-1: unused term), LT_TERMS columns from here; coefficients in MP_LT_COEF0..
+MI_N = MI_LT_AXLE0 + LT_TERMS
 
 SHAFT_DRIVETRAIN = 0
 SHAFT_IMPOSED_SPEED = 1
@@ -64,7 +73,8 @@ SHAFT_FREE = 2
 MU_LOAD_TORQUE = 0  # load torque on a free shaft, N m (opposes positive speed)
 MU_IMPOSED_SPEED = 1  # dynamometer shaft speed, rad/s (mechanical)
 MU_OPEN_PHASE = 2  # open stator phase: 0 none, 1 a, 2 b, 3 c (a broken cable or lug)
-MU_N = 3
+MU_BRAKE_DEMAND = 3  # friction brake force demanded of this axle at the rail, N (>= 0)
+MU_N = 4
 
 # --- motor state and outputs: float64 [n_motor, MS_N] ---------------------------------
 MS_OMEGA_M = 0  # rotor mechanical speed, rad/s
@@ -93,7 +103,14 @@ MS_RR = 22  # rotor resistance in use, ohm
 MS_CSS = 23  # current coefficients at the last refresh: i_s = CSS psi_s - CSR psi_r,
 MS_CSR = 24  # i_r = CRR psi_r - CSR psi_s, i.e. L_r/D, L_m/D and L_s/D, 1/H
 MS_CRR = 25
-MS_N = 26
+MS_OMEGA_W = 26  # wheelset speed, rad/s
+MS_TWIST = 27  # twist of the torsional spring at the motor shaft, rad
+MS_SHAFT_TORQUE = 28  # torque the rotor passes to the gear (the motor shaft's), N m
+MS_E_DAMPER = 29  # energy lost in the torsional damping, J
+MS_BRAKE_FORCE = 30  # friction brake force applied at the rail (after the cylinder lag), N
+MS_E_BRAKE = 31  # friction brake energy of the axle, J
+MS_AXLE_LOAD = 32  # axle load in use (static plus load transfer), N
+MS_N = 33
 
 # --- motor complex data: complex128 [n_motor, MX_N] -----------------------------------
 MX_PSI_S = 0  # stator flux linkage space vector (stationary frame), V s
@@ -184,7 +201,8 @@ TP_N = 7
 TU_GRADIENT = 0  # track gradient, rise over run (positive uphill), 1
 TU_BRAKE_FORCE = 1  # friction brake force demanded, N (>= 0)
 TU_CURVE_RESISTANCE = 2  # curve resistance, N (>= 0): against the motion, static at rest
-TU_N = 3
+TU_BRAKE_TAU = 3  # brake-cylinder time constant of the unmotored axles' brakes, s
+TU_N = 4
 
 TS_SPEED = 0  # train speed, m/s
 TS_POSITION = 1  # position along the track, m
@@ -192,8 +210,9 @@ TS_ACCEL = 2  # acceleration over the last sub-step, m/s^2
 TS_TRACTIVE_FORCE = 3  # sum of creep forces, N
 TS_E_RESIST = 4  # running resistance energy, J
 TS_E_GRADE = 5  # potential energy gained on the gradient, J
-TS_E_BRAKE = 6  # friction brake energy, J
-TS_N = 7
+TS_E_BRAKE = 6  # friction brake energy of the unmotored axles, J
+TS_BRAKE_FORCE = 7  # friction brake force of the unmotored axles (after the lag), N
+TS_N = 8
 
 #: name -> (array, column, SI unit, description) for reading states by name.
 READABLE: dict[str, tuple[str, int, str, str]] = {
@@ -206,6 +225,11 @@ READABLE: dict[str, tuple[str, int, str, str]] = {
     "motor.creep_force_n": ("motor_state", MS_CREEP_FORCE, "N", "axle creep force"),
     "motor.adhesion_utilisation": ("motor_state", MS_ADHESION_UTIL, "1", "F/(mu0 Q)"),
     "motor.magnetising_inductance_h": ("motor_state", MS_LM, "H", "L_m in use"),
+    "motor.shaft_torque_nm": ("motor_state", MS_SHAFT_TORQUE, "N m", "rotor to gear"),
+    "motor.shaft_twist_rad": ("motor_state", MS_TWIST, "rad", "torsional spring"),
+    "motor.wheelset_speed_rad_s": ("motor_state", MS_OMEGA_W, "rad/s", "wheelset speed"),
+    "motor.brake_force_n": ("motor_state", MS_BRAKE_FORCE, "N", "friction brake at rail"),
+    "motor.axle_load_n": ("motor_state", MS_AXLE_LOAD, "N", "with load transfer"),
     "inverter.phase_current_a_a": ("inverter_state", IS_IA, "A", "phase a current"),
     "inverter.phase_current_b_a": ("inverter_state", IS_IB, "A", "phase b current"),
     "inverter.phase_current_c_a": ("inverter_state", IS_IC, "A", "phase c current"),

@@ -73,6 +73,14 @@ class DrivetrainParams:
     kalker_coefficient_n: float
     rail_condition: str
     creep_reference_speed_mps: float
+    # torsion between rotor and gear at the motor shaft (0: a rigid drivetrain)
+    shaft_stiffness_nm_per_rad: float = 0.0
+    shaft_damping_nms_per_rad: float = 0.0
+    # load transfer (0: none): bogie wheelbase, height of the bogie's traction link and of
+    # the coupler above the rail
+    bogie_wheelbase_m: float = 0.0
+    traction_link_height_m: float = 0.0
+    coupler_height_m: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -133,6 +141,9 @@ class ConverterParams:
     name: str
     dc_link: int
     wheel_diameters_m: tuple[float, ...]
+    # each motored axle's distance behind the train's front end, m (empty: every axle at
+    # the front, no load transfer between axles)
+    axle_positions_m: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -158,6 +169,9 @@ class TrainParams:
     davis_c_n_per_mps2: float
     max_speed_mps: float
     ambient_temperature_k: float
+    axle_count: int = 0  # all axles, motored or not (0: the motored axles only)
+    brake_cylinder_time_constant_s: float = 0.0  # first-order lag of each axle's brake
+
 
 
 @dataclass(frozen=True)

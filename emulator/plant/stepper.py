@@ -12,7 +12,7 @@ import math
 import numpy as np
 
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
-from .build import build_line_side, build_motor_side, build_train
+from .build import build_line_side, build_load_transfer, build_motor_side, build_train
 from .commands import CommandError, Commands, LineCommands
 from .drivetrain import RAIL_CONDITIONS
 from .energy import EnergyAccount, energy_account
@@ -52,6 +52,7 @@ class Plant:
         self.frames = 0
         self.substeps = 0
         build_motor_side(self, params)
+        build_load_transfer(self, params)
         build_line_side(self, params, ideal_dc_links or params.transformer is None)
         self.derive_drivetrain()
         build_train(self, params)
@@ -252,10 +253,27 @@ class Plant:
         self._finite("gradient", gradient, -0.2, 0.2)
         self.tu[L.TU_GRADIENT] = gradient
 
-    def set_brake_force(self, force_n: float) -> None:
-        """Friction brake force of the whole train, N (acts against the motion)."""
+    def set_brake_force(self, force_n: float, vent: np.ndarray | None = None) -> None:
+        """Friction brake force demanded of the whole train at the rail, N.
+
+        Spread evenly over the train's axles: a motored axle's share is a torque on its
+        wheelset through the wheel-rail contact (it can lock the wheel and slide), the
+        other axles' share acts on the train. Each cylinder follows its demand with the
+        profile's lag. vent: per motored axle, the fraction of its demand a wheel-slide
+        protection's dump valve takes away (0 none, 1 all).
+        """
         self._finite("brake force", force_n, 0.0, 1e7)
-        self.tu[L.TU_BRAKE_FORCE] = force_n
+        n_m = self.n_motors
+        axles = max(self.params.train.axle_count, n_m)
+        share = force_n / axles
+        if vent is None:
+            self.mu[:, L.MU_BRAKE_DEMAND] = share
+        else:
+            vent = np.asarray(vent, dtype=float)
+            if vent.shape != (n_m,) or not np.all((vent >= 0.0) & (vent <= 1.0)):
+                raise CommandError(f"vent needs {n_m} fractions within 0..1")
+            self.mu[:, L.MU_BRAKE_DEMAND] = share * (1.0 - vent)
+        self.tu[L.TU_BRAKE_FORCE] = share * (axles - n_m)
 
     def set_curve_resistance(self, force_n: float) -> None:
         """Curve resistance of the whole train, N: like friction it acts against the
@@ -265,11 +283,11 @@ class Plant:
 
     def set_adhesion_factor(self, motor: int, factor: float) -> None:
         """Scale the friction coefficient mu0 of one motored axle (1 = profile value)."""
-        self._finite("adhesion factor", factor, 0.0, 2.0)
+        self._finite("adhesion factor", factor, 0.0, 10.0)
         self.mpar[motor, L.MP_ADHESION_FACTOR] = factor
 
     def set_rail_condition(self, motor: int, condition: str) -> None:
-        """Switch one axle's Polach parameter set ('dry' or 'wet')."""
+        """Switch one axle's rail condition (a name in RAIL_CONDITIONS)."""
         if condition not in RAIL_CONDITIONS:
             raise CommandError(f"rail condition must be one of {sorted(RAIL_CONDITIONS)}")
         (self.mpar[motor, L.MP_KA], self.mpar[motor, L.MP_KS], self.mpar[motor, L.MP_MU0],
@@ -286,9 +304,12 @@ class Plant:
         self.ts[L.TS_SPEED] = speed_mps
         for m in range(self.n_motors):
             if self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_DRIVETRAIN:
-                om = speed_mps / self.mpar[m, L.MP_WHEEL_R] * self.mpar[m, L.MP_GEAR]
+                ow = speed_mps / self.mpar[m, L.MP_WHEEL_R]
+                om = ow * self.mpar[m, L.MP_GEAR]
                 self.ms[m, L.MS_OMEGA_M] = om
                 self.ms[m, L.MS_OMEGA_AT_REFRESH] = om
+                self.ms[m, L.MS_OMEGA_W] = ow
+                self.ms[m, L.MS_TWIST] = 0.0
 
     def hold_speed(self, speed_mps: float) -> None:
         """Hold the train (not its wheelsets) at speed_mps, as a dynamometer or the track of
@@ -337,6 +358,12 @@ class Plant:
         self.mint[motor, L.MI_SHAFT_MODE] = L.SHAFT_FREE
         self.mu[motor, L.MU_LOAD_TORQUE] = load_torque_nm
 
+    def set_rotor_torque(self, motor: int, torque_nm: float) -> None:
+        """A torque on a coupled motor's rotor besides its own (a test bench's
+        dynamometer on the shaft's free end; positive drives), N m. 0 on a train."""
+        self._finite("rotor torque", torque_nm, -1e6, 1e6)
+        self.mu[motor, L.MU_LOAD_TORQUE] = -torque_nm
+
     def set_open_phase(self, motor: int, phase: int | None) -> None:
         """Open one stator phase of a motor (0, 1, 2 for a, b, c), or None to reconnect."""
         if phase is not None and phase not in (0, 1, 2):
@@ -344,8 +371,12 @@ class Plant:
         self.mu[motor, L.MU_OPEN_PHASE] = 0.0 if phase is None else phase + 1.0
 
     def couple_drivetrain(self, motor: int) -> None:
-        """Couple a motor back to its gear and axle."""
+        """Couple a motor back to its gear and axle (the wheelset turning with the rotor,
+        the shaft untwisted)."""
         self.mint[motor, L.MI_SHAFT_MODE] = L.SHAFT_DRIVETRAIN
+        self.mu[motor, L.MU_LOAD_TORQUE] = 0.0
+        self.ms[motor, L.MS_OMEGA_W] = self.ms[motor, L.MS_OMEGA_M] / self.mpar[motor, L.MP_GEAR]
+        self.ms[motor, L.MS_TWIST] = 0.0
 
     # --- reading ----------------------------------------------------------------------
     def read(self, name: str) -> np.ndarray | float:

@@ -28,7 +28,7 @@ def gradient_force(mass: float, gravity: float, gradient: float) -> float:
 
 @compiled
 def step_speed(v: float, drive: float, static: float, b: float, c: float, m_eff: float,
-               h: float):
+               h: float, hold: float = 0.0):
     """Advance the train speed one sub-step with stiction at rest.
 
     Args:
@@ -38,12 +38,14 @@ def step_speed(v: float, drive: float, static: float, b: float, c: float, m_eff:
         b, c: Davis linear and quadratic coefficients.
         m_eff: mass including rotating allowance, kg.
         h: step, s.
+        hold: more force that holds the train at rest but does not act once it moves
+            (braked, locked wheelsets: once sliding, their creep forces act), N.
 
     Returns:
         (new speed m/s, resisting force applied N, signed against the motion)
     """
     if v == 0.0:
-        if abs(drive) <= static:
+        if abs(drive) <= static + hold:
             return 0.0, drive  # held: friction balances the drive exactly
         direction = 1.0 if drive > 0.0 else -1.0
         resist = direction * static

@@ -320,6 +320,12 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     ts.finish()
 
     tr = root.table("train")
+    # the weight is spread evenly over the axles (a multiple unit's cars weigh much the
+    # same): each motored axle carries m g / n at rest; traction and braking move load
+    # between them (build_load_transfer)
+    axle_count = tr.number("axle_count", "1", 2.0, 400.0)
+    if axle_count != int(axle_count):
+        raise tr.error("axle_count", f"a whole number of axles, not {axle_count:g}")
     train = TrainParams(
         mass_kg=tr.number("mass_kg", "kg", 0.0, 5e6, lo_open=True),
         rotating_mass_allowance=tr.number("rotating_mass_allowance", "1", 0.0, 0.5),
@@ -330,12 +336,11 @@ def load_trainset(path: Path | str) -> TrainsetParams:
                                 scale=1 / 3.6),
         ambient_temperature_k=tr.number("ambient_temperature_degc", "degC", -60.0, 80.0,
                                         offset=KELVIN),
+        axle_count=int(axle_count),
+        brake_cylinder_time_constant_s=(
+            tr.number("brake_cylinder_time_constant_s", "s", 0.0, 10.0)
+            if tr.has("brake_cylinder_time_constant_s") else 0.0),
     )
-    # the weight is spread evenly over the axles (a multiple unit's cars weigh much the
-    # same): each motored axle carries m g / n, static (load transfer not modelled)
-    axle_count = tr.number("axle_count", "1", 2.0, 400.0)
-    if axle_count != int(axle_count):
-        raise tr.error("axle_count", f"a whole number of axles, not {axle_count:g}")
     tr.finish()
 
     supply = _supply(root.table("supply"))
@@ -355,7 +360,29 @@ def load_trainset(path: Path | str) -> TrainsetParams:
         rail_condition=dt.string("rail_condition", tuple(RAIL_CONDITIONS)),
         creep_reference_speed_mps=dt.number("creep_reference_speed_mps", "m/s", 0.0, 5.0,
                                             lo_open=True),
+        # a two-mass drivetrain when the shaft's stiffness is given, else a rigid one
+        shaft_stiffness_nm_per_rad=(
+            dt.number("shaft_stiffness_knm_per_rad", "kN m/rad", 0.0, 1e5, lo_open=True,
+                      scale=1e3) if dt.has("shaft_stiffness_knm_per_rad") else 0.0),
+        shaft_damping_nms_per_rad=(
+            dt.number("shaft_damping_nms_per_rad", "N m s/rad", 0.0, 1e6)
+            if dt.has("shaft_damping_nms_per_rad") else 0.0),
+        bogie_wheelbase_m=(dt.number("bogie_wheelbase_m", "m", 0.5, 10.0)
+                           if dt.has("bogie_wheelbase_m") else 0.0),
+        traction_link_height_m=(dt.number("traction_link_height_m", "m", 0.0, 3.0)
+                                if dt.has("traction_link_height_m") else 0.0),
+        coupler_height_m=(dt.number("coupler_height_m", "m", 0.0, 3.0)
+                          if dt.has("coupler_height_m") else 0.0),
     )
+    if dt.has("shaft_damping_nms_per_rad") and not dt.has("shaft_stiffness_knm_per_rad"):
+        raise dt.error("shaft_damping_nms_per_rad", "a damping needs its spring: give "
+                       "shaft_stiffness_knm_per_rad too (or neither, for a rigid drivetrain)")
+    transfer = ("bogie_wheelbase_m", "traction_link_height_m", "coupler_height_m")
+    given = [k for k in transfer if dt.has(k)]
+    if given and len(given) != len(transfer):
+        missing = [k for k in transfer if k not in given]
+        raise dt.error(given[0], f"load transfer needs {', '.join(transfer)}; missing "
+                       f"{', '.join(missing)}")
     dt.finish()
 
     inverter = _inverter(root.table("inverter"))
@@ -370,8 +397,18 @@ def load_trainset(path: Path | str) -> TrainsetParams:
         cname = ct.string("name")
         link = ct.string("dc_link", tuple(link_names))
         wheels = ct.numbers("wheel_diameters_m", "m", 0.3, 1.6)
+        positions: tuple[float, ...] = ()
+        if ct.has("axle_positions_m"):
+            positions = ct.numbers("axle_positions_m", "m", 0.0, 2000.0)
+            if len(positions) != len(wheels):
+                raise ct.error("axle_positions_m", f"one position per wheel diameter "
+                               f"({len(wheels)}), got {len(positions)}")
+        elif drivetrain.bogie_wheelbase_m > 0.0:
+            raise ct.error("wheel_diameters_m", "load transfer ([drivetrain] "
+                           "bogie_wheelbase_m) needs axle_positions_m, each axle's distance "
+                           "behind the train's front end")
         ct.finish()
-        converters.append(ConverterParams(cname, link_names.index(link), wheels))
+        converters.append(ConverterParams(cname, link_names.index(link), wheels, positions))
     conv_names = [c.name for c in converters]
     if len(set(conv_names)) != len(conv_names):
         raise root.error("converter", "names must be unique")
