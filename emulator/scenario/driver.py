@@ -15,6 +15,8 @@ from dataclasses import dataclass
 from emulator.profiles.table import Table
 from emulator.protocol.signal_map import MODES
 
+from .brake_unit import BrakeUnit
+
 MODE = {name: code for code, name in MODES.items()}
 STEP_MODES = ("off", "accelerate", "cruise", "coast", "brake", "hold")
 ENDS = ("to_kmh", "for_s", "to_m", "until_s", "stop_at_m")
@@ -117,6 +119,7 @@ class DriverProgram:
         self._trim = 0.0
         self._cruise = 0.0
         self._started = False
+        self._brakes: BrakeUnit | None = None
 
     @property
     def phase(self) -> str:
@@ -127,6 +130,13 @@ class DriverProgram:
             step = self.spec.steps[self.index]
             return step.name or step.mode
         return "table"
+
+    def _friction_brake(self, plant, force_n: float) -> None:
+        """The friction brake demand of this frame, through the train's brake unit (its
+        wheel-slide protection acts on the motored axles)."""
+        if self._brakes is None or self._brakes.plant is not plant:
+            self._brakes = BrakeUnit(plant, plant.params.frame_s)
+        self._brakes.apply(force_n)
 
     def _account(self, rig) -> None:
         plant = rig.plant
@@ -196,7 +206,7 @@ class DriverProgram:
                     self.on_step(STOPPED, t)
         if self.finished:
             d.mode, d.effort_demand = MODE["coast"], 0.0
-            plant.set_brake_force(1e5 if v < self.spec.blend_mps else 0.0)
+            self._friction_brake(plant, 1e5 if v < self.spec.blend_mps else 0.0)
             return "coast", 0.0
         step = steps[self.index]
         m_eff = plant.params.train.mass_kg * (1 + plant.params.train.rotating_mass_allowance)
@@ -215,11 +225,11 @@ class DriverProgram:
                         step = steps[j]
                 break
         ceiling = self.track.ceiling(x, v) if self.track is not None else float("inf")
-        plant.set_brake_force(0.0)
+        self._friction_brake(plant, 0.0)
         if step.mode == "off":
             return "off", 0.0
         if step.mode == "hold":
-            plant.set_brake_force(min(m_eff * 0.5, 3e5))
+            self._friction_brake(plant, min(m_eff * 0.5, 3e5))
             return "coast", 0.0
         if step.mode in ("accelerate", "cruise", "coast") and v > ceiling + 3 / 3.6:
             return "brake", 0.5  # over a limit: service braking until below it
@@ -230,7 +240,7 @@ class DriverProgram:
                 grade = self.track.gradient(x) if self.track is not None else 0.0
                 achieved = rig.replies.get("achieved_effort_kn", 0.0) * 1e3
                 if grade > 0 and achieved < 1.1 * m_eff * 9.81 * grade:
-                    plant.set_brake_force(min(m_eff * 0.5, 3e5))
+                    self._friction_brake(plant, min(m_eff * 0.5, 3e5))
             if v < ceiling - 1 / 3.6:
                 return "accelerate", step.effort
             d.cruise_speed_kmh = ceiling * 3.6
@@ -249,7 +259,7 @@ class DriverProgram:
         if step.stop_at_m is None:
             if v > self.spec.blend_mps or (step.to_kmh or 0.0) > 0:
                 return "brake", step.effort
-            plant.set_brake_force(min(m_eff * 0.8 * step.effort + 1e4, 3e5))
+            self._friction_brake(plant, min(m_eff * 0.8 * step.effort + 1e4, 3e5))
             return "coast", 0.0
         remaining = max(step.stop_at_m - x, 0.5)
         a_req = v * v / (2 * remaining)
@@ -260,7 +270,7 @@ class DriverProgram:
             self._trim = min(max(self._trim + 0.5 * (a_req - decel) * plant.params.frame_s,
                                  -0.5), 0.5)
             return "brake", min(max(a_req * m_eff / available + self._trim, 0.0), 1.0)
-        plant.set_brake_force(min(m_eff * max(a_req, 0.05), 3e5))  # friction takes over
+        self._friction_brake(plant, min(m_eff * max(a_req, 0.05), 3e5))  # friction takes over
         return "coast", 0.0
 
     # --- the demand table ------------------------------------------------------------------
@@ -279,7 +289,7 @@ class DriverProgram:
             rig.driver.cruise_speed_kmh = min(row.cruise_kmh, ceiling * 3.6)
         m_eff = plant.params.train.mass_kg
         brake_finish = row.mode == "brake" and v <= self.spec.blend_mps
-        plant.set_brake_force(min(m_eff * 0.8 * row.effort + 1e4, 3e5) if brake_finish else 0)
+        self._friction_brake(plant, min(m_eff * 0.8 * row.effort + 1e4, 3e5) if brake_finish else 0)
         self.finished = row is self.spec.table[-1] and v == 0.0 and row.mode != "accelerate"
         return row.mode, row.effort
 

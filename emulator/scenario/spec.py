@@ -49,6 +49,11 @@ class AdhesionZone:
     factor: float  # scales mu0 on top of the rail condition
     axles: tuple[str, ...]  # motor names; empty: every motored axle
     label: str
+    # each motored axle that has rolled over a point of the zone takes this fraction of
+    # what is left between the zone's friction and the line's own (rail conditioning);
+    # by default 0.1 on a contaminated rail (a film the wheels wipe off), 0 on a wet or
+    # sanded one (the water or sand stays): invented demo values, no source
+    cleaning_per_axle: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -173,7 +178,10 @@ def _track(t: Table) -> TrackSpec:
                 raise s.error("axles", "expected a list of motor names, e.g. ['INV-A1.m1']")
             axles = tuple(raw)
         label = s.string("label") if s.optional("label") else f"low adhesion {i + 1}"
-        zones.append(AdhesionZone(x0, x1, rail, factor, axles, label))
+        cleaning = (s.number("cleaning_per_axle", "1", 0.0, 1.0)
+                    if s.optional("cleaning_per_axle")
+                    else 0.1 if rail == "contaminated" else 0.0)
+        zones.append(AdhesionZone(x0, x1, rail, factor, axles, label, cleaning))
         s.finish()
     t.finish()
     return TrackSpec(grad, curves, limits, tuple(neutral), tuple(zones))

@@ -1,22 +1,34 @@
 """The track under the train: gradient, curves, speed limits, neutral sections, adhesion.
 
-Applied to the plant once per frame at the train's position (one point: the pantograph
-and every axle are taken at the train's position, a simplification of a train some
-tens of metres long).
+Applied to the plant once per frame. The train's position is its front end's; gradient,
+curves, speed limits and neutral sections are taken there (one point, a simplification
+of a train some tens of metres long), while low-adhesion zones reach each motored axle
+at its own place (the profile's axle_positions_m behind the front), so the axles enter
+a zone one after another.
 
-Curve resistance enters as an equivalent gradient, by Röckl's formula for standard
-gauge (from memory, as quoted in running-time texts, e.g. Hansen & Pachl, *Railway
-Timetabling & Operations*, ch. on running time calculation):
+Rail conditioning (a simple model of our own, the rate invented for demos): every
+motored axle that has rolled over a point of a zone cleans the rail there a little, so
+an axle with n motored axles ahead of it in the direction of travel meets
+
+    mu = mu_line - (mu_line - mu_zone) (1 - c)^n,    c = the zone's cleaning_per_axle,
+
+where mu_line is the line's own friction (the profile's rail condition) and mu_zone the
+zone's (its rail condition times its factor). Unmotored axles are not counted.
+
+Curve resistance is a friction on the train (against the motion, holding at rest), by
+Röckl's formula for standard gauge (from memory, as quoted in running-time texts, e.g.
+Hansen & Pachl, *Railway Timetabling & Operations*, ch. on running time calculation):
 
     r_c = 650 / (R - 55) N/kN   for R >= 300 m,      r_c = 500 / (R - 30) N/kN below,
 
-and 1 N/kN of resistance is 1 per mille of gradient (F = m g r_c / 1000).
+with F = m g r_c / 1000.
 """
 
 from __future__ import annotations
 
 import math
 
+from emulator.plant.drivetrain import RAIL_CONDITIONS
 from emulator.profiles.reader import GRAVITY
 
 from .spec import Stretch, TrackSpec
@@ -51,6 +63,8 @@ class Track:
                     raise ValueError(f"low-adhesion zone at {zone.from_m:g} m: no motored "
                                      f"axle named {axle!r}")
         self.base_rail = p.drivetrain.rail_condition
+        self.axle_offsets = [x for c in p.converters
+                             for x in (c.axle_positions_m or (0.0,) * len(c.wheel_diameters_m))]
         self._gradient = math.nan
         self._curve = math.nan
         self._live: bool | None = None
@@ -107,17 +121,22 @@ class Track:
             rig.driver.neutral_section_ahead = int(ahead)
         if not self.spec.adhesion_zones:
             return
-        here = []
         for z in self.spec.adhesion_zones:
-            inside = z.from_m <= x < z.to_m
-            self._note(z.label, inside, plant.time_s)
-            if inside:
-                here.append(z)
+            self._note(z.label, any(z.from_m <= x - d < z.to_m for d in self.axle_offsets),
+                       plant.time_s)
+        forward = plant.read("train.speed_mps") >= 0.0
+        mu_line = RAIL_CONDITIONS[self.base_rail][2]
         for i, name in enumerate(self.motor_names):
+            here = x - self.axle_offsets[i]
             state = None
-            for z in here:  # the last zone written wins where zones overlap
-                if not z.axles or name in z.axles:
-                    state = (z.rail, z.factor)
+            for z in self.spec.adhesion_zones:  # the last zone written wins where they overlap
+                if z.from_m <= here < z.to_m and (not z.axles or name in z.axles):
+                    ahead = sum(1 for d in self.axle_offsets
+                                if (d < self.axle_offsets[i] if forward
+                                    else d > self.axle_offsets[i]))
+                    mu_zone = RAIL_CONDITIONS[z.rail][2] * z.factor
+                    mu = mu_line - (mu_line - mu_zone) * (1.0 - z.cleaning_per_axle) ** ahead
+                    state = (z.rail, mu / RAIL_CONDITIONS[z.rail][2])
             if state != self._axle_state[i]:
                 rail, factor = state or (self.base_rail, 1.0)
                 plant.set_rail_condition(i, rail)
