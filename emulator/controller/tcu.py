@@ -95,6 +95,7 @@ class ReferenceController:
                                   for i in range(len(cfg.link_names))]
         self.block_until = [0.0] * n_inv
         self.demanded_at = [-math.inf] * n_inv
+        self.released = [False] * n_inv  # off since the demand ended (see the gates below)
         self.t = 0.0
         self.event = 0
         self.events: Counter = Counter()
@@ -299,9 +300,14 @@ class ReferenceController:
             # magnetised while a mode asks for effort, and for FLUX_HOLD_S after it at speed
             # (a driver modulating the brake goes to coast and back): rebuilding the flux
             # takes a rotor time constant (~0.6 s) each time
+            # once released after the demand, a drive stays off until asked again: the
+            # speed near the threshold rings with the drivetrain's torsion (and the
+            # encoder's steps), and each restart met the shaft's recoil with a fresh flux
+            # model, a current surge and an overcurrent trip at the blend speed
             if demanded:
                 self.demanded_at[k] = self.t
-            held = (abs(v) > MAGNETISED_ABOVE_MPS
+                self.released[k] = False
+            held = (not self.released[k] and abs(v) > MAGNETISED_ABOVE_MPS
                     and self.t - self.demanded_at[k] < FLUX_HOLD_S)
             active = (running and (demanded or held) and self.t >= self.block_until[k]
                       and u_d > u_min_run
@@ -346,6 +352,7 @@ class ReferenceController:
                 achieved += estimate * n_mot
             else:
                 self.enabled_for[k] = 0.0
+                self.released[k] = not demanded
                 if self.vector is not None:
                     self.vector[k].reset()
                 for i in duty_ix:

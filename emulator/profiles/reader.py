@@ -203,6 +203,8 @@ def _sensors(t: Table) -> SensorParams:
         line_voltage=_channel(t.table("line_voltage"), "v", -1e5, 1e5),
         line_current=_channel(t.table("line_current"), "a", -1e5, 1e5),
         encoder_lines=lines,
+        shaft_torque=(_channel(t.table("shaft_torque"), "nm", -1e5, 1e5)
+                      if t.has("shaft_torque") else None),
     )
     t.finish()
     return params

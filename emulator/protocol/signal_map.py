@@ -122,6 +122,10 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
                                 "rotor speed from the speed sensor"))
             meas.append(_analog(f"{motor}.stator_temperature_degc", "degC", 0.1, -50.0, 250.0,
                                 "stator winding temperature sensor"))
+            if getattr(params.sensors, "shaft_torque", None) is not None:
+                meas.append(_analog(f"{motor}.shaft_torque_nm", "N m", 1.0, -30000.0,
+                                    30000.0, "motor shaft torque transducer (fitted in "
+                                    "the profile's [sensors.shaft_torque])"))
     meas += [
         _analog("train.effort_demand", "1", 0.001, -1.0, 1.0,
                 "driver's effort demand, fraction of maximum (negative: brake)"),

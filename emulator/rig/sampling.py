@@ -26,6 +26,7 @@ from emulator.plant.layout import (
     LS_OVP,
     LS_UDC,
     MS_OMEGA_M,
+    MS_SHAFT_TORQUE,
     MS_T_STATOR,
     MS_THETA_M,
     SS_BREAKER,
@@ -112,6 +113,9 @@ class MeasurementSampler:
                                sensors.speed))
                 analog.append((f"{motor}.stator_temperature_degc", SRC_MOTOR, m, MS_T_STATOR,
                                -KELVIN, sensors.temperature))
+                if sensors.shaft_torque is not None:
+                    analog.append((f"{motor}.shaft_torque_nm", SRC_MOTOR, m, MS_SHAFT_TORQUE,
+                                   0.0, sensors.shaft_torque))
                 m += 1
         plan = analog + [(*f, 0.0) for f in flags]
         self.analog_names = [a[0] for a in analog]  # fault targets: the analog channels

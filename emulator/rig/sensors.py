@@ -52,6 +52,9 @@ class SensorParams:
     line_voltage: ChannelSpec = ChannelSpec()
     line_current: ChannelSpec = ChannelSpec()
     encoder_lines: int = 256
+    # a torque transducer on each motor shaft: test benches and instrumented test trains
+    # have one, service trains do not (None: not fitted, no signal in the map)
+    shaft_torque: ChannelSpec | None = None
 
 
 class AnalogChannels:

@@ -148,6 +148,27 @@ def write_report(run: RunResult, directory: str | Path) -> Path:
     shade(ax)
     save(fig, "creep.png", "creep per axle")
 
+    # mechanics: the shaft's torque at every frame (its 30 Hz ring would alias at the
+    # plotting stride), axle loads and the friction brake at the rail
+    shaft = _series(rec, "motor.shaft_torque_nm", slice(None))
+    if shaft is not None:
+        fig, axes = plt.subplots(3, 1, figsize=(10, 8), sharex=True)
+        for j, label in enumerate(_labels(rec, "motor.shaft_torque_nm")):
+            axes[0].plot(t_all, shaft[:, j], lw=0.5, label=f"motor {label}")
+        axes[0].set_ylabel("shaft torque, N m")
+        for name, ax, unit, scale in (("motor.axle_load_n", axes[1], "axle load, kN", 1e-3),
+                                      ("motor.brake_force_n", axes[2],
+                                       "friction brake at the rail, kN", 1e-3)):
+            data = _series(rec, name, rows)
+            for j, label in enumerate(_labels(rec, name)):
+                ax.plot(t, data[:, j] * scale, lw=0.8, label=f"axle {label}")
+            ax.set_ylabel(unit)
+        axes[2].set_xlabel("plant time, s")
+        for ax in axes:
+            ax.legend(fontsize=6, ncol=4)
+            shade(ax)
+        save(fig, "mechanics.png", "shaft torques, axle loads and friction brakes")
+
     # check windows
     n = len(run.results)
     fig, ax = plt.subplots(figsize=(10, 1 + 0.35 * n))

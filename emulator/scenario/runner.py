@@ -29,6 +29,7 @@ from .track import Track
 MOTOR_SIDE = ["train.speed_mps", "train.position_m", "train.acceleration_mps2",
               "train.tractive_force_n", "motor.speed_rad_s", "motor.torque_nm",
               "motor.creep_velocity_mps", "motor.adhesion_utilisation",
+              "motor.shaft_torque_nm", "motor.axle_load_n", "motor.brake_force_n",
               "motor.stator_temperature_k", "motor.rotor_temperature_k",
               "inverter.phase_current_a_a", "inverter.phase_current_b_a",
               "inverter.phase_current_c_a", "dc_link.voltage_v", "dc_link.chopper_current_a"]

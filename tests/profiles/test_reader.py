@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from emulator.profiles.reader import PROFILES_DIR, ProfileError, load_machine, load_trainset
@@ -71,6 +72,15 @@ def edited(tmp_path: Path, source: Path, old: str, new: str) -> Path:
     ("axle_count = 16", "", "axle_count", "missing"),
     ("gear_ratio = 4.1", "gear_ratio = 4.1\naxle_load_kg = 15500.0", "axle_load_kg",
      "follows the train's mass"),
+    ("shaft_stiffness_knm_per_rad = 111.0", "", "shaft_damping_nms_per_rad",
+     "needs its spring"),
+    ("coupler_height_m = 1.0", "", "bogie_wheelbase_m", "missing coupler_height_m"),
+    ("axle_positions_m = [2.5, 5.0]", "axle_positions_m = [2.5]", "axle_positions_m",
+     "one position per wheel"),
+    ("axle_positions_m = [2.5, 5.0]   # behind the front end (cars of 24.5 m)", "",
+     "wheel_diameters_m", "needs axle_positions_m"),
+    ("brake_cylinder_time_constant_s = 0.5", "brake_cylinder_time_constant_s = -1",
+     "brake_cylinder_time_constant_s", "got -1"),
 ])
 def test_bad_trainset_names_file_table_and_key(tmp_path, old, new, key, words) -> None:
     path = edited(tmp_path, TRAINSET, old, new)
@@ -112,3 +122,31 @@ def test_not_toml_and_missing_file(tmp_path) -> None:
 
 def test_profile_error_is_a_value_error() -> None:
     assert issubclass(ProfileError, ValueError)
+
+
+def test_a_shaft_torque_transducer_only_where_the_profile_fits_one(tmp_path) -> None:
+    """Service trains carry no shaft torque sensor: the shipped maps have no such signal;
+    a profile that fits one gets one per motor, sampled through its channel."""
+    from emulator.plant import Plant
+    from emulator.protocol.signal_map import build_signal_map
+    from emulator.rig.sampling import DriverDemand, MeasurementSampler
+
+    plain = load_trainset(TRAINSET)
+    assert not any(s.name.endswith("shaft_torque_nm")
+                   for s in build_signal_map(plain).measurements)
+    fitted = load_trainset(edited(tmp_path, TRAINSET, "[sensors.current]", (
+        "[sensors.shaft_torque]\ngain = 1.0\noffset_nm = 0.0\nnoise_rms_nm = 0.0\n"
+        "filter_us = 0.0\nrange_min_nm = -10000.0\nrange_max_nm = 10000.0\n"
+        "adc_bits = 0\n\n[sensors.current]")))
+    smap = build_signal_map(fitted)
+    names = [s.name for s in smap.measurements]
+    assert "INV-A1.m1.shaft_torque_nm" in names
+    plant = Plant(fitted, ideal_dc_links=True)
+    plant.set_speed(5.0)
+    plant.set_rotor_torque(0, 1500.0)
+    for _ in range(50):
+        plant.advance(None)
+    sampler = MeasurementSampler(plant, smap, fitted.sensors, np.random.default_rng(0))
+    y = sampler.sample(1e-3, DriverDemand())
+    # an ideal channel (no noise, offset, filter or ADC): the plant's value itself
+    assert y[names.index("INV-A1.m1.shaft_torque_nm")] == plant.read("motor.shaft_torque_nm")[0]
