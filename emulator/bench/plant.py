@@ -99,8 +99,9 @@ def _solve_ivp_frame_us(params: TrainsetParams, repeats: int) -> float:
     d = ls * lr - lm * lm
     p = mp.pole_pairs
     u = 900.0 * np.exp(1j * np.linspace(0, 2 * np.pi, n, endpoint=False))
-    inertia = mp.rotor_inertia_kgm2 + params.drivetrain.wheelset_inertia_kgm2 / (
-        params.drivetrain.gear_ratio ** 2)
+    dt = params.drivetrain
+    inertia = mp.rotor_inertia_kgm2 + (dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2) / (
+        dt.gear_ratio ** 2)
 
     def rhs(_t: float, y: np.ndarray) -> np.ndarray:
         ps = y[0:n] + 1j * y[n:2 * n]

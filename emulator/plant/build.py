@@ -53,6 +53,7 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
             row[L.MP_GEAR] = dp.gear_ratio
             row[L.MP_GEAR_EFF] = dp.gear_efficiency
             row[L.MP_J_WHEELSET] = dp.wheelset_inertia_kgm2
+            row[L.MP_J_GEAR] = dp.gear_inertia_kgm2
             row[L.MP_WHEEL_R] = 0.5 * diameter
             row[L.MP_AXLE_LOAD] = dp.axle_load_n
             row[L.MP_KALKER] = dp.kalker_coefficient_n
@@ -270,3 +271,4 @@ def build_train(plant, params: TrainsetParams) -> None:
     plant.tpar[L.TP_GRAVITY] = 9.80665
     plant.tpar[L.TP_AMBIENT] = params.train.ambient_temperature_k
     plant.tu[L.TU_BRAKE_TAU] = tp.brake_cylinder_time_constant_s
+    plant.tpar[L.TP_UNMOTORED_AXLES] = max(tp.axle_count - params.motor_count, 0)

@@ -55,7 +55,9 @@ def energy_account(self) -> EnergyAccount:
         magnetic += magnetic_energy(ps, i_s, pr, i_r)
         if self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_DRIVETRAIN:
             # rotor and wheelset apart (in a rigid drivetrain they turn as one)
-            kinetic += 0.5 * (self.mpar[m, L.MP_J_ROTOR] * ms[m, L.MS_OMEGA_M] ** 2
+            j1 = (self.mpar[m, L.MP_J_ROTOR]
+                  + self.mpar[m, L.MP_J_GEAR] / self.mpar[m, L.MP_GEAR] ** 2)
+            kinetic += 0.5 * (j1 * ms[m, L.MS_OMEGA_M] ** 2
                               + self.mpar[m, L.MP_J_WHEELSET] * ms[m, L.MS_OMEGA_W] ** 2)
             torsion += 0.5 * self.mpar[m, L.MP_K_SHAFT] * ms[m, L.MS_TWIST] ** 2
         elif self.mint[m, L.MI_SHAFT_MODE] == L.SHAFT_FREE:

@@ -63,6 +63,7 @@ from .layout import (
     MP_CREEP_VREF,
     MP_GEAR,
     MP_GEAR_EFF,
+    MP_J_GEAR,
     MP_J_ROTOR,
     MP_J_WHEELSET,
     MP_K_SHAFT,
@@ -133,6 +134,7 @@ from .layout import (
     TP_GRAVITY,
     TP_MASS,
     TP_ROT_ALLOWANCE,
+    TP_UNMOTORED_AXLES,
     TS_ACCEL,
     TS_BRAKE_FORCE,
     TS_E_BRAKE,
@@ -201,18 +203,20 @@ def _wheel_locked(j_eff, d_free, brake_torque, h):
 def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
     """Advance motor m's shaft; returns the creep force applied to the train, N.
 
-    Drivetrain mode, two-mass (MP_K_SHAFT > 0): the rotor J_r and the wheelset J_w are
-    joined by a torsional spring k and damper c at the motor shaft and by the gear i::
+    Drivetrain mode, two-mass (MP_K_SHAFT > 0): the rotor with the gear, J_1 = J_r +
+    J_g / i^2 at the motor's speed, and the wheelset J_w are joined through the gear i by
+    the drive's coupling, a torsional spring k and damper c referred to the motor shaft::
 
-        J_r dw_m/dt = T_e - T_sh,     T_sh = k phi + c (w_m - i w_w),  dphi/dt = w_m - i w_w
+        J_1 dw_m/dt = T_e - T_sh,     T_sh = k phi + c (w_m - i w_w),  dphi/dt = w_m - i w_w
         J_w dw_w/dt = rho T_sh - r F(w_w r - v) - T_b sign(w_w)
 
-    rho = i eta when the shaft passes power to the wheel, i / eta when it takes it back
-    (the gear's loss comes out of the flow). The spring and damper go by the trapezoidal
-    rule (no numerical damping of the torsional mode), the creep force by linearised
-    backward Euler on the slip velocity (the contact is stiff). Rigid (k = 0): one
-    inertia J_w + i^2 J_r. The friction brake T_b = F_b r opposes the wheel's turning
-    and holds it at rest up to its size (a locked wheel).
+    rho = i eta when the coupling passes power to the wheel, i / eta when it takes it
+    back (the gear's loss comes out of the flow, taken at the coupling's torque: the gear
+    wheel's own inertia torque is left out of the loss). The spring and damper go by the
+    trapezoidal rule (no numerical damping of the torsional mode), the creep force by
+    linearised backward Euler on the slip velocity (the contact is stiff). Rigid (k = 0):
+    one inertia J_w + J_g + i^2 J_r. The friction brake T_b = F_b r opposes the wheel's
+    turning and holds it at rest up to its size (a locked wheel).
     """
     mode = mint[m, MI_SHAFT_MODE]
     om = ms[m, MS_OMEGA_M]
@@ -234,7 +238,7 @@ def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
         tb = ms[m, MS_BRAKE_FORCE] * r  # brake torque at the wheelset, >= 0
         k = mpar[m, MP_K_SHAFT]
         if k > 0.0:
-            jr = mpar[m, MP_J_ROTOR]
+            jr = mpar[m, MP_J_ROTOR] + mpar[m, MP_J_GEAR] / (gear * gear)
             jw = mpar[m, MP_J_WHEELSET]
             c = mpar[m, MP_C_SHAFT]
             phi = ms[m, MS_TWIST]
@@ -259,7 +263,8 @@ def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
                     sgn = 1.0 if d_free > 0.0 else -1.0
             b2 -= h * sgn * tb
             d2 = (a11 * b2 - a21 * b1) / det
-            if sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0):
+            held = sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0)
+            if held:
                 d2 = -ow  # the brake has stopped the wheel within the step
             d1 = (b1 - a12 * d2) / a11
             ow_new = ow + d2
@@ -272,12 +277,13 @@ def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
             ms[m, MS_E_DAMPER] += c * dlt_avg * dlt_avg * h
             force = f + kk * (r * d2 - h * a_train)
             ow_avg = ow + 0.5 * d2
-            # the brake's work is what the wheelset's balance leaves (exact books when
-            # the wheel stops inside the step)
-            t_brake = rho * t_sh - r * force - jw * d2 / h
+            # the brake's torque as applied; in a step where it stopped or holds the wheel,
+            # what the wheelset's balance leaves of it (less than T_b: static friction)
+            t_brake = rho * t_sh - r * force - jw * d2 / h if held else sgn * tb
             ms[m, MS_E_GEAR] += (gear - rho) * t_sh * ow_avg * h
         else:
-            jeq = mpar[m, MP_J_WHEELSET] + gear * gear * mpar[m, MP_J_ROTOR]
+            j1 = mpar[m, MP_J_ROTOR] + mpar[m, MP_J_GEAR] / (gear * gear)
+            jeq = mpar[m, MP_J_WHEELSET] + gear * gear * j1
             t_w = wheel_torque(t_avg, om, gear, eff)
             a22 = jeq + h * r * r * kk
             b2 = h * (t_w - r * f + r * kk * h * a_train)
@@ -290,15 +296,16 @@ def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
                     sgn = 1.0 if b2 > 0.0 else -1.0
             b2 -= h * sgn * tb
             d2 = b2 / a22
-            if sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0):
+            held = sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0)
+            if held:
                 d2 = -ow
             ow_new = ow + d2
             om_new = gear * ow_new
             force = f + kk * (r * d2 - h * a_train)
             ow_avg = ow + 0.5 * d2
-            t_brake = t_w - r * force - jeq * d2 / h
-            # the rotor's share of the inertia torque is the shaft's difference
-            ms[m, MS_SHAFT_TORQUE] = t_avg - mpar[m, MP_J_ROTOR] * gear * d2 / h
+            t_brake = t_w - r * force - jeq * d2 / h if held else sgn * tb
+            # the coupling passes what the rotor's side does not take to accelerate itself
+            ms[m, MS_SHAFT_TORQUE] = t_avg - j1 * gear * d2 / h
             ms[m, MS_E_GEAR] += (t_avg * gear - t_w) * ow_avg * h
         ms[m, MS_OMEGA_W] = ow_new
         ms[m, MS_E_BRAKE] += t_brake * ow_avg * h
@@ -449,6 +456,24 @@ def _axle_loads(mpar, mint, ms):
 
 
 @compiled_inline
+def _unmotored_grip(mpar, mint, tpar):
+    """The most the unmotored axles' brakes can take from the train, N: their static
+    load times the friction mu0 of the rail under the motored axles (on the average; the
+    unmotored wheelsets are not modelled, so they neither lock nor slide: they only cannot
+    brake harder than the rail allows)."""
+    n_un = tpar[TP_UNMOTORED_AXLES]
+    total = 0.0
+    count = 0
+    for m in range(mpar.shape[0]):
+        if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN:
+            total += mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR] * mpar[m, MP_AXLE_LOAD]
+            count += 1
+    if count == 0:
+        return math.inf
+    return n_un * total / count
+
+
+@compiled_inline
 def _locked_hold(mpar, mint, ms):
     """The force the braked, locked wheelsets of a train at rest hold it with, N: each
     up to its brake force and its adhesion (a contact that does not roll sticks; the
@@ -494,6 +519,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     m_eff = mass * (1.0 + tpar[TP_ROT_ALLOWANCE])
     curve = max(tu[TU_CURVE_RESISTANCE], 0.0)  # a friction: against motion, holds at rest
     _axle_loads(mpar, mint, ms)
+    grip = _unmotored_grip(mpar, mint, tpar)
     line_frame_start(ss, ls2, lst)
     for s in range(n_sub):
         t = t0 + s * h
@@ -504,7 +530,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         force = 0.0
         i_link[:, :] = 0.0
         _brake_cylinders(mpar, mint, mu, ms, tu, ts, h)
-        brake = ts[TS_BRAKE_FORCE]
+        brake = min(ts[TS_BRAKE_FORCE], grip)
         for k in range(n_i):
             force += _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,
                                        lst, v, ts[TS_ACCEL], i_link)

@@ -25,7 +25,7 @@ MP_ALPHA_R = 8  # rotor resistance temperature coefficient, 1/K
 MP_T_REF = 9  # temperature at which RS20/RR20 hold, K
 MP_GEAR = 10  # gear ratio motor speed / wheel speed, 1
 MP_GEAR_EFF = 11  # gear efficiency, 1
-MP_J_WHEELSET = 12  # wheelset inertia incl. large gear wheel, kg m^2
+MP_J_WHEELSET = 12  # wheelset inertia (without the gear wheel when MP_J_GEAR is given), kg m^2
 MP_WHEEL_R = 13  # wheel rolling radius, m
 MP_AXLE_LOAD = 14  # axle load (normal force of both wheels), N
 MP_KALKER = 15  # Kalker linear creep coefficient G*a*b*c11 of the axle (two wheels), N
@@ -48,11 +48,13 @@ MP_J_EQ_INV = 30  # 1 / (J_wheelset + gear^2 J_rotor), 1/(kg m^2)
 MP_GEAR_INV = 31  # 1 / gear, 1
 MP_POL_KAPPA = 32  # pi/4 K / Q, creep-to-epsilon factor of Polach's model, 1
 MP_POL_SCALE = 33  # 2 Q / pi, N (both follow the axle load in use, MS_AXLE_LOAD)
-MP_K_SHAFT = 34  # torsional stiffness between rotor and gear, at the motor shaft, N m/rad
-# (0: a rigid drivetrain, rotor and wheelset one inertia through the gear)
-MP_C_SHAFT = 35  # torsional damping between rotor and gear, at the motor shaft, N m s/rad
+MP_K_SHAFT = 34  # torsional stiffness between the gear and the wheelset (the drive's
+# coupling), referred to the motor shaft, N m/rad (0: a rigid drivetrain, one inertia)
+MP_C_SHAFT = 35  # torsional damping of the coupling, referred to the motor shaft, N m s/rad
 MP_BRAKE_TAU = 36  # brake-cylinder time constant (first-order lag of the brake force), s
-MP_LT_COEF0 = 37  # load transfer: axle load change per newton of creep force of the axles
+MP_J_GEAR = 37  # gear wheel (and hollow shaft) inertia at the wheelset's speed, on the
+# rotor's side of the torsional spring, kg m^2
+MP_LT_COEF0 = 38  # load transfer: axle load change per newton of creep force of the axles
 # named by MI_LT_AXLE0.. (Delta Q = sum_j coef_j F_j), 1; LT_TERMS columns from here
 LT_TERMS = 6  # load-transfer terms per axle (the motored axles of its car)
 MP_N = MP_LT_COEF0 + LT_TERMS
@@ -105,7 +107,7 @@ MS_CSR = 24  # i_r = CRR psi_r - CSR psi_s, i.e. L_r/D, L_m/D and L_s/D, 1/H
 MS_CRR = 25
 MS_OMEGA_W = 26  # wheelset speed, rad/s
 MS_TWIST = 27  # twist of the torsional spring at the motor shaft, rad
-MS_SHAFT_TORQUE = 28  # torque the rotor passes to the gear (the motor shaft's), N m
+MS_SHAFT_TORQUE = 28  # torque in the drive's coupling, referred to the motor shaft, N m
 MS_E_DAMPER = 29  # energy lost in the torsional damping, J
 MS_BRAKE_FORCE = 30  # friction brake force applied at the rail (after the cylinder lag), N
 MS_E_BRAKE = 31  # friction brake energy of the axle, J
@@ -196,7 +198,8 @@ TP_DAVIS_B = 3  # linear term, N/(m/s)
 TP_DAVIS_C = 4  # quadratic term, N/(m/s)^2
 TP_GRAVITY = 5  # m/s^2
 TP_AMBIENT = 6  # coolant / ambient temperature, K
-TP_N = 7
+TP_UNMOTORED_AXLES = 7  # axles without a motor (their brakes act on the train), 1
+TP_N = 8
 
 TU_GRADIENT = 0  # track gradient, rise over run (positive uphill), 1
 TU_BRAKE_FORCE = 1  # friction brake force demanded, N (>= 0)

@@ -73,8 +73,10 @@ class DrivetrainParams:
     kalker_coefficient_n: float
     rail_condition: str
     creep_reference_speed_mps: float
-    # torsion between rotor and gear at the motor shaft (0: a rigid drivetrain)
+    # torsion in the coupling between the gear and the wheelset, referred to the motor
+    # shaft (0: a rigid drivetrain); the gear wheel's inertia turns on the rotor's side
     shaft_stiffness_nm_per_rad: float = 0.0
+    gear_inertia_kgm2: float = 0.0
     shaft_damping_nms_per_rad: float = 0.0
     # load transfer (0: none): bogie wheelbase, height of the bogie's traction link and of
     # the coupler above the rail

@@ -366,6 +366,8 @@ def load_trainset(path: Path | str) -> TrainsetParams:
         shaft_stiffness_nm_per_rad=(
             dt.number("shaft_stiffness_knm_per_rad", "kN m/rad", 0.0, 1e5, lo_open=True,
                       scale=1e3) if dt.has("shaft_stiffness_knm_per_rad") else 0.0),
+        gear_inertia_kgm2=(dt.number("gear_inertia_kgm2", "kg m^2", 0.0, 1e4)
+                           if dt.has("gear_inertia_kgm2") else 0.0),
         shaft_damping_nms_per_rad=(
             dt.number("shaft_damping_nms_per_rad", "N m s/rad", 0.0, 1e6)
             if dt.has("shaft_damping_nms_per_rad") else 0.0),

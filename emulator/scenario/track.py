@@ -13,7 +13,10 @@ an axle with n motored axles ahead of it in the direction of travel meets
     mu = mu_line - (mu_line - mu_zone) (1 - c)^n,    c = the zone's cleaning_per_axle,
 
 where mu_line is the line's own friction (the profile's rail condition) and mu_zone the
-zone's (its rail condition times its factor). Unmotored axles are not counted.
+zone's (its rail condition times its factor). Unmotored axles are not counted, and the
+model does not remember where axles have rolled: it counts the motored axles ahead in
+the direction of travel, so a train that starts or reverses inside a zone gets their
+cleaning at once.
 
 Curve resistance is a friction on the train (against the motion, holding at rest), by
 Röckl's formula for standard gauge (from memory, as quoted in running-time texts, e.g.

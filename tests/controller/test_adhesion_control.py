@@ -65,7 +65,9 @@ def test_without_adhesion_control_the_wheels_run_away(run) -> None:
     assert np.abs(creeps).max() > 2.0
 
 
-GREASY = 0.35  # the dry shape (steep past its peak) at 0.35: peak 0.11, below full effort
+GREASY = 0.45  # the dry shape (steep past its peak) at 0.45: peak 0.13, below full effort;
+# past the peak the falling slope can feed the torsional mode at up to 1.8 /s (the linear
+# two-mass model of tests/plant/test_torsion.py at this rail)
 
 
 def _ring(x: np.ndarray) -> float:
@@ -73,9 +75,9 @@ def _ring(x: np.ndarray) -> float:
     return float((x - np.convolve(x, np.ones(33) / 33, mode="same"))[20:-20].std())
 
 
-async def _greasy_start():
+async def _greasy_start(enabled: bool):
     rig, tcu = await rig_with_controller()
-    assert tcu.adhesion.enabled  # the reference as shipped
+    tcu.adhesion.enabled = enabled
     plant = rig.plant
     for m in range(plant.n_motors):
         plant.set_rail_condition(m, "dry")
@@ -83,22 +85,29 @@ async def _greasy_start():
     plant.set_speed(6.0)
     await rig.run(frames=1500)
     rig.driver.mode, rig.driver.effort_demand = MODES_INV["accelerate"], 1.0
-    shaft = []
+    shaft, creep = [], []
     for _ in range(4000):
         await rig.run(frames=rig.frame + 1)
         shaft.append(plant.read("motor.shaft_torque_nm").copy())
-    return np.array(shaft)
+        creep.append(plant.read("motor.creep_velocity_mps").copy())
+    return np.array(shaft), np.array(creep)
 
 
-def test_torsional_ring_does_not_build_up_under_adhesion_control(run) -> None:
-    """On the bench a wheelset held past the creep peak on this rail shape rings up at
-    about 1.1 /s (tests/plant/test_torsion.py): 5x in 1.5 s. With the reference adhesion
-    control (the rig's command delay of one frame) the axles are kept off the falling
-    slope: the largest ring of the last 1.5 s stays within twice that of the first 1.5 s
-    at the limit, on every motor."""
-    shaft = run(_greasy_start())
+def test_at_the_limit_on_a_greasy_rail_no_stick_slip_builds_up(run) -> None:
+    """On the bench a wheelset held past the creep peak rings up into a stick-slip limit
+    cycle of the order of its mean torque (tests/plant/test_torsion.py). With the
+    reference adhesion control (the rig's command delay of one frame) the axles are held
+    near the peak: the creep stays bounded, and the shaft's ring neither builds up (the
+    largest ring of the last 1.5 s within twice that of the first 1.5 s at the limit) nor
+    reaches a tenth of the mean torque (a bound chosen here, no source)."""
+    shaft, creep = run(_greasy_start(enabled=True))
+    assert np.abs(creep).max() < 1.5  # a few km/h at most (common practice, as above)
     for m in range(shaft.shape[1]):
         windows = [_ring(shaft[k:k + 250, m]) for k in range(1000, 4000, 250)]
         assert max(windows[6:]) <= 2.0 * max(windows[:6])
-        # a bound chosen here, no source: a ring, not a breakdown of the drive
         assert max(windows) < 0.1 * shaft[1000:, m].mean()
+
+
+def test_on_a_greasy_rail_without_adhesion_control_the_wheels_run_away(run) -> None:
+    _, creep = run(_greasy_start(enabled=False))
+    assert np.abs(creep).max() > 2.0

@@ -36,10 +36,12 @@ def test_rolls_back_on_a_gradient_with_brakes_off_and_holds_with_brakes_on() -> 
         plant.advance(None)
     # Newton for the train with its motored wheelsets rolling along (no motor torque):
     # (m (1 + k_rot) + sum J_eq / r^2) a = -m g sin(theta) + A + B |v| + C v^2, v < 0,
-    # with J_eq = J_wheelset + i^2 J_rotor per motored axle (any vehicle-dynamics text)
+    # with J_eq = J_wheelset + J_gear + i^2 J_rotor per motored axle (any vehicle-dynamics
+    # text)
     p = plant.params
     tr, dt = p.train, p.drivetrain
-    j_eq = dt.wheelset_inertia_kgm2 + dt.gear_ratio**2 * p.machine.rotor_inertia_kgm2
+    j_eq = (dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2
+            + dt.gear_ratio**2 * p.machine.rotor_inertia_kgm2)
     rotating = sum(j_eq / (d / 2) ** 2 for c in p.converters for d in c.wheel_diameters_m)
     v = plant.read("train.speed_mps")
     theta = math.atan(0.03)
@@ -102,7 +104,8 @@ def test_a_moving_train_is_braked_by_the_curve_either_way(direction: float) -> N
     assert abs(curved) < abs(straight) < 5.0  # slower, never pushed
     assert direction * curved > 0.0  # still moving the same way after 0.5 s
     tr, dt = p.train, p.drivetrain
-    j_eq = dt.wheelset_inertia_kgm2 + dt.gear_ratio**2 * p.machine.rotor_inertia_kgm2
+    j_eq = (dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2
+            + dt.gear_ratio**2 * p.machine.rotor_inertia_kgm2)
     rotating = sum(j_eq / (d / 2) ** 2 for c in p.converters for d in c.wheel_diameters_m)
     m_eff = tr.mass_kg * (1 + tr.rotating_mass_allowance) + rotating
     # the difference after 0.5 s is the curve's impulse over m_eff (the Davis terms differ

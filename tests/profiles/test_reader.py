@@ -72,7 +72,7 @@ def edited(tmp_path: Path, source: Path, old: str, new: str) -> Path:
     ("axle_count = 16", "", "axle_count", "missing"),
     ("gear_ratio = 4.1", "gear_ratio = 4.1\naxle_load_kg = 15500.0", "axle_load_kg",
      "follows the train's mass"),
-    ("shaft_stiffness_knm_per_rad = 111.0", "", "shaft_damping_nms_per_rad",
+    ("shaft_stiffness_knm_per_rad = 102.0", "", "shaft_damping_nms_per_rad",
      "needs its spring"),
     ("coupler_height_m = 1.0", "", "bogie_wheelbase_m", "missing coupler_height_m"),
     ("axle_positions_m = [2.5, 5.0]", "axle_positions_m = [2.5]", "axle_positions_m",
@@ -126,7 +126,8 @@ def test_profile_error_is_a_value_error() -> None:
 
 def test_a_shaft_torque_transducer_only_where_the_profile_fits_one(tmp_path) -> None:
     """Service trains carry no shaft torque sensor: the shipped maps have no such signal;
-    a profile that fits one gets one per motor, sampled through its channel."""
+    a profile that fits one gets one per motor, sampled through its channel as the
+    sensor chain's equation says (emulator/rig/sensors.py: y = clip(gain x + offset))."""
     from emulator.plant import Plant
     from emulator.protocol.signal_map import build_signal_map
     from emulator.rig.sampling import DriverDemand, MeasurementSampler
@@ -135,18 +136,22 @@ def test_a_shaft_torque_transducer_only_where_the_profile_fits_one(tmp_path) -> 
     assert not any(s.name.endswith("shaft_torque_nm")
                    for s in build_signal_map(plain).measurements)
     fitted = load_trainset(edited(tmp_path, TRAINSET, "[sensors.current]", (
-        "[sensors.shaft_torque]\ngain = 1.0\noffset_nm = 0.0\nnoise_rms_nm = 0.0\n"
-        "filter_us = 0.0\nrange_min_nm = -10000.0\nrange_max_nm = 10000.0\n"
+        "[sensors.shaft_torque]\ngain = 2.0\noffset_nm = 100.0\nnoise_rms_nm = 0.0\n"
+        "filter_us = 0.0\nrange_min_nm = -4000.0\nrange_max_nm = 4000.0\n"
         "adc_bits = 0\n\n[sensors.current]")))
     smap = build_signal_map(fitted)
     names = [s.name for s in smap.measurements]
-    assert "INV-A1.m1.shaft_torque_nm" in names
+    fitted_names = [f"{m}.shaft_torque_nm" for m in fitted.motor_names]
+    assert [n for n in names if n.endswith("shaft_torque_nm")] == fitted_names  # 8
     plant = Plant(fitted, ideal_dc_links=True)
     plant.set_speed(5.0)
-    plant.set_rotor_torque(0, 1500.0)
-    for _ in range(50):
+    plant.set_rotor_torque(0, 1500.0)  # 2 x + 100 within the range
+    plant.set_rotor_torque(1, 2500.0)  # 2 x + 100 beyond it: clipped
+    for _ in range(300):
         plant.advance(None)
     sampler = MeasurementSampler(plant, smap, fitted.sensors, np.random.default_rng(0))
     y = sampler.sample(1e-3, DriverDemand())
-    # an ideal channel (no noise, offset, filter or ADC): the plant's value itself
-    assert y[names.index("INV-A1.m1.shaft_torque_nm")] == plant.read("motor.shaft_torque_nm")[0]
+    true = plant.read("motor.shaft_torque_nm")
+    assert 1000.0 < true[0] < 1900.0 and true[1] > 1950.0
+    assert y[names.index(fitted_names[0])] == pytest.approx(2.0 * true[0] + 100.0, rel=1e-12)
+    assert y[names.index(fitted_names[1])] == 4000.0

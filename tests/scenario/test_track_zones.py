@@ -37,7 +37,18 @@ def test_axles_enter_a_zone_one_after_another() -> None:
     assert _at(track, plant, 300.0) == pytest.approx([dry] * 8)
 
 
+def test_zone_edges_from_in_to_out() -> None:
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+    zone = AdhesionZone(100.0, 110.0, "wet", 1.0, (), "wet patch")
+    track = Track(TrackSpec(adhesion_zones=(zone,)), plant)
+    dry, wet = RAIL_CONDITIONS["dry"][2], RAIL_CONDITIONS["wet"][2]
+    assert _at(track, plant, 102.5)[0] == pytest.approx(wet)  # axle at from_m: in
+    assert _at(track, plant, 112.5)[0] == pytest.approx(dry)  # axle at to_m: out
+
+
 def test_each_axle_ahead_cleans_a_contaminated_rail() -> None:
+    """A check of the documented model (its formula and its invented rate, no outside
+    source): mu_n = mu_line - (mu_line - mu_zone) (1 - c)^n, n the motored axles ahead."""
     plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     zone = AdhesionZone(0.0, 1000.0, "contaminated", 1.0, (), "leaf film", 0.1)
     track = Track(TrackSpec(adhesion_zones=(zone,)), plant)
@@ -45,3 +56,13 @@ def test_each_axle_ahead_cleans_a_contaminated_rail() -> None:
     mu = _at(track, plant, 500.0)
     # the model's formula by hand: mu_n = mu_line - (mu_line - mu_zone) 0.9^n
     assert mu == pytest.approx([line - (line - film) * 0.9 ** n for n in range(8)])
+
+
+def test_running_backwards_the_rear_axle_leads() -> None:
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+    plant.set_speed(-2.0)
+    zone = AdhesionZone(0.0, 1000.0, "contaminated", 1.0, (), "leaf film", 0.1)
+    track = Track(TrackSpec(adhesion_zones=(zone,)), plant)
+    line, film = RAIL_CONDITIONS["dry"][2], RAIL_CONDITIONS["contaminated"][2]
+    mu = _at(track, plant, 500.0)
+    assert mu == pytest.approx([line - (line - film) * 0.9 ** n for n in range(7, -1, -1)])
