@@ -494,12 +494,15 @@ def _brake_cylinders(mpar, mint, mu, ms, tu, ts, h):
     train (their wheelsets are not modelled)."""
     for m in range(mpar.shape[0]):
         demand = mu[m, MU_BRAKE_DEMAND] if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN else 0.0
-        tau = mpar[m, MP_BRAKE_TAU]
+        if demand != ms[m, MS_BRAKE_FORCE]:  # (a settled cylinder costs no exp)
+            tau = mpar[m, MP_BRAKE_TAU]
+            a = 1.0 - math.exp(-h / tau) if tau > 0.0 else 1.0
+            ms[m, MS_BRAKE_FORCE] += a * (demand - ms[m, MS_BRAKE_FORCE])
+    demand = max(tu[TU_BRAKE_FORCE], 0.0)
+    if demand != ts[TS_BRAKE_FORCE]:
+        tau = tu[TU_BRAKE_TAU]
         a = 1.0 - math.exp(-h / tau) if tau > 0.0 else 1.0
-        ms[m, MS_BRAKE_FORCE] += a * (demand - ms[m, MS_BRAKE_FORCE])
-    tau = tu[TU_BRAKE_TAU]
-    a = 1.0 - math.exp(-h / tau) if tau > 0.0 else 1.0
-    ts[TS_BRAKE_FORCE] += a * (max(tu[TU_BRAKE_FORCE], 0.0) - ts[TS_BRAKE_FORCE])
+        ts[TS_BRAKE_FORCE] += a * (demand - ts[TS_BRAKE_FORCE])
 
 
 @compiled
