@@ -7,10 +7,14 @@ Order inside each sub-step of length h (commands held over the frame):
    diode-bridge voltage when the gates are blocked, or an ideal sinusoidal source;
 2. per motor: exact zero-order-hold step of the flux linkages (machine.py) with the
    rotor speed frozen at the refresh value; energies from exact flux integrals;
-3. per motor shaft: gear and wheelset with the creep force linearised and stepped by
-   backward Euler on the slip velocity (the contact is stiff: tau ~ 0.1 ms per m/s
-   of speed), or an imposed speed (dynamometer), or a free shaft with a load torque;
-4. train: lumped mass with stiction at rest.
+3. per motor shaft (shaft.py): rotor, gear, coupling and wheelset (rigid or two-mass)
+   with the creep force linearised and stepped by backward Euler on the slip velocity
+   (the contact is stiff: tau ~ 0.1 ms per m/s of speed) and the friction brake at the
+   wheel, or an imposed speed (dynamometer), or a free shaft with a load torque;
+4. train: lumped mass with stiction at rest; the unmotored axles' brakes.
+
+Once a frame, before the sub-steps: the axle loads from the creep forces (load transfer).
+Each sub-step, first: the brake cylinders follow their demands.
 
 The machine matrices are refreshed at the start of each frame (default) or of each
 sub-step (``refresh_each``), at the speed predicted for the middle of the interval,
@@ -23,7 +27,6 @@ from __future__ import annotations
 import cmath
 import math
 
-from .drivetrain import polach_core, wheel_torque
 from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents
 from .jit import compiled, compiled_inline
 from .layout import (
@@ -51,50 +54,21 @@ from .layout import (
     IU_SINE_PHASE,
     LS_IDC,
     LS_UDC,
-    LT_TERMS,
     MI_INVERTER,
-    MI_LT_AXLE0,
     MI_SAT_POINTS,
     MI_SHAFT_MODE,
-    MP_ADHESION_FACTOR,
-    MP_AXLE_LOAD,
-    MP_BRAKE_TAU,
-    MP_C_SHAFT,
-    MP_CREEP_VREF,
-    MP_GEAR,
-    MP_GEAR_EFF,
-    MP_J_GEAR,
     MP_J_ROTOR,
-    MP_J_WHEELSET,
-    MP_K_SHAFT,
-    MP_KA,
-    MP_KALKER,
-    MP_KS,
     MP_LLR,
     MP_LLS,
-    MP_LT_COEF0,
-    MP_MU0,
-    MP_POL_A,
-    MP_POL_B,
-    MP_POL_KAPPA,
-    MP_POL_SCALE,
     MP_POLE_PAIRS,
     MP_WHEEL_R,
     MS_ACCEL,
-    MS_ADHESION_UTIL,
-    MS_AXLE_LOAD,
-    MS_BRAKE_FORCE,
     MS_CREEP_FORCE,
     MS_CREEP_VEL,
     MS_CSR,
     MS_CSS,
-    MS_E_BRAKE,
     MS_E_CU_R,
     MS_E_CU_S,
-    MS_E_DAMPER,
-    MS_E_GEAR,
-    MS_E_LOAD,
-    MS_E_SHAFT,
     MS_E_SLIP,
     MS_E_TERMINAL,
     MS_LM,
@@ -106,11 +80,7 @@ from .layout import (
     MS_Q_STATOR,
     MS_RR,
     MS_RS,
-    MS_SHAFT_TORQUE,
-    MS_THETA_M,
     MS_TORQUE,
-    MS_TWIST,
-    MU_BRAKE_DEMAND,
     MU_IMPOSED_SPEED,
     MU_LOAD_TORQUE,
     MU_OPEN_PHASE,
@@ -134,7 +104,6 @@ from .layout import (
     TP_GRAVITY,
     TP_MASS,
     TP_ROT_ALLOWANCE,
-    TP_UNMOTORED_AXLES,
     TS_ACCEL,
     TS_BRAKE_FORCE,
     TS_E_BRAKE,
@@ -143,8 +112,6 @@ from .layout import (
     TS_POSITION,
     TS_SPEED,
     TS_TRACTIVE_FORCE,
-    TU_BRAKE_FORCE,
-    TU_BRAKE_TAU,
     TU_CURVE_RESISTANCE,
     TU_GRADIENT,
 )
@@ -159,6 +126,13 @@ from .machine import (
     step_flux,
     step_flux_sine,
     torque,
+)
+from .shaft import (
+    axle_loads,
+    brake_cylinders,
+    locked_hold,
+    shaft_step,
+    unmotored_grip,
 )
 from .thermal import thermal_frame
 from .train import gradient_force, step_speed
@@ -189,146 +163,6 @@ def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval):
         refresh_matrices(mpar, ms, mx, m, mpar[m, MP_POLE_PAIRS] * om_ref, h, sine_on,
                          sine_omega,
                          sat_i[m], sat_psi[m], mint[m, MI_SAT_POINTS])
-
-
-@compiled_inline
-def _wheel_locked(j_eff, d_free, brake_torque, h):
-    """Whether a friction brake holds a wheelset at rest: the torque that would start it
-    turning (its effective inertia times the free step's speed change over h) is within
-    the brake's torque, as static friction holds."""
-    return abs(j_eff * d_free / h) <= brake_torque
-
-
-@compiled_inline
-def _shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
-    """Advance motor m's shaft; returns the creep force applied to the train, N.
-
-    Drivetrain mode, two-mass (MP_K_SHAFT > 0): the rotor with the gear, J_1 = J_r +
-    J_g / i^2 at the motor's speed, and the wheelset J_w are joined through the gear i by
-    the drive's coupling, a torsional spring k and damper c referred to the motor shaft::
-
-        J_1 dw_m/dt = T_e - T_sh,     T_sh = k phi + c (w_m - i w_w),  dphi/dt = w_m - i w_w
-        J_w dw_w/dt = rho T_sh - r F(w_w r - v) - T_b sign(w_w)
-
-    rho = i eta when the coupling passes power to the wheel, i / eta when it takes it
-    back (the gear's loss comes out of the flow, taken at the coupling's torque: the gear
-    wheel's own inertia torque is left out of the loss). The spring and damper go by the
-    trapezoidal rule (no numerical damping of the torsional mode), the creep force by
-    linearised backward Euler on the slip velocity (the contact is stiff). Rigid (k = 0):
-    one inertia J_w + J_g + i^2 J_r. The friction brake T_b = F_b r opposes the wheel's
-    turning and holds it at rest up to its size (a locked wheel).
-    """
-    mode = mint[m, MI_SHAFT_MODE]
-    om = ms[m, MS_OMEGA_M]
-    force = 0.0
-    if mode == SHAFT_DRIVETRAIN:
-        t_l = mu[m, MU_LOAD_TORQUE]  # a bench's dynamometer on the rotor (0 on a train)
-        ms[m, MS_E_LOAD] += t_l * om * h  # booked at the start speed, corrected below
-        t_avg -= t_l
-        gear = mpar[m, MP_GEAR]
-        r = mpar[m, MP_WHEEL_R]
-        eff = mpar[m, MP_GEAR_EFF]
-        ow = ms[m, MS_OMEGA_W]
-        w = ow * r - v
-        mu0 = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
-        f, df = polach_core(w, v, mpar[m, MP_POL_KAPPA], mpar[m, MP_POL_SCALE], mpar[m, MP_KA],
-                            mpar[m, MP_KS], mu0, mpar[m, MP_POL_A], mpar[m, MP_POL_B],
-                            mpar[m, MP_CREEP_VREF])
-        kk = max(df, 0.0)  # the falling branch stays explicit
-        tb = ms[m, MS_BRAKE_FORCE] * r  # brake torque at the wheelset, >= 0
-        k = mpar[m, MP_K_SHAFT]
-        if k > 0.0:
-            jr = mpar[m, MP_J_ROTOR] + mpar[m, MP_J_GEAR] / (gear * gear)
-            jw = mpar[m, MP_J_WHEELSET]
-            c = mpar[m, MP_C_SHAFT]
-            phi = ms[m, MS_TWIST]
-            dlt = om - gear * ow
-            s0 = k * phi + (0.5 * k * h + c) * dlt
-            g = 0.25 * k * h + 0.5 * c  # T_sh,avg = s0 + g (d_m - i d_w)
-            rho = gear * eff if s0 * om >= 0.0 else gear / eff
-            a11 = jr + h * g
-            a12 = -h * g * gear
-            a21 = -h * rho * g
-            a22 = jw + h * rho * g * gear + h * r * r * kk
-            b1 = h * (t_avg - s0)
-            b2 = h * (rho * s0 - r * f + r * kk * h * a_train)
-            det = a11 * a22 - a12 * a21
-            sgn = 1.0 if ow > 0.0 else -1.0
-            if ow == 0.0:
-                d_free = (a11 * b2 - a21 * b1) / det
-                if _wheel_locked(a22 - a21 * a12 / a11, d_free, tb, h):
-                    tb = 0.0
-                    sgn = 0.0
-                else:
-                    sgn = 1.0 if d_free > 0.0 else -1.0
-            b2 -= h * sgn * tb
-            d2 = (a11 * b2 - a21 * b1) / det
-            held = sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0)
-            if held:
-                d2 = -ow  # the brake has stopped the wheel within the step
-            d1 = (b1 - a12 * d2) / a11
-            ow_new = ow + d2
-            om_new = om + d1
-            t_sh = s0 + g * (d1 - gear * d2)  # mean shaft torque over the step
-            dlt_avg = dlt + 0.5 * (d1 - gear * d2)
-            phi_new = phi + h * dlt_avg
-            ms[m, MS_TWIST] = phi_new
-            ms[m, MS_SHAFT_TORQUE] = k * phi_new + c * (om_new - gear * ow_new)
-            ms[m, MS_E_DAMPER] += c * dlt_avg * dlt_avg * h
-            force = f + kk * (r * d2 - h * a_train)
-            ow_avg = ow + 0.5 * d2
-            # the brake's torque as applied; in a step where it stopped or holds the wheel,
-            # what the wheelset's balance leaves of it (less than T_b: static friction)
-            t_brake = rho * t_sh - r * force - jw * d2 / h if held else sgn * tb
-            ms[m, MS_E_GEAR] += (gear - rho) * t_sh * ow_avg * h
-        else:
-            j1 = mpar[m, MP_J_ROTOR] + mpar[m, MP_J_GEAR] / (gear * gear)
-            jeq = mpar[m, MP_J_WHEELSET] + gear * gear * j1
-            t_w = wheel_torque(t_avg, om, gear, eff)
-            a22 = jeq + h * r * r * kk
-            b2 = h * (t_w - r * f + r * kk * h * a_train)
-            sgn = 1.0 if ow > 0.0 else -1.0
-            if ow == 0.0:
-                if _wheel_locked(a22, b2 / a22, tb, h):
-                    tb = 0.0
-                    sgn = 0.0
-                else:
-                    sgn = 1.0 if b2 > 0.0 else -1.0
-            b2 -= h * sgn * tb
-            d2 = b2 / a22
-            held = sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0)
-            if held:
-                d2 = -ow
-            ow_new = ow + d2
-            om_new = gear * ow_new
-            force = f + kk * (r * d2 - h * a_train)
-            ow_avg = ow + 0.5 * d2
-            t_brake = t_w - r * force - jeq * d2 / h if held else sgn * tb
-            # the coupling passes what the rotor's side does not take to accelerate itself
-            ms[m, MS_SHAFT_TORQUE] = t_avg - j1 * gear * d2 / h
-            ms[m, MS_E_GEAR] += (t_avg * gear - t_w) * ow_avg * h
-        ms[m, MS_OMEGA_W] = ow_new
-        ms[m, MS_E_BRAKE] += t_brake * ow_avg * h
-        ms[m, MS_E_SLIP] += force * r * ow_avg * h  # train's share removed after its step
-        ms[m, MS_CREEP_FORCE] = force
-        q_mu = mu0 * ms[m, MS_AXLE_LOAD]
-        ms[m, MS_ADHESION_UTIL] = abs(force) / q_mu if q_mu > 0.0 else 0.0
-    elif mode == SHAFT_IMPOSED_SPEED:
-        om_new = mu[m, MU_IMPOSED_SPEED]
-        ms[m, MS_E_LOAD] += t_avg * 0.5 * (om + om_new) * h
-    else:
-        t_l = mu[m, MU_LOAD_TORQUE]
-        om_new = om + h * (t_avg - t_l) / mpar[m, MP_J_ROTOR]  # J dw/dt = T - T_L
-        ms[m, MS_E_LOAD] += t_l * 0.5 * (om + om_new) * h
-    om_avg = 0.5 * (om + om_new)
-    if mode == SHAFT_DRIVETRAIN:
-        t_l = mu[m, MU_LOAD_TORQUE]
-        ms[m, MS_E_LOAD] += t_l * (om_avg - om) * h
-        t_avg += t_l
-    ms[m, MS_E_SHAFT] += t_avg * om_avg * h
-    ms[m, MS_THETA_M] += om_avg * h
-    ms[m, MS_OMEGA_M] = om_new
-    return force
 
 
 @compiled_inline
@@ -419,7 +253,7 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         t0 = ms[m, MS_TORQUE]  # end of the last sub-step (set again at each refresh)
         t1 = torque(ps1, is1, pp)
         ms[m, MS_TORQUE] = t1
-        force_sum += _shaft_step(mpar, mint, mu, ms, m, 0.5 * (t0 + t1), v, a_train, h)
+        force_sum += shaft_step(mpar, mint, mu, ms, m, 0.5 * (t0 + t1), v, a_train, h)
 
     ia, ib, ic = phase_currents(i_end)
     ist[k, IS_IA] = ia
@@ -438,73 +272,6 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     return force_sum
 
 
-@compiled_inline
-def _axle_loads(mpar, mint, ms):
-    """Axle loads for the frame: static load plus the transfer by the creep forces of the
-    last sub-step (Delta Q_i = sum_j c_ij F_j, coefficients from build.py), kept above a
-    tenth of the static load; the contact constants follow the load."""
-    for m in range(mpar.shape[0]):
-        q = mpar[m, MP_AXLE_LOAD]
-        for j in range(LT_TERMS):
-            axle = mint[m, MI_LT_AXLE0 + j]
-            if axle >= 0:
-                q += mpar[m, MP_LT_COEF0 + j] * ms[axle, MS_CREEP_FORCE]
-        q = max(q, 0.1 * mpar[m, MP_AXLE_LOAD])
-        ms[m, MS_AXLE_LOAD] = q
-        mpar[m, MP_POL_KAPPA] = 0.25 * math.pi * mpar[m, MP_KALKER] / q
-        mpar[m, MP_POL_SCALE] = 2.0 * q / math.pi
-
-
-@compiled_inline
-def _unmotored_grip(mpar, mint, tpar):
-    """The most the unmotored axles' brakes can take from the train, N: their static
-    load times the friction mu0 of the rail under the motored axles (on the average; the
-    unmotored wheelsets are not modelled, so they neither lock nor slide: they only cannot
-    brake harder than the rail allows)."""
-    n_un = tpar[TP_UNMOTORED_AXLES]
-    total = 0.0
-    count = 0
-    for m in range(mpar.shape[0]):
-        if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN:
-            total += mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR] * mpar[m, MP_AXLE_LOAD]
-            count += 1
-    if count == 0:
-        return math.inf
-    return n_un * total / count
-
-
-@compiled_inline
-def _locked_hold(mpar, mint, ms):
-    """The force the braked, locked wheelsets of a train at rest hold it with, N: each
-    up to its brake force and its adhesion (a contact that does not roll sticks; the
-    creep law, for rolling, would let it creep)."""
-    hold = 0.0
-    for m in range(mpar.shape[0]):
-        if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN and ms[m, MS_OMEGA_W] == 0.0:
-            hold += min(ms[m, MS_BRAKE_FORCE], mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
-                        * ms[m, MS_AXLE_LOAD])
-    return hold
-
-
-@compiled_inline
-def _brake_cylinders(mpar, mint, mu, ms, tu, ts, h):
-    """Brake force of each cylinder after its lag: dF/dt = (F_demand - F) / tau (exact
-    step of the first-order lag for a demand held over the sub-step; tau = 0: at once).
-    Motored axles brake through their wheels; the unmotored axles' share acts on the
-    train (their wheelsets are not modelled)."""
-    for m in range(mpar.shape[0]):
-        demand = mu[m, MU_BRAKE_DEMAND] if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN else 0.0
-        if demand != ms[m, MS_BRAKE_FORCE]:  # (a settled cylinder costs no exp)
-            tau = mpar[m, MP_BRAKE_TAU]
-            a = 1.0 - math.exp(-h / tau) if tau > 0.0 else 1.0
-            ms[m, MS_BRAKE_FORCE] += a * (demand - ms[m, MS_BRAKE_FORCE])
-    demand = max(tu[TU_BRAKE_FORCE], 0.0)
-    if demand != ts[TS_BRAKE_FORCE]:
-        tau = tu[TU_BRAKE_TAU]
-        a = 1.0 - math.exp(-h / tau) if tau > 0.0 else 1.0
-        ts[TS_BRAKE_FORCE] += a * (demand - ts[TS_BRAKE_FORCE])
-
-
 @compiled
 def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat_psi,
                   ipar, iint, iu, ist, lst, tpar, tu, ts, sp, harmonics, ss, lp, li, lu, ls2,
@@ -521,8 +288,8 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     mass = tpar[TP_MASS]
     m_eff = mass * (1.0 + tpar[TP_ROT_ALLOWANCE])
     curve = max(tu[TU_CURVE_RESISTANCE], 0.0)  # a friction: against motion, holds at rest
-    _axle_loads(mpar, mint, ms)
-    grip = _unmotored_grip(mpar, mint, tpar)
+    axle_loads(mpar, mint, ms)
+    grip = unmotored_grip(mpar, mint, tpar)
     line_frame_start(ss, ls2, lst)
     for s in range(n_sub):
         t = t0 + s * h
@@ -532,7 +299,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         v = ts[TS_SPEED]
         force = 0.0
         i_link[:, :] = 0.0
-        _brake_cylinders(mpar, mint, mu, ms, tu, ts, h)
+        brake_cylinders(mpar, mint, mu, ms, tu, ts, h)
         brake = min(ts[TS_BRAKE_FORCE], grip)
         for k in range(n_i):
             force += _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,
@@ -541,7 +308,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         f_grade = gradient_force(mass, tpar[TP_GRAVITY], tu[TU_GRADIENT])
         v_new, resist = step_speed(v, force - f_grade, tpar[TP_DAVIS_A] + brake + curve,
                                    tpar[TP_DAVIS_B], tpar[TP_DAVIS_C], m_eff, h,
-                                   _locked_hold(mpar, mint, ms) if v == 0.0 else 0.0)
+                                   locked_hold(mpar, mint, ms) if v == 0.0 else 0.0)
         v_avg = 0.5 * (v + v_new)
         ts[TS_POSITION] += v_avg * h
         ts[TS_ACCEL] = (v_new - v) / h

@@ -43,18 +43,18 @@ MP_TH_GSA = 26  # stator-coolant thermal conductance, W/K
 MP_TH_GRA = 27  # rotor-coolant thermal conductance, W/K
 MP_COOLING = 28  # cooling effectiveness (1 normal, 0 lost), scales GSA and GRA
 MP_THERMAL_ON = 29  # 1 thermal model active, 0 temperatures held
-# derived once from the columns above (Plant.derive_drivetrain), for the hot loop:
-MP_J_EQ_INV = 30  # 1 / (J_wheelset + gear^2 J_rotor), 1/(kg m^2)
-MP_GEAR_INV = 31  # 1 / gear, 1
-MP_POL_KAPPA = 32  # pi/4 K / Q, creep-to-epsilon factor of Polach's model, 1
-MP_POL_SCALE = 33  # 2 Q / pi, N (both follow the axle load in use, MS_AXLE_LOAD)
-MP_K_SHAFT = 34  # torsional stiffness between the gear and the wheelset (the drive's
+# derived from the columns above and the axle load in use (Plant.derive_drivetrain, then
+# the kernel each frame):
+MP_POL_KAPPA = 30  # pi/4 K / Q, creep-to-epsilon factor of Polach's model, 1
+MP_POL_SCALE = 31  # 2 Q / pi, N (both follow the axle load in use, MS_AXLE_LOAD)
+# two-mass drivetrain, brake cylinder and load transfer (shaft.py):
+MP_K_SHAFT = 32  # torsional stiffness between the gear and the wheelset (the drive's
 # coupling), referred to the motor shaft, N m/rad (0: a rigid drivetrain, one inertia)
-MP_C_SHAFT = 35  # torsional damping of the coupling, referred to the motor shaft, N m s/rad
-MP_BRAKE_TAU = 36  # brake-cylinder time constant (first-order lag of the brake force), s
-MP_J_GEAR = 37  # gear wheel (and hollow shaft) inertia at the wheelset's speed, on the
+MP_C_SHAFT = 33  # torsional damping of the coupling, referred to the motor shaft, N m s/rad
+MP_BRAKE_TAU = 34  # brake-cylinder time constant (first-order lag of the brake force), s
+MP_J_GEAR = 35  # gear wheel (and hollow shaft) inertia at the wheelset's speed, on the
 # rotor's side of the torsional spring, kg m^2
-MP_LT_COEF0 = 38  # load transfer: axle load change per newton of creep force of the axles
+MP_LT_COEF0 = 36  # load transfer: axle load change per newton of creep force of the axles
 # named by MI_LT_AXLE0.. (Delta Q = sum_j coef_j F_j), 1; LT_TERMS columns from here
 LT_TERMS = 6  # load-transfer terms per axle (the motored axles of its car)
 MP_N = MP_LT_COEF0 + LT_TERMS

@@ -65,9 +65,6 @@ class Plant:
     def derive_drivetrain(self) -> None:
         """Recompute the derived drivetrain columns after a change of their sources."""
         mp = self.mpar
-        gear = mp[:, L.MP_GEAR]
-        mp[:, L.MP_J_EQ_INV] = 1.0 / (mp[:, L.MP_J_WHEELSET] + gear * gear * mp[:, L.MP_J_ROTOR])
-        mp[:, L.MP_GEAR_INV] = 1.0 / gear
         mp[:, L.MP_POL_KAPPA] = 0.25 * math.pi * mp[:, L.MP_KALKER] / mp[:, L.MP_AXLE_LOAD]
         mp[:, L.MP_POL_SCALE] = 2.0 * mp[:, L.MP_AXLE_LOAD] / math.pi
 

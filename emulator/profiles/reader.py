@@ -13,30 +13,32 @@ import itertools
 import math
 from pathlib import Path
 
-from emulator.plant.drivetrain import RAIL_CONDITIONS
 from emulator.plant.params import (
     ConverterParams,
-    DcLinkParams,
-    DrivetrainParams,
     EffortLimits,
-    InverterParams,
-    LineConverterParams,
     LineConverterUnit,
     MachineParams,
     MachineThermal,
-    SupplyParams,
-    TrainParams,
     TrainsetParams,
-    TransformerParams,
+)
+from emulator.profiles.sections import (
+    GRAVITY,
+    KELVIN,
+    parse_dc_link,
+    parse_drivetrain,
+    parse_four_quadrant,
+    parse_inverter,
+    parse_sensors,
+    parse_supply,
+    parse_train,
+    parse_transformer,
 )
 from emulator.profiles.table import ProfileError, Table, read_toml, read_toml_lines
-from emulator.rig.sensors import ChannelSpec, SensorParams
+from emulator.rig.sensors import SensorParams
 
-__all__ = ["ProfileError", "Table", "load_machine", "load_trainset", "read_toml",
-           "resolve_profile"]
+__all__ = ["GRAVITY", "KELVIN", "ProfileError", "Table", "load_machine", "load_trainset",
+           "read_toml", "resolve_profile"]
 
-GRAVITY = 9.80665  # standard gravity, m/s^2 (CGPM 1901)
-KELVIN = 273.15
 PROFILES_DIR = Path(__file__).resolve().parents[2] / "profiles"
 
 
@@ -137,170 +139,6 @@ def load_machine(path: Path | str) -> MachineParams:
     return machine
 
 
-def _inverter(t: Table) -> InverterParams:
-    kw = {}
-    if t.has("thermal"):
-        th = t.table("thermal")
-        g_jh = 1e3 / th.number("junction_to_heatsink_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
-        g_ha = 1e3 / th.number("heatsink_to_coolant_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
-        kw = dict(
-            junction_capacity_j_per_k=th.number("junction_time_constant_s", "s", 0.0, 1e5,
-                                                lo_open=True) * g_jh,
-            heatsink_capacity_j_per_k=th.number("heatsink_time_constant_s", "s", 0.0, 1e6,
-                                                lo_open=True) * g_ha,
-            junction_heatsink_w_per_k=g_jh,
-            heatsink_coolant_w_per_k=g_ha,
-            thermal=True,
-        )
-        th.finish()
-    inv = InverterParams(
-        switching_frequency_hz=t.number("switching_frequency_hz", "Hz", 0.0, 1e5, lo_open=True),
-        dead_time_s=t.number("dead_time_us", "us", 0.0, 100.0, scale=1e-6),
-        igbt_threshold_v=t.number("igbt_threshold_v", "V", 0.0, 10.0),
-        igbt_slope_ohm=t.number("igbt_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
-        diode_threshold_v=t.number("diode_threshold_v", "V", 0.0, 10.0),
-        diode_slope_ohm=t.number("diode_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
-        switching_energy_j=t.number("switching_energy_mj", "mJ", 0.0, 1e5, scale=1e-3),
-        switching_energy_ref_v=t.number("switching_energy_reference_v", "V", 0.0, 1e5,
-                                        lo_open=True),
-        switching_energy_ref_a=t.number("switching_energy_reference_a", "A", 0.0, 1e5,
-                                        lo_open=True),
-        sign_band_a=t.number("sign_band_a", "A", 0.0, 1e3, lo_open=True),
-        **kw,
-    )
-    if inv.dead_time_s * inv.switching_frequency_hz >= 0.25:
-        raise t.error("dead_time_us", "dead time must be well below a switching period")
-    t.finish()
-    return inv
-
-
-def _channel(t: Table, unit: str, lo: float, hi: float) -> ChannelSpec:
-    """A sensor channel table: gain, offset, noise, filter, ADC range and bits."""
-    spec = ChannelSpec(
-        gain=t.number("gain", "1", 0.0, 10.0, lo_open=True),
-        offset=t.number(f"offset_{unit}", unit, lo, hi),
-        noise_rms=t.number(f"noise_rms_{unit}", unit, 0.0, hi),
-        filter_s=t.number("filter_us", "us", 0.0, 1e6, scale=1e-6),
-        range_lo=t.number(f"range_min_{unit}", unit, lo, hi),
-        range_hi=t.number(f"range_max_{unit}", unit, lo, hi),
-        adc_bits=t.integer("adc_bits", 0, 24),
-    )
-    if spec.range_hi <= spec.range_lo:
-        raise t.error(f"range_max_{unit}", "must exceed range_min")
-    t.finish()
-    return spec
-
-
-def _sensors(t: Table) -> SensorParams:
-    enc = t.table("encoder")
-    lines = enc.integer("lines_per_rev", 1, 100000)
-    enc.finish()
-    params = SensorParams(
-        current=_channel(t.table("current"), "a", -1e5, 1e5),
-        voltage=_channel(t.table("voltage"), "v", -1e5, 1e5),
-        speed=_channel(t.table("speed"), "rad_s", -1e4, 1e4),
-        temperature=_channel(t.table("temperature"), "degc", -300.0, 1000.0),
-        line_voltage=_channel(t.table("line_voltage"), "v", -1e5, 1e5),
-        line_current=_channel(t.table("line_current"), "a", -1e5, 1e5),
-        encoder_lines=lines,
-        shaft_torque=(_channel(t.table("shaft_torque"), "nm", -1e5, 1e5)
-                      if t.has("shaft_torque") else None),
-    )
-    t.finish()
-    return params
-
-
-def _supply(t: Table) -> SupplyParams:
-    harmonics = []
-    if t.has("harmonic"):
-        for ht in t.tables("harmonic"):
-            harmonics.append((ht.integer("order", 2, 99),
-                              ht.number("amplitude_pct", "% of the fundamental", 0.0, 30.0,
-                                        scale=0.01),
-                              ht.number("phase_deg", "deg", -360.0, 360.0,
-                                        scale=math.pi / 180)))
-            ht.finish()
-    supply = SupplyParams(
-        nominal_voltage_v=t.number("nominal_voltage_kv", "kV (rms)", 0.0, 50.0, lo_open=True,
-                                   scale=1e3),
-        frequency_hz=t.number("frequency_hz", "Hz", 0.0, 100.0, lo_open=True),
-        source_resistance_ohm=t.number("source_resistance_ohm", "ohm", 0.0, 1e3),
-        source_inductance_h=t.number("source_inductance_mh", "mH", 0.0, 1e4, lo_open=True,
-                                     scale=1e-3),
-        reverse_power_droop_v_per_w=t.number("reverse_power_droop_v_per_kw", "V/kW", 0.0,
-                                             1e4, scale=1e-3),
-        harmonics=tuple(harmonics),
-    )
-    t.finish()
-    return supply
-
-
-def _transformer(t: Table) -> TransformerParams:
-    tr = TransformerParams(
-        primary_voltage_v=t.number("primary_voltage_kv", "kV", 0.0, 50.0, lo_open=True,
-                                   scale=1e3),
-        secondary_voltage_v=t.number("secondary_voltage_v", "V", 0.0, 1e4, lo_open=True),
-        leakage_h=t.number("secondary_leakage_inductance_mh", "mH", 0.0, 100.0, lo_open=True,
-                           scale=1e-3),
-        resistance_ohm=t.number("secondary_resistance_mohm", "mohm", 0.0, 1e4, scale=1e-3),
-        breaker_delay_s=t.number("main_breaker_delay_ms", "ms", 0.0, 5000.0, scale=1e-3),
-    )
-    t.finish()
-    return tr
-
-
-def _four_quadrant(t: Table) -> LineConverterParams:
-    lc = LineConverterParams(
-        switching_frequency_hz=t.number("switching_frequency_hz", "Hz", 0.0, 1e5, lo_open=True),
-        device_threshold_v=t.number("device_threshold_v", "V", 0.0, 10.0),
-        device_slope_ohm=t.number("device_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
-        switching_energy_j=t.number("switching_energy_mj", "mJ", 0.0, 1e5, scale=1e-3),
-        switching_energy_ref_v=t.number("switching_energy_reference_v", "V", 0.0, 1e5,
-                                        lo_open=True),
-        switching_energy_ref_a=t.number("switching_energy_reference_a", "A", 0.0, 1e5,
-                                        lo_open=True),
-        precharge_ohm=t.number("precharge_resistance_ohm", "ohm", 0.0, 1e4, lo_open=True),
-        precharge_delay_s=t.number("precharge_contactor_delay_ms", "ms", 0.0, 5000.0,
-                                   scale=1e-3),
-        line_contactor_delay_s=t.number("line_contactor_delay_ms", "ms", 0.0, 5000.0,
-                                        scale=1e-3),
-    )
-    t.finish()
-    return lc
-
-
-def _dc_link(t: Table) -> DcLinkParams:
-    kw = {}
-    filter_keys = ("filter_inductance_mh", "filter_capacitance_mf", "filter_resistance_mohm")
-    if any(t.has(k) for k in filter_keys):
-        kw = dict(
-            filter_inductance_h=t.number("filter_inductance_mh", "mH", 0.0, 1e3, lo_open=True,
-                                         scale=1e-3),
-            filter_capacitance_f=t.number("filter_capacitance_mf", "mF", 0.0, 1e3,
-                                          lo_open=True, scale=1e-3),
-            filter_resistance_ohm=t.number("filter_resistance_mohm", "mohm", 0.0, 1e4,
-                                           scale=1e-3),
-        )
-    g = 1e3 / t.number("resistor_to_ambient_k_per_kw", "K/kW", 0.0, 1e4, lo_open=True)
-    link = DcLinkParams(
-        name=t.string("name"),
-        voltage_v=t.number("nominal_voltage_v", "V", 0.0, 1e4, lo_open=True),
-        capacitance_f=t.number("capacitance_mf", "mF", 0.0, 1e3, lo_open=True, scale=1e-3),
-        discharge_ohm=t.number("discharge_resistance_kohm", "kohm", 0.0, 1e4, lo_open=True,
-                               scale=1e3),
-        overvoltage_v=t.number("overvoltage_v", "V", 0.0, 1e4, lo_open=True),
-        chopper_ohm=t.number("chopper_resistance_ohm", "ohm", 0.0, 1e3, lo_open=True),
-        resistor_capacity_j_per_k=t.number("resistor_time_constant_s", "s", 0.0, 1e5,
-                                           lo_open=True) * g,
-        resistor_conductance_w_per_k=g,
-        **kw,
-    )
-    if link.overvoltage_v <= link.voltage_v:
-        raise t.error("overvoltage_v", "must lie above nominal_voltage_v")
-    t.finish()
-    return link
-
-
 def load_trainset(path: Path | str) -> TrainsetParams:
     """Load a trainset profile and the machine profile it names."""
     path = resolve_profile(path)
@@ -321,77 +159,15 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     notes = {"description": ts.string("description")} if ts.has("description") else {}
     ts.finish()
 
-    tr = root.table("train")
-    # the weight is spread evenly over the axles (a multiple unit's cars weigh much the
-    # same): each motored axle carries m g / n at rest; traction and braking move load
-    # between them (build_load_transfer)
-    axle_count = tr.number("axle_count", "1", 2.0, 400.0)
-    if axle_count != int(axle_count):
-        raise tr.error("axle_count", f"a whole number of axles, not {axle_count:g}")
-    train = TrainParams(
-        mass_kg=tr.number("mass_kg", "kg", 0.0, 5e6, lo_open=True),
-        rotating_mass_allowance=tr.number("rotating_mass_allowance", "1", 0.0, 0.5),
-        davis_a_n=tr.number("running_resistance_a_n", "N", 0.0, 1e6),
-        davis_b_n_per_mps=tr.number("running_resistance_b_n_per_mps", "N/(m/s)", 0.0, 1e5),
-        davis_c_n_per_mps2=tr.number("running_resistance_c_n_per_mps2", "N/(m/s)^2", 0.0, 1e4),
-        max_speed_mps=tr.number("max_speed_kmh", "km/h", 0.0, 600.0, lo_open=True,
-                                scale=1 / 3.6),
-        ambient_temperature_k=tr.number("ambient_temperature_degc", "degC", -60.0, 80.0,
-                                        offset=KELVIN),
-        axle_count=int(axle_count),
-        brake_cylinder_time_constant_s=(
-            tr.number("brake_cylinder_time_constant_s", "s", 0.0, 10.0)
-            if tr.has("brake_cylinder_time_constant_s") else 0.0),
-    )
-    tr.finish()
+    train = parse_train(root.table("train"))
 
-    supply = _supply(root.table("supply"))
+    supply = parse_supply(root.table("supply"))
 
-    dt = root.table("drivetrain")
-    if dt.has("axle_load_kg"):
-        raise dt.error("axle_load_kg", "the axle load follows the train's mass now: give "
-                       "[train] axle_count (the load is mass_kg / axle_count) and remove it")
-    gear = dt.number("gear_ratio", "1", 0.0, 50.0, lo_open=True)
-    drivetrain = DrivetrainParams(
-        gear_ratio=gear,
-        gear_efficiency=dt.number("gear_efficiency", "1", 0.5, 1.0),
-        wheelset_inertia_kgm2=dt.number("wheelset_inertia_kgm2", "kg m^2", 0.0, 1e4,
-                                        lo_open=True),
-        axle_load_n=train.mass_kg * GRAVITY / axle_count,
-        kalker_coefficient_n=dt.number("kalker_coefficient_n", "N", 0.0, 1e9, lo_open=True),
-        rail_condition=dt.string("rail_condition", tuple(RAIL_CONDITIONS)),
-        creep_reference_speed_mps=dt.number("creep_reference_speed_mps", "m/s", 0.0, 5.0,
-                                            lo_open=True),
-        # a two-mass drivetrain when the shaft's stiffness is given, else a rigid one
-        shaft_stiffness_nm_per_rad=(
-            dt.number("shaft_stiffness_knm_per_rad", "kN m/rad", 0.0, 1e5, lo_open=True,
-                      scale=1e3) if dt.has("shaft_stiffness_knm_per_rad") else 0.0),
-        gear_inertia_kgm2=(dt.number("gear_inertia_kgm2", "kg m^2", 0.0, 1e4)
-                           if dt.has("gear_inertia_kgm2") else 0.0),
-        shaft_damping_nms_per_rad=(
-            dt.number("shaft_damping_nms_per_rad", "N m s/rad", 0.0, 1e6)
-            if dt.has("shaft_damping_nms_per_rad") else 0.0),
-        bogie_wheelbase_m=(dt.number("bogie_wheelbase_m", "m", 0.5, 10.0)
-                           if dt.has("bogie_wheelbase_m") else 0.0),
-        traction_link_height_m=(dt.number("traction_link_height_m", "m", 0.0, 3.0)
-                                if dt.has("traction_link_height_m") else 0.0),
-        coupler_height_m=(dt.number("coupler_height_m", "m", 0.0, 3.0)
-                          if dt.has("coupler_height_m") else 0.0),
-    )
-    if dt.has("shaft_damping_nms_per_rad") and not dt.has("shaft_stiffness_knm_per_rad"):
-        raise dt.error("shaft_damping_nms_per_rad", "a damping needs its spring: give "
-                       "shaft_stiffness_knm_per_rad too (or neither, for a rigid drivetrain)")
-    transfer = ("bogie_wheelbase_m", "traction_link_height_m", "coupler_height_m")
-    given = [k for k in transfer if dt.has(k)]
-    if given and len(given) != len(transfer):
-        missing = [k for k in transfer if k not in given]
-        raise dt.error(given[0], f"load transfer needs {', '.join(transfer)}; missing "
-                       f"{', '.join(missing)}")
-    dt.finish()
+    drivetrain = parse_drivetrain(root.table("drivetrain"), train)
 
-    inverter = _inverter(root.table("inverter"))
+    inverter = parse_inverter(root.table("inverter"))
 
-    links = [_dc_link(lt) for lt in root.tables("dc_link")]
+    links = [parse_dc_link(lt) for lt in root.tables("dc_link")]
     link_names = [lk.name for lk in links]
     if len(set(link_names)) != len(link_names):
         raise root.error("dc_link", "names must be unique")
@@ -416,11 +192,11 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     conv_names = [c.name for c in converters]
     if len(set(conv_names)) != len(conv_names):
         raise root.error("converter", "names must be unique")
-    if sum(len(c.wheel_diameters_m) for c in converters) > axle_count:
+    if sum(len(c.wheel_diameters_m) for c in converters) > train.axle_count:
         raise root.error("converter", f"more motored axles than the train's axle_count "
-                         f"({axle_count:g})")
-    transformer = _transformer(root.table("transformer"))
-    line_converter = _four_quadrant(root.table("four_quadrant"))
+                         f"({train.axle_count})")
+    transformer = parse_transformer(root.table("transformer"))
+    line_converter = parse_four_quadrant(root.table("four_quadrant"))
     units = []
     for ut in root.tables("line_converter"):
         units.append(LineConverterUnit(ut.string("name"),
@@ -432,7 +208,7 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     for i, lk in enumerate(links):
         if i not in fed:
             raise root.error("dc_link", f"link {lk.name!r} has no line converter feeding it")
-    sensors = _sensors(root.table("sensors")) if root.has("sensors") else SensorParams()
+    sensors = parse_sensors(root.table("sensors")) if root.has("sensors") else SensorParams()
     motor_control = "scalar"
     effort_limits = None
     if root.has("controller"):  # the reference controller's settings

@@ -19,22 +19,31 @@ ADHESION_FACTOR = 0.78  # wet rail (mu0 0.154) further reduced (a leaf film) to 
 # so the drive exceeds adhesion
 
 
-async def _wet_start(enabled: bool):
+async def _full_effort(rail: str, factor: float, enabled: bool, frames: int, every: int):
+    """The reference at full effort from 6 m/s on a rail condition scaled by factor, with
+    its adhesion control on or off: the plant, then shaft torques, creep forces and creep
+    velocities of every motor, sampled each `every` frames for `frames` frames."""
     rig, tcu = await rig_with_controller()
+    tcu.adhesion.enabled = enabled
     plant = rig.plant
     for m in range(plant.n_motors):
-        plant.set_rail_condition(m, "wet")
-        plant.set_adhesion_factor(m, ADHESION_FACTOR)
+        plant.set_rail_condition(m, rail)
+        plant.set_adhesion_factor(m, factor)
     plant.set_speed(6.0)
-    tcu.adhesion.enabled = enabled
     await rig.run(frames=1500)
     rig.driver.mode, rig.driver.effort_demand = MODES_INV["accelerate"], 1.0
-    forces, creeps = [], []
-    for _ in range(120):
-        await rig.run(frames=rig.frame + 50)
+    shaft, forces, creeps = [], [], []
+    for _ in range(frames // every):
+        await rig.run(frames=rig.frame + every)
+        shaft.append(plant.read("motor.shaft_torque_nm").copy())
         forces.append(plant.read("motor.creep_force_n").copy())
         creeps.append(plant.read("motor.creep_velocity_mps").copy())
-    return plant, np.array(forces[-60:]), np.array(creeps[-60:])
+    return plant, np.array(shaft), np.array(forces), np.array(creeps)
+
+
+async def _wet_start(enabled: bool):
+    plant, _, forces, creeps = await _full_effort("wet", ADHESION_FACTOR, enabled, 6000, 50)
+    return plant, forces[-60:], creeps[-60:]
 
 
 MODES_INV = {name: code for code, name in MODES.items()}
@@ -76,21 +85,8 @@ def _ring(x: np.ndarray) -> float:
 
 
 async def _greasy_start(enabled: bool):
-    rig, tcu = await rig_with_controller()
-    tcu.adhesion.enabled = enabled
-    plant = rig.plant
-    for m in range(plant.n_motors):
-        plant.set_rail_condition(m, "dry")
-        plant.set_adhesion_factor(m, GREASY)
-    plant.set_speed(6.0)
-    await rig.run(frames=1500)
-    rig.driver.mode, rig.driver.effort_demand = MODES_INV["accelerate"], 1.0
-    shaft, creep = [], []
-    for _ in range(4000):
-        await rig.run(frames=rig.frame + 1)
-        shaft.append(plant.read("motor.shaft_torque_nm").copy())
-        creep.append(plant.read("motor.creep_velocity_mps").copy())
-    return np.array(shaft), np.array(creep)
+    _, shaft, _, creep = await _full_effort("dry", GREASY, enabled, 4000, 1)
+    return shaft, creep
 
 
 def test_at_the_limit_on_a_greasy_rail_no_stick_slip_builds_up(run) -> None:
