@@ -38,13 +38,14 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
     m = 0
     for k, conv in enumerate(params.converters):
         plant.iint[k] = (conv.dc_link, m, len(conv.wheel_diameters_m), L.SOURCE_INVERTER)
-        for diameter in conv.wheel_diameters_m:
+        for j, diameter in enumerate(conv.wheel_diameters_m):
+            f_rs, f_rr, f_lm = conv.machine_factors[j] if conv.machine_factors else (1.0,) * 3
             row = plant.mpar[m]
-            row[L.MP_RS20] = mp.stator_resistance_ohm
-            row[L.MP_RR20] = mp.rotor_resistance_ohm
+            row[L.MP_RS20] = mp.stator_resistance_ohm * f_rs
+            row[L.MP_RR20] = mp.rotor_resistance_ohm * f_rr
             row[L.MP_LLS] = mp.stator_leakage_h
             row[L.MP_LLR] = mp.rotor_leakage_h
-            row[L.MP_LM] = mp.magnetising_h
+            row[L.MP_LM] = mp.magnetising_h * f_lm
             row[L.MP_POLE_PAIRS] = mp.pole_pairs
             row[L.MP_J_ROTOR] = mp.rotor_inertia_kgm2
             row[L.MP_ALPHA_S] = mp.stator_temp_coeff_per_k
@@ -79,13 +80,13 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
             else:
                 plant.ms[m, L.MS_T_STATOR] = mp.reference_temperature_k
                 plant.ms[m, L.MS_T_ROTOR] = mp.reference_temperature_k
-            plant.ms[m, L.MS_LM] = mp.magnetising_h
+            plant.ms[m, L.MS_LM] = mp.magnetising_h * f_lm
             plant.mint[m, :L.MI_LT_AXLE0] = (k, L.SHAFT_DRIVETRAIN,
                                              len(mp.saturation_current_a))
             plant.mint[m, L.MI_LT_AXLE0:] = -1
             if mp.saturation_current_a:
                 plant.sat_i[m] = mp.saturation_current_a
-                plant.sat_psi[m] = mp.saturation_flux_vs
+                plant.sat_psi[m] = np.asarray(mp.saturation_flux_vs) * f_lm
             m += 1
         row = plant.ipar[k]
         row[L.IP_FSW] = ip.switching_frequency_hz

@@ -146,6 +146,9 @@ class ConverterParams:
     # each motored axle's distance behind the train's front end, m (empty: every axle at
     # the front, no load transfer between axles)
     axle_positions_m: tuple[float, ...] = ()
+    # each motor's machine against the machine profile: factors on the stator resistance,
+    # the rotor resistance and the magnetising inductance (empty: all 1, identical motors)
+    machine_factors: tuple[tuple[float, float, float], ...] = ()
 
 
 @dataclass(frozen=True)

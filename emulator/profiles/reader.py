@@ -28,6 +28,8 @@ from emulator.profiles.sections import (
     parse_drivetrain,
     parse_four_quadrant,
     parse_inverter,
+    parse_machine_factors,
+    parse_machine_spread,
     parse_sensors,
     parse_supply,
     parse_train,
@@ -172,6 +174,8 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     if len(set(link_names)) != len(link_names):
         raise root.error("dc_link", "names must be unique")
 
+    spread = parse_machine_spread(root.table("machine_spread")) if root.has(
+        "machine_spread") else None
     converters = []
     for ct in root.tables("converter"):
         cname = ct.string("name")
@@ -187,8 +191,10 @@ def load_trainset(path: Path | str) -> TrainsetParams:
             raise ct.error("wheel_diameters_m", "load transfer ([drivetrain] "
                            "bogie_wheelbase_m) needs axle_positions_m, each axle's distance "
                            "behind the train's front end")
+        factors = parse_machine_factors(ct, len(wheels), spread)
         ct.finish()
-        converters.append(ConverterParams(cname, link_names.index(link), wheels, positions))
+        converters.append(ConverterParams(cname, link_names.index(link), wheels, positions,
+                                          factors))
     conv_names = [c.name for c in converters]
     if len(set(conv_names)) != len(conv_names):
         raise root.error("converter", "names must be unique")

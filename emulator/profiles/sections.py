@@ -5,6 +5,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from emulator.plant.drivetrain import RAIL_CONDITIONS
 from emulator.plant.params import (
     DcLinkParams,
@@ -256,3 +258,42 @@ def parse_dc_link(t: Table) -> DcLinkParams:
         raise t.error("overvoltage_v", "must lie above nominal_voltage_v")
     t.finish()
     return link
+
+
+#: factor keys of [[converter]] and their tolerance keys in [machine_spread]
+MACHINE_FACTOR_KEYS = (("stator_resistance_factors", "stator_resistance_pct"),
+                       ("rotor_resistance_factors", "rotor_resistance_pct"),
+                       ("magnetising_inductance_factors", "magnetising_inductance_pct"))
+
+
+def parse_machine_spread(t: Table):
+    """[machine_spread]: a seeded generator and the tolerances (+-%, uniform) of the
+    motors' stator and rotor resistances and magnetising inductance about the machine
+    profile's values. IEC 60034-1 allows +-20 % on the slip of a machine of 1 kW or more
+    (from memory), and slip follows the rotor resistance: a traction motor's tolerance is
+    narrower, a few per cent."""
+    seed = t.integer("seed", 0, 2**31 - 1)
+    tol = [t.number(key, "%", 0.0, 20.0, scale=0.01) if t.has(key) else 0.0
+           for _, key in MACHINE_FACTOR_KEYS]
+    t.finish()
+    return np.random.default_rng(seed), tol
+
+
+def parse_machine_factors(ct: Table, n: int, spread) -> tuple[tuple[float, float, float], ...]:
+    """Each motor's factors on R_s, R_r and L_m: explicit lists in [[converter]] where given,
+    else drawn from [machine_spread] (in the profile's order of converters), else 1."""
+    columns = []
+    for key, _ in MACHINE_FACTOR_KEYS:
+        if ct.has(key):
+            values = ct.numbers(key, "1", 0.5, 2.0)
+            if len(values) != n:
+                raise ct.error(key, f"one factor per motor ({n}), got {len(values)}")
+            columns.append(values)
+        else:
+            columns.append(None)
+    if spread is None and all(c is None for c in columns):
+        return ()
+    drawn = ([tuple(1.0 + spread[0].uniform(-tol, tol, n)) for tol in spread[1]]
+             if spread is not None else [(1.0,) * n] * 3)
+    cols = [c if c is not None else d for c, d in zip(columns, drawn, strict=True)]
+    return tuple(zip(*cols, strict=True))
