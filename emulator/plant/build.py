@@ -205,6 +205,8 @@ def build_line_side(plant, params: TrainsetParams, ideal: bool) -> None:
     plant.i_link = np.zeros((n_link, 2))
     plant._pq_ring = np.zeros((1, L.SS_PQ_IS - L.SS_PQ_T + 1))
     plant._pq_sum = np.zeros(L.SS_PQ_IS - L.SS_PQ_T + 1)
+    plant.ss[L.SS_ARC] = -1.0  # no arc burning
+    plant.ls2[:, L.LS2_ARC] = -1.0
     ambient = params.train.ambient_temperature_k
     su = params.supply
     for i, (order, fraction, phase) in enumerate(su.harmonics[:L.N_HARMONICS]):
@@ -237,6 +239,7 @@ def build_line_side(plant, params: TrainsetParams, ideal: bool) -> None:
     plant.sp[L.SP_LIVE] = 1.0
     plant.sp[L.SP_DROOP] = su.reverse_power_droop_v_per_w
     plant.sp[L.SP_BREAKER_DELAY] = tr.breaker_delay_s
+    plant.sp[L.SP_MAX_ARC] = tr.max_arcing_s or 0.5 / su.frequency_hz
     plant.ss[L.SS_BREAKER_TIMER] = tr.breaker_delay_s
     for k, unit in enumerate(units):
         row = plant.lp[k]

@@ -40,6 +40,7 @@ class EnergyAccount:
     filter_resistance: float = 0.0
     torsion_damping: float = 0.0  # lost in the drivetrains' torsional damping
     torsion_stored: float = 0.0  # in the drivetrains' torsional springs
+    switch_arcs: float = 0.0  # left in the inductances when an arc was cut (0 at a zero)
 
 
 def energy_account(self) -> EnergyAccount:
@@ -69,6 +70,7 @@ def energy_account(self) -> EnergyAccount:
         line = dict(
             source=float(self.ss[L.SS_E_SOURCE]),
             source_resistance=float(self.ss[L.SS_E_SOURCE_R]),
+            switch_arcs=float(self.ss[L.SS_E_ARC]),
             winding_resistance=float(ls2[:, L.LS2_E_R].sum()),
             line_converter_loss=float(ls2[:, L.LS2_E_LOSS].sum()),
             line_converter_dc=float(ls2[:, L.LS2_E_DC].sum()),

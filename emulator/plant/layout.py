@@ -262,7 +262,8 @@ SP_DROOP = 7  # non-receptive line: EMF rise per watt of reverse power, V/W
 SP_RATIO = 8  # transformer ratio primary / secondary voltage, 1
 SP_BREAKER_DELAY = 9  # main breaker closing delay, s
 SP_ACTIVE = 10  # 1 the line side is modelled, 0 DC links are ideal sources
-SP_N = 11
+SP_MAX_ARC = 11  # longest arc of the breaker and contactors before they force the cut, s
+SP_N = 12
 N_HARMONICS = 4  # harmonic table rows: order, amplitude / fundamental, phase (rad)
 
 SS_IP = 0  # primary (pantograph) current, A
@@ -282,7 +283,9 @@ SS_PQ_UC = 13  # int u_p cos(theta) dt, theta the fundamental's phase
 SS_PQ_US = 14  # int u_p sin(theta) dt
 SS_PQ_IC = 15  # int i_p cos(theta) dt
 SS_PQ_IS = 16  # int i_p sin(theta) dt
-SS_N = 17
+SS_ARC = 17  # time the breaker has been arcing since its contacts parted, s (-1: not)
+SS_E_ARC = 18  # energy a forced cut left in the arcs (stored in the inductances), J
+SS_N = 19
 
 # --- four-quadrant line converters: parameters [n_lc, LP_N] -------------------------------
 LP_L = 0  # secondary leakage inductance referred to the secondary, H
@@ -315,7 +318,8 @@ LS2_E_AC = 7  # energy into the converter's AC terminals, J
 LS2_E_DC = 8  # energy delivered to the link, J
 LS2_E_LOSS = 9  # conduction + switching loss, J
 LS2_E_R = 10  # loss in the winding and precharge resistances, J
-LS2_N = 11
+LS2_ARC = 11  # time the opening contactor of winding k has been arcing, s (-1: not)
+LS2_N = 12
 
 # --- DC links: parameters [n_link, KP_N] ----------------------------------------------
 KP_C = 0  # link capacitance, F

@@ -56,6 +56,7 @@ from .layout import (
     LP_R_PRE,
     LP_RD,
     LP_V0,
+    LS2_ARC,
     LS2_E_AC,
     LS2_E_DC,
     LS2_E_LOSS,
@@ -89,13 +90,16 @@ from .layout import (
     SP_FREQUENCY,
     SP_L,
     SP_LIVE,
+    SP_MAX_ARC,
     SP_PHASE_REF,
     SP_R,
     SP_RATIO,
     SP_T_REF,
+    SS_ARC,
     SS_BREAKER,
     SS_BREAKER_CMD,
     SS_BREAKER_TIMER,
+    SS_E_ARC,
     SS_E_SOURCE,
     SS_E_SOURCE_R,
     SS_EMF,
@@ -135,17 +139,21 @@ def supply_emf(sp: np.ndarray, harmonics: np.ndarray, ss: np.ndarray, t: float) 
 
 @compiled
 def _contactors(lp, lu, ls2, sp, ss, h):
-    """Switchgear: each contact follows its command after its delay."""
+    """Switchgear: each contact follows its command after its delay. Opening under
+    current, the contacts part and the arc carries the current on to its next zero
+    (line_substep clears it there), never longer than SP_MAX_ARC; the arc's voltage is
+    left out. Closing makes the circuit at the catenary's phase as it is."""
     cmd = 1.0 if ss[SS_BREAKER_CMD] > 0.5 else 0.0
     if cmd != ss[SS_BREAKER]:
         if cmd == 0.0:
-            ss[SS_BREAKER] = 0.0  # opening is taken as immediate at control-period level
+            ss[SS_ARC] = 0.0 if ss[SS_ARC] < 0.0 else ss[SS_ARC] + h
         else:
             ss[SS_BREAKER_TIMER] -= h
             if ss[SS_BREAKER_TIMER] <= 0.0:
                 ss[SS_BREAKER] = 1.0
     else:
         ss[SS_BREAKER_TIMER] = sp[SP_BREAKER_DELAY]
+        ss[SS_ARC] = -1.0  # closed again before the arc cleared
     for k in range(lp.shape[0]):
         for cmd_col, state_col, timer_col, delay_col in ((LU_PRE_CMD, LS2_PRE, LS2_PRE_TIMER,
                                                           LP_PRE_DELAY),
@@ -155,9 +163,22 @@ def _contactors(lp, lu, ls2, sp, ss, h):
             if want != ls2[k, state_col]:
                 ls2[k, timer_col] -= h
                 if ls2[k, timer_col] <= 0.0:
-                    ls2[k, state_col] = want
+                    other = LS2_LINE if state_col == LS2_PRE else LS2_PRE
+                    other_cmd = LU_LINE_CMD if state_col == LS2_PRE else LU_PRE_CMD
+                    breaks_path = ls2[k, other] < 0.5 or lu[k, other_cmd] < 0.5
+                    if want == 1.0 or not breaks_path or ls2[k, LS2_I] == 0.0:
+                        ls2[k, state_col] = want
+                    else:  # interrupting the winding's current: an arc to its zero
+                        ls2[k, LS2_ARC] = 0.0 if ls2[k, LS2_ARC] < 0.0 else ls2[k, LS2_ARC] + h
             else:
                 ls2[k, timer_col] = lp[k, delay_col]
+
+
+@compiled_inline
+def _cleared(arc, i_old, i_new, max_arc) -> bool:
+    """Whether an arc clears in this step: its current has reached zero (changed sign or
+    stopped), or it has burned as long as the switch allows."""
+    return arc >= 0.0 and (i_old * i_new <= 0.0 or arc >= max_arc)
 
 
 @compiled_inline
@@ -217,6 +238,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         s_1 += 1.0 / a_k
     corr = lc_src * s_b / (1.0 + lc_src * s_1)
     sum_new = 0.0
+    sum_step = 0.0  # the windings' currents at the end of the step before any arc cleared
     for k in range(n_lc):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
@@ -230,8 +252,21 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         i_new = (b_k - corr) / a_k
         if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
             i_new = 0.0  # a diode bridge does not reverse its current within a step
-        ls2[k, LS2_I] = i_new
-        sum_new += i_new
+        if _cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC]):
+            # the arc clears at the current's zero (or is cut): both contacts that are
+            # commanded open are open; what the leakage still held goes into the arc
+            ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * i_new * i_new
+            if lu[k, LU_LINE_CMD] < 0.5:
+                ls2[k, LS2_LINE] = 0.0
+            if lu[k, LU_PRE_CMD] < 0.5:
+                ls2[k, LS2_PRE] = 0.0
+            ls2[k, LS2_ARC] = -1.0
+            new_i_after = 0.0
+        else:
+            new_i_after = i_new
+        ls2[k, LS2_I] = new_i_after
+        sum_new += new_i_after
+        sum_step += i_new
         i_avg = 0.5 * (i_old + i_new)
         u = ls2[k, LS2_U]
         # DC side: the share of the converter voltage that comes from the link
@@ -253,10 +288,13 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         ls2[k, LS2_E_DC] += udc * i_dc * h
         ls2[k, LS2_E_LOSS] += (u - s * udc) * i_avg * h + p_sw * h
         ls2[k, LS2_E_R] += r * i_avg * i_avg * h  # consistent with the trapezoidal step
-    # primary side
+    # primary side; a contactor's arc that cleared took the source inductance's share
+    ss[SS_E_ARC] += 0.5 * sp[SP_L] * (sum_step * sum_step - sum_new * sum_new) / (n * n)
     ip_old = ss[SS_IP]
     ip_new = sum_new / n
     ss[SS_IP] = ip_new
+    if _cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC]):
+        _open_breaker(sp, ss, lp, ls2, n)
     ip_avg = 0.5 * (ip_old + ip_new)
     di_dt = (ip_new - ip_old) / h
     up = e - sp[SP_R] * ip_avg - sp[SP_L] * di_dt  # mean over the step
@@ -278,6 +316,19 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     ss[SS_PQ_IC] += ip_avg * c * h
     ss[SS_PQ_IS] += ip_avg * sn * h
     _links_substep(h, kp, ku, lst, i_link)
+
+
+@compiled_inline
+def _open_breaker(sp, ss, lp, ls2, n):
+    """The breaker's arc clears: the primary and every winding stop carrying current; what
+    the source and leakage inductances still held goes into the arc (0 at a current zero)."""
+    ss[SS_E_ARC] += 0.5 * sp[SP_L] * ss[SS_IP] * ss[SS_IP]
+    for k in range(lp.shape[0]):
+        ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * ls2[k, LS2_I] * ls2[k, LS2_I]
+        ls2[k, LS2_I] = 0.0
+    ss[SS_IP] = 0.0
+    ss[SS_BREAKER] = 0.0
+    ss[SS_ARC] = -1.0
 
 
 @compiled

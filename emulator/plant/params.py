@@ -111,6 +111,9 @@ class TransformerParams:
     leakage_h: float  # per secondary, referred to the secondary
     resistance_ohm: float
     breaker_delay_s: float
+    # longest arc of the breaker and line contactors when opening under current (0: half a
+    # period of the line frequency, the longest wait for a current zero)
+    max_arcing_s: float = 0.0
 
 
 @dataclass(frozen=True)

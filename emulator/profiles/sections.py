@@ -203,6 +203,8 @@ def parse_transformer(t: Table) -> TransformerParams:
                            scale=1e-3),
         resistance_ohm=t.number("secondary_resistance_mohm", "mohm", 0.0, 1e4, scale=1e-3),
         breaker_delay_s=t.number("main_breaker_delay_ms", "ms", 0.0, 5000.0, scale=1e-3),
+        max_arcing_s=(t.number("max_arcing_ms", "ms", 0.1, 200.0, scale=1e-3)
+                      if t.has("max_arcing_ms") else 0.0),
     )
     t.finish()
     return tr

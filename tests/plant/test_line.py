@@ -191,7 +191,7 @@ def test_energy_from_catenary_to_motors_balances() -> None:
 
     source = d("source")
     line_out = (d("source_resistance") + d("winding_resistance") + d("line_converter_loss")
-                + d("line_inductive_stored") + d("line_converter_dc"))
+                + d("line_inductive_stored") + d("line_converter_dc") + d("switch_arcs"))
     link_out = (d("link_capacitive_stored") + d("filter_stored") + d("chopper") + d("discharge")
                 + d("filter_resistance") + d("dc_link_in"))
     motors_out = (d("semiconductor_conduction") + d("semiconductor_switching") + d("stator_copper")
