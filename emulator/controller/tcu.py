@@ -39,6 +39,8 @@ FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
 # multiple units: from memory, REFERENCES.md)
+HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
+HARDWARE_RESET_S = 0.2  # gates off after a hardware trip before the drivers are reset
 MAGNETISED_ABOVE_MPS = 1.0  # in a driving mode, the motors stay fluxed above this speed
 FLUX_HOLD_S = 3.0  # ... and as long after the last demand (coasting between brake steps)
 SENSOR_JUMP = 20.0  # rad/s in one period: a speed reading no motor can follow
@@ -130,12 +132,15 @@ class ReferenceController:
                          for inv in cfg.inverter_names]
         self.ox_duty = [[ci(f"{inv}.duty_{x}") for x in "abc"] for inv in cfg.inverter_names]
         self.ox_gates = [ci(f"{inv}.gates_enabled") for inv in cfg.inverter_names]
+        self.ix_gate_fault = [mi(f"{inv}.gate_fault") for inv in cfg.inverter_names]
+        self.ox_reset = [ci(f"{inv}.fault_reset") for inv in cfg.inverter_names]
         self.ox_achieved, self.ox_available = ci("tcu.achieved_effort_kn"), ci(
             "tcu.available_effort_kn")
         self.ox_status, self.ox_event = ci("tcu.status"), ci("tcu.event_code")
         if cfg.line_side:
             names = cfg.line_converter_names
             self.ix_line_v, self.ix_breaker = mi("line.voltage_v"), mi("line.breaker_closed")
+            self.ix_line_trip = mi("line.overcurrent_trip")
             self.ix_ovp = [mi(f"{n}.overvoltage") for n in cfg.link_names]
             self.ix_pre = [mi(f"{n}.precharge_closed") for n in names]
             self.ix_line = [mi(f"{n}.line_contactor_closed") for n in names]
@@ -189,6 +194,9 @@ class ReferenceController:
             if any(y[i] > 0.5 for i in self.ix_ovp):
                 self._raise(events.LINK_OVERVOLTAGE)
                 self.sequence.trip(events.LINK_OVERVOLTAGE)
+            if y[self.ix_line_trip] > 0.5:  # opening the breaker acknowledges the trip
+                self._raise(events.LINE_OVERCURRENT)
+                self.sequence.trip(events.LINE_OVERCURRENT)
             pre = all(y[i] > 0.5 for i in self.ix_pre)
             line = all(y[i] > 0.5 for i in self.ix_line)
             # release the line converters only after the PLL has tracked a live line for
@@ -292,6 +300,15 @@ class ReferenceController:
             if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
                 self._raise(events.INVERTER_OVERCURRENT)
                 self.block_until[k] = self.t + 0.1
+            # the gate drivers' own trip (bit 3): blocked by the hardware already; keep the
+            # gates off a while, then reset the drivers for the last three periods of it (the
+            # reset acts a command delay later, and its effect shows a sample after that)
+            tripped = int(y[self.ix_gate_fault[k]]) & HARDWARE_TRIP_BIT
+            if tripped and self.t >= self.block_until[k]:
+                self._raise(events.HARDWARE_TRIP)
+                self.block_until[k] = self.t + HARDWARE_RESET_S
+            out[self.ox_reset[k]] = float(
+                bool(tripped) and self.block_until[k] - self.t < 3.5 * period_s)
             if factors[k] < 0.95:
                 self.event = events.WHEEL_SLIP
             demanded = mode in (1, 2, 4)

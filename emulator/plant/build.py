@@ -104,6 +104,8 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
         row[L.IP_TH_GJH] = ip.junction_heatsink_w_per_k
         row[L.IP_TH_GHA] = ip.heatsink_coolant_w_per_k
         row[L.IP_THERMAL_ON] = 1.0 if ip.thermal else 0.0
+        row[L.IP_I_TRIP] = ip.hardware_trip_a
+        row[L.IP_HW_ON] = 1.0
         plant.ist[k, L.IS_T_J] = ambient
         plant.ist[k, L.IS_T_H] = ambient
         plant.iu[k, L.IU_DA:L.IU_DC + 1] = 0.5
@@ -224,6 +226,9 @@ def build_line_side(plant, params: TrainsetParams, ideal: bool) -> None:
         row[L.KP_TH_C] = lk.resistor_capacity_j_per_k
         row[L.KP_TH_G] = lk.resistor_conductance_w_per_k
         row[L.KP_IDEAL] = 1.0 if ideal else 0.0
+        row[L.KP_HW_ON_V] = lk.hardware_chopper_on_v
+        row[L.KP_HW_OFF_V] = lk.hardware_chopper_off_v
+        row[L.KP_HW_ENABLE] = 1.0
         plant.lst[link, L.LS_UDC] = lk.voltage_v if ideal else 0.0
         plant.lst[link, L.LS_T_RES] = ambient
     if ideal:
@@ -240,6 +245,8 @@ def build_line_side(plant, params: TrainsetParams, ideal: bool) -> None:
     plant.sp[L.SP_DROOP] = su.reverse_power_droop_v_per_w
     plant.sp[L.SP_BREAKER_DELAY] = tr.breaker_delay_s
     plant.sp[L.SP_MAX_ARC] = tr.max_arcing_s or 0.5 / su.frequency_hz
+    plant.sp[L.SP_I_LINE_TRIP] = tr.hardware_line_trip_a
+    plant.sp[L.SP_HW_LINE_ON] = 1.0
     plant.ss[L.SS_BREAKER_TIMER] = tr.breaker_delay_s
     for k, unit in enumerate(units):
         row = plant.lp[k]

@@ -23,6 +23,8 @@ class Commands:
     duty: np.ndarray
     gates_enabled: np.ndarray
     line: LineCommands | None = None  # None: keep the line side's previous commands
+    # per inverter, True resets the gate drivers' latched hardware trip (None: no reset)
+    fault_reset: np.ndarray | None = None
 
     @classmethod
     def blocked(cls, n_inverter: int) -> Commands:

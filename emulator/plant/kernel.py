@@ -34,10 +34,13 @@ from .layout import (
     II_LINK,
     II_MOTOR_COUNT,
     II_SOURCE,
+    IP_HW_ON,
+    IP_I_TRIP,
     IP_VF0,
     IS_E_COND,
     IS_E_DC,
     IS_E_SW,
+    IS_HW_TRIP,
     IS_IA,
     IS_IB,
     IS_IC,
@@ -176,7 +179,7 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     i_tot = 0j
     g0 = 0j
     g1 = 0j
-    blocked = source != SOURCE_SINE and iu[k, IU_ENABLE] < 0.5
+    blocked = source != SOURCE_SINE and (iu[k, IU_ENABLE] < 0.5 or ist[k, IS_HW_TRIP] > 0.5)
     for m in range(first, last):
         i_tot += mx[m, MX_IS]
         if blocked:
@@ -259,6 +262,12 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     ist[k, IS_IA] = ia
     ist[k, IS_IB] = ib
     ist[k, IS_IC] = ic
+    # the gate drivers' hardware trip: a phase current past the threshold blocks the gates
+    # from the next sub-step and latches until the controller resets it (desaturation
+    # and overcurrent comparators act within microseconds: well inside a sub-step)
+    if (ipar[k, IP_HW_ON] > 0.5 and source != SOURCE_SINE
+            and max(abs(ia), abs(ib), abs(ic)) > ipar[k, IP_I_TRIP]):
+        ist[k, IS_HW_TRIP] = 1.0
     if source != SOURCE_SINE:
         ja, jb, jc = phase_currents(int_i)  # integrals of the phase currents, A s
         q_dc = s_a * ja + s_b * jb + s_c * jc + (p_sw * h / udc if udc > 0.0 else 0.0)

@@ -148,7 +148,10 @@ IP_TH_CH = 11  # heatsink heat capacity, J/K
 IP_TH_GJH = 12  # junction-heatsink conductance, W/K
 IP_TH_GHA = 13  # heatsink-coolant conductance, W/K
 IP_THERMAL_ON = 14
-IP_N = 15
+IP_I_TRIP = 15  # hardware overcurrent / desaturation trip of the gate drivers, A (peak of a
+# phase current; inf: not fitted)
+IP_HW_ON = 16  # 1 the hardware trip acts, 0 it fails to act (a fault)
+IP_N = 17
 
 # --- inverter integer data: int64 [n_inv, II_N] ---------------------------------------
 II_LINK = 0  # DC link index
@@ -183,12 +186,13 @@ IS_E_DC = 8  # energy drawn from the DC link, J
 IS_E_COND = 9  # conduction loss energy, J
 IS_E_SW = 10  # switching loss energy, J
 IS_Q = 11  # loss energy not yet given to the thermal model, J
-IS_N = 12
+IS_HW_TRIP = 12  # 1 the gate drivers' hardware trip has latched (gates blocked) until reset
+IS_N = 13
 
 # --- DC link state: float64 [n_link, LS_N] ------------------------------------------------
 LS_UDC = 0  # DC-link voltage, V
 LS_IDC = 1  # current drawn by the inverters, mean over the last frame, A
-LS_N = 12  # see the DC-link columns below
+LS_N = 13  # see the DC-link columns below
 
 # --- train: float64 vectors ---------------------------------------------------------------
 TP_MASS = 0  # train mass, kg
@@ -242,6 +246,7 @@ READABLE: dict[str, tuple[str, int, str, str]] = {
     "inverter.heatsink_temperature_k": ("inverter_state", IS_T_H, "K", "heatsink"),
     "inverter.voltage_alpha_v": ("inverter_state", IS_U_ALPHA, "V", "applied u_alpha"),
     "inverter.voltage_beta_v": ("inverter_state", IS_U_BETA, "V", "applied u_beta"),
+    "inverter.hardware_trip": ("inverter_state", IS_HW_TRIP, "1", "gate drivers latched off"),
     "dc_link.voltage_v": ("link_state", LS_UDC, "V", "DC-link voltage"),
     "dc_link.current_a": ("link_state", LS_IDC, "A", "inverter current, frame mean"),
     "train.speed_mps": ("train_state", TS_SPEED, "m/s", "train speed"),
@@ -263,7 +268,9 @@ SP_RATIO = 8  # transformer ratio primary / secondary voltage, 1
 SP_BREAKER_DELAY = 9  # main breaker closing delay, s
 SP_ACTIVE = 10  # 1 the line side is modelled, 0 DC links are ideal sources
 SP_MAX_ARC = 11  # longest arc of the breaker and contactors before they force the cut, s
-SP_N = 12
+SP_I_LINE_TRIP = 12  # hardware line overcurrent trip of the main breaker, A peak (inf: none)
+SP_HW_LINE_ON = 13  # 1 the line overcurrent trip acts, 0 it fails to act (a fault)
+SP_N = 14
 N_HARMONICS = 4  # harmonic table rows: order, amplitude / fundamental, phase (rad)
 
 SS_IP = 0  # primary (pantograph) current, A
@@ -285,7 +292,9 @@ SS_PQ_IC = 15  # int i_p cos(theta) dt
 SS_PQ_IS = 16  # int i_p sin(theta) dt
 SS_ARC = 17  # time the breaker has been arcing since its contacts parted, s (-1: not)
 SS_E_ARC = 18  # energy a forced cut left in the arcs (stored in the inductances), J
-SS_N = 19
+SS_LINE_TRIP = 19  # 1 the line overcurrent trip holds the breaker open until it is
+# commanded open (acknowledged)
+SS_N = 20
 
 # --- four-quadrant line converters: parameters [n_lc, LP_N] -------------------------------
 LP_L = 0  # secondary leakage inductance referred to the secondary, H
@@ -333,7 +342,10 @@ KP_IDEAL = 7  # 1: an ideal source holding KP_U_IDEAL
 KP_U_IDEAL = 8
 KP_TH_C = 9  # chopper resistor heat capacity, J/K
 KP_TH_G = 10  # chopper resistor to ambient conductance, W/K
-KP_N = 11
+KP_HW_ON_V = 11  # hardware chopper fires above this link voltage, V (inf: not fitted)
+KP_HW_OFF_V = 12  # ... and lets go below this one, V
+KP_HW_ENABLE = 13  # 1 the hardware chopper acts, 0 it fails to act (a fault)
+KP_N = 14
 KU_CHOPPER = 0  # chopper duty 0..1
 KU_N = 1
 # link state columns continue LS_UDC, LS_IDC (above)
@@ -347,12 +359,14 @@ LS_E_DIS = 8  # energy into the discharge resistor, J
 LS_E_RF = 9  # energy lost in the filter resistance, J
 LS_Q_CH = 10  # chopper energy not yet given to the thermal model, J
 LS_I4Q = 11  # current from the line converters, frame mean, A
+LS_HW_CHOP = 12  # 1 while the hardware chopper is firing (whatever the firmware commands)
 
 READABLE.update({
     "line.pantograph_voltage_v": ("supply_state", SS_UP, "V", "instantaneous"),
     "line.current_a": ("supply_state", SS_IP, "A", "primary current, instantaneous"),
     "line.emf_v": ("supply_state", SS_EMF, "V", "source EMF"),
     "line.breaker_closed": ("supply_state", SS_BREAKER, "1", "main breaker feedback"),
+    "line.overcurrent_trip": ("supply_state", SS_LINE_TRIP, "1", "hardware breaker trip"),
     "line_converter.current_a": ("lc_state", LS2_I, "A", "secondary current"),
     "line_converter.voltage_v": ("lc_state", LS2_U, "V", "converter AC voltage"),
     "line_converter.precharge_closed": ("lc_state", LS2_PRE, "1", "feedback contact"),
@@ -362,5 +376,6 @@ READABLE.update({
     "dc_link.chopper_current_a": ("link_state", LS_ICH, "A", "frame mean"),
     "dc_link.resistor_temperature_k": ("link_state", LS_T_RES, "K", "brake resistor"),
     "dc_link.overvoltage": ("link_state", LS_OVP, "1", "protection flag"),
+    "dc_link.hardware_chopper": ("link_state", LS_HW_CHOP, "1", "firing on overvoltage"),
     "dc_link.line_converter_current_a": ("link_state", LS_I4Q, "A", "frame mean"),
 })

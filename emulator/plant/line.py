@@ -34,6 +34,9 @@ from .jit import compiled, compiled_inline
 from .layout import (
     KP_C,
     KP_CF,
+    KP_HW_ENABLE,
+    KP_HW_OFF_V,
+    KP_HW_ON_V,
     KP_IDEAL,
     KP_LF,
     KP_R_CH,
@@ -71,6 +74,7 @@ from .layout import (
     LS_E_CH,
     LS_E_DIS,
     LS_E_RF,
+    LS_HW_CHOP,
     LS_I4Q,
     LS_ICH,
     LS_IF,
@@ -88,6 +92,8 @@ from .layout import (
     SP_BREAKER_DELAY,
     SP_DROOP,
     SP_FREQUENCY,
+    SP_HW_LINE_ON,
+    SP_I_LINE_TRIP,
     SP_L,
     SP_LIVE,
     SP_MAX_ARC,
@@ -104,6 +110,7 @@ from .layout import (
     SS_E_SOURCE_R,
     SS_EMF,
     SS_IP,
+    SS_LINE_TRIP,
     SS_PQ_I2,
     SS_PQ_IC,
     SS_PQ_IS,
@@ -144,6 +151,10 @@ def _contactors(lp, lu, ls2, sp, ss, h):
     (line_substep clears it there), never longer than SP_MAX_ARC; the arc's voltage is
     left out. Closing makes the circuit at the catenary's phase as it is."""
     cmd = 1.0 if ss[SS_BREAKER_CMD] > 0.5 else 0.0
+    if ss[SS_LINE_TRIP] > 0.5:  # the hardware trip holds the breaker open until the
+        if cmd == 0.0:  # controller commands it open (acknowledges); then it may close
+            ss[SS_LINE_TRIP] = 0.0
+        cmd = 0.0
     if cmd != ss[SS_BREAKER]:
         if cmd == 0.0:
             ss[SS_ARC] = 0.0 if ss[SS_ARC] < 0.0 else ss[SS_ARC] + h
@@ -295,6 +306,8 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     ss[SS_IP] = ip_new
     if _cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC]):
         _open_breaker(sp, ss, lp, ls2, n)
+    elif sp[SP_HW_LINE_ON] > 0.5 and abs(ip_new) > sp[SP_I_LINE_TRIP]:
+        ss[SS_LINE_TRIP] = 1.0  # the breaker's overcurrent release: opens from the next step
     ip_avg = 0.5 * (ip_old + ip_new)
     di_dt = (ip_new - ip_old) / h
     up = e - sp[SP_R] * ip_avg - sp[SP_L] * di_dt  # mean over the step
@@ -348,6 +361,17 @@ def _links_substep(h, kp, ku, lst, i_link):
             lst[link, LS_IF] = i_f
             lst[link, LS_UCF] += h * i_f / kp[link, KP_CF]
         duty = min(max(ku[link, KU_CHOPPER], 0.0), 1.0)
+        # the hardware chopper: fires fully above its threshold, lets go below the lower
+        # one (hysteresis), whatever the firmware commands
+        if kp[link, KP_HW_ENABLE] > 0.5:
+            if u > kp[link, KP_HW_ON_V]:
+                lst[link, LS_HW_CHOP] = 1.0
+            elif u < kp[link, KP_HW_OFF_V]:
+                lst[link, LS_HW_CHOP] = 0.0
+        else:
+            lst[link, LS_HW_CHOP] = 0.0
+        if lst[link, LS_HW_CHOP] > 0.5:
+            duty = 1.0
         i_ch = duty * u / kp[link, KP_R_CH] if kp[link, KP_R_CH] > 0.0 else 0.0
         i_dis = u / kp[link, KP_R_DIS] if kp[link, KP_R_DIS] > 0.0 else 0.0
         # C dU/dt = i_4QC - i_inverters - i_chopper - i_discharge - i_filter; the bridges'

@@ -60,6 +60,7 @@ class InverterParams:
     junction_heatsink_w_per_k: float = 0.0
     heatsink_coolant_w_per_k: float = 0.0
     thermal: bool = False
+    hardware_trip_a: float = float("inf")  # gate drivers' overcurrent trip, phase peak, A
 
 
 @dataclass(frozen=True)
@@ -100,6 +101,9 @@ class DcLinkParams:
     filter_inductance_h: float = 0.0  # 0: no series-resonant filter
     filter_capacitance_f: float = 0.0
     filter_resistance_ohm: float = 0.0
+    # the hardware chopper: fires above the first voltage, lets go below the second
+    hardware_chopper_on_v: float = float("inf")
+    hardware_chopper_off_v: float = float("inf")
 
 
 @dataclass(frozen=True)
@@ -114,6 +118,7 @@ class TransformerParams:
     # longest arc of the breaker and line contactors when opening under current (0: half a
     # period of the line frequency, the longest wait for a current zero)
     max_arcing_s: float = 0.0
+    hardware_line_trip_a: float = float("inf")  # the breaker's overcurrent release, peak A
 
 
 @dataclass(frozen=True)

@@ -149,11 +149,21 @@ class Plant:
         line = commands.line
         if line is not None:
             self._apply_line(line)
+        if commands.fault_reset is not None:
+            self.reset_gate_drivers(commands.fault_reset)
         code = load_commands(duty, gates, self.iu)
         if code == COMMAND_NOT_FINITE:
             raise CommandError("duty cycles must be finite (NaN or inf received)")
         if code == COMMAND_OUT_OF_RANGE:
             raise CommandError("duty cycles must lie within 0..1")
+
+    def reset_gate_drivers(self, which: np.ndarray) -> None:
+        """Reset the latched hardware trip of the inverters where which is True; a driver
+        whose phase current is still past its threshold trips again at once."""
+        which = np.asarray(which, dtype=bool)
+        if which.shape != (self.n_inverters,):
+            raise CommandError(f"fault_reset needs {self.n_inverters} flags")
+        self.ist[which, L.IS_HW_TRIP] = 0.0
 
     def _apply_line(self, line: LineCommands) -> None:
         n, k = self.n_line_converters, self.n_links

@@ -4,6 +4,7 @@ topology's), each a Table in, typed parameters in SI units out: see reader.py.""
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
@@ -125,6 +126,9 @@ def parse_inverter(t: Table) -> InverterParams:
         switching_energy_ref_a=t.number("switching_energy_reference_a", "A", 0.0, 1e5,
                                         lo_open=True),
         sign_band_a=t.number("sign_band_a", "A", 0.0, 1e3, lo_open=True),
+        hardware_trip_a=(t.number("hardware_overcurrent_a", "A (phase peak)", 0.0, 1e5,
+                                  lo_open=True)
+                         if t.has("hardware_overcurrent_a") else float("inf")),
         **kw,
     )
     if inv.dead_time_s * inv.switching_frequency_hz >= 0.25:
@@ -205,6 +209,9 @@ def parse_transformer(t: Table) -> TransformerParams:
         breaker_delay_s=t.number("main_breaker_delay_ms", "ms", 0.0, 5000.0, scale=1e-3),
         max_arcing_s=(t.number("max_arcing_ms", "ms", 0.1, 200.0, scale=1e-3)
                       if t.has("max_arcing_ms") else 0.0),
+        hardware_line_trip_a=(t.number("hardware_line_overcurrent_a", "A (primary peak)",
+                                       0.0, 1e5, lo_open=True)
+                              if t.has("hardware_line_overcurrent_a") else float("inf")),
     )
     t.finish()
     return tr
@@ -258,6 +265,14 @@ def parse_dc_link(t: Table) -> DcLinkParams:
     )
     if link.overvoltage_v <= link.voltage_v:
         raise t.error("overvoltage_v", "must lie above nominal_voltage_v")
+    chop = ("hardware_chopper_on_v", "hardware_chopper_off_v")
+    if any(t.has(k) for k in chop):
+        on = t.number(chop[0], "V", 0.0, 1e4, lo_open=True)
+        off = t.number(chop[1], "V", 0.0, 1e4, lo_open=True)
+        if not link.voltage_v < off < on:
+            raise t.error(chop[1], f"needs nominal_voltage_v < {chop[1]} < {chop[0]} "
+                          "(the hysteresis lies above the nominal voltage)")
+        link = replace(link, hardware_chopper_on_v=on, hardware_chopper_off_v=off)
     t.finish()
     return link
 

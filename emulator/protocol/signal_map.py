@@ -90,6 +90,9 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
             _analog("line.current_a", "A", 0.01, -2000.0, 2000.0,
                     "pantograph (primary) current, instantaneous"),
             Signal("line.breaker_closed", "1", 1.0, 0, 1, "flag", "main breaker feedback"),
+            Signal("line.overcurrent_trip", "1", 1.0, 0, 1, "flag",
+                   "the breaker's hardware overcurrent release has opened it; it stays open "
+                   "until line.breaker_close is sent 0"),
         ]
         for unit in params.line_converters:
             meas += [
@@ -112,8 +115,10 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
                                 f"phase {phase} current of {conv.name} (sum of its motors)"))
         meas.append(_analog(f"{conv.name}.heatsink_temperature_degc", "degC", 0.1, -50.0,
                             250.0, f"heatsink temperature of {conv.name}"))
-        meas.append(Signal(f"{conv.name}.gate_fault", "1", 1.0, 0, 7, "flag",
-                           "gate-driver fault flags, bit x = leg a, b, c"))
+        meas.append(Signal(f"{conv.name}.gate_fault", "1", 1.0, 0, 15, "flag",
+                           "gate-driver fault flags: bits 0-2 leg a, b, c; bit 3 the "
+                           "hardware overcurrent/desaturation trip, latched (gates blocked) "
+                           "until fault_reset"))
         for j in range(len(conv.wheel_diameters_m)):
             motor = f"{conv.name}.m{j + 1}"
             meas.append(Signal(f"{motor}.encoder_count", "count", 1.0, 0, 65535, "count",
@@ -165,6 +170,9 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
                                f"duty cycle of leg {phase} of {conv.name}"))
         cmd.append(Signal(f"{conv.name}.gates_enabled", "1", 1.0, 0, 1, "flag",
                           f"1 releases the gates of {conv.name}"))
+        cmd.append(Signal(f"{conv.name}.fault_reset", "1", 1.0, 0, 1, "flag",
+                          "1 resets the gate drivers' latched hardware trip (it trips again "
+                          "at once while the current is still past the threshold)"))
     cmd += [
         _analog("tcu.achieved_effort_kn", "kN", 0.1, -1000.0, 1000.0,
                 "tractive (+) or electric braking (-) effort achieved, for blending"),

@@ -16,6 +16,7 @@ import numpy as np
 
 from emulator.plant import Commands, Plant
 from emulator.plant.layout import (
+    IS_HW_TRIP,
     IS_IA,
     IS_IB,
     IS_IC,
@@ -31,6 +32,7 @@ from emulator.plant.layout import (
     MS_THETA_M,
     SS_BREAKER,
     SS_IP,
+    SS_LINE_TRIP,
     SS_UP,
 )
 from emulator.plant.stepper import LineCommands
@@ -38,6 +40,7 @@ from emulator.protocol.signal_map import SignalMap
 from emulator.rig.sensors import AnalogChannels, Encoders, SensorParams
 
 KELVIN = 273.15
+HARDWARE_TRIP_BIT = 8  # bit 3 of a gate_fault measurement: the latched hardware trip
 
 
 @dataclass
@@ -89,6 +92,7 @@ class MeasurementSampler:
             analog.append(("line.voltage_v", SRC_SUPPLY, 0, SS_UP, 0.0, sensors.line_voltage))
             analog.append(("line.current_a", SRC_SUPPLY, 0, SS_IP, 0.0, sensors.line_current))
             flags.append(("line.breaker_closed", SRC_SUPPLY, 0, SS_BREAKER))
+            flags.append(("line.overcurrent_trip", SRC_SUPPLY, 0, SS_LINE_TRIP))
             for k, unit in enumerate(params.line_converters):
                 analog.append((f"{unit.name}.current_a", SRC_LINE_CONVERTER, k, LS2_I, 0.0,
                                sensors.current))
@@ -153,7 +157,7 @@ class MeasurementSampler:
         _assemble(analog, self._analog_pos, self._values[n:], self._flag_pos, self._angle,
                   enc.edges_per_rev / (2 * math.pi), enc.edge_scale, enc.count_offset,
                   enc.COUNTER_MODULUS,
-                  self._count_pos, self.gate_fault, self._fault_pos, self._train,
+                  self._count_pos, self.gate_fault, p.ist, self._fault_pos, self._train,
                   self._train_pos, out)
         return out
 
@@ -180,7 +184,8 @@ def _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle):
 
 @nb.njit(cache=True)
 def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, edge_scale,
-              count_offset, modulus, count_pos, gate_fault, fault_pos, train, train_pos, out):
+              count_offset, modulus, count_pos, gate_fault, ist, fault_pos, train, train_pos,
+              out):
     """Scatter the channel outputs, flags, encoder counts, fault flags and demands into y."""
     for i in range(analog.shape[0]):
         out[analog_pos[i]] = analog[i]
@@ -190,7 +195,9 @@ def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, edge_sc
         edges = np.int64(math.floor(angle[m] * edges_per_rad * edge_scale[m])) + count_offset[m]
         out[count_pos[m]] = edges % modulus
     for k in range(gate_fault.shape[0]):
-        out[fault_pos[k]] = gate_fault[k]
+        # bits 0-2 from the fault catalogue's hooks, bit 3 the plant's latched hardware trip
+        out[fault_pos[k]] = gate_fault[k] | (HARDWARE_TRIP_BIT if ist[k, IS_HW_TRIP] > 0.5
+                                             else 0)
     for i in range(train.shape[0]):
         out[train_pos + i] = train[i]
 
@@ -212,8 +219,10 @@ class CommandMapper:
         self._duty_pos = np.array([[names.index(f"{c.name}.duty_{x}") for x in "abc"]
                                    for c in convs])
         self._gate_pos = np.array([names.index(f"{c.name}.gates_enabled") for c in convs])
+        self._reset_pos = np.array([names.index(f"{c.name}.fault_reset") for c in convs])
         self._reply_pos = names.index("tcu.achieved_effort_kn")
-        self._cmd = Commands(np.full((len(convs), 3), 0.5), np.zeros(len(convs), dtype=bool))
+        self._cmd = Commands(np.full((len(convs), 3), 0.5), np.zeros(len(convs), dtype=bool),
+                             fault_reset=np.zeros(len(convs), dtype=bool))
         self.safe = np.zeros(len(names))
         self.safe[self._duty_pos] = 0.5  # gates blocked, duties at mid
         self._line_pos = None
@@ -235,6 +244,7 @@ class CommandMapper:
         """
         _fill_commands(values, self._duty_pos, self._gate_pos, gates_allowed,
                        self._cmd.duty, self._cmd.gates_enabled)
+        self._cmd.fault_reset[:] = values[self._reset_pos] >= 0.5
         if self._line_pos is not None:
             pos, breaker, chopper = self._line_pos
             line = self._cmd.line
