@@ -41,6 +41,9 @@ ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-
 # multiple units: from memory, REFERENCES.md)
 HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
 HARDWARE_RESET_S = 0.2  # gates off after a hardware trip before the drivers are reset
+HARDWARE_TRIPS_TO_ISOLATE = 3  # ... and an inverter that trips this often within
+HARDWARE_WINDOW_S = 10.0  # this long is isolated: left blocked, no more resets (common
+# practice of traction protection: a repeated hardware trip means a fault, not a transient)
 MAGNETISED_ABOVE_MPS = 1.0  # in a driving mode, the motors stay fluxed above this speed
 FLUX_HOLD_S = 3.0  # ... and as long after the last demand (coasting between brake steps)
 SENSOR_JUMP = 20.0  # rad/s in one period: a speed reading no motor can follow
@@ -96,6 +99,7 @@ class ReferenceController:
         self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
                                   for i in range(len(cfg.link_names))]
         self.block_until = [0.0] * n_inv
+        self.hardware_trips: list[list[float]] = [[] for _ in range(n_inv)]
         self.demanded_at = [-math.inf] * n_inv
         self.released = [False] * n_inv  # off since the demand ended (see the gates below)
         self.t = 0.0
@@ -306,7 +310,10 @@ class ReferenceController:
             tripped = int(y[self.ix_gate_fault[k]]) & HARDWARE_TRIP_BIT
             if tripped and self.t >= self.block_until[k]:
                 self._raise(events.HARDWARE_TRIP)
-                self.block_until[k] = self.t + HARDWARE_RESET_S
+                recent = [t for t in self.hardware_trips[k] if self.t - t < HARDWARE_WINDOW_S]
+                self.hardware_trips[k] = [*recent, self.t]
+                isolate = len(self.hardware_trips[k]) >= HARDWARE_TRIPS_TO_ISOLATE
+                self.block_until[k] = math.inf if isolate else self.t + HARDWARE_RESET_S
             out[self.ox_reset[k]] = float(
                 bool(tripped) and self.block_until[k] - self.t < 3.5 * period_s)
             if factors[k] < 0.95:

@@ -103,6 +103,12 @@ CATALOGUE: dict[str, FaultKind] = {k.name: k for k in [
           "the line contactor is welded: it stays closed whatever it is commanded"),
     _kind("chopper-failed", "command", "DC link", {},
           "the brake chopper does not switch: its duty is forced to 0"),
+    _kind("overcurrent-protection-fails", "plant", "inverter", {},
+          "the gate drivers' hardware overcurrent/desaturation trip fails to act"),
+    _kind("chopper-protection-fails", "plant", "DC link", {},
+          "the hardware chopper does not fire on overvoltage"),
+    _kind("breaker-protection-fails", "plant", "catenary", {},
+          "the main breaker's overcurrent release fails to act"),
     # --- plant parameters --------------------------------------------------------------
     _kind("low-adhesion", "plant", "axle", {"factor": ("1", 0.0, 2.0, 0.3)},
           "the friction coefficient of an axle falls to factor x mu0 (leaves, oil)"),

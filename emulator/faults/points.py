@@ -147,6 +147,8 @@ class FaultSet:
         elif kind == "link-capacitance-loss":
             f.applied["was"] = float(plant.kp[i, L.KP_C])
             plant.kp[i, L.KP_C] *= f.params["remaining"]
+        elif kind in PROTECTIONS:
+            _protection(plant, kind, i, 0.0)
         elif f.kind.point == "line":
             self._apply_line(f)
         elif kind == "telegram-loss":
@@ -205,6 +207,8 @@ class FaultSet:
             plant.mpar[i, L.MP_COOLING] = was
         elif kind == "link-capacitance-loss":
             plant.kp[i, L.KP_C] = was
+        elif kind in PROTECTIONS:
+            _protection(plant, kind, i, 1.0)
         elif kind == "catenary-dip":
             plant.set_supply(voltage_rms_v=was)
         elif kind == "catenary-interruption":
@@ -248,3 +252,18 @@ class FaultSet:
         return [{"name": f.name, "label": f.label, "point": f.kind.point, "params": f.params,
                  "state": "active" if f.active else ("cleared" if f.done else "armed")}
                 for f in self.faults]
+
+
+#: the faults that keep a hardware protection from acting, and its enable column
+PROTECTIONS = {"overcurrent-protection-fails": ("ipar", L.IP_HW_ON),
+               "chopper-protection-fails": ("kp", L.KP_HW_ENABLE),
+               "breaker-protection-fails": ("sp", L.SP_HW_LINE_ON)}
+
+
+def _protection(plant, kind: str, index: int, enabled: float) -> None:
+    """Set a hardware protection's enable flag (0: it fails to act)."""
+    array, column = PROTECTIONS[kind]
+    if array == "sp":
+        plant.sp[column] = enabled
+    else:
+        getattr(plant, array)[index, column] = enabled

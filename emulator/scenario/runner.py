@@ -32,9 +32,10 @@ MOTOR_SIDE = ["train.speed_mps", "train.position_m", "train.acceleration_mps2",
               "motor.shaft_torque_nm", "motor.axle_load_n", "motor.brake_force_n",
               "motor.stator_temperature_k", "motor.rotor_temperature_k",
               "inverter.phase_current_a_a", "inverter.phase_current_b_a",
-              "inverter.phase_current_c_a", "dc_link.voltage_v", "dc_link.chopper_current_a"]
+              "inverter.phase_current_c_a", "inverter.hardware_trip", "dc_link.voltage_v",
+              "dc_link.chopper_current_a", "dc_link.hardware_chopper"]
 LINE_SIDE = ["line.pantograph_voltage_v", "line.current_a", "line.emf_v",
-             "line.breaker_closed"]
+             "line.breaker_closed", "line.overcurrent_trip"]
 #: derived each 20 ms from the plant's power-quality window (a frame late)
 LINE_EXTRAS = ["line.voltage_rms_v", "line.current_rms_a", "line.power_factor",
                "line.active_power_w"]
