@@ -66,6 +66,26 @@ class EquivalentCircuit:
         return 2 * (1 + a * s_k) / (slip / s_k + s_k / slip + 2 * a * s_k)
 
 
+def efficiency_with_core_loss(c: EquivalentCircuit, slip: float, r_c: float,
+                              friction_windage_w: float) -> dict[str, float]:
+    """The T-circuit with a core-loss resistance R_c across the magnetising branch
+    (Fitzgerald, Kingsley & Umans, *Electric Machinery*, ch. 6: the exact equivalent
+    circuit), at a slip: input power, iron loss 3 |E|^2 / R_c, air-gap power
+    3 |I_r|^2 r_r / s, mechanical power (1 - s) P_ag, output less friction and windage,
+    and the efficiency P_out / P_in (per-phase rms quantities, three phases)."""
+    z_rotor = complex(c.r_r / slip, c.x_lr)
+    y_gap = 1 / (1j * c.x_m) + 1 / r_c + 1 / z_rotor
+    z = complex(c.r_s, c.x_ls) + 1 / y_gap
+    i_s = c.v_phase_rms / z
+    e = c.v_phase_rms - i_s * complex(c.r_s, c.x_ls)
+    i_r = e / z_rotor
+    p_in = 3 * (c.v_phase_rms * i_s.conjugate()).real
+    p_gap = 3 * abs(i_r) ** 2 * c.r_r / slip
+    p_out = (1 - slip) * p_gap - friction_windage_w
+    return {"p_in": p_in, "p_iron": 3 * abs(e) ** 2 / r_c, "p_gap": p_gap,
+            "p_out": p_out, "efficiency": p_out / p_in}
+
+
 #: Krause, Wasynczuk & Sudhoff, Analysis of Electric Machinery and Drive Systems, 2nd ed.
 #: (2002), induction-machine table: V_LL, r_s, X_ls, X_M, X'_lr, r'_r, J (ohm at 60 Hz).
 KRAUSE_MACHINES = {

@@ -55,6 +55,10 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
             row[L.MP_GEAR_EFF] = dp.gear_efficiency
             row[L.MP_J_WHEELSET] = dp.wheelset_inertia_kgm2
             row[L.MP_J_GEAR] = dp.gear_inertia_kgm2
+            row[L.MP_G_CORE] = 1.0 / mp.core_loss_resistance_ohm
+            # the drag that takes P_fw at the synchronous speed of the rated frequency
+            w_ref = 2.0 * math.pi * mp.rated_frequency_hz / mp.pole_pairs
+            row[L.MP_C_FW] = mp.friction_windage_w / (w_ref * w_ref)
             row[L.MP_WHEEL_R] = 0.5 * diameter
             row[L.MP_AXLE_LOAD] = dp.axle_load_n
             row[L.MP_KALKER] = dp.kalker_coefficient_n

@@ -41,6 +41,8 @@ class EnergyAccount:
     torsion_damping: float = 0.0  # lost in the drivetrains' torsional damping
     torsion_stored: float = 0.0  # in the drivetrains' torsional springs
     switch_arcs: float = 0.0  # left in the inductances when an arc was cut (0 at a zero)
+    iron_loss: float = 0.0  # in the motors' core-loss resistances
+    friction_windage: float = 0.0  # the motors' bearings and fans
 
 
 def energy_account(self) -> EnergyAccount:
@@ -100,6 +102,8 @@ def energy_account(self) -> EnergyAccount:
         running_resistance=float(ts[L.TS_E_RESIST]),
         friction_brake=float(ts[L.TS_E_BRAKE] + ms[:, L.MS_E_BRAKE].sum()),
         torsion_damping=float(ms[:, L.MS_E_DAMPER].sum()),
+        iron_loss=float(ms[:, L.MS_E_IRON].sum()),
+        friction_windage=float(ms[:, L.MS_E_FW].sum()),
         torsion_stored=float(torsion),
         potential=float(ts[L.TS_E_GRADE]),
         magnetic_stored=magnetic,

@@ -60,6 +60,7 @@ from .layout import (
     MI_INVERTER,
     MI_SAT_POINTS,
     MI_SHAFT_MODE,
+    MP_G_CORE,
     MP_J_ROTOR,
     MP_LLR,
     MP_LLS,
@@ -72,6 +73,7 @@ from .layout import (
     MS_CSS,
     MS_E_CU_R,
     MS_E_CU_S,
+    MS_E_IRON,
     MS_E_SLIP,
     MS_E_TERMINAL,
     MS_LM,
@@ -180,8 +182,11 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     g0 = 0j
     g1 = 0j
     blocked = source != SOURCE_SINE and (iu[k, IU_ENABLE] < 0.5 or ist[k, IS_HW_TRIP] > 0.5)
+    u_prev = complex(ist[k, IS_U_ALPHA], ist[k, IS_U_BETA])
     for m in range(first, last):
         i_tot += mx[m, MX_IS]
+        if not blocked:
+            i_tot += mpar[m, MP_G_CORE] * u_prev  # the core-loss branch's current
         if blocked:
             ps = mx[m, MX_PSI_S]
             pr = mx[m, MX_PSI_R]
@@ -245,6 +250,20 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         mx[m, MX_IS] = is1
         mx[m, MX_IR] = ir1
         i_end += is1
+        # iron loss: a core-loss resistance across the terminals carries u / R_c (held u;
+        # a sine source's amplitude is constant); none while the gates are blocked
+        g_core = mpar[m, MP_G_CORE]
+        if g_core > 0.0 and not blocked:
+            if source == SOURCE_SINE:
+                i_end += g_core * u1
+                e_core = 1.5 * g_core * iu[k, IU_SINE_AMP] ** 2 * h
+            else:
+                i_end += g_core * u
+                int_i += g_core * u * h
+                e_core = 1.5 * g_core * abs2(u) * h
+            e_in += e_core
+            ms[m, MS_E_IRON] += e_core
+            ms[m, MS_Q_STATOR] += e_core
         ms[m, MS_E_TERMINAL] += e_in
         # copper losses 3/2 R |i|^2, trapezoid rule
         e_cu_s = 0.75 * h * rs * (abs2(is0) + abs2(is1))

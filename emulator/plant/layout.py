@@ -54,7 +54,9 @@ MP_C_SHAFT = 33  # torsional damping of the coupling, referred to the motor shaf
 MP_BRAKE_TAU = 34  # brake-cylinder time constant (first-order lag of the brake force), s
 MP_J_GEAR = 35  # gear wheel (and hollow shaft) inertia at the wheelset's speed, on the
 # rotor's side of the torsional spring, kg m^2
-MP_LT_COEF0 = 36  # load transfer: axle load change per newton of creep force of the axles
+MP_G_CORE = 36  # core-loss conductance 1 / R_c across the terminals, S (0: no iron loss)
+MP_C_FW = 37  # friction and windage: a drag c w on the rotor, N m s/rad (P = c w^2)
+MP_LT_COEF0 = 38  # load transfer: axle load change per newton of creep force of the axles
 # named by MI_LT_AXLE0.. (Delta Q = sum_j coef_j F_j), 1; LT_TERMS columns from here
 LT_TERMS = 6  # load-transfer terms per axle (the motored axles of its car)
 MP_N = MP_LT_COEF0 + LT_TERMS
@@ -112,7 +114,9 @@ MS_E_DAMPER = 29  # energy lost in the torsional damping, J
 MS_BRAKE_FORCE = 30  # friction brake force applied at the rail (after the cylinder lag), N
 MS_E_BRAKE = 31  # friction brake energy of the axle, J
 MS_AXLE_LOAD = 32  # axle load in use (static plus load transfer), N
-MS_N = 33
+MS_E_IRON = 33  # iron loss energy (the core-loss resistance), J
+MS_E_FW = 34  # friction and windage energy, J
+MS_N = 35
 
 # --- motor complex data: complex128 [n_motor, MX_N] -----------------------------------
 MX_PSI_S = 0  # stator flux linkage space vector (stationary frame), V s

@@ -39,6 +39,10 @@ class MachineParams:
     saturation_current_a: tuple[float, ...] = ()
     saturation_flux_vs: tuple[float, ...] = ()
     thermal: MachineThermal | None = None
+    # iron loss: a core-loss resistance per phase across the terminals (inf: none)
+    core_loss_resistance_ohm: float = float("inf")
+    # friction and windage at the synchronous speed of the rated frequency, W (0: none)
+    friction_windage_w: float = 0.0
 
 
 @dataclass(frozen=True)

@@ -17,6 +17,7 @@ from .layout import (
     MP_ADHESION_FACTOR,
     MP_AXLE_LOAD,
     MP_BRAKE_TAU,
+    MP_C_FW,
     MP_C_SHAFT,
     MP_CREEP_VREF,
     MP_GEAR,
@@ -41,6 +42,7 @@ from .layout import (
     MS_CREEP_FORCE,
     MS_E_BRAKE,
     MS_E_DAMPER,
+    MS_E_FW,
     MS_E_GEAR,
     MS_E_LOAD,
     MS_E_SHAFT,
@@ -92,10 +94,10 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
     mode = mint[m, MI_SHAFT_MODE]
     om = ms[m, MS_OMEGA_M]
     force = 0.0
+    t_fw = mpar[m, MP_C_FW] * om  # friction and windage, a drag at the start speed
+    t_l = mu[m, MU_LOAD_TORQUE]  # a bench's dynamometer on the rotor (0 on a train)
     if mode == SHAFT_DRIVETRAIN:
-        t_l = mu[m, MU_LOAD_TORQUE]  # a bench's dynamometer on the rotor (0 on a train)
-        ms[m, MS_E_LOAD] += t_l * om * h  # booked at the start speed, corrected below
-        t_avg -= t_l
+        t_avg -= t_l + t_fw  # what the rotor passes on (restored below for the books)
         gear = mpar[m, MP_GEAR]
         r = mpar[m, MP_WHEEL_R]
         eff = mpar[m, MP_GEAR_EFF]
@@ -186,16 +188,14 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
         ms[m, MS_ADHESION_UTIL] = abs(force) / q_mu if q_mu > 0.0 else 0.0
     elif mode == SHAFT_IMPOSED_SPEED:
         om_new = mu[m, MU_IMPOSED_SPEED]
-        ms[m, MS_E_LOAD] += t_avg * 0.5 * (om + om_new) * h
+        t_l = t_avg - t_fw  # the dynamometer takes what friction and windage leave
     else:
-        t_l = mu[m, MU_LOAD_TORQUE]
-        om_new = om + h * (t_avg - t_l) / mpar[m, MP_J_ROTOR]  # J dw/dt = T - T_L
-        ms[m, MS_E_LOAD] += t_l * 0.5 * (om + om_new) * h
+        om_new = om + h * (t_avg - t_l - t_fw) / mpar[m, MP_J_ROTOR]  # J dw/dt = T - T_L
     om_avg = 0.5 * (om + om_new)
     if mode == SHAFT_DRIVETRAIN:
-        t_l = mu[m, MU_LOAD_TORQUE]
-        ms[m, MS_E_LOAD] += t_l * (om_avg - om) * h
-        t_avg += t_l
+        t_avg += t_l + t_fw
+    ms[m, MS_E_LOAD] += t_l * om_avg * h
+    ms[m, MS_E_FW] += t_fw * om_avg * h
     ms[m, MS_E_SHAFT] += t_avg * om_avg * h
     ms[m, MS_THETA_M] += om_avg * h
     ms[m, MS_OMEGA_M] = om_new

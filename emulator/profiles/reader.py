@@ -136,6 +136,12 @@ def load_machine(path: Path | str) -> MachineParams:
         saturation_current_a=saturation_i,
         saturation_flux_vs=saturation_psi,
         thermal=thermal,
+        core_loss_resistance_ohm=(t.number("core_loss_resistance_ohm", "ohm", 0.0, 1e7,
+                                           lo_open=True)
+                                  if t.has("core_loss_resistance_ohm") else math.inf),
+        friction_windage_w=(t.number("friction_windage_at_rated_kw", "kW", 0.0, 1e4,
+                                     scale=1e3)
+                            if t.has("friction_windage_at_rated_kw") else 0.0),
     )
     t.finish()
     return machine

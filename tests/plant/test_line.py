@@ -197,7 +197,8 @@ def test_energy_from_catenary_to_motors_balances() -> None:
     motors_out = (d("semiconductor_conduction") + d("semiconductor_switching") + d("stator_copper")
                   + d("rotor_copper") + d("gear_loss") + d("slip_loss") + d("running_resistance")
                   + d("friction_brake") + d("potential") + d("magnetic_stored")
-                  + d("kinetic_stored") + d("torsion_damping") + d("torsion_stored"))
+                  + d("kinetic_stored") + d("torsion_damping") + d("torsion_stored")
+                  + d("iron_loss") + d("friction_windage"))
     assert source > 3e5
     assert line_out == pytest.approx(source, rel=5e-3)
     assert link_out == pytest.approx(d("line_converter_dc"), rel=5e-3)

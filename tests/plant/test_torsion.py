@@ -32,11 +32,15 @@ H = 1.25e-4  # frames of one sub-step: 267 samples a period of the 30 Hz mode
 REGULATOR = (2000.0, 4000.0, 0.05)  # slip bench: N m per m/s, N m per m, filter s
 
 
-def _lifted_plant() -> Plant:
-    """The Tern with its wheelsets lifted off the rail (no creep force), at rest."""
+def _lifted_plant(friction: bool = True) -> Plant:
+    """The Tern with its wheelsets lifted off the rail (no creep force), at rest;
+    friction=False also takes the motors' friction and windage away (Thomson's discs
+    have none)."""
     plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
     for m in range(plant.n_motors):
         plant.set_adhesion_factor(m, 0.0)
+    if not friction:
+        plant.mpar[:, L.MP_C_FW] = 0.0
     return plant
 
 
@@ -53,7 +57,7 @@ def _reference(plant: Plant) -> tuple[float, float, float]:
 
 
 def test_torque_step_rings_at_the_two_mass_frequency_with_its_damping() -> None:
-    plant = _lifted_plant()
+    plant = _lifted_plant(friction=False)
     f_n, zeta, share = _reference(plant)
     step = 1000.0
     plant.set_rotor_torque(0, step)
@@ -83,7 +87,8 @@ def test_energy_books_close_with_the_spring_and_damper() -> None:
     for _ in range(2000):
         plant.advance(None)
     e = plant.energy()
-    stored_and_lost = e.kinetic_stored + e.torsion_stored + e.torsion_damping + e.gear_loss
+    stored_and_lost = (e.kinetic_stored + e.torsion_stored + e.torsion_damping + e.gear_loss
+                       + e.friction_windage)
     assert e.torsion_damping > 0 and e.gear_loss > 0
     assert -e.load == pytest.approx(stored_and_lost, rel=1e-9)  # exact by construction
 

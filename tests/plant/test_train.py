@@ -35,18 +35,23 @@ def test_rolls_back_on_a_gradient_with_brakes_off_and_holds_with_brakes_on() -> 
     for _ in range(round(10 * tau / 1e-3)):
         plant.advance(None)
     # Newton for the train with its motored wheelsets rolling along (no motor torque):
-    # (m (1 + k_rot) + sum J_eq / r^2) a = -m g sin(theta) + A + B |v| + C v^2, v < 0,
+    # (m (1 + k_rot) + sum J_eq / r^2) a = -m g sin(theta) + A + B |v| + C v^2 + F_fw, v < 0,
     # with J_eq = J_wheelset + J_gear + i^2 J_rotor per motored axle (any vehicle-dynamics
-    # text)
+    # text), and the motors' friction and windage, a drag c w_m on each rotor (the
+    # profile's: c = P_fw / w_sync^2) that the wheel drives through the gear:
+    # F_fw = sum c i^2 |v| / (eta r^2)
     p = plant.params
-    tr, dt = p.train, p.drivetrain
+    tr, dt, mp = p.train, p.drivetrain, p.machine
     j_eq = (dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2
-            + dt.gear_ratio**2 * p.machine.rotor_inertia_kgm2)
-    rotating = sum(j_eq / (d / 2) ** 2 for c in p.converters for d in c.wheel_diameters_m)
+            + dt.gear_ratio**2 * mp.rotor_inertia_kgm2)
+    radii = [d / 2 for c in p.converters for d in c.wheel_diameters_m]
+    rotating = sum(j_eq / r**2 for r in radii)
     v = plant.read("train.speed_mps")
+    c_fw = mp.friction_windage_w / (2 * math.pi * mp.rated_frequency_hz / mp.pole_pairs) ** 2
+    f_fw = sum(c_fw * dt.gear_ratio**2 * abs(v) / (dt.gear_efficiency * r**2) for r in radii)
     theta = math.atan(0.03)
     drive = (-tr.mass_kg * 9.80665 * math.sin(theta) + tr.davis_a_n
-             + tr.davis_b_n_per_mps * abs(v) + tr.davis_c_n_per_mps2 * v * v)
+             + tr.davis_b_n_per_mps * abs(v) + tr.davis_c_n_per_mps2 * v * v + f_fw)
     expected_accel = drive / (tr.mass_kg * (1 + tr.rotating_mass_allowance) + rotating)
     assert v < 0.0
     # the wheels' creep settles to a constant at constant acceleration; what is left of
