@@ -1,8 +1,8 @@
 """Energy balance of a traction run and of a braking run (conservation of energy).
 
 DC-link input = semiconductor losses + copper, iron and friction-windage losses + gear,
-torsional-damping and slip losses + running resistance + friction brake + potential energy + change of magnetic,
-kinetic and torsional-spring energy.
+torsional-damping and slip losses + running resistance + friction brake + potential
+energy + change of magnetic, kinetic and torsional-spring energy.
 Target from the issue: within 0.5 % of the input.
 """
 
