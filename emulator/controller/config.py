@@ -59,6 +59,8 @@ class ControllerConfig:
     #: magnetising current (A, peak); empty: linear with magnetising_h
     saturation_current_a: tuple[float, ...] = ()
     saturation_flux_vs: tuple[float, ...] = ()
+    #: the motor's core-loss resistance per phase across its terminals (type test), ohm
+    core_loss_resistance_ohm: float = math.inf
     link_names: tuple[str, ...] = ()
     line_converter_names: tuple[str, ...] = ()
     line_converter_links: tuple[int, ...] = ()
@@ -157,6 +159,7 @@ def config_from_profile(path, period_s: float | None = None) -> ControllerConfig
                           else math.inf),
         saturation_current_a=tuple(m.saturation_current_a),
         saturation_flux_vs=tuple(m.saturation_flux_vs),
+        core_loss_resistance_ohm=m.core_loss_resistance_ohm,
         link_names=tuple(lk.name for lk in links),
         line_converter_names=tuple(u.name for u in p.line_converters),
         line_converter_links=tuple(u.dc_link for u in p.line_converters),

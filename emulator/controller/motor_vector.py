@@ -118,6 +118,7 @@ class VectorControl:
         self.prev_turn = 1 + 0j
         self.dpsi = 0.0  # field-weakening loop's flux reduction, V s (<= 0)
         self.u_sent = 0j  # stator-frame voltage acting from now to the next sample
+        self.u_before = 0j  # the one that acted up to this sample
         self.i_d = self.i_q = 0.0
         self.psi_ref = 0.0
         self.torque_limit = 0.0
@@ -227,7 +228,11 @@ class VectorControl:
         i_d_ref = self.curve.current(self.psi_ref)
         # --- measured current in the field frame (the angle at the sample instant) -------
         theta = p * rotor_angle_rad + self.theta_slip
-        i_s = space_vector(phase_currents) / self.n
+        # the measured current less what the core-loss branches draw (u / R_c at the
+        # voltage that acted up to the sample): iron-loss compensation, or the field
+        # orientation takes that current for torque current and falls short
+        i_s = (space_vector(phase_currents) / self.n
+               - self.u_before / self.cfg.core_loss_resistance_ohm)
         i_dq = i_s * cmath.exp(-1j * theta)
         self.i_d, self.i_q = i_dq.real, i_dq.imag
         # the voltage the model misses, from how far the current is from its prediction:
@@ -323,6 +328,7 @@ class VectorControl:
         # period: for the observer and the flux model at the next sample
         self.i_expected = i_next
         self.prev_mean, self.prev_theta, self.prev_turn = mean_now, theta, turn
+        self.u_before = self.u_sent
         self.u_sent = u
         self.theta_slip += w_slip * T
         # --- duties: the stator-frame vector held over the period (the dead time is the
