@@ -123,6 +123,10 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
             motor = f"{conv.name}.m{j + 1}"
             meas.append(Signal(f"{motor}.encoder_count", "count", 1.0, 0, 65535, "count",
                                "encoder edge counter (4 per line), unsigned 16 bit, wraps"))
+            meas.append(Signal(f"{motor}.encoder_edge_time_us", "us", 1.0, 0, 65535, "count",
+                               "time of the encoder's last edge on a free-running 1 MHz "
+                               "timer, unsigned 16 bit, wraps (every 65.536 ms); kept "
+                               "while no edge comes: for the period method"))
             meas.append(_analog(f"{motor}.speed_rad_s", "rad/s", 0.01, -1000.0, 1000.0,
                                 "rotor speed from the speed sensor"))
             meas.append(_analog(f"{motor}.stator_temperature_degc", "degC", 0.1, -50.0, 250.0,

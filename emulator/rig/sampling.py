@@ -135,6 +135,8 @@ class MeasurementSampler:
         self.gate_fault = np.zeros(plant.n_inverters, dtype=np.int64)  # fault hook
         self._count_pos = np.array([names.index(f"{m}.encoder_count")
                                     for m in params.motor_names], dtype=np.int64)
+        self._capture_pos = np.array([names.index(f"{m}.encoder_edge_time_us")
+                                      for m in params.motor_names], dtype=np.int64)
         self._fault_pos = np.array([names.index(f"{c.name}.gate_fault")
                                     for c in params.converters], dtype=np.int64)
         self._train_pos = names.index("train.effort_demand")
@@ -159,6 +161,7 @@ class MeasurementSampler:
                   enc.COUNTER_MODULUS,
                   self._count_pos, self.gate_fault, p.ist, self._fault_pos, self._train,
                   self._train_pos, out)
+        out[self._capture_pos] = enc.captures(self._angle, p.time_s)
         return out
 
 

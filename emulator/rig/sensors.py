@@ -121,14 +121,25 @@ def _chain(x, gain, fault_gain, offset, fault_offset, noise, normals, alpha, sta
 
 
 class Encoders:
-    """Incremental encoders on the motor shafts: wrapping 16-bit edge counters."""
+    """Incremental encoders on the motor shafts: wrapping 16-bit edge counters, and a
+    capture of each encoder's last edge time on a free-running 1 MHz 16-bit timer (as a
+    board's input-capture unit gives, for the period method of speed measurement).
+
+    The edge time is found within the frame by linear interpolation of the shaft angle
+    between two samples (a constant speed over the frame), rounded to the timer's
+    microsecond.
+    """
 
     COUNTER_MODULUS = 1 << 16
+    CAPTURE_MODULUS = 1 << 16  # microseconds
 
     def __init__(self, n: int, lines: int) -> None:
         self.edges_per_rev = 4 * lines
         self.count_offset = np.zeros(n, dtype=np.int64)  # fault hook: lost pulses
         self.edge_scale = np.ones(n)  # fault hook: wrong pulses per revolution (0: frozen)
+        self._last_angle: np.ndarray | None = None
+        self._last_time = 0.0
+        self._capture = np.zeros(n, dtype=np.int64)
 
     def set_edge_scale(self, i: int, scale: float, angle_rad: float) -> None:
         """Change encoder i's edges per radian without a jump in its count."""
@@ -136,6 +147,21 @@ class Encoders:
         before = math.floor(k * self.edge_scale[i])
         self.edge_scale[i] = scale
         self.count_offset[i] += before - math.floor(k * scale)
+
+    def captures(self, angle_rad: np.ndarray, time_s: float) -> np.ndarray:
+        """The edge-time captures (us, wrapping) after a sample of the shaft angles at
+        plant time time_s; an encoder without an edge since the last sample keeps its
+        capture."""
+        if self._last_angle is None:
+            self._last_angle = angle_rad.copy()
+            self._last_time = time_s
+            self._capture = np.zeros(len(angle_rad), dtype=np.int64)
+        _captures(angle_rad, self._last_angle, time_s, self._last_time,
+                  self.edges_per_rev / (2 * math.pi), self.edge_scale, self.CAPTURE_MODULUS,
+                  self._capture)
+        self._last_angle[:] = angle_rad
+        self._last_time = time_s
+        return self._capture
 
     def counts(self, angle_rad: np.ndarray) -> np.ndarray:
         """Counter values for the shaft angles (unwrapped, rad)."""
@@ -149,3 +175,23 @@ class Encoders:
 def _counts(angle, edges_per_rad, scale, offset, modulus, out):
     for i in range(angle.shape[0]):
         out[i] = (np.int64(math.floor(angle[i] * edges_per_rad * scale[i])) + offset[i]) % modulus
+
+
+@nb.njit(cache=True)
+def _captures(angle, last, t, t_last, edges_per_rad, scale, modulus, capture):
+    """Update each capture with the time of the last edge crossed since the last sample
+    (angle linear in time between the samples)."""
+    for i in range(angle.shape[0]):
+        k = edges_per_rad * scale[i]
+        if k <= 0.0 or angle[i] == last[i]:
+            continue
+        now = math.floor(angle[i] * k)
+        before = math.floor(last[i] * k)
+        if now == before:
+            continue
+        # the last edge crossed: entering edge `now` going up, leaving edge `now + 1`
+        # going down
+        edge = now if angle[i] > last[i] else now + 1
+        frac = (edge / k - last[i]) / (angle[i] - last[i])
+        t_edge = t_last + frac * (t - t_last)
+        capture[i] = np.int64(math.floor(t_edge * 1e6 + 0.5)) % modulus
