@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from emulator.plant import Commands, Plant
+from emulator.plant import layout as L  # noqa: N812
 from emulator.plant.params import TrainsetParams
 from emulator.rig.open_loop import OpenLoopLineSide, SlipFrequencyVf
 
@@ -31,6 +32,9 @@ def _loaded_plant(params: TrainsetParams) -> tuple[Plant, SlipFrequencyVf]:
             plant.advance(line.commands(blocked))
         plant._line = line
     plant.set_speed(15.0)
+    # the open-loop V/f below switches on at speed at full voltage: its inrush would trip
+    # the gate drivers' hardware protection and leave a blocked plant to be timed
+    plant.ipar[:, L.IP_HW_ON] = 0.0
     vf = SlipFrequencyVf(plant.n_inverters, params.machine.pole_pairs,
                          params.machine.rated_voltage_v * math.sqrt(2 / 3)
                          / params.machine.rated_frequency_hz, max_modulation=0.95)
