@@ -32,6 +32,7 @@ from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
 from .pll import SogiPll
 from .sequence import RUNNING, SwitchOnSequence
+from .speed_plausibility import SpeedPlausibility
 
 # motors and inverters at full power, with margin: what the line converters are rated for
 DRIVE_EFFICIENCY = 0.85
@@ -46,7 +47,6 @@ HARDWARE_WINDOW_S = 10.0  # this long is isolated: left blocked, no more resets 
 # practice of traction protection: a repeated hardware trip means a fault, not a transient)
 MAGNETISED_ABOVE_MPS = 1.0  # in a driving mode, the motors stay fluxed above this speed
 FLUX_HOLD_S = 3.0  # ... and as long after the last demand (coasting between brake steps)
-SENSOR_JUMP = 20.0  # rad/s in one period: a speed reading no motor can follow
 
 
 class ReferenceController:
@@ -88,11 +88,9 @@ class ReferenceController:
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
         self.line_live_s = 0.0
-        self.sensor_ok = [True] * n_motors
-        self._last_speeds: list[float | None] = [None] * n_motors
+        self.speed_check = SpeedPlausibility([len(ms) for ms in self.motors])
         # speed and angle from the encoders' counts, as a board has them
         self.encoders = [EncoderSpeed(cfg.encoder_lines, T) for _ in range(n_motors)]
-        self._fallback_angle: dict[int, float] = {}
         self.line_rms_f = cfg.line_nominal_v
         self._recent = [0.0] * max(round(1 / (4 * cfg.line_frequency_hz * T)), 1)
         self._recent_i = 0
@@ -228,12 +226,13 @@ class ReferenceController:
         r, gear = cfg.wheel_radius_m, cfg.gear_ratio
         for enc, i in zip(self.encoders, self.ix_count, strict=True):
             enc.update(y[i])
-        speeds = self._plausible_speeds([e.speed_raw for e in self.encoders],
-                                        [e.speed for e in self.encoders])
+        if self.speed_check.judge([e.speed_raw for e in self.encoders]):
+            self._raise(events.SPEED_SENSOR_FAULT)
+        speeds = self.speed_check.fill([e.speed for e in self.encoders])
         k_wheel = r / gear
         # the adhesion control watches the wheels with the shorter window (2 ms less lag,
         # 0.16 m/s resolution at the rail), the rest uses the smoother one
-        quick = self._plausible_fill([e.speed_short for e in self.encoders])
+        quick = self.speed_check.fill([e.speed_short for e in self.encoders])
         wheel_mps = [w * k_wheel for w in quick]
         v = sum(wheel_mps) / len(wheel_mps)
         f_max = self.n_motors * motor_torque_limit(cfg, abs(v)) * gear * GEAR_EFFICIENCY / r
@@ -338,9 +337,9 @@ class ReferenceController:
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
-            healthy = [a for a in range(first, first + n_mot) if self.sensor_ok[a]]
+            healthy = [a for a in range(first, first + n_mot) if self.speed_check.ok[a]]
             angle = (sum(self.encoders[a].angle for a in healthy) / len(healthy) if healthy
-                     else self._fallback_angle_for(k, motor_speed, period_s))
+                     else self.speed_check.fallback_angle(k, motor_speed, period_s))
             if p_draw is not None and torque * motor_speed > 0:  # motoring
                 sag = min(max((u_d - 0.75 * cfg.link_nominal_v)
                               / (0.15 * cfg.link_nominal_v), 0.0), 1.0)
@@ -411,49 +410,3 @@ class ReferenceController:
         out[self.ox_available] = self.available_n / 1e3
         out[self.ox_status] = float(self.sequence.state)
         out[self.ox_event] = float(self.event)
-
-    def _fallback_angle_for(self, inverter: int, speed: float, period_s: float) -> float:
-        """A rotor angle for an inverter whose encoders have all failed: integrated from
-        the speed its neighbours give (the drive goes on, less precisely)."""
-        self._fallback_angle[inverter] = (self._fallback_angle.get(inverter, 0.0)
-                                          + speed * period_s)
-        return self._fallback_angle[inverter]
-
-    def _plausible_speeds(self, raw: list[float], readings: list[float]) -> list[float]:
-        """Speed readings with failed sensors replaced by their healthy neighbours'.
-
-        ``raw`` is each encoder's count difference over the last period (counting
-        method), ``readings`` the windowed speeds the control uses. A raw speed that
-        jumps by more than SENSOR_JUMP in one period is physically impossible for a motor
-        on a wheelset (its acceleration is a few hundred rad/s^2 at most; the counting
-        resolution is 6.1 rad/s at 256 lines and 1 ms): the sensor is taken as failed for
-        the rest of the run (latched, as a board would until a service reset) and event
-        SPEED_SENSOR_FAULT is raised.
-        """
-        last = self._last_speeds
-        for m, (now, before) in enumerate(zip(raw, last, strict=True)):
-            if (self.sensor_ok[m] and before is not None and now is not None
-                    and abs(now - before) > SENSOR_JUMP):
-                self.sensor_ok[m] = False
-                self._raise(events.SPEED_SENSOR_FAULT)
-        self._last_speeds = list(raw)
-        return self._plausible_fill(readings)
-
-    def _plausible_fill(self, readings: list[float]) -> list[float]:
-        """Readings with the failed sensors' replaced by their neighbours' (no new
-        judgement: _plausible_speeds decides which sensors failed)."""
-        if all(self.sensor_ok):
-            return readings
-        healthy = [r for r, ok in zip(readings, self.sensor_ok, strict=True) if ok]
-        out = list(readings)
-        for k in range(len(self.motors)):
-            own = [readings[a] for a in self._axles(k) if self.sensor_ok[a]]
-            for a in self._axles(k):
-                if not self.sensor_ok[a]:
-                    out[a] = (sum(own) / len(own) if own
-                              else sum(healthy) / len(healthy) if healthy else readings[a])
-        return out
-
-    def _axles(self, inverter: int) -> range:
-        first = sum(len(ms) for ms in self.motors[:inverter])
-        return range(first, first + len(self.motors[inverter]))
