@@ -84,6 +84,9 @@ CATALOGUE: dict[str, FaultKind] = {k.name: k for k in [
           "one quadrature channel is lost: no countable edges, the count stands still"),
     _kind("encoder-wrong-ppr", "measurement", "encoder", {"ratio": ("1", 0.1, 10.0, 0.5)},
           "the encoder gives ratio x the pulses per revolution the controller expects"),
+    _kind("encoder-eccentricity", "measurement", "encoder",
+          {"error_arcmin": ("arcmin", 0.0, 600.0, 30.0)},
+          "the disc slips off centre: a once-per-revolution angle error of that peak"),
     # --- power stage and switchgear ----------------------------------------------------
     _kind("gate-driver-fault", "command", "inverter", {},
           "the inverter's gates stay blocked and its fault flag is set"),

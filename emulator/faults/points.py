@@ -123,6 +123,9 @@ class FaultSet:
             scale = 0.0 if kind == "encoder-channel-loss" else f.params["ratio"]
             f.applied["was"] = float(enc.edge_scale[i])
             enc.set_edge_scale(i, scale, float(plant.ms[i, L.MS_THETA_M]))
+        elif kind == "encoder-eccentricity":
+            f.applied["was"] = float(enc.eccentricity[i])
+            enc.eccentricity[i] = math.radians(f.params["error_arcmin"] / 60)
         elif kind == "gate-driver-fault":
             rig.sampler.gate_fault[i] = 7
         elif kind == "shorted-leg":
@@ -191,6 +194,8 @@ class FaultSet:
             analog.lo[i], analog.hi[i] = was
         elif kind in ("encoder-channel-loss", "encoder-wrong-ppr"):
             enc.set_edge_scale(i, was, float(plant.ms[i, L.MS_THETA_M]))
+        elif kind == "encoder-eccentricity":
+            enc.eccentricity[i] = was
         elif kind == "gate-driver-fault":
             rig.sampler.gate_fault[i] = 0
         elif kind == "shorted-leg":

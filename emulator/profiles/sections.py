@@ -157,6 +157,14 @@ def parse_channel(t: Table, unit: str, lo: float, hi: float) -> ChannelSpec:
 def parse_sensors(t: Table) -> SensorParams:
     enc = t.table("encoder")
     lines = enc.integer("lines_per_rev", 1, 100000)
+    # a disc mounted off centre: a once-per-revolution angle error (peak, arc minutes);
+    # lines not where they should be: each edge off its place by a seeded draw (rms, % of
+    # the edge pitch)
+    eccentricity = (enc.number("eccentricity_arcmin", "arcmin", 0.0, 600.0,
+                               scale=math.pi / (180 * 60))
+                    if enc.has("eccentricity_arcmin") else 0.0)
+    pitch = (enc.number("pitch_error_pct", "% of an edge pitch", 0.0, 15.0, scale=0.01)
+             if enc.has("pitch_error_pct") else 0.0)
     enc.finish()
     params = SensorParams(
         current=parse_channel(t.table("current"), "a", -1e5, 1e5),
@@ -166,6 +174,8 @@ def parse_sensors(t: Table) -> SensorParams:
         line_voltage=parse_channel(t.table("line_voltage"), "v", -1e5, 1e5),
         line_current=parse_channel(t.table("line_current"), "a", -1e5, 1e5),
         encoder_lines=lines,
+        encoder_eccentricity_rad=eccentricity,
+        encoder_pitch_error=pitch,
         shaft_torque=(parse_channel(t.table("shaft_torque"), "nm", -1e5, 1e5)
                       if t.has("shaft_torque") else None),
     )

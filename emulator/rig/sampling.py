@@ -131,7 +131,10 @@ class MeasurementSampler:
         self._n_analog = len(analog)
         self._analog_pos = np.array([names.index(a[0]) for a in analog], dtype=np.int64)
         self._flag_pos = np.array([names.index(f[0]) for f in flags], dtype=np.int64)
-        self.encoders = Encoders(plant.n_motors, sensors.encoder_lines)
+        self.encoders = Encoders(plant.n_motors, sensors.encoder_lines,
+                                 sensors.encoder_eccentricity_rad, sensors.encoder_pitch_error,
+                                 np.random.default_rng(rng.integers(2**31))
+                                 if sensors.encoder_pitch_error > 0 else None)
         self.gate_fault = np.zeros(plant.n_inverters, dtype=np.int64)  # fault hook
         self._count_pos = np.array([names.index(f"{m}.encoder_count")
                                     for m in params.motor_names], dtype=np.int64)
@@ -155,6 +158,7 @@ class MeasurementSampler:
         n = self._n_analog
         analog = self.analog.sample(self._values[:n], period_s)
         enc = self.encoders
+        enc.distort(self._angle)
         self._train[:] = driver.values()
         _assemble(analog, self._analog_pos, self._values[n:], self._flag_pos, self._angle,
                   enc.edges_per_rev / (2 * math.pi), enc.edge_scale, enc.count_offset,

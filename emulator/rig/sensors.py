@@ -52,6 +52,8 @@ class SensorParams:
     line_voltage: ChannelSpec = ChannelSpec()
     line_current: ChannelSpec = ChannelSpec()
     encoder_lines: int = 256
+    encoder_eccentricity_rad: float = 0.0  # once-per-revolution angle error, peak
+    encoder_pitch_error: float = 0.0  # rms of the edges' misplacement, of an edge pitch
     # a torque transducer on each motor shaft: test benches and instrumented test trains
     # have one, service trains do not (None: not fitted, no signal in the map)
     shaft_torque: ChannelSpec | None = None
@@ -133,10 +135,18 @@ class Encoders:
     COUNTER_MODULUS = 1 << 16
     CAPTURE_MODULUS = 1 << 16  # microseconds
 
-    def __init__(self, n: int, lines: int) -> None:
+    def __init__(self, n: int, lines: int, eccentricity_rad: float = 0.0,
+                 pitch_error: float = 0.0, rng: np.random.Generator | None = None) -> None:
         self.edges_per_rev = 4 * lines
         self.count_offset = np.zeros(n, dtype=np.int64)  # fault hook: lost pulses
         self.edge_scale = np.ones(n)  # fault hook: wrong pulses per revolution (0: frozen)
+        # the discs' imperfections (and a fault hook): a once-per-revolution angle error
+        # and each edge's misplacement, a fraction of the edge pitch (within +-0.45, so the
+        # edges keep their order)
+        self.eccentricity = np.full(n, eccentricity_rad)
+        rng = rng or np.random.default_rng(0)
+        self.pitch = (np.clip(rng.normal(0.0, pitch_error, (n, self.edges_per_rev)), -0.45,
+                              0.45) if pitch_error > 0 else np.zeros((n, 1)))
         self._last_angle: np.ndarray | None = None
         self._last_time = 0.0
         self._capture = np.zeros(n, dtype=np.int64)
@@ -147,6 +157,11 @@ class Encoders:
         before = math.floor(k * self.edge_scale[i])
         self.edge_scale[i] = scale
         self.count_offset[i] += before - math.floor(k * scale)
+
+    def distort(self, angle_rad: np.ndarray) -> None:
+        """Turn shaft angles into the angles the discs show, in place: the nearest edge j
+        sits at (j + pitch_j) edge pitches, the whole disc off by e sin(angle)."""
+        _distort(angle_rad, self.eccentricity, self.pitch, 2 * math.pi / self.edges_per_rev)
 
     def captures(self, angle_rad: np.ndarray, time_s: float) -> np.ndarray:
         """The edge-time captures (us, wrapping) after a sample of the shaft angles at
@@ -195,3 +210,13 @@ def _captures(angle, last, t, t_last, edges_per_rad, scale, modulus, capture):
         frac = (edge / k - last[i]) / (angle[i] - last[i])
         t_edge = t_last + frac * (t - t_last)
         capture[i] = np.int64(math.floor(t_edge * 1e6 + 0.5)) % modulus
+
+
+@nb.njit(cache=True)
+def _distort(angle, eccentricity, pitch, edge_rad):
+    for i in range(angle.shape[0]):
+        a = angle[i] + eccentricity[i] * math.sin(angle[i])
+        if pitch.shape[1] > 1:
+            nearest = np.int64(math.floor(a / edge_rad + 0.5)) % pitch.shape[1]
+            a -= pitch[i, nearest] * edge_rad
+        angle[i] = a

@@ -20,6 +20,7 @@ from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.sampling import DriverDemand, MeasurementSampler
 
 MACHINE = PROFILES_DIR / "machines" / "tern-tm310.toml"
+TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 
 
 def _captures(speed: float, frames: int):
@@ -67,3 +68,76 @@ def test_the_count_method_at_low_speed_is_coarse_where_the_period_method_is_not(
     counts, _, per_rev = _captures(2.0, 50)
     per_frame = np.diff(counts) * 2 * math.pi / per_rev / 1e-3
     assert set(np.round(per_frame, 3)) <= {0.0, round(2 * math.pi / per_rev / 1e-3, 3)}
+
+
+def _sampler_with(tmp_path, extra: str):
+    """A test bench whose encoders have the imperfections in extra ([sensors.encoder])."""
+    from emulator.profiles.reader import load_trainset
+
+    text = TRAINSET.read_text()
+    (tmp_path / "trainsets").mkdir()
+    (tmp_path / "machines").mkdir()
+    (tmp_path / "machines" / MACHINE.name).write_text(MACHINE.read_text())
+    out = tmp_path / "trainsets" / TRAINSET.name
+    out.write_text(text.replace("lines_per_rev = 256\n", "lines_per_rev = 256\n" + extra, 1))
+    return load_trainset(out).sensors
+
+
+def _captures_with(sensors, speed: float, frames: int):
+    plant = Plant.test_bench(load_machine(MACHINE), frame_s=1e-3)
+    plant.impose_speed(0, speed)
+    smap = build_signal_map(plant.params)
+    sampler = MeasurementSampler(plant, smap, sensors, np.random.default_rng(0))
+    names = [s.name for s in smap.measurements]
+    motor = plant.params.motor_names[0]
+    i_count, i_time = names.index(f"{motor}.encoder_count"), names.index(
+        f"{motor}.encoder_edge_time_us")
+    counts, times = [], []
+    sampler.sample(1e-3, DriverDemand())
+    for _ in range(frames):
+        plant.advance(None)
+        y = sampler.sample(1e-3, DriverDemand())
+        counts.append(int(y[i_count]))
+        times.append(int(y[i_time]))
+    return np.array(counts), np.array(times), sampler.encoders
+
+
+def test_eccentricity_gives_a_once_per_revolution_speed_ripple(tmp_path) -> None:
+    """A disc off centre by e (rad of angle, peak) reads theta + e sin(theta): the period
+    method's speed is w (1 + e cos theta), a ripple of +-e once per revolution, by hand."""
+    sensors = _sampler_with(tmp_path, "eccentricity_arcmin = 60.0\n")
+    e = math.radians(1.0)
+    speed = 30.0
+    counts, times, enc = _captures_with(sensors, speed, 600)  # 2.9 revolutions
+    estimates = []
+    for a in range(len(counts) - 1):
+        edges = (counts[a + 1] - counts[a]) % 65536
+        dt = ((times[a + 1] - times[a]) % 65536) * 1e-6
+        if edges and dt:
+            estimates.append(edges * 2 * math.pi / enc.edges_per_rev / dt / speed - 1)
+    ripple = np.array(estimates)
+    # over ~1 ms the ripple's average differs from its peak by under 0.1 %, and each
+    # capture adds at most 1 us / 1 ms: +-e within 0.3 % of e plus 1e-3
+    assert ripple.max() == pytest.approx(e, abs=3e-3 * e + 1e-3)
+    assert ripple.min() == pytest.approx(-e, abs=3e-3 * e + 1e-3)
+
+
+def test_pitch_errors_move_each_edge_by_its_own_fraction(tmp_path) -> None:
+    """Each edge j is crossed at (j + pitch_j) edge pitches: its capture is there, within
+    the timer's microsecond (plus the frame's linear interpolation, exact at a held
+    speed)."""
+    sensors = _sampler_with(tmp_path, "pitch_error_pct = 5.0\n")
+    speed = 2.0  # an edge every 3.1 ms: each capture names one edge
+    counts, times, enc = _captures_with(sensors, speed, 300)
+    pitch = enc.pitch[0]
+    assert 0.03 < pitch.std() < 0.07  # the draw's 5 % rms, over 1024 edges
+    edge_rad = 2 * math.pi / enc.edges_per_rev
+    checked = 0
+    for a in range(1, len(counts)):
+        if counts[a] != counts[a - 1]:
+            j = counts[a]  # the edge just crossed (the count after it)
+            t_edge = (j + pitch[j % enc.edges_per_rev]) * edge_rad / speed
+            off = (times[a] - t_edge * 1e6 + 32768) % 65536 - 32768  # the timer wraps
+            assert abs(off) <= 0.5 + 1e-6
+            checked += 1
+    assert checked > 50
