@@ -65,11 +65,13 @@ from .layout import (
 
 
 @compiled_inline
-def wheel_locked(j_eff, d_free, brake_torque, h):
-    """Whether a friction brake holds a wheelset at rest: the torque that would start it
-    turning (its effective inertia times the free step's speed change over h) is within
-    the brake's torque, as static friction holds."""
-    return abs(j_eff * d_free / h) <= brake_torque
+def start_direction(j_eff, d_free, brake_torque, h):
+    """The way a wheelset at rest starts to turn (+1, -1), or 0 while its friction brake
+    holds it: the torque that would start it (its effective inertia times the free step's
+    speed change over h) is within the brake's torque, as static friction holds."""
+    if abs(j_eff * d_free / h) <= brake_torque:
+        return 0.0
+    return 1.0 if d_free > 0.0 else -1.0
 
 
 @compiled_inline
@@ -128,12 +130,7 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
             det = a11 * a22 - a12 * a21
             sgn = 1.0 if ow > 0.0 else -1.0
             if ow == 0.0:
-                d_free = (a11 * b2 - a21 * b1) / det
-                if wheel_locked(a22 - a21 * a12 / a11, d_free, tb, h):
-                    tb = 0.0
-                    sgn = 0.0
-                else:
-                    sgn = 1.0 if d_free > 0.0 else -1.0
+                sgn = start_direction(a22 - a21 * a12 / a11, (a11 * b2 - a21 * b1) / det, tb, h)
             b2 -= h * sgn * tb
             d2 = (a11 * b2 - a21 * b1) / det
             held = sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0)
@@ -162,11 +159,7 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
             b2 = h * (t_w - r * f + r * kk * h * a_train)
             sgn = 1.0 if ow > 0.0 else -1.0
             if ow == 0.0:
-                if wheel_locked(a22, b2 / a22, tb, h):
-                    tb = 0.0
-                    sgn = 0.0
-                else:
-                    sgn = 1.0 if b2 > 0.0 else -1.0
+                sgn = start_direction(a22, b2 / a22, tb, h)
             b2 -= h * sgn * tb
             d2 = b2 / a22
             held = sgn == 0.0 or (tb > 0.0 and (ow + d2) * ow < 0.0)

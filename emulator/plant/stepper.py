@@ -149,8 +149,9 @@ class Plant:
         line = commands.line
         if line is not None:
             self._apply_line(line)
-        if commands.fault_reset is not None:
-            self.reset_gate_drivers(commands.fault_reset)
+        reset = commands.fault_reset
+        if reset is not None and np.any(reset):  # (the rig's frame loop sends one each frame)
+            self.reset_gate_drivers(reset)
         code = load_commands(duty, gates, self.iu)
         if code == COMMAND_NOT_FINITE:
             raise CommandError("duty cycles must be finite (NaN or inf received)")
