@@ -67,23 +67,57 @@ class EquivalentCircuit:
 
 
 def efficiency_with_core_loss(c: EquivalentCircuit, slip: float, r_c: float,
-                              friction_windage_w: float) -> dict[str, float]:
+                              friction_windage_w: float, *,
+                              at_terminals: bool = False) -> dict[str, float]:
     """The T-circuit with a core-loss resistance R_c across the magnetising branch
     (Fitzgerald, Kingsley & Umans, *Electric Machinery*, ch. 6: the exact equivalent
-    circuit), at a slip: input power, iron loss 3 |E|^2 / R_c, air-gap power
-    3 |I_r|^2 r_r / s, mechanical power (1 - s) P_ag, output less friction and windage,
-    and the efficiency P_out / P_in (per-phase rms quantities, three phases)."""
+    circuit), or with at_terminals across the supply terminals (the same text's
+    approximate circuit, which moves the shunt branch to the terminals; here only R_c
+    moves), at a slip: input power, stator current (rms), air-gap EMF (rms), iron loss
+    (3 |E|^2 / R_c, or 3 V^2 / R_c at the terminals), air-gap power 3 |I_r|^2 r_r / s,
+    mechanical power (1 - s) P_ag, output less friction and windage, and the efficiency
+    P_out / P_in (per-phase rms quantities, three phases)."""
+    v = c.v_phase_rms
     z_rotor = complex(c.r_r / slip, c.x_lr)
-    y_gap = 1 / (1j * c.x_m) + 1 / r_c + 1 / z_rotor
+    y_gap = 1 / (1j * c.x_m) + (0.0 if at_terminals else 1 / r_c) + 1 / z_rotor
     z = complex(c.r_s, c.x_ls) + 1 / y_gap
-    i_s = c.v_phase_rms / z
-    e = c.v_phase_rms - i_s * complex(c.r_s, c.x_ls)
+    i_s = v / z
+    e = v - i_s * complex(c.r_s, c.x_ls)
     i_r = e / z_rotor
-    p_in = 3 * (c.v_phase_rms * i_s.conjugate()).real
+    p_iron = 3 * (v if at_terminals else abs(e)) ** 2 / r_c
+    if at_terminals:
+        i_s += v / r_c
+    p_in = 3 * (v * i_s.conjugate()).real
     p_gap = 3 * abs(i_r) ** 2 * c.r_r / slip
     p_out = (1 - slip) * p_gap - friction_windage_w
-    return {"p_in": p_in, "p_iron": 3 * abs(e) ** 2 / r_c, "p_gap": p_gap,
+    return {"p_in": p_in, "i_s": abs(i_s), "e": abs(e), "p_iron": p_iron, "p_gap": p_gap,
             "p_out": p_out, "efficiency": p_out / p_in}
+
+
+def saturated_circuit(machine, slip: float, r_r_factor: float = 1.0) -> EquivalentCircuit:
+    """A machine profile's circuit at its rated voltage and frequency, the magnetising
+    reactance taken from its magnetising curve at the circuit's own air-gap flux: the
+    curve gives the main flux (space-vector peak) psi = sqrt 2 |E| / w at a current i_m,
+    and x_m = w psi / i_m (secant, as the curve is given), iterated with the circuit
+    (core loss left out of E: the caller's R_c sits at the terminals)."""
+    w = 2 * math.pi * machine.rated_frequency_hz
+    table_i = list(machine.saturation_current_a)
+    table_psi = list(machine.saturation_flux_vs)
+    x_m = w * machine.magnetising_h
+    for _ in range(50):
+        circuit = EquivalentCircuit(
+            r_s=machine.stator_resistance_ohm, x_ls=w * machine.stator_leakage_h, x_m=x_m,
+            x_lr=w * machine.rotor_leakage_h, r_r=machine.rotor_resistance_ohm * r_r_factor,
+            v_phase_rms=machine.rated_voltage_v / math.sqrt(3), f_hz=w / (2 * math.pi),
+            poles=2 * machine.pole_pairs)
+        psi = math.sqrt(2) * efficiency_with_core_loss(circuit, slip, math.inf, 0.0)["e"] / w
+        if not table_psi[0] < psi < table_psi[-1]:
+            raise ValueError("the flux lies outside the magnetising curve")
+        k = next(k for k in range(1, len(table_psi)) if table_psi[k] >= psi)
+        i_m = table_i[k - 1] + (psi - table_psi[k - 1]) * (table_i[k] - table_i[k - 1]) / (
+            table_psi[k] - table_psi[k - 1])
+        x_m = w * psi / i_m
+    return circuit
 
 
 #: Krause, Wasynczuk & Sudhoff, Analysis of Electric Machinery and Drive Systems, 2nd ed.

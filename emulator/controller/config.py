@@ -66,6 +66,10 @@ class ControllerConfig:
     line_converter_links: tuple[int, ...] = ()
     inverter_names: tuple[str, ...] = ()
     inverter_links: tuple[int, ...] = ()
+    #: the board's own current acquisition ([sensors.current]): its filter's time constant
+    #: and the sample's age at the exchange, s
+    current_filter_s: float = 0.0
+    current_sample_age_s: float = 0.0
 
     @property
     def rated_torque_nm(self) -> float:
@@ -165,4 +169,6 @@ def config_from_profile(path, period_s: float | None = None) -> ControllerConfig
         line_converter_links=tuple(u.dc_link for u in p.line_converters),
         inverter_names=tuple(c.name for c in p.converters),
         inverter_links=tuple(c.dc_link for c in p.converters),
+        current_filter_s=p.sensors.current.filter_s if p.sensors else 0.0,
+        current_sample_age_s=p.sensors.current.sample_age_s if p.sensors else 0.0,
     )

@@ -98,6 +98,7 @@ class ReferenceController:
                                   for i in range(len(cfg.link_names))]
         self.block_until = [0.0] * n_inv
         self.hardware_trips: list[list[float]] = [[] for _ in range(n_inv)]
+        self.hardware_latched = [False] * n_inv  # the trip bit at the last sample
         self.demanded_at = [-math.inf] * n_inv
         self.released = [False] * n_inv  # off since the demand ended (see the gates below)
         self.t = 0.0
@@ -303,16 +304,20 @@ class ReferenceController:
             if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
                 self._raise(events.INVERTER_OVERCURRENT)
                 self.block_until[k] = self.t + 0.1
-            # the gate drivers' own trip (bit 3): blocked by the hardware already; keep the
-            # gates off a while, then reset the drivers for the last three periods of it (the
-            # reset acts a command delay later, and its effect shows a sample after that)
+            # the gate drivers' own trip (bit 3): blocked by the hardware already. Each new
+            # trip (the bit rising, also during a block of our own) is reported and
+            # counted; keep the gates off a while, then reset the drivers for the last
+            # three periods of it (the reset acts a command delay later, and its effect
+            # shows a sample after that)
             tripped = int(y[self.ix_gate_fault[k]]) & HARDWARE_TRIP_BIT
-            if tripped and self.t >= self.block_until[k]:
+            if tripped and not self.hardware_latched[k]:
                 self._raise(events.HARDWARE_TRIP)
                 recent = [t for t in self.hardware_trips[k] if self.t - t < HARDWARE_WINDOW_S]
                 self.hardware_trips[k] = [*recent, self.t]
                 isolate = len(self.hardware_trips[k]) >= HARDWARE_TRIPS_TO_ISOLATE
-                self.block_until[k] = math.inf if isolate else self.t + HARDWARE_RESET_S
+                self.block_until[k] = (math.inf if isolate
+                                       else max(self.block_until[k], self.t + HARDWARE_RESET_S))
+            self.hardware_latched[k] = bool(tripped)
             out[self.ox_reset[k]] = float(
                 bool(tripped) and self.block_until[k] - self.t < 3.5 * period_s)
             if factors[k] < 0.95:

@@ -132,6 +132,7 @@ from .machine import (
     step_flux_sine,
     torque,
 )
+from .probe import probe_values
 from .shaft import (
     axle_loads,
     brake_cylinders,
@@ -281,9 +282,12 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     ist[k, IS_IA] = ia
     ist[k, IS_IB] = ib
     ist[k, IS_IC] = ic
-    # the gate drivers' hardware trip: a phase current past the threshold blocks the gates
-    # from the next sub-step and latches until the controller resets it (desaturation
-    # and overcurrent comparators act within microseconds: well inside a sub-step)
+    # the gate drivers' hardware trip, an overcurrent comparator on the phase currents
+    # (a desaturation detector acts alike on a shorted leg): a current past the threshold
+    # at a sub-step's end blocks the gates from the next sub-step and latches until the
+    # controller resets it. Real comparators act within microseconds; here the block
+    # comes up to a sub-step later, an overshoot of about di/dt h (100-150 A on the Tern
+    # at 125 us), and the comparator also sees diode currents with the gates blocked
     if (ipar[k, IP_HW_ON] > 0.5 and source != SOURCE_SINE
             and max(abs(ia), abs(ib), abs(ic)) > ipar[k, IP_I_TRIP]):
         ist[k, IS_HW_TRIP] = 1.0
@@ -303,11 +307,12 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
 @compiled
 def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat_psi,
                   ipar, iint, iu, ist, lst, tpar, tu, ts, sp, harmonics, ss, lp, li, lu, ls2,
-                  kp, ku, i_link):
+                  kp, ku, i_link, probe_src, probe_row, probe_col, trace):
     """Advance every converter, motor, axle and the train by n_sub sub-steps of h.
 
     Arrays are laid out as in layout.py and updated in place. t0 is the plant time at
     the start of the frame, s; periodic sources are evaluated at each sub-step's instant.
+    After each sub-step s, trace[s] takes the probed values (probe.py).
     """
     n_i = ipar.shape[0]
     frame = n_sub * h
@@ -352,6 +357,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
             if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN:
                 ms[m, MS_E_SLIP] -= ms[m, MS_CREEP_FORCE] * v_avg * h
                 ms[m, MS_CREEP_VEL] = ms[m, MS_OMEGA_W] * mpar[m, MP_WHEEL_R] - v_new
+        probe_values(probe_src, probe_row, probe_col, ss, ls2, lst, ist, ms, trace[s])
 
     for k in range(n_i):
         ist[k, IS_IDC] /= frame

@@ -155,16 +155,20 @@ def _contactors(lp, lu, ls2, sp, ss, h):
         if cmd == 0.0:  # controller commands it open (acknowledges); then it may close
             ss[SS_LINE_TRIP] = 0.0
         cmd = 0.0
-    if cmd != ss[SS_BREAKER]:
+    if ss[SS_ARC] >= 0.0:
+        # opening: trip-free, the breaker completes its opening whatever is commanded
+        # meanwhile; a close then waits its closing delay from the open state
+        ss[SS_ARC] += h
+        ss[SS_BREAKER_TIMER] = sp[SP_BREAKER_DELAY]
+    elif cmd != ss[SS_BREAKER]:
         if cmd == 0.0:
-            ss[SS_ARC] = 0.0 if ss[SS_ARC] < 0.0 else ss[SS_ARC] + h
+            ss[SS_ARC] = 0.0  # the contacts part: the arc burns through this sub-step
         else:
             ss[SS_BREAKER_TIMER] -= h
             if ss[SS_BREAKER_TIMER] <= 0.0:
                 ss[SS_BREAKER] = 1.0
     else:
         ss[SS_BREAKER_TIMER] = sp[SP_BREAKER_DELAY]
-        ss[SS_ARC] = -1.0  # closed again before the arc cleared
     for k in range(lp.shape[0]):
         for cmd_col, state_col, timer_col, delay_col in ((LU_PRE_CMD, LS2_PRE, LS2_PRE_TIMER,
                                                           LP_PRE_DELAY),
@@ -186,10 +190,12 @@ def _contactors(lp, lu, ls2, sp, ss, h):
 
 
 @compiled_inline
-def _cleared(arc, i_old, i_new, max_arc) -> bool:
-    """Whether an arc clears in this step: its current has reached zero (changed sign or
-    stopped), or it has burned as long as the switch allows."""
-    return arc >= 0.0 and (i_old * i_new <= 0.0 or arc >= max_arc)
+def _cleared(arc, i_old, i_new, max_arc, h) -> bool:
+    """Whether an arc clears at the end of this step: its current has reached zero
+    (changed sign or stopped), or by the step's end it will have burned (arc, the time
+    before this step, plus h) as long as the switch allows. A maximum that is not a whole
+    number of sub-steps is cut at the last step end within it (never beyond)."""
+    return arc >= 0.0 and (i_old * i_new <= 0.0 or arc + 2.0 * h > max_arc + 1e-12)
 
 
 @compiled_inline
@@ -263,13 +269,14 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         i_new = (b_k - corr) / a_k
         if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
             i_new = 0.0  # a diode bridge does not reverse its current within a step
-        if _cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC]):
+        if _cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC], h):
             # the arc clears at the current's zero (or is cut): both contacts that are
             # commanded open are open; what the leakage still held goes into the arc
             ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * i_new * i_new
-            if lu[k, LU_LINE_CMD] < 0.5:
+            # (a contact whose own delay has not run out yet stays as it is)
+            if lu[k, LU_LINE_CMD] < 0.5 and ls2[k, LS2_LINE_TIMER] <= 0.0:
                 ls2[k, LS2_LINE] = 0.0
-            if lu[k, LU_PRE_CMD] < 0.5:
+            if lu[k, LU_PRE_CMD] < 0.5 and ls2[k, LS2_PRE_TIMER] <= 0.0:
                 ls2[k, LS2_PRE] = 0.0
             ls2[k, LS2_ARC] = -1.0
             new_i_after = 0.0
@@ -304,10 +311,13 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     ip_old = ss[SS_IP]
     ip_new = sum_new / n
     ss[SS_IP] = ip_new
-    if _cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC]):
+    if _cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h):
         _open_breaker(sp, ss, lp, ls2, n)
-    elif sp[SP_HW_LINE_ON] > 0.5 and abs(ip_new) > sp[SP_I_LINE_TRIP]:
-        ss[SS_LINE_TRIP] = 1.0  # the breaker's overcurrent release: opens from the next step
+    elif (sp[SP_HW_LINE_ON] > 0.5 and ss[SS_ARC] < 0.0
+          and abs(ip_new) > sp[SP_I_LINE_TRIP]):
+        # the breaker's overcurrent release: opens from the next step (while the breaker
+        # is already opening, the arc's current is its to clear, not a new trip)
+        ss[SS_LINE_TRIP] = 1.0
     ip_avg = 0.5 * (ip_old + ip_new)
     di_dt = (ip_new - ip_old) / h
     up = e - sp[SP_R] * ip_avg - sp[SP_L] * di_dt  # mean over the step

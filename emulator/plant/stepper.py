@@ -30,6 +30,7 @@ from .params import (
     TrainParams,
     TrainsetParams,
 )
+from .probe import Probes
 
 
 class Plant:
@@ -51,6 +52,7 @@ class Plant:
         self._n_sub, self._h = 1, params.substep_s
         self.frames = 0
         self.substeps = 0
+        self.probes = Probes()  # values the measurement chain reads at every sub-step
         build_motor_side(self, params)
         build_load_transfer(self, params)
         build_line_side(self, params, ideal_dc_links or params.transformer is None)
@@ -118,7 +120,9 @@ class Plant:
                       self.mu, self.ms, self.mx, self.sat_i, self.sat_psi, self.ipar,
                       self.iint, self.iu, self.ist, self.lst, self.tpar, self.tu, self.ts,
                       self.sp, self.harmonics, self.ss, self.lp, self.li, self.lu, self.ls2,
-                      self.kp, self.ku, self.i_link)
+                      self.kp, self.ku, self.i_link, self.probes.src, self.probes.row,
+                      self.probes.col, self.probes.rows_for(n_sub))
+        self.probes.took(self.frames + 1, n_sub, h)
         row = self.frames % len(self._pq_ring)
         new = self.ss[L.SS_PQ_T:L.SS_PQ_IS + 1]
         self._pq_sum += new - self._pq_ring[row]

@@ -220,7 +220,7 @@ def load_trainset(path: Path | str) -> TrainsetParams:
     for i, lk in enumerate(links):
         if i not in fed:
             raise root.error("dc_link", f"link {lk.name!r} has no line converter feeding it")
-    sensors = parse_sensors(root.table("sensors")) if root.has("sensors") else SensorParams()
+    sensors = parse_sensors(root.table("sensors"), frame) if root.has("sensors") else SensorParams()
     motor_control = "scalar"
     effort_limits = None
     if root.has("controller"):  # the reference controller's settings

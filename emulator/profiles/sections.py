@@ -137,9 +137,19 @@ def parse_inverter(t: Table) -> InverterParams:
     return inv
 
 
-def parse_channel(t: Table, unit: str, lo: float, hi: float) -> ChannelSpec:
-    """A sensor channel table: gain, offset, noise, filter, ADC range and bits."""
+def parse_channel(t: Table, unit: str, lo: float, hi: float, frame_s: float) -> ChannelSpec:
+    """A sensor channel table: gain, offset, noise, filter, ADC range and bits, and how the
+    board samples: at an instant (``sample_age_us`` before the exchange, 0 by default)
+    or as the mean over the frame (``sampling = "frame_average"``)."""
+    sampling = t.string("sampling", SAMPLINGS) if t.has("sampling") else "instant"
+    age = 0.0
+    if t.has("sample_age_us"):
+        if sampling != "instant":
+            raise t.error("sample_age_us", "only an instantaneous sample has an age")
+        age = t.number("sample_age_us", "us", 0.0, frame_s * 1e6, scale=1e-6)
     spec = ChannelSpec(
+        frame_average=sampling == "frame_average",
+        sample_age_s=age,
         gain=t.number("gain", "1", 0.0, 10.0, lo_open=True),
         offset=t.number(f"offset_{unit}", unit, lo, hi),
         noise_rms=t.number(f"noise_rms_{unit}", unit, 0.0, hi),
@@ -154,7 +164,10 @@ def parse_channel(t: Table, unit: str, lo: float, hi: float) -> ChannelSpec:
     return spec
 
 
-def parse_sensors(t: Table) -> SensorParams:
+SAMPLINGS = ("instant", "frame_average")
+
+
+def parse_sensors(t: Table, frame_s: float) -> SensorParams:
     enc = t.table("encoder")
     lines = enc.integer("lines_per_rev", 1, 100000)
     # a disc mounted off centre: a once-per-revolution angle error (peak, arc minutes);
@@ -167,16 +180,16 @@ def parse_sensors(t: Table) -> SensorParams:
              if enc.has("pitch_error_pct") else 0.0)
     enc.finish()
     params = SensorParams(
-        current=parse_channel(t.table("current"), "a", -1e5, 1e5),
-        voltage=parse_channel(t.table("voltage"), "v", -1e5, 1e5),
-        speed=parse_channel(t.table("speed"), "rad_s", -1e4, 1e4),
-        temperature=parse_channel(t.table("temperature"), "degc", -300.0, 1000.0),
-        line_voltage=parse_channel(t.table("line_voltage"), "v", -1e5, 1e5),
-        line_current=parse_channel(t.table("line_current"), "a", -1e5, 1e5),
+        current=parse_channel(t.table("current"), "a", -1e5, 1e5, frame_s),
+        voltage=parse_channel(t.table("voltage"), "v", -1e5, 1e5, frame_s),
+        speed=parse_channel(t.table("speed"), "rad_s", -1e4, 1e4, frame_s),
+        temperature=parse_channel(t.table("temperature"), "degc", -300.0, 1000.0, frame_s),
+        line_voltage=parse_channel(t.table("line_voltage"), "v", -1e5, 1e5, frame_s),
+        line_current=parse_channel(t.table("line_current"), "a", -1e5, 1e5, frame_s),
         encoder_lines=lines,
         encoder_eccentricity_rad=eccentricity,
         encoder_pitch_error=pitch,
-        shaft_torque=(parse_channel(t.table("shaft_torque"), "nm", -1e5, 1e5)
+        shaft_torque=(parse_channel(t.table("shaft_torque"), "nm", -1e5, 1e5, frame_s)
                       if t.has("shaft_torque") else None),
     )
     t.finish()

@@ -35,6 +35,14 @@ from emulator.plant.layout import (
     SS_LINE_TRIP,
     SS_UP,
 )
+from emulator.plant.probe import (
+    SRC_INVERTER,
+    SRC_LINE_CONVERTER,
+    SRC_LINK,
+    SRC_MOTOR,
+    SRC_SUPPLY,
+    probe_values,
+)
 from emulator.plant.stepper import LineCommands
 from emulator.protocol.signal_map import SignalMap
 from emulator.rig.sensors import AnalogChannels, Encoders, SensorParams
@@ -68,16 +76,15 @@ assert [f.name for f in fields(DriverDemand)] == [
     "regeneration_allowed", "current_limit_a", "emergency_loop_closed"]
 
 
-# sources of a gather plan
-SRC_SUPPLY, SRC_LINE_CONVERTER, SRC_LINK, SRC_INVERTER, SRC_MOTOR = range(5)
-
 
 class MeasurementSampler:
     """Builds y_k from the plant state (never from the command of the same exchange).
 
     A gather plan, made once from the signal map, says for every measured value which
     state array, row and column it comes from; analog values then pass the sensor chain,
-    flags go through as they are.
+    flags go through as they are. The analog values are also the plant's probes: the
+    sensor chain sees them at every sub-step of the frame (its filters act through the
+    frame, and a channel may be sampled before the frame's end or averaged over it).
     """
 
     def __init__(self, plant: Plant, signal_map: SignalMap, sensors: SensorParams | None,
@@ -129,6 +136,9 @@ class MeasurementSampler:
                       np.array([p[3] for p in plan], dtype=np.int64),
                       np.array([p[4] for p in plan], dtype=np.float64))
         self._n_analog = len(analog)
+        plant.probes.set(*(p[:len(analog)] for p in self._plan[:3]))
+        self._offsets = self._plan[3][:len(analog)].copy()
+        self._sampled_frame = -1
         self._analog_pos = np.array([names.index(a[0]) for a in analog], dtype=np.int64)
         self._flag_pos = np.array([names.index(f[0]) for f in flags], dtype=np.int64)
         self.encoders = Encoders(plant.n_motors, sensors.encoder_lines,
@@ -145,6 +155,7 @@ class MeasurementSampler:
         self._train_pos = names.index("train.effort_demand")
         self._values = np.zeros(len(plan))
         self._angle = np.zeros(plant.n_motors)
+        self._shaft = np.zeros(plant.n_motors)
         self._train = np.zeros(8)
         self._out = np.zeros(len(names))
 
@@ -154,39 +165,53 @@ class MeasurementSampler:
         p = self.plant
         src, row, col, off = self._plan
         _gather(src, row, col, off, p.ss, p.ls2, p.lst, p.ist, p.ms, self._values,
-                self._angle)
+                self._angle, self._shaft)
         n = self._n_analog
-        analog = self.analog.sample(self._values[:n], period_s)
+        probes = p.probes
+        if probes.frame == p.frames and self._sampled_frame == p.frames - 1:
+            # one frame since the last sample: its sub-steps, the last at this instant
+            trace = probes.trace[:probes.n_sub]
+            _complete_trace(trace, self._offsets, self._values)
+            h = probes.h
+        else:  # a first sample, or frames the chain did not see: the present values
+            trace = self._values[:n].reshape(1, n)
+            h = period_s
+        self._sampled_frame = p.frames
+        analog = self.analog.sample(trace, h)
         enc = self.encoders
-        enc.distort(self._angle)
+        enc.distort(self._angle)  # now the angles the discs show
         self._train[:] = driver.values()
         _assemble(analog, self._analog_pos, self._values[n:], self._flag_pos, self._angle,
                   enc.edges_per_rev / (2 * math.pi), enc.edge_scale, enc.count_offset,
                   enc.COUNTER_MODULUS,
                   self._count_pos, self.gate_fault, p.ist, self._fault_pos, self._train,
                   self._train_pos, out)
-        out[self._capture_pos] = enc.captures(self._angle, p.time_s)
+        out[self._capture_pos] = enc.captures(self._shaft, self._angle, p.time_s)
         return out
 
 
 @nb.njit(cache=True)
-def _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle):
-    """Plant values by the plan, and the shaft angles for the encoders."""
+def _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft):
+    """Plant values by the plan, and the shaft angles for the encoders (twice: one copy
+    becomes the angles the discs show)."""
+    probe_values(src, row, col, ss, ls2, lst, ist, ms, values)
     for i in range(src.shape[0]):
-        s = src[i]
-        if s == SRC_SUPPLY:
-            v = ss[col[i]]
-        elif s == SRC_LINE_CONVERTER:
-            v = ls2[row[i], col[i]]
-        elif s == SRC_LINK:
-            v = lst[row[i], col[i]]
-        elif s == SRC_INVERTER:
-            v = ist[row[i], col[i]]
-        else:
-            v = ms[row[i], col[i]]
-        values[i] = v + off[i]
+        values[i] += off[i]
     for m in range(ms.shape[0]):
         angle[m] = ms[m, MS_THETA_M]
+        shaft[m] = angle[m]
+
+
+@nb.njit(cache=True)
+def _complete_trace(trace, offsets, values):
+    """The probes' rows in the measured units (the offsets added), the last row the
+    values gathered at the sampling instant."""
+    n = trace.shape[0]
+    for s in range(n - 1):
+        for i in range(trace.shape[1]):
+            trace[s, i] += offsets[i]
+    for i in range(trace.shape[1]):
+        trace[n - 1, i] = values[i]
 
 
 @nb.njit(cache=True)

@@ -1,11 +1,19 @@
 """The measurement chain: what the controller's sensors and ADCs make of the plant state.
 
-Each analog channel: y = saturate(quantise(filter(gain x + offset + noise))), in that
-order: transducer gain and offset, white noise from the rig's one seeded generator, a
-first-order anti-alias/filter lag (exact discretisation over the frame, y += (1 - e^(-T/tau))
-(x - y)), the converter's input range, then the ADC's step (range / 2^bits). Encoders
-count edges (4 per line, quadrature) into an unsigned 16-bit counter that wraps, as a
-board's timer does; a controller derives speed from count differences over its period.
+Each analog channel, in this order: transducer gain and offset; a first-order
+anti-alias/filter lag integrated through every sub-step of the frame (the plant probes
+the channel's value at each sub-step; the filter is stepped exactly for an input linear
+between sub-steps, so a filter keeps its lag whatever the frame, and one shorter than
+the frame does not vanish); the sample the board takes, either at an instant (the
+exchange, or a stated age before it, as a board sampling at a point of its PWM carrier)
+or the mean over the frame (as a board averaging its samples over the period); white
+noise on the sample, from the rig's one seeded generator (noise_rms is what the board
+sees on its samples, for a frame average the noise of that average: a board averaging N
+conversions has 1/sqrt N of one conversion's); the converter's input range; the ADC's
+step (range / 2^bits), its top code one step below the range's top.
+Encoders count edges (4 per line, quadrature) into an unsigned 16-bit counter that
+wraps, as a board's timer does; a controller derives speed from count differences over
+its period.
 
 Fault hooks (used by the fault catalogue): per channel an extra gain, an extra offset
 and a stuck value (NaN: not stuck); per encoder a count offset. Measurements depend only
@@ -29,6 +37,8 @@ class ChannelSpec:
     offset: float = 0.0
     noise_rms: float = 0.0
     filter_s: float = 0.0
+    frame_average: bool = False  # the mean over the frame, else an instantaneous sample
+    sample_age_s: float = 0.0  # an instantaneous sample's age at the exchange
     range_lo: float = -math.inf
     range_hi: float = math.inf
     adc_bits: int = 0  # 0: not quantised
@@ -59,67 +69,122 @@ class SensorParams:
     shaft_torque: ChannelSpec | None = None
 
 
+# the rows of a bank's channel table (one column a channel)
+(C_GAIN, C_FAULT_GAIN, C_OFFSET, C_FAULT_OFFSET, C_DECAY, C_SLOPE, C_INPUT, C_FILTERED,
+ C_AVERAGE, C_AGE, C_NOISE, C_LO, C_HI, C_LSB, C_STUCK, C_NORMAL, N_ROWS) = range(17)
+
+
 class AnalogChannels:
-    """A bank of analog channels sampled together once per frame."""
+    """A bank of analog channels, filtered through the frame and sampled once per frame.
+
+    The channels' data sit in one table, a row each (C_*), which the compiled chain
+    takes whole; the named attributes are views of its rows (the fault hooks write
+    through them)."""
 
     def __init__(self, specs: list[ChannelSpec], rng: np.random.Generator) -> None:
         self.rng = rng
-        self.gain = np.array([s.gain for s in specs])
-        self.offset = np.array([s.offset for s in specs])
-        self.noise = np.array([s.noise_rms for s in specs])
+        n = len(specs)
+        self.table = np.zeros((N_ROWS, n))
+        t = self.table
+        t[C_GAIN] = [s.gain for s in specs]
+        t[C_FAULT_GAIN] = 1.0
+        t[C_OFFSET] = [s.offset for s in specs]
+        t[C_NOISE] = [s.noise_rms for s in specs]
+        t[C_LO] = [s.range_lo for s in specs]
+        t[C_HI] = [s.range_hi for s in specs]
+        t[C_LSB] = [s.lsb for s in specs]
+        t[C_AVERAGE] = [s.frame_average for s in specs]
+        t[C_AGE] = [s.sample_age_s for s in specs]
+        t[C_STUCK] = np.nan
         self.tau = np.array([s.filter_s for s in specs])
-        self.lo = np.array([s.range_lo for s in specs])
-        self.hi = np.array([s.range_hi for s in specs])
-        self.lsb = np.array([s.lsb for s in specs])
-        self._quantised = self.lsb > 0
+        self.gain, self.offset, self.noise = t[C_GAIN], t[C_OFFSET], t[C_NOISE]
+        self.lo, self.hi, self.lsb = t[C_LO], t[C_HI], t[C_LSB]
+        # fault hooks: an extra gain and offset, a stuck value (NaN: not stuck)
+        self.fault_gain, self.fault_offset, self.stuck = (t[C_FAULT_GAIN], t[C_FAULT_OFFSET],
+                                                          t[C_STUCK])
         self._noisy = bool(np.any(self.noise > 0))
-        # fault hooks
-        self.fault_gain = np.ones(len(specs))
-        self.fault_offset = np.zeros(len(specs))
-        self.stuck = np.full(len(specs), np.nan)
-        self._state: np.ndarray | None = None
-        self._out = np.zeros(len(specs))
-        self._no_noise = np.zeros(len(specs))
-        self._alpha_for: float = -1.0
-        self._alpha = np.zeros(len(specs))
+        self._started = False
+        self._out = np.zeros(n)
+        self._coeffs_for: float = -1.0
 
     def set_noise(self, i: int, rms: float) -> None:
         """Channel i's noise, rms in its unit (a fault hook)."""
         self.noise[i] = rms
         self._noisy = bool(np.any(self.noise > 0))
 
-    def sample(self, true_values: np.ndarray, period_s: float) -> np.ndarray:
-        """The channel outputs for the plant values at the sampling instant."""
-        if period_s != self._alpha_for:
-            tau = np.maximum(self.tau, 1e-300)
-            self._alpha = np.where(self.tau > 0, np.exp(-period_s / tau), 0.0)
-            self._alpha_for = period_s
-        normals = (self.rng.standard_normal(len(true_values)) if self._noisy
-                   else self._no_noise)
-        if self._state is None:
-            self._state = np.zeros(len(true_values))
-            self._out = np.zeros(len(true_values))
-            _chain(true_values, self.gain, self.fault_gain, self.offset, self.fault_offset,
-                   self.noise, normals, np.zeros(len(true_values)), self._state, self.lo,
-                   self.hi, self.lsb, self.stuck, self._out)
+    def sample(self, trace: np.ndarray, h: float) -> np.ndarray:
+        """The channel outputs after a frame whose sub-steps of length h ended with the
+        plant values trace[0], trace[1], ..., trace[-1] (the last row: the values at the
+        sampling instant that ends the frame). The first call starts every filter settled
+        at its input."""
+        t = self.table
+        if h != self._coeffs_for:
+            t[C_DECAY], t[C_SLOPE] = _filter_coefficients(self.tau, h)
+            self._coeffs_for = h
+        if self._noisy:
+            self.rng.standard_normal(out=t[C_NORMAL])
         else:
-            _chain(true_values, self.gain, self.fault_gain, self.offset, self.fault_offset,
-                   self.noise, normals, self._alpha, self._state, self.lo, self.hi,
-                   self.lsb, self.stuck, self._out)
+            t[C_NORMAL] = 0.0
+        if not self._started:
+            trace = trace[-1:]
+            t[C_INPUT] = trace[0] * t[C_GAIN] * t[C_FAULT_GAIN] + t[C_OFFSET] + t[C_FAULT_OFFSET]
+            t[C_FILTERED] = t[C_INPUT]
+            self._started = True
+        _chain(trace, h, t, self._out)
         return self._out
 
 
+def _filter_coefficients(tau: np.ndarray, h: float) -> tuple[np.ndarray, np.ndarray]:
+    """Exact step of tau dy/dt = x - y over h for an input linear between its samples
+    x0 -> x1 (first-order hold; e.g. Franklin, Powell & Workman, *Digital Control of
+    Dynamic Systems*, ch. 6, ramp-invariant discretisation):
+
+        y1 = a y0 + (1 - a) x1 + c (x1 - x0),  a = e^(-h/tau),  c = a - (tau/h)(1 - a)
+
+    A channel without a filter (tau = 0) passes its input: a = c = 0."""
+    safe = np.where(tau > 0, tau, 1.0)
+    a = np.where(tau > 0, np.exp(-h / safe), 0.0)
+    c = np.where(tau > 0, a - safe / h * (1.0 - a), 0.0)
+    return a, c
+
+
 @nb.njit(cache=True)
-def _chain(x, gain, fault_gain, offset, fault_offset, noise, normals, alpha, state, lo, hi,
-           lsb, stuck, out):
-    """gain/offset/noise -> first-order filter -> range -> ADC step -> stuck override."""
-    for i in range(x.shape[0]):
-        v = x[i] * gain[i] * fault_gain[i] + offset[i] + fault_offset[i] + noise[i] * normals[i]
-        state[i] += (1.0 - alpha[i]) * (v - state[i])
-        y = min(max(state[i], lo[i]), hi[i])
-        if lsb[i] > 0.0:
-            y = np.round(y / lsb[i]) * lsb[i]
-        out[i] = y if math.isnan(stuck[i]) else stuck[i]
+def _chain(trace, h, t, out):
+    """Per channel (a column of the table t): gain and offset, the filter through every
+    sub-step, the sample (at its instant, or the frame's mean by the trapezoidal rule),
+    then noise, the converter's range, the ADC step and a stuck value."""
+    n = trace.shape[0]
+    frame = n * h
+    for i in range(trace.shape[1]):
+        gain = t[C_GAIN, i] * t[C_FAULT_GAIN, i]
+        offset = t[C_OFFSET, i] + t[C_FAULT_OFFSET, i]
+        decay, slope = t[C_DECAY, i], t[C_SLOPE, i]
+        x0 = t[C_INPUT, i]
+        y0 = t[C_FILTERED, i]
+        mean = 0.0
+        at = frame - min(t[C_AGE, i], frame)  # the sampling instant, from the frame's start
+        sampled = 0.0
+        found = False
+        for s in range(n):
+            x1 = trace[s, i] * gain + offset
+            y1 = decay * y0 + (1.0 - decay) * x1 + slope * (x1 - x0)
+            mean += 0.5 * (y0 + y1)
+            if not found and at <= (s + 1) * h:
+                sampled = y0 + (y1 - y0) * (at - s * h) / h
+                found = True
+            x0, y0 = x1, y1
+        t[C_INPUT, i] = x0
+        t[C_FILTERED, i] = y0
+        y = mean / n if t[C_AVERAGE, i] > 0.5 else sampled
+        y += t[C_NOISE, i] * t[C_NORMAL, i]
+        lo, hi, lsb = t[C_LO, i], t[C_HI, i], t[C_LSB, i]
+        y = min(max(y, lo), hi)
+        if lsb > 0.0:
+            # the ADC's codes are lo + k lsb, k = 0 .. 2^bits - 1: the top of the range
+            # reads one step below it
+            y = min(np.round(y / lsb) * lsb, hi - lsb)
+        stuck = t[C_STUCK, i]
+        out[i] = y if math.isnan(stuck) else stuck
 
 
 class Encoders:
@@ -128,8 +193,8 @@ class Encoders:
     board's input-capture unit gives, for the period method of speed measurement).
 
     The edge time is found within the frame by linear interpolation of the shaft angle
-    between two samples (a constant speed over the frame), rounded to the timer's
-    microsecond.
+    between two samples (a constant speed over the frame); the capture is the timer's
+    count at that time (truncated to its microsecond, as an input capture latches it).
     """
 
     COUNTER_MODULUS = 1 << 16
@@ -148,6 +213,7 @@ class Encoders:
         self.pitch = (np.clip(rng.normal(0.0, pitch_error, (n, self.edges_per_rev)), -0.45,
                               0.45) if pitch_error > 0 else np.zeros((n, 1)))
         self._last_angle: np.ndarray | None = None
+        self._last_disc = np.zeros(n)
         self._last_time = 0.0
         self._capture = np.zeros(n, dtype=np.int64)
 
@@ -163,18 +229,22 @@ class Encoders:
         sits at (j + pitch_j) edge pitches, the whole disc off by e sin(angle)."""
         _distort(angle_rad, self.eccentricity, self.pitch, 2 * math.pi / self.edges_per_rev)
 
-    def captures(self, angle_rad: np.ndarray, time_s: float) -> np.ndarray:
-        """The edge-time captures (us, wrapping) after a sample of the shaft angles at
-        plant time time_s; an encoder without an edge since the last sample keeps its
-        capture."""
+    def captures(self, shaft_rad: np.ndarray, disc_rad: np.ndarray,
+                 time_s: float) -> np.ndarray:
+        """The edge-time captures (us, wrapping) after a sample at plant time time_s of
+        the shaft angles and the angles the discs show (distort()); an encoder without an
+        edge since the last sample keeps its capture."""
         if self._last_angle is None:
-            self._last_angle = angle_rad.copy()
+            self._last_angle = shaft_rad.copy()
+            self._last_disc = disc_rad.copy()
             self._last_time = time_s
-            self._capture = np.zeros(len(angle_rad), dtype=np.int64)
-        _captures(angle_rad, self._last_angle, time_s, self._last_time,
-                  self.edges_per_rev / (2 * math.pi), self.edge_scale, self.CAPTURE_MODULUS,
-                  self._capture)
-        self._last_angle[:] = angle_rad
+            self._capture = np.zeros(len(shaft_rad), dtype=np.int64)
+        _captures(shaft_rad, self._last_angle, disc_rad, self._last_disc, time_s,
+                  self._last_time, self.edges_per_rev / (2 * math.pi), self.edge_scale,
+                  self.eccentricity, self.pitch, 2 * math.pi / self.edges_per_rev,
+                  self.CAPTURE_MODULUS, self._capture)
+        self._last_angle[:] = shaft_rad
+        self._last_disc[:] = disc_rad
         self._last_time = time_s
         return self._capture
 
@@ -193,23 +263,36 @@ def _counts(angle, edges_per_rad, scale, offset, modulus, out):
 
 
 @nb.njit(cache=True)
-def _captures(angle, last, t, t_last, edges_per_rad, scale, modulus, capture):
-    """Update each capture with the time of the last edge crossed since the last sample
-    (angle linear in time between the samples)."""
-    for i in range(angle.shape[0]):
+def _captures(shaft, last, disc, last_disc, t, t_last, edges_per_rad, scale, eccentricity,
+              pitch, edge_rad, modulus, capture):
+    """Update each capture with the time of the last edge crossed since the last sample.
+
+    The edge is found on the disc's angles (as counted); the shaft angle at which it
+    passes the read head is its place on the disc, (j + pitch_j) edge pitches, less the
+    eccentricity's e sin(theta) (solved by a few fixed-point steps, |e| << 1); its time
+    follows with the shaft angle linear in time between the samples."""
+    for i in range(shaft.shape[0]):
         k = edges_per_rad * scale[i]
-        if k <= 0.0 or angle[i] == last[i]:
+        if k <= 0.0 or disc[i] == last_disc[i] or shaft[i] == last[i]:
             continue
-        now = math.floor(angle[i] * k)
-        before = math.floor(last[i] * k)
+        now = math.floor(disc[i] * k)
+        before = math.floor(last_disc[i] * k)
         if now == before:
             continue
         # the last edge crossed: entering edge `now` going up, leaving edge `now + 1`
         # going down
-        edge = now if angle[i] > last[i] else now + 1
-        frac = (edge / k - last[i]) / (angle[i] - last[i])
+        edge = now if disc[i] > last_disc[i] else now + 1
+        place = edge / k
+        if pitch.shape[1] > 1:
+            nearest = np.int64(math.floor(place / edge_rad + 0.5)) % pitch.shape[1]
+            place += pitch[i, nearest] * edge_rad
+        theta = place
+        for _ in range(4):
+            theta = place - eccentricity[i] * math.sin(theta)
+        frac = min(max((theta - last[i]) / (shaft[i] - last[i]), 0.0), 1.0)
         t_edge = t_last + frac * (t - t_last)
-        capture[i] = np.int64(math.floor(t_edge * 1e6 + 0.5)) % modulus
+        # the timer's count when the edge latches it (1e-6 us: round-off at a tick)
+        capture[i] = np.int64(math.floor(t_edge * 1e6 + 1e-6)) % modulus
 
 
 @nb.njit(cache=True)

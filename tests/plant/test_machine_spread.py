@@ -1,9 +1,11 @@
 """Motors on one inverter that differ: load sharing with a rotor-resistance difference.
 
-At a given slip in the small-slip region the torque of an induction machine is nearly
-proportional to s / R_r (Fitzgerald, Kingsley & Umans, *Electric Machinery*, the
-induction machine's torque-slip curve near synchronous speed): two motors on one
-inverter at one speed share the torque as dT/T ~ -dR_r/R_r.
+Two motors on one inverter at one speed (one slip) share the torque by their circuits:
+the torque of each from its T-equivalent circuit (Fitzgerald, Kingsley & Umans,
+*Electric Machinery*, ch. 6; tests/oracles.py), each at its own saturation. The
+first-order estimate near synchronous speed, T ~ s / R_r so dT/T ~ -dR_r/R_r, is the
+limit for a vanishing slip; at the rated 1.24 % slip the circuit's sensitivity is -0.91
+of it (it is shown, not the check).
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ import pytest
 
 from emulator.plant import Plant
 from emulator.profiles.reader import PROFILES_DIR, load_trainset
+from tests.oracles import saturated_circuit
 
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 MACHINE = PROFILES_DIR / "machines" / "tern-tm310.toml"
@@ -46,8 +49,11 @@ def test_rotor_resistance_difference_shares_torque_as_s_over_r(tmp_path) -> None
     for _ in range(3000):  # several rotor time constants (L_r / R_r = 0.62 s)
         plant.advance(None)
     t1, t2 = plant.read("motor.torque_nm")[:2]
-    first_order = -0.05 / 1.05  # dT/T = -dR_r/R_r
-    assert (t2 - t1) / t1 == pytest.approx(first_order, rel=0.10)
+    c1, c2 = saturated_circuit(m, 0.0124), saturated_circuit(m, 0.0124, r_r_factor=1.05)
+    expected = c2.torque(0.0124) / c1.torque(0.0124) - 1
+    # each torque within the plant's step error (~1e-4 relative): 1 % of the difference
+    assert (t2 - t1) / t1 == pytest.approx(expected, rel=0.01)
+    assert expected == pytest.approx(-0.91 * 0.05 / 1.05, rel=0.02)  # the first order
 
 
 def test_a_seeded_spread_is_drawn_within_its_tolerance_and_repeats(tmp_path) -> None:
@@ -62,3 +68,22 @@ def test_a_seeded_spread_is_drawn_within_its_tolerance_and_repeats(tmp_path) -> 
     b = load_trainset(tmp_path / "trainsets" / TRAINSET.name)
     assert [c.machine_factors for c in b.converters] == [c.machine_factors
                                                           for c in a.converters]
+
+
+def test_the_seeded_draws_are_uniform_over_the_tolerance(tmp_path) -> None:
+    """Over 40 seeds (320 motors) the rotor-resistance factors follow the stated
+    uniform(-3 %, +3 %) law: a Kolmogorov-Smirnov test (scipy.stats.kstest) does not
+    reject it at the 0.1 % level, and rejects a law a tenth as wide or one-sided."""
+    from scipy import stats
+
+    path = _with(tmp_path, "[train]", "[machine_spread]\nseed = 0\nrotor_resistance_pct = "
+                 "3.0\n\n[train]")
+    text = path.read_text()
+    draws = []
+    for seed in range(40):
+        path.write_text(text.replace("seed = 0\n", f"seed = {seed}\n"))
+        draws += [f[1] - 1 for c in load_trainset(path).converters for f in c.machine_factors]
+    assert len(draws) == 320
+    assert stats.kstest(draws, stats.uniform(-0.03, 0.06).cdf).pvalue > 1e-3
+    assert stats.kstest(draws, stats.uniform(-0.003, 0.006).cdf).pvalue < 1e-3
+    assert stats.kstest(draws, stats.uniform(0.0, 0.03).cdf).pvalue < 1e-3

@@ -5,7 +5,10 @@ hysteresis), and the main breaker's overcurrent release."""
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
+import pytest
 
 from emulator.plant import Commands, Plant
 from emulator.plant import layout as L  # noqa: N812
@@ -85,23 +88,59 @@ def test_hardware_chopper_fires_above_its_threshold_and_lets_go_below_the_lower(
     assert not firing[stop:].any() and volts[stop:].max() < link.hardware_chopper_on_v
 
 
-def test_line_overcurrent_opens_the_breaker_until_acknowledged() -> None:
+def _overcurrent(trip_a: float, steps: int, acknowledge_at: int | None = None):
+    """Primary currents, trip flags and breaker states each sub-step of a line drawing
+    past trip_a (inf: no release); acknowledge_at: the step at which the controller
+    commands the breaker open for one step, then closed again."""
     plant = energised()
     line = PhasorLineConverters(plant, 2000.0)  # per winding: 4 x 2000 / 26.3 = 304 A...
-    plant.sp[L.SP_I_LINE_TRIP] = 250.0  # ... past a release set at 250 A for the test
-    currents, trip = [], []
-    for _ in range(round(0.06 / H)):
+    plant.sp[L.SP_I_LINE_TRIP] = trip_a  # ... past a release set at 250 A for the test
+    currents, trip, closed = [], [], []
+    for k in range(steps):
+        line.line.breaker = k != acknowledge_at
         plant.advance(line.commands(H), H)
         currents.append(plant.ss[L.SS_IP])
         trip.append(plant.ss[L.SS_LINE_TRIP])
-    currents, trip = np.array(currents), np.array(trip)
+        closed.append(plant.read("line.breaker_closed"))
+    return np.array(currents), np.array(trip), np.array(closed), plant, line
+
+
+def _first_zero_after(currents: np.ndarray, start: int) -> int:
+    """The step at whose end the current passes zero, from start on."""
+    return start + int(np.flatnonzero(currents[start:] * currents[start - 1:-1] <= 0.0)[0])
+
+
+def test_line_overcurrent_opens_the_breaker_until_acknowledged() -> None:
+    reference, _, _, _, _ = _overcurrent(math.inf, round(0.06 / H))
+    currents, trip, _, plant, line = _overcurrent(250.0, round(0.06 / H))
     first = int(np.flatnonzero(np.abs(currents) > 250.0)[0])
     assert trip[first] == 1.0 and not trip[:first].any()
-    assert plant.read("line.breaker_closed") == 0.0  # opened at a current zero since
-    assert np.all(currents[-10:] == 0.0)
+    # the arc carries the current on (the same, its voltage left out) to its first zero
+    zero = _first_zero_after(reference, first + 1)
+    assert np.array_equal(currents[:zero], reference[:zero])
+    assert np.all(currents[zero:] == 0.0)
+    assert plant.read("line.breaker_closed") == 0.0
     for _ in range(200):  # the controller still commands it closed: it stays open
         plant.advance(line.commands(H), H)
     assert plant.read("line.breaker_closed") == 0.0
     line.line.breaker = False  # commanded open: acknowledged
     plant.advance(line.commands(H), H)
     assert plant.ss[L.SS_LINE_TRIP] == 0.0
+
+
+def test_the_breaker_is_trip_free() -> None:
+    """A close command while the tripped breaker still arcs does not keep it closed: it
+    completes its opening at the current zero and closes again only its closing delay
+    after that (common practice of circuit breakers: trip-free operation, e.g. IEC
+    62271-100's definition of a trip-free circuit breaker; from memory)."""
+    reference, _, _, _, _ = _overcurrent(math.inf, round(0.3 / H))
+    first = int(np.flatnonzero(np.abs(reference) > 250.0)[0])
+    # acknowledged in the step after the trip, then commanded closed again at once
+    currents, trip, closed, plant, _ = _overcurrent(250.0, round(0.3 / H), first + 1)
+    zero = _first_zero_after(reference, first + 1)
+    assert zero > first + 2  # the acknowledgement came while the arc burned
+    assert np.all(currents[zero:zero + 10] == 0.0) and not closed[zero]
+    delay = plant.sp[L.SP_BREAKER_DELAY]
+    reclosed = int(np.flatnonzero(closed[zero:])[0]) + zero
+    assert (reclosed - zero) * H == pytest.approx(delay, abs=H)
+    assert not trip[first + 1:reclosed].any()  # acknowledged; the arc is no new trip

@@ -1,0 +1,64 @@
+"""Probes: plant values taken at the end of every sub-step, for the measurement chain.
+
+A board's sensors see the plant continuously: their filters act between the control
+exchanges, and a board may sample at an instant of its carrier or average over a
+period. The rig's measurement chain therefore needs the measured values at every
+sub-step, not only at the frame's end. A probe list (made once, by the rig) names each
+value by its state array, row and column; the kernel writes one row of values per
+sub-step into a trace the chain reads after the frame.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .jit import compiled_inline
+
+# the state arrays a probe reads
+SRC_SUPPLY, SRC_LINE_CONVERTER, SRC_LINK, SRC_INVERTER, SRC_MOTOR = range(5)
+
+
+@compiled_inline
+def probe_values(src, row, col, ss, ls2, lst, ist, ms, out):
+    """out[i] = the value probe i names, for every probe."""
+    for i in range(src.shape[0]):
+        s = src[i]
+        if s == SRC_SUPPLY:
+            out[i] = ss[col[i]]
+        elif s == SRC_LINE_CONVERTER:
+            out[i] = ls2[row[i], col[i]]
+        elif s == SRC_LINK:
+            out[i] = lst[row[i], col[i]]
+        elif s == SRC_INVERTER:
+            out[i] = ist[row[i], col[i]]
+        else:
+            out[i] = ms[row[i], col[i]]
+
+
+class Probes:
+    """The probe list of a plant and the trace of its last frame (one row a sub-step)."""
+
+    def __init__(self) -> None:
+        self.src = np.zeros(0, dtype=np.int64)
+        self.row = np.zeros(0, dtype=np.int64)
+        self.col = np.zeros(0, dtype=np.int64)
+        self.trace = np.zeros((1, 0))
+        self.frame = -1  # the plant's frame count after the frame the trace holds
+        self.n_sub, self.h = 0, 0.0  # that frame's sub-steps
+
+    def took(self, frame: int, n_sub: int, h: float) -> None:
+        """The kernel has filled the trace with frame's n_sub sub-steps of h."""
+        self.frame, self.n_sub, self.h = frame, n_sub, h
+
+    def set(self, src: np.ndarray, row: np.ndarray, col: np.ndarray) -> None:
+        """Probe these values from the next frame on."""
+        self.src, self.row, self.col = (np.ascontiguousarray(a, dtype=np.int64)
+                                        for a in (src, row, col))
+        self.trace = np.zeros((self.trace.shape[0], len(self.src)))
+        self.frame = -1
+
+    def rows_for(self, n_sub: int) -> np.ndarray:
+        """The trace, with room for n_sub sub-steps."""
+        if self.trace.shape[0] < n_sub:
+            self.trace = np.zeros((n_sub, len(self.src)))
+        return self.trace
