@@ -26,6 +26,12 @@ def add_arguments(bench: argparse.ArgumentParser) -> None:
                        help="the rig's lateness with a dashboard attached vs detached")
     bench.add_argument("--link", action="store_true",
                        help="benchmark the rig's pacing and UDP link instead of the plant")
+    bench.add_argument("--throughput", action="store_true",
+                       help="the demo in lockstep with the reference controller in this "
+                       "process and over UDP: real-time factors and each stage's cost per "
+                       "frame")
+    bench.add_argument("--plant-seconds", type=float, default=400.0,
+                       help="--throughput: end each demo run at this plant time")
     bench.add_argument("--seconds", type=float, default=10.0,
                        help="length of each timed run of --link and --monitor")
     bench.add_argument("--soak", type=float, default=None, metavar="MINUTES",
@@ -71,6 +77,8 @@ def run(args: argparse.Namespace) -> int:
         console.print(f"p99 lateness attached / detached (mean of the two windows): "
                       f"{figures['p99_ratio_attached_to_detached']:.2f}")
         return 0
+    if args.throughput:
+        return _print_throughput(args, params.name)
     if args.link:
         from emulator.bench.link import link_benchmark
 
@@ -101,6 +109,29 @@ def run(args: argparse.Namespace) -> int:
     table.add_row("same frame by solve_ivp (RK45, machines only)",
                   f"{figures['solve_ivp_frame_us_median']:.0f} us")
     table.add_row("solve_ivp / plant", f"{figures['solve_ivp_ratio']:.0f}x")
+    Console().print(table)
+    return 0
+
+
+def _print_throughput(args: argparse.Namespace, name: str) -> int:
+    from emulator.bench.throughput import throughput_benchmark
+    from emulator.profiles.reader import resolve_profile
+
+    console.print(f"throughput: {name}, the demo in lockstep three times (in process, over "
+                  "UDP, in process with each stage timed and a recording)")
+    figures = throughput_benchmark(resolve_profile(args.profile), args.plant_seconds)
+    if args.json:
+        print(json.dumps(figures))
+        return 0
+    table = pairs_table(f"Lockstep throughput: {name}, {figures['plant_time_s']:.1f} s of "
+                        f"plant time, {figures['frames']} frames")
+    table.add_row("real-time factor, controller in process",
+                  f"{figures['inprocess_realtime_factor']:.1f}x")
+    table.add_row("real-time factor, controller over UDP",
+                  f"{figures['udp_realtime_factor']:.1f}x")
+    table.add_row("frame, instrumented run", f"{figures['frame_us_instrumented']:.1f} us")
+    for stage, us in figures["stage_us"].items():
+        table.add_row(f"  {stage.replace('_', ' ')}", f"{us:.1f} us")
     Console().print(table)
     return 0
 

@@ -36,6 +36,9 @@ from __future__ import annotations
 import cmath
 import math
 
+import numpy as np
+
+from . import slip_circuit as sc
 from .config import ControllerConfig
 from .flux_curve import MagnetisingCurve
 from .modulation import duties, space_vector
@@ -74,6 +77,8 @@ class ScalarControl:
         self.sign_band_a = 0.05 * math.sqrt(2) * i_rated * n_motors  # 5 % of rated
         self.f_slip_rated = cfg.rated_slip * cfg.rated_frequency_hz
         self.psi_rated = self._rated_main_flux()
+        self.circuit = np.array([self.rs, self.rr, self.lls, self.llr, float(self.p),
+                                 self.psi_rated])  # slip_circuit's constants
         self.w_breakdown = [0.0, 0.0]  # motoring, generating: signed, rad/s
         self.breakdown_age = [0, 0]  # periods until each is found anew
         self.breakdown_key = 0  # the direction searched last
@@ -102,43 +107,21 @@ class ScalarControl:
         return lo
 
     # --- the steady-state circuit, per motor, at the secant L_m of the present flux -----
+    # (compiled: slip_circuit.py)
     def _branches(self, w_sl: float, lm: float) -> tuple[complex, float]:
         """(I_s / psi_m, T / psi_m^2) at a slip frequency (rad/s)."""
-        rotor = 1j * w_sl / complex(self.rr, w_sl * self.llr)
-        torque = 1.5 * self.p * w_sl * self.rr / (self.rr**2 + (w_sl * self.llr) ** 2)
-        return 1.0 / lm + rotor, torque
+        return sc.branches(self.circuit, w_sl, lm)
 
     def operating_point(self, w_sl: float, w_r: float, u_room: float,
                         lm: float) -> tuple[float, float, float, complex]:
         """(torque N m, stator current A peak, main flux V s, stator voltage V) at a slip
         with the rotor at electrical speed w_r and u_room the voltage there is."""
-        y, t_per_psi2 = self._branches(w_sl, lm)
-        w_s = w_r + w_sl
-        g = complex(self.rs, w_s * self.lls) * y + 1j * w_s
-        psi = min(self.psi_rated, u_room / max(abs(g), 1e-9))
-        return t_per_psi2 * psi * psi, abs(y) * psi, psi, g * psi
+        return sc.operating_point(self.circuit, w_sl, w_r, u_room, lm)
 
     def breakdown_slip(self, sign: float, w_r: float, u_room: float, lm: float) -> float:
         """The slip frequency of the largest torque (rad/s, signed) at this voltage and
-        speed: golden-section search on the circuit's torque between a fifth and three
-        times R_r / (L_ls + L_lr), the breakdown slip without R_s and the magnetising
-        branch (its one maximum lies in there)."""
-        w_k = self.rr / (self.lls + self.llr)
-        lo, hi = 0.2 * w_k, 3.0 * w_k
-        g = (math.sqrt(5.0) - 1.0) / 2.0
-        a, b = hi - g * (hi - lo), lo + g * (hi - lo)
-        ta = abs(self.operating_point(sign * a, w_r, u_room, lm)[0])
-        tb = abs(self.operating_point(sign * b, w_r, u_room, lm)[0])
-        for _ in range(BISECTIONS):
-            if ta > tb:
-                hi, b, tb = b, a, ta
-                a = hi - g * (hi - lo)
-                ta = abs(self.operating_point(sign * a, w_r, u_room, lm)[0])
-            else:
-                lo, a, ta = a, b, tb
-                b = lo + g * (hi - lo)
-                tb = abs(self.operating_point(sign * b, w_r, u_room, lm)[0])
-        return sign * 0.5 * (lo + hi)
+        speed (golden-section search, slip_circuit.breakdown_slip)."""
+        return sc.breakdown_slip(self.circuit, sign, w_r, u_room, lm, BISECTIONS)
 
     def slip_for(self, torque: float, w_r: float, u_room: float) -> float:
         """The slip frequency (rad/s) that gives the torque per motor, within the slip
@@ -158,15 +141,14 @@ class ScalarControl:
         cap = SLIP_LIMIT_SHARE * self.w_breakdown[key]
         t_cap, i_cap, _, _ = self.operating_point(cap, w_r, u_room, lm)
         if i_cap > self.i_max:  # the current limit comes first: its slip
-            cap = _bisect(lambda w: self.operating_point(w, w_r, u_room, lm)[1] < self.i_max,
-                          cap)[0]
+            cap = sc.slip_for_current(self.circuit, self.i_max, cap, w_r, u_room, lm,
+                                      BISECTIONS)
             t_cap = self.operating_point(cap, w_r, u_room, lm)[0]
         self.torque_limit = abs(t_cap)
         if abs(torque) >= abs(t_cap):
             return cap
-        lo, hi = _bisect(
-            lambda w: abs(self.operating_point(w, w_r, u_room, lm)[0]) < abs(torque), cap)
-        return 0.5 * (lo + hi)
+        return sc.slip_for_torque(self.circuit, abs(torque), cap, w_r, u_room, lm,
+                                  BISECTIONS)
 
     def _low_frequency_weight(self, f_hz: float) -> float:
         """1 at standstill falling to 0 at TRIM_UP_TO of the rated frequency: how much the
@@ -310,13 +292,3 @@ class ScalarControl:
         f_slip = torque_per_motor / self.cfg.rated_torque_nm * self.f_slip_rated
         ratio = abs(f_s_estimate) / self.cfg.rated_frequency_hz
         return f_slip * max(ratio, 1.0) ** 2
-
-
-def _bisect(below, end: float) -> tuple[float, float]:
-    """The bracket [lo, hi] between 0 and end (either sign) where below(w) turns False,
-    below being True at 0 and monotone along the way: BISECTIONS halvings."""
-    lo, hi = 0.0, end
-    for _ in range(BISECTIONS):
-        mid = 0.5 * (lo + hi)
-        lo, hi = (mid, hi) if below(mid) else (lo, mid)
-    return lo, hi

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import pytest
 
-from emulator.commands.demo import run_reference_demo
+from emulator.scenario.demo_run import run_reference_demo
 from tests.controller.conftest import TRAINSET
 
 

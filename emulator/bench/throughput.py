@@ -1,0 +1,116 @@
+"""How fast a lockstep run goes: the demo with the reference controller, in the rig's
+process and in its own over UDP, and what each stage of a frame costs.
+
+The real-time factors come from plain runs (nothing measured inside them); the stage
+costs from a third, in-process run whose stages are each wrapped in a timer (and which
+records to a scratch file, so the recorder's share shows). Wall time counts from the
+first frame, so neither a controller process starting up nor the compile is in it.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import tempfile
+import time
+from collections import defaultdict
+from pathlib import Path
+
+#: the stages of a frame, in the order they are printed ("controller": the in-process
+#: reference controller with its own codec; a dashboard's cost, the monitor's, is
+#: `railrig bench --monitor`'s)
+STAGES = ("plant", "sampling", "codec", "controller", "program", "recording")
+
+
+def _timed(obj, name: str, stage: str, spent: dict[str, int]) -> None:
+    """Replace obj.name by a wrapper that adds its calls' time to spent[stage]."""
+    inner = getattr(obj, name)
+    clock = time.perf_counter_ns
+
+    def wrapper(*args, **kwargs):
+        start = clock()
+        try:
+            return inner(*args, **kwargs)
+        finally:
+            spent[stage] += clock() - start
+
+    setattr(obj, name, wrapper)
+
+
+class _FirstFrame:
+    """Notes when the plant first advances (the run's start, after any start-up)."""
+
+    def __init__(self, rig) -> None:
+        self.at: float | None = None
+        self.plant_s = 0.0
+        inner = rig.plant.advance
+
+        def advance(*args, **kwargs):
+            if self.at is None:
+                self.at = time.perf_counter()
+                self.plant_s = rig.plant.time_s
+            return inner(*args, **kwargs)
+
+        rig.plant.advance = advance
+
+
+async def _demo(profile, in_process: bool, max_plant_s: float, stages: bool):
+    from emulator.scenario.demo_run import run_reference_demo
+
+    spent: dict[str, int] = defaultdict(int)
+    marks: dict[str, object] = {}
+    scratch = tempfile.TemporaryDirectory() if stages else None
+
+    def setup(rig, tcu) -> None:
+        marks["first"] = _FirstFrame(rig)
+        marks["rig"] = rig
+        if not stages:
+            return
+        _timed(rig.plant, "advance", "plant", spent)
+        _timed(rig.sampler, "sample", "sampling", spent)
+        _timed(rig.codec, "encode", "codec", spent)
+        _timed(rig.codec, "decode", "codec", spent)
+        # in process the controller answers inside the rig's send: its time (with its
+        # own codec and the loop link's few calls) is the send's
+        _timed(rig.link, "send", "controller", spent)
+        if rig.program is not None:
+            _timed(rig.program, "update", "program", spent)
+        rig.start_recording(str(Path(scratch.name) / "bench.rrec"))
+        _timed(rig.recorder, "append", "recording", spent)
+
+    try:
+        summary = await run_reference_demo(profile, in_process=in_process,
+                                           max_plant_s=max_plant_s, setup=setup)
+        end = time.perf_counter()
+    finally:
+        rig = marks.get("rig")
+        if rig is not None and rig.recorder is not None:
+            rig.recorder.close()
+        if scratch is not None:
+            scratch.cleanup()
+    first = marks["first"]
+    wall = end - first.at
+    frames = rig.frame
+    out = {"plant_time_s": summary.plant_time_s, "wall_s": wall, "frames": frames,
+           "realtime_factor": (summary.plant_time_s - first.plant_s) / wall,
+           "completed": summary.completed}
+    if stages:
+        per_frame = {k: spent[k] / frames / 1e3 for k in STAGES}
+        per_frame["rig_rest"] = wall * 1e6 / frames - sum(per_frame.values())
+        out["stage_us"] = per_frame
+        out["frame_us"] = wall * 1e6 / frames
+    return out
+
+
+def throughput_benchmark(profile, max_plant_s: float = 400.0) -> dict:
+    """The demo's real-time factor in process and over UDP, and the stage costs (us a
+    frame, means over the run) of an instrumented in-process run."""
+    inprocess = asyncio.run(_demo(profile, True, max_plant_s, stages=False))
+    udp = asyncio.run(_demo(profile, False, max_plant_s, stages=False))
+    staged = asyncio.run(_demo(profile, True, max_plant_s, stages=True))
+    return {"inprocess_realtime_factor": inprocess["realtime_factor"],
+            "udp_realtime_factor": udp["realtime_factor"],
+            "stage_us": staged["stage_us"], "frame_us_instrumented": staged["frame_us"],
+            "frames": inprocess["frames"], "plant_time_s": inprocess["plant_time_s"],
+            "completed": inprocess["completed"] and udp["completed"],
+            "wall_s": {"inprocess": inprocess["wall_s"], "udp": udp["wall_s"],
+                       "instrumented": staged["wall_s"]}}
