@@ -82,6 +82,7 @@ def test_hardware_chopper_fires_above_its_threshold_and_lets_go_below_the_lower(
     volts, firing = np.array(volts), np.array(firing)
     assert firing[0] == 1.0  # the firmware commands no chopper: the hardware fires
     stop = int(np.flatnonzero(firing == 0.0)[0])
+    assert stop >= 2  # fired for a while (and the indices below stay in the run)
     # it lets go in the sub-step that takes the voltage below the lower threshold
     assert volts[stop - 1] < link.hardware_chopper_off_v <= volts[stop - 2]
     # and stays off while the voltage swings back (the 2f filter rings) below the upper one
