@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import math
 
+import numba as nb
+
 TWO_PI_3 = 2 * math.pi / 3
 _COS = tuple(complex(math.cos(x * TWO_PI_3), -math.sin(x * TWO_PI_3)) for x in range(3))
 
@@ -35,11 +37,24 @@ def duties(u: complex, u_dc: float, *, current: complex | None = None,
     """Duties (0..1) that give the stator-frame voltage vector u (amplitude-invariant,
     V) from a link at u_dc, with the dead time compensated for the current vector
     expected while they act (A, the inverter's total)."""
-    v = [(u * c).real for c in _COS]  # phase voltages, u cos(angle - k 2 pi / 3)
-    if current is not None and dead_time_s > 0.0:
-        du = dead_time_s * switching_frequency_hz * u_dc
-        for k, c in enumerate(_COS):
-            v[k] += du * min(max((current * c).real / sign_band_a, -1.0), 1.0)
-    v_cm = -0.5 * (max(v) + min(v))
+    compensate = current is not None and dead_time_s > 0.0
+    return list(leg_duties(u, u_dc, current if compensate else 0j, compensate,
+                           dead_time_s * switching_frequency_hz * u_dc, sign_band_a))
+
+
+@nb.njit(cache=True, error_model="numpy")
+def leg_duties(u, u_dc, current, compensate, du, sign_band_a):
+    """The three legs' duties (compiled: a few calls a period per inverter; ``py_func``
+    is its plain-Python twin). du: the dead time's voltage, t_d f_sw U_dc."""
+    v0 = (u * _COS[0]).real  # phase voltages, u cos(angle - k 2 pi / 3)
+    v1 = (u * _COS[1]).real
+    v2 = (u * _COS[2]).real
+    if compensate:
+        v0 += du * min(max((current * _COS[0]).real / sign_band_a, -1.0), 1.0)
+        v1 += du * min(max((current * _COS[1]).real / sign_band_a, -1.0), 1.0)
+        v2 += du * min(max((current * _COS[2]).real / sign_band_a, -1.0), 1.0)
+    v_cm = -0.5 * (max(v0, v1, v2) + min(v0, v1, v2))
     scale = max(u_dc, 1.0)
-    return [min(max(0.5 + (vx + v_cm) / scale, 0.0), 1.0) for vx in v]
+    return (min(max(0.5 + (v0 + v_cm) / scale, 0.0), 1.0),
+            min(max(0.5 + (v1 + v_cm) / scale, 0.0), 1.0),
+            min(max(0.5 + (v2 + v_cm) / scale, 0.0), 1.0))

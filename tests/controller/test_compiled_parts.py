@@ -1,5 +1,6 @@
-"""The scalar control's compiled circuit against the same code in plain Python (numba's
-``py_func``) and against the textbook circuit of tests/oracles.py.
+"""The reference controller's compiled parts (the scalar control's circuit and searches,
+the magnetising curve, the modulation) against the same code in plain Python (numba's
+``py_func``), and the circuit against the textbook one of tests/oracles.py.
 
 Compiled without fastmath, the arithmetic is IEEE 754 as Python's: the two agree to the
 last bit, or to a few units in the last place where numba's complex division and
@@ -15,6 +16,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from emulator.controller import flux_curve, modulation
 from emulator.controller import slip_circuit as sc
 from emulator.controller.config import config_from_profile
 from emulator.controller.motor_scalar import BISECTIONS, ScalarControl
@@ -66,3 +68,51 @@ def test_torque_is_the_textbook_circuits(control) -> None:
         u_peak = cfg.rated_voltage_v * math.sqrt(2 / 3)
         torque = sc.operating_point(c, w_sl, w - w_sl, u_peak, lm)[0]
         assert torque == pytest.approx(oracle.torque(slip), rel=1e-9)
+
+
+@settings(max_examples=200, deadline=None)
+@given(x=st.floats(0.0, 400.0))
+def test_magnetising_curve_compiled_and_plain_agree(control, x) -> None:
+    curve = control.curve
+    assert flux_curve.interpolate(x, curve.i, curve.psi) == flux_curve.interpolate.py_func(
+        x, curve.i, curve.psi)
+    psi = x / 100.0
+    assert flux_curve.secant_lm(psi, curve.i, curve.psi) == flux_curve.secant_lm.py_func(
+        psi, curve.i, curve.psi)
+
+
+def test_magnetising_curve_on_the_profiles_points(control) -> None:
+    """At the type test's points the curve gives their fluxes, and half way between two
+    points the mean of theirs (linear interpolation)."""
+    cfg = control.cfg
+    for i_m, psi in zip(cfg.saturation_current_a, cfg.saturation_flux_vs, strict=True):
+        assert control.curve.flux(i_m) == pytest.approx(psi, rel=1e-12)
+        assert control.curve.lm(psi) == pytest.approx(psi / i_m, rel=1e-12)
+    i0, i1 = cfg.saturation_current_a[1:3]
+    p0, p1 = cfg.saturation_flux_vs[1:3]
+    assert control.curve.flux(0.5 * (i0 + i1)) == pytest.approx(0.5 * (p0 + p1), rel=1e-12)
+
+
+@settings(max_examples=200, deadline=None)
+@given(u_re=st.floats(-1500.0, 1500.0), u_im=st.floats(-1500.0, 1500.0),
+       u_dc=st.floats(0.0, 4000.0), i_re=st.floats(-3000.0, 3000.0),
+       i_im=st.floats(-3000.0, 3000.0), compensate=st.booleans())
+def test_modulation_compiled_and_plain_agree(u_re, u_im, u_dc, i_re, i_im, compensate) -> None:
+    args = (complex(u_re, u_im), u_dc, complex(i_re, i_im), compensate, 3e-6 * 1000 * u_dc,
+            20.0)
+    assert _close(modulation.leg_duties(*args), modulation.leg_duties.py_func(*args))
+
+
+def test_modulation_gives_the_asked_line_voltages() -> None:
+    """Within the linear range the duties' differences times U_dc are the asked vector's
+    line-to-line voltages (the zero sequence cancels; Holmes & Lipo, ch. 6)."""
+    u, u_dc = cmath_rect(900.0, 0.7), 2000.0
+    d = modulation.duties(u, u_dc)
+    phases = [(u * complex(math.cos(k * 2 * math.pi / 3), -math.sin(k * 2 * math.pi / 3))).real
+              for k in range(3)]
+    for a, b in ((0, 1), (1, 2), (2, 0)):
+        assert (d[a] - d[b]) * u_dc == pytest.approx(phases[a] - phases[b], rel=1e-12)
+
+
+def cmath_rect(r: float, phi: float) -> complex:
+    return complex(r * math.cos(phi), r * math.sin(phi))
