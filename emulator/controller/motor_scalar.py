@@ -26,6 +26,10 @@ gets at low frequency.
 Modulation and dead-time compensation: ``modulation.duties``. Delay compensation: the
 angle is advanced to the middle of the period in which the command acts (1.5 T).
 
+The torque mode's period runs compiled (``scalar_kernel.py``, with the circuit and its
+searches in ``slip_circuit.py``); this class holds the configuration and names the
+state.
+
 ``f_command_hz``: classic V/f with a boost, a frequency command instead of a torque
 command (and optional slip compensation from the estimated air-gap power), for the
 speed-regulation check.
@@ -38,7 +42,7 @@ import math
 
 import numpy as np
 
-from . import slip_circuit as sc
+from . import scalar_kernel as sk
 from .config import ControllerConfig
 from .flux_curve import MagnetisingCurve
 from .modulation import duties, space_vector
@@ -54,6 +58,18 @@ TRIM_UP_TO = 0.5  # of the rated frequency
 LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple
 
 
+def _state(index: int, doc: str) -> property:
+    """A named view of one slot of the control's state array."""
+
+    def get(self) -> float:
+        return float(self.state[index])
+
+    def put(self, value: float) -> None:
+        self.state[index] = value
+
+    return property(get, put, doc=doc)
+
+
 class ScalarControl:
     """V/f with slip regulation and stator-drop compensation for one inverter."""
 
@@ -66,9 +82,6 @@ class ScalarControl:
         self.lls, self.llr = cfg.stator_leakage_h, cfg.rotor_leakage_h
         self.curve = MagnetisingCurve(cfg.magnetising_h, cfg.saturation_current_a,
                                       cfg.saturation_flux_vs)
-        self.theta = 0.0
-        self.theta_slip = 0.0  # angle-based slip regulation: the integrated slip, rad
-        self.f_s = 0.0
         self.u_peak_rated = cfg.rated_voltage_v * math.sqrt(2 / 3)
         self.volts_per_hz = self.u_peak_rated / cfg.rated_frequency_hz
         i_rated = cfg.rated_power_w / (math.sqrt(3) * cfg.rated_voltage_v * 0.87)
@@ -79,21 +92,58 @@ class ScalarControl:
         self.psi_rated = self._rated_main_flux()
         self.circuit = np.array([self.rs, self.rr, self.lls, self.llr, float(self.p),
                                  self.psi_rated])  # slip_circuit's constants
-        self.w_breakdown = [0.0, 0.0]  # motoring, generating: signed, rad/s
-        self.breakdown_age = [0, 0]  # periods until each is found anew
-        self.breakdown_key = 0  # the direction searched last
-        self.psi_m = self.psi_rated
-        self.w_slip = 0.0
-        self.u_trim = 1.0
-        self._i_prev: complex | None = None  # the last sample's current, per motor
-        # what each command carried (voltage, stator frequency Hz, slip rad/s, main flux),
-        # for the period just measured (sent two steps back) and the one after it
-        self._history = ((0j, 0.0, 0.0, self.psi_rated),) * 2
-        self.u_d_mean = 0.0
-        self.u_vec = 0j
-        self.torque_estimate = 0.0
+        k = np.zeros(sk.N_CONSTS)
+        k[sk.K_T], k[sk.K_N_MOTORS], k[sk.K_I_MAX] = self.T, n_motors, self.i_max
+        k[sk.K_SIGN_BAND], k[sk.K_RATED_HZ] = self.sign_band_a, cfg.rated_frequency_hz
+        k[sk.K_LINK_NOMINAL], k[sk.K_DEAD_TIME] = cfg.link_nominal_v, cfg.dead_time_s
+        k[sk.K_FSW], k[sk.K_VOLTAGE_MARGIN] = cfg.switching_frequency_hz, VOLTAGE_MARGIN
+        k[sk.K_SLIP_LIMIT_SHARE], k[sk.K_BISECTIONS] = SLIP_LIMIT_SHARE, BISECTIONS
+        k[sk.K_BREAKDOWN_EVERY], k[sk.K_FLUX_TRIM_S] = BREAKDOWN_EVERY, FLUX_TRIM_S
+        k[sk.K_FLUX_TRIM_RANGE], k[sk.K_TRIM_UP_TO] = FLUX_TRIM_RANGE, TRIM_UP_TO
+        k[sk.K_LINK_FILTER_S] = LINK_FILTER_S
+        self.consts = k  # the compiled step's constants (scalar_kernel.K_*)
+        # the control's state (scalar_kernel.S_*), read by name through the properties
+        # below: angles, stator frequency, main flux, slip, trim, the link's mean, the
+        # voltage sent, the estimates, the breakdown search, and what each command carried
+        # (voltage, stator frequency Hz, slip rad/s, main flux) for the period just
+        # measured (sent two steps back) and the one after it
+        self.state = np.zeros(sk.N_STATE)
+        self.state[[sk.S_PSI_M, sk.S_H0_PSI, sk.S_H1_PSI]] = self.psi_rated
+        self.state[sk.S_U_TRIM] = 1.0
         self._slip_torque = 0.0  # classic V/f's slip compensation: its filtered torque
-        self.torque_limit = 0.0
+
+    theta = _state(sk.S_THETA, "stator angle of the voltage's axis, rad")
+    theta_slip = _state(sk.S_THETA_SLIP, "angle-based slip regulation: the integrated slip")
+    f_s = _state(sk.S_F_S, "stator frequency of the last command, Hz")
+    psi_m = _state(sk.S_PSI_M, "main flux planned, V s")
+    w_slip = _state(sk.S_W_SLIP, "slip frequency of the last command, rad/s")
+    u_trim = _state(sk.S_U_TRIM, "the flux trim's factor on the voltage")
+    u_d_mean = _state(sk.S_U_D_MEAN, "the link's mean the plan uses, V")
+    torque_estimate = _state(sk.S_TORQUE_ESTIMATE, "torque per motor estimated, N m")
+    torque_limit = _state(sk.S_TORQUE_LIMIT, "the most torque per motor there is now, N m")
+
+    @property
+    def u_vec(self) -> complex:
+        """The stator voltage vector sent last, V."""
+        return complex(self.state[sk.S_U_VEC_RE], self.state[sk.S_U_VEC_IM])
+
+    @u_vec.setter
+    def u_vec(self, u: complex) -> None:
+        self.state[sk.S_U_VEC_RE], self.state[sk.S_U_VEC_IM] = u.real, u.imag
+
+    def _held(self) -> tuple[complex, float, float, float]:
+        """What the command acting in the period just measured carried: (voltage, stator
+        frequency Hz, slip rad/s, main flux V s)."""
+        s = self.state
+        return (complex(s[sk.S_H0_U_RE], s[sk.S_H0_U_IM]), s[sk.S_H0_F], s[sk.S_H0_SLIP],
+                s[sk.S_H0_PSI])
+
+    def _push_history(self) -> None:
+        s = self.state
+        s[sk.S_H0_U_RE:sk.S_H0_PSI + 1] = s[sk.S_H1_U_RE:sk.S_H1_PSI + 1]
+        u = self.u_vec
+        s[sk.S_H1_U_RE], s[sk.S_H1_U_IM] = u.real, u.imag
+        s[sk.S_H1_F], s[sk.S_H1_SLIP], s[sk.S_H1_PSI] = self.f_s, self.w_slip, self.psi_m
 
     def _rated_main_flux(self) -> float:
         """The main flux at no load with the rated voltage and frequency, V s:
@@ -106,102 +156,15 @@ class ScalarControl:
             lo, hi = (mid, hi) if u < self.u_peak_rated else (lo, mid)
         return lo
 
-    # --- the steady-state circuit, per motor, at the secant L_m of the present flux -----
-    # (compiled: slip_circuit.py)
-    def _branches(self, w_sl: float, lm: float) -> tuple[complex, float]:
-        """(I_s / psi_m, T / psi_m^2) at a slip frequency (rad/s)."""
-        return sc.branches(self.circuit, w_sl, lm)
-
-    def operating_point(self, w_sl: float, w_r: float, u_room: float,
-                        lm: float) -> tuple[float, float, float, complex]:
-        """(torque N m, stator current A peak, main flux V s, stator voltage V) at a slip
-        with the rotor at electrical speed w_r and u_room the voltage there is."""
-        return sc.operating_point(self.circuit, w_sl, w_r, u_room, lm)
-
-    def breakdown_slip(self, sign: float, w_r: float, u_room: float, lm: float) -> float:
-        """The slip frequency of the largest torque (rad/s, signed) at this voltage and
-        speed (golden-section search, slip_circuit.breakdown_slip)."""
-        return sc.breakdown_slip(self.circuit, sign, w_r, u_room, lm, BISECTIONS)
-
-    def slip_for(self, torque: float, w_r: float, u_room: float) -> float:
-        """The slip frequency (rad/s) that gives the torque per motor, within the slip
-        and current limits (the torque there otherwise); sets torque_limit. The slip
-        limit is a share of the breakdown slip, found anew every BREAKDOWN_EVERY periods
-        (it moves with the speed and the voltage, slowly beside a period)."""
-        lm = self.curve.lm(self.psi_m)
-        sign = 1.0 if torque >= 0 else -1.0
-        key = 0 if sign > 0 else 1
-        if key != self.breakdown_key:  # the other direction's cap is from another time
-            self.breakdown_age[key] = 0
-            self.breakdown_key = key
-        if self.breakdown_age[key] <= 0:
-            self.w_breakdown[key] = self.breakdown_slip(sign, w_r, u_room, lm)
-            self.breakdown_age[key] = BREAKDOWN_EVERY
-        self.breakdown_age[key] -= 1
-        cap = SLIP_LIMIT_SHARE * self.w_breakdown[key]
-        t_cap, i_cap, _, _ = self.operating_point(cap, w_r, u_room, lm)
-        if i_cap > self.i_max:  # the current limit comes first: its slip
-            cap = sc.slip_for_current(self.circuit, self.i_max, cap, w_r, u_room, lm,
-                                      BISECTIONS)
-            t_cap = self.operating_point(cap, w_r, u_room, lm)[0]
-        self.torque_limit = abs(t_cap)
-        if abs(torque) >= abs(t_cap):
-            return cap
-        return sc.slip_for_torque(self.circuit, abs(torque), cap, w_r, u_room, lm,
-                                  BISECTIONS)
-
-    def _low_frequency_weight(self, f_hz: float) -> float:
-        """1 at standstill falling to 0 at TRIM_UP_TO of the rated frequency: how much the
-        measured current's magnitude is trusted over the voltage (whose errors weigh at
-        low frequency)."""
-        return max(1.0 - abs(f_hz) / (TRIM_UP_TO * self.cfg.rated_frequency_hz), 0.0)
-
-    def _trim(self, phase_currents, weight: float) -> None:
-        """Hold the flux the circuit planned by the current it draws: the voltage is
-        trimmed by the ratio of the planned flux to the one the measured current gives
-        at the slip applied (|I_s| = psi_m |I_s / psi_m|), which no voltage error (dead
-        time left over, device drops, R_s warm) biases."""
-        i = abs(space_vector(phase_currents)) / self.n_motors
-        _, _, slip_held, psi_held = self._history[0]  # what the sampled current answers
-        y, _ = self._branches(slip_held, self.curve.lm(psi_held))
-        psi_seen = i / abs(y)
-        if psi_seen <= 0.2 * psi_held:
-            return
-        self.u_trim += weight * self.T / FLUX_TRIM_S * (psi_held / psi_seen - 1.0)
-        self.u_trim = min(max(self.u_trim, 1.0 - FLUX_TRIM_RANGE), 1.0 + FLUX_TRIM_RANGE)
-
     def estimated_torque(self, phase_currents: tuple[float, float, float]) -> float:
         """Torque per motor over the period that has just ended, from the measured
-        currents and the voltage held in it, N m (call once a period, before step).
-
-        Air-gap power P = 3/2 Re(u i_mean*) - 3/2 R_s |i_mean|^2 (amplitude-invariant
-        vectors), T = p P / w_s (Bose 2002, torque from the air-gap power). The voltage is
-        the vector held over the period (computed two periods ago: the one-period command
-        delay), with the dead time compensated; the period's mean current is the mean of
-        its end samples, corrected for a vector turning by 2x within it (the trapezoid
-        gives cos x of the fundamental, the mean sin(x)/x). Below half the rated frequency
-        the current's magnitude at the slip applied is blended in. Low-pass 10 ms.
-        """
-        i = space_vector(phase_currents) / self.n_motors
-        i_prev, self._i_prev = self._i_prev, i
-        u_held, f_held, slip_held, psi_held = self._history[0]
-        w_s = 2 * math.pi * f_held
-        if i_prev is None or abs(w_s) < 1.0:
-            return self.torque_estimate
-        x = 0.5 * w_s * self.T
-        mean = 0.5 * (i + i_prev) * (math.tan(x) / x if abs(x) > 1e-6 else 1.0)
-        p_air = 1.5 * ((u_held * mean.conjugate()).real - self.rs * abs(mean) ** 2)
-        t_now = self.p * p_air / w_s
-        # at low frequency the voltage's own error (what the dead-time compensation
-        # leaves) weighs: there the current's magnitude at the slip applied says more
-        # (psi_m = |I_s| / |I_s / psi_m|, then T(psi_m)), blended in below half rated
-        weight = self._low_frequency_weight(f_held)
-        if weight > 0.0:
-            y, t_per_psi2 = self._branches(slip_held, self.curve.lm(psi_held))
-            psi = abs(mean) / abs(y)
-            t_now = weight * t_per_psi2 * psi * psi + (1.0 - weight) * t_now
-        self.torque_estimate += (t_now - self.torque_estimate) * min(self.T / 0.01, 1.0)
-        return self.torque_estimate
+        currents and the voltage held in it, N m (call once a period, before step;
+        scalar_kernel.estimated_torque: the air-gap power of the held voltage and the
+        period's mean current, Bose 2002, blended below half the rated frequency with
+        the current's magnitude at the slip applied; low-pass 10 ms)."""
+        ia, ib, ic = phase_currents
+        return sk.estimated_torque(self.state, self.consts, self.circuit, self.curve.i,
+                                   self.curve.psi, ia, ib, ic)
 
     def airgap_torque(self, phase_currents: tuple[float, float, float]) -> float:
         """Torque per motor from the air-gap power of the voltage held in the period the
@@ -211,7 +174,7 @@ class ScalarControl:
         with w_s the synchronous mechanical speed (Bose 2002, slip compensation).
         """
         i = space_vector(phase_currents) / self.n_motors
-        u_held, f_held, _, _ = self._history[0]
+        u_held, f_held, _, _ = self._held()
         p_air = 1.5 * ((u_held * i.conjugate()).real
                        - self.cfg.stator_resistance_ohm * abs(i) ** 2)
         w_sync = 2 * math.pi * f_held / self.cfg.pole_pairs
@@ -228,63 +191,26 @@ class ScalarControl:
         control by the circuit, with rotor_angle_rad (the counted mechanical angle) for
         angle-based slip regulation and phase_currents for the dead-time compensation.
         """
-        cfg = self.cfg
+        if f_command_hz is None:  # torque control by the circuit: scalar_kernel
+            ia, ib, ic = phase_currents if phase_currents is not None else (0.0, 0.0, 0.0)
+            d, f_s = sk.torque_step(self.state, self.consts, self.circuit, self.curve.i,
+                                    self.curve.psi, torque_per_motor, rotor_speed_rad_s, u_d,
+                                    ia, ib, ic, phase_currents is not None,
+                                    rotor_angle_rad or 0.0, rotor_angle_rad is not None)
+            return list(d), f_s
         u_max = u_d / math.sqrt(3)
-        w_r = self.p * rotor_speed_rad_s
-        f_rotor = w_r / (2 * math.pi)
-        if f_command_hz is None:
-            # the plan takes the link's mean (no more than nominal): the duty follows the
-            # ripple each period, so the voltage planned is what the motor gets while the
-            # trough leaves the margin
-            if self.u_d_mean == 0.0:
-                self.u_d_mean = u_d
-            self.u_d_mean += (u_d - self.u_d_mean) * min(self.T / LINK_FILTER_S, 1.0)
-            # a vector held over a period while the field turns by w_s T has a fundamental
-            # of sin(x) / x of it, x = w_s T / 2 (the mean of e^(j w t) over the period):
-            # the circuit is planned on what the motor gets, the command is raised by it
-            x = 0.5 * abs(w_r + self.w_slip) * self.T
-            hold = math.sin(x) / x if x > 1e-6 else 1.0
-            u_room = hold * min(VOLTAGE_MARGIN * min(self.u_d_mean, cfg.link_nominal_v),
-                                u_d) / math.sqrt(3)
-            self.w_slip = self.slip_for(torque_per_motor, w_r, u_room)
-            _, _, psi, u_s = self.operating_point(self.w_slip, w_r, u_room,
-                                                  self.curve.lm(self.psi_m))
-            f_s = f_rotor + self.w_slip / (2 * math.pi)
-            # the trim acts at low frequency, where the voltage errors weigh; none from
-            # half the rated frequency up (the sampled current's own error takes over)
-            weight = self._low_frequency_weight(f_s)
-            if phase_currents is not None and weight > 0.0:
-                self._trim(phase_currents, weight)
-            self.psi_m = psi
-            u = abs(u_s) * (1.0 + weight * (self.u_trim - 1.0)) / hold
-            lead = cmath.phase(u_s) if u > 0 else 0.0  # the voltage leads the flux's axis
-        else:
-            f_s = f_command_hz
-            if phase_currents is not None and self.f_s:
-                # slip compensation: the estimated torque, low-pass filtered (50 ms)
-                t_est = self.airgap_torque(phase_currents)
-                self._slip_torque += (t_est - self._slip_torque) * self.T / 0.05
-                f_s += self.slip_for_torque(self._slip_torque, f_s)
-            u = min(self.boost_v + self.volts_per_hz * abs(f_s), u_max)
-            lead = 0.0
-        if rotor_angle_rad is not None and f_command_hz is None:
-            self.theta_slip = (self.theta_slip + self.w_slip * self.T) % (2 * math.pi)
-            self.theta = (self.p * rotor_angle_rad + self.theta_slip) % (2 * math.pi)
-        else:
-            self.theta = (self.theta + 2 * math.pi * f_s * self.T) % (2 * math.pi)
+        f_s = f_command_hz
+        if phase_currents is not None and self.f_s:
+            # slip compensation: the estimated torque, low-pass filtered (50 ms)
+            t_est = self.airgap_torque(phase_currents)
+            self._slip_torque += (t_est - self._slip_torque) * self.T / 0.05
+            f_s += self.slip_for_torque(self._slip_torque, f_s)
+        u = min(self.boost_v + self.volts_per_hz * abs(f_s), u_max)
+        self.theta = (self.theta + 2 * math.pi * f_s * self.T) % (2 * math.pi)
         self.f_s = f_s
-        u = min(u, u_max)
-        angle = self.theta + lead + 2 * math.pi * f_s * 1.5 * self.T  # acts t+T to t+2T
-        self.u_vec = cmath.rect(u, angle)
-        self._history = (self._history[1], (self.u_vec, f_s, self.w_slip, self.psi_m))
-        current = None
-        if phase_currents is not None and f_command_hz is None:
-            # the current turned on to the middle of the acting period
-            current = (space_vector(phase_currents)
-                       * cmath.exp(1j * 2 * math.pi * f_s * 1.5 * self.T))
-        return duties(self.u_vec, u_d, current=current, dead_time_s=cfg.dead_time_s,
-                      switching_frequency_hz=cfg.switching_frequency_hz,
-                      sign_band_a=self.sign_band_a), f_s
+        self.u_vec = cmath.rect(u, self.theta + 2 * math.pi * f_s * 1.5 * self.T)
+        self._push_history()
+        return duties(self.u_vec, u_d), f_s
 
     def slip_for_torque(self, torque_per_motor: float, f_s_estimate: float) -> float:
         """Slip frequency for a torque in classic V/f, Hz (linear region, 1/f flux above

@@ -1,0 +1,186 @@
+"""The scalar control's torque mode, one period, compiled: what motor_scalar.py's
+docstring states, with the control's state in one array (S_*) and its constants in
+another (K_*). Each function's ``py_func`` is the same code in plain Python, which the
+tests compare with it; motor_scalar.ScalarControl keeps the configuration and reads the
+state by name.
+
+The period's steps: the torque estimate from the measured currents and the voltage held
+(air-gap power, Bose 2002), then the plan: the link's mean, the slip for the torque on
+the circuit at the voltage there is (slip_circuit.py), the flux trim at low frequency,
+the voltage vector turned to the middle of the period it acts in (1.5 T), and the duties
+with the dead time compensated (modulation.py).
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+
+import numba as nb
+
+from . import slip_circuit as sc
+from .flux_curve import secant_lm
+from .modulation import leg_duties
+
+compiled = nb.njit(cache=True, error_model="numpy")
+
+# the state: angles, frequency, flux, slip, trim, the last current, the link's mean, the
+# voltage sent, the estimates, the breakdown search, and what the last two commands
+# carried (H0: the period just measured, H1: the one after it)
+(S_THETA, S_THETA_SLIP, S_F_S, S_PSI_M, S_W_SLIP, S_U_TRIM, S_I_PREV_RE, S_I_PREV_IM,
+ S_HAS_I_PREV, S_U_D_MEAN, S_U_VEC_RE, S_U_VEC_IM, S_TORQUE_ESTIMATE, S_TORQUE_LIMIT,
+ S_BREAKDOWN_0, S_BREAKDOWN_1, S_BREAKDOWN_AGE_0, S_BREAKDOWN_AGE_1, S_BREAKDOWN_KEY,
+ S_H0_U_RE, S_H0_U_IM, S_H0_F, S_H0_SLIP, S_H0_PSI, S_H1_U_RE, S_H1_U_IM, S_H1_F,
+ S_H1_SLIP, S_H1_PSI, N_STATE) = range(30)
+# the constants besides the circuit's (slip_circuit.CIRCUIT_*)
+(K_T, K_N_MOTORS, K_I_MAX, K_SIGN_BAND, K_RATED_HZ, K_LINK_NOMINAL, K_DEAD_TIME, K_FSW,
+ K_VOLTAGE_MARGIN, K_SLIP_LIMIT_SHARE, K_BISECTIONS, K_BREAKDOWN_EVERY, K_FLUX_TRIM_S,
+ K_FLUX_TRIM_RANGE, K_TRIM_UP_TO, K_LINK_FILTER_S, N_CONSTS) = range(17)
+
+TWO_PI = 2 * math.pi
+
+
+@compiled
+def space_vector(a, b, c):
+    """The amplitude-invariant space vector (Clarke): (2a - b - c) / 3 + j (b - c) / sqrt 3."""
+    return complex((2 * a - b - c) / 3, (b - c) / math.sqrt(3))
+
+
+@compiled
+def low_frequency_weight(k, f_hz):
+    """1 at standstill falling to 0 at K_TRIM_UP_TO of the rated frequency: how much the
+    measured current's magnitude is trusted over the voltage."""
+    return max(1.0 - abs(f_hz) / (k[K_TRIM_UP_TO] * k[K_RATED_HZ]), 0.0)
+
+
+@compiled
+def estimated_torque(s, k, c, curve_i, curve_psi, ia, ib, ic):
+    """Torque per motor over the period that has just ended (N m, low-pass 10 ms): the
+    air-gap power P = 3/2 Re(u i_mean*) - 3/2 R_s |i_mean|^2, T = p P / w_s, from the
+    voltage held and the mean of the period's end samples (corrected for a vector turning
+    by 2x within it: tan(x)/x); below half the rated frequency the current's magnitude at
+    the slip applied is blended in."""
+    T = k[K_T]
+    i = space_vector(ia, ib, ic) / k[K_N_MOTORS]
+    had = s[S_HAS_I_PREV] > 0.5
+    i_prev = complex(s[S_I_PREV_RE], s[S_I_PREV_IM])
+    s[S_I_PREV_RE], s[S_I_PREV_IM], s[S_HAS_I_PREV] = i.real, i.imag, 1.0
+    u_held = complex(s[S_H0_U_RE], s[S_H0_U_IM])
+    f_held, slip_held, psi_held = s[S_H0_F], s[S_H0_SLIP], s[S_H0_PSI]
+    w_s = TWO_PI * f_held
+    if not had or abs(w_s) < 1.0:
+        return s[S_TORQUE_ESTIMATE]
+    x = 0.5 * w_s * T
+    mean = 0.5 * (i + i_prev) * (math.tan(x) / x if abs(x) > 1e-6 else 1.0)
+    p_air = 1.5 * ((u_held * mean.conjugate()).real - c[sc.CIRCUIT_RS] * abs(mean) ** 2)
+    t_now = c[sc.CIRCUIT_P] * p_air / w_s
+    weight = low_frequency_weight(k, f_held)
+    if weight > 0.0:
+        y, t_per_psi2 = sc.branches(c, slip_held, secant_lm(psi_held, curve_i, curve_psi))
+        psi = abs(mean) / abs(y)
+        t_now = weight * t_per_psi2 * psi * psi + (1.0 - weight) * t_now
+    s[S_TORQUE_ESTIMATE] += (t_now - s[S_TORQUE_ESTIMATE]) * min(T / 0.01, 1.0)
+    return s[S_TORQUE_ESTIMATE]
+
+
+@compiled
+def slip_for(s, k, c, lm, torque, w_r, u_room):
+    """The slip frequency (rad/s) that gives the torque per motor within the slip and
+    current limits (the torque there otherwise); sets the torque limit. The slip limit
+    is a share of the breakdown slip, found anew every K_BREAKDOWN_EVERY periods."""
+    halvings = int(k[K_BISECTIONS])
+    sign = 1.0 if torque >= 0 else -1.0
+    key = 0 if sign > 0 else 1
+    if key != int(s[S_BREAKDOWN_KEY]):  # the other direction's cap is from another time
+        s[S_BREAKDOWN_AGE_0 + key] = 0.0
+        s[S_BREAKDOWN_KEY] = key
+    if s[S_BREAKDOWN_AGE_0 + key] <= 0:
+        s[S_BREAKDOWN_0 + key] = sc.breakdown_slip(c, sign, w_r, u_room, lm, halvings)
+        s[S_BREAKDOWN_AGE_0 + key] = k[K_BREAKDOWN_EVERY]
+    s[S_BREAKDOWN_AGE_0 + key] -= 1.0
+    cap = k[K_SLIP_LIMIT_SHARE] * s[S_BREAKDOWN_0 + key]
+    t_cap, i_cap, _, _ = sc.operating_point(c, cap, w_r, u_room, lm)
+    if i_cap > k[K_I_MAX]:  # the current limit comes first: its slip
+        cap = sc.slip_for_current(c, k[K_I_MAX], cap, w_r, u_room, lm, halvings)
+        t_cap = sc.operating_point(c, cap, w_r, u_room, lm)[0]
+    s[S_TORQUE_LIMIT] = abs(t_cap)
+    if abs(torque) >= abs(t_cap):
+        return cap
+    return sc.slip_for_torque(c, abs(torque), cap, w_r, u_room, lm, halvings)
+
+
+@compiled
+def trim(s, k, c, curve_i, curve_psi, ia, ib, ic, weight):
+    """Hold the flux the circuit planned by the current it draws: the voltage is trimmed
+    by the ratio of the planned flux to the one the measured current gives at the slip
+    applied (|I_s| = psi_m |I_s / psi_m|), which no voltage error biases."""
+    i = abs(space_vector(ia, ib, ic)) / k[K_N_MOTORS]
+    slip_held, psi_held = s[S_H0_SLIP], s[S_H0_PSI]  # what the sampled current answers
+    y, _ = sc.branches(c, slip_held, secant_lm(psi_held, curve_i, curve_psi))
+    psi_seen = i / abs(y)
+    if psi_seen <= 0.2 * psi_held:
+        return
+    u_trim = s[S_U_TRIM] + weight * k[K_T] / k[K_FLUX_TRIM_S] * (psi_held / psi_seen - 1.0)
+    s[S_U_TRIM] = min(max(u_trim, 1.0 - k[K_FLUX_TRIM_RANGE]), 1.0 + k[K_FLUX_TRIM_RANGE])
+
+
+@compiled
+def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has_currents,
+                angle, has_angle):
+    """Duties (three) for the period that starts one period from now and the stator
+    frequency (Hz), for a torque per motor at a rotor speed (rad/s, mechanical), the link
+    at u_d, the sampled phase currents (has_currents: for the trim and the dead-time
+    compensation) and the counted rotor angle (rad; has_angle: angle-based slip
+    regulation, else the stator angle integrates its frequency)."""
+    T = k[K_T]
+    p = c[sc.CIRCUIT_P]
+    u_max = u_d / math.sqrt(3)
+    w_r = p * speed
+    f_rotor = w_r / TWO_PI
+    # the plan takes the link's mean (no more than nominal): the duty follows the ripple
+    # each period, so the voltage planned is what the motor gets while the trough leaves
+    # the margin
+    if s[S_U_D_MEAN] == 0.0:
+        s[S_U_D_MEAN] = u_d
+    s[S_U_D_MEAN] += (u_d - s[S_U_D_MEAN]) * min(T / k[K_LINK_FILTER_S], 1.0)
+    # a vector held over a period while the field turns by w_s T has a fundamental of
+    # sin(x) / x of it, x = w_s T / 2: the circuit is planned on what the motor gets, the
+    # command is raised by it
+    x = 0.5 * abs(w_r + s[S_W_SLIP]) * T
+    hold = math.sin(x) / x if x > 1e-6 else 1.0
+    u_room = hold * min(k[K_VOLTAGE_MARGIN] * min(s[S_U_D_MEAN], k[K_LINK_NOMINAL]),
+                        u_d) / math.sqrt(3)
+    s[S_W_SLIP] = slip_for(s, k, c, secant_lm(s[S_PSI_M], curve_i, curve_psi), torque, w_r,
+                           u_room)
+    w_slip = s[S_W_SLIP]
+    _, _, psi, u_s = sc.operating_point(c, w_slip, w_r, u_room,
+                                        secant_lm(s[S_PSI_M], curve_i, curve_psi))
+    f_s = f_rotor + w_slip / TWO_PI
+    # the trim acts at low frequency, where the voltage errors weigh; none from half the
+    # rated frequency up (the sampled current's own error takes over)
+    weight = low_frequency_weight(k, f_s)
+    if has_currents and weight > 0.0:
+        trim(s, k, c, curve_i, curve_psi, ia, ib, ic, weight)
+    s[S_PSI_M] = psi
+    u = abs(u_s) * (1.0 + weight * (s[S_U_TRIM] - 1.0)) / hold
+    lead = cmath.phase(u_s) if u > 0 else 0.0  # the voltage leads the flux's axis
+    # angle-based slip regulation: the stator angle is the counted rotor angle plus the
+    # integrated slip
+    if has_angle:
+        s[S_THETA_SLIP] = (s[S_THETA_SLIP] + w_slip * T) % TWO_PI
+        s[S_THETA] = (p * angle + s[S_THETA_SLIP]) % TWO_PI
+    else:
+        s[S_THETA] = (s[S_THETA] + TWO_PI * f_s * T) % TWO_PI
+    s[S_F_S] = f_s
+    u = min(u, u_max)
+    u_vec = cmath.rect(u, s[S_THETA] + lead + TWO_PI * f_s * 1.5 * T)  # acts t+T to t+2T
+    s[S_U_VEC_RE], s[S_U_VEC_IM] = u_vec.real, u_vec.imag
+    for j in range(5):  # the history moves on: H0 <- H1 <- this command
+        s[S_H0_U_RE + j] = s[S_H1_U_RE + j]
+    s[S_H1_U_RE], s[S_H1_U_IM] = u_vec.real, u_vec.imag
+    s[S_H1_F], s[S_H1_SLIP], s[S_H1_PSI] = f_s, w_slip, psi
+    # the current turned on to the middle of the acting period
+    current = space_vector(ia, ib, ic) * cmath.exp(1j * TWO_PI * f_s * 1.5 * T)
+    d = leg_duties(u_vec, u_d, current, has_currents and k[K_DEAD_TIME] > 0.0,
+                   k[K_DEAD_TIME] * k[K_FSW] * u_d, k[K_SIGN_BAND])
+    return d, f_s
