@@ -45,6 +45,21 @@ def test_bad_settings_give_a_clear_error_and_exit_2(args, words, capsys) -> None
     assert words in " ".join(capsys.readouterr().err.split())
 
 
+def test_throughput_bench_json_has_the_documented_keys() -> None:
+    """Three short demo runs (2 s of plant time each): the figures are there and add up
+    (the stages and the rest make the instrumented frame); their values are benchmarks,
+    not checked."""
+    out = railrig("bench", "--throughput", "--json", "--plant-seconds", "2")
+    assert out.returncode == 0, out.stderr
+    figures = json.loads(out.stdout)
+    assert figures["inprocess_realtime_factor"] > 0 and figures["udp_realtime_factor"] > 0
+    stages = figures["stage_us"]
+    assert set(stages) == {"plant", "sampling", "codec", "controller", "program",
+                           "recording", "rig_rest"}
+    assert all(stages[k] > 0 for k in ("plant", "sampling", "codec", "controller"))
+    assert sum(stages.values()) == pytest.approx(figures["frame_us_instrumented"], rel=1e-9)
+
+
 def test_bench_json_has_the_documented_keys() -> None:
     out = railrig("bench", "--json", "--frames", "300")
     assert out.returncode == 0
