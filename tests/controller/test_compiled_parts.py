@@ -147,9 +147,9 @@ def test_scalar_torque_step_compiled_and_plain_agree_over_a_start(control) -> No
 def test_vector_step_compiled_and_plain_agree_over_a_start() -> None:
     """The vector control's period (vector_kernel.vector_step) compiled and as plain
     Python over 400 periods of a start with the same inputs (not closed through a plant).
-    Plain Python reads the state array's values as numpy scalars, whose complex
-    arithmetic rounds apart from numba's in the last bits; over 400 periods of the flux
-    model, the observer and the offset filter that stays below 1e-9 relative."""
+    They may part in the last bits (x ** 2 is libm's pow in Python and x * x in numba,
+    and plain Python reads the state array as numpy scalars); over 400 periods of the
+    flux model, the observer and the offset filter that stays below 1e-9 relative."""
     from emulator.controller import vector_kernel as vk
     from emulator.controller.motor_vector import VectorControl
 
