@@ -24,11 +24,16 @@ TWO_PI_3 = 2 * math.pi / 3
 _COS = tuple(complex(math.cos(x * TWO_PI_3), -math.sin(x * TWO_PI_3)) for x in range(3))
 
 
-def space_vector(phases: tuple[float, float, float]) -> complex:
+@nb.njit(cache=True, error_model="numpy")
+def clarke(a, b, c):
     """The amplitude-invariant space vector of three phase values (Clarke):
     (2a - b - c) / 3 + j (b - c) / sqrt(3)."""
-    a, b, c = phases
     return complex((2 * a - b - c) / 3, (b - c) / math.sqrt(3))
+
+
+def space_vector(phases: tuple[float, float, float]) -> complex:
+    """The space vector of a tuple of three phase values (see clarke)."""
+    return clarke(*phases)
 
 
 def duties(u: complex, u_dc: float, *, current: complex | None = None,

@@ -46,6 +46,7 @@ from . import scalar_kernel as sk
 from .config import ControllerConfig
 from .flux_curve import MagnetisingCurve
 from .modulation import duties, space_vector
+from .state_slots import slot
 
 VOLTAGE_MARGIN = 0.97  # of U_dc / sqrt(3): what the plan uses (ripple, dead time)
 SLIP_LIMIT_SHARE = 0.9  # of the breakdown slip: 99 % of the breakdown torque (Kloss)
@@ -56,18 +57,6 @@ FLUX_TRIM_S = 0.2  # time constant of the voltage trim that holds the flux on th
 FLUX_TRIM_RANGE = 0.15  # the most the trim may change the voltage, of the circuit's
 TRIM_UP_TO = 0.5  # of the rated frequency
 LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple
-
-
-def _state(index: int, doc: str) -> property:
-    """A named view of one slot of the control's state array."""
-
-    def get(self) -> float:
-        return float(self.state[index])
-
-    def put(self, value: float) -> None:
-        self.state[index] = value
-
-    return property(get, put, doc=doc)
 
 
 class ScalarControl:
@@ -112,15 +101,16 @@ class ScalarControl:
         self.state[sk.S_U_TRIM] = 1.0
         self._slip_torque = 0.0  # classic V/f's slip compensation: its filtered torque
 
-    theta = _state(sk.S_THETA, "stator angle of the voltage's axis, rad")
-    theta_slip = _state(sk.S_THETA_SLIP, "angle-based slip regulation: the integrated slip")
-    f_s = _state(sk.S_F_S, "stator frequency of the last command, Hz")
-    psi_m = _state(sk.S_PSI_M, "main flux planned, V s")
-    w_slip = _state(sk.S_W_SLIP, "slip frequency of the last command, rad/s")
-    u_trim = _state(sk.S_U_TRIM, "the flux trim's factor on the voltage")
-    u_d_mean = _state(sk.S_U_D_MEAN, "the link's mean the plan uses, V")
-    torque_estimate = _state(sk.S_TORQUE_ESTIMATE, "torque per motor estimated, N m")
-    torque_limit = _state(sk.S_TORQUE_LIMIT, "the most torque per motor there is now, N m")
+    # (the classic V/f path writes the angle and the frequency itself)
+    theta = slot(sk.S_THETA, "stator angle of the voltage's axis, rad", writable=True)
+    theta_slip = slot(sk.S_THETA_SLIP, "angle-based slip regulation: the integrated slip")
+    f_s = slot(sk.S_F_S, "stator frequency of the last command, Hz", writable=True)
+    psi_m = slot(sk.S_PSI_M, "main flux planned, V s")
+    w_slip = slot(sk.S_W_SLIP, "slip frequency of the last command, rad/s")
+    u_trim = slot(sk.S_U_TRIM, "the flux trim's factor on the voltage")
+    u_d_mean = slot(sk.S_U_D_MEAN, "the link's mean the plan uses, V")
+    torque_estimate = slot(sk.S_TORQUE_ESTIMATE, "torque per motor estimated, N m")
+    torque_limit = slot(sk.S_TORQUE_LIMIT, "the most torque per motor there is now, N m")
 
     @property
     def u_vec(self) -> complex:

@@ -53,13 +53,9 @@ import numpy as np
 from . import vector_kernel as vk
 from .config import ControllerConfig
 from .flux_curve import MagnetisingCurve
+from .state_slots import slot
 
 CURRENT_LIMIT_FACTOR = 2.2  # peak current per motor, of the rated peak (inverter limit)
-
-
-def _state(index: int, doc: str) -> property:
-    """A named view of one slot of the control's state array (read only)."""
-    return property(lambda self: float(self.state[index]), doc=doc)
 
 
 class VectorControl:
@@ -95,16 +91,16 @@ class VectorControl:
         self.state = np.zeros(vk.N_STATE)  # its state (vector_kernel.V_*)
         self.reset()
 
-    psi_r = _state(vk.V_PSI_R, "the flux model's rotor flux, V s")
-    psi_ref = _state(vk.V_PSI_REF, "rotor flux reference, V s")
-    i_d = _state(vk.V_I_D, "measured d current (field frame), A")
-    i_q = _state(vk.V_I_Q, "measured q current (field frame), A")
-    torque_estimate = _state(vk.V_TORQUE_ESTIMATE, "torque per motor over the period "
+    psi_r = slot(vk.V_PSI_R, "the flux model's rotor flux, V s")
+    psi_ref = slot(vk.V_PSI_REF, "rotor flux reference, V s")
+    i_d = slot(vk.V_I_D, "measured d current (field frame), A")
+    i_q = slot(vk.V_I_Q, "measured q current (field frame), A")
+    torque_estimate = slot(vk.V_TORQUE_ESTIMATE, "torque per motor over the period "
                              "just ended, N m")
-    torque_limit = _state(vk.V_TORQUE_LIMIT, "the most torque per motor there is now, N m")
-    w_e = _state(vk.V_W_E, "the stator's electrical frequency, rad/s")
-    modulation = _state(vk.V_MODULATION, "voltage asked for, of U_dc / sqrt 3")
-    dpsi = _state(vk.V_DPSI, "the field-weakening loop's flux reduction, V s (<= 0)")
+    torque_limit = slot(vk.V_TORQUE_LIMIT, "the most torque per motor there is now, N m")
+    w_e = slot(vk.V_W_E, "the stator's electrical frequency, rad/s")
+    modulation = slot(vk.V_MODULATION, "voltage asked for, of U_dc / sqrt 3")
+    dpsi = slot(vk.V_DPSI, "the field-weakening loop's flux reduction, V s (<= 0)")
 
     @property
     def limited(self) -> bool:

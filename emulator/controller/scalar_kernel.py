@@ -20,7 +20,7 @@ import numba as nb
 
 from . import slip_circuit as sc
 from .flux_curve import secant_lm
-from .modulation import leg_duties
+from .modulation import clarke, leg_duties
 
 compiled = nb.njit(cache=True, error_model="numpy")
 
@@ -41,12 +41,6 @@ TWO_PI = 2 * math.pi
 
 
 @compiled
-def space_vector(a, b, c):
-    """The amplitude-invariant space vector (Clarke): (2a - b - c) / 3 + j (b - c) / sqrt 3."""
-    return complex((2 * a - b - c) / 3, (b - c) / math.sqrt(3))
-
-
-@compiled
 def low_frequency_weight(k, f_hz):
     """1 at standstill falling to 0 at K_TRIM_UP_TO of the rated frequency: how much the
     measured current's magnitude is trusted over the voltage."""
@@ -61,7 +55,7 @@ def estimated_torque(s, k, c, curve_i, curve_psi, ia, ib, ic):
     by 2x within it: tan(x)/x); below half the rated frequency the current's magnitude at
     the slip applied is blended in."""
     T = k[K_T]
-    i = space_vector(ia, ib, ic) / k[K_N_MOTORS]
+    i = clarke(ia, ib, ic) / k[K_N_MOTORS]
     had = s[S_HAS_I_PREV] > 0.5
     i_prev = complex(s[S_I_PREV_RE], s[S_I_PREV_IM])
     s[S_I_PREV_RE], s[S_I_PREV_IM], s[S_HAS_I_PREV] = i.real, i.imag, 1.0
@@ -114,7 +108,7 @@ def trim(s, k, c, curve_i, curve_psi, ia, ib, ic, weight):
     """Hold the flux the circuit planned by the current it draws: the voltage is trimmed
     by the ratio of the planned flux to the one the measured current gives at the slip
     applied (|I_s| = psi_m |I_s / psi_m|), which no voltage error biases."""
-    i = abs(space_vector(ia, ib, ic)) / k[K_N_MOTORS]
+    i = abs(clarke(ia, ib, ic)) / k[K_N_MOTORS]
     slip_held, psi_held = s[S_H0_SLIP], s[S_H0_PSI]  # what the sampled current answers
     y, _ = sc.branches(c, slip_held, secant_lm(psi_held, curve_i, curve_psi))
     psi_seen = i / abs(y)
@@ -180,7 +174,7 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     s[S_H1_U_RE], s[S_H1_U_IM] = u_vec.real, u_vec.imag
     s[S_H1_F], s[S_H1_SLIP], s[S_H1_PSI] = f_s, w_slip, psi
     # the current turned on to the middle of the acting period
-    current = space_vector(ia, ib, ic) * cmath.exp(1j * TWO_PI * f_s * 1.5 * T)
+    current = clarke(ia, ib, ic) * cmath.exp(1j * TWO_PI * f_s * 1.5 * T)
     d = leg_duties(u_vec, u_d, current, has_currents and k[K_DEAD_TIME] > 0.0,
                    k[K_DEAD_TIME] * k[K_FSW] * u_d, k[K_SIGN_BAND])
     return d, f_s

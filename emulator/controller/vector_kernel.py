@@ -14,7 +14,7 @@ import math
 import numba as nb
 
 from .flux_curve import interpolate, secant_lm
-from .modulation import leg_duties
+from .modulation import clarke, leg_duties
 
 compiled = nb.njit(cache=True, error_model="numpy")
 
@@ -36,12 +36,6 @@ FW_GAIN = 0.5  # voltage-margin loop: flux change, of rated, per unit of excess 
 # the constants
 (K_T, K_P, K_RS, K_RR, K_LLS, K_LLR, K_PSI_RATED, K_W_BASE_MECH, K_I_MAX, K_LINK_NOMINAL,
  K_RATED_POWER, K_CORE_LOSS_R, K_LEAD, K_N_MOTORS, N_CONSTS) = range(15)
-
-
-@compiled
-def space_vector(a, b, c):
-    """The amplitude-invariant space vector (Clarke): (2a - b - c) / 3 + j (b - c) / sqrt 3."""
-    return complex((2 * a - b - c) / 3, (b - c) / math.sqrt(3))
 
 
 @compiled
@@ -194,7 +188,7 @@ def vector_step(v, k, curve_i, curve_psi, torque_per_motor, rotor_angle_rad,
     u_before = complex(v[V_U_BEFORE_RE], v[V_U_BEFORE_IM])
     du = complex(v[V_DU_RE], v[V_DU_IM])
     # the measured current less what the core-loss branches draw (iron-loss compensation)
-    i_s = space_vector(ia, ib, ic) / k[K_N_MOTORS] - u_before / k[K_CORE_LOSS_R]
+    i_s = clarke(ia, ib, ic) / k[K_N_MOTORS] - u_before / k[K_CORE_LOSS_R]
     psi_r = v[V_PSI_R]
     lm_now, lr_now, _, sigma_now, tau_now = machine(k, curve_i, curve_psi, psi_r)
     rp_now = rs + rr * (lm_now / lr_now) ** 2

@@ -118,6 +118,19 @@ def cmath_rect(r: float, phi: float) -> complex:
     return complex(r * math.cos(phi), r * math.sin(phi))
 
 
+def _start(ripple_hz: float, periods: int = 400):
+    """Inputs of a start, one tuple a 1 ms period: rising torque and speed, currents
+    turning with the stator frequency, a link rippling at ripple_hz, the rotor angle."""
+    theta = 0.0
+    for n in range(periods):
+        t = n * 1e-3
+        torque, speed = 1500.0 * min(t / 0.1, 1.0), 40.0 * t
+        u_d = 1800.0 + 40.0 * math.sin(2 * math.pi * ripple_hz * t)
+        theta += 2 * math.pi * (2 * speed / (2 * math.pi) + 1.0) * 1e-3
+        ia, ib, ic = (300.0 * math.cos(theta - k * 2 * math.pi / 3) for k in range(3))
+        yield torque, speed, u_d, ia, ib, ic, speed * t / 2
+
+
 def test_scalar_torque_step_compiled_and_plain_agree_over_a_start(control) -> None:
     """The scalar control's period (scalar_kernel.torque_step and estimated_torque) run
     compiled and as plain Python side by side over 400 periods of a start: rising torque
@@ -127,14 +140,7 @@ def test_scalar_torque_step_compiled_and_plain_agree_over_a_start(control) -> No
 
     args = (control.consts, control.circuit, control.curve.i, control.curve.psi)
     a, b = control.state.copy(), control.state.copy()
-    theta = 0.0
-    for n in range(400):
-        t = n * 1e-3
-        torque, speed = 1500.0 * min(t / 0.1, 1.0), 40.0 * t
-        u_d = 1800.0 + 40.0 * math.sin(2 * math.pi * 100 * t)
-        theta += 2 * math.pi * (2 * speed / (2 * math.pi) + 1.0) * 1e-3
-        ia, ib, ic = (300.0 * math.cos(theta - k * 2 * math.pi / 3) for k in range(3))
-        angle = speed * t / 2
+    for n, (torque, speed, u_d, ia, ib, ic, angle) in enumerate(_start(100.0)):
         e1 = sk.estimated_torque(a, *args, ia, ib, ic)
         e2 = sk.estimated_torque.py_func(b, *args, ia, ib, ic)
         d1, f1 = sk.torque_step(a, *args, torque, speed, u_d, ia, ib, ic, True, angle, True)
@@ -157,14 +163,7 @@ def test_vector_step_compiled_and_plain_agree_over_a_start() -> None:
     control = VectorControl(config_from_profile(profile), 2)
     args = (control.consts, control.curve.i, control.curve.psi)
     a, b = control.state.copy(), control.state.copy()
-    theta = 0.0
-    for n in range(400):
-        t = n * 1e-3
-        torque, speed = 1500.0 * min(t / 0.1, 1.0), 40.0 * t
-        u_d = 1800.0 + 40.0 * math.sin(2 * math.pi * 33.4 * t)
-        theta += 2 * math.pi * (2 * speed / (2 * math.pi) + 1.0) * 1e-3
-        ia, ib, ic = (300.0 * math.cos(theta - k * 2 * math.pi / 3) for k in range(3))
-        angle = speed * t / 2
+    for torque, speed, u_d, ia, ib, ic, angle in _start(33.4):
         d1 = vk.vector_step(a, *args, torque, angle, speed, u_d, ia, ib, ic)
         d2 = vk.vector_step.py_func(b, *args, torque, angle, speed, u_d, ia, ib, ic)
         np.testing.assert_allclose(d1, d2, rtol=1e-9, atol=1e-12)
