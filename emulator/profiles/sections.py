@@ -120,11 +120,7 @@ def parse_inverter(t: Table) -> InverterParams:
         igbt_slope_ohm=t.number("igbt_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
         diode_threshold_v=t.number("diode_threshold_v", "V", 0.0, 10.0),
         diode_slope_ohm=t.number("diode_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
-        switching_energy_j=t.number("switching_energy_mj", "mJ", 0.0, 1e5, scale=1e-3),
-        switching_energy_ref_v=t.number("switching_energy_reference_v", "V", 0.0, 1e5,
-                                        lo_open=True),
-        switching_energy_ref_a=t.number("switching_energy_reference_a", "A", 0.0, 1e5,
-                                        lo_open=True),
+        **_switching_energy(t),
         sign_band_a=t.number("sign_band_a", "A", 0.0, 1e3, lo_open=True),
         hardware_trip_a=(t.number("hardware_overcurrent_a", "A (phase peak)", 0.0, 1e5,
                                   lo_open=True)
@@ -135,6 +131,17 @@ def parse_inverter(t: Table) -> InverterParams:
         raise t.error("dead_time_us", "dead time must be well below a switching period")
     t.finish()
     return inv
+
+
+def _switching_energy(t: Table) -> dict[str, float]:
+    """A switching device's energy per switching at its reference voltage and current
+    (the keys an inverter and a line converter share)."""
+    return {"switching_energy_j": t.number("switching_energy_mj", "mJ", 0.0, 1e5,
+                                           scale=1e-3),
+            "switching_energy_ref_v": t.number("switching_energy_reference_v", "V", 0.0,
+                                               1e5, lo_open=True),
+            "switching_energy_ref_a": t.number("switching_energy_reference_a", "A", 0.0,
+                                               1e5, lo_open=True)}
 
 
 def parse_channel(t: Table, unit: str, lo: float, hi: float, frame_s: float) -> ChannelSpec:
@@ -245,11 +252,7 @@ def parse_four_quadrant(t: Table) -> LineConverterParams:
         switching_frequency_hz=t.number("switching_frequency_hz", "Hz", 0.0, 1e5, lo_open=True),
         device_threshold_v=t.number("device_threshold_v", "V", 0.0, 10.0),
         device_slope_ohm=t.number("device_slope_resistance_mohm", "mohm", 0.0, 1e3, scale=1e-3),
-        switching_energy_j=t.number("switching_energy_mj", "mJ", 0.0, 1e5, scale=1e-3),
-        switching_energy_ref_v=t.number("switching_energy_reference_v", "V", 0.0, 1e5,
-                                        lo_open=True),
-        switching_energy_ref_a=t.number("switching_energy_reference_a", "A", 0.0, 1e5,
-                                        lo_open=True),
+        **_switching_energy(t),
         precharge_ohm=t.number("precharge_resistance_ohm", "ohm", 0.0, 1e4, lo_open=True),
         precharge_delay_s=t.number("precharge_contactor_delay_ms", "ms", 0.0, 5000.0,
                                    scale=1e-3),

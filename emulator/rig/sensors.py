@@ -125,12 +125,11 @@ class AnalogChannels:
             self.rng.standard_normal(out=t[C_NORMAL])
         else:
             t[C_NORMAL] = 0.0
-        if not self._started:
+        settle = not self._started
+        if settle:
             trace = trace[-1:]
-            t[C_INPUT] = trace[0] * t[C_GAIN] * t[C_FAULT_GAIN] + t[C_OFFSET] + t[C_FAULT_OFFSET]
-            t[C_FILTERED] = t[C_INPUT]
             self._started = True
-        _chain(trace, h, t, self._out)
+        _chain(trace, h, t, self._out, settle)
         return self._out
 
 
@@ -149,16 +148,19 @@ def _filter_coefficients(tau: np.ndarray, h: float) -> tuple[np.ndarray, np.ndar
 
 
 @nb.njit(cache=True)
-def _chain(trace, h, t, out):
+def _chain(trace, h, t, out, settle):
     """Per channel (a column of the table t): gain and offset, the filter through every
     sub-step, the sample (at its instant, or the frame's mean by the trapezoidal rule),
-    then noise, the converter's range, the ADC step and a stuck value."""
+    then noise, the converter's range, the ADC step and a stuck value. settle: the filter
+    starts settled at the first row's input (the first sample of a run)."""
     n = trace.shape[0]
     frame = n * h
     for i in range(trace.shape[1]):
         gain = t[C_GAIN, i] * t[C_FAULT_GAIN, i]
         offset = t[C_OFFSET, i] + t[C_FAULT_OFFSET, i]
         decay, slope = t[C_DECAY, i], t[C_SLOPE, i]
+        if settle:
+            t[C_INPUT, i] = t[C_FILTERED, i] = trace[0, i] * gain + offset
         x0 = t[C_INPUT, i]
         y0 = t[C_FILTERED, i]
         mean = 0.0
