@@ -18,13 +18,13 @@ async def attach_reference(channel: str, rig, profile, period_s: float | None = 
     ("scalar" or "vector") overrides the profile's choice."""
     import dataclasses
 
+    from emulator.controller.compiled_tcu import CompiledController
     from emulator.controller.config import config_from_profile
-    from emulator.controller.tcu import ReferenceController
 
     cfg = config_from_profile(profile, period_s)
     if motor_control is not None:
         cfg = dataclasses.replace(cfg, motor_control=motor_control)
-    tcu = ReferenceController(cfg, rig.signal_map.as_dict())
+    tcu = CompiledController(cfg, rig.signal_map.as_dict())
     await attach(channel, tcu.answer)
     return tcu
 

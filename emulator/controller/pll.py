@@ -57,7 +57,9 @@ class SogiPll:
         # v = V sin(theta): v_alpha ~ V sin(theta), v_beta ~ -V cos(theta)
         s, c = math.sin(self.theta), math.cos(self.theta)
         v_q = va * c + vb * s  # ~ V sin(theta_true - theta)
-        magnitude = max(math.hypot(va, vb), 1e-9)  # = |v_d + j v_q|, locked or not
+        # = |v_d + j v_q|, locked or not (the square root of the sum of squares, not
+        # math.hypot: the compiled twin's libm hypot rounds differently in the last place)
+        magnitude = max(math.sqrt(va * va + vb * vb), 1e-9)
         err = v_q / magnitude  # sin of the phase error
         # the trapezoidal SOGI's outputs sit half a sample ahead of the input's instant:
         # its vector is longer by 1/cos(wT/2) and leads by wT/2 (corrected below)

@@ -16,20 +16,20 @@ from emulator.link import open_link
 from emulator.link.udp import free_loopback_port
 from emulator.protocol.signal_map import build_signal_map
 
+from .compiled_tcu import CompiledController
 from .config import config_from_profile
-from .tcu import ReferenceController
 
 log = logging.getLogger(__name__)
 
 
 async def serve_controller(profile, link_url: str, *, allow_remote: bool = False,
                            idle_timeout_s: float = 30.0, stop: asyncio.Event | None = None
-                           ) -> ReferenceController:
+                           ) -> CompiledController:
     """Answer telegrams until stopped or silent for idle_timeout_s."""
     from emulator.profiles.reader import load_trainset
 
     signal_map = build_signal_map(load_trainset(profile)).as_dict()
-    tcu = ReferenceController(config_from_profile(profile), signal_map)
+    tcu = CompiledController(config_from_profile(profile), signal_map)
     link = open_link(link_url, allow_remote=allow_remote)
     await link.open()
     try:

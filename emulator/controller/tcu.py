@@ -54,6 +54,7 @@ class ReferenceController:
 
     def __init__(self, cfg: ControllerConfig, signal_map: dict) -> None:
         self.cfg = cfg
+        self.signal_map = signal_map
         self.version = signal_map["protocol_version"]
         self.m_index = {s["name"]: i for i, s in enumerate(signal_map["measurements"])}
         self.m_scale = [s["scale"] for s in signal_map["measurements"]]
@@ -156,6 +157,10 @@ class ReferenceController:
             self.ox_mod = [[ci(f"{names[k]}.modulation") for k in ks] for ks in by_link]
             self.ox_lc_gates = [[ci(f"{names[k]}.gates_enabled") for k in ks] for ks in by_link]
             self.ox_chopper = [ci(f"{n}.chopper_duty") for n in cfg.link_names]
+
+    def clear_events(self) -> None:
+        """Forget the events counted so far."""
+        self.events.clear()
 
     def _raise(self, code: int) -> None:
         self.event = code

@@ -122,7 +122,7 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     await rig.run(frames=rig.frame + 1)
                 dyno.events.clear()
                 if tcu is not None:
-                    tcu.events.clear()
+                    tcu.clear_events()
                 rig.driver.mode = MODE["accelerate"] if demand > 0 else MODE["brake"]
                 rig.driver.effort_demand = demand
                 await rig.run(frames=rig.frame + round(SETTLE_S / frame_s))

@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 
 from emulator.scenario import load_scenario, run_scenario
+from tests.controller.twin import Twin
 
 LIBRARY = sorted((Path(__file__).parents[2] / "profiles" / "scenarios").glob("*.toml"))
 
@@ -59,9 +60,21 @@ def _three_trips_then_isolated(run) -> None:
 STORY = {"protections": _three_trips_then_isolated}
 
 
+#: scenarios whose runs also compare the compiled reference controller with its
+#: plain-Python description, period by period (tests/controller/twin.py): between them
+#: the hardware trips and the isolation, a failed encoder and its fallback, a dead line
+#: and the PLL's relock, neutral sections, sliding wheels and a refusing line
+TWINNED = {"protections", "speed-sensor-loss", "catenary-dip-interruption",
+           "neutral-section", "low-adhesion-braking", "regeneration-non-receptive"}
+
+
 @pytest.mark.parametrize("path", list(_library_params()))
 def test_shipped_scenario_passes_in_lockstep(path: Path) -> None:
-    run = asyncio.run(run_scenario(load_scenario(path)))
+    twin = Twin() if path.stem in TWINNED else None
+    run = asyncio.run(run_scenario(load_scenario(path),
+                                   tune=twin.install if twin else None))
+    if twin is not None:
+        twin.assert_identical(at_least=len(run.recording.data) - 1)
     failed = [f"{r.spec.name}: measured {r.measured} {r.detail}" for r in run.results
               if not r.passed]
     assert not failed, failed

@@ -1,0 +1,227 @@
+"""The reference controller with its period compiled (period_kernel.py).
+
+``CompiledController`` is a ``ReferenceController``: the same configuration, the same
+classes built from it (which give the constants and name the parts), the same telegrams.
+Its state lives in arrays and each period is one call into the kernel; the plain-Python
+``ReferenceController.step`` stays the reference it is compared with, bit for bit
+(tests/controller/test_compiled_controller.py). The rig and ``railrig controller`` run
+this one.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+
+import msgpack
+import numpy as np
+
+from . import period_kernel as pk
+from . import tcu as ref
+from .config import ControllerConfig
+from .effort import (
+    FEEDFORWARD_EFFICIENCY,
+    GEAR_EFFICIENCY,
+    OVERLOAD,
+    POWER_OVERLOAD,
+)
+from .speed_plausibility import SENSOR_JUMP
+
+
+class CompiledController(ref.ReferenceController):
+    """The reference controller, one compiled call a period."""
+
+    def __init__(self, cfg: ControllerConfig, signal_map: dict) -> None:
+        super().__init__(cfg, signal_map)
+        self._m_scale = np.array(self.m_scale, dtype=float)
+        self._c_inv = np.array(self._c_inv_scale, dtype=float)
+        self._y = np.zeros(len(self.m_scale))
+        self._commands = np.zeros(len(self.c_names))
+        self._counts = np.zeros(pk.N_EVENT_CODES, dtype=np.int64)
+        self._recent = np.zeros(len(self._recent))
+        self._g = self._train_state()
+        self._k = self._constants()
+        self._mot, self._inv, self._lnk = self._motor_rows(), self._inverter_rows(), \
+            self._link_rows()
+        self._u_applied = np.zeros(max(len(cfg.line_converter_names), 1))
+        # the motor controls' state and constants, one row per inverter: the classes'
+        # own arrays become views of these rows, so they still read by name
+        self._sc_state = np.array([c.state for c in self.scalar])
+        self._sc_consts = np.array([c.consts for c in self.scalar])
+        for c, row in zip(self.scalar, self._sc_state, strict=True):
+            c.state = row
+        self._circuit = self.scalar[0].circuit
+        self._curve_i, self._curve_psi = self.scalar[0].curve.i, self.scalar[0].curve.psi
+        if self.vector is not None:
+            self._vc_state = np.array([c.state for c in self.vector])
+            self._vc_consts = np.array([c.consts for c in self.vector])
+            for c, row in zip(self.vector, self._vc_state, strict=True):
+                c.state = row
+        else:  # unused; the kernel takes arrays of the right kind
+            self._vc_state = np.zeros((len(self.scalar), 1))
+            self._vc_consts = np.zeros((len(self.scalar), 1))
+        self._tables = self._index_tables(cfg)
+
+    # --- the arrays, from the classes the base built -----------------------------------
+    def _train_state(self) -> np.ndarray:
+        g = np.zeros(pk.N_G)
+        g[pk.G_LINE_RMS_F] = self.line_rms_f
+        pll = self.pll
+        g[pk.G_PLL_W], g[pk.G_PLL_INTEGRAL] = pll.w, pll._integral
+        g[pk.G_ADH_ENABLED] = float(self.adhesion.enabled)
+        return g
+
+    def _constants(self) -> np.ndarray:
+        cfg, k = self.cfg, np.zeros(pk.N_K)
+        k[pk.K_PERIOD], k[pk.K_LINE_SIDE] = cfg.period_s, float(cfg.line_side)
+        k[pk.K_VECTOR] = float(self.vector is not None)
+        k[pk.K_LINE_NOMINAL] = cfg.line_nominal_v
+        k[pk.K_U_MIN2], k[pk.K_U_MIN1] = cfg.line_u_min2_v, cfg.line_u_min1_v
+        k[pk.K_U_MAX1], k[pk.K_U_MAX2] = cfg.line_u_max1_v, cfg.line_u_max2_v
+        k[pk.K_TRANSFORMER_RATIO] = cfg.transformer_ratio
+        k[pk.K_LINK_NOMINAL] = cfg.link_nominal_v
+        k[pk.K_P_CHOP] = 0.8 * (cfg.link_nominal_v + 200.0) ** 2 / cfg.chopper_ohm
+        k[pk.K_MASS], k[pk.K_MAX_SPEED] = cfg.mass_kg, cfg.max_speed_mps
+        k[pk.K_WHEEL_R], k[pk.K_GEAR] = cfg.wheel_radius_m, cfg.gear_ratio
+        k[pk.K_N_MOTORS] = self.n_motors
+        k[pk.K_T_MAX] = OVERLOAD * cfg.rated_torque_nm
+        k[pk.K_P_MAX] = POWER_OVERLOAD * cfg.rated_power_w
+        k[pk.K_NATURAL_MPS] = cfg.natural_from_mps
+        k[pk.K_GEAR_EFFICIENCY] = GEAR_EFFICIENCY
+        k[pk.K_FEEDFORWARD_EFFICIENCY] = FEEDFORWARD_EFFICIENCY
+        k[pk.K_DRIVE_EFFICIENCY], k[pk.K_FLUX_RAMP_S] = ref.DRIVE_EFFICIENCY, ref.FLUX_RAMP_S
+        k[pk.K_LOCK_S], k[pk.K_ROTATING_FACTOR] = ref.LOCK_S, ref.ROTATING_FACTOR
+        k[pk.K_RESET_S] = ref.HARDWARE_RESET_S
+        k[pk.K_TRIPS_TO_ISOLATE] = ref.HARDWARE_TRIPS_TO_ISOLATE
+        k[pk.K_TRIP_WINDOW_S] = ref.HARDWARE_WINDOW_S
+        k[pk.K_MAGNETISED_MPS], k[pk.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
+        pll = self.pll
+        k[pk.K_PLL_K], k[pk.K_PLL_W_NOM] = pll.k, pll.w_nom
+        k[pk.K_PLL_KP], k[pk.K_PLL_KI] = pll.kp, pll.ki
+        k[pk.K_PLL_MIN_AMPLITUDE] = pll.min_amplitude
+        seq = self.sequence
+        k[pk.K_SEQ_CHARGED_V], k[pk.K_SEQ_TIMEOUT_S] = seq.charged_v, seq.timeout_s
+        k[pk.K_SEQ_RETRY_S], k[pk.K_SEQ_MAX_RETRIES] = seq.retry_s, seq.max_retries
+        adh = self.adhesion
+        k[pk.K_ADH_CREEP_LIMIT], k[pk.K_ADH_A_MAX] = adh.creep_limit, adh.a_max
+        k[pk.K_ADH_A_MARGIN], k[pk.K_ADH_CUT] = adh.a_margin, adh.cut
+        k[pk.K_ADH_REAPPLY] = adh.reapply
+        enc = self.encoders[0]
+        k[pk.K_RAD_PER_COUNT], k[pk.K_WINDOW], k[pk.K_SHORT] = (enc.rad_per_count,
+                                                                enc.window, enc.short)
+        k[pk.K_SENSOR_JUMP] = SENSOR_JUMP
+        k[pk.K_LEAKAGE_H] = cfg.secondary_leakage_h
+        if self.links:
+            link = self.links[0]
+            k[pk.K_RAMP_V_PER_S], k[pk.K_DEADBEAT_GAIN] = link.ramp_v_per_s, link.g
+            (k[pk.K_NOTCH_B0], k[pk.K_NOTCH_B1], k[pk.K_NOTCH_B2]), (
+                k[pk.K_NOTCH_A1], k[pk.K_NOTCH_A2]) = link.notch.b, link.notch.a
+        return k
+
+    def _motor_rows(self) -> np.ndarray:
+        mot = np.zeros((self.n_motors, pk.M_WINDOW + self.encoders[0].window))
+        mot[:, pk.M_OK] = 1.0
+        mot[:, pk.M_INVERTER] = [k for k, ms in enumerate(self.motors) for _ in ms]
+        return mot
+
+    def _inverter_rows(self) -> np.ndarray:
+        cfg = self.cfg
+        inv = np.zeros((len(cfg.inverter_names), pk.N_I))
+        inv[:, pk.I_DEMANDED_AT] = -math.inf
+        inv[:, pk.I_FACTOR] = 1.0
+        inv[:, pk.I_LINK] = cfg.inverter_links
+        inv[:, pk.I_N_MOTORS] = cfg.n_motors_per_inverter
+        inv[:, pk.I_FIRST_MOTOR] = np.cumsum((0, *cfg.n_motors_per_inverter[:-1]))
+        return inv
+
+    def _link_rows(self) -> np.ndarray:
+        lnk = np.zeros((len(self.cfg.link_names), pk.N_L))
+        for row, link, on_link in zip(lnk, self.links, self.inverters_on_link, strict=True):
+            row[pk.L_KP], row[pk.L_KI], row[pk.L_I_MAX] = link.kp, link.ki, link.i_max
+            row[pk.L_N], row[pk.L_P_RATED], row[pk.L_ON_LINK] = link.n, link.p_rated, on_link
+        if not self.links:  # no line side: the links' voltages only
+            lnk[:, pk.L_ON_LINK] = self.inverters_on_link
+        return lnk
+
+    def _index_tables(self, cfg: ControllerConfig) -> tuple[np.ndarray, ...]:
+        """Where every value sits in the telegrams (from the base's lookups)."""
+        x = np.zeros(pk.N_X, dtype=np.int64)
+        x[[pk.X_MODE, pk.X_DEMAND, pk.X_DIRECTION, pk.X_NEUTRAL, pk.X_REGEN, pk.X_CRUISE]] = (
+            self.ix_mode, self.ix_demand, self.ix_direction, self.ix_neutral, self.ix_regen,
+            self.ix_cruise)
+        x[[pk.X_ACHIEVED_OUT, pk.X_AVAILABLE_OUT, pk.X_STATUS_OUT, pk.X_EVENT_OUT]] = (
+            self.ox_achieved, self.ox_available, self.ox_status, self.ox_event)
+        xi = np.array([[*self.ix_phase[k], self.ix_gate_fault[k], *self.ox_duty[k],
+                        self.ox_gates[k], self.ox_reset[k]]
+                       for k in range(len(cfg.inverter_names))], dtype=np.int64)
+        xm = np.array(list(zip(self.ix_count, self.ix_temp, strict=True)), dtype=np.int64)
+        xl = np.zeros((len(cfg.link_names), pk.N_XL), dtype=np.int64)
+        xl[:, pk.XL_VOLTAGE] = self.ix_link_v
+        xc = np.zeros((0, pk.N_XC), dtype=np.int64)
+        if cfg.line_side:
+            x[[pk.X_LINE_V, pk.X_BREAKER, pk.X_LINE_TRIP, pk.X_BREAKER_OUT]] = (
+                self.ix_line_v, self.ix_breaker, self.ix_line_trip, self.ox_breaker)
+            xl[:, pk.XL_OVERVOLTAGE] = self.ix_ovp
+            xl[:, pk.XL_CHOPPER_OUT] = self.ox_chopper
+            rows = []
+            for link, (isec, mod, gates) in enumerate(zip(self.ix_isec, self.ox_mod,
+                                                          self.ox_lc_gates, strict=True)):
+                rows += [[link, a, 0, 0, b, c, 0, 0] for a, b, c in zip(isec, mod, gates,
+                                                                        strict=True)]
+            # the converters in the order of the links, as the contactors' lists are
+            order = [k for i in range(len(cfg.link_names))
+                     for k, lk in enumerate(cfg.line_converter_links) if lk == i]
+            for row, k in zip(rows, order, strict=True):
+                row[pk.XC_PRECHARGE], row[pk.XC_LINE] = self.ix_pre[k], self.ix_line[k]
+                row[pk.XC_PRECHARGE_OUT], row[pk.XC_LINE_OUT] = self.ox_pre[k], self.ox_line[k]
+            xc = np.array(rows, dtype=np.int64).reshape(-1, pk.N_XC)
+        return x, xi, xm, xl, xc
+
+    # --- telegrams and the period -------------------------------------------------------
+    def answer(self, payload: bytes) -> bytes:
+        """The command telegram for a measurement telegram."""
+        m = msgpack.unpackb(payload)
+        seq, period_us, flags = m[1], m[3], m[4]
+        y = self._y
+        y[:] = m[5:]
+        y *= self._m_scale
+        out = self._commands
+        self._period(y, flags, period_us * 1e-6, out)
+        wire = np.rint(out * self._c_inv).astype(np.int64).tolist()
+        return msgpack.packb([self.version, seq, 0, 0, 0, *wire])
+
+    def step(self, y, flags: int, period_s: float, out) -> None:
+        """The control laws, compiled: y the measurements in SI units (map order), out
+        the commands (lists or arrays)."""
+        y_arr = np.asarray(y, dtype=float)
+        out_arr = np.zeros(len(self.c_names))
+        self._period(y_arr, flags, period_s, out_arr)
+        out[:] = out_arr.tolist() if isinstance(out, list) else out_arr
+
+    def _period(self, y: np.ndarray, flags: int, period_s: float, out: np.ndarray) -> None:
+        g = self._g
+        g[pk.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
+        counts = self._counts
+        raised = counts[0]
+        x, xi, xm, xl, xc = self._tables
+        pk.period(y, flags, period_s, out, g, self._k, self._counts, self._recent,
+                  self._mot, self._inv, self._lnk, self._u_applied, self._sc_state,
+                  self._sc_consts, self._circuit, self._vc_state, self._vc_consts,
+                  self._curve_i, self._curve_psi, x, xi, xm, xl, xc)
+        if counts[0] != raised:
+            self.events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
+        self.t = g[pk.G_T]
+        self.event = int(g[pk.G_EVENT])
+        self.effort_n = g[pk.G_EFFORT]
+        self.achieved_n, self.available_n = g[pk.G_ACHIEVED], g[pk.G_AVAILABLE]
+
+    def clear_events(self) -> None:
+        """Forget the events counted so far."""
+        super().clear_events()
+        self._counts[:] = 0
+
+
+def reference_controller(cfg: ControllerConfig, signal_map: dict,
+                         compiled: bool = True) -> ref.ReferenceController:
+    """The reference controller: compiled (what the rig runs) or plain Python."""
+    return (CompiledController if compiled else ref.ReferenceController)(cfg, signal_map)

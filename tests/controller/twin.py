@@ -1,0 +1,44 @@
+"""The compiled reference controller beside its plain-Python description: both take
+every measurement telegram of a run, and their commands are compared before rounding,
+bit for bit (the compiled period is the same IEEE 754 arithmetic in the same order: no
+fastmath, and no library call that rounds differently, see pll.py's magnitude)."""
+
+from __future__ import annotations
+
+from emulator.controller.compiled_tcu import CompiledController
+from emulator.controller.tcu import ReferenceController
+
+
+class Twin:
+    """Install on a CompiledController; then ``compared`` periods, ``mismatches`` the
+    first few that differ (period, the commands' names)."""
+
+    def __init__(self) -> None:
+        self.compared = 0
+        self.mismatches: list[tuple[int, list[str]]] = []
+        self.plain: ReferenceController | None = None
+        self.compiled: CompiledController | None = None
+
+    def install(self, tcu: CompiledController) -> None:
+        plain = ReferenceController(tcu.cfg, tcu.signal_map)
+        self.plain, self.compiled = plain, tcu
+        inner = tcu._period
+        out_plain = [0.0] * len(tcu.c_names)
+
+        def period(y, flags, period_s, out) -> None:
+            plain.adhesion.enabled = tcu.adhesion.enabled
+            plain.step(y.tolist(), flags, period_s, out_plain)
+            inner(y, flags, period_s, out)
+            self.compared += 1
+            if out.tolist() != out_plain and len(self.mismatches) < 5:
+                names = [n for n, a, b in zip(tcu.c_names, out.tolist(), out_plain,
+                                              strict=True) if a != b]
+                self.mismatches.append((self.compared, names))
+
+        tcu._period = period
+
+    def assert_identical(self, at_least: int) -> None:
+        assert self.compared >= at_least
+        assert not self.mismatches, self.mismatches
+        assert self.compiled.events == self.plain.events
+        assert self.compiled.event == self.plain.event
