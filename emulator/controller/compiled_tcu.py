@@ -16,6 +16,8 @@ from collections import Counter
 import msgpack
 import numpy as np
 
+from emulator.link import msgpack_array
+
 from . import period_kernel as pk
 from . import tcu as ref
 from .config import ControllerConfig
@@ -61,6 +63,12 @@ class CompiledController(ref.ReferenceController):
             self._vc_state = np.zeros((len(self.scalar), 1))
             self._vc_consts = np.zeros((len(self.scalar), 1))
         self._tables = self._index_tables(cfg)
+        # the telegrams' compiled codec (msgpack_array.py) and its buffers
+        self._head = np.zeros(5, dtype=np.int64)
+        self._reply_head = np.zeros(5, dtype=np.int64)
+        self._reply_head[0] = self.version
+        self._scratch = np.zeros(1, dtype=np.uint64)
+        self._wire = np.zeros(msgpack_array.buffer_size(len(self.c_names)), dtype=np.uint8)
 
     # --- the arrays, from the classes the base built -----------------------------------
     def _train_state(self) -> np.ndarray:
@@ -180,15 +188,20 @@ class CompiledController(ref.ReferenceController):
     # --- telegrams and the period -------------------------------------------------------
     def answer(self, payload: bytes) -> bytes:
         """The command telegram for a measurement telegram."""
-        m = msgpack.unpackb(payload)
-        seq, period_us, flags = m[1], m[3], m[4]
-        y = self._y
-        y[:] = m[5:]
+        y, head = self._y, self._head
+        if msgpack_array.unpack(np.frombuffer(payload, dtype=np.uint8), head, y,
+                                self._scratch) == 0:
+            seq, period_us, flags = int(head[1]), int(head[3]), int(head[4])
+        else:  # not the plain case: the msgpack package reads it, or says why not
+            m = msgpack.unpackb(payload)
+            seq, period_us, flags = m[1], m[3], m[4]
+            y[:] = m[5:]
         y *= self._m_scale
         out = self._commands
         self._period(y, flags, period_us * 1e-6, out)
-        wire = np.rint(out * self._c_inv).astype(np.int64).tolist()
-        return msgpack.packb([self.version, seq, 0, 0, 0, *wire])
+        self._reply_head[1] = seq
+        n = msgpack_array.pack(self._reply_head, out, self._c_inv, self._wire)
+        return self._wire[:n].tobytes()
 
     def step(self, y, flags: int, period_s: float, out) -> None:
         """The control laws, compiled: y the measurements in SI units (map order), out

@@ -15,6 +15,8 @@ import msgpack
 import numba as nb
 import numpy as np
 
+from . import msgpack_array
+
 HEADER_LEN = 5
 
 #: the kinds of rejection, counted per kind by the rig
@@ -58,18 +60,36 @@ class TelegramCodec:
         self._lo = np.asarray(recv_lo, dtype=float)
         self._hi = np.asarray(recv_hi, dtype=float)
         self._n_recv = len(self._recv_scales)
-        self._packer = msgpack.Packer(use_bin_type=True)
-        self._wire = np.zeros(len(self._inv_send), dtype=np.int64)
+        # the compiled codec's buffers (msgpack_array.py): one telegram each way
+        self._out = np.zeros(msgpack_array.buffer_size(len(self._inv_send)), dtype=np.uint8)
+        self._header = np.zeros(HEADER_LEN, dtype=np.int64)
+        self._got_header = np.zeros(HEADER_LEN, dtype=np.int64)
+        self._scratch = np.zeros(1, dtype=np.uint64)
 
     def encode(self, sequence: int, time_us: int, period_us: int, flags: int,
                values: np.ndarray) -> bytes:
-        """Pack physical values as integers in wire units after the header."""
-        _to_wire(values, self._inv_send, self._wire)
-        return self._packer.pack([self.version, sequence, time_us, period_us, flags,
-                                  *self._wire.tolist()])
+        """Pack physical values as integers in wire units (rounded half to even) after
+        the header: the bytes msgpack.packb gives for that list."""
+        h = self._header
+        h[0], h[1], h[2], h[3], h[4] = self.version, sequence, time_us, period_us, flags
+        n = msgpack_array.pack(h, values, self._inv_send, self._out)
+        return self._out[:n].tobytes()
 
     def decode(self, payload: bytes) -> Telegram:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""
+        values = np.empty(self._n_recv)
+        head = self._got_header
+        if msgpack_array.unpack(np.frombuffer(payload, dtype=np.uint8), head, values,
+                                self._scratch) == 0 and head[0] == self.version:
+            # the plain case, compiled; the ranges are checked as below
+            values *= self._recv_scales
+            if _first_bad(values, self._lo, self._hi) < 0:
+                return Telegram(int(head[0]), int(head[1]), int(head[2]), int(head[3]),
+                                int(head[4]), values)
+        return self._decode_checked(payload)
+
+    def _decode_checked(self, payload: bytes) -> Telegram:
+        """The long way, through the msgpack package: every fault named."""
         try:
             items = msgpack.unpackb(payload, raw=False, strict_map_key=True,
                                     max_array_len=HEADER_LEN + self._n_recv + 64,
@@ -109,13 +129,6 @@ class TelegramCodec:
 
 
 _NUMBERS = (int, float)
-
-
-@nb.njit(cache=True)
-def _to_wire(values, inv_scales, out):
-    """Physical values to integer wire units, rounded half to even."""
-    for i in range(values.shape[0]):
-        out[i] = np.int64(np.rint(values[i] * inv_scales[i]))
 
 
 @nb.njit(cache=True)
