@@ -11,6 +11,7 @@ import asyncio
 import logging
 import subprocess
 import sys
+import time
 
 from emulator.link import open_link
 from emulator.link.udp import free_loopback_port
@@ -20,6 +21,8 @@ from .compiled_tcu import CompiledController
 from .config import config_from_profile
 
 log = logging.getLogger(__name__)
+
+POLL_BEFORE_WAIT_NS = 300_000  # poll the link this long before blocking on it
 
 
 async def serve_controller(profile, link_url: str, *, allow_remote: bool = False,
@@ -34,7 +37,12 @@ async def serve_controller(profile, link_url: str, *, allow_remote: bool = False
     await link.open()
     try:
         while stop is None or not stop.is_set():
-            if not await link.wait(idle_timeout_s):
+            # poll briefly before blocking, as the rig does in lockstep: a process put to
+            # sleep wakes tens of us to ms late on a VM, which would pace the run
+            spin_until = time.monotonic_ns() + POLL_BEFORE_WAIT_NS
+            while not link.pending() and time.monotonic_ns() < spin_until:
+                link.poll()
+            if not link.pending() and not await link.wait(idle_timeout_s):
                 log.info("rig silent for %.0f s: controller stops", idle_timeout_s)
                 break
             for payload in link.take():

@@ -18,7 +18,7 @@ from .drivetrain import RAIL_CONDITIONS
 from .energy import EnergyAccount, energy_account
 from .inputs import COMMAND_NOT_FINITE, COMMAND_OUT_OF_RANGE, load_commands, load_line_commands
 from .kernel import advance_frame
-from .line import SUPPLY_LEVELS
+from .line import SUPPLY_LEVELS, power_quality_window
 from .machine import currents
 from .params import (
     ConverterParams,
@@ -123,13 +123,8 @@ class Plant:
                       self.kp, self.ku, self.i_link, self.probes.src, self.probes.row,
                       self.probes.col, self.probes.rows_for(n_sub))
         self.probes.took(self.frames + 1, n_sub, h)
-        row = self.frames % len(self._pq_ring)
-        new = self.ss[L.SS_PQ_T:L.SS_PQ_IS + 1]
-        self._pq_sum += new - self._pq_ring[row]
-        self._pq_ring[row] = new
-        if self._pq_sum[0] > 0.0:
-            # a non-receptive line answers the mean reverse power over whole periods
-            self.ss[L.SS_REVERSE_W] = max(-self._pq_sum[1] / self._pq_sum[0], 0.0)
+        power_quality_window(self.ss, self._pq_ring, self._pq_sum,
+                             self.frames % len(self._pq_ring))
         self.frames += 1
         self.substeps += n_sub
         # integer nanoseconds: t_k = k T exactly for a constant frame, no drift

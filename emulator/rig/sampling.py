@@ -235,11 +235,24 @@ def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, edge_sc
 
 
 @nb.njit(cache=True)
-def _fill_commands(values, duty_pos, gate_pos, gates_allowed, duty, gates):
+def _fill_commands(values, duty_pos, gate_pos, reset_pos, gates_allowed, duty, gates, reset,
+                   line_pos, chopper_pos, modulation, line_gates, precharge, contactor,
+                   chopper):
+    """The command vector into the plant's command arrays; the rig's watchdog
+    (gates_allowed False) blocks the inverters', the line converters' gates and the
+    chopper, while the contactors keep their command."""
     for k in range(duty_pos.shape[0]):
         for x in range(3):
             duty[k, x] = values[duty_pos[k, x]]
         gates[k] = gates_allowed and values[gate_pos[k]] >= 0.5
+        reset[k] = values[reset_pos[k]] >= 0.5
+    for j in range(line_pos.shape[0]):
+        modulation[j] = values[line_pos[j, 0]]
+        line_gates[j] = values[line_pos[j, 1]] >= 0.5 and gates_allowed
+        precharge[j] = values[line_pos[j, 2]] >= 0.5
+        contactor[j] = values[line_pos[j, 3]] >= 0.5
+    for i in range(chopper_pos.shape[0]):
+        chopper[i] = values[chopper_pos[i]] if gates_allowed else 0.0
 
 
 class CommandMapper:
@@ -258,6 +271,9 @@ class CommandMapper:
         self.safe = np.zeros(len(names))
         self.safe[self._duty_pos] = 0.5  # gates blocked, duties at mid
         self._line_pos = None
+        # (no line side: empty tables for the compiled fill)
+        self._no_line = (np.zeros((0, 4), dtype=np.int64), 0, np.zeros(0, dtype=np.int64))
+        self._no_line_commands = LineCommands.open(0, 0)
         if plant.line_side:
             units = plant.params.line_converters
             self._line_pos = (
@@ -274,21 +290,16 @@ class CommandMapper:
 
         Fills the same Commands object every frame (no allocation in the frame loop).
         """
-        _fill_commands(values, self._duty_pos, self._gate_pos, gates_allowed,
-                       self._cmd.duty, self._cmd.gates_enabled)
-        self._cmd.fault_reset[:] = values[self._reset_pos] >= 0.5
-        if self._line_pos is not None:
-            pos, breaker, chopper = self._line_pos
-            line = self._cmd.line
-            line.modulation[:] = values[pos[:, 0]]
-            # the rig's watchdog blocks the line converters' gates and the chopper too;
-            # the contactors and the breaker keep their last command
-            line.gates_enabled[:] = (values[pos[:, 1]] >= 0.5) & gates_allowed
-            line.precharge[:] = values[pos[:, 2]] >= 0.5
-            line.line_contactor[:] = values[pos[:, 3]] >= 0.5
+        cmd = self._cmd
+        pos, breaker, chopper = self._line_pos or self._no_line
+        line = cmd.line or self._no_line_commands
+        _fill_commands(values, self._duty_pos, self._gate_pos, self._reset_pos, gates_allowed,
+                       cmd.duty, cmd.gates_enabled, cmd.fault_reset, pos, chopper,
+                       line.modulation, line.gates_enabled, line.precharge,
+                       line.line_contactor, line.chopper)
+        if cmd.line is not None:  # the breaker keeps its command under the watchdog too
             line.breaker = bool(values[breaker] >= 0.5)
-            line.chopper[:] = values[chopper] if gates_allowed else 0.0
-        return self._cmd
+        return cmd
 
     def replies(self, values: np.ndarray) -> dict[str, float]:
         """The controller's train-interface replies."""
