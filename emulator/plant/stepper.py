@@ -32,6 +32,10 @@ from .params import (
 )
 from .probe import Probes
 
+#: the plant's attribute holding each kind of state (layout.READABLE's first field)
+_STATE_ARRAYS = {"motor_state": "ms", "inverter_state": "ist", "link_state": "lst",
+                 "train_state": "ts", "supply_state": "ss", "lc_state": "ls2"}
+
 
 class Plant:
     """The whole drive of a trainset, stepped one frame at a time."""
@@ -45,6 +49,7 @@ class Plant:
         """
         self.params = params
         self.substep_s = params.substep_s
+        self._checked: tuple = (None, None)  # the command arrays last found well-formed
         self.refresh_each_substep = refresh_each_substep
         self.time_s = 0.0
         self.time_ns = 0
@@ -133,29 +138,42 @@ class Plant:
 
     def _apply(self, commands: Commands) -> None:
         duty, gates = commands.duty, commands.gates_enabled
-        if (not isinstance(duty, np.ndarray) or duty.dtype != np.float64
-                or duty.shape != (self.n_inverters, 3)):
-            duty = np.asarray(duty, dtype=float)
-            if duty.shape != (self.n_inverters, 3):
-                raise CommandError(f"expected duty of shape ({self.n_inverters}, 3), "
-                                   f"got {duty.shape}")
-        if (not isinstance(gates, np.ndarray) or gates.dtype != np.bool_
-                or gates.shape != (self.n_inverters,)):
-            gates = np.asarray(gates, dtype=bool)
-            if gates.shape != (self.n_inverters,):
-                raise CommandError(f"expected gates of shape ({self.n_inverters},), "
-                                   f"got {gates.shape}")
+        if (duty is not self._checked[0] or gates is not self._checked[1]
+                or duty.shape != (self.n_inverters, 3) or gates.shape != (self.n_inverters,)):
+            duty, gates = self._checked_arrays(duty, gates)
         line = commands.line
         if line is not None:
             self._apply_line(line)
         reset = commands.fault_reset
-        if reset is not None and np.any(reset):  # (the rig's frame loop sends one each frame)
+        # (the rig's frame loop sends one each frame)
+        if reset is not None and (reset.any() if isinstance(reset, np.ndarray)
+                                  else np.any(reset)):
             self.reset_gate_drivers(reset)
         code = load_commands(duty, gates, self.iu)
         if code == COMMAND_NOT_FINITE:
             raise CommandError("duty cycles must be finite (NaN or inf received)")
         if code == COMMAND_OUT_OF_RANGE:
             raise CommandError("duty cycles must lie within 0..1")
+
+    def _checked_arrays(self, duty, gates) -> tuple[np.ndarray, np.ndarray]:
+        """Duty and gate commands as arrays of the plant's shape and type; arrays that
+        already are are remembered (the rig fills the same ones each frame, and an
+        array's type does not change under it; its shape is checked each time)."""
+        as_given = (isinstance(duty, np.ndarray) and duty.dtype == np.float64
+                    and duty.shape == (self.n_inverters, 3) and isinstance(gates, np.ndarray)
+                    and gates.dtype == np.bool_ and gates.shape == (self.n_inverters,))
+        if as_given:
+            self._checked = (duty, gates)
+            return duty, gates
+        duty = np.asarray(duty, dtype=float)
+        if duty.shape != (self.n_inverters, 3):
+            raise CommandError(f"expected duty of shape ({self.n_inverters}, 3), "
+                               f"got {duty.shape}")
+        gates = np.asarray(gates, dtype=bool)
+        if gates.shape != (self.n_inverters,):
+            raise CommandError(f"expected gates of shape ({self.n_inverters},), "
+                               f"got {gates.shape}")
+        return duty, gates
 
     def reset_gate_drivers(self, which: np.ndarray) -> None:
         """Reset the latched hardware trip of the inverters where which is True; a driver
@@ -396,9 +414,7 @@ class Plant:
         if name not in L.READABLE:
             raise KeyError(f"no state named {name!r}; see Plant.names()")
         array, column, _unit, _ = L.READABLE[name]
-        return getattr(self, {"motor_state": "ms", "inverter_state": "ist",
-                              "link_state": "lst", "train_state": "ts", "supply_state": "ss",
-                              "lc_state": "ls2"}[array]), column
+        return getattr(self, _STATE_ARRAYS[array]), column
 
     @staticmethod
     def names() -> dict[str, str]:
