@@ -2,7 +2,9 @@
 
 ``CompiledController`` is a ``ReferenceController``: the same configuration, the same
 classes built from it (which give the constants and name the parts), the same telegrams.
-Its state lives in arrays and each period is one call into the kernel; the plain-Python
+Its state lives in arrays and each period is one call into the kernel (the Python parts
+give their constants when it is built; of their later changes only
+``adhesion.enabled`` acts, read each period: tests switch it); the plain-Python
 ``ReferenceController.step`` stays the reference it is compared with, bit for bit
 (tests/controller/test_compiled_controller.py). The rig and ``railrig controller`` run
 this one.
@@ -81,6 +83,8 @@ class CompiledController(ref.ReferenceController):
 
     def _constants(self) -> np.ndarray:
         cfg, k = self.cfg, np.zeros(pk.N_K)
+        if ref.HARDWARE_TRIPS_TO_ISOLATE > pk.TRIP_SLOTS:
+            raise ValueError(f"the kernel keeps {pk.TRIP_SLOTS} hardware trips an inverter")
         k[pk.K_PERIOD], k[pk.K_LINE_SIDE] = cfg.period_s, float(cfg.line_side)
         k[pk.K_VECTOR] = float(self.vector is not None)
         k[pk.K_LINE_NOMINAL] = cfg.line_nominal_v
@@ -192,16 +196,33 @@ class CompiledController(ref.ReferenceController):
         if msgpack_array.unpack(np.frombuffer(payload, dtype=np.uint8), head, y,
                                 self._scratch) == 0:
             seq, period_us, flags = int(head[1]), int(head[3]), int(head[4])
+            y *= self._m_scale
         else:  # not the plain case: the msgpack package reads it, or says why not
-            m = msgpack.unpackb(payload)
-            seq, period_us, flags = m[1], m[3], m[4]
-            y[:] = m[5:]
-        y *= self._m_scale
+            seq, period_us, flags = self._read_checked(payload, y)
         out = self._commands
         self._period(y, flags, period_us * 1e-6, out)
         self._reply_head[1] = seq
         n = msgpack_array.pack(self._reply_head, out, self._c_inv, self._wire)
         return self._wire[:n].tobytes()
+
+    def _read_checked(self, payload: bytes, y: np.ndarray) -> tuple[int, int, int]:
+        """A telegram the compiled reader left (another type, a length, a value past
+        int64, a non-finite float) read through the msgpack package into y (SI units);
+        raises TypeError or ValueError for what no board would send, before anything
+        reaches the compiled period."""
+        m = msgpack.unpackb(payload)
+        if not isinstance(m, list) or len(m) < 5:
+            raise ValueError("a measurement telegram is a msgpack array of 5 + n numbers")
+        seq, period_us, flags = m[1], m[3], m[4]
+        for name, value in (("sequence", seq), ("period_us", period_us), ("flags", flags)):
+            if type(value) is not int or not 0 <= value < 1 << 63:
+                raise TypeError(f"{name} must be an integer 0 .. 2^63 - 1, got {value!r}")
+        values = [b * sc for b, sc in zip(m[5:], self.m_scale, strict=True)]
+        for v in values:
+            if type(v) is not float or not math.isfinite(v):
+                raise ValueError(f"measurement {v!r} is not a finite number")
+        y[:] = values
+        return seq, period_us, flags
 
     def step(self, y, flags: int, period_s: float, out) -> None:
         """The control laws, compiled: y the measurements in SI units (map order), out

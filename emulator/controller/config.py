@@ -113,7 +113,11 @@ def _rated_slip(m) -> float:
 
 def config_from_profile(path, period_s: float | None = None) -> ControllerConfig:
     """The controller's parameters from a trainset profile."""
-    p = load_trainset(path)
+    return config_from_params(load_trainset(path), period_s)
+
+
+def config_from_params(p, period_s: float | None = None) -> ControllerConfig:
+    """The controller's parameters from a trainset's parameters (a loaded profile)."""
     m = p.machine
     levels = {25000.0: (17500.0, 19000.0, 27500.0, 29000.0),
               15000.0: (11000.0, 12000.0, 17250.0, 18000.0)}  # EN 50163

@@ -82,6 +82,7 @@ LINK_OVERVOLTAGE, LINK_UNDERVOLTAGE, OVERSPEED = 20, 21, 30
 MOTOR_TEMPERATURE_DERATING, MOTOR_OVERTEMPERATURE, LINK_WATCHDOG = 40, 41, 50
 LINE_UNDERVOLTAGE, LINE_OVERCURRENT, WHEEL_SLIP, SPEED_SENSOR_FAULT = 60, 61, 70, 80
 N_EVENT_CODES = 128
+TRIP_SLOTS = 3  # hardware trips kept per inverter (I_TRIP_0..2): enough to isolate at 3
 HARDWARE_TRIP_BIT = 8
 # sequence states (sequence.py)
 OFF, BREAKER, PRECHARGE, LINE, RUNNING, TRIPPED, NEUTRAL = range(7)
@@ -524,7 +525,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         ia, ib, ic = y[xi[kk, XI_IA]], y[xi[kk, XI_IB]], y[xi[kk, XI_IC]]
         if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
             raise_event(g, counts, INVERTER_OVERCURRENT)
-            row[I_BLOCK_UNTIL] = t + 0.1
+            row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + 0.1)
         tripped = int(y[xi[kk, XI_GATE_FAULT]]) & HARDWARE_TRIP_BIT
         if tripped and row[I_LATCHED] == 0.0:
             raise_event(g, counts, HARDWARE_TRIP)
@@ -533,9 +534,9 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                 if t - row[I_TRIP_0 + j] < k[K_TRIP_WINDOW_S]:
                     row[I_TRIP_0 + kept] = row[I_TRIP_0 + j]
                     kept += 1
-            if kept == 3:
+            if kept == TRIP_SLOTS:
                 row[I_TRIP_0], row[I_TRIP_1] = row[I_TRIP_1], row[I_TRIP_2]
-                kept = 2
+                kept = TRIP_SLOTS - 1
             row[I_TRIP_0 + kept] = t
             row[I_N_TRIPS] = kept + 1
             if kept + 1 >= k[K_TRIPS_TO_ISOLATE]:

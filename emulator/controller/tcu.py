@@ -308,7 +308,8 @@ class ReferenceController:
             ia, ib, ic = (y[i] for i in self.ix_phase[k])
             if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
                 self._raise(events.INVERTER_OVERCURRENT)
-                self.block_until[k] = self.t + 0.1
+                # (a longer block stands: an isolated inverter stays isolated)
+                self.block_until[k] = max(self.block_until[k], self.t + 0.1)
             # the gate drivers' own trip (bit 3): blocked by the hardware already. Each new
             # trip (the bit rising, also during a block of our own) is reported and
             # counted; keep the gates off a while, then reset the drivers for the last

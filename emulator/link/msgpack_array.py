@@ -10,11 +10,14 @@ msgpack package on random telegrams.
 
 Unpacking reads an array of integers and floats (float 32/64) into a float array. It
 answers only the plain case; anything else (another type, a length that does not
-match, bytes left over, an integer past int64) returns a negative status and the caller
-takes the msgpack package's full path, which names the fault.
+match, bytes left over, an integer past int64, a float that is not finite) returns a
+negative status and the caller takes the msgpack package's full path, which names the
+fault.
 """
 
 from __future__ import annotations
+
+import math
 
 import numba as nb
 import numpy as np
@@ -164,6 +167,8 @@ def unpack(data, header, values, scratch):
                 scratch[0] = 0
                 bits32[0] = np.uint32(u)
                 x, is_float = np.float64(scratch[:1].view(np.float32)[0]), True
+            if is_float and not math.isfinite(x):  # NaN or infinite: the long way
+                return -1
             elif b == 0xCF:
                 if u >= np.uint64(1) << np.uint64(63):  # past int64: the long way
                     return -1

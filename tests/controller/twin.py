@@ -5,6 +5,8 @@ fastmath, and no library call that rounds differently, see pll.py's magnitude)."
 
 from __future__ import annotations
 
+import numpy as np
+
 from emulator.controller.compiled_tcu import CompiledController
 from emulator.controller.tcu import ReferenceController
 
@@ -30,9 +32,10 @@ class Twin:
             plain.step(y.tolist(), flags, period_s, out_plain)
             inner(y, flags, period_s, out)
             self.compared += 1
-            if out.tolist() != out_plain and len(self.mismatches) < 5:
+            same = out.tobytes() == np.array(out_plain).tobytes()  # -0.0 is not 0.0
+            if not same and len(self.mismatches) < 5:
                 names = [n for n, a, b in zip(tcu.c_names, out.tolist(), out_plain,
-                                              strict=True) if a != b]
+                                              strict=True) if repr(a) != repr(b)]
                 self.mismatches.append((self.compared, names))
 
         tcu._period = period

@@ -60,7 +60,7 @@ def _unpack(payload: bytes, n_values: int):
 @given(header=st.lists(NUMBERS, min_size=5, max_size=5), single=st.booleans(),
        data=st.data())
 def test_unpacked_numbers_are_msgpacks(header, single, data) -> None:
-    floats = st.floats(allow_nan=False, width=32 if single else 64)  # float 32 or 64
+    floats = st.floats(allow_nan=False, allow_infinity=False, width=32 if single else 64)
     values = data.draw(st.lists(st.one_of(NUMBERS, floats), max_size=40))
     payload = msgpack.packb([*header, *values], use_single_float=single)
     status, got_header, got = _unpack(payload, len(values))
@@ -78,6 +78,8 @@ def test_anything_else_goes_the_long_way() -> None:
         msgpack.packb([2, 0, 0, 1000, 0, True]), msgpack.packb([2, 0, 0, 1000, 0, None]),
         msgpack.packb([2, 0, 0, 1000, 0, "1"]), msgpack.packb([2.0, 0, 0, 1000, 0, 1]),
         msgpack.packb([2, 0, 0, 1000, 0, 2**64 - 1]),  # uint 64 past int64
+        msgpack.packb([2, 0, 0, 1000, 0, float("nan")]),  # not finite: the long path
+        msgpack.packb([2, 0, 0, 1000, 0, float("-inf")], use_single_float=True),
         msgpack.packb([2, 0, 0, 1000, 0, 1])[:-1] + b"\xcd\x01",  # cut short
     ]
     for payload in cases:
