@@ -50,6 +50,7 @@ class Plant:
         self.params = params
         self.substep_s = params.substep_s
         self._checked: tuple = (None, None)  # the command arrays last found well-formed
+        self._line_checked: tuple = (None,) * 5  # ... and the line side's
         self.refresh_each_substep = refresh_each_substep
         self.time_s = 0.0
         self.time_ns = 0
@@ -185,16 +186,21 @@ class Plant:
 
     def _apply_line(self, line: LineCommands) -> None:
         n, k = self.n_line_converters, self.n_links
-        arrays = [a if isinstance(a, np.ndarray) else np.asarray(a, dtype=float)
-                  for a in (line.modulation, line.gates_enabled, line.precharge,
-                            line.line_contactor)]
+        arrays = (line.modulation, line.gates_enabled, line.precharge, line.line_contactor)
         chopper = line.chopper
-        if not isinstance(chopper, np.ndarray):
-            chopper = np.asarray(chopper, dtype=float)
-        if any(a.shape != (n,) or a.dtype.kind not in "fb" for a in arrays) or (
-                chopper.shape != (k,) or chopper.dtype.kind != "f"):
-            raise CommandError(f"line commands need {n} values per converter and {k} chopper "
-                               "duties, as numbers")
+        seen = self._line_checked  # the arrays found well-formed last frame (the rig's)
+        if not (arrays[0] is seen[0] and arrays[1] is seen[1] and arrays[2] is seen[2]
+                and arrays[3] is seen[3] and chopper is seen[4] and chopper.shape == (k,)
+                and all(a.shape == (n,) for a in arrays)):
+            arrays = [a if isinstance(a, np.ndarray) else np.asarray(a, dtype=float)
+                      for a in arrays]
+            if not isinstance(chopper, np.ndarray):
+                chopper = np.asarray(chopper, dtype=float)
+            if any(a.shape != (n,) or a.dtype.kind not in "fb" for a in arrays) or (
+                    chopper.shape != (k,) or chopper.dtype.kind != "f"):
+                raise CommandError(f"line commands need {n} values per converter and {k} "
+                                   "chopper duties, as numbers")
+            self._line_checked = (*arrays, chopper)
         code = load_line_commands(arrays[0], arrays[1], arrays[2], arrays[3],
                                   1.0 if line.breaker else 0.0, chopper, self.lu, self.ss,
                                   self.ku)
