@@ -1,4 +1,4 @@
-"""The reference controller with its period compiled (period_kernel.py).
+"""The reference controller with its period compiled (period_kernel.py, period_parts.py).
 
 ``CompiledController`` is a ``ReferenceController``: the same configuration, the same
 classes built from it (which give the constants and name the parts), the same telegrams.
@@ -21,6 +21,7 @@ import numpy as np
 from emulator.link import msgpack_array
 
 from . import period_kernel as pk
+from . import period_parts as pp
 from . import tcu as ref
 from .config import ControllerConfig
 from .effort import (
@@ -41,7 +42,7 @@ class CompiledController(ref.ReferenceController):
         self._c_inv = np.array(self._c_inv_scale, dtype=float)
         self._y = np.zeros(len(self.m_scale))
         self._commands = np.zeros(len(self.c_names))
-        self._counts = np.zeros(pk.N_EVENT_CODES, dtype=np.int64)
+        self._counts = np.zeros(pp.N_EVENT_CODES, dtype=np.int64)
         self._recent = np.zeros(len(self._recent))
         self._g = self._train_state()
         self._k = self._constants()
@@ -74,107 +75,107 @@ class CompiledController(ref.ReferenceController):
 
     # --- the arrays, from the classes the base built -----------------------------------
     def _train_state(self) -> np.ndarray:
-        g = np.zeros(pk.N_G)
-        g[pk.G_LINE_RMS_F] = self.line_rms_f
+        g = np.zeros(pp.N_G)
+        g[pp.G_LINE_RMS_F] = self.line_rms_f
         pll = self.pll
-        g[pk.G_PLL_W], g[pk.G_PLL_INTEGRAL] = pll.w, pll._integral
-        g[pk.G_ADH_ENABLED] = float(self.adhesion.enabled)
+        g[pp.G_PLL_W], g[pp.G_PLL_INTEGRAL] = pll.w, pll._integral
+        g[pp.G_ADH_ENABLED] = float(self.adhesion.enabled)
         return g
 
     def _constants(self) -> np.ndarray:
-        cfg, k = self.cfg, np.zeros(pk.N_K)
-        if ref.HARDWARE_TRIPS_TO_ISOLATE > pk.TRIP_SLOTS:
-            raise ValueError(f"the kernel keeps {pk.TRIP_SLOTS} hardware trips an inverter")
-        k[pk.K_PERIOD], k[pk.K_LINE_SIDE] = cfg.period_s, float(cfg.line_side)
-        k[pk.K_VECTOR] = float(self.vector is not None)
-        k[pk.K_LINE_NOMINAL] = cfg.line_nominal_v
-        k[pk.K_U_MIN2], k[pk.K_U_MIN1] = cfg.line_u_min2_v, cfg.line_u_min1_v
-        k[pk.K_U_MAX1], k[pk.K_U_MAX2] = cfg.line_u_max1_v, cfg.line_u_max2_v
-        k[pk.K_TRANSFORMER_RATIO] = cfg.transformer_ratio
-        k[pk.K_LINK_NOMINAL] = cfg.link_nominal_v
-        k[pk.K_P_CHOP] = 0.8 * (cfg.link_nominal_v + 200.0) ** 2 / cfg.chopper_ohm
-        k[pk.K_MASS], k[pk.K_MAX_SPEED] = cfg.mass_kg, cfg.max_speed_mps
-        k[pk.K_WHEEL_R], k[pk.K_GEAR] = cfg.wheel_radius_m, cfg.gear_ratio
-        k[pk.K_N_MOTORS] = self.n_motors
-        k[pk.K_T_MAX] = OVERLOAD * cfg.rated_torque_nm
-        k[pk.K_P_MAX] = POWER_OVERLOAD * cfg.rated_power_w
-        k[pk.K_NATURAL_MPS] = cfg.natural_from_mps
-        k[pk.K_GEAR_EFFICIENCY] = GEAR_EFFICIENCY
-        k[pk.K_FEEDFORWARD_EFFICIENCY] = FEEDFORWARD_EFFICIENCY
-        k[pk.K_DRIVE_EFFICIENCY], k[pk.K_FLUX_RAMP_S] = ref.DRIVE_EFFICIENCY, ref.FLUX_RAMP_S
-        k[pk.K_LOCK_S], k[pk.K_ROTATING_FACTOR] = ref.LOCK_S, ref.ROTATING_FACTOR
-        k[pk.K_RESET_S] = ref.HARDWARE_RESET_S
-        k[pk.K_TRIPS_TO_ISOLATE] = ref.HARDWARE_TRIPS_TO_ISOLATE
-        k[pk.K_TRIP_WINDOW_S] = ref.HARDWARE_WINDOW_S
-        k[pk.K_MAGNETISED_MPS], k[pk.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
+        cfg, k = self.cfg, np.zeros(pp.N_K)
+        if ref.HARDWARE_TRIPS_TO_ISOLATE > pp.TRIP_SLOTS:
+            raise ValueError(f"the kernel keeps {pp.TRIP_SLOTS} hardware trips an inverter")
+        k[pp.K_PERIOD], k[pp.K_LINE_SIDE] = cfg.period_s, float(cfg.line_side)
+        k[pp.K_VECTOR] = float(self.vector is not None)
+        k[pp.K_LINE_NOMINAL] = cfg.line_nominal_v
+        k[pp.K_U_MIN2], k[pp.K_U_MIN1] = cfg.line_u_min2_v, cfg.line_u_min1_v
+        k[pp.K_U_MAX1], k[pp.K_U_MAX2] = cfg.line_u_max1_v, cfg.line_u_max2_v
+        k[pp.K_TRANSFORMER_RATIO] = cfg.transformer_ratio
+        k[pp.K_LINK_NOMINAL] = cfg.link_nominal_v
+        k[pp.K_P_CHOP] = 0.8 * (cfg.link_nominal_v + 200.0) ** 2 / cfg.chopper_ohm
+        k[pp.K_MASS], k[pp.K_MAX_SPEED] = cfg.mass_kg, cfg.max_speed_mps
+        k[pp.K_WHEEL_R], k[pp.K_GEAR] = cfg.wheel_radius_m, cfg.gear_ratio
+        k[pp.K_N_MOTORS] = self.n_motors
+        k[pp.K_T_MAX] = OVERLOAD * cfg.rated_torque_nm
+        k[pp.K_P_MAX] = POWER_OVERLOAD * cfg.rated_power_w
+        k[pp.K_NATURAL_MPS] = cfg.natural_from_mps
+        k[pp.K_GEAR_EFFICIENCY] = GEAR_EFFICIENCY
+        k[pp.K_FEEDFORWARD_EFFICIENCY] = FEEDFORWARD_EFFICIENCY
+        k[pp.K_DRIVE_EFFICIENCY], k[pp.K_FLUX_RAMP_S] = ref.DRIVE_EFFICIENCY, ref.FLUX_RAMP_S
+        k[pp.K_LOCK_S], k[pp.K_ROTATING_FACTOR] = ref.LOCK_S, ref.ROTATING_FACTOR
+        k[pp.K_RESET_S] = ref.HARDWARE_RESET_S
+        k[pp.K_TRIPS_TO_ISOLATE] = ref.HARDWARE_TRIPS_TO_ISOLATE
+        k[pp.K_TRIP_WINDOW_S] = ref.HARDWARE_WINDOW_S
+        k[pp.K_MAGNETISED_MPS], k[pp.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
         pll = self.pll
-        k[pk.K_PLL_K], k[pk.K_PLL_W_NOM] = pll.k, pll.w_nom
-        k[pk.K_PLL_KP], k[pk.K_PLL_KI] = pll.kp, pll.ki
-        k[pk.K_PLL_MIN_AMPLITUDE] = pll.min_amplitude
+        k[pp.K_PLL_K], k[pp.K_PLL_W_NOM] = pll.k, pll.w_nom
+        k[pp.K_PLL_KP], k[pp.K_PLL_KI] = pll.kp, pll.ki
+        k[pp.K_PLL_MIN_AMPLITUDE] = pll.min_amplitude
         seq = self.sequence
-        k[pk.K_SEQ_CHARGED_V], k[pk.K_SEQ_TIMEOUT_S] = seq.charged_v, seq.timeout_s
-        k[pk.K_SEQ_RETRY_S], k[pk.K_SEQ_MAX_RETRIES] = seq.retry_s, seq.max_retries
+        k[pp.K_SEQ_CHARGED_V], k[pp.K_SEQ_TIMEOUT_S] = seq.charged_v, seq.timeout_s
+        k[pp.K_SEQ_RETRY_S], k[pp.K_SEQ_MAX_RETRIES] = seq.retry_s, seq.max_retries
         adh = self.adhesion
-        k[pk.K_ADH_CREEP_LIMIT], k[pk.K_ADH_A_MAX] = adh.creep_limit, adh.a_max
-        k[pk.K_ADH_A_MARGIN], k[pk.K_ADH_CUT] = adh.a_margin, adh.cut
-        k[pk.K_ADH_REAPPLY] = adh.reapply
+        k[pp.K_ADH_CREEP_LIMIT], k[pp.K_ADH_A_MAX] = adh.creep_limit, adh.a_max
+        k[pp.K_ADH_A_MARGIN], k[pp.K_ADH_CUT] = adh.a_margin, adh.cut
+        k[pp.K_ADH_REAPPLY] = adh.reapply
         enc = self.encoders[0]
-        k[pk.K_RAD_PER_COUNT], k[pk.K_WINDOW], k[pk.K_SHORT] = (enc.rad_per_count,
+        k[pp.K_RAD_PER_COUNT], k[pp.K_WINDOW], k[pp.K_SHORT] = (enc.rad_per_count,
                                                                 enc.window, enc.short)
-        k[pk.K_SENSOR_JUMP] = SENSOR_JUMP
-        k[pk.K_LEAKAGE_H] = cfg.secondary_leakage_h
+        k[pp.K_SENSOR_JUMP] = SENSOR_JUMP
+        k[pp.K_LEAKAGE_H] = cfg.secondary_leakage_h
         if self.links:
             link = self.links[0]
-            k[pk.K_RAMP_V_PER_S], k[pk.K_DEADBEAT_GAIN] = link.ramp_v_per_s, link.g
-            (k[pk.K_NOTCH_B0], k[pk.K_NOTCH_B1], k[pk.K_NOTCH_B2]), (
-                k[pk.K_NOTCH_A1], k[pk.K_NOTCH_A2]) = link.notch.b, link.notch.a
+            k[pp.K_RAMP_V_PER_S], k[pp.K_DEADBEAT_GAIN] = link.ramp_v_per_s, link.g
+            (k[pp.K_NOTCH_B0], k[pp.K_NOTCH_B1], k[pp.K_NOTCH_B2]), (
+                k[pp.K_NOTCH_A1], k[pp.K_NOTCH_A2]) = link.notch.b, link.notch.a
         return k
 
     def _motor_rows(self) -> np.ndarray:
-        mot = np.zeros((self.n_motors, pk.M_WINDOW + self.encoders[0].window))
-        mot[:, pk.M_OK] = 1.0
-        mot[:, pk.M_INVERTER] = [k for k, ms in enumerate(self.motors) for _ in ms]
+        mot = np.zeros((self.n_motors, pp.M_WINDOW + self.encoders[0].window))
+        mot[:, pp.M_OK] = 1.0
+        mot[:, pp.M_INVERTER] = [k for k, ms in enumerate(self.motors) for _ in ms]
         return mot
 
     def _inverter_rows(self) -> np.ndarray:
         cfg = self.cfg
-        inv = np.zeros((len(cfg.inverter_names), pk.N_I))
-        inv[:, pk.I_DEMANDED_AT] = -math.inf
-        inv[:, pk.I_FACTOR] = 1.0
-        inv[:, pk.I_LINK] = cfg.inverter_links
-        inv[:, pk.I_N_MOTORS] = cfg.n_motors_per_inverter
-        inv[:, pk.I_FIRST_MOTOR] = np.cumsum((0, *cfg.n_motors_per_inverter[:-1]))
+        inv = np.zeros((len(cfg.inverter_names), pp.N_I))
+        inv[:, pp.I_DEMANDED_AT] = -math.inf
+        inv[:, pp.I_FACTOR] = 1.0
+        inv[:, pp.I_LINK] = cfg.inverter_links
+        inv[:, pp.I_N_MOTORS] = cfg.n_motors_per_inverter
+        inv[:, pp.I_FIRST_MOTOR] = np.cumsum((0, *cfg.n_motors_per_inverter[:-1]))
         return inv
 
     def _link_rows(self) -> np.ndarray:
-        lnk = np.zeros((len(self.cfg.link_names), pk.N_L))
+        lnk = np.zeros((len(self.cfg.link_names), pp.N_L))
         for row, link, on_link in zip(lnk, self.links, self.inverters_on_link, strict=True):
-            row[pk.L_KP], row[pk.L_KI], row[pk.L_I_MAX] = link.kp, link.ki, link.i_max
-            row[pk.L_N], row[pk.L_P_RATED], row[pk.L_ON_LINK] = link.n, link.p_rated, on_link
+            row[pp.L_KP], row[pp.L_KI], row[pp.L_I_MAX] = link.kp, link.ki, link.i_max
+            row[pp.L_N], row[pp.L_P_RATED], row[pp.L_ON_LINK] = link.n, link.p_rated, on_link
         if not self.links:  # no line side: the links' voltages only
-            lnk[:, pk.L_ON_LINK] = self.inverters_on_link
+            lnk[:, pp.L_ON_LINK] = self.inverters_on_link
         return lnk
 
     def _index_tables(self, cfg: ControllerConfig) -> tuple[np.ndarray, ...]:
         """Where every value sits in the telegrams (from the base's lookups)."""
-        x = np.zeros(pk.N_X, dtype=np.int64)
-        x[[pk.X_MODE, pk.X_DEMAND, pk.X_DIRECTION, pk.X_NEUTRAL, pk.X_REGEN, pk.X_CRUISE]] = (
+        x = np.zeros(pp.N_X, dtype=np.int64)
+        x[[pp.X_MODE, pp.X_DEMAND, pp.X_DIRECTION, pp.X_NEUTRAL, pp.X_REGEN, pp.X_CRUISE]] = (
             self.ix_mode, self.ix_demand, self.ix_direction, self.ix_neutral, self.ix_regen,
             self.ix_cruise)
-        x[[pk.X_ACHIEVED_OUT, pk.X_AVAILABLE_OUT, pk.X_STATUS_OUT, pk.X_EVENT_OUT]] = (
+        x[[pp.X_ACHIEVED_OUT, pp.X_AVAILABLE_OUT, pp.X_STATUS_OUT, pp.X_EVENT_OUT]] = (
             self.ox_achieved, self.ox_available, self.ox_status, self.ox_event)
         xi = np.array([[*self.ix_phase[k], self.ix_gate_fault[k], *self.ox_duty[k],
                         self.ox_gates[k], self.ox_reset[k]]
                        for k in range(len(cfg.inverter_names))], dtype=np.int64)
         xm = np.array(list(zip(self.ix_count, self.ix_temp, strict=True)), dtype=np.int64)
-        xl = np.zeros((len(cfg.link_names), pk.N_XL), dtype=np.int64)
-        xl[:, pk.XL_VOLTAGE] = self.ix_link_v
-        xc = np.zeros((0, pk.N_XC), dtype=np.int64)
+        xl = np.zeros((len(cfg.link_names), pp.N_XL), dtype=np.int64)
+        xl[:, pp.XL_VOLTAGE] = self.ix_link_v
+        xc = np.zeros((0, pp.N_XC), dtype=np.int64)
         if cfg.line_side:
-            x[[pk.X_LINE_V, pk.X_BREAKER, pk.X_LINE_TRIP, pk.X_BREAKER_OUT]] = (
+            x[[pp.X_LINE_V, pp.X_BREAKER, pp.X_LINE_TRIP, pp.X_BREAKER_OUT]] = (
                 self.ix_line_v, self.ix_breaker, self.ix_line_trip, self.ox_breaker)
-            xl[:, pk.XL_OVERVOLTAGE] = self.ix_ovp
-            xl[:, pk.XL_CHOPPER_OUT] = self.ox_chopper
+            xl[:, pp.XL_OVERVOLTAGE] = self.ix_ovp
+            xl[:, pp.XL_CHOPPER_OUT] = self.ox_chopper
             rows = []
             for link, (isec, mod, gates) in enumerate(zip(self.ix_isec, self.ox_mod,
                                                           self.ox_lc_gates, strict=True)):
@@ -184,9 +185,9 @@ class CompiledController(ref.ReferenceController):
             order = [k for i in range(len(cfg.link_names))
                      for k, lk in enumerate(cfg.line_converter_links) if lk == i]
             for row, k in zip(rows, order, strict=True):
-                row[pk.XC_PRECHARGE], row[pk.XC_LINE] = self.ix_pre[k], self.ix_line[k]
-                row[pk.XC_PRECHARGE_OUT], row[pk.XC_LINE_OUT] = self.ox_pre[k], self.ox_line[k]
-            xc = np.array(rows, dtype=np.int64).reshape(-1, pk.N_XC)
+                row[pp.XC_PRECHARGE], row[pp.XC_LINE] = self.ix_pre[k], self.ix_line[k]
+                row[pp.XC_PRECHARGE_OUT], row[pp.XC_LINE_OUT] = self.ox_pre[k], self.ox_line[k]
+            xc = np.array(rows, dtype=np.int64).reshape(-1, pp.N_XC)
         return x, xi, xm, xl, xc
 
     # --- telegrams and the period -------------------------------------------------------
@@ -234,7 +235,7 @@ class CompiledController(ref.ReferenceController):
 
     def _period(self, y: np.ndarray, flags: int, period_s: float, out: np.ndarray) -> None:
         g = self._g
-        g[pk.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
+        g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
         counts = self._counts
         raised = counts[0]
         x, xi, xm, xl, xc = self._tables
@@ -244,10 +245,10 @@ class CompiledController(ref.ReferenceController):
                   self._curve_i, self._curve_psi, x, xi, xm, xl, xc)
         if counts[0] != raised:
             self.events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
-        self.t = g[pk.G_T]
-        self.event = int(g[pk.G_EVENT])
-        self.effort_n = g[pk.G_EFFORT]
-        self.achieved_n, self.available_n = g[pk.G_ACHIEVED], g[pk.G_AVAILABLE]
+        self.t = g[pp.G_T]
+        self.event = int(g[pp.G_EVENT])
+        self.effort_n = g[pp.G_EFFORT]
+        self.achieved_n, self.available_n = g[pp.G_ACHIEVED], g[pp.G_AVAILABLE]
 
     def clear_events(self) -> None:
         """Forget the events counted so far."""

@@ -1,23 +1,13 @@
 """The reference controller's whole period, compiled: what tcu.py's ``ReferenceController``
 does with its Python classes (PLL, switch-on sequence, encoders, speed plausibility,
-adhesion, line-converter control, protections), with their state in arrays and the
-motor controls' compiled steps (scalar_kernel.py, vector_kernel.py) called per inverter.
+adhesion, line-converter control, protections), composed of period_parts.py's functions
+on the state arrays laid out there, with the motor controls' compiled steps
+(scalar_kernel.py, vector_kernel.py) called per inverter.
 
 The Python classes stay the readable description, the configuration and the reference:
-``ReferenceController.step`` is the plain-Python path, and tests/controller/
-test_compiled_controller.py runs the two side by side and compares their commands bit
-for bit. Each function here names the class method it mirrors; the reasons behind each
-rule are given there, not repeated.
-
-Layout (filled by compiled_tcu.CompiledController):
-- ``g``: the train-level state (G_*), the PLL's, the sequence's and the adhesion's;
-- ``k``: the constants (K_*);
-- ``mot``: one row per motor (M_*: encoder, plausibility, creep), the encoder's window
-  from M_WINDOW on;
-- ``inv``: one row per inverter (I_*: blocks, trips, adhesion factor);
-- ``lnk``: one row per DC link (L_*: voltage control, notch, limits);
-- ``u_applied``: the converter voltage acting this period, per line converter;
-- the index tables (X_*): where each value sits in the measurement and command lists.
+``ReferenceController.step`` is the plain-Python path, and the tests
+(tests/controller/test_compiled_controller*.py, the scenario library's twins) run the two
+side by side and compare their commands bit for bit.
 """
 
 from __future__ import annotations
@@ -29,356 +19,135 @@ import numpy as np
 
 from . import scalar_kernel as sk
 from . import vector_kernel as vk
+from .period_parts import (
+    G_ACHIEVED,
+    G_ADH_HAS_V_REF,
+    G_AVAILABLE,
+    G_EFFORT,
+    G_EVENT,
+    G_LINE_LIVE_S,
+    G_LINE_RMS_F,
+    G_PLL_AMPLITUDE,
+    G_PLL_W,
+    G_RECENT_I,
+    G_SEQ_STATE,
+    G_SPEED_INTEGRAL,
+    G_T,
+    HARDWARE_TRIP,
+    HARDWARE_TRIP_BIT,
+    I_BLOCK_UNTIL,
+    I_DEMANDED_AT,
+    I_ENABLED_FOR,
+    I_FACTOR,
+    I_FALLBACK_ANGLE,
+    I_FIRST_MOTOR,
+    I_LATCHED,
+    I_LINK,
+    I_N_MOTORS,
+    I_N_TRIPS,
+    I_RELEASED,
+    I_TRIP_0,
+    I_TRIP_1,
+    I_TRIP_2,
+    INVERTER_OVERCURRENT,
+    K_DRIVE_EFFICIENCY,
+    K_FEEDFORWARD_EFFICIENCY,
+    K_FLUX_HOLD_S,
+    K_FLUX_RAMP_S,
+    K_GEAR,
+    K_GEAR_EFFICIENCY,
+    K_LINE_NOMINAL,
+    K_LINE_SIDE,
+    K_LINK_NOMINAL,
+    K_LOCK_S,
+    K_MAGNETISED_MPS,
+    K_MASS,
+    K_MAX_SPEED,
+    K_N_MOTORS,
+    K_P_CHOP,
+    K_RESET_S,
+    K_ROTATING_FACTOR,
+    K_TRANSFORMER_RATIO,
+    K_TRIP_WINDOW_S,
+    K_TRIPS_TO_ISOLATE,
+    K_U_MIN2,
+    K_VECTOR,
+    K_WHEEL_R,
+    K_WINDOW,
+    L_ON_LINK,
+    L_P_RATED,
+    LINE_OVERCURRENT,
+    LINE_UNDERVOLTAGE,
+    LINK_OVERVOLTAGE,
+    LINK_UNDERVOLTAGE,
+    LINK_WATCHDOG,
+    M_ANGLE,
+    M_DIFFERENCES,
+    M_OK,
+    M_SPEED,
+    M_SPEED_SHORT,
+    MOTOR_OVERTEMPERATURE,
+    MOTOR_TEMPERATURE_DERATING,
+    OVERSPEED,
+    RUNNING,
+    SPEED_SENSOR_FAULT,
+    SQRT2,
+    TRIP_SLOTS,
+    WHEEL_SLIP,
+    X_ACHIEVED_OUT,
+    X_AVAILABLE_OUT,
+    X_BREAKER,
+    X_BREAKER_OUT,
+    X_CRUISE,
+    X_DEMAND,
+    X_DIRECTION,
+    X_EVENT_OUT,
+    X_LINE_TRIP,
+    X_LINE_V,
+    X_MODE,
+    X_NEUTRAL,
+    X_REGEN,
+    X_STATUS_OUT,
+    XC_GATES_OUT,
+    XC_LINE,
+    XC_LINE_OUT,
+    XC_LINK,
+    XC_MOD_OUT,
+    XC_PRECHARGE,
+    XC_PRECHARGE_OUT,
+    XI_DUTY_A,
+    XI_DUTY_B,
+    XI_DUTY_C,
+    XI_GATE_FAULT,
+    XI_GATES_OUT,
+    XI_IA,
+    XI_IB,
+    XI_IC,
+    XI_RESET_OUT,
+    XL_CHOPPER_OUT,
+    XL_OVERVOLTAGE,
+    XL_VOLTAGE,
+    XM_COUNT,
+    XM_TEMPERATURE,
+    adhesion_step,
+    chopper_duty,
+    encoder_update,
+    fill,
+    gear_efficiency,
+    judge,
+    link_power,
+    link_reset,
+    link_step,
+    motor_torque_limit,
+    pll_update,
+    power_limits,
+    raise_event,
+    sequence_step,
+    sequence_trip,
+    vector_reset,
+)
 
 compiled = nb.njit(cache=True, error_model="numpy")
-
-TWO_PI = 2 * math.pi
-SQRT2 = math.sqrt(2)
-
-# the train's state, and the PLL's (tcu.ReferenceController, pll.SogiPll,
-# sequence.SwitchOnSequence, adhesion.AdhesionControl)
-(G_T, G_EVENT, G_EFFORT, G_SPEED_INTEGRAL, G_LINE_LIVE_S, G_LINE_RMS_F, G_ACHIEVED,
- G_AVAILABLE, G_RECENT_I, G_PLL_W, G_PLL_THETA, G_PLL_VA, G_PLL_VB, G_PLL_AMPLITUDE,
- G_PLL_INTEGRAL, G_SEQ_STATE, G_SEQ_TIMER, G_SEQ_RETRIES, G_SEQ_REASON, G_ADH_V_REF,
- G_ADH_HAS_V_REF, G_ADH_ENABLED, N_G) = range(23)
-# the constants
-(K_PERIOD, K_LINE_SIDE, K_VECTOR, K_LINE_NOMINAL, K_U_MIN2, K_U_MIN1, K_U_MAX1, K_U_MAX2,
- K_TRANSFORMER_RATIO, K_LINK_NOMINAL, K_P_CHOP, K_MASS, K_MAX_SPEED, K_WHEEL_R, K_GEAR,
- K_N_MOTORS, K_T_MAX, K_P_MAX, K_NATURAL_MPS, K_GEAR_EFFICIENCY, K_FEEDFORWARD_EFFICIENCY,
- K_DRIVE_EFFICIENCY, K_FLUX_RAMP_S, K_LOCK_S, K_ROTATING_FACTOR, K_RESET_S, K_TRIPS_TO_ISOLATE,
- K_TRIP_WINDOW_S, K_MAGNETISED_MPS, K_FLUX_HOLD_S, K_PLL_K, K_PLL_W_NOM, K_PLL_KP, K_PLL_KI,
- K_PLL_MIN_AMPLITUDE, K_SEQ_CHARGED_V, K_SEQ_TIMEOUT_S, K_SEQ_RETRY_S, K_SEQ_MAX_RETRIES,
- K_ADH_CREEP_LIMIT, K_ADH_A_MAX, K_ADH_A_MARGIN, K_ADH_CUT, K_ADH_REAPPLY, K_RAD_PER_COUNT,
- K_WINDOW, K_SHORT, K_SENSOR_JUMP, K_LEAKAGE_H, K_RAMP_V_PER_S, K_DEADBEAT_GAIN, K_NOTCH_B0,
- K_NOTCH_B1, K_NOTCH_B2, K_NOTCH_A1, K_NOTCH_A2, N_K) = range(57)
-# per motor: encoder, plausibility, creep; its count window from M_WINDOW on
-(M_LAST, M_HAS_LAST, M_ANGLE, M_DIFFERENCES, M_SPEED_RAW, M_HAS_RAW, M_SPEED, M_SPEED_SHORT,
- M_RING_POS, M_OK, M_JUDGED_RAW, M_HAS_JUDGED, M_CREEP, M_INVERTER, M_WINDOW) = range(15)
-# per inverter
-(I_ENABLED_FOR, I_BLOCK_UNTIL, I_LATCHED, I_DEMANDED_AT, I_RELEASED, I_N_TRIPS, I_TRIP_0,
- I_TRIP_1, I_TRIP_2, I_FALLBACK_ANGLE, I_FACTOR, I_LINK, I_N_MOTORS, I_FIRST_MOTOR,
- N_I) = range(15)
-# per DC link
-(L_INTEGRAL, L_POWER_REF, L_U_RAMP, L_HAS_RAMP, L_HAS_APPLIED, L_HAS_NOTCH, L_X1, L_X2,
- L_Y1, L_Y2, L_KP, L_KI, L_I_MAX, L_N, L_P_RATED, L_ON_LINK, N_L) = range(17)
-# where the train-level values sit (index in the measurements, or the commands: *_OUT)
-(X_MODE, X_DEMAND, X_DIRECTION, X_NEUTRAL, X_REGEN, X_CRUISE, X_LINE_V, X_BREAKER,
- X_LINE_TRIP, X_BREAKER_OUT, X_ACHIEVED_OUT, X_AVAILABLE_OUT, X_STATUS_OUT, X_EVENT_OUT,
- N_X) = range(15)
-# per inverter: phase currents, gate fault; duties, gates, reset
-(XI_IA, XI_IB, XI_IC, XI_GATE_FAULT, XI_DUTY_A, XI_DUTY_B, XI_DUTY_C, XI_GATES_OUT,
- XI_RESET_OUT, N_XI) = range(10)
-# per motor: encoder count and stator temperature
-XM_COUNT, XM_TEMPERATURE, N_XM = range(3)
-# per link: voltage, overvoltage flag; chopper
-XL_VOLTAGE, XL_OVERVOLTAGE, XL_CHOPPER_OUT, N_XL = range(4)
-# per line converter: its link, current, contactors' feedback; modulation, gates, contactors
-(XC_LINK, XC_CURRENT, XC_PRECHARGE, XC_LINE, XC_MOD_OUT, XC_GATES_OUT, XC_PRECHARGE_OUT,
- XC_LINE_OUT, N_XC) = range(9)
-
-# event codes (emulator.protocol.events; the kernel cannot import a dict)
-SEQUENCE_TIMEOUT, INVERTER_OVERCURRENT, HARDWARE_TRIP = 1, 10, 11
-LINK_OVERVOLTAGE, LINK_UNDERVOLTAGE, OVERSPEED = 20, 21, 30
-MOTOR_TEMPERATURE_DERATING, MOTOR_OVERTEMPERATURE, LINK_WATCHDOG = 40, 41, 50
-LINE_UNDERVOLTAGE, LINE_OVERCURRENT, WHEEL_SLIP, SPEED_SENSOR_FAULT = 60, 61, 70, 80
-N_EVENT_CODES = 128
-TRIP_SLOTS = 3  # hardware trips kept per inverter (I_TRIP_0..2): enough to isolate at 3
-HARDWARE_TRIP_BIT = 8
-# sequence states (sequence.py)
-OFF, BREAKER, PRECHARGE, LINE, RUNNING, TRIPPED, NEUTRAL = range(7)
-
-
-@compiled
-def raise_event(g, counts, code):
-    """ReferenceController._raise (counts[0] counts them all: code 0 is no event)."""
-    g[G_EVENT] = code
-    counts[code] += 1
-    counts[0] += 1
-
-
-# --- pll.SogiPll.update -----------------------------------------------------------------
-@compiled
-def pll_update(g, k, v):
-    """One sample of the SOGI-PLL; returns theta for the sample's instant."""
-    w, T, ks = g[G_PLL_W], k[K_PERIOD], k[K_PLL_K]
-    a = math.tan(w * T / 2)
-    va0, vb0 = g[G_PLL_VA], g[G_PLL_VB]
-    rhs1 = va0 + a * (ks * (v - va0) - vb0) + a * ks * v
-    rhs2 = vb0 + a * va0
-    det = (1 + a * ks) + a * a
-    va = (rhs1 - a * rhs2) / det
-    vb = (rhs2 * (1 + a * ks) + a * rhs1) / det
-    g[G_PLL_VA], g[G_PLL_VB] = va, vb
-    s, c = math.sin(g[G_PLL_THETA]), math.cos(g[G_PLL_THETA])
-    v_q = va * c + vb * s
-    magnitude = max(math.sqrt(va * va + vb * vb), 1e-9)
-    err = v_q / magnitude
-    g[G_PLL_AMPLITUDE] = magnitude * math.cos(w * T / 2)
-    w_nom = k[K_PLL_W_NOM]
-    lo, hi = 0.5 * w_nom, 1.5 * w_nom
-    if g[G_PLL_AMPLITUDE] >= k[K_PLL_MIN_AMPLITUDE]:
-        g[G_PLL_INTEGRAL] = min(max(g[G_PLL_INTEGRAL] + k[K_PLL_KI] * err * T, lo), hi)
-        g[G_PLL_W] = min(max(g[G_PLL_INTEGRAL] + k[K_PLL_KP] * err, lo), hi)
-    else:
-        g[G_PLL_INTEGRAL] = w_nom
-        g[G_PLL_W] = w_nom
-    theta_now = g[G_PLL_THETA] - w * T / 2
-    g[G_PLL_THETA] = (g[G_PLL_THETA] + g[G_PLL_W] * T) % TWO_PI
-    return theta_now % TWO_PI
-
-
-# --- sequence.SwitchOnSequence ----------------------------------------------------------
-@compiled
-def sequence_trip(g, code):
-    """SwitchOnSequence.trip."""
-    if g[G_SEQ_STATE] != TRIPPED:
-        g[G_SEQ_STATE], g[G_SEQ_TIMER], g[G_SEQ_REASON] = TRIPPED, 0.0, code
-        g[G_SEQ_RETRIES] += 1.0
-
-
-@compiled
-def sequence_step(g, k, breaker_closed, precharge_closed, line_closed, link_min_v,
-                  neutral_ahead, line_locked):
-    """SwitchOnSequence.step (enabled): returns (breaker, precharge, line contactor)."""
-    g[G_SEQ_TIMER] += k[K_PERIOD]
-    s = int(g[G_SEQ_STATE])
-    closing = s in (BREAKER, PRECHARGE, LINE)
-    if neutral_ahead and (closing or s == RUNNING):
-        g[G_SEQ_STATE], g[G_SEQ_TIMER] = NEUTRAL, 0.0
-    elif (s == NEUTRAL and not neutral_ahead) or (
-            s == TRIPPED and g[G_SEQ_TIMER] >= k[K_SEQ_RETRY_S]
-            and g[G_SEQ_RETRIES] <= k[K_SEQ_MAX_RETRIES]):
-        g[G_SEQ_STATE], g[G_SEQ_TIMER] = OFF, 0.0
-    elif s == OFF:
-        g[G_SEQ_STATE], g[G_SEQ_TIMER] = BREAKER, 0.0
-    elif s == BREAKER and breaker_closed:
-        g[G_SEQ_STATE] = LINE if link_min_v >= k[K_SEQ_CHARGED_V] else PRECHARGE
-        g[G_SEQ_TIMER] = 0.0
-    elif s == PRECHARGE and link_min_v >= k[K_SEQ_CHARGED_V] and precharge_closed:
-        g[G_SEQ_STATE], g[G_SEQ_TIMER] = LINE, 0.0
-    elif s == LINE and line_closed and g[G_SEQ_TIMER] >= 0.05 and line_locked:
-        g[G_SEQ_STATE], g[G_SEQ_TIMER] = RUNNING, 0.0
-        g[G_SEQ_RETRIES] = 0.0
-    elif closing and g[G_SEQ_TIMER] > k[K_SEQ_TIMEOUT_S]:
-        sequence_trip(g, SEQUENCE_TIMEOUT)
-    s = int(g[G_SEQ_STATE])
-    return (s in (BREAKER, PRECHARGE, LINE, RUNNING),
-            s == PRECHARGE or (s == LINE and not line_closed),
-            s in (LINE, RUNNING))
-
-
-# --- encoder.EncoderSpeed.update ----------------------------------------------------------
-@compiled
-def encoder_update(row, k, count):
-    """One motor's counter value: angle, speeds (windowed, short, raw)."""
-    modulus = 65536
-    c = int(count) % modulus
-    if row[M_HAS_LAST] == 0.0:
-        row[M_LAST], row[M_HAS_LAST] = c, 1.0
-        return
-    delta = (c - int(row[M_LAST]) + modulus // 2) % modulus - modulus // 2
-    row[M_LAST] = c
-    rpc, T = k[K_RAD_PER_COUNT], k[K_PERIOD]
-    window, short = int(k[K_WINDOW]), int(k[K_SHORT])
-    row[M_ANGLE] += delta * rpc
-    row[M_DIFFERENCES] += 1.0
-    pos = int(row[M_RING_POS])
-    if row[M_HAS_RAW] == 0.0:  # the first difference stands for the whole window
-        for j in range(window):
-            row[M_WINDOW + j] = delta
-    else:
-        row[M_WINDOW + pos] = delta
-        pos = (pos + 1) % window
-        row[M_RING_POS] = pos
-    row[M_SPEED_RAW], row[M_HAS_RAW] = delta * rpc / T, 1.0
-    total = 0.0
-    for j in range(window):
-        total += row[M_WINDOW + j]
-    row[M_SPEED] = total * rpc / (window * T)
-    recent = 0.0
-    for j in range(short):  # the newest ``short`` differences
-        recent += row[M_WINDOW + (pos - 1 - j) % window]
-    row[M_SPEED_SHORT] = recent * rpc / (short * T)
-
-
-# --- speed_plausibility.SpeedPlausibility ------------------------------------------------
-@compiled
-def judge(mot, k):
-    """SpeedPlausibility.judge: True if an encoder failed now."""
-    failed = False
-    for m in range(mot.shape[0]):
-        r = mot[m]
-        if (r[M_OK] > 0.0 and r[M_HAS_JUDGED] > 0.0 and r[M_HAS_RAW] > 0.0
-                and abs(r[M_SPEED_RAW] - r[M_JUDGED_RAW]) > k[K_SENSOR_JUMP]):
-            r[M_OK] = 0.0
-            failed = True
-        r[M_JUDGED_RAW], r[M_HAS_JUDGED] = r[M_SPEED_RAW], r[M_HAS_RAW]
-    return failed
-
-
-@compiled
-def fill(mot, column, out):
-    """SpeedPlausibility.fill: the readings of ``column``, the failed ones replaced by
-    their inverter's healthy ones, or the train's."""
-    n = mot.shape[0]
-    all_ok = True
-    healthy_sum, n_healthy = 0.0, 0
-    for m in range(n):
-        out[m] = mot[m, column]
-        if mot[m, M_OK] > 0.0:
-            healthy_sum += mot[m, column]
-            n_healthy += 1
-        else:
-            all_ok = False
-    if all_ok:
-        return
-    for m in range(n):
-        if mot[m, M_OK] > 0.0:
-            continue
-        own_sum, n_own = 0.0, 0
-        for a in range(n):
-            if mot[a, M_INVERTER] == mot[m, M_INVERTER] and mot[a, M_OK] > 0.0:
-                own_sum += mot[a, column]
-                n_own += 1
-        if n_own:
-            out[m] = own_sum / n_own
-        elif n_healthy:
-            out[m] = healthy_sum / n_healthy
-
-
-# --- adhesion.AdhesionControl.step --------------------------------------------------------
-@compiled
-def adhesion_step(g, k, mot, inv, wheel_mps, braking, plausible_mps2):
-    """Torque factors per inverter (I_FACTOR) from the axles' creep."""
-    n = wheel_mps.shape[0]
-    v_axles = wheel_mps[0]
-    for m in range(1, n):
-        v_axles = max(v_axles, wheel_mps[m]) if braking else min(v_axles, wheel_mps[m])
-    if g[G_ADH_HAS_V_REF] == 0.0:
-        g[G_ADH_V_REF], g[G_ADH_HAS_V_REF] = v_axles, 1.0
-    dv = (abs(plausible_mps2) + k[K_ADH_A_MARGIN]) * k[K_PERIOD]
-    g[G_ADH_V_REF] = min(max(v_axles, g[G_ADH_V_REF] - dv), g[G_ADH_V_REF] + dv)
-    for m in range(n):
-        mot[m, M_CREEP] = wheel_mps[m] - g[G_ADH_V_REF]
-    if g[G_ADH_ENABLED] == 0.0:
-        inv[:, I_FACTOR] = 1.0
-        return
-    for i in range(inv.shape[0]):
-        worst = 0.0
-        for m in range(n):
-            if int(mot[m, M_INVERTER]) == i:
-                worst = max(worst, -mot[m, M_CREEP] if braking else mot[m, M_CREEP])
-        if worst > k[K_ADH_CREEP_LIMIT]:
-            inv[i, I_FACTOR] = max(inv[i, I_FACTOR] - k[K_ADH_CUT] * k[K_PERIOD], 0.0)
-        else:
-            inv[i, I_FACTOR] = min(inv[i, I_FACTOR] + k[K_ADH_REAPPLY] * k[K_PERIOD], 1.0)
-
-
-# --- effort.py and line_converter.py's functions -----------------------------------------
-@compiled
-def motor_torque_limit(k, v_mps):
-    """effort.motor_torque_limit."""
-    kk = k[K_GEAR] / k[K_WHEEL_R]
-    w_motor = max(v_mps * kk, 1e-3)
-    w_natural = k[K_NATURAL_MPS] * kk
-    if w_motor > w_natural:
-        return min(k[K_T_MAX], k[K_P_MAX] * w_natural / (w_motor * w_motor))
-    return min(k[K_T_MAX], k[K_P_MAX] / w_motor)
-
-
-@compiled
-def gear_efficiency(k, rail_force):
-    """effort.gear_efficiency."""
-    return k[K_GEAR_EFFICIENCY] if rail_force >= 0 else 1.0 / k[K_GEAR_EFFICIENCY]
-
-
-@compiled
-def link_power(k, p_shaft):
-    """effort.link_power."""
-    if p_shaft >= 0.0:
-        return p_shaft / k[K_FEEDFORWARD_EFFICIENCY]
-    return p_shaft * k[K_FEEDFORWARD_EFFICIENCY]
-
-
-@compiled
-def power_limits(k, line_rms_v, regeneration_allowed, p_rated_w):
-    """line_converter.power_limits."""
-    span_low = max(k[K_U_MIN1] - k[K_U_MIN2], 1.0)
-    traction = min(max((line_rms_v - k[K_U_MIN2]) / span_low, 0.0), 1.0)
-    span_high = max(k[K_U_MAX2] - k[K_U_MAX1], 1.0)
-    regen = min(max((k[K_U_MAX2] - line_rms_v) / span_high, 0.0), 1.0)
-    if not regeneration_allowed:
-        regen = 0.0
-    return -regen * p_rated_w, traction * p_rated_w
-
-
-@compiled
-def chopper_duty(nominal_v, u_d):
-    """line_converter.chopper_duty."""
-    return min(max((u_d - nominal_v - 100.0) / 150.0, 0.0), 1.0)
-
-
-@compiled
-def notch(lk, k, x):
-    """line_converter.Notch.__call__."""
-    if lk[L_HAS_NOTCH] == 0.0:
-        lk[L_X1] = lk[L_X2] = lk[L_Y1] = lk[L_Y2] = x
-        lk[L_HAS_NOTCH] = 1.0
-    y = (k[K_NOTCH_B0] * x + k[K_NOTCH_B1] * lk[L_X1] + k[K_NOTCH_B2] * lk[L_X2]
-         - k[K_NOTCH_A1] * lk[L_Y1] - k[K_NOTCH_A2] * lk[L_Y2])
-    lk[L_X2], lk[L_X1], lk[L_Y2], lk[L_Y1] = lk[L_X1], x, lk[L_Y1], y
-    return y
-
-
-@compiled
-def link_reset(lk):
-    """LinkControl.reset."""
-    lk[L_INTEGRAL] = 0.0
-    lk[L_HAS_APPLIED] = 0.0
-    lk[L_HAS_RAMP] = 0.0
-
-
-@compiled
-def link_step(lk, k, link, xc, y, out, u_applied, u_d, theta, omega, u_sec_peak,
-              p_feedforward, p_min, p_max):
-    """LinkControl.step: the modulations of the link's converters (into out) and the
-    chopper's duty."""
-    T, L = k[K_PERIOD], k[K_LEAKAGE_H]
-    u_f = notch(lk, k, u_d)
-    if lk[L_HAS_RAMP] == 0.0:
-        lk[L_U_RAMP], lk[L_HAS_RAMP] = u_f, 1.0
-    lk[L_U_RAMP] = min(lk[L_U_RAMP] + k[K_RAMP_V_PER_S] * T, k[K_LINK_NOMINAL])
-    err = lk[L_U_RAMP] - u_f
-    p = p_feedforward + lk[L_KP] * err + lk[L_INTEGRAL]
-    if p_min < p < p_max:
-        lk[L_INTEGRAL] += lk[L_KI] * err * T
-    p = min(max(p, p_min), p_max)
-    lk[L_POWER_REF] = p
-    i_peak = 2 * p / (lk[L_N] * max(u_sec_peak, 1.0))
-    i_peak = min(max(i_peak, -lk[L_I_MAX]), lk[L_I_MAX])
-    u_sec_now = u_sec_peak * math.sin(theta + 0.5 * omega * T)
-    u_sec_next = u_sec_peak * math.sin(theta + 1.5 * omega * T)
-    fresh = lk[L_HAS_APPLIED] == 0.0
-    lk[L_HAS_APPLIED] = 1.0
-    for j in range(xc.shape[0]):
-        if xc[j, XC_LINK] != link:
-            continue
-        if fresh:
-            u_applied[j] = u_sec_now
-        i_pred = y[xc[j, XC_CURRENT]] + T / L * (u_sec_now - u_applied[j])
-        i_ref = i_peak * math.sin(theta + 2.0 * omega * T)
-        u = u_sec_next - k[K_DEADBEAT_GAIN] * L * (i_ref - i_pred) / T
-        m = min(max(u / max(u_d, 1.0), -1.0), 1.0)
-        u_applied[j] = m * u_d
-        out[xc[j, XC_MOD_OUT]] = m
-    return chopper_duty(k[K_LINK_NOMINAL], u_d)
-
-
-@compiled
-def vector_reset(v):
-    """VectorControl.reset."""
-    v[:] = 0.0
-    v[vk.V_PREV_TURN_RE] = 1.0
 
 
 # --- tcu.ReferenceController.step ---------------------------------------------------------

@@ -439,16 +439,3 @@ SUPPLY_LEVELS: dict[float, dict[str, float]] = {
     15000.0: {"U_min2": 11000.0, "U_min1": 12000.0, "U_n": 15000.0, "U_max1": 17250.0,
               "U_max2": 18000.0},
 }
-
-
-@compiled
-def power_quality_window(ss, ring, sums, row):
-    """This frame's power-quality integrals (SS_PQ_T..SS_PQ_IS) into row ``row`` of the
-    ring of the last whole line periods, the ring's running sums updated; a non-receptive
-    line answers the mean reverse power over the window (SS_REVERSE_W)."""
-    for j in range(sums.shape[0]):
-        new = ss[SS_PQ_T + j]
-        sums[j] += new - ring[row, j]
-        ring[row, j] = new
-    if sums[0] > 0.0:
-        ss[SS_REVERSE_W] = max(-sums[1] / sums[0], 0.0)

@@ -12,13 +12,14 @@ import math
 import numpy as np
 
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
+from . import power_quality
 from .build import build_line_side, build_load_transfer, build_motor_side, build_train
 from .commands import CommandError, Commands, LineCommands
 from .drivetrain import RAIL_CONDITIONS
 from .energy import EnergyAccount, energy_account
 from .inputs import COMMAND_NOT_FINITE, COMMAND_OUT_OF_RANGE, load_commands, load_line_commands
 from .kernel import advance_frame
-from .line import SUPPLY_LEVELS, power_quality_window
+from .line import SUPPLY_LEVELS
 from .machine import currents
 from .params import (
     ConverterParams,
@@ -129,8 +130,8 @@ class Plant:
                       self.kp, self.ku, self.i_link, self.probes.src, self.probes.row,
                       self.probes.col, self.probes.rows_for(n_sub))
         self.probes.took(self.frames + 1, n_sub, h)
-        power_quality_window(self.ss, self._pq_ring, self._pq_sum,
-                             self.frames % len(self._pq_ring))
+        power_quality.window_update(self.ss, self._pq_ring, self._pq_sum,
+                                    self.frames % len(self._pq_ring))
         self.frames += 1
         self.substeps += n_sub
         # integer nanoseconds: t_k = k T exactly for a constant frame, no drift
@@ -251,32 +252,9 @@ class Plant:
         return levels[name]
 
     def power_quality(self) -> dict[str, float]:
-        """Pantograph power quality over the last whole line periods (>= 100 ms).
-
-        Fundamentals by Fourier integrals over the window; true power factor P/(U I),
-        displacement factor cos(phi_u - phi_i) of the fundamentals, current THD.
-        """
-        t_w, p, u2, i2, uc, us, ic, is_ = self._pq_ring.sum(axis=0)
-        if t_w <= 0:
-            return {}
-        u_rms, i_rms = math.sqrt(u2 / t_w), math.sqrt(i2 / t_w)
-        # u = A sin(theta + phi): int u sin = A cos(phi) T/2, int u cos = A sin(phi) T/2
-        au, phi_u = math.hypot(uc, us) * 2 / t_w, math.atan2(uc, us)
-        ai, phi_i = math.hypot(ic, is_) * 2 / t_w, math.atan2(ic, is_)
-        i1_rms = ai / math.sqrt(2)
-        p_w = p / t_w
-        s_va = u_rms * i_rms
-        return {
-            "voltage_rms_v": u_rms, "current_rms_a": i_rms, "active_power_w": p_w,
-            "apparent_power_va": s_va,
-            "reactive_power_var": 0.5 * au * ai * math.sin(phi_u - phi_i),
-            "power_factor": p_w / s_va if s_va > 0 else 0.0,
-            "displacement_factor": math.cos(phi_u - phi_i) if ai > 0 else 0.0,
-            "current_thd": (math.sqrt(max(i_rms**2 - i1_rms**2, 0.0)) / i1_rms
-                            if i1_rms > 1e-9 else 0.0),
-            "voltage_fundamental_v": au, "voltage_phase_rad": phi_u,
-            "current_fundamental_a": ai, "current_phase_rad": phi_i, "window_s": t_w,
-        }
+        """Pantograph power quality over the last whole line periods (>= 100 ms):
+        power_quality.figures."""
+        return power_quality.figures(self._pq_ring)
 
     # --- inputs from the track and the driver -----------------------------------------
     def set_gradient(self, gradient: float) -> None:
