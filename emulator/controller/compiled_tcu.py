@@ -72,6 +72,22 @@ class CompiledController(ref.ReferenceController):
         self._reply_head[0] = self.version
         self._scratch = np.zeros(1, dtype=np.uint64)
         self._wire = np.zeros(msgpack_array.buffer_size(len(self.c_names)), dtype=np.uint8)
+        self._warm_up()
+
+    def _warm_up(self) -> None:
+        """Compile (first start) or load the kernels now, not at the first telegram,
+        where a real-time run would wait for them: one answer to a telegram of zeros,
+        then the state put back as it was."""
+        arrays = (self._g, self._counts, self._recent, self._mot, self._inv, self._lnk,
+                  self._u_applied, self._sc_state, self._vc_state, self._commands)
+        saved = [a.copy() for a in arrays]
+        self.answer(msgpack.packb([self.version, 0, 0, round(self.T * 1e6), 0,
+                                   *([0] * len(self.m_scale))]))
+        for a, before in zip(arrays, saved, strict=True):
+            a[...] = before
+        self.events = Counter()
+        self.t, self.event, self.effort_n = 0.0, 0, 0.0
+        self.achieved_n = self.available_n = 0.0
 
     # --- the arrays, from the classes the base built -----------------------------------
     def _train_state(self) -> np.ndarray:
