@@ -159,6 +159,12 @@ class MeasurementSampler:
         self._train = np.zeros(8)
         self._out = np.zeros(len(names))
 
+    def warm_up(self) -> None:
+        """Compile or load what the samples after a frame use and the first does not
+        (the sub-steps' trace), on scratch arrays: nothing of the sampler changes."""
+        n = self._n_analog
+        _complete_trace(np.zeros((2, n)), np.zeros(n), np.zeros(n))
+
     def sample(self, period_s: float, driver: DriverDemand) -> np.ndarray:
         """The measurement vector (physical units) at the present plant state."""
         out = self._out

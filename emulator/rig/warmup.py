@@ -1,5 +1,4 @@
-"""Compile (first start) or load (later starts) the plant kernel and the telegram codec
-before the clock starts."""
+"""Compile (first start) or load (later starts) the plant kernel before the clock starts."""
 
 from __future__ import annotations
 
@@ -7,9 +6,6 @@ import time
 from collections.abc import Callable
 from pathlib import Path
 
-import numpy as np
-
-from emulator.link.telegram import TelegramCodec
 from emulator.plant import Plant
 from emulator.plant import kernel as _kernel
 from emulator.plant.params import TrainsetParams
@@ -28,6 +24,4 @@ def warm_up(params: TrainsetParams, say: Callable[[str], None] = print) -> float
             "cache)...")
     t0 = time.perf_counter()
     Plant(params).advance(None)
-    codec = TelegramCodec(2, np.ones(1), np.ones(1), np.zeros(1), np.ones(1))
-    codec.decode(codec.encode(0, 0, 1000, 0, np.zeros(1)))
     return time.perf_counter() - t0
