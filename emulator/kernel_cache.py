@@ -1,9 +1,11 @@
-"""Keep numba's on-disk cache of the plant kernels consistent with their sources.
+"""Keep numba's on-disk cache of the compiled kernels consistent with their sources.
 
 Numba checks a cached function against its own file only: when a callee in another
-module changes (line.py under kernel.py, say), the caller's cache would still hold the old
-callee. So a digest of every plant source is kept beside the cache, and the plant's cache
-files are removed when any source changed. Runs once per process, on import of emulator.
+module changes (line.py under kernel.py, period_parts.py under period_kernel.py, the
+plant's probe.py under the rig's sampling.py), the caller's cache would still hold the
+old callee. So a digest of every source of the packages that hold compiled code is kept
+beside the cache, and their cache files are removed when any of those sources changed.
+Runs once per process, on import of emulator.
 """
 
 from __future__ import annotations
@@ -14,31 +16,37 @@ from pathlib import Path
 
 log = logging.getLogger(__name__)
 
-PLANT_DIR = Path(__file__).resolve().parent / "plant"
-STAMP = "railrig-plant-sources.sha256"
+PACKAGE_DIR = Path(__file__).resolve().parent
+#: the packages with numba-compiled functions (they call into each other)
+COMPILED_PACKAGES = ("plant", "controller", "rig", "link")
+STAMP = "railrig-compiled-sources.sha256"
 
 
-def plant_sources_digest() -> str:
-    """SHA-256 over the plant's Python sources, in name order."""
+def compiled_sources_digest(root: Path = PACKAGE_DIR) -> str:
+    """SHA-256 over the compiled packages' Python sources, in package and name order."""
     h = hashlib.sha256()
-    for path in sorted(PLANT_DIR.glob("*.py")):
-        h.update(path.name.encode())
-        h.update(path.read_bytes())
+    for package in COMPILED_PACKAGES:
+        for path in sorted((root / package).glob("*.py")):
+            h.update(f"{package}/{path.name}".encode())
+            h.update(path.read_bytes())
     return h.hexdigest()
 
 
-def refresh_kernel_cache() -> bool:
-    """Drop stale compiled plant kernels; True if something was dropped."""
-    cache = PLANT_DIR / "__pycache__"
-    stamp = cache / STAMP
+def refresh_kernel_cache(root: Path = PACKAGE_DIR) -> bool:
+    """Drop stale compiled kernels; True if something was dropped."""
+    stamp = root / "__pycache__" / STAMP
     try:
-        digest = plant_sources_digest()
+        digest = compiled_sources_digest(root)
         if stamp.exists() and stamp.read_text().strip() == digest:
             return False
-        stale = [*cache.glob("*.nbi"), *cache.glob("*.nbc")] if cache.exists() else []
+        stale = []
+        for package in COMPILED_PACKAGES:
+            cache = root / package / "__pycache__"
+            if cache.exists():
+                stale += [*cache.glob("*.nbi"), *cache.glob("*.nbc")]
         for path in stale:
             path.unlink(missing_ok=True)
-        cache.mkdir(exist_ok=True)
+        stamp.parent.mkdir(exist_ok=True)
         stamp.write_text(digest)
         return bool(stale)
     except OSError as exc:  # a read-only install: numba then compiles in memory

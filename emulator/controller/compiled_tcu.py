@@ -220,6 +220,9 @@ class CompiledController(ref.ReferenceController):
         self._period(y, flags, period_us * 1e-6, out)
         self._reply_head[1] = seq
         n = msgpack_array.pack(self._reply_head, out, self._c_inv, self._wire)
+        if n < 0:
+            raise ValueError(f"command {self.c_names[-1 - n]} = {out[-1 - n]!r} is not "
+                             "finite: no answer")
         return self._wire[:n].tobytes()
 
     def _read_checked(self, payload: bytes, y: np.ndarray) -> tuple[int, int, int]:
@@ -271,8 +274,3 @@ class CompiledController(ref.ReferenceController):
         super().clear_events()
         self._counts[:] = 0
 
-
-def reference_controller(cfg: ControllerConfig, signal_map: dict,
-                         compiled: bool = True) -> ref.ReferenceController:
-    """The reference controller: compiled (what the rig runs) or plain Python."""
-    return (CompiledController if compiled else ref.ReferenceController)(cfg, signal_map)

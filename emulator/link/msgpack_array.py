@@ -30,6 +30,9 @@ def buffer_size(n_values: int) -> int:
     return 5 + 9 * (n_values + 5)
 
 
+WIRE_LIMIT = 2.0**63  # a wire value's magnitude stays below this (int64)
+
+
 @nb.njit(cache=True)
 def _put(buf, pos, value, n_bytes):
     """value big-endian in n_bytes at pos; returns the position after it."""
@@ -75,8 +78,9 @@ def pack_int(buf, pos, v):
 @nb.njit(cache=True)
 def pack(header, values, inv_scales, buf):
     """[*header, *rint(values x inv_scales)] as a msgpack array into buf; returns its
-    length in bytes. header: int64 array; the values in physical units, rounded half to
-    even into wire units."""
+    length in bytes, or -1 - i where value i is not finite or past int64 in wire units
+    (nothing an integer telegram can carry). header: int64 array; the values in physical
+    units, rounded half to even into wire units."""
     n = header.shape[0] + values.shape[0]
     if n <= 15:
         buf[0] = 0x90 | n
@@ -90,7 +94,10 @@ def pack(header, values, inv_scales, buf):
     for i in range(header.shape[0]):
         pos = pack_int(buf, pos, header[i])
     for i in range(values.shape[0]):
-        pos = pack_int(buf, pos, np.int64(np.rint(values[i] * inv_scales[i])))
+        wire = np.rint(values[i] * inv_scales[i])
+        if not -WIRE_LIMIT < wire < WIRE_LIMIT:  # NaN fails this too
+            return -1 - i
+        pos = pack_int(buf, pos, np.int64(wire))
     return pos
 
 

@@ -8,6 +8,7 @@ non-finite or out-of-range value through.
 
 from __future__ import annotations
 
+import contextlib
 import math
 from typing import NamedTuple
 
@@ -73,7 +74,17 @@ class TelegramCodec:
         h = self._header
         h[0], h[1], h[2], h[3], h[4] = self.version, sequence, time_us, period_us, flags
         n = msgpack_array.pack(h, values, self._inv_send, self._out)
+        if n < 0:
+            raise ValueError(f"value {-1 - n} = {values[-1 - n]!r} cannot be sent (not "
+                             "finite, or past int64 in wire units)")
         return self._out[:n].tobytes()
+
+    def warm_up(self) -> None:
+        """Compile or load the compiled codec now (a rig calls this before its clock
+        starts): an empty telegram read (refused) and the range check on scratch."""
+        with contextlib.suppress(TelegramError):
+            self.decode(b"")
+        _first_bad(np.zeros(1), np.zeros(1), np.ones(1))
 
     def decode(self, payload: bytes) -> Telegram:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""

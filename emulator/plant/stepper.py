@@ -50,8 +50,10 @@ class Plant:
         """
         self.params = params
         self.substep_s = params.substep_s
-        self._checked: tuple = (None, None)  # the command arrays last found well-formed
-        self._line_checked: tuple = (None,) * 5  # ... and the line side's
+        # the command arrays last found well-formed, and the line side's (a fresh object
+        # until then, which no command is)
+        self._checked: tuple = (object(),) * 2
+        self._line_checked: tuple = (object(),) * 5
         self.refresh_each_substep = refresh_each_substep
         self.time_s = 0.0
         self.time_ns = 0

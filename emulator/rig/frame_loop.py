@@ -16,7 +16,6 @@ period), ``afap`` (no waiting: commands are taken if present).
 from __future__ import annotations
 
 import asyncio
-import contextlib
 import gc
 import logging
 import time
@@ -303,8 +302,7 @@ class Rig:
         spare = Plant(self.params, ideal_dc_links=not self.plant.line_side)
         spare.advance(self.mapper.commands(self.mapper.safe.copy()), self.period_us / 1e6)
         self.codec.encode(0, 0, 0, 0, self._y)
-        with contextlib.suppress(TelegramError):  # the reader of commands, compiled (an
-            self.codec.decode(b"")  # empty telegram: refused)
+        self.codec.warm_up()  # the reader of commands
         self.sampler.warm_up()  # the path of the samples after a frame
         self._y = self.sampler.sample(self.period_us / 1e6, self.driver).copy()
 

@@ -102,7 +102,8 @@ def test_a_malformed_telegram_is_refused_before_the_compiled_period() -> None:
         [2, 1, 0, 1000, 0, *([0] * (n + 1))], [2, 1, 0, 1000, 0, None, *([0] * (n - 1))],
         [2, 1, 0, 1000, 0, "3", *([0] * (n - 1))],
         [2, 1, 0, 1000, 0, math.nan, *([0] * (n - 1))],
-        [2, 1, 0, 1000, 0, math.inf, *([0] * (n - 1))], [2, 1, 0, 2**64 - 1, 0],
+        [2, 1, 0, 1000, 0, math.inf, *([0] * (n - 1))],
+        [2, 1, 0, 2**64 - 1, 0, *([0] * n)],  # a period past int64
     ]
     for telegram in bad:
         with pytest.raises((TypeError, ValueError)):

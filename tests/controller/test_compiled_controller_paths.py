@@ -20,6 +20,7 @@ import pytest
 
 from emulator.controller.compiled_tcu import CompiledController
 from emulator.controller.config import config_from_params
+from emulator.controller.sequence import TRIPPED
 from emulator.controller.tcu import ReferenceController
 from emulator.profiles.reader import load_trainset
 from emulator.protocol.signal_map import build_signal_map
@@ -50,7 +51,13 @@ def _dc_fed(params):
 class _Drive:
     """Random measurements shaped as a drive gives them."""
 
-    def __init__(self, cfg, signal_map: dict, seed: int) -> None:
+    def __init__(self, cfg, signal_map: dict, seed: int, *, line_trip=(3.0, 3.001),
+                 breaker_stuck=(0.0, 0.0), quiet_line: bool = False) -> None:
+        """line_trip: when the breaker's overcurrent release reads tripped (s, s);
+        breaker_stuck: when its feedback stays open whatever it is told; quiet_line: no
+        neutral sections or dead line."""
+        self.line_trip, self.breaker_stuck, self.quiet_line = (line_trip, breaker_stuck,
+                                                               quiet_line)
         self.cfg = cfg
         self.rng = np.random.default_rng(seed)
         self.mi = {s["name"]: i for i, s in enumerate(signal_map["measurements"])}
@@ -79,11 +86,11 @@ class _Drive:
         if 5.0 <= t < 5.5:  # asks for effort past the top speed: overspeed
             put("train.mode", 1.0)
             put("train.effort_demand", 0.8)
-        if self.neutral <= 0 and rng.random() < 0.0005:
+        if self.neutral <= 0 and rng.random() < 0.0005 and not self.quiet_line:
             self.neutral = int(rng.integers(100, 1500))
         self.neutral -= 1
         put("train.neutral_section_ahead", float(self.neutral > 0))
-        if self.dead <= 0 and rng.random() < 0.0008:
+        if self.dead <= 0 and rng.random() < 0.0008 and not self.quiet_line:
             self.dead = int(rng.integers(5, 600))
         self.dead -= 1
         amplitude = cfg.line_nominal_v * math.sqrt(2) * (1.0 + 0.3 * math.sin(0.3 * t))
@@ -91,8 +98,9 @@ class _Drive:
         f_line = 1.004 * cfg.line_frequency_hz  # a little off nominal
         put("line.voltage_v", round(amplitude * math.sin(2 * math.pi * f_line * t)) * live)
         if "line.breaker_closed" in self.mi:  # the switchgear follows its commands
-            put("line.breaker_closed", commands[self.ci["line.breaker_close"]])
-            put("line.overcurrent_trip", float(3.0 <= t < 3.001))  # once
+            stuck = self.breaker_stuck[0] <= t < self.breaker_stuck[1]
+            put("line.breaker_closed", 0.0 if stuck else commands[self.ci["line.breaker_close"]])
+            put("line.overcurrent_trip", float(self.line_trip[0] <= t < self.line_trip[1]))
             for u in cfg.line_converter_names:
                 put(f"{u}.precharge_closed", commands[self.ci[f"{u}.precharge_close"]])
                 put(f"{u}.line_contactor_closed",
@@ -163,3 +171,32 @@ def test_random_drive_gives_the_same_commands(layout: str, control: str) -> None
     if cfg.line_side:
         assert {20, 61} <= set(plain.events) and states[5] > 0, (plain.events, states)
         assert states[4] > 500 and states[6] > 0, states  # running, neutral section
+
+
+def test_the_sequence_times_out_retries_and_gives_up() -> None:
+    """Breaker feedback that stays open: the sequence times out (5 s) and retries (2 s
+    later). Then an overcurrent release that reads tripped at every re-close: after
+    max_retries retries in a row the sequence stays tripped. Compared period by period."""
+    params = load_trainset(TRAINSET)
+    cfg = config_from_params(params)
+    signal_map = build_signal_map(params).as_dict()
+    plain = ReferenceController(cfg, signal_map)
+    compiled = CompiledController(cfg, signal_map)
+    drive = _Drive(cfg, signal_map, seed=11, breaker_stuck=(0.0, 6.0), line_trip=(9.0, 30.0),
+                   quiet_line=True)
+    out_plain = [0.0] * len(drive.ci)
+    out = np.zeros(len(drive.ci))
+    reasons, most_retries = set(), 0
+    for k in range(18000):
+        y = drive.measurements(k * cfg.period_s, out_plain)
+        plain.step(y.tolist(), 0, cfg.period_s, out_plain)
+        compiled._period(y.copy(), 0, cfg.period_s, out)
+        assert out.tobytes() == np.array(out_plain).tobytes(), k
+        assert compiled.events == plain.events and compiled.event == plain.event, k
+        reasons.add(plain.sequence.trip_reason)
+        most_retries = max(most_retries, plain.sequence.retries)
+    seq = plain.sequence
+    assert {1, 61} <= reasons, reasons  # the timeout, then the overcurrent release
+    assert seq.state == TRIPPED and seq.retries == seq.max_retries + 1, (seq.state,
+                                                                         seq.retries)
+    assert out_plain[drive.ci["line.breaker_close"]] == 0.0  # and stays open

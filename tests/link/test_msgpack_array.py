@@ -84,3 +84,14 @@ def test_anything_else_goes_the_long_way() -> None:
     ]
     for payload in cases:
         assert _unpack(payload, 1)[0] == -1, payload
+
+
+def test_a_value_no_integer_telegram_carries_is_refused() -> None:
+    """NaN, infinities and wire values past int64 are named by their index, never sent
+    as some integer (the telegram codec raises on it)."""
+    buf = np.zeros(ma.buffer_size(3), dtype=np.uint8)
+    header = np.zeros(5, dtype=np.int64)
+    for bad in (float("nan"), float("inf"), -float("inf"), 1e19, -1e19):
+        n = ma.pack(header, np.array([0.0, 1.0, bad]), np.ones(3), buf)
+        assert n == -1 - 2, bad
+    assert ma.pack(header, np.array([0.0, 1.0, 9.2e18]), np.ones(3), buf) > 0

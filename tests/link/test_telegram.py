@@ -23,6 +23,11 @@ def test_round_trip_in_wire_units() -> None:
     assert tg.values == pytest.approx(values, abs=1e-12)
 
 
+def test_a_value_that_is_not_finite_is_not_sent() -> None:
+    with pytest.raises(ValueError, match="value 3"):
+        CODEC.encode(1, 0, 1000, 0, np.array([0.25, 0.5, 1.0, np.nan]))
+
+
 def test_floats_and_ints_are_both_wire_units() -> None:
     tg = CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, 5000, 5000.0, 1, -123]))
     assert tg.values == pytest.approx([0.5, 0.5, 1.0, -12.3])
