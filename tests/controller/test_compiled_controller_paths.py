@@ -21,11 +21,11 @@ import pytest
 from emulator.controller.compiled_tcu import CompiledController
 from emulator.controller.config import config_from_params
 from emulator.controller.sequence import TRIPPED
-from emulator.controller.tcu import ReferenceController
 from emulator.profiles.reader import load_trainset
 from emulator.protocol.signal_map import build_signal_map
 
 from .conftest import TRAINSET
+from .twin import Twin
 
 
 def _interleaved(params):
@@ -135,6 +135,15 @@ class _Drive:
         return self.y
 
 
+def _twin_and_drive(params, cfg, seed: int, **drive_kw) -> tuple[Twin, _Drive]:
+    """The compiled controller for cfg with its plain-Python twin installed (tests/
+    controller/twin.py: both take every period, compared bit for bit), and a drive."""
+    signal_map = build_signal_map(params).as_dict()
+    twin = Twin()
+    twin.install(CompiledController(cfg, signal_map))
+    return twin, _Drive(cfg, signal_map, seed, **drive_kw)
+
+
 @pytest.mark.parametrize("control", ["scalar", "vector"])
 @pytest.mark.parametrize("layout", ["shipped", "shipped-15kv", "interleaved", "dc-fed"])
 def test_random_drive_gives_the_same_commands(layout: str, control: str) -> None:
@@ -145,25 +154,17 @@ def test_random_drive_gives_the_same_commands(layout: str, control: str) -> None
         params = {"shipped": params, "interleaved": _interleaved(params),
                   "dc-fed": _dc_fed(params)}[layout]
     cfg = dataclasses.replace(config_from_params(params), motor_control=control)
-    signal_map = build_signal_map(params).as_dict()
-    plain = ReferenceController(cfg, signal_map)
-    compiled = CompiledController(cfg, signal_map)
-    drive = _Drive(cfg, signal_map, seed=7)
-    out_plain = [0.0] * len(drive.ci)
+    twin, drive = _twin_and_drive(params, cfg, seed=7)
     out = np.zeros(len(drive.ci))
     states = Counter()
     for k in range(10000):
-        y = drive.measurements(k * cfg.period_s, out_plain)
-        flags = int(drive.rng.random() < 0.002)
-        plain.step(y.tolist(), flags, cfg.period_s, out_plain)
-        compiled._period(y.copy(), flags, cfg.period_s, out)
-        assert out.tobytes() == np.array(out_plain).tobytes(), (
-            k, [n for n, i in drive.ci.items() if out[i] != out_plain[i]
-                or math.copysign(1, out[i]) != math.copysign(1, out_plain[i])])
-        assert compiled.events == plain.events and compiled.event == plain.event, k
-        states[plain.sequence.state] += 1
-        states["active"] += any(out_plain[drive.ci[f"{i}.gates_enabled"]] > 0.5
+        y = drive.measurements(k * cfg.period_s, out)
+        twin.compiled._period(y, int(drive.rng.random() < 0.002), cfg.period_s, out)
+        states[twin.plain.sequence.state] += 1
+        states["active"] += any(out[drive.ci[f"{i}.gates_enabled"]] > 0.5
                                 for i in cfg.inverter_names)
+    twin.assert_identical(at_least=10000)
+    plain = twin.plain
     # the run went where it was meant to: motors driven, trips and faults on the way
     assert states["active"] > 500, states
     assert {11, 30, 41, 50, 80} <= set(plain.events), plain.events
@@ -179,24 +180,17 @@ def test_the_sequence_times_out_retries_and_gives_up() -> None:
     max_retries retries in a row the sequence stays tripped. Compared period by period."""
     params = load_trainset(TRAINSET)
     cfg = config_from_params(params)
-    signal_map = build_signal_map(params).as_dict()
-    plain = ReferenceController(cfg, signal_map)
-    compiled = CompiledController(cfg, signal_map)
-    drive = _Drive(cfg, signal_map, seed=11, breaker_stuck=(0.0, 6.0), line_trip=(9.0, 30.0),
-                   quiet_line=True)
-    out_plain = [0.0] * len(drive.ci)
+    twin, drive = _twin_and_drive(params, cfg, seed=11, breaker_stuck=(0.0, 6.0),
+                                  line_trip=(9.0, 30.0), quiet_line=True)
     out = np.zeros(len(drive.ci))
-    reasons, most_retries = set(), 0
+    reasons = set()
     for k in range(18000):
-        y = drive.measurements(k * cfg.period_s, out_plain)
-        plain.step(y.tolist(), 0, cfg.period_s, out_plain)
-        compiled._period(y.copy(), 0, cfg.period_s, out)
-        assert out.tobytes() == np.array(out_plain).tobytes(), k
-        assert compiled.events == plain.events and compiled.event == plain.event, k
-        reasons.add(plain.sequence.trip_reason)
-        most_retries = max(most_retries, plain.sequence.retries)
-    seq = plain.sequence
+        y = drive.measurements(k * cfg.period_s, out)
+        twin.compiled._period(y, 0, cfg.period_s, out)
+        reasons.add(twin.plain.sequence.trip_reason)
+    twin.assert_identical(at_least=18000)
+    seq = twin.plain.sequence
     assert {1, 61} <= reasons, reasons  # the timeout, then the overcurrent release
     assert seq.state == TRIPPED and seq.retries == seq.max_retries + 1, (seq.state,
                                                                          seq.retries)
-    assert out_plain[drive.ci["line.breaker_close"]] == 0.0  # and stays open
+    assert out[drive.ci["line.breaker_close"]] == 0.0  # and stays open
