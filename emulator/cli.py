@@ -16,7 +16,7 @@ from rich.console import Console
 from emulator.profiles.table import ProfileError
 
 SUBCOMMANDS = ("demo", "dash", "controller", "serve", "protocol", "export", "run", "replay",
-               "characteristic", "adhesion", "bench")
+               "characteristic", "adhesion", "bench", "board-kit")
 console = Console(stderr=True)
 
 
@@ -27,7 +27,7 @@ def build_parser() -> argparse.ArgumentParser:
         "firmware without a train.")
     sub = parser.add_subparsers(dest="command", required=True)
     for name in SUBCOMMANDS:
-        command = importlib.import_module(f"emulator.commands.{name}")
+        command = importlib.import_module(f"emulator.commands.{name.replace('-', '_')}")
         parser_of = sub.add_parser(name, help=command.HELP)
         command.add_arguments(parser_of)
         parser_of.set_defaults(func=command.run)

@@ -26,6 +26,7 @@ MAY_IMPORT: dict[str, set[str]] = {
     "faults": {"plant"},  # the state layout, to name what a fault touches
     "profiles": {"plant", "rig"},  # builds the plant's and the sensors' parameters
     "controller": {"link", "protocol", "profiles"},  # speaks only the wire protocol
+    "boardkit": {"plant", "protocol"},  # the map and the trainset's constants, as C
     "rig": {"plant", "link", "protocol", "recording"},
     # the monitor takes its default address from the dashboard's client (one definition)
     "monitor": {"plant", "faults", "protocol", "tui"},
@@ -34,7 +35,7 @@ MAY_IMPORT: dict[str, set[str]] = {
     "bench": {"plant", "rig", "link", "protocol", "monitor", "profiles", "controller",
               "scenario"},
     "commands": {"plant", "rig", "link", "protocol", "faults", "monitor", "profiles",
-                 "recording", "controller", "scenario", "bench", "tui"},
+                 "recording", "controller", "scenario", "bench", "tui", "boardkit"},
 }
 #: modules that stay loose at the top of emulator/ (the package face and the entry point)
 LOOSE = {"__init__", "cli", "kernel_cache"}

@@ -8,6 +8,8 @@ sends integers (cheap for a board to decode); a controller may send integers or 
 
 from __future__ import annotations
 
+import hashlib
+import json
 from dataclasses import asdict, dataclass
 
 from emulator.plant.params import TrainsetParams
@@ -62,6 +64,16 @@ class SignalMap:
             if s.name == name:
                 return i
         raise KeyError(f"no {direction} signal {name!r}")
+
+    def digest(self) -> int:
+        """A 32-bit digest of the layout: the version, the header, each signal's name,
+        unit, scale, range and kind in order (not the descriptions: a reworded one
+        leaves the digest). The first four bytes of SHA-256 over that as compact JSON."""
+        layout = [self.version, list(HEADER)] + [
+            [[s.name, s.unit, s.scale, s.lo, s.hi, s.kind] for s in table]
+            for table in (self.measurements, self.commands)]
+        text = json.dumps(layout, separators=(",", ":"))
+        return int.from_bytes(hashlib.sha256(text.encode()).digest()[:4], "big")
 
     def as_dict(self) -> dict:
         """JSON-ready form (what ``railrig protocol --json`` prints)."""
