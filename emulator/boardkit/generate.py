@@ -148,8 +148,10 @@ def _plant_constants(params: TrainsetParams, sm: SignalMap) -> list[str]:
             " * converter; per-element indices into the values (-1 where there is none).",
             " * Use as initialisers: static const int x[RR_N_INVERTERS] = RR_INVERTER_LINK; */",
             f"#define RR_N_LINKS {len(params.dc_links)}",
-            f"#define RR_LINK_NOMINAL_V {_initialiser(_number(k.voltage_v) for k in params.dc_links)}",
-            f"#define RR_LINK_Y_VOLTAGE {_initialiser(y[k.name + '.voltage_v'] for k in params.dc_links)}",
+            f"#define RR_LINK_NOMINAL_V "
+            f"{_initialiser(_number(k.voltage_v) for k in params.dc_links)}",
+            f"#define RR_LINK_Y_VOLTAGE "
+            f"{_initialiser(y[k.name + '.voltage_v'] for k in params.dc_links)}",
             f"#define RR_LINK_U_CHOPPER_DUTY "
             f"{_initialiser(u.get(k.name + '.chopper_duty', -1) for k in params.dc_links)}",
             f"#define RR_N_INVERTERS {len(params.converters)}",
@@ -165,8 +167,7 @@ def _plant_constants(params: TrainsetParams, sm: SignalMap) -> list[str]:
                    f"{_initialiser(table[c.name + '.' + key] for c in params.converters)}")
     motors = params.motor_names
     out += [f"#define RR_N_MOTORS {len(motors)}",
-            f"#define RR_MOTOR_INVERTER "
-            f"{_initialiser(k for k, c in enumerate(params.converters) for _ in c.wheel_diameters_m)}",
+            f"#define RR_MOTOR_INVERTER {_initialiser(_motor_inverters(params))}",
             f"#define RR_MOTOR_WHEEL_DIAMETER_M {_initialiser(_number(d) for d in wheels)}",
             f"#define RR_MOTOR_Y_ENCODER_COUNT "
             f"{_initialiser(y[m + '.encoder_count'] for m in motors)}",
@@ -183,6 +184,10 @@ def _plant_constants(params: TrainsetParams, sm: SignalMap) -> list[str]:
                    f"{_initialiser(table[lc.name + '.' + key] for lc in units)}")
     out.append("")
     return out
+
+
+def _motor_inverters(params: TrainsetParams) -> list[int]:
+    return [k for k, c in enumerate(params.converters) for _ in c.wheel_diameters_m]
 
 
 def write_kit(params: TrainsetParams, out_dir: str | Path) -> list[Path]:
