@@ -1,0 +1,164 @@
+/* Test harness of the board kit's codec: one request a line on stdin, one answer a line
+ * on stdout, so that a Python test can feed it thousands of cases through one process.
+ *
+ *   dec N HEX       decode a telegram of 5 + N integers -> "ok h0..h4 v0.." | "err CODE"
+ *   enc X0 X1 ...   encode integers (header first) -> "ok HEX" | "err CODE"
+ *   cobs HEX | uncobs HEX | frame HEX | unframe HEX -> "ok HEX" | "err CODE"
+ *   crc HEX         -> "ok DECIMAL"
+ *   rx HEX          push bytes into one receiver -> "ok HEX,HEX,.. frames crc cobs oversized"
+ * HEX "-" is no bytes. Built with the sanitizers by the test where the compiler has them.
+ */
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "railrig_codec.h"
+
+#define MAX_BYTES 16384
+static char line[4 * MAX_BYTES];
+static uint8_t in[MAX_BYTES], out[2 * MAX_BYTES];
+static int64_t values[4096];
+static rr_rx rx;
+
+static long unhex(const char *s, uint8_t *buf, size_t cap)
+{
+    size_t n = 0;
+    if (s == NULL) {
+        return -1;
+    }
+    if (strcmp(s, "-") == 0) {
+        return 0;
+    }
+    while (s[0] && s[1]) {
+        unsigned b;
+        if (n >= cap || sscanf(s, "%2x", &b) != 1) {
+            return -1;
+        }
+        buf[n++] = (uint8_t)b;
+        s += 2;
+    }
+    return (long)n;
+}
+
+static void print_hex(const uint8_t *buf, long n)
+{
+    long i;
+    if (n == 0) {
+        fputc('-', stdout);
+    }
+    for (i = 0; i < n; i++) {
+        printf("%02x", buf[i]);
+    }
+}
+
+static void answer_bytes(int n)
+{
+    if (n < 0) {
+        printf("err %d\n", n);
+        return;
+    }
+    fputs("ok ", stdout);
+    print_hex(out, n);
+    fputc('\n', stdout);
+}
+
+int main(void)
+{
+    setvbuf(stdout, NULL, _IOLBF, 0); /* one answer a line, at once */
+    rr_rx_init(&rx);
+    while (fgets(line, sizeof line, stdin) != NULL) {
+        char *cmd = strtok(line, " \n");
+        char *arg = strtok(NULL, " \n");
+        long n;
+        if (cmd == NULL) {
+            continue;
+        }
+        if (strcmp(cmd, "enc") == 0) {
+            rr_header h;
+            int64_t head[5];
+            size_t count = 0;
+            while (arg != NULL && count < 5 + 4096) {
+                int64_t x = strtoll(arg, NULL, 10);
+                if (count < 5) {
+                    head[count] = x;
+                } else {
+                    values[count - 5] = x;
+                }
+                count++;
+                arg = strtok(NULL, " \n");
+            }
+            if (count < 5) {
+                puts("err bad-request");
+                continue;
+            }
+            h.protocol_version = head[0];
+            h.sequence = head[1];
+            h.time_us = head[2];
+            h.period_us = head[3];
+            h.flags = head[4];
+            answer_bytes(rr_encode_telegram(out, rr_telegram_max_size(count - 5), &h, values,
+                                            count - 5));
+        } else if (strcmp(cmd, "dec") == 0) {
+            size_t want = arg != NULL ? (size_t)strtoul(arg, NULL, 10) : 0;
+            rr_header h;
+            int rc;
+            size_t i;
+            n = unhex(strtok(NULL, " \n"), in, sizeof in);
+            if (n < 0 || want > 4096) {
+                puts("err bad-request");
+                continue;
+            }
+            rc = rr_decode_telegram(in, (size_t)n, &h, values, want);
+            if (rc != RR_OK) {
+                printf("err %d\n", rc);
+                continue;
+            }
+            printf("ok %lld %lld %lld %lld %lld", (long long)h.protocol_version,
+                   (long long)h.sequence, (long long)h.time_us, (long long)h.period_us,
+                   (long long)h.flags);
+            for (i = 0; i < want; i++) {
+                printf(" %lld", (long long)values[i]);
+            }
+            fputc('\n', stdout);
+        } else if (strcmp(cmd, "crc") == 0) {
+            n = unhex(arg, in, sizeof in);
+            printf("ok %u\n", n < 0 ? 0u : (unsigned)rr_crc16(in, (size_t)n));
+        } else if (strcmp(cmd, "rx") == 0) {
+            long i;
+            int first = 1;
+            n = unhex(arg, in, sizeof in);
+            fputs("ok ", stdout);
+            for (i = 0; i < n; i++) {
+                if (rr_rx_push(&rx, in[i])) {
+                    if (!first) {
+                        fputc(',', stdout);
+                    }
+                    print_hex(rx.payload, (long)rx.length);
+                    first = 0;
+                }
+            }
+            if (first) {
+                fputc('-', stdout);
+            }
+            printf(" %lu %lu %lu %lu\n", (unsigned long)rx.frames, (unsigned long)rx.crc_errors,
+                   (unsigned long)rx.cobs_errors, (unsigned long)rx.oversized);
+        } else {
+            n = unhex(arg, in, sizeof in);
+            if (n < 0) {
+                puts("err bad-request");
+            } else if (strcmp(cmd, "cobs") == 0) {
+                answer_bytes(rr_cobs_encode(in, (size_t)n, out, (size_t)n + (size_t)n / 254 + 1));
+            } else if (strcmp(cmd, "uncobs") == 0) {
+                answer_bytes(rr_cobs_decode(in, (size_t)n, out, sizeof out));
+            } else if (strcmp(cmd, "frame") == 0) {
+                answer_bytes(rr_frame_encode(in, (size_t)n, out, rr_frame_max_size((size_t)n)));
+            } else if (strcmp(cmd, "unframe") == 0) {
+                answer_bytes(rr_frame_decode(in, (size_t)n, out, sizeof out));
+            } else {
+                puts("err bad-request");
+            }
+        }
+        fflush(stdout);
+    }
+    return 0;
+}
