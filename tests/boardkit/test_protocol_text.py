@@ -1,0 +1,40 @@
+"""The protocol as written for board developers agrees with the code: the README's
+version and flag table, and the generated header's every index, scale and range, read
+back from the text a board compiles."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from emulator.protocol.signal_map import FLAG_NAMES, PROTOCOL_VERSION, build_signal_map
+from tests.boardkit.conftest import PROFILES
+
+README = Path(__file__).parents[2] / "README.md"
+
+
+def test_readme_states_the_version_and_the_flags_the_rig_uses() -> None:
+    text = README.read_text(encoding="utf-8")
+    assert re.findall(r"`protocol_version` is (\d+)", text) == [str(PROTOCOL_VERSION)]
+    rows = re.findall(r"^\| (\d+) \((\d+)\) \|", text, flags=re.MULTILINE)
+    assert rows, "the README's flag table is gone"
+    assert {int(value) for _, value in rows} == set(FLAG_NAMES)
+    assert all(int(value) == 1 << int(bit) for bit, value in rows)
+
+
+def test_header_is_the_map(kit_dir) -> None:
+    from emulator.boardkit.generate import c_name
+    from emulator.profiles.reader import load_trainset
+
+    sm = build_signal_map(load_trainset(PROFILES / "tern-25kv.toml"))
+    header = (kit_dir / "railrig_map.h").read_text(encoding="utf-8")
+    defines = dict(re.findall(r"^#define (\w+) (.+?)(?: /\*.*)?$", header, flags=re.MULTILINE))
+    assert int(defines["RR_PROTOCOL_VERSION"]) == sm.version
+    assert int(defines["RR_MAP_DIGEST"].rstrip("u"), 16) == sm.digest()
+    for prefix, signals in (("Y", sm.measurements), ("U", sm.commands)):
+        for i, s in enumerate(signals):
+            name = f"RR_{prefix}_{c_name(s.name)}"
+            assert int(defines[name]) == i, name
+            assert float(defines[name + "_SCALE"]) == s.scale, name
+            line = next(x for x in header.splitlines() if x.startswith(f"#define {name} "))
+            assert f"{s.lo:g} .. {s.hi:g}" in line and s.unit in line, line
