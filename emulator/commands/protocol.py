@@ -36,7 +36,9 @@ def run(args: argparse.Namespace) -> int:
                                ("controller -> rig (commands)", sm.commands)):
         table = Table(title=direction)
         for col in ("index", "name", "unit", "scale", "range", "kind"):
-            table.add_column(col, justify="right" if col in ("index", "scale") else "left")
+            # a long name wraps (folds) in a narrow terminal, it is never cut
+            table.add_column(col, justify="right" if col in ("index", "scale") else "left",
+                             overflow="fold", no_wrap=False, min_width=5 if col == "name" else None)
         for i, name in enumerate(HEADER):
             table.add_row(str(i), name, "", "", "", "header")
         for i, sig in enumerate(signals, start=len(HEADER)):
