@@ -12,7 +12,8 @@
  *   options: --slip-hz F (default 1.5), --current-limit-a A (phase peak, default 60 %
  *            of the gate drivers' trip), --quiet
  *
- * Exits 0 after N answered frames; 1 when the rig stays silent for 10 s or a telegram
+ * Exits 0 after N answered frames; 1 when the rig stays silent (120 s before its first
+ * telegram: its first start after install compiles for tens of seconds; 10 s later) or a telegram
  * cannot be read; 2 on bad arguments or a map mismatch (version).
  *
  * Safety: run it against the rig only; never on hardware wired to a real power stage.
@@ -255,6 +256,13 @@ static int answer(controller *c, const uint8_t *in, size_t len, uint8_t *out, si
 
 /* ---- transports ---- */
 
+/* How long to wait for a telegram: the first may take a minute (a rig's first start
+ * after install compiles its plant before it sends), later ones 10 s. */
+static int silence_ms(const controller *c)
+{
+    return c->answered == 0 ? 120000 : 10000;
+}
+
 static int resolve(const char *spec, struct sockaddr_storage *addr, socklen_t *len)
 {
     char host[256];
@@ -300,8 +308,9 @@ static int run_udp(controller *c, const char *bind_spec, const char *rig_spec,
         int n;
         p.fd = fd;
         p.events = POLLIN;
-        if (poll(&p, 1, 10000) <= 0) {
-            fprintf(stderr, "example_controller: no telegram from the rig for 10 s\n");
+        if (poll(&p, 1, silence_ms(c)) <= 0) {
+            fprintf(stderr, "example_controller: no telegram from the rig for %d s\n",
+                    silence_ms(c) / 1000);
             close(fd);
             return 1;
         }
@@ -399,8 +408,9 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
         ssize_t got, i;
         p.fd = fd;
         p.events = POLLIN;
-        if (poll(&p, 1, 10000) <= 0) {
-            fprintf(stderr, "example_controller: no telegram from the rig for 10 s\n");
+        if (poll(&p, 1, silence_ms(c)) <= 0) {
+            fprintf(stderr, "example_controller: no telegram from the rig for %d s\n",
+                    silence_ms(c) / 1000);
             close(fd);
             return 1;
         }
