@@ -13,6 +13,7 @@ import asyncio
 import json
 import os
 import signal
+import time
 
 from rich.console import Console
 
@@ -77,6 +78,9 @@ def run(args: argparse.Namespace) -> int:
         return 2
     profile = resolve_profile(args.profile)
     params = load_trainset(profile)
+    from emulator.rig.warmup import warm_up
+
+    warm_up(params, say=console.print)  # says so first when it compiles (first start)
     if args.cpu is not None:
         try:
             os.sched_setaffinity(0, {args.cpu})
@@ -131,9 +135,13 @@ def run(args: argparse.Namespace) -> int:
         if args.duration is not None:
             frames = round(args.duration * 1e6 / rig.period_us)
         recorder = rig.start_recording(args.record) if args.record else None
+        waiting = (asyncio.create_task(_say_until_first_telegram(rig, args.link))
+                   if args.link else None)
         try:
             await rig.run(frames=frames, stop=stop)
         finally:
+            if waiting is not None:
+                waiting.cancel()
             if monitor is not None:
                 monitor.close()
             link.close()
@@ -156,6 +164,18 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+async def _say_until_first_telegram(rig, link: str) -> None:
+    """Say that the rig waits for the controller, every 10 s, until its first telegram."""
+    t0 = time.monotonic()
+    console.print(f"waiting for the controller's first telegram on {link} ...")
+    while rig.health.accepted == 0 and sum(rig.health.rejected.values()) == 0:
+        await asyncio.sleep(0.2)
+        if time.monotonic() - t0 >= 10.0:
+            t0 = time.monotonic()
+            console.print(f"still waiting for the controller's first telegram on {link} ...")
+    console.print("the controller answers.")
+
+
 def _print_report(report: dict) -> None:
     t = report["timing"]
     pq = report["power_quality"]
@@ -165,6 +185,32 @@ def _print_report(report: dict) -> None:
                       f"{pq['power_factor']:.3f} (displacement {pq['displacement_factor']:.3f}), "
                       f"current THD {100 * pq['current_thd']:.1f} %")
     console.print(f"{report['frames']} frames, plant time {report['plant_time_s']:.3f} s; "
-                  f"link: {report['link']}; lateness median {t['lateness_us_median']:.1f} us, "
+                  f"lateness median {t['lateness_us_median']:.1f} us, "
                   f"p99 {t['lateness_us_p99']:.1f} us, late frames {t['late_frames']}, "
                   f"CPU {100 * t['cpu_share']:.0f} %")
+    console.print(link_counters_table(report))
+
+
+def link_counters_table(report: dict):
+    """The link's counters of a run as a table: telegrams taken, held frames, watchdog,
+    each kind of rejection and sequence error (only the kinds that occurred)."""
+    from emulator.commands import pairs_table
+
+    link = report["link"]
+    table = pairs_table("link counters", first="counter")
+    labels = (("accepted", "telegrams accepted"), ("valid", "frames with their command"),
+              ("missing", "frames held: command missing"),
+              ("overrun_held", "frames held: the rig's overrun"),
+              ("expired", "answers too late (expired)"), ("reordered", "reordered"),
+              ("watchdog_trips", "watchdog trips"))
+    for key, label in labels:
+        table.add_row(label, str(link.get(key, 0)))
+    for kind, n in sorted(link.get("rejected", {}).items()):
+        table.add_row(f"rejected: {kind}", str(n))
+    for kind, n in sorted(link.get("sequence", {}).items()):
+        table.add_row(f"sequence error: {kind}", str(n))
+    framing = report.get("transport", {}).get("framing", {})
+    for key in ("crc_errors", "cobs_errors", "runts", "oversized"):
+        if framing.get(key):
+            table.add_row(f"serial {key.replace('_', ' ')}", str(framing[key]))
+    return table
