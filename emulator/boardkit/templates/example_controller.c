@@ -263,6 +263,20 @@ static int silence_ms(const controller *c)
     return c->answered == 0 ? 120000 : 10000;
 }
 
+/* Wait until fd has bytes; 0 (and says so) when the rig stays silent too long. */
+static int readable(int fd, const controller *c)
+{
+    struct pollfd p;
+    p.fd = fd;
+    p.events = POLLIN;
+    if (poll(&p, 1, silence_ms(c)) <= 0) {
+        fprintf(stderr, "example_controller: no telegram from the rig for %d s\n",
+                silence_ms(c) / 1000);
+        return 0;
+    }
+    return 1;
+}
+
 static int resolve(const char *spec, struct sockaddr_storage *addr, socklen_t *len)
 {
     char host[256];
@@ -303,14 +317,9 @@ static int run_udp(controller *c, const char *bind_spec, const char *rig_spec,
         return 2;
     }
     while (c->answered < frames) {
-        struct pollfd p;
         ssize_t got;
         int n;
-        p.fd = fd;
-        p.events = POLLIN;
-        if (poll(&p, 1, silence_ms(c)) <= 0) {
-            fprintf(stderr, "example_controller: no telegram from the rig for %d s\n",
-                    silence_ms(c) / 1000);
+        if (!readable(fd, c)) {
             close(fd);
             return 1;
         }
@@ -404,13 +413,8 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
     }
     rr_rx_init(&rx);
     while (c->answered < frames) {
-        struct pollfd p;
         ssize_t got, i;
-        p.fd = fd;
-        p.events = POLLIN;
-        if (poll(&p, 1, silence_ms(c)) <= 0) {
-            fprintf(stderr, "example_controller: no telegram from the rig for %d s\n",
-                    silence_ms(c) / 1000);
+        if (!readable(fd, c)) {
             close(fd);
             return 1;
         }
