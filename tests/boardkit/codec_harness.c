@@ -7,6 +7,9 @@
  *   crc HEX         -> "ok DECIMAL"
  *   rx HEX          push bytes into one receiver -> "ok HEX,HEX,.. frames crc cobs oversized"
  * HEX "-" is no bytes. Built with the sanitizers by the test where the compiler has them.
+ * Every input is handed to the codec in a heap block of exactly its length and every
+ * output buffer is exactly the capacity passed, so that AddressSanitizer sees a read or
+ * write one byte past either.
  */
 #include <stdio.h>
 #include <stdlib.h>
@@ -16,9 +19,10 @@
 
 #define MAX_BYTES 16384
 static char line[4 * MAX_BYTES];
-static uint8_t in[MAX_BYTES], out[2 * MAX_BYTES];
+static uint8_t in[MAX_BYTES];
 static int64_t values[4096];
 static rr_rx rx;
+static long arg_cap; /* "cap N" before a request: its output capacity instead of the default */
 
 static long unhex(const char *s, uint8_t *buf, size_t cap)
 {
@@ -51,15 +55,40 @@ static void print_hex(const uint8_t *buf, long n)
     }
 }
 
-static void answer_bytes(int n)
+static void answer_bytes(const uint8_t *buf, int n)
 {
     if (n < 0) {
         printf("err %d\n", n);
         return;
     }
     fputs("ok ", stdout);
-    print_hex(out, n);
+    print_hex(buf, n);
     fputc('\n', stdout);
+}
+
+/* A heap copy of in[0..n) of exactly n bytes (1 for none). */
+static uint8_t *exact(long n)
+{
+    uint8_t *p = malloc(n > 0 ? (size_t)n : 1u);
+    if (p == NULL) {
+        abort();
+    }
+    memcpy(p, in, (size_t)n);
+    return p;
+}
+
+/* Run one byte-to-byte request with exact buffers; cap is the output's capacity. */
+static void bytes_request(int (*fn)(const uint8_t *, size_t, uint8_t *, size_t), long n,
+                          size_t cap)
+{
+    uint8_t *src = exact(n);
+    uint8_t *dst = malloc(cap > 0 ? cap : 1u);
+    if (dst == NULL) {
+        abort();
+    }
+    answer_bytes(dst, fn(src, (size_t)n, dst, cap));
+    free(src);
+    free(dst);
 }
 
 int main(void)
@@ -70,6 +99,12 @@ int main(void)
         char *cmd = strtok(line, " \n");
         char *arg = strtok(NULL, " \n");
         long n;
+        arg_cap = -1;
+        if (cmd != NULL && strcmp(cmd, "cap") == 0 && arg != NULL) {
+            arg_cap = strtol(arg, NULL, 10);
+            cmd = strtok(NULL, " \n");
+            arg = strtok(NULL, " \n");
+        }
         if (cmd == NULL) {
             continue;
         }
@@ -96,8 +131,15 @@ int main(void)
             h.time_us = head[2];
             h.period_us = head[3];
             h.flags = head[4];
-            answer_bytes(rr_encode_telegram(out, rr_telegram_max_size(count - 5), &h, values,
-                                            count - 5));
+            {
+                size_t cap = arg_cap >= 0 ? (size_t)arg_cap : rr_telegram_max_size(count - 5);
+                uint8_t *dst = malloc(cap > 0 ? cap : 1u);
+                if (dst == NULL) {
+                    abort();
+                }
+                answer_bytes(dst, rr_encode_telegram(dst, cap, &h, values, count - 5));
+                free(dst);
+            }
         } else if (strcmp(cmd, "dec") == 0) {
             size_t want = arg != NULL ? (size_t)strtoul(arg, NULL, 10) : 0;
             rr_header h;
@@ -108,7 +150,11 @@ int main(void)
                 puts("err bad-request");
                 continue;
             }
-            rc = rr_decode_telegram(in, (size_t)n, &h, values, want);
+            {
+                uint8_t *src = exact(n);
+                rc = rr_decode_telegram(src, (size_t)n, &h, values, want);
+                free(src);
+            }
             if (rc != RR_OK) {
                 printf("err %d\n", rc);
                 continue;
@@ -146,14 +192,16 @@ int main(void)
             n = unhex(arg, in, sizeof in);
             if (n < 0) {
                 puts("err bad-request");
-            } else if (strcmp(cmd, "cobs") == 0) {
-                answer_bytes(rr_cobs_encode(in, (size_t)n, out, (size_t)n + (size_t)n / 254 + 1));
+            } else if (strcmp(cmd, "cobs") == 0) {  /* the capacity COBS needs at most */
+                bytes_request(rr_cobs_encode, n, arg_cap >= 0 ? (size_t)arg_cap
+                              : (size_t)n + (size_t)n / 254 + 1);
             } else if (strcmp(cmd, "uncobs") == 0) {
-                answer_bytes(rr_cobs_decode(in, (size_t)n, out, sizeof out));
+                bytes_request(rr_cobs_decode, n, arg_cap >= 0 ? (size_t)arg_cap : (size_t)n);
             } else if (strcmp(cmd, "frame") == 0) {
-                answer_bytes(rr_frame_encode(in, (size_t)n, out, rr_frame_max_size((size_t)n)));
+                bytes_request(rr_frame_encode, n, arg_cap >= 0 ? (size_t)arg_cap
+                              : rr_frame_max_size((size_t)n));
             } else if (strcmp(cmd, "unframe") == 0) {
-                answer_bytes(rr_frame_decode(in, (size_t)n, out, sizeof out));
+                bytes_request(rr_frame_decode, n, arg_cap >= 0 ? (size_t)arg_cap : (size_t)n);
             } else {
                 puts("err bad-request");
             }

@@ -123,3 +123,29 @@ def test_serial_receiver_agrees_with_the_rigs_decoder(harness, chunks) -> None:
     assert ok
     got = [] if text.split()[0] == "-" else [_bytes(x) for x in text.split()[0].split(",")]
     assert got == FrameDecoder().feed(stream)
+
+
+@FAST
+@given(data=st.binary(max_size=1200), values=st.lists(NUMBER, min_size=5, max_size=40))
+def test_outputs_fit_exactly_their_capacity_and_not_one_byte_less(harness, data,
+                                                                   values) -> None:
+    # each output buffer is a heap block of exactly the capacity given (the harness),
+    # so a write past it is an ASan report; one byte short must be refused, not overrun
+    for request, expected in ((("cobs", _hex(data)), cobs.encode(data)),
+                              (("frame", _hex(data)), encode_frame(data)),
+                              (("enc", *map(str, values)), msgpack.packb(values))):
+        assert harness.ask("cap", str(len(expected)), *request) == (True, _hex(expected))
+        assert harness.ask("cap", str(len(expected) - 1), *request) == (False, "-6")
+    if data:
+        encoded = cobs.encode(data)
+        assert harness.ask("cap", str(len(data)), "uncobs", _hex(encoded)) == (True, _hex(data))
+        assert harness.ask("cap", str(len(data) - 1), "uncobs", _hex(encoded)) == (False, "-6")
+
+
+def test_longest_payload_is_framed_and_received_and_one_more_is_refused(harness) -> None:
+    payload = bytes(range(1, 256)) * 8 + bytes(range(1, 9))  # 2048 bytes, RR_PAYLOAD_CAP
+    framed = encode_frame(payload)
+    assert harness.ask("frame", _hex(payload)) == (True, _hex(framed))
+    ok, text = harness.ask("rx", _hex(b"\x00" + framed))
+    assert ok and text.split()[0] == _hex(payload)
+    assert harness.ask("frame", _hex(payload + b"\x01"))[0] is False

@@ -38,3 +38,21 @@ def test_header_is_the_map(kit_dir) -> None:
             assert float(defines[name + "_SCALE"]) == s.scale, name
             line = next(x for x in header.splitlines() if x.startswith(f"#define {name} "))
             assert f"{s.lo:g} .. {s.hi:g}" in line and s.unit in line, line
+
+
+def test_kit_of_a_dc_fed_trainset_builds(tmp_path) -> None:
+    # no line side: the header has no switchgear, the example's DC-fed branch compiles
+    import dataclasses
+    import subprocess
+
+    from emulator.boardkit.generate import write_kit
+    from emulator.profiles.reader import load_trainset
+    from tests.boardkit.conftest import c_compiler
+
+    c_compiler()
+    params = dataclasses.replace(load_trainset(PROFILES / "tern-25kv.toml"), transformer=None,
+                                 line_converter=None, line_converters=())
+    write_kit(params, tmp_path)
+    assert "#define RR_HAS_LINE_SIDE 0" in (tmp_path / "railrig_map.h").read_text()
+    done = subprocess.run(["make", "-C", str(tmp_path)], capture_output=True, text=True)
+    assert done.returncode == 0, done.stdout + done.stderr

@@ -52,6 +52,7 @@ typedef struct {
     double speed_rad_s;       /* mean rotor speed from the encoders */
     double slip_hz;           /* commanded slip frequency */
     double slip_set_hz;       /* its setting */
+    double v_scale;           /* voltage reduction by the current limit, 0.2 .. 1 */
     double current_limit_a;   /* phase peak */
     uint16_t last_count[RR_N_MOTORS];
     int have_counts;
@@ -59,6 +60,7 @@ typedef struct {
 } controller;
 
 static const double Y_SCALE[RR_N_MEASUREMENTS] = RR_Y_SCALES;
+static int64_t y_wire[RR_N_MEASUREMENTS]; /* the last measurement, wire units */
 static const double U_SCALE[RR_N_COMMANDS] = RR_U_SCALES;
 static const double U_LO[RR_N_COMMANDS] = RR_U_LO;
 static const double U_HI[RR_N_COMMANDS] = RR_U_HI;
@@ -125,6 +127,14 @@ static int switch_on(controller *c, const double *y, double *u, double period_s)
             c->timer_s = 0.0;
         }
         break;
+    case RUNNING: /* the breaker opened (its own trip, a dead line) or a link sagged:
+                     start again from the breaker, precharging the links */
+        if (y[RR_Y_LINE_BREAKER_CLOSED] < 0.5 || y[RR_Y_LINE_OVERCURRENT_TRIP] > 0.5
+            || lowest_link_v(y) < 0.5 * charged_v) {
+            c->state = OFF;
+            c->timer_s = 0.0;
+        }
+        break;
     default:
         break;
     }
@@ -139,8 +149,12 @@ static int switch_on(controller *c, const double *y, double *u, double period_s)
 #else
     (void)all_pre;
     (void)all_line;
+    (void)u; /* no switchgear to command */
     (void)i;
-    charged_v = 0.5 * 1.0e3; /* a DC-fed trainset: run once the links are up */
+    {
+        static const double nominal[RR_N_LINKS] = RR_LINK_NOMINAL_V;
+        charged_v = 0.8 * nominal[0]; /* a DC-fed trainset: run once the links are up */
+    }
     if (c->state == OFF && lowest_link_v(y) >= charged_v) {
         c->state = RUNNING;
     }
@@ -156,7 +170,7 @@ static void control(controller *c, const rr_header *h, const double *y, double *
     memset(u, 0, sizeof(double) * RR_N_COMMANDS);
     /* speed from the wrapped differences of the 16-bit edge counters */
     for (i = 0; i < RR_N_MOTORS; i++) {
-        uint16_t now = (uint16_t)y[MOTOR_COUNT[i]];
+        uint16_t now = (uint16_t)(y_wire[MOTOR_COUNT[i]] & 0xffff);
         if (c->have_counts) {
             int d = (int)(uint16_t)(now - c->last_count[i]);
             sum += d >= 32768 ? d - 65536 : d; /* the wrapped difference, -32768..32767 */
@@ -170,7 +184,7 @@ static void control(controller *c, const rr_header *h, const double *y, double *
     run = switch_on(c, y, u, period_s);
     for (k = 0; k < RR_N_INVERTERS; k++) {
         int p;
-        if ((int)y[INV_GATE_FAULT[k]] & 8) {
+        if (y_wire[INV_GATE_FAULT[k]] & 8) {
             c->state = FAULT; /* the gate drivers tripped: stop (this example does not reset) */
         }
         for (p = 0; p < 3; p++) {
@@ -182,17 +196,21 @@ static void control(controller *c, const rr_header *h, const double *y, double *
         c->flagged++;
     }
     /* open-loop V/f: the slip backs off while the current is past the limit */
-    if (i_peak > c->current_limit_a) {
+    if (i_peak > c->current_limit_a) { /* over the limit: less slip, less voltage */
         c->slip_hz -= 20.0 * period_s;
-    } else if (c->slip_hz < c->slip_set_hz) {
-        c->slip_hz += 2.0 * period_s;
+        c->v_scale -= 2.0 * period_s;
+    } else {
+        c->slip_hz += c->slip_hz < c->slip_set_hz ? 2.0 * period_s : 0.0;
+        c->v_scale += 0.5 * period_s;
     }
+    c->v_scale = c->v_scale < 0.2 ? 0.2 : (c->v_scale > 1.0 ? 1.0 : c->v_scale);
     if (c->slip_hz < 0.0) {
         c->slip_hz = 0.0;
     }
     f_s = RR_POLE_PAIRS * c->speed_rad_s / (2.0 * PI) + c->slip_hz;
     v_per_hz = RR_RATED_VOLTAGE_V * sqrt(2.0 / 3.0) / RR_RATED_FREQUENCY_HZ; /* phase peak */
-    amp = 0.03 * RR_RATED_VOLTAGE_V * sqrt(2.0 / 3.0) + v_per_hz * fabs(f_s); /* with boost */
+    amp = c->v_scale * (0.03 * RR_RATED_VOLTAGE_V * sqrt(2.0 / 3.0) /* with a boost */
+                        + v_per_hz * fabs(f_s));
     c->theta = fmod(c->theta + 2.0 * PI * f_s * period_s, 2.0 * PI);
     for (k = 0; k < RR_N_INVERTERS; k++) {
         double udc = y[LINK_VOLTAGE[INV_LINK[k]]];
@@ -211,7 +229,6 @@ static void control(controller *c, const rr_header *h, const double *y, double *
 static int answer(controller *c, const uint8_t *in, size_t len, uint8_t *out, size_t cap,
                   int verbose)
 {
-    static int64_t y_wire[RR_N_MEASUREMENTS];
     static int64_t u_wire[RR_N_COMMANDS];
     double y[RR_N_MEASUREMENTS], u[RR_N_COMMANDS];
     rr_header h, reply;
@@ -419,6 +436,11 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
             return 1;
         }
         got = read(fd, chunk, sizeof chunk);
+        if (got <= 0 && !(got < 0 && (errno == EINTR || errno == EAGAIN))) {
+            fprintf(stderr, "example_controller: the serial line closed\n");
+            close(fd);
+            return 1;
+        }
         for (i = 0; i < got; i++) {
             int n, m;
             if (!rr_rx_push(&rx, chunk[i])) {
@@ -440,7 +462,7 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
             }
         }
     }
-    if (verbose || rx.crc_errors || rx.cobs_errors) {
+    if (verbose || rx.crc_errors || rx.cobs_errors || rx.oversized) {
         printf("serial: %lu frames, %lu CRC errors, %lu COBS errors, %lu oversized\n",
                (unsigned long)rx.frames, (unsigned long)rx.crc_errors,
                (unsigned long)rx.cobs_errors, (unsigned long)rx.oversized);
@@ -467,6 +489,7 @@ int main(int argc, char **argv)
     memset(&c, 0, sizeof c);
     c.state = OFF;
     c.slip_set_hz = 1.5;
+    c.v_scale = 1.0;
     c.current_limit_a = 0.6 * RR_INVERTER_TRIP_A;
     if (!(c.current_limit_a < 1e9)) {
         c.current_limit_a = 500.0; /* a profile without a trip level */

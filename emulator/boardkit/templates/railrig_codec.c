@@ -105,7 +105,7 @@ int rr_decode_telegram(const uint8_t *buf, size_t len, rr_header *head, int64_t 
     } else {
         return RR_E_FORMAT;
     }
-    if (count != 5 + n_values) {
+    if (count < 5 || count - 5 != n_values) {
         return RR_E_LENGTH;
     }
     for (i = 0; i < count; i++) {
@@ -222,7 +222,7 @@ uint16_t rr_crc16(const uint8_t *data, size_t len)
     size_t i;
     unsigned b;
     for (i = 0; i < len; i++) {
-        crc ^= (uint16_t)(data[i] << 8);
+        crc ^= (uint16_t)((unsigned)data[i] << 8); /* unsigned: no int overflow on 16-bit int */
         for (b = 0; b < 8; b++) {
             crc = (uint16_t)((crc & 0x8000u) ? ((unsigned)crc << 1) ^ 0x1021u
                                                : (unsigned)crc << 1);
@@ -309,11 +309,11 @@ size_t rr_frame_max_size(size_t payload_len)
 
 int rr_frame_encode(const uint8_t *payload, size_t len, uint8_t *out, size_t cap)
 {
-    uint8_t tmp[RR_RX_CAP + 2];
+    uint8_t tmp[RR_PAYLOAD_CAP + 2];
     uint16_t crc;
     size_t i;
     int n;
-    if (len > RR_RX_CAP) {
+    if (len > RR_PAYLOAD_CAP) {
         return RR_E_SPACE;
     }
     for (i = 0; i < len; i++) {
@@ -335,7 +335,7 @@ int rr_frame_encode(const uint8_t *payload, size_t len, uint8_t *out, size_t cap
 
 int rr_frame_decode(const uint8_t *frame, size_t len, uint8_t *payload, size_t cap)
 {
-    uint8_t tmp[RR_RX_CAP + 2];
+    uint8_t tmp[RR_PAYLOAD_CAP + 2];
     int n = rr_cobs_decode(frame, len, tmp, sizeof tmp);
     size_t i, m;
     if (n < 0) {
@@ -345,7 +345,7 @@ int rr_frame_decode(const uint8_t *frame, size_t len, uint8_t *payload, size_t c
         return RR_E_CRC;
     }
     m = (size_t)n - 2u;
-    if (rr_crc16(tmp, m) != (uint16_t)((tmp[m] << 8) | tmp[m + 1])) {
+    if (rr_crc16(tmp, m) != (uint16_t)(((unsigned)tmp[m] << 8) | tmp[m + 1])) {
         return RR_E_CRC;
     }
     if (m > cap) {

@@ -67,12 +67,13 @@ size_t rr_frame_max_size(size_t payload_len);
  * rr_rx_push returns 1 when a good payload is complete (in rx->payload, rx->length),
  * 0 otherwise. Bad frames are counted in cobs_errors / crc_errors / oversized and
  * dropped; the receiver resynchronises at the next 0x00. */
-#define RR_RX_CAP 2048
+#define RR_PAYLOAD_CAP 2048 /* the longest telegram framed or received, bytes */
+#define RR_RX_CAP (RR_PAYLOAD_CAP + 2 + (RR_PAYLOAD_CAP + 2) / 254 + 1) /* its COBS frame */
 typedef struct {
     uint8_t buf[RR_RX_CAP];
     size_t fill;
     int skipping;        /* inside an oversized run: drop up to the next delimiter */
-    uint8_t payload[RR_RX_CAP];
+    uint8_t payload[RR_PAYLOAD_CAP];
     size_t length;
     uint32_t frames, cobs_errors, crc_errors, oversized;
 } rr_rx;
