@@ -71,8 +71,8 @@ def echo_main(argv: list[str]) -> None:
         if data[:4] == b"ping":
             sock.sendto(data, ("127.0.0.1", peer))
             continue
-        seq = msgpack.unpackb(data)[1]
-        sock.sendto(msgpack.packb([1, seq, 0, 0, 0, *values]), ("127.0.0.1", peer))
+        version, seq = msgpack.unpackb(data)[:2]  # the rig's version, its sequence
+        sock.sendto(msgpack.packb([version, seq, 0, 0, 0, 0, *values]), ("127.0.0.1", peer))
 
 
 def _start_echo(rig_port: int, echo_port: int, values: list[int]) -> subprocess.Popen:

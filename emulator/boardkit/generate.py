@@ -11,11 +11,19 @@ from __future__ import annotations
 
 import math
 import re
+import textwrap
 from importlib import resources
 from pathlib import Path
 
 from emulator.plant.params import TrainsetParams
-from emulator.protocol.signal_map import FLAG_NAMES, HEADER, SignalMap, build_signal_map
+from emulator.protocol.header import (
+    CONTROLLER_FLAGS,
+    HEADER_FIELDS,
+    LOCKSTEP_PACING,
+    PERIOD_RULES,
+    RIG_FLAGS,
+)
+from emulator.protocol.signal_map import HEADER, SignalMap, build_signal_map
 
 #: files copied verbatim from templates/
 TEMPLATES = ("railrig_codec.h", "railrig_codec.c", "example_controller.c", "Makefile",
@@ -41,6 +49,16 @@ def _number(x: float) -> str:
 
 def _comment(text: str) -> str:
     return text.replace("*/", "* /")
+
+
+def _wrapped(text: str, first: str, later: str) -> list[str]:
+    return textwrap.wrap(_comment(text), 88, initial_indent=first, subsequent_indent=later)
+
+
+def _block(text: str) -> list[str]:
+    """A comment of one or more lines, wrapped (for the line after it)."""
+    lines = _wrapped(text, "/* ", " * ")  # 88 wide: the closing mark fits within 91
+    return [*lines[:-1], lines[-1] + " */"]
 
 
 def _initialiser(values) -> str:
@@ -73,17 +91,30 @@ def map_header(params: TrainsetParams, sm: SignalMap | None = None) -> str:
     w(f"#define RR_PROTOCOL_VERSION {sm.version}")
     w(f"#define RR_MAP_DIGEST 0x{sm.digest():08X}u /* 32-bit digest of this layout */")
     w("")
-    w("/* header: the first five elements of every telegram, integers (int64 on the wire:")
-    w(" * sequence and time_us never wrap in a run; a 32-bit board keeps the low 32 bits")
-    w(" * of time_us, which wrap after 71.6 minutes, and echoes sequence in full) */")
+    w(f"/* header: the first {len(HEADER)} elements of every telegram, integers (msgpack")
+    w(" * int, any width up to int64; never floats) */")
     w(f"#define RR_HEADER_LEN {len(HEADER)}")
-    for i, name in enumerate(HEADER):
-        w(f"#define RR_H_{c_name(name)} {i}")
+    for i, f in enumerate(HEADER_FIELDS):
+        out.extend(_block(f"{f.name}: rig -> board: {f.rig_to_controller}; board -> rig: "
+                          f"{f.controller_to_rig}; {f.width}"))
+        w(f"#define RR_H_{c_name(f.name)} {i}")
     w("")
     w("/* flag bits of the rig's header (rig -> board) */")
-    for bit, text in FLAG_NAMES.items():
-        short = c_name(_FLAG_SHORT[bit])
-        w(f"#define RR_FLAG_{short} 0x{bit:02X}u /* {_comment(text)} */")
+    for f in RIG_FLAGS:
+        out.extend(_block(f.meaning))
+        w(f"#define RR_FLAG_{c_name(f.short)} 0x{f.value:02X}u")
+    w("/* flag bits of the board's header (board -> rig) */")
+    for f in CONTROLLER_FLAGS:
+        out.extend(_block(f.meaning))
+        w(f"#define RR_CFLAG_{c_name(f.short)} 0x{f.value:02X}u")
+    w("")
+    w("/* period_us sent by the board, per timing mode of the rig:")
+    for mode, rule in PERIOD_RULES.items():
+        out.extend(_wrapped(f"{mode}: {rule}", " *   ", " *     "))
+    w(" * lockstep pacing:")
+    for rule in LOCKSTEP_PACING:
+        out.extend(_wrapped(rule, " *   - ", " *     "))
+    w(" */")
     w("")
     for direction, prefix, signals in (("measurements, rig -> board", "Y", sm.measurements),
                                        ("commands, board -> rig", "U", sm.commands)):
@@ -109,10 +140,6 @@ def map_header(params: TrainsetParams, sm: SignalMap | None = None) -> str:
     out += _plant_constants(params, sm)
     w("#endif")
     return "\n".join(out) + "\n"
-
-
-_FLAG_SHORT = {1: "watchdog", 2: "command_held", 4: "bad_telegram", 8: "sequence",
-               16: "overrun"}
 
 
 def _plant_constants(params: TrainsetParams, sm: SignalMap) -> list[str]:

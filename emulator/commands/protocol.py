@@ -17,6 +17,9 @@ def add_arguments(protocol: argparse.ArgumentParser) -> None:
     """The options of ``railrig protocol``."""
     protocol.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     protocol.add_argument("--json", action="store_true", help="machine-readable")
+    protocol.add_argument("--readme", action="store_true",
+                          help="the header, flag and pacing rules as the README's Markdown "
+                          "(the same for every trainset)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -24,14 +27,20 @@ def run(args: argparse.Namespace) -> int:
     from emulator.profiles.reader import load_trainset
     from emulator.protocol.signal_map import HEADER, build_signal_map
 
+    if args.readme:
+        from emulator.protocol.reference_text import protocol_rules_markdown
+
+        print(protocol_rules_markdown(), end="")
+        return 0
     params = load_trainset(args.profile)
     sm = build_signal_map(params)
     if args.json:
         print(json.dumps(sm.as_dict(), indent=1))
         return 0
     out = Console()
-    out.print(f"[bold]Signal map[/bold] of {params.name}, protocol version {sm.version}. "
-              "Each telegram is a msgpack array; physical value = wire value x scale.")
+    out.print(f"[bold]Signal map[/bold] of {params.name}, protocol version {sm.version}, "
+              f"map digest 0x{sm.digest():08X}. Each telegram is a msgpack array; physical "
+              "value = wire value x scale.")
     for direction, signals in (("rig -> controller (measurements)", sm.measurements),
                                ("controller -> rig (commands)", sm.commands)):
         table = Table(title=direction)

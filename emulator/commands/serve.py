@@ -43,6 +43,9 @@ def add_arguments(serve: argparse.ArgumentParser) -> None:
                        help="frames between a measurement and the command answering it")
     serve.add_argument("--watchdog-frames", type=int, default=10,
                        help="frames a missing command is held before the gates are blocked")
+    serve.add_argument("--lockstep-repeat-ms", type=float, default=None,
+                       help="lockstep: say the measurement again after this much silence "
+                       "(default 20 periods; doubling up to 1 s while the silence lasts)")
     serve.add_argument("--spin-us", type=float, default=150.0,
                        help="busy-wait the last N us before each deadline (realtime)")
     serve.add_argument("--cpu", type=int, default=None,
@@ -93,7 +96,9 @@ def run(args: argparse.Namespace) -> int:
         rig = Rig(params, link, mode=args.mode, period_s=args.period_ms / 1e3,
                   command_delay=args.command_delay, watchdog_frames=args.watchdog_frames,
                   seed=args.seed, clock=MonotonicClock(spin_ns=round(args.spin_us * 1e3)),
-                  ideal_dc_links=args.ideal_dc_links)
+                  ideal_dc_links=args.ideal_dc_links,
+                  lockstep_repeat_s=(None if args.lockstep_repeat_ms is None
+                                     else args.lockstep_repeat_ms / 1e3))
         monitor = None if args.no_monitor else Monitor(rig, args.monitor,
                                                         record_dir=args.record_dir)
     except (LinkError, RigError, MonitorError) as exc:

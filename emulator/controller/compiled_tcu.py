@@ -67,9 +67,10 @@ class CompiledController(ref.ReferenceController):
             self._vc_consts = np.zeros((len(self.scalar), 1))
         self._tables = self._index_tables(cfg)
         # the telegrams' compiled codec (msgpack_array.py) and its buffers
-        self._head = np.zeros(5, dtype=np.int64)
-        self._reply_head = np.zeros(5, dtype=np.int64)
+        self._head = np.zeros(6, dtype=np.int64)
+        self._reply_head = np.zeros(6, dtype=np.int64)
         self._reply_head[0] = self.version
+        self._reply_head[5] = self.map_digest
         self._scratch = np.zeros(1, dtype=np.uint64)
         self._wire = np.zeros(msgpack_array.buffer_size(len(self.c_names)), dtype=np.uint8)
         self._warm_up()
@@ -81,8 +82,9 @@ class CompiledController(ref.ReferenceController):
         arrays = (self._g, self._counts, self._recent, self._mot, self._inv, self._lnk,
                   self._u_applied, self._sc_state, self._vc_state, self._commands)
         saved = [a.copy() for a in arrays]
-        self.answer(msgpack.packb([self.version, 0, 0, round(self.T * 1e6), 0,
+        self.answer(msgpack.packb([self.version, 0, 0, round(self.T * 1e6), 0, 0,
                                    *([0] * len(self.m_scale))]))
+        self._last_seq, self._last_reply = -1, b""
         for a, before in zip(arrays, saved, strict=True):
             a[...] = before
         self.events = Counter()
@@ -216,6 +218,8 @@ class CompiledController(ref.ReferenceController):
             y *= self._m_scale
         else:  # not the plain case: the msgpack package reads it, or says why not
             seq, period_us, flags = self._read_checked(payload, y)
+        if seq == self._last_seq:  # said again (the rig lost our answer): not a new period
+            return self._last_reply
         out = self._commands
         self._period(y, flags, period_us * 1e-6, out)
         self._reply_head[1] = seq
@@ -223,7 +227,8 @@ class CompiledController(ref.ReferenceController):
         if n < 0:
             raise ValueError(f"command {self.c_names[-1 - n]} = {out[-1 - n]!r} is not "
                              "finite: no answer")
-        return self._wire[:n].tobytes()
+        self._last_seq, self._last_reply = seq, self._wire[:n].tobytes()
+        return self._last_reply
 
     def _read_checked(self, payload: bytes, y: np.ndarray) -> tuple[int, int, int]:
         """A telegram the compiled reader left (another type, a length, a value past
@@ -231,13 +236,13 @@ class CompiledController(ref.ReferenceController):
         raises TypeError or ValueError for what no board would send, before anything
         reaches the compiled period."""
         m = msgpack.unpackb(payload)
-        if not isinstance(m, list) or len(m) < 5:
-            raise ValueError("a measurement telegram is a msgpack array of 5 + n numbers")
+        if not isinstance(m, list) or len(m) < 6:
+            raise ValueError("a measurement telegram is a msgpack array of 6 + n numbers")
         seq, period_us, flags = m[1], m[3], m[4]
         for name, value in (("sequence", seq), ("period_us", period_us), ("flags", flags)):
             if type(value) is not int or not 0 <= value < 1 << 63:
                 raise TypeError(f"{name} must be an integer 0 .. 2^63 - 1, got {value!r}")
-        values = [b * sc for b, sc in zip(m[5:], self.m_scale, strict=True)]
+        values = [b * sc for b, sc in zip(m[6:], self.m_scale, strict=True)]
         for v in values:
             if type(v) is not float or not math.isfinite(v):
                 raise ValueError(f"measurement {v!r} is not a finite number")

@@ -56,6 +56,8 @@ class ReferenceController:
         self.cfg = cfg
         self.signal_map = signal_map
         self.version = signal_map["protocol_version"]
+        self.map_digest = signal_map.get("map_digest", 0)  # sent back: the rig checks it
+        self._last_seq, self._last_reply = -1, b""  # a repeated measurement: same answer
         self.m_index = {s["name"]: i for i, s in enumerate(signal_map["measurements"])}
         self.m_scale = [s["scale"] for s in signal_map["measurements"]]
         self.c_names = [s["name"] for s in signal_map["commands"]]
@@ -114,11 +116,15 @@ class ReferenceController:
         """The command telegram for a measurement telegram."""
         m = msgpack.unpackb(payload)
         seq, period_us, flags = m[1], m[3], m[4]
-        y = [b * sc for b, sc in zip(m[5:], self.m_scale, strict=True)]
+        if seq == self._last_seq:  # said again (the rig lost our answer): not a new period
+            return self._last_reply
+        y = [b * sc for b, sc in zip(m[6:], self.m_scale, strict=True)]
         out = self._out
         self.step(y, flags, period_us * 1e-6, out)
         wire = [round(v * k) for v, k in zip(out, self._c_inv_scale, strict=True)]
-        return msgpack.packb([self.version, seq, 0, 0, 0, *wire])
+        self._last_seq = seq
+        self._last_reply = msgpack.packb([self.version, seq, 0, 0, 0, self.map_digest, *wire])
+        return self._last_reply
 
     def _index_signals(self, cfg: ControllerConfig) -> None:
         """Positions of every value the control reads and writes (looked up once)."""

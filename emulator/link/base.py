@@ -37,6 +37,7 @@ class Link:
         self.stats = LinkStats()
         self._rx: deque[bytes] = deque()
         self._waiter: asyncio.Future | None = None
+        self._damaged = 0  # frames the framing dropped since take_damaged()
 
     async def open(self) -> None:
         """Acquire the transport's resources (socket, port)."""
@@ -54,9 +55,24 @@ class Link:
             self.stats.rx_overflow += 1
         self._rx.append(payload)
         self.stats.received += 1
+        self._wake()
+
+    def _note_damage(self, frames: int) -> None:
+        """The framing dropped frames (a serial line's COBS or CRC errors): a waiting
+        rig is woken, as by a telegram, so that lockstep can ask again at once."""
+        if frames:
+            self._damaged += frames
+            self._wake()
+
+    def _wake(self) -> None:
         waiter = self._waiter
         if waiter is not None and not waiter.done():
             waiter.set_result(True)
+
+    def take_damaged(self) -> int:
+        """Frames dropped for damage since the last call (0 on links without framing)."""
+        n, self._damaged = self._damaged, 0
+        return n
 
     def poll(self) -> None:
         """Read what the OS holds for us now, without waiting for the event loop.
@@ -82,12 +98,13 @@ class Link:
         return bool(self._rx)
 
     async def wait(self, timeout: float | None) -> bool:
-        """Wait until a telegram is waiting or timeout seconds pass; True if one is.
+        """Wait until a telegram is waiting, or damaged frames were dropped, or timeout
+        seconds pass; True unless the time ran out.
 
         A bare future and a timer handle: cheaper per frame than asyncio.wait_for,
         which wraps the wait in a task.
         """
-        if self._rx:
+        if self._rx or self._damaged:
             return True
         loop = asyncio.get_running_loop()
         waiter = self._waiter = loop.create_future()
@@ -98,7 +115,7 @@ class Link:
             if timer is not None:
                 timer.cancel()
             self._waiter = None
-        return bool(self._rx)
+        return bool(self._rx or self._damaged)
 
 
 def _expire(waiter: asyncio.Future) -> None:

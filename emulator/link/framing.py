@@ -54,6 +54,11 @@ class FramingStats:
     oversized: int = 0
     discarded_bytes: int = 0
 
+    @property
+    def dropped(self) -> int:
+        """Frames dropped for damage: COBS, CRC, too short, too long."""
+        return self.cobs_errors + self.crc_errors + self.runts + self.oversized
+
 
 class FrameDecoder:
     """Incremental, bounded decoder of the serial framing. Never raises on bad input.

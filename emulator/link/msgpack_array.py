@@ -25,9 +25,9 @@ import numpy as np
 
 #: room for a telegram of n values: array header, header fields and values at their
 #: longest (9 bytes each)
-def buffer_size(n_values: int) -> int:
-    """Bytes enough for any telegram of n_values numbers (after the 5 header fields)."""
-    return 5 + 9 * (n_values + 5)
+def buffer_size(n_values: int, n_header: int = 6) -> int:
+    """Bytes enough for any telegram of n_values numbers after n_header header fields."""
+    return 5 + 9 * (n_values + n_header)
 
 
 WIRE_LIMIT = 2.0**63  # a wire value's magnitude stays below this (int64)

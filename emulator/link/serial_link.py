@@ -55,8 +55,10 @@ class SerialLink(Link):
         except (serial.SerialException, OSError):
             self.stats.tx_errors += 1
             return
+        dropped = self._decoder.stats.dropped
         for payload in self._decoder.feed(data):
             self._deliver(payload)
+        self._note_damage(self._decoder.stats.dropped - dropped)
 
     def send(self, payload: bytes) -> None:
         if self._port is None:

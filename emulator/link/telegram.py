@@ -1,9 +1,9 @@
 """Telegram codec: msgpack arrays in the fixed order of the signal map.
 
-A telegram is ``[protocol_version, sequence, time_us, period_us, flags, v0, v1, ...]``;
-values in wire units (physical = wire x scale). Decoding validates everything and
-raises :class:`TelegramError` with a kind that the link counts; it never lets a
-non-finite or out-of-range value through.
+A telegram is ``[protocol_version, sequence, time_us, period_us, flags, map_digest, v0,
+v1, ...]`` (emulator/protocol/header.py); values in wire units (physical = wire x
+scale). Decoding validates everything and raises :class:`TelegramError` with a kind
+that the link counts; it never lets a non-finite or out-of-range value through.
 """
 
 from __future__ import annotations
@@ -18,10 +18,12 @@ import numpy as np
 
 from . import msgpack_array
 
-HEADER_LEN = 5
+#: header fields (emulator/protocol/header.py names them; the link knows only the count)
+HEADER_LEN = 6
 
-#: the kinds of rejection, counted per kind by the rig
-REJECT_KINDS = ("malformed", "version", "length", "type", "non_finite", "range")
+#: the kinds of rejection the codec tells, counted per kind by the rig
+REJECT_KINDS = ("malformed", "version", "map", "length", "type", "non_finite", "range",
+                "fractional")
 
 
 class TelegramError(ValueError):
@@ -40,6 +42,7 @@ class Telegram(NamedTuple):
     time_us: int
     period_us: int
     flags: int
+    map_digest: int
     values: np.ndarray
 
 
@@ -51,16 +54,24 @@ class TelegramCodec:
         send_scales: scale of each value sent (physical = wire x scale).
         recv_scales, recv_lo, recv_hi: scale and accepted physical range of each value
             received.
+        map_digest: the layout's digest, sent in every telegram; a received one must be
+            0 (not checked by the sender) or equal to it.
+        recv_whole: per value received, whether it must be a whole number (flags, enums,
+            counts); none by default.
     """
 
     def __init__(self, version: int, send_scales: np.ndarray, recv_scales: np.ndarray,
-                 recv_lo: np.ndarray, recv_hi: np.ndarray) -> None:
+                 recv_lo: np.ndarray, recv_hi: np.ndarray, *, map_digest: int = 0,
+                 recv_whole: np.ndarray | None = None) -> None:
         self.version = version
+        self.map_digest = map_digest
         self._inv_send = 1.0 / np.asarray(send_scales, dtype=float)
         self._recv_scales = np.asarray(recv_scales, dtype=float)
         self._lo = np.asarray(recv_lo, dtype=float)
         self._hi = np.asarray(recv_hi, dtype=float)
         self._n_recv = len(self._recv_scales)
+        self._whole = (np.zeros(self._n_recv, dtype=np.bool_) if recv_whole is None
+                       else np.asarray(recv_whole, dtype=np.bool_))
         # the compiled codec's buffers (msgpack_array.py): one telegram each way
         self._out = np.zeros(msgpack_array.buffer_size(len(self._inv_send)), dtype=np.uint8)
         self._header = np.zeros(HEADER_LEN, dtype=np.int64)
@@ -73,6 +84,7 @@ class TelegramCodec:
         the header: the bytes msgpack.packb gives for that list."""
         h = self._header
         h[0], h[1], h[2], h[3], h[4] = self.version, sequence, time_us, period_us, flags
+        h[5] = self.map_digest
         n = msgpack_array.pack(h, values, self._inv_send, self._out)
         if n < 0:
             raise ValueError(f"value {-1 - n} = {values[-1 - n]!r} cannot be sent (not "
@@ -84,19 +96,20 @@ class TelegramCodec:
         starts): an empty telegram read (refused) and the range check on scratch."""
         with contextlib.suppress(TelegramError):
             self.decode(b"")
-        _first_bad(np.zeros(1), np.zeros(1), np.ones(1))
+        _first_bad(np.zeros(1), np.zeros(1), np.ones(1), np.ones(1, dtype=np.bool_))
 
     def decode(self, payload: bytes) -> Telegram:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""
         values = np.empty(self._n_recv)
         head = self._got_header
         if msgpack_array.unpack(np.frombuffer(payload, dtype=np.uint8), head, values,
-                                self._scratch) == 0 and head[0] == self.version:
+                                self._scratch) == 0 and head[0] == self.version and (
+                                    head[5] == 0 or head[5] == self.map_digest):
             # the plain case, compiled; the ranges are checked as below
             values *= self._recv_scales
-            if _first_bad(values, self._lo, self._hi) < 0:
+            if _first_bad(values, self._lo, self._hi, self._whole) < 0:
                 return Telegram(int(head[0]), int(head[1]), int(head[2]), int(head[3]),
-                                int(head[4]), values)
+                                int(head[4]), int(head[5]), values)
         return self._decode_checked(payload)
 
     def _decode_checked(self, payload: bytes) -> Telegram:
@@ -112,13 +125,17 @@ class TelegramCodec:
             raise TelegramError("malformed", "a telegram is a msgpack array")
         if len(items) < HEADER_LEN:
             raise TelegramError("length", f"{len(items)} elements, header needs {HEADER_LEN}")
-        version, sequence, time_us, period_us, flags = items[:HEADER_LEN]
-        if (type(version) is not int or type(sequence) is not int or type(time_us) is not int
-                or type(period_us) is not int or type(flags) is not int):
+        header = items[:HEADER_LEN]
+        if any(type(field) is not int for field in header):
             raise TelegramError("type", "header elements must be integers")
+        version, sequence, time_us, period_us, flags, digest = header
         if version != self.version:
             raise TelegramError("version", f"protocol version {version}, expected "
                                 f"{self.version}")
+        if digest not in (0, self.map_digest):
+            raise TelegramError("map", f"map digest 0x{digest % 2**64:08X}, the rig's is "
+                                f"0x{self.map_digest:08X} (0: not checked): the controller "
+                                "was built for another signal map")
         body = items[HEADER_LEN:]
         if len(body) != self._n_recv:
             raise TelegramError("length", f"{len(body)} values, expected {self._n_recv}")
@@ -130,23 +147,30 @@ class TelegramCodec:
         except OverflowError:
             raise TelegramError("range", "integer out of range") from None
         values *= self._recv_scales
-        bad = _first_bad(values, self._lo, self._hi)
+        bad = _first_bad(values, self._lo, self._hi, self._whole)
         if bad >= 0:
             if not math.isfinite(values[bad]):
                 raise TelegramError("non_finite", f"value {bad} is NaN or infinite")
-            raise TelegramError("range", f"value {bad} = {values[bad]:g} outside "
-                                f"{self._lo[bad]:g}..{self._hi[bad]:g}")
-        return Telegram(version, sequence, time_us, period_us, flags, values)
+            if not self._lo[bad] <= values[bad] <= self._hi[bad]:
+                raise TelegramError("range", f"value {bad} = {values[bad]:g} outside "
+                                    f"{self._lo[bad]:g}..{self._hi[bad]:g}")
+            raise TelegramError("fractional", f"value {bad} = {values[bad]:g} is a flag, "
+                                "enum or count: whole numbers only")
+        return Telegram(version, sequence, time_us, period_us, flags, digest, values)
 
 
 _NUMBERS = (int, float)
 
 
 @nb.njit(cache=True)
-def _first_bad(values: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> int:
-    """Index of the first value outside [lo, hi] or not finite, or -1."""
+def _first_bad(values: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+               whole: np.ndarray) -> int:
+    """Index of the first value outside [lo, hi], not finite, or not whole where it
+    must be (whole[i]), or -1."""
     for i in range(values.shape[0]):
         v = values[i]
         if not (lo[i] <= v <= hi[i]):  # NaN compares false: caught here too
+            return i
+        if whole[i] and v != math.floor(v):
             return i
     return -1

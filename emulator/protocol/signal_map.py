@@ -13,24 +13,22 @@ import json
 from dataclasses import asdict, dataclass
 
 from emulator.plant.params import TrainsetParams
+from emulator.protocol.header import (  # noqa: F401 (re-exported: the map's users import them here)
+    CONTROLLER_FLAGS,
+    FLAG_BAD_TELEGRAM,
+    FLAG_COMMAND_HELD,
+    FLAG_FRAMING,
+    FLAG_OVERRUN,
+    FLAG_REPEAT,
+    FLAG_SEQUENCE,
+    FLAG_WATCHDOG,
+    HEADER,
+    PROTOCOL_VERSION,
+    RIG_FLAGS,
+)
 
-PROTOCOL_VERSION = 2  # 2: line side (supply, line converters, switchgear, chopper)
-HEADER = ("protocol_version", "sequence", "time_us", "period_us", "flags")
-
-# header flags, rig -> controller
-FLAG_WATCHDOG = 1 << 0  # the rig blocked the gates: no valid command for too long
-FLAG_COMMAND_HELD = 1 << 1  # no valid command for the last frame: the previous one was held
-FLAG_BAD_TELEGRAM = 1 << 2  # a telegram was rejected since the last measurement
-FLAG_SEQUENCE = 1 << 3  # a duplicate, stale or unexpected sequence number was seen
-FLAG_OVERRUN = 1 << 4  # the rig's last frame started late (realtime mode)
-
-FLAG_NAMES = {
-    FLAG_WATCHDOG: "watchdog: gates blocked by the rig",
-    FLAG_COMMAND_HELD: "command missing: previous command held",
-    FLAG_BAD_TELEGRAM: "a telegram was rejected",
-    FLAG_SEQUENCE: "sequence error (duplicate, stale or unexpected)",
-    FLAG_OVERRUN: "rig frame started late",
-}
+# the header, its flags and rules live in header.py; names kept here for the map's users
+FLAG_NAMES = {f.value: f.meaning for f in RIG_FLAGS}
 
 # train modes (train.mode)
 MODES = {0: "off", 1: "accelerate", 2: "cruise", 3: "coast", 4: "brake"}
@@ -80,7 +78,9 @@ class SignalMap:
         return {
             "protocol_version": self.version,
             "header": list(HEADER),
+            "map_digest": self.digest(),
             "flags": {str(bit): text for bit, text in FLAG_NAMES.items()},
+            "controller_flags": {str(f.value): f.meaning for f in CONTROLLER_FLAGS},
             "measurements": [asdict(s) for s in self.measurements],
             "commands": [asdict(s) for s in self.commands],
         }

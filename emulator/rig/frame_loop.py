@@ -9,8 +9,10 @@ the watchdog flag until valid commands resume; advance the plant to t_(k+1) with
 command held; sample y_(k+1).
 
 Modes: ``realtime`` (the rig's clock paces, deadlines t0 + k T), ``lockstep`` (every
-command telegram paces one frame, answered at once; a telegram may carry its own
-period), ``afap`` (no waiting: commands are taken if present).
+valid command telegram paces one frame, answered at once; a telegram may carry its own
+period; a bad one, or a damaged serial frame, gets the measurement again at once:
+emulator/protocol/header.py, LOCKSTEP_PACING), ``afap`` (no waiting: commands are taken
+if present).
 """
 
 from __future__ import annotations
@@ -29,15 +31,18 @@ from emulator.link import Link
 from emulator.link.telegram import TelegramCodec, TelegramError
 from emulator.plant import Plant
 from emulator.plant.params import TrainsetParams
-from emulator.protocol.signal_map import (
+from emulator.protocol.header import (
+    CFLAG_REPEAT_REQUEST,
     FLAG_BAD_TELEGRAM,
     FLAG_COMMAND_HELD,
+    FLAG_FRAMING,
     FLAG_OVERRUN,
+    FLAG_REPEAT,
     FLAG_SEQUENCE,
     FLAG_WATCHDOG,
     PROTOCOL_VERSION,
-    build_signal_map,
 )
+from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.clock import FrameStats, MonotonicClock
 from emulator.rig.sampling import CommandMapper, DriverDemand, MeasurementSampler
 
@@ -46,7 +51,9 @@ log = logging.getLogger(__name__)
 MODES = ("realtime", "lockstep", "afap")
 MIN_PERIOD_US, MAX_PERIOD_US = 100, 10_000  # 0.1 .. 10 ms
 START_LEAD_NS = 20_000_000  # first deadline after warm-up
-LOCKSTEP_REPEAT_S = 0.5  # lockstep: repeat the last measurement after this much silence
+#: lockstep: say the current measurement again after this many periods of silence
+LOCKSTEP_REPEAT_PERIODS = 20
+LOCKSTEP_REPEAT_MAX_S = 1.0  # while the silence lasts, the interval doubles up to this
 LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking on it
 #: real time: a missing command counts against the controller only if it had at least
 #: (delay - FAIR_SLACK) periods between our measurement and the frame that wanted the
@@ -71,12 +78,13 @@ class LinkHealth:
     sequence: Counter = field(default_factory=Counter)  # duplicate, late, unexpected
     expired: int = 0  # accepted answers whose frame passed before they were used
     reordered: int = 0  # accepted, but after a later-numbered one
+    repeat_requests: int = 0  # valid telegrams asking for the measurement again
 
     def as_dict(self) -> dict[str, Any]:
         """Plain dictionary, for reports and JSON."""
         return {"accepted": self.accepted, "valid": self.valid, "missing": self.missing,
                 "overrun_held": self.overrun_held, "expired": self.expired,
-                "reordered": self.reordered,
+                "reordered": self.reordered, "repeat_requests": self.repeat_requests,
                 "watchdog_trips": self.watchdog_trips, "rejected": dict(self.rejected),
                 "sequence": dict(self.sequence)}
 
@@ -87,7 +95,8 @@ class Rig:
     def __init__(self, params: TrainsetParams, link: Link, *, mode: str = "realtime",
                  period_s: float | None = None, command_delay: int = 1,
                  watchdog_frames: int = 10, seed: int = 0, clock=None,
-                 ideal_dc_links: bool = False) -> None:
+                 ideal_dc_links: bool = False,
+                 lockstep_repeat_s: float | None = None) -> None:
         if mode not in MODES:
             raise RigError(f"mode must be one of {', '.join(MODES)}, got {mode!r}")
         if command_delay not in (0, 1, 2, 3):
@@ -97,6 +106,13 @@ class Rig:
             raise RigError(f"period must be within 0.1..10 ms, got {period_s * 1e3:g} ms")
         if watchdog_frames < 1:
             raise RigError("watchdog must allow at least one missing frame")
+        if lockstep_repeat_s is None:
+            lockstep_repeat_s = LOCKSTEP_REPEAT_PERIODS * period_s
+        if not period_s <= lockstep_repeat_s <= LOCKSTEP_REPEAT_MAX_S:
+            raise RigError(f"lockstep repeat interval must be within one period and "
+                           f"{LOCKSTEP_REPEAT_MAX_S * 1e3:g} ms, got "
+                           f"{lockstep_repeat_s * 1e3:g} ms")
+        self.lockstep_repeat_s = lockstep_repeat_s
         self.params = params
         self.link = link
         self.mode = mode
@@ -110,7 +126,8 @@ class Rig:
         self.codec = TelegramCodec(
             PROTOCOL_VERSION, np.array([s.scale for s in sm.measurements]),
             np.array([s.scale for s in sm.commands]), np.array([s.lo for s in sm.commands]),
-            np.array([s.hi for s in sm.commands]))
+            np.array([s.hi for s in sm.commands]), map_digest=sm.digest(),
+            recv_whole=np.array([s.kind != "analog" for s in sm.commands]))
         self.seed = seed
         self.rng = np.random.default_rng(seed)
         self.driver = DriverDemand()
@@ -136,8 +153,10 @@ class Rig:
         self._last_used = -1
         self._started = False
         self._sent_frame = -1  # the frame whose measurement went out last
-        self._last_payload = b""
-        self.repeats = 0  # lockstep: measurements said again to a silent controller
+        self._sent_flags = 0  # the flags y_k went out with (a repeat carries them again)
+        self.repeats = 0  # lockstep: measurements said again (the causes: repeat_causes)
+        self.repeat_causes: Counter = Counter()  # silence, bad_telegram, framing, request
+        self._repeat_asked = False
         self._y = np.zeros(len(sm.measurements))
         self._sent_ns = np.zeros(8, dtype=np.int64)  # when y_k went out, by k mod 8
 
@@ -148,9 +167,21 @@ class Rig:
                                     self._y)
         self.link.send(payload)
         self._sent_ns[k % len(self._sent_ns)] = self.clock.now_ns()
-        self._last_payload = payload
+        self._sent_flags = flags
         self._sent_frame = k
         self._flags = 0
+
+    def _repeat_measurement(self, cause: str) -> None:
+        """Lockstep: y_k again, with the flags it went out with, what was seen since,
+        and the repeat bit (the board answers it with its last command for k)."""
+        flags = self._sent_flags | self._flags | FLAG_REPEAT
+        flags |= FLAG_WATCHDOG if self.tripped else 0
+        self.link.send(self.codec.encode(self._sent_frame, round(self.plant.time_s * 1e6),
+                                         self.period_us, flags, self._y))
+        self._sent_flags = flags & ~FLAG_REPEAT
+        self._flags = 0
+        self.repeats += 1
+        self.repeat_causes[cause] += 1
 
     def _receive(self, payloads: list[bytes]) -> None:
         """Decode telegrams; keep valid answers by the sequence number they answer."""
@@ -165,6 +196,10 @@ class Rig:
                 self.health.rejected[exc.kind] += 1
                 self._flags |= FLAG_BAD_TELEGRAM
                 continue
+            if tg.flags & CFLAG_REPEAT_REQUEST:  # its sequence and values are not read
+                self.health.repeat_requests += 1
+                self._repeat_asked = True
+                continue
             seq = tg.sequence
             if seq > k:
                 self._sequence_error("unexpected")  # answers a measurement never sent
@@ -178,8 +213,9 @@ class Rig:
                     self.health.reordered += 1
                 self._last_seq = max(self._last_seq, seq)
                 period = tg.period_us
-                if period and not MIN_PERIOD_US <= period <= MAX_PERIOD_US:
-                    self.health.rejected["range"] += 1
+                if period and not (MIN_PERIOD_US <= period <= MAX_PERIOD_US
+                                   if self.mode == "lockstep" else period == self.period_us):
+                    self.health.rejected["period"] += 1  # header.py, PERIOD_RULES
                     self._flags |= FLAG_BAD_TELEGRAM
                     continue
                 self._answers[seq] = (tg.values, period)
@@ -353,6 +389,9 @@ class Rig:
                     budget = (deadline + period_ns // 2 - clock.now_ns()) / 1e9
             self.link.poll()
             self._receive(self.link.take())
+            if self.link.take_damaged():
+                self._flags |= FLAG_FRAMING  # the command lost with it is held, as missing
+            self._repeat_asked = False  # real time: the next measurement is a period away
             self._take_command(k, start)
             self._step(self.period_us)
             self.stats.record(lateness, clock.now_ns() - start, period_ns)
@@ -360,31 +399,49 @@ class Rig:
                 await asyncio.sleep(0)  # let the loop serve I/O
 
     async def _run_lockstep(self, frames: int | None, stop: asyncio.Event | None) -> None:
-        """Each telegram received paces one frame: the controller is the clock."""
+        """Each valid command telegram paces one frame: the controller is the clock.
+
+        The rules a board sees are in emulator/protocol/header.py (LOCKSTEP_PACING): a
+        rejected telegram, a damaged serial frame or a repeat request gets y_k again at
+        once; silence gets it again after ``lockstep_repeat_s``, then at doubling
+        intervals (up to LOCKSTEP_REPEAT_MAX_S) while the silence lasts."""
         if self._sent_frame != self.frame:  # not when resuming a run already under way
             self._send_measurement(self.frame)
         self.stats.restart_cpu_window()
+        silence_s = self.lockstep_repeat_s
         while not self._done(frames, stop):
             # poll briefly before blocking: a sleeping process wakes late on some machines
             # (tens of us to ms on a VM), which would pace lockstep more than the work does
             spin_until = time.monotonic_ns() + LOCKSTEP_POLL_NS
             while not self.link.pending() and time.monotonic_ns() < spin_until:
                 self.link.poll()
-            if not self.link.pending() and not await self.link.wait(LOCKSTEP_REPEAT_S):
-                # the controller is silent (not started yet, or lost our telegram): plant
-                # time stands still; say the last measurement again
-                self.link.send(self._last_payload)
-                self.repeats += 1
+            if not self.link.pending() and not await self.link.wait(silence_s):
+                # the controller is silent (not started yet, or one of the telegrams was
+                # lost): plant time stands still; say the measurement again
+                self._repeat_measurement("silence")
+                silence_s = min(2 * silence_s, LOCKSTEP_REPEAT_MAX_S)
                 continue
+            silence_s = self.lockstep_repeat_s
+            paced = False
+            repeat = ""
             while not self._done(frames, stop):
                 payload = self.link.take_one()
                 if payload is None:
                     break
                 k = self.frame
-                rejected = sum(self.health.rejected.values())
+                rejected = self.health.rejected.total()
+                dropped_by_fault = self.health.rejected["fault_dropped"]
                 self._receive([payload])
-                if k not in self._answers and sum(self.health.rejected.values()) == rejected:
-                    continue  # a duplicate or stale telegram does not pace a frame
+                if self._repeat_asked:
+                    self._repeat_asked, repeat = False, "request"
+                    continue
+                injected_loss = self.health.rejected["fault_dropped"] != dropped_by_fault
+                if k not in self._answers and not injected_loss:  # (an injected loss runs
+                    # the frame on the held command, as a lost command does in real time)
+                    if self.health.rejected.total() != rejected:
+                        repeat = "bad_telegram"
+                    continue  # a rejected, duplicate or stale telegram paces nothing
+                repeat = ""
                 if (self.monitor is not None and not self.monitor.may_run()
                         and not await self.monitor.hold(stop)):
                     break  # stopped while paused (the controller waits for y_k meanwhile)
@@ -392,10 +449,19 @@ class Rig:
                 period = self._take_command(k) or self.period_us
                 self._step(period)
                 self._send_measurement(self.frame)
+                paced = True
                 self.stats.record(0, self.clock.now_ns() - start, period * 1000)
                 if self.monitor is not None and self.frame % self.monitor.every == 0:
                     await asyncio.sleep(0)  # an in-process controller never waits: let
                     # the monitor's socket and snapshot in
+            if self.link.take_damaged():
+                self._flags |= FLAG_FRAMING
+                if not paced:  # the answer to y_k was in it: ask again, now
+                    repeat = repeat or "framing"
+            if repeat and not self._done(frames, stop):
+                self._repeat_measurement(repeat)
+                await asyncio.sleep(0)  # a controller that answers every repeat at once
+                # with a bad telegram must not starve the loop (stop, monitor, I/O)
 
     def report(self) -> dict[str, Any]:
         """Counters and timing of the run so far."""
@@ -403,6 +469,7 @@ class Rig:
                 "period_us": self.period_us, "command_delay": self.delay,
                 "watchdog_tripped": self.tripped, "link": self.health.as_dict(),
                 "lockstep_repeats": self.repeats,
+                "lockstep_repeat_causes": dict(self.repeat_causes),
                 "transport": {"sent": self.link.stats.sent,
                               "received": self.link.stats.received,
                               "tx_errors": self.link.stats.tx_errors,

@@ -1,7 +1,7 @@
 /* Test harness of the board kit's codec: one request a line on stdin, one answer a line
  * on stdout, so that a Python test can feed it thousands of cases through one process.
  *
- *   dec N HEX       decode a telegram of 5 + N integers -> "ok h0..h4 v0.." | "err CODE"
+ *   dec N HEX       decode a telegram of 6 + N integers -> "ok h0..h5 v0.." | "err CODE"
  *   enc X0 X1 ...   encode integers (header first) -> "ok HEX" | "err CODE"
  *   cobs HEX | uncobs HEX | frame HEX | unframe HEX -> "ok HEX" | "err CODE"
  *   crc HEX         -> "ok DECIMAL"
@@ -110,19 +110,19 @@ int main(void)
         }
         if (strcmp(cmd, "enc") == 0) {
             rr_header h;
-            int64_t head[5];
+            int64_t head[RR_TELEGRAM_HEADER_LEN];
             size_t count = 0;
-            while (arg != NULL && count < 5 + 4096) {
+            while (arg != NULL && count < RR_TELEGRAM_HEADER_LEN + 4096) {
                 int64_t x = strtoll(arg, NULL, 10);
-                if (count < 5) {
+                if (count < RR_TELEGRAM_HEADER_LEN) {
                     head[count] = x;
                 } else {
-                    values[count - 5] = x;
+                    values[count - RR_TELEGRAM_HEADER_LEN] = x;
                 }
                 count++;
                 arg = strtok(NULL, " \n");
             }
-            if (count < 5) {
+            if (count < RR_TELEGRAM_HEADER_LEN) {
                 puts("err bad-request");
                 continue;
             }
@@ -131,13 +131,15 @@ int main(void)
             h.time_us = head[2];
             h.period_us = head[3];
             h.flags = head[4];
+            h.map_digest = head[5];
             {
-                size_t cap = arg_cap >= 0 ? (size_t)arg_cap : rr_telegram_max_size(count - 5);
+                size_t cap = arg_cap >= 0 ? (size_t)arg_cap : rr_telegram_max_size(count - RR_TELEGRAM_HEADER_LEN);
                 uint8_t *dst = malloc(cap > 0 ? cap : 1u);
                 if (dst == NULL) {
                     abort();
                 }
-                answer_bytes(dst, rr_encode_telegram(dst, cap, &h, values, count - 5));
+                answer_bytes(dst, rr_encode_telegram(dst, cap, &h, values,
+                                                    count - RR_TELEGRAM_HEADER_LEN));
                 free(dst);
             }
         } else if (strcmp(cmd, "dec") == 0) {
@@ -159,9 +161,9 @@ int main(void)
                 printf("err %d\n", rc);
                 continue;
             }
-            printf("ok %lld %lld %lld %lld %lld", (long long)h.protocol_version,
+            printf("ok %lld %lld %lld %lld %lld %lld", (long long)h.protocol_version,
                    (long long)h.sequence, (long long)h.time_us, (long long)h.period_us,
-                   (long long)h.flags);
+                   (long long)h.flags, (long long)h.map_digest);
             for (i = 0; i < want; i++) {
                 printf(" %lld", (long long)values[i]);
             }

@@ -1,25 +1,46 @@
 """The protocol as written for board developers agrees with the code: the README's
-version and flag table, and the generated header's every index, scale and range, read
-back from the text a board compiles."""
+rules block (header, flags both ways, rejections, period rules, lockstep pacing) is what
+the code writes, and the generated header's every index, scale and range, read back
+from the text a board compiles, is the rig's map."""
 
 from __future__ import annotations
 
 import re
 from pathlib import Path
 
+from emulator.link.telegram import HEADER_LEN, REJECT_KINDS
+from emulator.protocol.header import CONTROLLER_FLAGS, HEADER, REJECTS
+from emulator.protocol.reference_text import BEGIN, END, protocol_rules_markdown
 from emulator.protocol.signal_map import FLAG_NAMES, PROTOCOL_VERSION, build_signal_map
 from tests.boardkit.conftest import PROFILES
 
 README = Path(__file__).parents[2] / "README.md"
 
 
-def test_readme_states_the_version_and_the_flags_the_rig_uses() -> None:
+def test_readme_protocol_rules_are_the_ones_the_code_writes() -> None:
+    # the block between the markers is railrig protocol --readme's output, verbatim
     text = README.read_text(encoding="utf-8")
+    assert text.count(BEGIN) == 1 and text.count(END) == 1, "the README's markers are gone"
+    block = text[text.index(BEGIN):text.index(END) + len(END)] + "\n"
+    assert block == protocol_rules_markdown(), (
+        "README and code disagree: paste `railrig protocol --readme` between the markers")
     assert re.findall(r"`protocol_version` is (\d+)", text) == [str(PROTOCOL_VERSION)]
-    rows = re.findall(r"^\| (\d+) \((\d+)\) \|", text, flags=re.MULTILINE)
-    assert rows, "the README's flag table is gone"
-    assert {int(value) for _, value in rows} == set(FLAG_NAMES)
+    rows = re.findall(r"^\| (\d+) \((\d+)\) \|", block, flags=re.MULTILINE)
+    assert {int(value) for _, value in rows} == (set(FLAG_NAMES)
+                                                 | {f.value for f in CONTROLLER_FLAGS})
     assert all(int(value) == 1 << int(bit) for bit, value in rows)
+
+
+def test_every_rejection_the_rig_counts_is_written() -> None:
+    # the codec's kinds and the rig's own ("period": tests/link/test_protocol_rules.py),
+    # each with its reason in REJECTS; the link layer's header length is the protocol's
+    assert set(REJECT_KINDS) | {"period"} == set(REJECTS)
+    assert len(HEADER) == HEADER_LEN
+
+
+def test_the_codec_and_the_map_agree_on_the_header(kit_dir) -> None:
+    codec_h = (kit_dir / "railrig_codec.h").read_text(encoding="utf-8")
+    assert f"#define RR_TELEGRAM_HEADER_LEN {len(HEADER)}" in codec_h
 
 
 def test_header_is_the_map(kit_dir) -> None:

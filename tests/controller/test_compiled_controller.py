@@ -92,18 +92,19 @@ def test_a_malformed_telegram_is_refused_before_the_compiled_period() -> None:
     signal_map = build_signal_map(params).as_dict()
     tcu = CompiledController(config_from_profile(path), signal_map)
     n = len(signal_map["measurements"])
-    good = [2, 0, 0, 1000, 0, *([0] * n)]
+    v = signal_map["protocol_version"]
+    good = [v, 0, 0, 1000, 0, 0, *([0] * n)]
     tcu.answer(msgpack.packb(good))
     compiled_for = len(period_kernel.period.signatures)
     bad = [
-        [2, 1, 0, 1000, 1.5, *([0] * n)], [2, 1, 0, 1000, True, *([0] * n)],
-        [2, 1, 0, 1000, None, *([0] * n)], [2, "1", 0, 1000, 0, *([0] * n)],
-        [2, 1, 0, "1000", 0, *([0] * n)], [2, 1, 0, 1000, 0, *([0] * (n - 1))],
-        [2, 1, 0, 1000, 0, *([0] * (n + 1))], [2, 1, 0, 1000, 0, None, *([0] * (n - 1))],
-        [2, 1, 0, 1000, 0, "3", *([0] * (n - 1))],
-        [2, 1, 0, 1000, 0, math.nan, *([0] * (n - 1))],
-        [2, 1, 0, 1000, 0, math.inf, *([0] * (n - 1))],
-        [2, 1, 0, 2**64 - 1, 0, *([0] * n)],  # a period past int64
+        [v, 1, 0, 1000, 1.5, 0, *([0] * n)], [v, 1, 0, 1000, True, 0, *([0] * n)],
+        [v, 1, 0, 1000, None, 0, *([0] * n)], [v, "1", 0, 1000, 0, 0, *([0] * n)],
+        [v, 1, 0, "1000", 0, 0, *([0] * n)], [v, 1, 0, 1000, 0, 0, *([0] * (n - 1))],
+        [v, 1, 0, 1000, 0, 0, *([0] * (n + 1))], [v, 1, 0, 1000, 0, 0, None, *([0] * (n - 1))],
+        [v, 1, 0, 1000, 0, 0, "3", *([0] * (n - 1))],
+        [v, 1, 0, 1000, 0, 0, math.nan, *([0] * (n - 1))],
+        [v, 1, 0, 1000, 0, 0, math.inf, *([0] * (n - 1))],
+        [v, 1, 0, 2**64 - 1, 0, 0, *([0] * n)],  # a period past int64
     ]
     for telegram in bad:
         with pytest.raises((TypeError, ValueError)):
@@ -111,4 +112,5 @@ def test_a_malformed_telegram_is_refused_before_the_compiled_period() -> None:
     with pytest.raises((TypeError, ValueError)):
         tcu.answer(msgpack.packb({"a": 1}))
     assert len(period_kernel.period.signatures) == compiled_for
-    assert msgpack.unpackb(tcu.answer(msgpack.packb(good)))[:2] == [2, 0]  # still answers
+    good[1] = 2  # a new measurement (the same sequence again gets the same answer)
+    assert msgpack.unpackb(tcu.answer(msgpack.packb(good)))[:2] == [v, 2]  # still answers

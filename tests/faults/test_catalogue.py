@@ -10,6 +10,7 @@ import pytest
 
 from emulator.faults import CATALOGUE, FaultError, FaultSet
 from emulator.plant import layout as L  # noqa: N812
+from emulator.protocol.header import HEADER
 from tests.link.conftest import command, make_rig, run
 
 
@@ -30,7 +31,8 @@ def rig_with_faults(params, **kw):
 
 def measured(rig, ctl, name: str, k: int = -1) -> float:
     i = rig.signal_map.index("measurement", name)
-    return msgpack.unpackb(ctl.received[k])[5 + i] * rig.signal_map.measurements[i].scale
+    wire = msgpack.unpackb(ctl.received[k])[len(HEADER) + i]
+    return wire * rig.signal_map.measurements[i].scale
 
 
 @pytest.mark.parametrize(("args", "words"), [

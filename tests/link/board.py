@@ -51,10 +51,10 @@ class OpenLoopBoard:
 
     def answer(self, payload: bytes) -> bytes:
         m = msgpack.unpackb(payload)
-        version, seq, _time_us, period_us, flags = m[:5]
+        version, seq, _time_us, period_us, flags, _digest = m[:6]
         assert version == self.version
         self.flags_seen |= flags
-        body = m[5:]
+        body = m[6:]
         period = period_us / 1e6
         counts = [body[i] for i in self.encoders]
         if self.prev_counts is not None:  # speed from count differences, wrap-safe
@@ -85,7 +85,7 @@ class OpenLoopBoard:
         named = zip(self.cmds, self.scale_c, strict=True)
         wire = [round(values.get(n, 0.0) / s) for n, s in named]
         self.answered += 1
-        return msgpack.packb([self.version, seq, 0, 0, 0, *wire])
+        return msgpack.packb([self.version, seq, 0, 0, 0, 0, *wire])
 
 
 def frame(payload: bytes) -> bytes:

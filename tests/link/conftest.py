@@ -46,7 +46,7 @@ def command(rig: Rig, seq: int, duty: float = 0.5, gates: int = 1, **over) -> by
         else:
             v = 0.0
         values.append(round(over.get(s.name, v) / s.scale))
-    return msgpack.packb([rig.signal_map.version, seq, 0, 0, 0, *values])
+    return msgpack.packb([rig.signal_map.version, seq, 0, 0, 0, 0, *values])
 
 
 async def make_rig(params, answer, *, mode: str = "afap", **kw) -> tuple[Rig, SyncController]:

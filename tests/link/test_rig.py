@@ -7,11 +7,13 @@ import numpy as np
 import pytest
 
 from emulator.link.loop import Manipulator
+from emulator.protocol.header import HEADER
 from emulator.protocol.signal_map import (
     FLAG_BAD_TELEGRAM,
     FLAG_COMMAND_HELD,
     FLAG_OVERRUN,
     FLAG_WATCHDOG,
+    PROTOCOL_VERSION,
 )
 
 from .conftest import command, make_rig, run
@@ -54,10 +56,10 @@ def test_command_acts_after_the_stated_delay(params, delay: int) -> None:
 @pytest.mark.parametrize(("telegram", "kind"), [
     (b"\xc1", "malformed"),
     (msgpack.packb({"a": 1}), "malformed"),
-    (msgpack.packb([99, 0, 0, 0, 0]), "version"),
-    (msgpack.packb([2, 0, 0, 0]), "length"),
-    (msgpack.packb([2, 0, 0, 0, 0, 1, 2]), "length"),
-    (msgpack.packb([2, "0", 0, 0, 0]), "type"),
+    (msgpack.packb([99, 0, 0, 0, 0, 0]), "version"),
+    (msgpack.packb([PROTOCOL_VERSION, 0, 0, 0, 0]), "length"),
+    (msgpack.packb([PROTOCOL_VERSION, 0, 0, 0, 0, 0, 1, 2]), "length"),
+    (msgpack.packb([PROTOCOL_VERSION, "0", 0, 0, 0, 0]), "type"),
 ])
 def test_bad_telegrams_are_counted_by_kind(params, telegram: bytes, kind: str) -> None:
     async def go():
@@ -78,7 +80,7 @@ def test_bad_telegrams_are_counted_by_kind(params, telegram: bytes, kind: str) -
 def test_bad_values_are_rejected(params, value, kind: str) -> None:
     def answer(rig, m):
         tg = msgpack.unpackb(command(rig, m[1]))
-        tg[5 + rig.signal_map.index("command", "INV-A1.duty_c")] = value
+        tg[len(HEADER) + rig.signal_map.index("command", "INV-A1.duty_c")] = value
         return msgpack.packb(tg)
 
     async def go():
@@ -149,7 +151,8 @@ def test_lossy_link_holds_commands_without_tripping(params) -> None:
 
 def _measurements(params, seed: int) -> list[bytes]:
     def answer(rig, m):
-        speed = m[5 + rig.signal_map.index("measurement", "INV-A1.m1.speed_rad_s")]
+        i = rig.signal_map.index("measurement", "INV-A1.m1.speed_rad_s")
+        speed = m[len(HEADER) + i]
         theta = (m[1] * 0.01 + speed * 1e-5) % 6.28
         return command(rig, m[1], duty=0.5 + 0.4 * np.cos(theta), gates=1)
 

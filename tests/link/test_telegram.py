@@ -13,13 +13,16 @@ from emulator.link.telegram import REJECT_KINDS, TelegramCodec, TelegramError
 SCALES = np.array([1e-4, 1e-4, 1.0, 0.1])
 LO = np.array([0.0, 0.0, 0.0, -1000.0])
 HI = np.array([1.0, 1.0, 1.0, 1000.0])
-CODEC = TelegramCodec(1, SCALES, SCALES, LO, HI)
+WHOLE = np.array([False, False, True, False])  # the third is a flag
+DIGEST = 0x1234ABCD
+CODEC = TelegramCodec(1, SCALES, SCALES, LO, HI, map_digest=DIGEST, recv_whole=WHOLE)
 
 
 def test_round_trip_in_wire_units() -> None:
     values = np.array([0.25, 0.7501, 1.0, -12.3])
     tg = CODEC.decode(CODEC.encode(42, 1000, 1000, 3, values))
     assert (tg.sequence, tg.time_us, tg.period_us, tg.flags) == (42, 1000, 1000, 3)
+    assert tg.map_digest == DIGEST
     assert tg.values == pytest.approx(values, abs=1e-12)
 
 
@@ -29,7 +32,7 @@ def test_a_value_that_is_not_finite_is_not_sent() -> None:
 
 
 def test_floats_and_ints_are_both_wire_units() -> None:
-    tg = CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, 5000, 5000.0, 1, -123]))
+    tg = CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, 0, 5000, 5000.0, 1, -123]))
     assert tg.values == pytest.approx([0.5, 0.5, 1.0, -12.3])
 
 
@@ -57,5 +60,30 @@ def test_random_arrays_are_accepted_only_when_valid(items) -> None:
 
 def test_booleans_are_not_numbers() -> None:
     with pytest.raises(TelegramError) as err:
-        CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, True, 0, 0, 0]))
+        CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, 0, True, 0, 0, 0]))
     assert err.value.kind == "type"
+
+
+@pytest.mark.parametrize("digest", [0, DIGEST])
+def test_a_map_digest_of_zero_or_our_own_is_accepted(digest: int) -> None:
+    tg = CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, digest, 0, 0, 1, 0]))
+    assert tg.map_digest == digest
+
+
+@pytest.mark.parametrize("digest", [1, DIGEST + 1, 2**32 - 1, -DIGEST])
+def test_another_map_digest_is_rejected(digest: int) -> None:
+    with pytest.raises(TelegramError, match="another signal map") as err:
+        CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, digest, 0, 0, 1, 0]))
+    assert err.value.kind == "map"
+
+
+@pytest.mark.parametrize("flag", [0.5, 0.999, 1e-9])
+def test_a_fractional_flag_is_rejected(flag: float) -> None:
+    # the rig's map marks flags, enums and counts whole: 0.5 "closed" means nothing
+    with pytest.raises(TelegramError, match="whole numbers only") as err:
+        CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, 0, 0, 0, flag, 0]))
+    assert err.value.kind == "fractional"
+
+
+def test_a_whole_flag_sent_as_a_float_is_accepted() -> None:
+    assert CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, 0, 0, 0, 1.0, 0])).values[2] == 1.0

@@ -134,9 +134,11 @@ def test_fuzzed_datagrams_from_another_process_are_counted(params, data) -> None
     # arrays of any length
     sm = build_signal_map(params)
     n = len(sm.commands)
+    digest = st.one_of(st.just(0), st.just(sm.digest()), st.integers(0, 2**32))
     telegram = st.tuples(st.integers(0, 2**32), st.integers(0, 2**32), st.integers(0, 20_000),
-                         st.integers(0, 255), st.lists(HOSTILE_VALUE, min_size=n, max_size=n))
-    well_formed = telegram.map(lambda t: msgpack.packb([sm.version, *t[:4], *t[4]]))
+                         st.integers(0, 255), digest,
+                         st.lists(HOSTILE_VALUE, min_size=n, max_size=n))
+    well_formed = telegram.map(lambda t: msgpack.packb([sm.version, *t[:5], *t[5]]))
     other = st.one_of(st.binary(min_size=1, max_size=120),
                       st.lists(HOSTILE_VALUE, max_size=30).map(msgpack.packb))
     tagged = st.one_of(well_formed.map(lambda d: (True, d)), other.map(lambda d: (False, d)))
@@ -156,7 +158,7 @@ def test_a_well_formed_telegram_with_a_nan_is_rejected_by_its_value(params) -> N
     sm = build_signal_map(params)
     values = [0] * len(sm.commands)
     values[sm.index("command", "INV-A1.duty_a")] = float("nan")
-    good_header = [sm.version, 0, 0, 0, 0]
+    good_header = [sm.version, 0, 0, 0, 0, 0]
     rig = asyncio.run(_rig_receiving(params, [msgpack.packb(good_header + values)],
                                      from_peer=True))
     assert dict(rig.health.rejected) == {"non_finite": 1}
@@ -164,7 +166,7 @@ def test_a_well_formed_telegram_with_a_nan_is_rejected_by_its_value(params) -> N
 
 def test_oversized_datagrams_are_counted_not_fatal(params) -> None:
     sm = build_signal_map(params)
-    huge = msgpack.packb([sm.version, 0, 0, 0, 0, *([0.5] * 4000)])  # ~36 kB, far too long
+    huge = msgpack.packb([sm.version, 0, 0, 0, 0, 0, *([0.5] * 4000)])  # ~36 kB, far too long
     rig = asyncio.run(_rig_receiving(params, [huge, b"\x00" * 60_000], from_peer=True))
     assert rig.link.stats.received == 2
     assert sum(rig.health.rejected.values()) == 2 and rig.health.accepted == 0

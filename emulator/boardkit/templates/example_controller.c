@@ -12,9 +12,15 @@
  *   options: --slip-hz F (default 1.5), --current-limit-a A (phase peak, default 60 %
  *            of the gate drivers' trip), --quiet
  *
+ * A measurement the rig sends again (the same sequence, flag RR_FLAG_REPEAT: our answer
+ * was lost or damaged) gets the same answer again, without running the control a second
+ * time. On a serial line, a frame from the rig that fails COBS or the CRC gets a repeat
+ * request (RR_CFLAG_REPEAT_REQUEST) at once, so lockstep goes on after one round trip.
+ *
  * Exits 0 after N answered frames; 1 when the rig stays silent (120 s before its first
- * telegram: its first start after install compiles for tens of seconds; 10 s later) or a telegram
- * cannot be read; 2 on bad arguments or a map mismatch (version).
+ * telegram: its first start after install compiles for tens of seconds; 10 s later) or a
+ * telegram cannot be read; 2 on bad arguments or a map mismatch (protocol version or map
+ * digest: the kit was generated for another trainset profile).
  *
  * Safety: run it against the rig only; never on hardware wired to a real power stage.
  */
@@ -56,8 +62,14 @@ typedef struct {
     double current_limit_a;   /* phase peak */
     uint16_t last_count[RR_N_MOTORS];
     int have_counts;
-    unsigned long answered, flagged;
+    unsigned long answered, flagged, repeated, repeat_requests;
+    int64_t last_sequence;         /* the measurement answered last (-1: none yet) */
+    uint8_t last_reply[4096];      /* and the answer, for a measurement said again */
+    size_t last_reply_len;
 } controller;
+
+/* the kit's codec and its map must agree on the header (a C99 compile-time check) */
+typedef char rr_header_len_check[RR_HEADER_LEN == RR_TELEGRAM_HEADER_LEN ? 1 : -1];
 
 static const double Y_SCALE[RR_N_MEASUREMENTS] = RR_Y_SCALES;
 static int64_t y_wire[RR_N_MEASUREMENTS]; /* the last measurement, wire units */
@@ -243,6 +255,18 @@ static int answer(controller *c, const uint8_t *in, size_t len, uint8_t *out, si
                 RR_PROTOCOL_VERSION);
         return -2;
     }
+    if (h.map_digest != (int64_t)RR_MAP_DIGEST) {
+        fprintf(stderr, "example_controller: the rig's signal map has digest 0x%08llX, this "
+                "kit's is 0x%08lX: generate the kit again from the rig's trainset profile\n",
+                (unsigned long long)h.map_digest, (unsigned long)RR_MAP_DIGEST);
+        return -2;
+    }
+    if (h.sequence == c->last_sequence && c->last_reply_len <= cap) {
+        /* said again: our answer was lost. The same answer; the control ran already */
+        c->repeated++;
+        memcpy(out, c->last_reply, c->last_reply_len);
+        return (int)c->last_reply_len;
+    }
     for (i = 0; i < RR_N_MEASUREMENTS; i++) {
         y[i] = (double)y_wire[i] * Y_SCALE[i];
     }
@@ -263,12 +287,35 @@ static int answer(controller *c, const uint8_t *in, size_t len, uint8_t *out, si
     reply.time_us = 0;
     reply.period_us = 0;
     reply.flags = 0;
+    reply.map_digest = RR_MAP_DIGEST; /* the rig refuses commands built for another map */
     c->answered++;
     if (verbose && c->answered % 1000 == 0) {
         printf("frame %lld: %s, speed %.1f rad/s, slip %.2f Hz\n", (long long)h.sequence,
                STATE_NAMES[c->state], c->speed_rad_s, c->slip_hz);
     }
-    return rr_encode_telegram(out, cap, &reply, u_wire, RR_N_COMMANDS);
+    rc = rr_encode_telegram(out, cap, &reply, u_wire, RR_N_COMMANDS);
+    if (rc > 0 && (size_t)rc <= sizeof c->last_reply) {
+        memcpy(c->last_reply, out, (size_t)rc);
+        c->last_reply_len = (size_t)rc;
+        c->last_sequence = h.sequence;
+    }
+    return rc;
+}
+
+/* A repeat request: the last answer with the request bit (its values are not applied,
+ * but they must be valid). Returns its length, or 0 before the first answer. */
+static int repeat_request(controller *c, uint8_t *out, size_t cap)
+{
+    rr_header h;
+    int64_t u_wire[RR_N_COMMANDS];
+    if (c->last_reply_len == 0
+        || rr_decode_telegram(c->last_reply, c->last_reply_len, &h, u_wire, RR_N_COMMANDS)
+               != RR_OK) {
+        return 0;
+    }
+    h.flags = RR_CFLAG_REPEAT_REQUEST;
+    c->repeat_requests++;
+    return rr_encode_telegram(out, cap, &h, u_wire, RR_N_COMMANDS);
 }
 
 /* ---- transports ---- */
@@ -443,7 +490,18 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
         }
         for (i = 0; i < got; i++) {
             int n, m;
+            unsigned long damaged = (unsigned long)(rx.crc_errors + rx.cobs_errors);
             if (!rr_rx_push(&rx, chunk[i])) {
+                if ((unsigned long)(rx.crc_errors + rx.cobs_errors) != damaged) {
+                    /* a damaged frame from the rig: ask for the measurement again */
+                    n = repeat_request(c, out, sizeof out);
+                    m = n > 0 ? rr_frame_encode(out, (size_t)n, framed, sizeof framed) : 0;
+                    if (m > 0 && write_all(fd, framed, (size_t)m) != 0) {
+                        perror("example_controller: write");
+                        close(fd);
+                        return 1;
+                    }
+                }
                 continue;
             }
             n = answer(c, rx.payload, rx.length, out, sizeof out, verbose);
@@ -488,6 +546,7 @@ int main(int argc, char **argv)
     controller c;
     memset(&c, 0, sizeof c);
     c.state = OFF;
+    c.last_sequence = -1;
     c.slip_set_hz = 1.5;
     c.v_scale = 1.0;
     c.current_limit_a = 0.6 * RR_INVERTER_TRIP_A;
@@ -532,7 +591,8 @@ int main(int argc, char **argv)
     c.slip_hz = 0.0;
     rc = device != NULL ? run_serial(&c, device, baud, frames, verbose)
                         : run_udp(&c, bind_spec, rig_spec, frames, verbose);
-    printf("answered %lu frames, state %s, speed %.2f rad/s, watchdog flags seen %lu\n",
-           c.answered, STATE_NAMES[c.state], c.speed_rad_s, c.flagged);
+    printf("answered %lu frames, state %s, speed %.2f rad/s, watchdog flags seen %lu, "
+           "repeats answered %lu, repeat requests %lu\n", c.answered, STATE_NAMES[c.state],
+           c.speed_rad_s, c.flagged, c.repeated, c.repeat_requests);
     return rc;
 }

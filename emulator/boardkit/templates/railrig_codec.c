@@ -85,7 +85,7 @@ int rr_decode_telegram(const uint8_t *buf, size_t len, rr_header *head, int64_t 
     size_t pos = 0, count, i;
     uint64_t v;
     uint8_t tag;
-    int64_t header[5];
+    int64_t header[RR_TELEGRAM_HEADER_LEN];
     int rc;
     if (len == 0) {
         return RR_E_SHORT;
@@ -105,7 +105,7 @@ int rr_decode_telegram(const uint8_t *buf, size_t len, rr_header *head, int64_t 
     } else {
         return RR_E_FORMAT;
     }
-    if (count < 5 || count - 5 != n_values) {
+    if (count < RR_TELEGRAM_HEADER_LEN || count - RR_TELEGRAM_HEADER_LEN != n_values) {
         return RR_E_LENGTH;
     }
     for (i = 0; i < count; i++) {
@@ -114,10 +114,10 @@ int rr_decode_telegram(const uint8_t *buf, size_t len, rr_header *head, int64_t 
         if (rc != RR_OK) {
             return rc;
         }
-        if (i < 5) {
+        if (i < RR_TELEGRAM_HEADER_LEN) {
             header[i] = x;
         } else {
-            values[i - 5] = x;
+            values[i - RR_TELEGRAM_HEADER_LEN] = x;
         }
     }
     if (pos != len) {
@@ -128,6 +128,7 @@ int rr_decode_telegram(const uint8_t *buf, size_t len, rr_header *head, int64_t 
     head->time_us = header[2];
     head->period_us = header[3];
     head->flags = header[4];
+    head->map_digest = header[5];
     return RR_OK;
 }
 
@@ -181,15 +182,15 @@ static int write_int(uint8_t *out, size_t cap, size_t *pos, int64_t x)
 
 size_t rr_telegram_max_size(size_t n_values)
 {
-    return 5u + 9u * (5u + n_values);
+    return 5u + 9u * (RR_TELEGRAM_HEADER_LEN + n_values);
 }
 
 int rr_encode_telegram(uint8_t *out, size_t cap, const rr_header *head,
                        const int64_t *values, size_t n_values)
 {
-    size_t pos = 0, count = 5 + n_values, i;
+    size_t pos = 0, count = RR_TELEGRAM_HEADER_LEN + n_values, i;
     int rc;
-    int64_t header[5];
+    int64_t header[RR_TELEGRAM_HEADER_LEN];
     if (count <= 15) {
         rc = put(out, cap, &pos, (uint8_t)(0x90u | count), 0, 0);
     } else if (count <= 0xffff) {
@@ -205,8 +206,10 @@ int rr_encode_telegram(uint8_t *out, size_t cap, const rr_header *head,
     header[2] = head->time_us;
     header[3] = head->period_us;
     header[4] = head->flags;
+    header[5] = head->map_digest;
     for (i = 0; i < count; i++) {
-        rc = write_int(out, cap, &pos, i < 5 ? header[i] : values[i - 5]);
+        rc = write_int(out, cap, &pos, i < RR_TELEGRAM_HEADER_LEN
+                                            ? header[i] : values[i - RR_TELEGRAM_HEADER_LEN]);
         if (rc != RR_OK) {
             return rc;
         }

@@ -25,17 +25,22 @@
 #define RR_E_COBS (-7)     /* not a valid COBS block */
 #define RR_E_CRC (-8)      /* the CRC does not match (or the frame is too short for one) */
 
-/* The five header fields of every telegram, integers on the wire. */
+/* The six header fields of every telegram, integers on the wire (the order is
+ * railrig_map.h's RR_H_*). */
+#define RR_TELEGRAM_HEADER_LEN 6
 typedef struct {
     int64_t protocol_version;
     int64_t sequence;   /* rig -> board: frame number k; board -> rig: the k answered */
     int64_t time_us;    /* rig -> board: plant time t_k in us; board -> rig: free use */
     int64_t period_us;  /* rig -> board: the frame length; board -> rig: 0 or (lockstep)
                            the length of the frame this command drives */
-    int64_t flags;      /* rig -> board: status bits RR_FLAG_*; board -> rig: free use */
+    int64_t flags;      /* rig -> board: status bits RR_FLAG_*; board -> rig: request
+                           bits RR_CFLAG_* (others 0) */
+    int64_t map_digest; /* rig -> board: RR_MAP_DIGEST of the rig's map; board -> rig: its
+                           own RR_MAP_DIGEST, or 0 (not checked) */
 } rr_header;
 
-/* Decode a telegram of exactly 5 + n_values integers into head and values (wire
+/* Decode a telegram of exactly 6 + n_values integers into head and values (wire
  * units). Returns RR_OK or a negative RR_E_* code. */
 int rr_decode_telegram(const uint8_t *buf, size_t len, rr_header *head, int64_t *values,
                        size_t n_values);

@@ -1,0 +1,238 @@
+"""The header rules the rig enforces and the lockstep pacing it promises (the rules are
+written in emulator/protocol/header.py and the README): the map digest, whole flags, the
+period per mode, and a measurement said again at once after a bad telegram, a damaged
+serial frame or a repeat request, with the repeat flag and the same sequence."""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import os
+
+import msgpack
+import pytest
+
+from emulator.link import open_link
+from emulator.link.framing import encode_frame
+from emulator.protocol.header import (
+    CFLAG_REPEAT_REQUEST,
+    FLAG_BAD_TELEGRAM,
+    FLAG_FRAMING,
+    FLAG_REPEAT,
+    H_FLAGS,
+    H_MAP_DIGEST,
+    H_PERIOD_US,
+    H_SEQUENCE,
+    HEADER,
+)
+from emulator.rig.clock import FakeClock
+from emulator.rig.frame_loop import Rig
+
+from .conftest import command, make_rig, run
+
+
+def _with_header(telegram: bytes, **fields: int) -> bytes:
+    items = msgpack.unpackb(telegram)
+    index = {"period_us": H_PERIOD_US, "flags": H_FLAGS, "map_digest": H_MAP_DIGEST}
+    for name, value in fields.items():
+        items[index[name]] = value
+    return msgpack.packb(items)
+
+
+@pytest.mark.parametrize(("mode", "period_us", "accepted"), [
+    ("afap", 0, True), ("afap", 1000, True), ("afap", 2000, False), ("afap", 500, False),
+    ("realtime", 1000, True), ("realtime", 2000, False),
+    ("lockstep", 2000, True), ("lockstep", 100, True), ("lockstep", 99, False),
+    ("lockstep", 10_001, False),
+])
+def test_period_us_is_read_by_the_mode(params, mode, period_us, accepted) -> None:
+    async def go():
+        rig, _ = await make_rig(params, lambda rig, m: _with_header(
+            command(rig, m[H_SEQUENCE]), period_us=period_us), mode=mode)
+        if mode == "lockstep":
+            await rig.run(frames=2) if accepted else await _run_briefly(rig, 0.05)
+        else:
+            await rig.run(frames=5)
+        return rig
+    rig = run(go())
+    if accepted:
+        assert rig.health.rejected["period"] == 0 and rig.health.accepted >= 1
+        if mode == "lockstep":  # frame 0 runs before any answer (the rig's period),
+            # frame 1 on the answer to y_0 (command delay 1), for the period it asked
+            assert rig.plant.time_s == pytest.approx(1e-3 + period_us * 1e-6, abs=1e-12)
+    else:
+        assert rig.health.rejected["period"] >= 1 and rig.health.accepted == 0
+
+
+async def _run_briefly(rig: Rig, seconds: float) -> None:
+    stop = asyncio.Event()
+    asyncio.get_running_loop().call_later(seconds, stop.set)
+    await rig.run(stop=stop)
+
+
+@pytest.mark.parametrize(("digest", "accepted"), [(0, True), (None, True), (1, False)])
+def test_the_map_digest_must_be_zero_or_the_rigs(params, digest, accepted) -> None:
+    async def go():
+        rig, _ = await make_rig(params, lambda rig, m: _with_header(
+            command(rig, m[H_SEQUENCE]), map_digest=(
+                rig.signal_map.digest() if digest is None else digest)))
+        await rig.run(frames=5)
+        return rig
+    rig = run(go())
+    assert (rig.health.valid > 0) is accepted
+    assert rig.health.rejected["map"] == (0 if accepted else 5)
+
+
+def test_every_measurement_carries_the_rigs_digest(params) -> None:
+    async def go():
+        rig, ctl = await make_rig(params, lambda rig, m: command(rig, m[H_SEQUENCE]))
+        await rig.run(frames=3)
+        return rig, ctl
+    rig, ctl = run(go())
+    assert {msgpack.unpackb(p)[H_MAP_DIGEST] for p in ctl.received} == {rig.signal_map.digest()}
+
+
+def test_a_fractional_contactor_command_is_rejected(params) -> None:
+    async def go():
+        def answer(rig, m):
+            items = msgpack.unpackb(command(rig, m[H_SEQUENCE]))
+            items[len(HEADER) + rig.signal_map.index(
+                "command", "LC-A1.line_contactor_close")] = 0.5  # half closed?
+            return msgpack.packb(items)
+        rig, _ = await make_rig(params, answer)
+        await rig.run(frames=4)
+        return rig
+    rig = run(go())
+    assert rig.health.rejected["fractional"] == 4 and rig.health.valid == 0
+
+
+def test_lockstep_answers_a_bad_telegram_with_the_same_measurement_at_once(params) -> None:
+    # the first answer to y_3 is spoiled (a NaN duty): y_3 comes again, flagged as a
+    # repeat and as a rejection, and the good answer then paces frame 3 as usual
+    spoiled = {3}
+
+    def answer(rig, m):
+        seq = m[H_SEQUENCE]
+        if seq in spoiled:
+            spoiled.discard(seq)
+            items = msgpack.unpackb(command(rig, seq))
+            items[len(HEADER) + rig.signal_map.index("command", "INV-A1.duty_a")] = float("nan")
+            return msgpack.packb(items)
+        return command(rig, seq)
+
+    async def go():
+        rig, ctl = await make_rig(params, answer, mode="lockstep")
+        await rig.run(frames=6)
+        return rig, ctl
+    rig, ctl = run(go())
+    heads = [msgpack.unpackb(p)[:6] for p in ctl.received]
+    assert [h[H_SEQUENCE] for h in heads] == [0, 1, 2, 3, 3, 4, 5, 6]
+    again = heads[4]
+    assert again[H_FLAGS] & FLAG_REPEAT and again[H_FLAGS] & FLAG_BAD_TELEGRAM
+    assert not any(h[H_FLAGS] & FLAG_REPEAT for i, h in enumerate(heads) if i != 4)
+    values = [msgpack.unpackb(p)[len(HEADER):] for p in ctl.received]
+    assert values[3] == values[4]  # the same measurement, only the flags differ
+    assert rig.repeat_causes == {"bad_telegram": 1}
+    # frames 1..5 ran on the answers to y_0..y_4 (frame 0 has none: command delay 1)
+    assert rig.health.rejected["non_finite"] == 1 and rig.health.valid == 5
+    assert rig.health.missing == 0  # nothing held: the frame waited for the good answer
+
+
+def test_lockstep_repeat_request_gets_the_measurement_again(params) -> None:
+    asked = {2}
+
+    def answer(rig, m):
+        seq = m[H_SEQUENCE]
+        if seq in asked:  # "I lost it": a valid telegram with the request bit
+            asked.discard(seq)
+            return _with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
+        return command(rig, seq)
+
+    async def go():
+        rig, ctl = await make_rig(params, answer, mode="lockstep")
+        await rig.run(frames=4)
+        return rig, ctl
+    rig, ctl = run(go())
+    heads = [msgpack.unpackb(p)[:6] for p in ctl.received]
+    assert [h[H_SEQUENCE] for h in heads] == [0, 1, 2, 2, 3, 4]
+    assert heads[3][H_FLAGS] & FLAG_REPEAT
+    assert rig.health.repeat_requests == 1 and rig.repeat_causes == {"request": 1}
+    assert sum(rig.health.sequence.values()) == 0  # its sequence was not read
+
+
+def test_lockstep_silence_repeats_after_the_interval_then_doubling(params) -> None:
+    # a controller that stays silent for the first 0.1 s: the rig says y_0 again after
+    # 5 ms, 10, 20, 40 ms (doubling) ... and runs as soon as it answers
+    async def go():
+        rig, ctl = await make_rig(params, lambda rig, m: None, mode="lockstep",
+                                  lockstep_repeat_s=0.005)
+        await _run_briefly(rig, 0.1)
+        return rig, ctl
+    rig, ctl = run(go())
+    # 5 + 10 + 20 + 40 = 75 ms < 0.1 s < 155 ms: four repeats; timer slack may cost one
+    assert rig.repeat_causes["silence"] in (3, 4), rig.repeat_causes
+    assert rig.frame == 0
+    assert all(msgpack.unpackb(p)[H_FLAGS] & FLAG_REPEAT for p in ctl.received[1:])
+
+
+def test_lockstep_repeat_interval_is_bounded(params) -> None:
+    from emulator.link.loop import LoopLink  # noqa: F401 (the registry knows loop://)
+    from emulator.rig.frame_loop import RigError
+
+    for bad in (0.0, 2.0):
+        with pytest.raises(RigError, match="repeat interval"):
+            Rig(params, open_link("loop://bounded"), mode="lockstep", lockstep_repeat_s=bad)
+
+
+def test_a_damaged_serial_frame_gets_the_measurement_again_at_once(params) -> None:
+    # lockstep over a pty: the board's answer to y_2 arrives with a flipped bit (the CRC
+    # catches it); the rig sends y_2 again at once with the framing and repeat flags
+    async def go():
+        master, slave = os.openpty()
+        link = open_link(f"serial://{os.ttyname(slave)}?baud=921600")
+        await link.open()
+        rig = Rig(params, link, mode="lockstep", clock=FakeClock(),
+                  lockstep_repeat_s=1.0)  # a silence repeat would come far later
+        os.set_blocking(master, False)
+        got: list[list] = []
+        buffer = bytearray()
+
+        async def read_measurement() -> list:
+            nonlocal buffer
+            while b"\x00" not in buffer:
+                await asyncio.sleep(0.0005)
+                with contextlib.suppress(BlockingIOError):
+                    buffer += os.read(master, 65536)
+            frame, _, rest = bytes(buffer).partition(b"\x00")
+            buffer = bytearray(rest)
+            from cobs import cobs
+            return msgpack.unpackb(cobs.decode(frame)[:-2])
+
+        async def board():
+            damaged = False
+            while len(got) < 6:
+                m = await read_measurement()
+                got.append(m)
+                frame = bytearray(encode_frame(command(rig, m[H_SEQUENCE])))
+                if m[H_SEQUENCE] == 2 and not damaged:
+                    frame[5] ^= 0x10  # one bit: COBS or the CRC fails
+                    damaged = True
+                os.write(master, bytes(frame))
+
+        task = asyncio.ensure_future(board())
+        try:
+            await asyncio.wait_for(rig.run(frames=4), 5.0)
+            await asyncio.wait_for(task, 5.0)
+        finally:
+            task.cancel()
+            link.close()
+            os.close(master)
+            os.close(slave)
+        return rig, got
+
+    rig, got = asyncio.run(go())
+    assert [m[H_SEQUENCE] for m in got] == [0, 1, 2, 2, 3, 4]
+    assert got[3][H_FLAGS] & FLAG_REPEAT and got[3][H_FLAGS] & FLAG_FRAMING
+    assert rig.repeat_causes == {"framing": 1}
+    f = rig.link.stats.framing
+    assert f.crc_errors + f.cobs_errors == 1
