@@ -26,6 +26,14 @@ def add_arguments(bench: argparse.ArgumentParser) -> None:
                        help="the rig's lateness with a dashboard attached vs detached")
     bench.add_argument("--link", action="store_true",
                        help="benchmark the rig's pacing and UDP link instead of the plant")
+    bench.add_argument("--serial-ber", type=float, nargs="+", default=None, metavar="BER",
+                       help="--link: the serial link through a noisy cable at these bit "
+                       "error rates (and clean, in the same run) instead of UDP")
+    bench.add_argument("--serial-mode", choices=("lockstep", "realtime"), default="lockstep",
+                       help="--serial-ber: the rig's timing mode")
+    bench.add_argument("--board", default=None, metavar="COMMAND",
+                       help="--serial-ber: the controller's command line with {device} for "
+                       "its serial device (default: the reference controller)")
     bench.add_argument("--throughput", action="store_true",
                        help="the demo in lockstep with the reference controller in this "
                        "process and over UDP: real-time factors and each stage's cost per "
@@ -79,6 +87,8 @@ def run(args: argparse.Namespace) -> int:
         return 0
     if args.throughput:
         return _print_throughput(args, params.name)
+    if args.link and args.serial_ber:
+        return _print_serial_ber(args, params)
     if args.link:
         from emulator.bench.link import link_benchmark
 
@@ -132,6 +142,35 @@ def _print_throughput(args: argparse.Namespace, name: str) -> int:
     table.add_row("frame, instrumented run", f"{figures['frame_us_instrumented']:.1f} us")
     for stage, us in figures["stage_us"].items():
         table.add_row(f"  {stage.replace('_', ' ')}", f"{us:.1f} us")
+    Console().print(table)
+    return 0
+
+
+def _print_serial_ber(args: argparse.Namespace, params) -> int:
+    from emulator.bench.serial_ber import serial_ber_benchmark
+    from emulator.profiles.reader import resolve_profile
+
+    console.print(f"serial link under bit errors: {params.name}, {args.serial_mode}, "
+                  f"{args.seconds:g} s at each rate (clean first), pseudo-terminals joined "
+                  "by a noisy cable process")
+    figures = serial_ber_benchmark(params, resolve_profile(args.profile), args.serial_ber,
+                                   mode=args.serial_mode, seconds=args.seconds,
+                                   board=args.board)
+    if args.json:
+        print(json.dumps(figures))
+        return 0
+    table = Table(title=f"Serial link, {figures['mode']}, controller "
+                  f"{figures['controller']}, {figures['seconds_each']:g} s each")
+    table.add_column("bit error rate")
+    for row in figures["rows"]:
+        table.add_column(f"{row['ber']:g}", justify="right")
+    for key in ("frames", "realtime_factor", "factor_vs_clean", "frames_to_rig",
+                "spoiled_to_rig", "spoiled_to_board", "rig_framing_errors", "repeats",
+                "repeat_requests", "held", "watchdog_trips", "rejected",
+                "accepted_beyond_clean"):
+        table.add_row(key.replace("_", " "), *(
+            ", ".join(f"{k} {v}" for k, v in row[key].items()) or "0"
+            if isinstance(row[key], dict) else f"{row[key]:g}" for row in figures["rows"]))
     Console().print(table)
     return 0
 

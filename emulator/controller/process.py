@@ -45,11 +45,16 @@ async def serve_controller(profile, link_url: str, *, allow_remote: bool = False
             if not link.pending() and not await link.wait(idle_timeout_s):
                 log.info("rig silent for %.0f s: controller stops", idle_timeout_s)
                 break
-            for payload in link.take():
+            payloads = link.take()
+            for payload in payloads:
                 try:
                     link.send(tcu.answer(payload))
                 except Exception as exc:  # a telegram we cannot read: count, go on
                     log.warning("unreadable measurement telegram: %s", exc)
+            if link.take_damaged() and not payloads:  # a serial frame failed COBS or the
+                request = tcu.repeat_request()  # CRC: ask for it again (lockstep rule)
+                if request is not None:
+                    link.send(request)
     finally:
         link.close()
     return tcu

@@ -15,6 +15,7 @@ from collections import Counter
 import msgpack
 
 from emulator.protocol import events
+from emulator.protocol.header import CFLAG_REPEAT_REQUEST, H_FLAGS
 
 from .adhesion import AdhesionControl
 from .config import ControllerConfig
@@ -125,6 +126,16 @@ class ReferenceController:
         self._last_seq = seq
         self._last_reply = msgpack.packb([self.version, seq, 0, 0, 0, self.map_digest, *wire])
         return self._last_reply
+
+    def repeat_request(self) -> bytes | None:
+        """A telegram asking the rig for the current measurement again (a damaged frame
+        came in, lockstep): the last answer with the request bit (its values must be
+        valid, they are not applied), or None before the first answer."""
+        if not self._last_reply:
+            return None
+        items = msgpack.unpackb(self._last_reply)
+        items[H_FLAGS] = CFLAG_REPEAT_REQUEST
+        return msgpack.packb(items)
 
     def _index_signals(self, cfg: ControllerConfig) -> None:
         """Positions of every value the control reads and writes (looked up once)."""

@@ -51,8 +51,10 @@ log = logging.getLogger(__name__)
 MODES = ("realtime", "lockstep", "afap")
 MIN_PERIOD_US, MAX_PERIOD_US = 100, 10_000  # 0.1 .. 10 ms
 START_LEAD_NS = 20_000_000  # first deadline after warm-up
-#: lockstep: say the current measurement again after this many periods of silence
+#: lockstep: say the current measurement again after at most this many periods of
+#: silence; sooner when the measured round trips allow (Rig._silence_s)
 LOCKSTEP_REPEAT_PERIODS = 20
+LOCKSTEP_REPEAT_MIN_PERIODS = 2  # never sooner than this
 LOCKSTEP_REPEAT_MAX_S = 1.0  # while the silence lasts, the interval doubles up to this
 LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking on it
 #: real time: a missing command counts against the controller only if it had at least
@@ -79,12 +81,14 @@ class LinkHealth:
     expired: int = 0  # accepted answers whose frame passed before they were used
     reordered: int = 0  # accepted, but after a later-numbered one
     repeat_requests: int = 0  # valid telegrams asking for the measurement again
+    answers_to_repeats: int = 0  # second answers to a measurement the rig said again
 
     def as_dict(self) -> dict[str, Any]:
         """Plain dictionary, for reports and JSON."""
         return {"accepted": self.accepted, "valid": self.valid, "missing": self.missing,
                 "overrun_held": self.overrun_held, "expired": self.expired,
                 "reordered": self.reordered, "repeat_requests": self.repeat_requests,
+                "answers_to_repeats": self.answers_to_repeats,
                 "watchdog_trips": self.watchdog_trips, "rejected": dict(self.rejected),
                 "sequence": dict(self.sequence)}
 
@@ -154,9 +158,13 @@ class Rig:
         self._started = False
         self._sent_frame = -1  # the frame whose measurement went out last
         self._sent_flags = 0  # the flags y_k went out with (a repeat carries them again)
+        self._sent_mono_ns = 0  # lockstep: when y_k went out (for the round trip)
         self.repeats = 0  # lockstep: measurements said again (the causes: repeat_causes)
         self.repeat_causes: Counter = Counter()  # silence, bad_telegram, framing, request
         self._repeat_asked = False
+        self._repeated = -1  # the last sequence said again: a second answer is no error
+        self._srtt = self._rttvar = 0.0  # lockstep round trips (RFC 6298 estimator)
+        self._rtt_samples = 0
         self._y = np.zeros(len(sm.measurements))
         self._sent_ns = np.zeros(8, dtype=np.int64)  # when y_k went out, by k mod 8
 
@@ -178,6 +186,7 @@ class Rig:
         flags |= FLAG_WATCHDOG if self.tripped else 0
         self.link.send(self.codec.encode(self._sent_frame, round(self.plant.time_s * 1e6),
                                          self.period_us, flags, self._y))
+        self._repeated = self._sent_frame
         self._sent_flags = flags & ~FLAG_REPEAT
         self._flags = 0
         self.repeats += 1
@@ -203,6 +212,8 @@ class Rig:
             seq = tg.sequence
             if seq > k:
                 self._sequence_error("unexpected")  # answers a measurement never sent
+            elif seq == self._repeated and (seq in self._answers or seq == self._last_used):
+                self.health.answers_to_repeats += 1  # we asked twice: not their error
             elif seq in self._answers or seq <= self._last_used:
                 self._sequence_error("duplicate" if seq in self._answers
                                      or seq == self._last_used else "late")
@@ -407,8 +418,12 @@ class Rig:
         intervals (up to LOCKSTEP_REPEAT_MAX_S) while the silence lasts."""
         if self._sent_frame != self.frame:  # not when resuming a run already under way
             self._send_measurement(self.frame)
+        self._sent_mono_ns = time.monotonic_ns()
+        self._repeated = self.frame  # the first measurement's round trip includes the
+        # controller's start-up: not a sample
         self.stats.restart_cpu_window()
-        silence_s = self.lockstep_repeat_s
+        silence_s = self._silence_s()
+        stalled = 0  # measurements said again since the last frame ran
         while not self._done(frames, stop):
             # poll briefly before blocking: a sleeping process wakes late on some machines
             # (tens of us to ms on a VM), which would pace lockstep more than the work does
@@ -421,7 +436,7 @@ class Rig:
                 self._repeat_measurement("silence")
                 silence_s = min(2 * silence_s, LOCKSTEP_REPEAT_MAX_S)
                 continue
-            silence_s = self.lockstep_repeat_s
+            silence_s = self._silence_s()
             paced = False
             repeat = ""
             while not self._done(frames, stop):
@@ -446,9 +461,12 @@ class Rig:
                         and not await self.monitor.hold(stop)):
                     break  # stopped while paused (the controller waits for y_k meanwhile)
                 start = self.clock.now_ns()
+                if self._repeated != k:  # a clean round trip: y_k out, its answer in
+                    self._note_round_trip(time.monotonic_ns() - self._sent_mono_ns)
                 period = self._take_command(k) or self.period_us
                 self._step(period)
                 self._send_measurement(self.frame)
+                self._sent_mono_ns = time.monotonic_ns()
                 paced = True
                 self.stats.record(0, self.clock.now_ns() - start, period * 1000)
                 if self.monitor is not None and self.frame % self.monitor.every == 0:
@@ -460,8 +478,35 @@ class Rig:
                     repeat = repeat or "framing"
             if repeat and not self._done(frames, stop):
                 self._repeat_measurement(repeat)
-                await asyncio.sleep(0)  # a controller that answers every repeat at once
-                # with a bad telegram must not starve the loop (stop, monitor, I/O)
+                stalled += 1
+                if stalled % 16 == 0:  # a controller that answers every repeat at once
+                    await asyncio.sleep(0)  # with a bad telegram must not starve the
+                    # loop (stop, monitor, I/O)
+            elif paced:
+                stalled = 0
+
+    def _note_round_trip(self, ns: int) -> None:
+        """A lockstep round trip into the smoothed estimate (RFC 6298, section 2:
+        alpha 1/8, beta 1/4)."""
+        r = ns * 1e-9
+        if self._rtt_samples == 0:
+            self._srtt, self._rttvar = r, r / 2
+        else:
+            self._rttvar += 0.25 * (abs(self._srtt - r) - self._rttvar)
+            self._srtt += 0.125 * (r - self._srtt)
+        self._rtt_samples += 1
+
+    def _silence_s(self) -> float:
+        """How long lockstep waits in silence before it says the measurement again:
+        RFC 6298's timeout, SRTT + 4 RTTVAR, from the round trips measured, within
+        [LOCKSTEP_REPEAT_MIN_PERIODS periods, lockstep_repeat_s]; lockstep_repeat_s
+        until there are 8 samples. A lost delimiter or a measurement lost on the way
+        costs this, not the ceiling."""
+        if self._rtt_samples < 8:
+            return self.lockstep_repeat_s
+        rto = self._srtt + 4 * self._rttvar
+        floor = LOCKSTEP_REPEAT_MIN_PERIODS * self.period_us * 1e-6
+        return min(max(rto, floor), self.lockstep_repeat_s)
 
     def report(self) -> dict[str, Any]:
         """Counters and timing of the run so far."""

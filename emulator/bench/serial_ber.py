@@ -1,0 +1,155 @@
+"""The serial link under bit errors: the rig and a controller in its own process, joined
+by the noisy cable (noisy_serial.py), once clean and once at each bit error rate asked
+for, in the same run; figures printed, nothing asserted.
+
+Lockstep: the real-time factor at each rate against the clean cable's, what the line
+spoiled (its own log), what the rig caught and how it recovered (measurements said again
+by cause). Real time: frames held against the share of command frames the line spoiled,
+and watchdog trips. In both, telegrams accepted by the rig against the frames that
+crossed the line untouched: more accepted than untouched would be a spoiled telegram let
+through (the CRC's job to prevent).
+
+The controller is the reference controller (``railrig controller``) by default, or a
+board's command with ``{device}`` for its serial device (the board kit's example:
+``kit/example_controller --serial {device} --baud 921600 --frames 100000000 --quiet``).
+Pseudo-terminals do not limit the baud rate: a real UART adds its bytes' time.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import json
+import shlex
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+from emulator.link import open_link
+from emulator.plant.params import TrainsetParams
+from emulator.rig.clock import MonotonicClock
+from emulator.rig.frame_loop import Rig
+
+BAUD = 921_600
+
+
+class NoisyCable:
+    """The relay process: ``with NoisyCable(ber, seed) as cable:`` gives cable.rig and
+    cable.board (device paths); cable.log after the block."""
+
+    def __init__(self, ber: float, seed: int = 1, drop: float = 0.0,
+                 insert: float = 0.0) -> None:
+        self.args = ["--ber", repr(ber), "--seed", str(seed), "--drop", repr(drop),
+                     "--insert", repr(insert)]
+        self.log: dict[str, Any] = {}
+
+    def __enter__(self) -> NoisyCable:
+        self._dir = tempfile.TemporaryDirectory(prefix="railrig-cable-")
+        self._report = Path(self._dir.name) / "line.json"
+        self._child = subprocess.Popen(
+            [sys.executable, "-m", "emulator.bench.noisy_serial", *self.args,
+             "--report", str(self._report)], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+            text=True)
+        assert self._child.stdout is not None
+        first = self._child.stdout.readline().split()
+        names = dict(item.split("=", 1) for item in first)
+        if set(names) != {"rig", "board"}:
+            self._child.kill()
+            raise RuntimeError(f"the noisy cable did not start: {first!r}")
+        self.rig, self.board = names["rig"], names["board"]
+        return self
+
+    def __exit__(self, *exc) -> None:
+        assert self._child.stdin is not None
+        self._child.stdin.close()  # the relay's signal to write its log and end
+        try:
+            self._child.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            self._child.kill()
+        if self._report.exists():
+            self.log = json.loads(self._report.read_text())
+        self._dir.cleanup()
+
+
+def start_controller(profile: Path, device: str, board: str | None) -> subprocess.Popen:
+    """The controller on the board's end: ``board`` with {device}, or the reference."""
+    if board:
+        argv = shlex.split(board.format(device=device))
+    else:
+        argv = [sys.executable, "-m", "emulator.cli", "controller", "--profile",
+                str(profile), "--link", f"serial://{device}?baud={BAUD}",
+                "--idle-timeout", "5"]
+    return subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+
+
+async def run_over_cable(params: TrainsetParams, device: str, mode: str,
+                         seconds: float | None = None,
+                         frames: int | None = None) -> dict[str, Any]:
+    """The rig on ``device`` for ``seconds`` of wall time or ``frames`` frames (after
+    the controller's first answer, in lockstep); its report and the timing."""
+    link = open_link(f"serial://{device}?baud={BAUD}")
+    await link.open()
+    rig = Rig(params, link, mode=mode, clock=MonotonicClock())
+    try:
+        if mode == "lockstep":  # the controller's first answer (its start-up) untimed
+            await rig.run(frames=1)
+        frame0, t0 = rig.frame, time.perf_counter()
+        held0 = rig.health.missing
+        stop = asyncio.Event()
+        if seconds is not None:
+            asyncio.get_running_loop().call_later(seconds, stop.set)
+        await rig.run(frames=None if frames is None else frame0 + frames, stop=stop)
+        wall = time.perf_counter() - t0
+    finally:
+        link.close()
+        rig.clock.close()
+    report = rig.report()
+    frames = rig.frame - frame0
+    return {"frames": frames, "wall_s": wall,
+            "realtime_factor": frames * rig.period_us * 1e-6 / wall,
+            "held": rig.health.missing - held0, "report": report}
+
+
+def serial_ber_benchmark(params: TrainsetParams, profile: Path, bers: list[float],
+                         mode: str = "lockstep", seconds: float = 10.0, seed: int = 1,
+                         board: str | None = None) -> dict[str, Any]:
+    """Figures of each bit error rate, the clean cable first (see the module docstring)."""
+    rows = []
+    for ber in [0.0, *[b for b in bers if b > 0]]:
+        with NoisyCable(ber, seed) as cable:
+            child = start_controller(profile, cable.board, board)
+            try:
+                if mode == "realtime":  # let the controller come up before the clock runs
+                    time.sleep(3.0 if board else 8.0)
+                run = asyncio.run(run_over_cable(params, cable.rig, mode, seconds))
+            finally:
+                child.terminate()
+                try:
+                    child.wait(timeout=10)
+                except subprocess.TimeoutExpired:
+                    child.kill()
+        rep = run["report"]
+        link = rep["link"]
+        framing = rep["transport"]["framing"]
+        to_rig, to_board = cable.log["to_rig"], cable.log["to_board"]
+        rows.append({
+            "ber": ber, "frames": run["frames"], "wall_s": round(run["wall_s"], 2),
+            "realtime_factor": round(run["realtime_factor"], 2),
+            "spoiled_to_rig": to_rig["spoiled"], "spoiled_to_board": to_board["spoiled"],
+            "frames_to_rig": to_rig["frames"], "clean_to_rig": to_rig["clean"],
+            "rig_good_frames": framing["frames"],
+            "rig_framing_errors": (framing["crc_errors"] + framing["cobs_errors"]
+                                   + framing["runts"] + framing["oversized"]),
+            "rejected": link["rejected"], "accepted": link["accepted"],
+            "held": run["held"], "watchdog_trips": link["watchdog_trips"],
+            "repeats": rep["lockstep_repeat_causes"],
+            "repeat_requests": link["repeat_requests"],
+            "accepted_beyond_clean": max(framing["frames"] - to_rig["clean"], 0),
+        })
+    clean = rows[0]["realtime_factor"] or float("nan")
+    for row in rows:
+        row["factor_vs_clean"] = round(row["realtime_factor"] / clean, 3)
+    return {"mode": mode, "seconds_each": seconds, "controller": board or "reference",
+            "rows": rows}
