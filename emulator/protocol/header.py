@@ -129,10 +129,13 @@ LOCKSTEP_PACING = (
     "so one corrupted telegram costs one round trip.",
     "A repeat request (controller flag bit 0) gets the current measurement again at "
     "once, also flagged as a repeat.",
-    "After silence of the repeat interval (`railrig serve --lockstep-repeat-ms`, default "
-    "20 periods) the rig sends the current measurement again, then at doubling intervals "
-    "up to 1 s while the silence lasts: either side may start first, and a lost "
-    "measurement is said again without a request.",
+    "After silence the rig sends the current measurement again: once the measured round "
+    "trips allow, after their retransmission timeout (SRTT + 4 RTTVAR, RFC 6298), at "
+    "least 2 periods and at most `railrig serve --lockstep-repeat-ms` (default 20 "
+    "periods, also the wait before 8 round trips are measured); then at doubling "
+    "intervals up to 1 s while the silence lasts. Either side may start first, and a "
+    "measurement lost on the way (or whose 0x00 delimiter was lost) is said again "
+    "without a request.",
     "A repeated measurement carries the same sequence: answer it with the same command "
     "(do not run your control a second time for it).",
 )

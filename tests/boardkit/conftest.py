@@ -40,9 +40,9 @@ def kit_dir(tmp_path_factory) -> Path:
 class Harness:
     """The codec harness (tests/boardkit/codec_harness.c) as a long-lived process."""
 
-    def __init__(self, exe: Path, sanitized: bool) -> None:
+    def __init__(self, argv: list[str], sanitized: bool) -> None:
         self.sanitized = sanitized
-        self.proc = subprocess.Popen([str(exe)], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+        self.proc = subprocess.Popen(argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                                      stderr=subprocess.PIPE, text=True, bufsize=1)
 
     def ask(self, *words: str) -> tuple[bool, str]:
@@ -65,7 +65,8 @@ class Harness:
 
 
 @pytest.fixture(scope="session")
-def harness(kit_dir: Path, tmp_path_factory):
+def host_harness(kit_dir: Path, tmp_path_factory):
+    """The harness built by the host's compiler, with the sanitizers where it has them."""
     cc = c_compiler()
     exe = tmp_path_factory.mktemp("harness") / "codec_harness"
     sources = [str(HERE / "codec_harness.c"), str(kit_dir / "railrig_codec.c"),
@@ -76,8 +77,39 @@ def harness(kit_dir: Path, tmp_path_factory):
         print("codec harness built without -fsanitize (not available here)")
         done = subprocess.run([cc, *STRICT, "-O1", *sources], capture_output=True, text=True)
         assert done.returncode == 0, done.stderr
-    h = Harness(exe, sanitized)
+    h = Harness([str(exe)], sanitized)
     yield h
     err = h.close()
     assert h.proc.returncode == 0, err
     assert "runtime error" not in err and "AddressSanitizer" not in err, err
+
+
+#: Debian's cross compiler for 32-bit ARM (hard float) and qemu's user-mode emulator
+ARM_CC, QEMU_ARM = "arm-linux-gnueabihf-gcc", "qemu-arm"
+
+
+@pytest.fixture(scope="session")
+def arm32_harness(kit_dir: Path, tmp_path_factory):
+    """The harness cross-built for 32-bit ARM (a board's word size: 32-bit size_t and
+    long) and run under qemu-user; skipped, with the reason, where the tools are not
+    installed (Debian: gcc-arm-linux-gnueabihf, libc6-dev-armhf-cross, qemu-user)."""
+    missing = [tool for tool in (ARM_CC, QEMU_ARM) if shutil.which(tool) is None]
+    if missing:
+        pytest.skip(f"32-bit ARM build not tried: {', '.join(missing)} not installed "
+                    "(Debian: apt-get install gcc-arm-linux-gnueabihf libc6-dev-armhf-cross "
+                    "qemu-user)")
+    exe = tmp_path_factory.mktemp("harness-arm") / "codec_harness"
+    done = subprocess.run([ARM_CC, *STRICT, "-O1", "-static", str(HERE / "codec_harness.c"),
+                           str(kit_dir / "railrig_codec.c"), f"-I{kit_dir}", "-o", str(exe)],
+                          capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    h = Harness([QEMU_ARM, str(exe)], sanitized=False)
+    yield h
+    err = h.close()
+    assert h.proc.returncode == 0, err
+
+
+@pytest.fixture(scope="session", params=["host", "arm32"])
+def harness(request):
+    """Each codec test runs on the host's build and on the 32-bit ARM build."""
+    return request.getfixturevalue(f"{request.param}_harness")
