@@ -218,4 +218,10 @@ def link_counters_table(report: dict):
     for key in ("crc_errors", "cobs_errors", "runts", "oversized"):
         if framing.get(key):
             table.add_row(f"serial {key.replace('_', ' ')}", str(framing[key]))
+    for cause, n in sorted(report.get("lockstep_repeat_causes", {}).items()):
+        table.add_row(f"measurement said again: {cause.replace('_', ' ')}", str(n))
+    for key, label in (("repeat_requests", "repeat requests from the controller"),
+                       ("answers_to_repeats", "second answers to a repeat")):
+        if link.get(key):
+            table.add_row(label, str(link[key]))
     return table
