@@ -169,7 +169,8 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
         for unit in params.line_converters:
             cmd += [
                 _analog(f"{unit.name}.modulation", "1", 1e-4, -1.0, 1.0,
-                        "converter AC voltage as a fraction of the link voltage"),
+                        "converter AC voltage as a fraction of the link voltage, held "
+                        "for the frame (as the inverters' duty cycles)"),
                 Signal(f"{unit.name}.gates_enabled", "1", 1.0, 0, 1, "flag",
                        "1 releases the gates (0: a diode bridge)"),
                 Signal(f"{unit.name}.precharge_close", "1", 1.0, 0, 1, "flag",
