@@ -76,7 +76,8 @@ class NoisyDirection:
         start = self.log.bytes
         arr = np.frombuffer(data, dtype=np.uint8).copy()
         end = start + len(arr)
-        touched: list[int] = []  # stream positions of touched bytes
+        touched: list[float] = []  # stream positions of touched bytes (an insertion
+        # before byte p at p - 0.5: it spoils the frame of byte p, never its delimiter)
         while self._next_flip < 8 * end:
             pos = self._next_flip // 8
             arr[pos - start] ^= np.uint8(1 << (7 - self._next_flip % 8))
@@ -92,7 +93,7 @@ class NoisyDirection:
         inserts: list[tuple[int, int]] = []
         while self._next_insert < end:
             inserts.append((self._next_insert - start, int(self.rng.integers(0, 256))))
-            touched.append(self._next_insert)
+            touched.append(self._next_insert - 0.5)
             self.log.inserted_bytes += 1
             self._next_insert += self._gap(self.insert)
         self._count_frames(np.frombuffer(data, dtype=np.uint8), start, sorted(touched))
@@ -103,7 +104,7 @@ class NoisyDirection:
                 np.insert(keep, [i for i, _ in inserts], True)]
         return out.tobytes()
 
-    def _count_frames(self, original: np.ndarray, start: int, touched: list[int]) -> None:
+    def _count_frames(self, original: np.ndarray, start: int, touched: list[float]) -> None:
         """Frames completed by this chunk, and which of them were touched (the frame of
         a touched delimiter and the frame after it both count as spoiled)."""
         ends = np.flatnonzero(original == 0) + start  # delimiter positions in the stream

@@ -143,32 +143,35 @@ def map_header(params: TrainsetParams, sm: SignalMap | None = None) -> str:
 
 
 def _plant_constants(params: TrainsetParams, sm: SignalMap) -> list[str]:
-    mp, dt = params.machine, params.drivetrain
+    # the numbers are the map's (SignalMap.constants: in its digest), one source
+    const = dict(sm.constants)
     y = {s.name: i for i, s in enumerate(sm.measurements)}
     u = {s.name: i for i, s in enumerate(sm.commands)}
-    lines = int(getattr(params.sensors, "encoder_lines", 256)) if params.sensors else 256
-    wheels = [d for c in params.converters for d in c.wheel_diameters_m]
-    out = ["/* plant constants a controller needs (from the trainset profile) */",
-           f"#define RR_PERIOD_US {round(params.frame_s * 1e6)} /* the profile's frame */",
-           f"#define RR_ENCODER_LINES {lines} /* 4 edges per line counted */",
-           f"#define RR_POLE_PAIRS {mp.pole_pairs}",
-           f"#define RR_RATED_VOLTAGE_V {_number(mp.rated_voltage_v)} /* line-to-line rms */",
-           f"#define RR_RATED_FREQUENCY_HZ {_number(mp.rated_frequency_hz)}",
-           f"#define RR_RATED_POWER_W {_number(mp.rated_power_w)}",
-           f"#define RR_GEAR_RATIO {_number(dt.gear_ratio)} /* motor turns per wheel turn */",
+    wheels = const["wheel_diameters_m"]
+    out = ["/* plant constants a controller needs (from the trainset profile; part of",
+           " * RR_MAP_DIGEST: a kit for another profile has another digest) */",
+           f"#define RR_PERIOD_US {const['period_us']} /* the profile's frame */",
+           f"#define RR_ENCODER_LINES {const['encoder_lines']} /* 4 edges per line counted */",
+           f"#define RR_POLE_PAIRS {const['pole_pairs']}",
+           f"#define RR_RATED_VOLTAGE_V {_number(const['rated_voltage_v'])} "
+           "/* line-to-line rms */",
+           f"#define RR_RATED_FREQUENCY_HZ {_number(const['rated_frequency_hz'])}",
+           f"#define RR_RATED_POWER_W {_number(const['rated_power_w'])}",
+           f"#define RR_GEAR_RATIO {_number(const['gear_ratio'])} "
+           "/* motor turns per wheel turn */",
            f"#define RR_WHEEL_DIAMETER_M {_number(sum(wheels) / len(wheels))} "
            "/* mean; per motor: RR_MOTOR_WHEEL_DIAMETER_M */",
-           f"#define RR_INVERTER_TRIP_A {_number(params.inverter.hardware_trip_a)} "
+           f"#define RR_INVERTER_TRIP_A {_number(const['inverter_trip_a'])} "
            "/* gate drivers' overcurrent trip, phase peak */",
            ""]
-    line_side = params.transformer is not None
+    line_side = "line_nominal_v" in const
     out.append(f"#define RR_HAS_LINE_SIDE {int(line_side)}")
     if line_side:
-        out += [f"#define RR_LINE_NOMINAL_V {_number(params.supply.nominal_voltage_v)} "
+        out += [f"#define RR_LINE_NOMINAL_V {_number(const['line_nominal_v'])} "
                 "/* catenary, rms */",
-                f"#define RR_LINE_FREQUENCY_HZ {_number(params.supply.frequency_hz)}",
+                f"#define RR_LINE_FREQUENCY_HZ {_number(const['line_frequency_hz'])}",
                 f"#define RR_SECONDARY_VOLTAGE_V "
-                f"{_number(params.transformer.secondary_voltage_v)} "
+                f"{_number(const['secondary_voltage_v'])} "
                 "/* each traction winding, rms at nominal line voltage */"]
     out += ["",
             "/* topology: which DC link feeds which inverter and is fed by which line",
@@ -176,13 +179,13 @@ def _plant_constants(params: TrainsetParams, sm: SignalMap) -> list[str]:
             " * Use as initialisers: static const int x[RR_N_INVERTERS] = RR_INVERTER_LINK; */",
             f"#define RR_N_LINKS {len(params.dc_links)}",
             f"#define RR_LINK_NOMINAL_V "
-            f"{_initialiser(_number(k.voltage_v) for k in params.dc_links)}",
+            f"{_initialiser(_number(v) for v in const['link_nominal_v'])}",
             f"#define RR_LINK_Y_VOLTAGE "
             f"{_initialiser(y[k.name + '.voltage_v'] for k in params.dc_links)}",
             f"#define RR_LINK_U_CHOPPER_DUTY "
             f"{_initialiser(u.get(k.name + '.chopper_duty', -1) for k in params.dc_links)}",
             f"#define RR_N_INVERTERS {len(params.converters)}",
-            f"#define RR_INVERTER_LINK {_initialiser(c.dc_link for c in params.converters)}",
+            f"#define RR_INVERTER_LINK {_initialiser(const['inverter_links'])}",
             f"#define RR_INVERTER_MOTORS "
             f"{_initialiser(len(c.wheel_diameters_m) for c in params.converters)}"]
     for label, key, table in (("U_DUTY_A", "duty_a", u), ("U_DUTY_B", "duty_b", u),

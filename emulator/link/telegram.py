@@ -104,7 +104,8 @@ class TelegramCodec:
         head = self._got_header
         if msgpack_array.unpack(np.frombuffer(payload, dtype=np.uint8), head, values,
                                 self._scratch) == 0 and head[0] == self.version and (
-                                    head[5] == 0 or head[5] == self.map_digest):
+                                    head[5] == 0 or head[5] == self.map_digest) and (
+                                    head[3] >= 0 and head[4] >= 0):
             # the plain case, compiled; the ranges are checked as below
             values *= self._recv_scales
             if _first_bad(values, self._lo, self._hi, self._whole) < 0:
@@ -132,6 +133,9 @@ class TelegramCodec:
         if version != self.version:
             raise TelegramError("version", f"protocol version {version}, expected "
                                 f"{self.version}")
+        if period_us < 0 or flags < 0:
+            raise TelegramError("range", f"period_us {period_us} or flags {flags} is "
+                                "negative (both are unsigned)")
         if digest not in (0, self.map_digest):
             raise TelegramError("map", f"map digest 0x{digest % 2**64:08X}, the rig's is "
                                 f"0x{self.map_digest:08X} (0: not checked): the controller "

@@ -104,7 +104,7 @@ REJECTS = {
     "type": "a header field that is not an integer; a value that is not a number "
             "(booleans, strings, nil)",
     "non_finite": "NaN or infinity",
-    "range": "a value outside its physical range",
+    "range": "a value outside its physical range; a negative period_us or flags",
     "fractional": "a flag, enum or count that is not a whole number",
     "period": "a period_us the mode does not allow (see the period rules)",
 }
@@ -126,16 +126,20 @@ LOCKSTEP_PACING = (
     "measurement).",
     "A rejected telegram, or a serial frame that fails COBS or the CRC, paces nothing: "
     "the rig sends the current measurement again at once with the repeat flag (bit 6), "
-    "so one corrupted telegram costs one round trip.",
+    "so one corrupted telegram costs one round trip. A fourth rejected telegram in a "
+    "row for the same measurement runs the frame on the held command instead (flag bit "
+    "1; the watchdog counts it): a board that keeps answering with a bad telegram meets "
+    "the watchdog, not a frozen plant.",
     "A repeat request (controller flag bit 0) gets the current measurement again at "
-    "once, also flagged as a repeat.",
+    "once, also flagged as a repeat. After 64 immediate repeats in a row for damaged "
+    "frames or requests, the silence timer paces them.",
     "After silence the rig sends the current measurement again: once the measured round "
     "trips allow, after their retransmission timeout (SRTT + 4 RTTVAR, RFC 6298), at "
     "least 2 periods and at most `railrig serve --lockstep-repeat-ms` (default 20 "
     "periods, also the wait before 8 round trips are measured); then at doubling "
-    "intervals up to 1 s while the silence lasts. Either side may start first, and a "
-    "measurement lost on the way (or whose 0x00 delimiter was lost) is said again "
-    "without a request.",
+    "intervals up to 1 s until a frame runs on a round trip without a repeat. Either "
+    "side may start first, and a measurement lost on the way (or whose 0x00 delimiter "
+    "was lost) is said again without a request.",
     "A repeated measurement carries the same sequence: answer it with the same command "
     "(do not run your control a second time for it).",
 )

@@ -11,6 +11,7 @@ from __future__ import annotations
 import hashlib
 import json
 from dataclasses import asdict, dataclass
+from typing import Any
 
 from emulator.plant.params import TrainsetParams
 from emulator.protocol.header import (  # noqa: F401 (re-exported: the map's users import them here)
@@ -54,6 +55,9 @@ class SignalMap:
     version: int
     measurements: tuple[Signal, ...]  # rig -> controller, after the header
     commands: tuple[Signal, ...]  # controller -> rig, after the header
+    #: the trainset's constants a controller is built with (the board kit's header
+    #: exports them): name -> number or tuple of numbers, SI units as the names say
+    constants: tuple[tuple[str, Any], ...] = ()
 
     def index(self, direction: str, name: str) -> int:
         """Position of a signal in the body (0 = first after the header)."""
@@ -64,12 +68,15 @@ class SignalMap:
         raise KeyError(f"no {direction} signal {name!r}")
 
     def digest(self) -> int:
-        """A 32-bit digest of the layout: the version, the header, each signal's name,
-        unit, scale, range and kind in order (not the descriptions: a reworded one
-        leaves the digest). The first four bytes of SHA-256 over that as compact JSON."""
+        """A 32-bit digest of what a controller is built for: the version, the header,
+        each signal's name, unit, scale, range and kind in order (not the descriptions:
+        a reworded one leaves the digest), and the trainset's constants (a board built
+        for 25 kV 50 Hz differs from one for 15 kV 16.7 Hz with the same layout). The
+        first four bytes of SHA-256 over that as compact JSON."""
         layout = [self.version, list(HEADER)] + [
             [[s.name, s.unit, s.scale, s.lo, s.hi, s.kind] for s in table]
-            for table in (self.measurements, self.commands)]
+            for table in (self.measurements, self.commands)] + [
+            [[name, list(v) if isinstance(v, tuple) else v] for name, v in self.constants]]
         text = json.dumps(layout, separators=(",", ":"))
         return int.from_bytes(hashlib.sha256(text.encode()).digest()[:4], "big")
 
@@ -79,6 +86,8 @@ class SignalMap:
             "protocol_version": self.version,
             "header": list(HEADER),
             "map_digest": self.digest(),
+            "constants": {name: list(v) if isinstance(v, tuple) else v
+                          for name, v in self.constants},
             "flags": {str(bit): text for bit, text in FLAG_NAMES.items()},
             "controller_flags": {str(f.value): f.meaning for f in CONTROLLER_FLAGS},
             "measurements": [asdict(s) for s in self.measurements],
@@ -198,4 +207,28 @@ def build_signal_map(params: TrainsetParams) -> SignalMap:
         Signal("tcu.status", "1", 1.0, 0, 65535, "flag", "controller status bits (free use)"),
         Signal("tcu.event_code", "1", 1.0, 0, 65535, "enum", "last protective event code"),
     ]
-    return SignalMap(PROTOCOL_VERSION, tuple(meas), tuple(cmd))
+    return SignalMap(PROTOCOL_VERSION, tuple(meas), tuple(cmd), controller_constants(params))
+
+
+def controller_constants(params: TrainsetParams) -> tuple[tuple[str, Any], ...]:
+    """The trainset's constants a controller is built with, in a fixed order."""
+    mp, dt = params.machine, params.drivetrain
+    lines = int(getattr(params.sensors, "encoder_lines", 256)) if params.sensors else 256
+    out: list[tuple[str, Any]] = [
+        ("period_us", round(params.frame_s * 1e6)), ("encoder_lines", lines),
+        ("pole_pairs", int(mp.pole_pairs)), ("rated_voltage_v", float(mp.rated_voltage_v)),
+        ("rated_frequency_hz", float(mp.rated_frequency_hz)),
+        ("rated_power_w", float(mp.rated_power_w)), ("gear_ratio", float(dt.gear_ratio)),
+        ("wheel_diameters_m", tuple(float(d) for c in params.converters
+                                    for d in c.wheel_diameters_m)),
+        ("inverter_trip_a", float(params.inverter.hardware_trip_a)),
+        ("link_nominal_v", tuple(float(k.voltage_v) for k in params.dc_links)),
+        ("inverter_links", tuple(int(c.dc_link) for c in params.converters)),
+    ]
+    if params.transformer is not None:
+        out += [("line_nominal_v", float(params.supply.nominal_voltage_v)),
+                ("line_frequency_hz", float(params.supply.frequency_hz)),
+                ("secondary_voltage_v", float(params.transformer.secondary_voltage_v)),
+                ("line_converter_links", tuple(int(lc.dc_link)
+                                               for lc in params.line_converters))]
+    return tuple(out)

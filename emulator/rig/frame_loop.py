@@ -56,6 +56,12 @@ START_LEAD_NS = 20_000_000  # first deadline after warm-up
 LOCKSTEP_REPEAT_PERIODS = 20
 LOCKSTEP_REPEAT_MIN_PERIODS = 2  # never sooner than this
 LOCKSTEP_REPEAT_MAX_S = 1.0  # while the silence lasts, the interval doubles up to this
+LOCKSTEP_BAD_REPEATS = 3  # a rejected telegram gets y_k again this often, then is held
+#: a damaged frame or a repeat request gets y_k again at once this often in a row; then
+#: the silence timer paces (at a BER of 1e-3 the demo's round trip fails 93 % of the
+#: time: 64 in a row happens once in about 100 frames)
+LOCKSTEP_QUICK_REPEATS = 64
+LOCKSTEP_STOP_CHECK_S = 0.05  # a silence wait looks at the stop event this often
 LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking on it
 #: real time: a missing command counts against the controller only if it had at least
 #: (delay - FAIR_SLACK) periods between our measurement and the frame that wanted the
@@ -112,8 +118,10 @@ class Rig:
             raise RigError("watchdog must allow at least one missing frame")
         if lockstep_repeat_s is None:
             lockstep_repeat_s = LOCKSTEP_REPEAT_PERIODS * period_s
-        if not period_s <= lockstep_repeat_s <= LOCKSTEP_REPEAT_MAX_S:
-            raise RigError(f"lockstep repeat interval must be within one period and "
+        if not (LOCKSTEP_REPEAT_MIN_PERIODS * period_s <= lockstep_repeat_s
+                <= LOCKSTEP_REPEAT_MAX_S):
+            raise RigError(f"lockstep repeat interval must be within "
+                           f"{LOCKSTEP_REPEAT_MIN_PERIODS} periods and "
                            f"{LOCKSTEP_REPEAT_MAX_S * 1e3:g} ms, got "
                            f"{lockstep_repeat_s * 1e3:g} ms")
         self.lockstep_repeat_s = lockstep_repeat_s
@@ -205,6 +213,12 @@ class Rig:
                 self.health.rejected[exc.kind] += 1
                 self._flags |= FLAG_BAD_TELEGRAM
                 continue
+            period = tg.period_us
+            if period and not (MIN_PERIOD_US <= period <= MAX_PERIOD_US
+                               if self.mode == "lockstep" else period == self.period_us):
+                self.health.rejected["period"] += 1  # header.py, PERIOD_RULES
+                self._flags |= FLAG_BAD_TELEGRAM
+                continue
             if tg.flags & CFLAG_REPEAT_REQUEST:  # its sequence and values are not read
                 self.health.repeat_requests += 1
                 self._repeat_asked = True
@@ -223,12 +237,6 @@ class Rig:
                 if seq < self._last_seq:
                     self.health.reordered += 1
                 self._last_seq = max(self._last_seq, seq)
-                period = tg.period_us
-                if period and not (MIN_PERIOD_US <= period <= MAX_PERIOD_US
-                                   if self.mode == "lockstep" else period == self.period_us):
-                    self.health.rejected["period"] += 1  # header.py, PERIOD_RULES
-                    self._flags |= FLAG_BAD_TELEGRAM
-                    continue
                 self._answers[seq] = (tg.values, period)
                 self.health.accepted += 1
 
@@ -414,8 +422,12 @@ class Rig:
 
         The rules a board sees are in emulator/protocol/header.py (LOCKSTEP_PACING): a
         rejected telegram, a damaged serial frame or a repeat request gets y_k again at
-        once; silence gets it again after ``lockstep_repeat_s``, then at doubling
-        intervals (up to LOCKSTEP_REPEAT_MAX_S) while the silence lasts."""
+        once (a rejected one at most LOCKSTEP_BAD_REPEATS times for the same k, then the
+        frame runs on the held command, so a board that keeps sending a bad telegram
+        meets the watchdog rather than a frozen plant; damage and requests at most
+        LOCKSTEP_QUICK_REPEATS times, then the silence timer); silence gets it again
+        after ``_silence_s()``, then at doubling intervals (up to LOCKSTEP_REPEAT_MAX_S)
+        until a frame runs on a clean round trip (RFC 6298, 5.5 and 5.7)."""
         if self._sent_frame != self.frame:  # not when resuming a run already under way
             self._send_measurement(self.frame)
         self._sent_mono_ns = time.monotonic_ns()
@@ -423,26 +435,28 @@ class Rig:
         # controller's start-up: not a sample
         self.stats.restart_cpu_window()
         silence_s = self._silence_s()
-        stalled = 0  # measurements said again since the last frame ran
+        bad_repeats = quick_repeats = 0  # immediate repeats of y_k, by kind
         while not self._done(frames, stop):
             # poll briefly before blocking: a sleeping process wakes late on some machines
             # (tens of us to ms on a VM), which would pace lockstep more than the work does
             spin_until = time.monotonic_ns() + LOCKSTEP_POLL_NS
             while not self.link.pending() and time.monotonic_ns() < spin_until:
                 self.link.poll()
-            if not self.link.pending() and not await self.link.wait(silence_s):
+            if not self.link.pending() and not await self._wait_link(silence_s, stop):
+                if self._done(frames, stop):
+                    break
                 # the controller is silent (not started yet, or one of the telegrams was
                 # lost): plant time stands still; say the measurement again
                 self._repeat_measurement("silence")
                 silence_s = min(2 * silence_s, LOCKSTEP_REPEAT_MAX_S)
                 continue
-            silence_s = self._silence_s()
             paced = False
             repeat = ""
             while not self._done(frames, stop):
                 payload = self.link.take_one()
                 if payload is None:
                     break
+                arrived_ns = time.monotonic_ns()
                 k = self.frame
                 rejected = self.health.rejected.total()
                 dropped_by_fault = self.health.rejected["fault_dropped"]
@@ -453,21 +467,30 @@ class Rig:
                 injected_loss = self.health.rejected["fault_dropped"] != dropped_by_fault
                 if k not in self._answers and not injected_loss:  # (an injected loss runs
                     # the frame on the held command, as a lost command does in real time)
-                    if self.health.rejected.total() != rejected:
+                    if self.health.rejected.total() == rejected:
+                        continue  # a duplicate or stale telegram paces nothing
+                    if bad_repeats < LOCKSTEP_BAD_REPEATS:
                         repeat = "bad_telegram"
-                    continue  # a rejected, duplicate or stale telegram paces nothing
+                        continue  # asked again below
+                    # refused this often for the same k: the frame runs on the held command
                 repeat = ""
+                clean_sample = self._repeated != k  # Karn: no sample from a repeat
+                if clean_sample:  # y_k out, its answer in
+                    self._note_round_trip(arrived_ns - self._sent_mono_ns)
                 if (self.monitor is not None and not self.monitor.may_run()
                         and not await self.monitor.hold(stop)):
                     break  # stopped while paused (the controller waits for y_k meanwhile)
                 start = self.clock.now_ns()
-                if self._repeated != k:  # a clean round trip: y_k out, its answer in
-                    self._note_round_trip(time.monotonic_ns() - self._sent_mono_ns)
                 period = self._take_command(k) or self.period_us
                 self._step(period)
+                if self.link.take_damaged():  # seen with this batch: say so in y_(k+1)
+                    self._flags |= FLAG_FRAMING
                 self._send_measurement(self.frame)
                 self._sent_mono_ns = time.monotonic_ns()
                 paced = True
+                bad_repeats = quick_repeats = 0
+                if clean_sample:  # the backed-off wait stays until a clean sample
+                    silence_s = self._silence_s()
                 self.stats.record(0, self.clock.now_ns() - start, period * 1000)
                 if self.monitor is not None and self.frame % self.monitor.every == 0:
                     await asyncio.sleep(0)  # an in-process controller never waits: let
@@ -476,14 +499,29 @@ class Rig:
                 self._flags |= FLAG_FRAMING
                 if not paced:  # the answer to y_k was in it: ask again, now
                     repeat = repeat or "framing"
-            if repeat and not self._done(frames, stop):
-                self._repeat_measurement(repeat)
-                stalled += 1
-                if stalled % 16 == 0:  # a controller that answers every repeat at once
-                    await asyncio.sleep(0)  # with a bad telegram must not starve the
-                    # loop (stop, monitor, I/O)
-            elif paced:
-                stalled = 0
+            if not repeat or self._done(frames, stop):
+                continue
+            if repeat == "bad_telegram":
+                bad_repeats += 1
+            else:
+                quick_repeats += 1
+                if quick_repeats > LOCKSTEP_QUICK_REPEATS:
+                    continue  # a line this bad, or a board asking this often: the
+                    # silence timer paces the repeats from here
+            self._repeat_measurement(repeat)
+            if self.repeats % 16 == 0:
+                await asyncio.sleep(0)  # never starve the loop (stop, monitor, I/O)
+
+    async def _wait_link(self, timeout_s: float, stop: asyncio.Event | None) -> bool:
+        """Wait for the link up to timeout_s; False when the time ran out or stop was
+        set (checked every LOCKSTEP_STOP_CHECK_S, so a long silence wait ends soon)."""
+        deadline = time.monotonic() + timeout_s
+        while True:
+            left = deadline - time.monotonic()
+            if left <= 0 or (stop is not None and stop.is_set()):
+                return False
+            if await self.link.wait(min(left, LOCKSTEP_STOP_CHECK_S)):
+                return True
 
     def _note_round_trip(self, ns: int) -> None:
         """A lockstep round trip into the smoothed estimate (RFC 6298, section 2:

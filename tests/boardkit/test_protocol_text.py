@@ -77,3 +77,13 @@ def test_kit_of_a_dc_fed_trainset_builds(tmp_path) -> None:
     assert "#define RR_HAS_LINE_SIDE 0" in (tmp_path / "railrig_map.h").read_text()
     done = subprocess.run(["make", "-C", str(tmp_path)], capture_output=True, text=True)
     assert done.returncode == 0, done.stdout + done.stderr
+
+
+def test_each_shipped_trainset_has_its_own_digest() -> None:
+    # the same signal layout at 25 kV 50 Hz and 15 kV 16.7 Hz: a board built for one
+    # must not take the other's measurements (its PLL, its voltage scaling)
+    from emulator.profiles.reader import load_trainset
+
+    digests = {p.name: build_signal_map(load_trainset(p)).digest()
+               for p in sorted(PROFILES.glob("*.toml"))}
+    assert len(digests) >= 2 and len(set(digests.values())) == len(digests), digests

@@ -8,8 +8,10 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import os
+import time
 
 import msgpack
+import numpy as np
 import pytest
 
 from emulator.link import open_link
@@ -161,18 +163,55 @@ def test_lockstep_repeat_request_gets_the_measurement_again(params) -> None:
 
 
 def test_lockstep_silence_repeats_after_the_interval_then_doubling(params) -> None:
-    # a controller that stays silent for the first 0.1 s: the rig says y_0 again after
-    # 5 ms, 10, 20, 40 ms (doubling) ... and runs as soon as it answers
+    # a controller that stays silent: the rig says y_0 again after 5 ms, then 10, 20,
+    # 40 ms (doubling, RFC 6298 5.5), and sends nothing once it is stopped
+    sent: list[float] = []
+
+    def silent(rig, m):
+        sent.append(time.monotonic())
+        return None
+
     async def go():
-        rig, ctl = await make_rig(params, lambda rig, m: None, mode="lockstep",
-                                  lockstep_repeat_s=0.005)
-        await _run_briefly(rig, 0.1)
+        rig, _ = await make_rig(params, silent, mode="lockstep", lockstep_repeat_s=0.005)
+        rig.start()  # compile and warm up before the clock of this test starts
+        rig._started = True
+        stop = asyncio.Event()
+        t0 = time.monotonic()
+        asyncio.get_running_loop().call_later(0.1, stop.set)
+        await rig.run(stop=stop)
+        return rig, t0, time.monotonic()
+    rig, t0, stopped = run(go())
+    gaps = np.diff(sent)
+    nominal = 0.005 * 2.0 ** np.arange(len(gaps))
+    # a timer never fires early (asyncio rounds by its clock resolution, 1 ms allowed)
+    assert len(gaps) >= 2 and np.all(gaps >= nominal - 1e-3), gaps
+    assert sent[-1] <= t0 + 0.1 + 1e-3 <= stopped  # nothing sent after the stop
+    assert rig.repeat_causes == {"silence": len(gaps)} and rig.frame == 0
+    assert stopped - t0 < 0.1 + 0.06  # the silence wait looks at the stop every 50 ms
+
+
+def test_a_board_that_repeats_its_bad_answer_meets_the_watchdog_not_a_storm(params) -> None:
+    # a board that follows the repeat rule (the same answer for the same sequence) and
+    # whose answer to y_3 carries another map's digest: y_3 is said again three times,
+    # then frame 4 runs on the held command, and the run goes on
+    replies: dict[int, bytes] = {}
+
+    def answer(rig, m):
+        seq = m[H_SEQUENCE]
+        if seq not in replies:
+            reply = command(rig, seq)
+            replies[seq] = _with_header(reply, map_digest=1) if seq == 3 else reply
+        return replies[seq]
+
+    async def go():
+        rig, ctl = await make_rig(params, answer, mode="lockstep")
+        await asyncio.wait_for(rig.run(frames=8), 10.0)
         return rig, ctl
     rig, ctl = run(go())
-    # 5 + 10 + 20 + 40 = 75 ms < 0.1 s < 155 ms: four repeats; timer slack may cost one
-    assert rig.repeat_causes["silence"] in (3, 4), rig.repeat_causes
-    assert rig.frame == 0
-    assert all(msgpack.unpackb(p)[H_FLAGS] & FLAG_REPEAT for p in ctl.received[1:])
+    sequences = [msgpack.unpackb(p)[H_SEQUENCE] for p in ctl.received]
+    assert sequences == [0, 1, 2, 3, 3, 3, 3, 4, 5, 6, 7, 8]
+    assert rig.repeat_causes == {"bad_telegram": 3}
+    assert rig.health.rejected["map"] == 4 and rig.health.missing == 1
 
 
 def test_lockstep_repeat_interval_is_bounded(params) -> None:

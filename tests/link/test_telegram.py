@@ -87,3 +87,11 @@ def test_a_fractional_flag_is_rejected(flag: float) -> None:
 
 def test_a_whole_flag_sent_as_a_float_is_accepted() -> None:
     assert CODEC.decode(msgpack.packb([1, 0, 0, 0, 0, 0, 0, 0, 1.0, 0])).values[2] == 1.0
+
+
+@pytest.mark.parametrize("header", [[1, 0, 0, -1000, 0, 0], [1, 0, 0, 0, -1, 0]])
+def test_a_negative_period_or_flags_is_rejected(header) -> None:
+    # both are unsigned (protocol/header.py); -1 would otherwise read as every flag set
+    with pytest.raises(TelegramError, match="negative") as err:
+        CODEC.decode(msgpack.packb([*header, 0, 0, 1, 0]))
+    assert err.value.kind == "range"

@@ -64,7 +64,7 @@ typedef struct {
     int have_counts;
     unsigned long answered, flagged, repeated, repeat_requests;
     int64_t last_sequence;         /* the measurement answered last (-1: none yet) */
-    uint8_t last_reply[4096];      /* and the answer, for a measurement said again */
+    uint8_t last_reply[RR_PAYLOAD_CAP]; /* and the answer, for a measurement said again */
     size_t last_reply_len;
 } controller;
 
@@ -490,9 +490,10 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
         }
         for (i = 0; i < got; i++) {
             int n, m;
-            unsigned long damaged = (unsigned long)(rx.crc_errors + rx.cobs_errors);
+            unsigned long damaged = (unsigned long)rx.crc_errors + rx.cobs_errors
+                                    + rx.oversized;
             if (!rr_rx_push(&rx, chunk[i])) {
-                if ((unsigned long)(rx.crc_errors + rx.cobs_errors) != damaged) {
+                if ((unsigned long)rx.crc_errors + rx.cobs_errors + rx.oversized != damaged) {
                     /* a damaged frame from the rig: ask for the measurement again */
                     n = repeat_request(c, out, sizeof out);
                     m = n > 0 ? rr_frame_encode(out, (size_t)n, framed, sizeof framed) : 0;
