@@ -60,6 +60,9 @@ def add_arguments(serve: argparse.ArgumentParser) -> None:
                        help="allow a non-loopback UDP peer (a board on the lab network)")
     serve.add_argument("--report-json", default=None, help="write the run's counters here")
     serve.add_argument("--record", default=None, help="record every frame to this file")
+    serve.add_argument("--record-channels", default=None, metavar="SETS",
+                       help="--record: channel sets and globs, comma-separated (all, "
+                       "default, line, motors, link, or e.g. p.motor.*); default: default")
     serve.add_argument("--monitor", default=None, metavar="ADDRESS",
                        help="monitor endpoint: a Unix socket path or 127.0.0.1:PORT "
                        "(default: railrig-monitor.sock in the runtime directory)")
@@ -73,8 +76,10 @@ def run(args: argparse.Namespace) -> int:
     """Run the rig until the frame count, the duration, or Ctrl-C/SIGTERM."""
     from emulator.link import LinkError, open_link
     from emulator.monitor.endpoint import Monitor, MonitorError
+    from emulator.recording.channels import ChannelError, parse_channels, select_channels
     from emulator.rig.clock import MonotonicClock
     from emulator.rig.frame_loop import Rig, RigError
+    from emulator.scenario.runner import LINE_SIDE, MOTOR_SIDE
 
     if (args.link is None) == (args.controller is None):
         console.print("[red]error:[/red] give either --link or --controller reference")
@@ -101,7 +106,11 @@ def run(args: argparse.Namespace) -> int:
                                      else args.lockstep_repeat_ms / 1e3))
         monitor = None if args.no_monitor else Monitor(rig, args.monitor,
                                                         record_dir=args.record_dir)
-    except (LinkError, RigError, MonitorError) as exc:
+        channels = parse_channels(args.record_channels) or ["default"]
+        states = MOTOR_SIDE + (LINE_SIDE if rig.plant.line_side else [])
+        select_channels(rig.record_columns(states), channels)  # a wrong name is said
+        # now, not after the plant has started
+    except (LinkError, RigError, MonitorError, ChannelError) as exc:
         console.print(f"[red]error:[/red] {exc}")
         return 2
     if args.program == "demo":
@@ -139,7 +148,8 @@ def run(args: argparse.Namespace) -> int:
         frames = args.frames
         if args.duration is not None:
             frames = round(args.duration * 1e6 / rig.period_us)
-        recorder = rig.start_recording(args.record) if args.record else None
+        recorder = (rig.start_recording(args.record, channels=channels, states=states)
+                    if args.record else None)
         waiting = (asyncio.create_task(_say_until_first_telegram(rig, args.link))
                    if args.link else None)
         try:

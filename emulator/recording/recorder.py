@@ -2,22 +2,36 @@
 
 File layout (our own; all integers little-endian)::
 
-    chunk := b"RRC1" | length (uint32) | crc32 of the payload (uint32) | payload
-    payload of the first chunk: msgpack {"meta": {...}, "columns": [...]}
-    payload of the others:     msgpack {"frame0": int, "rows": int, "data": float64 bytes}
-                            or {"mark": {...}}: something that happened (a fault began,
-                            a driver step started), written after the rows before it
+    chunk := magic (4 bytes) | length (uint32) | crc32 of the payload (uint32) | payload
+
+Format 2 (magic ``RRC2``, written now):
+
+    first chunk: msgpack {"format": 2, "meta": {...}, "columns": [...], "kinds": [...],
+                 "scales": [...], "units": [...]}  (kinds and the block encoding:
+                 blocks.py; a scale is used by "wire" columns only)
+    then:        msgpack {"frame0": int, "rows": int, "types": str, "z": bytes}: a block
+                 of frames, column by column, compressed (blocks.py)
+              or {"mark": {...}}: something that happened (a fault began, a driver step
+                 started), written after the rows before it
+
+Format 1 (magic ``RRC1``, read only): the same envelope; rows as float64 bytes row by row
+(``{"frame0", "rows", "data"}``) after a first chunk ``{"meta", "columns"}``.
 
 CRC-32 is zlib's (the IEEE polynomial; check value 0xCBF43926 over "123456789"). Rows are
-buffered and written as a chunk at least every ``flush_s`` of wall time (and whenever the
-buffer is full), then handed to the operating system: a run killed with SIGKILL leaves a
-file whose chunks up to the last complete one read back intact. The reader stops at the
-first truncated or corrupt chunk and says so; it never raises on a damaged tail.
+buffered and handed to a writer thread as a block at least every ``flush_s`` of wall time
+(and whenever the buffer is full); the thread compresses and writes it and hands it to
+the operating system, so the frame loop never compresses. A run killed with SIGKILL
+leaves a file whose chunks up to the last complete one read back intact (losing at most
+``flush_s`` and the block being compressed). The reader stops at the first truncated or
+corrupt chunk and says so; it never raises on a damaged tail.
 """
 
 from __future__ import annotations
 
+import fnmatch
+import queue
 import struct
+import threading
 import time
 import zlib
 from dataclasses import dataclass
@@ -27,36 +41,88 @@ from typing import Any
 import msgpack
 import numpy as np
 
-MAGIC = b"RRC1"
+from .blocks import KINDS, decode_block, encode_block
+
+MAGIC = b"RRC2"
+MAGIC_V1 = b"RRC1"
+FORMAT = 2
 _HEAD = struct.Struct("<4sII")
 
 
 class RecordingError(ValueError):
-    """A file that is not a recording at all (its first chunk is unreadable)."""
+    """A file that is not a recording at all (its first chunk is unreadable), or one of
+    a format this version cannot read."""
 
 
 class Recorder:
-    """Writes rows of floats (one per frame) with a header of metadata and column names."""
+    """Writes rows of floats (one per frame) with a header of metadata and column names.
+
+    Args:
+        kinds: per column, how it is stored ("f64", "f32", "wire"; blocks.py); float64
+            for every column by default.
+        scales: per column, the wire scale of "wire" columns (physical = wire x scale).
+        units: per column, its unit (for readers and the MDF export).
+        chunk_rows: frames in a block at most.
+        flush_s: a block is written at least this often (wall time).
+        exclusive: create the file or raise FileExistsError, never overwrite one.
+    """
 
     def __init__(self, path: str | Path, columns: list[str], meta: dict[str, Any],
-                 chunk_rows: int = 256, flush_s: float = 0.1, exclusive: bool = False) -> None:
-        """``exclusive``: create the file or raise FileExistsError, never overwrite one."""
+                 chunk_rows: int = 1024, flush_s: float = 0.1, exclusive: bool = False,
+                 kinds: list[str] | None = None, scales: list[float] | None = None,
+                 units: list[str] | None = None) -> None:
         self.path = Path(path)
         self.columns = list(columns)
+        n = len(self.columns)
+        self.kinds = list(kinds) if kinds is not None else ["f64"] * n
+        self.scales = np.array(scales if scales is not None else [1.0] * n, dtype=float)
+        self.units = list(units) if units is not None else [""] * n
+        if not len(self.kinds) == len(self.scales) == len(self.units) == n:
+            raise ValueError("kinds, scales and units need one entry per column")
+        if set(self.kinds) - set(KINDS):
+            raise ValueError(f"storage kinds are {', '.join(KINDS)}")
+        wire = np.array([k == "wire" for k in self.kinds])
+        if np.any(self.scales[wire] <= 0):
+            raise ValueError("a wire column needs a positive scale")
+        self._inv = np.where(wire, 1.0 / np.where(wire, self.scales, 1.0), 0.0)
         self._fh = self.path.open("xb" if exclusive else "wb")
-        self._buf = np.zeros((chunk_rows, len(columns)))
+        self._buf = np.zeros((chunk_rows, n))
         self._n = 0
         self._frame0 = 0
         self._frames = 0
         self._flush_s = flush_s
         self._last_flush = time.monotonic()
-        self._write({"meta": meta, "columns": self.columns})
+        self._write({"format": FORMAT, "meta": meta, "columns": self.columns,
+                     "kinds": self.kinds, "scales": self.scales.tolist(),
+                     "units": self.units})
+        self._queue: queue.SimpleQueue = queue.SimpleQueue()
+        self._spare: list[np.ndarray] = []
+        self.error: BaseException | None = None
+        self._writer = threading.Thread(target=self._write_blocks, name="railrig-recorder",
+                                        daemon=True)
+        self._writer.start()
 
     def _write(self, obj: dict[str, Any]) -> None:
         payload = msgpack.packb(obj, use_bin_type=True)
         self._fh.write(_HEAD.pack(MAGIC, len(payload), zlib.crc32(payload)) + payload)
         self._fh.flush()  # to the OS: survives a killed process
-        self._last_flush = time.monotonic()
+
+    def _write_blocks(self) -> None:
+        """The writer thread: compress and write what the frame loop handed over."""
+        while True:
+            item = self._queue.get()
+            if item is None:
+                return
+            try:
+                if isinstance(item, dict):
+                    self._write({"mark": item})
+                    continue
+                frame0, buf, rows = item
+                types, z = encode_block(buf[:rows], self.kinds, self._inv)
+                self._write({"frame0": frame0, "rows": rows, "types": types, "z": z})
+                self._spare.append(buf)  # back to the frame loop (list ops are atomic)
+            except Exception as exc:  # a full disk: kept, reported at close
+                self.error = self.error or exc
 
     def append(self, row: np.ndarray) -> None:
         """Add one frame's values (as many as there are columns)."""
@@ -67,24 +133,30 @@ class Recorder:
             self.flush()
 
     def flush(self) -> None:
-        """Write the buffered rows as one chunk."""
+        """Hand the buffered rows to the writer as one block."""
+        self._last_flush = time.monotonic()
         if self._n:
-            self._write({"frame0": self._frame0, "rows": self._n,
-                         "data": self._buf[:self._n].tobytes()})
+            self._queue.put((self._frame0, self._buf, self._n))
             self._frame0 += self._n
             self._n = 0
+            self._buf = self._spare.pop() if self._spare else np.zeros_like(self._buf)
 
     def mark(self, **what: Any) -> None:
         """Note a moment (e.g. ``label=..., t=...``) in order with the rows."""
         if not self._fh.closed:
             self.flush()
-            self._write({"mark": what})
+            self._queue.put(what)
 
     def close(self) -> None:
-        """Flush and close."""
+        """Flush, let the writer finish, and close."""
         if not self._fh.closed:
             self.flush()
+            self._queue.put(None)
+            self._writer.join()
             self._fh.close()
+            if self.error is not None:
+                raise OSError(f"{self.path}: the recording could not be written: "
+                              f"{self.error}") from self.error
 
     def __enter__(self) -> Recorder:
         return self
@@ -103,6 +175,29 @@ class Recording:
     complete: bool  # False: the file ended in a truncated or corrupt chunk
     note: str = ""
     marks: list[dict[str, Any]] = None  # moments noted with Recorder.mark, in order
+    kinds: list[str] | None = None  # how each column was stored (blocks.py)
+    units: list[str] | None = None
+    format: int = FORMAT
+
+    def select(self, patterns: list[str] | None = None, from_s: float | None = None,
+               to_s: float | None = None) -> Recording:
+        """The columns matching any glob (``time_s`` always kept) within a time span."""
+        keep = list(range(len(self.columns)))
+        if patterns:
+            keep = [i for i, c in enumerate(self.columns)
+                    if c == "time_s" or any(fnmatch.fnmatchcase(c, p) for p in patterns)]
+        rows = np.ones(len(self.data), dtype=bool)
+        if "time_s" in self.columns and (from_s is not None or to_s is not None):
+            t = self.column("time_s")
+            rows &= (t >= from_s) if from_s is not None else rows
+            rows &= (t <= to_s) if to_s is not None else rows
+        def pick(xs: list) -> list:
+            return [xs[i] for i in keep]
+        return Recording(self.meta, pick(self.columns), self.data[np.ix_(rows, keep)],
+                         self.complete, self.note,
+                         [m for m in (self.marks or []) if _within(m, from_s, to_s)],
+                         pick(self.kinds) if self.kinds else None,
+                         pick(self.units) if self.units else None, self.format)
 
     def column(self, name: str) -> np.ndarray:
         """One column by name."""
@@ -110,16 +205,23 @@ class Recording:
 
 
 def read_recording(path: str | Path) -> Recording:
-    """Read every intact chunk; stop at the first damaged one."""
+    """Read every intact chunk of a recording of format 1 or 2; stop at the first
+    damaged one (and say so in ``note``)."""
     raw = Path(path).read_bytes()
+    magic = raw[:4]
+    if magic not in (MAGIC, MAGIC_V1):
+        if raw[:3] == b"RRC" and raw[3:4].isdigit():
+            raise RecordingError(f"{path}: a railrig recording of format {raw[3:4].decode()}, "
+                                 f"which this version (reads 1 and {FORMAT}) cannot read")
+        raise RecordingError(f"{path}: not a railrig recording")
     chunks, pos, note = [], 0, ""
     while pos < len(raw):
         if len(raw) - pos < _HEAD.size:
             note = f"truncated chunk header at byte {pos}"
             break
-        magic, length, crc = _HEAD.unpack_from(raw, pos)
+        found, length, crc = _HEAD.unpack_from(raw, pos)
         payload = raw[pos + _HEAD.size:pos + _HEAD.size + length]
-        if magic != MAGIC:
+        if found != magic:
             note = f"no chunk marker at byte {pos}"
             break
         if len(payload) < length:
@@ -128,19 +230,43 @@ def read_recording(path: str | Path) -> Recording:
         if zlib.crc32(payload) != crc:
             note = f"CRC mismatch in the chunk at byte {pos}"
             break
-        chunks.append(msgpack.unpackb(payload, raw=False))
+        try:
+            chunks.append(msgpack.unpackb(payload, raw=False))
+        except Exception:  # a CRC-valid chunk that is not msgpack: written by no railrig
+            note = f"unreadable chunk at byte {pos}"
+            break
         pos += _HEAD.size + length
     if not chunks or "columns" not in chunks[0]:
         raise RecordingError(f"{path}: not a railrig recording ({note or 'empty'})")
     head = chunks[0]
-    body = [c for c in chunks[1:] if "data" in c]
+    columns = head["columns"]
     marks = [c["mark"] for c in chunks[1:] if "mark" in c]
-    n_cols = len(head["columns"])
-    data = (np.concatenate([np.frombuffer(c["data"], dtype=np.float64).reshape(c["rows"],
-                                                                            n_cols)
-                            for c in body]) if body else np.zeros((0, n_cols)))
-    return Recording(head["meta"], head["columns"], data, complete=not note, note=note,
-                     marks=marks)
+    if magic == MAGIC_V1:
+        blocks = [np.frombuffer(c["data"], dtype=np.float64).reshape(c["rows"], len(columns))
+                  for c in chunks[1:] if "data" in c]
+    else:
+        scales = np.array(head["scales"], dtype=float)
+        blocks = []
+        for c in chunks[1:]:
+            if "z" not in c:
+                continue
+            try:
+                blocks.append(decode_block(c["types"], c["z"], c["rows"], scales))
+            except Exception as exc:  # zstd or layout fault behind a good CRC
+                note = f"undecodable block at frame {c.get('frame0')}: {exc}"
+                break
+    data = np.concatenate(blocks) if blocks else np.zeros((0, len(columns)))
+    return Recording(head["meta"], columns, data, complete=not note, note=note,
+                     marks=marks, kinds=head.get("kinds", ["f64"] * len(columns)),
+                     units=head.get("units", [""] * len(columns)),
+                     format=1 if magic == MAGIC_V1 else FORMAT)
+
+
+def _within(mark: dict[str, Any], from_s: float | None, to_s: float | None) -> bool:
+    t = mark.get("t")
+    if not isinstance(t, (int, float)):
+        return True
+    return (from_s is None or t >= from_s) and (to_s is None or t <= to_s)
 
 
 def export_csv(rec: Recording, path: str | Path) -> None:

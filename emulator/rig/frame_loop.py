@@ -69,6 +69,24 @@ LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking 
 FAIR_SLACK = 0.25
 
 
+#: recorded plant states with these in their names are kept at float64 (they accumulate)
+EXACT_STATE_WORDS = ("position", "energy", "time")
+#: the unit a column's name ends in (names carry their units: DESIGN.md)
+UNIT_SUFFIXES = (("_rad_s", "rad/s"), ("_mps2", "m/s^2"), ("_mps", "m/s"), ("_kmh", "km/h"),
+                 ("_degc", "degC"), ("_nm", "N m"), ("_kn", "kN"), ("_hz", "Hz"),
+                 ("_v", "V"), ("_a", "A"), ("_w", "W"), ("_n", "N"), ("_m", "m"),
+                 ("_s", "s"), ("_k", "K"), ("_j", "J"), ("_pct", "%"))
+
+
+def unit_from_name(name: str) -> str:
+    """The unit a recorded column's name says (``p.motor.speed_rad_s[3]`` -> rad/s)."""
+    base = name.split("[", 1)[0]
+    for suffix, unit in UNIT_SUFFIXES:
+        if base.endswith(suffix):
+            return unit
+    return ""
+
+
 class RigError(ValueError):
     """A rig setting that cannot be used."""
 
@@ -308,7 +326,7 @@ class Rig:
                 row[i:i + n] = array[key]
                 i += n
             row[i:] = self.extras
-            self.recorder.append(row)
+            self.recorder.append(row if self._record_pick is None else row[self._record_pick])
         if self.program is not None:
             self.program.update(self)  # the train's demands for the next measurement
         self._y = self.sampler.sample(period_us / 1e6, self.driver)
@@ -336,19 +354,53 @@ class Rig:
         self.extras = np.zeros(len(extras))
         cols += [f"p.{name}" for name in extras]
         self._row = np.zeros(len(cols))
+        self._record_pick = None  # all columns, unless start_recording chose some
+        self._columns = cols
         return cols
 
-    def start_recording(self, path: str, *, exclusive: bool = False, **meta: Any):
+    def record_storage(self, columns: list[str]) -> tuple[list[str], list[float], list[str]]:
+        """How each recorded column is stored (emulator/recording/blocks.py) and its unit:
+        measurements and commands as the wire integers they travel as, plant time and
+        the states that accumulate (positions, energies) as float64, other states as
+        float32."""
+        sm = self.signal_map
+        wire = {f"y.{s.name}": s for s in sm.measurements} | {f"u.{s.name}": s
+                                                              for s in sm.commands}
+        kinds, scales, units = [], [], []
+        for name in columns:
+            if name in wire:
+                kinds.append("wire")
+                scales.append(wire[name].scale)
+                units.append(wire[name].unit)
+                continue
+            exact = name == "time_s" or any(w in name for w in EXACT_STATE_WORDS)
+            kinds.append("f64" if exact else "f32")
+            scales.append(1.0)
+            units.append(unit_from_name(name))
+        return kinds, scales, units
+
+    def start_recording(self, path: str, *, exclusive: bool = False,
+                        channels: list[str] | None = None, states: list[str] = (),
+                        **meta: Any):
         """Record every frame from now on to ``path`` (time, y, u), headed with what a
         reader needs to know of the run; returns the emulator.recording.recorder.Recorder.
-        ``exclusive``: refuse (FileExistsError) rather than overwrite a file."""
+        ``exclusive``: refuse (FileExistsError) rather than overwrite a file.
+        ``channels``: channel set names and globs (emulator/recording/channels.py);
+        every column when None. ``states``: plant states to record beside y and u."""
         from emulator import __version__
+        from emulator.recording.channels import select_channels
         from emulator.recording.recorder import Recorder
 
-        self.recorder = Recorder(path, self.record_columns(), {
+        columns = self.record_columns(states)
+        pick = select_channels(columns, channels) if channels else list(range(len(columns)))
+        chosen = [columns[i] for i in pick]
+        kinds, scales, units = self.record_storage(chosen)
+        self.recorder = Recorder(path, chosen, {
             "profile": self.plant.params.source, "seed": self.seed, "mode": self.mode,
             "period_us": self.period_us, "version": __version__,
-            "started_at_s": self.plant.time_s, **meta}, exclusive=exclusive)
+            "started_at_s": self.plant.time_s, "channels": channels or ["all"], **meta},
+            exclusive=exclusive, kinds=kinds, scales=scales, units=units)
+        self._record_pick = None if len(pick) == len(columns) else np.array(pick)
         return self.recorder
 
     def start(self) -> None:

@@ -155,7 +155,8 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
         meta = {"railrig": emulator.__version__, "seed": seed, "mode": mode,
                 "controller": controller, "period_us": rig.period_us,
                 "name": scenario.name, **_texts(scenario)}
-        recorder = Recorder(path, columns, meta)
+        kinds, scales, units = rig.record_storage(columns)
+        recorder = Recorder(path, columns, meta, kinds=kinds, scales=scales, units=units)
         program = ScenarioProgram(scenario, rig, recorder)
         rig.program, rig.recorder = program, recorder
         rig.faults = FaultSet(rig, seed=seed)

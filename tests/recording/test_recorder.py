@@ -42,7 +42,7 @@ def chunks_of(raw: bytes) -> list[tuple[int, bytes]]:
     out, at = [], 0
     while at < len(raw):
         magic, length, crc = struct.unpack_from("<4sII", raw, at)
-        assert magic == b"RRC1"
+        assert magic == b"RRC2"
         out.append((crc, raw[at + 12:at + 12 + length]))
         at += 12 + length
     return out
