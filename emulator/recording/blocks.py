@@ -9,7 +9,8 @@ Storage kinds, per column:
 - ``wire``: the integer a telegram carries, value / scale rounded (measurements and
   commands: what crossed the link, exactly); read back as wire x scale. A block in which
   such a column has a value that is not finite or past int32 stores that column as
-  float64 instead (per block, said in the block's type string).
+  float64 instead (per block, said in the block's type string), and so does a block in
+  which a float32 column has a finite value past float32's range.
 
 Byte shuffle: the k-th bytes of all values of a column are stored together, so the
 slowly changing high bytes of neighbouring frames form long runs that the compressor
@@ -29,6 +30,7 @@ LEVEL = 3
 #: per-block type codes: d float64, f float32, i int32 wire units
 _ITEM = {"d": np.dtype("<f8"), "f": np.dtype("<f4"), "i": np.dtype("<i4")}
 _INT32 = 2**31 - 1
+_F32_MAX = float(np.finfo(np.float32).max)
 
 
 def encode_block(block: np.ndarray, kinds: list[str], inv_scales: np.ndarray) -> tuple[str, bytes]:
@@ -44,6 +46,8 @@ def encode_block(block: np.ndarray, kinds: list[str], inv_scales: np.ndarray) ->
                 codes.append("i")
                 parts.append(_shuffle(w.astype("<i4")))
                 continue
+            kind = "f64"
+        elif kind == "f32" and np.any(np.abs(x) > _F32_MAX):  # finite, past float32
             kind = "f64"
         code = "d" if kind == "f64" else "f"
         codes.append(code)

@@ -197,3 +197,49 @@ def test_rig_records_frames_and_export_command(tmp_path, params) -> None:
     assert main(["export", str(tmp_path / "run.rrec"), "--csv"]) == 0
     assert (tmp_path / "run.csv").read_text().startswith("time_s,y.")
     assert rig.frame == 300
+
+
+def test_rig_recording_with_a_channel_set_and_the_mdf_export_command(tmp_path, params) -> None:
+    # the rig keeps the measurements and commands as wire integers (what the telegrams
+    # carried) and the chosen set only; railrig export --mdf cuts channels and time
+    import asyncio
+
+    from asammdf import MDF
+
+    from emulator.cli import main
+    from tests.link.conftest import command, make_rig
+
+    async def go():
+        rig, ctl = await make_rig(params, lambda r, m: command(r, m[1]), ideal_dc_links=True)
+        rig.start_recording(str(tmp_path / "run.rrec"), channels=["link"],
+                            states=["train.speed_mps"])
+        await rig.run(frames=300)
+        rig.recorder.close()
+        return rig, ctl
+    rig, ctl = asyncio.run(go())
+    back = read_recording(tmp_path / "run.rrec")
+    assert back.columns[0] == "time_s" and not any(c.startswith("p.") for c in back.columns)
+    assert set(back.kinds[1:]) == {"wire"}
+    # y_k as recorded is y_k as the controller received it: wire value x scale
+    sm = rig.signal_map
+    i = sm.index("measurement", "DC-A.voltage_v")
+    sent = [msgpack_unpack(p)[6 + i] * sm.measurements[i].scale for p in ctl.received[:300]]
+    np.testing.assert_array_equal(back.column("y.DC-A.voltage_v"), sent)
+    assert main(["export", str(tmp_path / "run.rrec"), "--mdf", str(tmp_path / "cut.mf4"),
+                 "--channels", "y.DC-*", "--from-s", "0.1", "--to-s", "0.2"]) == 0
+    mdf = MDF(tmp_path / "cut.mf4")
+    try:
+        names = sorted(n for n in mdf.channels_db if n != "time")
+        assert names == sorted(c for c in back.columns if c.startswith("y.DC-"))
+        t = mdf.get(names[0]).timestamps
+        assert t[0] == pytest.approx(0.1) and t[-1] == pytest.approx(0.2)
+    finally:
+        mdf.close()
+    assert main(["export", str(tmp_path / "run.rrec"), "--mdf", str(tmp_path / "x.mf4"),
+                 "--channels", "p.nothing*"]) == 2
+
+
+def msgpack_unpack(payload: bytes) -> list:
+    import msgpack
+
+    return msgpack.unpackb(payload)

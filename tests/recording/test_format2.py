@@ -1,0 +1,164 @@
+"""Recording format 2: every column read back equals what was recorded at its stored
+precision (float64 exactly, float32 as numpy rounds it, wire columns as the integer a
+telegram carries times its scale), over random channel sets and block boundaries; format
+1 files (written here by their documented layout, apart from the recorder) still read;
+another format is named; channel sets; the MDF 4 export opened by asammdf with every
+channel, unit, event and value."""
+
+from __future__ import annotations
+
+import struct
+import zlib
+
+import msgpack
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from emulator.recording.channels import ChannelError, select_channels
+from emulator.recording.recorder import Recorder, RecordingError, read_recording
+
+SCALES = {"wire": [1.0, 0.1, 1e-4, 0.01], "f32": [1.0], "f64": [1.0]}
+
+
+def _expected(x: np.ndarray, kind: str, scale: float) -> np.ndarray:
+    """What a column must read back as (independent of blocks.py's code paths)."""
+    if kind == "f64":
+        return x
+    if kind == "f32":
+        if np.any(np.abs(x) > np.finfo(np.float32).max):  # past float32: kept float64
+            return x
+        return x.astype(np.float32).astype(np.float64)
+    wire = np.rint(x / scale)
+    if np.all(np.abs(wire) < 2**31):  # a block of wire integers
+        return wire * scale
+    return x  # a block with a value past int32 or not finite keeps float64
+
+
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.data())
+def test_round_trip_at_the_stored_precision(tmp_path_factory, data) -> None:
+    n_cols = data.draw(st.integers(1, 12))
+    kinds = data.draw(st.lists(st.sampled_from(["f64", "f32", "wire"]), min_size=n_cols,
+                               max_size=n_cols))
+    scales = [data.draw(st.sampled_from(SCALES[k])) for k in kinds]
+    rows = data.draw(st.integers(0, 700))
+    chunk_rows = data.draw(st.integers(1, 300))
+    rng = np.random.default_rng(data.draw(st.integers(0, 2**32 - 1)))
+    values = rng.normal(0.0, data.draw(st.sampled_from([1.0, 1e3, 1e6])), (rows, n_cols))
+    if rows and data.draw(st.booleans()):  # a NaN, an infinity, a huge value somewhere
+        values[rng.integers(rows), rng.integers(n_cols)] = data.draw(
+            st.sampled_from([np.nan, np.inf, -np.inf, 1e300]))
+    path = tmp_path_factory.mktemp("rt") / "r.rrec"
+    columns = [f"c{j}" for j in range(n_cols)]
+    with Recorder(path, columns, {"n": rows}, chunk_rows=chunk_rows, kinds=kinds,
+                  scales=scales, flush_s=1e9) as rec:  # blocks by size only
+        for i in range(rows):
+            rec.append(values[i])
+    back = read_recording(path)
+    assert back.complete and back.columns == columns and back.kinds == kinds
+    assert back.data.shape == (rows, n_cols)
+    for j, (kind, scale) in enumerate(zip(kinds, scales, strict=True)):
+        for b in range(0, rows, chunk_rows):  # block by block (the last one short)
+            got, want = back.data[b:b + chunk_rows, j], values[b:b + chunk_rows, j]
+            np.testing.assert_array_equal(got, _expected(want, kind, scale))
+
+
+def _v1_file(path, columns, rows: np.ndarray, marks=()) -> None:
+    """A format 1 recording, by the layout recorder.py documents for it."""
+    def chunk(obj) -> bytes:
+        payload = msgpack.packb(obj, use_bin_type=True)
+        return struct.pack("<4sII", b"RRC1", len(payload), zlib.crc32(payload)) + payload
+    out = chunk({"meta": {"seed": 3}, "columns": columns})
+    out += chunk({"frame0": 0, "rows": len(rows), "data": rows.astype("<f8").tobytes()})
+    for m in marks:
+        out += chunk({"mark": m})
+    path.write_bytes(out)
+
+
+def test_a_format_1_recording_still_reads(tmp_path) -> None:
+    rows = np.arange(12.0).reshape(4, 3) / 7
+    _v1_file(tmp_path / "old.rrec", ["time_s", "a", "b"], rows, [{"label": "x", "t": 0.1}])
+    back = read_recording(tmp_path / "old.rrec")
+    assert back.format == 1 and back.complete and back.meta == {"seed": 3}
+    np.testing.assert_array_equal(back.data, rows)
+    assert back.marks == [{"label": "x", "t": 0.1}]
+
+
+def test_another_format_is_named(tmp_path) -> None:
+    (tmp_path / "new.rrec").write_bytes(b"RRC7" + bytes(40))
+    with pytest.raises(RecordingError, match="format 7"):
+        read_recording(tmp_path / "new.rrec")
+
+
+def test_a_torn_last_block_is_reported_and_the_rest_read(tmp_path) -> None:
+    path = tmp_path / "t.rrec"
+    with Recorder(path, ["time_s", "x"], {}, chunk_rows=10, kinds=["f64", "f32"]) as rec:
+        for i in range(35):
+            rec.append(np.array([i * 1e-3, i * 0.5]))
+    raw = path.read_bytes()
+    path.write_bytes(raw[:-7])  # the last block (5 rows) torn
+    back = read_recording(path)
+    assert not back.complete and "truncated" in back.note
+    np.testing.assert_array_equal(back.column("x"), np.arange(30) * 0.5)
+
+
+COLUMNS = ["time_s", "y.line.voltage_v", "y.INV-A1.current_a_a", "u.INV-A1.duty_a",
+           "p.train.speed_mps", "p.motor.speed_rad_s[0]", "p.motor.torque_nm[0]",
+           "p.inverter.phase_current_a_a[0]", "p.line.emf_v"]
+
+
+@pytest.mark.parametrize(("spec", "kept"), [
+    (["all"], COLUMNS),
+    (["link"], COLUMNS[:4]),
+    (["motors"], ["time_s", "y.INV-A1.current_a_a", "u.INV-A1.duty_a", "p.train.speed_mps",
+                  "p.motor.speed_rad_s[0]", "p.motor.torque_nm[0]",
+                  "p.inverter.phase_current_a_a[0]"]),
+    (["default"], [c for c in COLUMNS if c != "p.inverter.phase_current_a_a[0]"]),
+    (["p.motor.*"], ["time_s", "p.motor.speed_rad_s[0]", "p.motor.torque_nm[0]"]),
+    (["link", "p.line.*"], [*COLUMNS[:4], "p.line.emf_v"]),
+])
+def test_channel_sets_and_globs(spec, kept) -> None:
+    assert [COLUMNS[i] for i in select_channels(COLUMNS, spec)] == kept
+
+
+def test_a_channel_that_is_nothing_is_an_error() -> None:
+    with pytest.raises(ChannelError, match="neither a set"):
+        select_channels(COLUMNS, ["p.nothing.*"])
+
+
+def test_mdf_export_opens_with_every_channel_unit_event_and_value(tmp_path) -> None:
+    asammdf = pytest.importorskip("asammdf")
+    from emulator.recording.mdf import export_mdf
+
+    path = tmp_path / "m.rrec"
+    kinds = ["f64", "wire", "wire", "wire", "f32", "f32", "f32", "f32", "f32"]
+    scales = [1.0, 1.0, 0.1, 1e-4, 1.0, 1.0, 1.0, 1.0, 1.0]
+    units = ["s", "V", "A", "1", "m/s", "rad/s", "N m", "A", "V"]
+    rng = np.random.default_rng(1)
+    with Recorder(path, COLUMNS, {"name": "mdf check", "scenario": {
+            "path": "x/case.toml", "text": "[scenario]\nname = 'x'\n"}},
+                  chunk_rows=64, kinds=kinds, scales=scales, units=units) as rec:
+        for i in range(500):
+            rec.append(np.concatenate([[i * 1e-3], rng.normal(0, 100, len(COLUMNS) - 1)]))
+            if i == 250:
+                rec.mark(label="fault on", what="start", t=0.25)
+    back = read_recording(path)
+    export_mdf(back, tmp_path / "m.mf4")
+    mdf = asammdf.MDF(tmp_path / "m.mf4")
+    try:
+        for j, name in enumerate(COLUMNS[1:], start=1):
+            sig = mdf.get(name)
+            assert sig.unit == units[j], name
+            np.testing.assert_array_equal(sig.timestamps, back.column("time_s"))
+            np.testing.assert_array_equal(np.asarray(sig.samples, dtype=float),
+                                          back.data[:, j])
+        events = list(mdf.events)
+        assert [e.name for e in events] == ["fault on"]
+        assert events[0].sync_base * events[0].sync_factor == pytest.approx(0.25)
+        data, name, _ = mdf.extract_attachment(0)
+        assert bytes(data).decode() == "[scenario]\nname = 'x'\n"
+    finally:
+        mdf.close()
