@@ -34,6 +34,10 @@ def add_arguments(bench: argparse.ArgumentParser) -> None:
     bench.add_argument("--board", default=None, metavar="COMMAND",
                        help="--serial-ber: the controller's command line with {device} for "
                        "its serial device (default: the reference controller)")
+    bench.add_argument("--recording", action="store_true",
+                       help="recording: MB per second of plant time by channel set, the "
+                       "frame loop's cost per frame, real time with and without a "
+                       "recording, MDF export time")
     bench.add_argument("--throughput", action="store_true",
                        help="the demo in lockstep with the reference controller in this "
                        "process and over UDP: real-time factors and each stage's cost per "
@@ -87,6 +91,8 @@ def run(args: argparse.Namespace) -> int:
         return 0
     if args.throughput:
         return _print_throughput(args, params.name)
+    if args.recording:
+        return _print_recording(args, params.name)
     if args.link and args.serial_ber:
         return _print_serial_ber(args, params)
     if args.link:
@@ -172,6 +178,44 @@ def _print_serial_ber(args: argparse.Namespace, params) -> int:
             ", ".join(f"{k} {v}" for k, v in row[key].items()) or "0"
             if isinstance(row[key], dict) else f"{row[key]:g}" for row in figures["rows"]))
     Console().print(table)
+    return 0
+
+
+def _print_recording(args: argparse.Namespace, name: str) -> int:
+    from emulator.bench.recording import recording_benchmark
+    from emulator.profiles.reader import resolve_profile
+
+    console.print(f"recording: {name}, the demo in lockstep to 90 s of plant time once "
+                  f"per channel set, then {args.seconds:g} s in real time without and "
+                  "with a recording")
+    figures = recording_benchmark(resolve_profile(args.profile), realtime_s=args.seconds)
+    if args.json:
+        print(json.dumps(figures))
+        return 0
+    out = Console()
+    sets = Table(title=f"Recording by channel set: {name}, {figures['plant_s']:g} s of "
+                 "plant time (lockstep)")
+    for col in ("set", "columns", "MB / plant s", "append us median", "p99", "max"):
+        sets.add_column(col, justify="left" if col == "set" else "right")
+    for set_name, f in figures["sets"].items():
+        sets.add_row(set_name, str(f["columns"]), f"{f['mb_per_plant_s']:.3f}",
+                     f"{f['append_us_median']:.2f}", f"{f['append_us_p99']:.1f}",
+                     f"{f['append_us_max']:.0f}")
+    out.print(sets)
+    rt = figures["realtime"]
+    table = pairs_table(f"Real time, {rt['seconds']:g} s each, in one run")
+    for label, key in (("without recording", "without_recording"),
+                       ("with the default set", "with_default_recording")):
+        f = rt[key]
+        table.add_row(f"{label}: late frames / p99 lateness",
+                      f"{f['late_frames']} / {f['lateness_us_p99']:.0f} us")
+    table.add_row("default set in real time",
+                  f"{rt['with_default_recording']['mb_per_plant_s']:.3f} MB/s, "
+                  f"{rt['one_hour_gb']:.2f} GB an hour")
+    table.add_row("MDF 4 export of the 'all' recording",
+                  f"{figures['mdf_export_s']:.2f} s for {figures['mdf_export_frames']} "
+                  f"frames ({figures['mdf_mb']:.0f} MB)")
+    out.print(table)
     return 0
 
 

@@ -35,25 +35,47 @@ _F32_MAX = float(np.finfo(np.float32).max)
 
 def encode_block(block: np.ndarray, kinds: list[str], inv_scales: np.ndarray) -> tuple[str, bytes]:
     """Frames x columns (float64) -> (type string, one char per column; compressed
-    bytes). ``inv_scales``: 1 / scale of each wire column (others unused)."""
-    codes = []
-    parts = []
-    for j, kind in enumerate(kinds):
-        x = block[:, j]
-        if kind == "wire":
-            w = np.rint(x * inv_scales[j])
-            if np.all(np.abs(w) <= _INT32):  # False for NaN and infinity too
-                codes.append("i")
-                parts.append(_shuffle(w.astype("<i4")))
-                continue
-            kind = "f64"
-        elif kind == "f32" and np.any(np.abs(x) > _F32_MAX):  # finite, past float32
-            kind = "f64"
-        code = "d" if kind == "f64" else "f"
-        codes.append(code)
-        parts.append(_shuffle(x.astype(_ITEM[code])))
+    bytes). ``inv_scales``: 1 / scale of each wire column (others unused).
+
+    Whole-array operations per storage type, not per column: the writer thread holds
+    the interpreter for microseconds a block, not milliseconds, so the frame loop it
+    shares the process with does not wait for it (DESIGN.md, timing facts); the
+    compressor itself runs without the interpreter lock."""
+    kinds_arr = np.asarray(kinds)
+    rows = block.shape[0]
+    codes = np.full(len(kinds), "d")
+    pieces: list = [b""] * len(kinds)
+    wire = np.flatnonzero(kinds_arr == "wire")
+    if wire.size:
+        with np.errstate(invalid="ignore", over="ignore"):
+            w = np.rint(block[:, wire] * inv_scales[wire])
+            ok = np.all(np.abs(w) <= _INT32, axis=0)  # False for NaN and infinity too
+        _place(pieces, codes, wire[ok], "i", w[:, ok], rows)
+    f32 = np.flatnonzero(kinds_arr == "f32")
+    if f32.size:
+        x = block[:, f32]
+        fits = ~np.any(np.abs(x) > _F32_MAX, axis=0)  # finite values past float32 stay f64
+        _place(pieces, codes, f32[fits], "f", x[:, fits], rows)
+    rest = np.flatnonzero(codes == "d")  # float64 columns, and those that did not fit
+    _place(pieces, codes, rest, "d", block[:, rest], rows)
     compressor = zstandard.ZstdCompressor(level=LEVEL)
-    return "".join(codes), compressor.compress(b"".join(parts))
+    return "".join(codes.tolist()), compressor.compress(b"".join(pieces))
+
+
+def _place(pieces: list, codes: np.ndarray, columns: np.ndarray, code: str,
+           values: np.ndarray, rows: int) -> None:
+    """Cast values (rows x len(columns)) to the code's type, shuffle each column's bytes,
+    and put each column's bytes at its place."""
+    if not columns.size:
+        return
+    item = _ITEM[code]
+    cast = np.ascontiguousarray(values.T, dtype=item)  # column by column
+    shuffled = cast.view(np.uint8).reshape(len(columns), rows, item.itemsize)
+    shuffled = np.ascontiguousarray(shuffled.transpose(0, 2, 1))  # byte k of all rows
+    flat = shuffled.reshape(len(columns), -1)  # each row contiguous: a buffer to join
+    for n, j in enumerate(columns.tolist()):
+        pieces[j] = flat[n]
+        codes[j] = code
 
 
 def decode_block(codes: str, payload: bytes, rows: int, scales: np.ndarray) -> np.ndarray:
@@ -74,6 +96,3 @@ def decode_block(codes: str, payload: bytes, rows: int, scales: np.ndarray) -> n
     return out
 
 
-def _shuffle(a: np.ndarray) -> bytes:
-    """The values' bytes grouped by byte position (all first bytes, then all second)."""
-    return a.view(np.uint8).reshape(len(a), a.itemsize).T.tobytes()
