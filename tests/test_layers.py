@@ -33,7 +33,7 @@ MAY_IMPORT: dict[str, set[str]] = {
     "scenario": {"plant", "rig", "link", "protocol", "faults", "monitor", "profiles",
                  "recording", "controller"},
     "bench": {"plant", "rig", "link", "protocol", "monitor", "profiles", "controller",
-              "scenario"},
+              "scenario", "recording"},
     "commands": {"plant", "rig", "link", "protocol", "faults", "monitor", "profiles",
                  "recording", "controller", "scenario", "bench", "tui", "boardkit"},
 }

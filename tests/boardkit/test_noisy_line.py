@@ -79,7 +79,7 @@ def test_lockstep_recovers_from_every_spoiled_frame(kit_dir, ber) -> None:
         assert causes.get("request", 0) > 0, causes
 
 
-@pytest.mark.parametrize("ber", [1e-5, 1e-4])
+@pytest.mark.parametrize("ber", [0.0, 1e-5, 1e-4, 1e-3])
 def test_real_time_holds_one_frame_per_spoiled_frame(kit_dir, ber) -> None:
     result, log = _over_the_cable(kit_dir, ber, "realtime", seconds=3.0)
     report = result["report"]
@@ -99,4 +99,6 @@ def test_real_time_holds_one_frame_per_spoiled_frame(kit_dir, ber) -> None:
     requests_spoiled = n * p + 3.0 * math.sqrt(n * p * (1.0 - p)) + 1.0
     assert held <= spoiled + 0.01 * result["frames"]
     assert held + excused >= spoiled - requests_spoiled
-    assert report["link"]["watchdog_trips"] == 0
+    if ber <= 1e-4:  # at 1e-3 most frames are spoiled: ten in a row trip the watchdog,
+        # as they should (the README's watchdog rule)
+        assert report["link"]["watchdog_trips"] == 0
