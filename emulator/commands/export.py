@@ -20,8 +20,8 @@ def add_arguments(export: argparse.ArgumentParser) -> None:
     export.add_argument("--npz", action="store_true",
                         help="write FILE.npz (the default when nothing else is asked)")
     export.add_argument("--channels", default=None, metavar="GLOBS",
-                        help="only these columns, comma-separated globs (time_s is kept), "
-                        "e.g. 'y.INV-A1.*,p.train.*'")
+                        help="only these columns: channel sets and globs, comma-separated "
+                        "(time_s is kept), e.g. 'motors' or 'y.INV-A1.*,p.train.*'")
     export.add_argument("--from-s", type=float, default=None, help="from this plant time")
     export.add_argument("--to-s", type=float, default=None, help="up to this plant time")
 
@@ -43,10 +43,12 @@ def run(args: argparse.Namespace) -> int:
     if not rec.complete:
         console.print(f"[yellow]note:[/yellow] {rec.note}; exporting the "
                       f"{len(rec.data)} frames before it")
-    patterns = [p.strip() for p in args.channels.split(",")] if args.channels else None
-    rec = rec.select(patterns, args.from_s, args.to_s)
-    if len(rec.columns) <= 1 and patterns:
-        console.print(f"[red]error:[/red] no column matches {args.channels!r}")
+    from emulator.recording.channels import ChannelError, parse_channels
+
+    try:
+        rec = rec.select(parse_channels(args.channels), args.from_s, args.to_s)
+    except ChannelError as exc:
+        console.print(f"[red]error:[/red] {exc}")
         return 2
     if len(rec.data) == 0:
         console.print("[red]error:[/red] no frame in that time span")

@@ -135,9 +135,15 @@ def run(args: argparse.Namespace) -> int:
 
 
 def compare(a, b) -> tuple[bool, str]:
-    """Whether two recordings hold the same frames bit for bit, and where they part."""
+    """Whether two recordings hold the same frames bit for bit, and where they part. A
+    recording of format 1 (every column float64) is compared at the precision the new
+    one stores each column with (emulator/recording/blocks.py)."""
+    from emulator.recording.recorder import at_stored_precision
+
     if a.columns != b.columns:
         return False, "the recordings have different columns"
+    if a.format != b.format and b.kinds is not None:
+        a = at_stored_precision(a, b.kinds, b.scales)
     n = min(len(a.data), len(b.data))
     diff = np.flatnonzero((a.data[:n].view(np.uint64) != b.data[:n].view(np.uint64)).any(1))
     if diff.size:

@@ -419,6 +419,8 @@ class Monitor(OperatorCommands):
             if now - last > 0.2:
                 self.publish()
                 last = now
+                if self.rig.recorder is not None:
+                    self.rig.recorder.tick()  # rows before the pause reach the disk
             with contextlib.suppress(TimeoutError):
                 await asyncio.wait_for(self.resumed.wait(), 0.05)
         return False

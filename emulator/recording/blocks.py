@@ -6,11 +6,16 @@ Storage kinds, per column:
 - ``f64``: float64 as computed (plant time, positions, energies: what must stay exact);
 - ``f32``: float32 (plant states: 24 bits of mantissa, a relative step of 6e-8, far
   finer than any model's accuracy);
-- ``wire``: the integer a telegram carries, value / scale rounded (measurements and
-  commands: what crossed the link, exactly); read back as wire x scale. A block in which
-  such a column has a value that is not finite or past int32 stores that column as
-  float64 instead (per block, said in the block's type string), and so does a block in
-  which a float32 column has a finite value past float32's range.
+- ``sent``: the integer a telegram carried, value x (1 / scale) rounded half to even as
+  the telegram codec rounds it (measurements: what the controller received); read back
+  as wire x scale;
+- ``wire``: the same integer where the value is one exactly (commands: the rig applies
+  wire x scale; a controller may also send floats, which are kept as they were).
+
+A block in which a ``sent`` or ``wire`` column has a value that is not finite, past
+int32, or (``wire``) off the grid stores that column as float64 instead (per block, said
+in the block's type string), and so does a block in which a float32 column has a finite
+value past float32's range.
 
 Byte shuffle: the k-th bytes of all values of a column are stored together, so the
 slowly changing high bytes of neighbouring frames form long runs that the compressor
@@ -25,7 +30,7 @@ from __future__ import annotations
 import numpy as np
 import zstandard
 
-KINDS = ("f64", "f32", "wire")
+KINDS = ("f64", "f32", "sent", "wire")
 LEVEL = 3
 #: per-block type codes: d float64, f float32, i int32 wire units
 _ITEM = {"d": np.dtype("<f8"), "f": np.dtype("<f4"), "i": np.dtype("<i4")}
@@ -33,9 +38,9 @@ _INT32 = 2**31 - 1
 _F32_MAX = float(np.finfo(np.float32).max)
 
 
-def encode_block(block: np.ndarray, kinds: list[str], inv_scales: np.ndarray) -> tuple[str, bytes]:
+def encode_block(block: np.ndarray, kinds: list[str], scales: np.ndarray) -> tuple[str, bytes]:
     """Frames x columns (float64) -> (type string, one char per column; compressed
-    bytes). ``inv_scales``: 1 / scale of each wire column (others unused).
+    bytes). ``scales``: the wire scale of each sent or wire column (others unused).
 
     Whole-array operations per storage type, not per column: the writer thread holds
     the interpreter for microseconds a block, not milliseconds, so the frame loop it
@@ -45,11 +50,16 @@ def encode_block(block: np.ndarray, kinds: list[str], inv_scales: np.ndarray) ->
     rows = block.shape[0]
     codes = np.full(len(kinds), "d")
     pieces: list = [b""] * len(kinds)
-    wire = np.flatnonzero(kinds_arr == "wire")
+    wire = np.flatnonzero((kinds_arr == "wire") | (kinds_arr == "sent"))
     if wire.size:
+        x = block[:, wire]
+        scale = np.asarray(scales, dtype=float)[wire]
         with np.errstate(invalid="ignore", over="ignore"):
-            w = np.rint(block[:, wire] * inv_scales[wire])
+            w = np.rint(x * (1.0 / scale))  # as the telegram codec rounds (link/telegram.py)
             ok = np.all(np.abs(w) <= _INT32, axis=0)  # False for NaN and infinity too
+            exact = kinds_arr[wire] == "sent"
+            exact |= np.all(w * scale == x, axis=0)  # read back as wire x scale
+        ok &= exact
         _place(pieces, codes, wire[ok], "i", w[:, ok], rows)
     f32 = np.flatnonzero(kinds_arr == "f32")
     if f32.size:
@@ -80,8 +90,15 @@ def _place(pieces: list, codes: np.ndarray, columns: np.ndarray, code: str,
 
 def decode_block(codes: str, payload: bytes, rows: int, scales: np.ndarray) -> np.ndarray:
     """The inverse of encode_block: frames x columns, float64 (wire x scale for the
-    wire columns)."""
-    raw = zstandard.ZstdDecompressor().decompress(payload)
+    wire columns). Raises ValueError for a block that does not hold what it says."""
+    if not isinstance(codes, str) or len(codes) != len(scales) or set(codes) - set(_ITEM):
+        raise ValueError("the block's type string does not fit the columns")
+    if type(rows) is not int or rows < 0 or not isinstance(payload, bytes):
+        raise ValueError("the block's row count or data is not what a block holds")
+    size = rows * sum(_ITEM[c].itemsize for c in codes)
+    raw = zstandard.ZstdDecompressor().decompress(payload, max_output_size=max(size, 1))
+    if len(raw) != size:
+        raise ValueError(f"a block of {len(raw)} bytes where its columns need {size}")
     out = np.empty((rows, len(codes)))
     at = 0
     for j, code in enumerate(codes):
@@ -91,8 +108,4 @@ def decode_block(codes: str, payload: bytes, rows: int, scales: np.ndarray) -> n
         values = col.T.copy().view(item).reshape(rows)
         out[:, j] = values * scales[j] if code == "i" else values
         at += n
-    if at != len(raw):
-        raise ValueError(f"a block of {len(raw)} bytes holds {at} for its columns")
     return out
-
-

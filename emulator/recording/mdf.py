@@ -28,7 +28,8 @@ _WHAT = {"y": "measurement as sent to the controller (wire value x scale)",
 
 def _comment(name: str, kind: str) -> str:
     what = _WHAT.get(name.split(".", 1)[0], "")
-    stored = {"wire": "stored as the wire integer", "f32": "stored as float32",
+    stored = {"sent": "stored as the wire integer sent", "wire": "stored as the wire "
+              "integer (float64 where a controller sent a float)", "f32": "stored as float32",
               "f64": "stored as float64"}.get(kind, "")
     return "; ".join(x for x in (what, stored) if x)
 
@@ -45,8 +46,9 @@ def export_mdf(rec: Recording, path: str | Path) -> None:
         if name == "time_s":
             continue
         samples = rec.data[:, j]
-        if kinds[j] == "f32":
-            samples = samples.astype(np.float32)  # what was stored, no wider
+        if kinds[j] == "f32" and not np.any(np.abs(samples) > np.finfo(np.float32).max):
+            samples = samples.astype(np.float32)  # what was stored, no wider (a block
+            # kept at float64 for a value past float32 keeps the column float64)
         signals.append(Signal(samples=samples, timestamps=t, name=name, unit=units[j],
                               comment=_comment(name, kinds[j])))
     mdf = MDF(version="4.10")

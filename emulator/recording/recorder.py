@@ -28,11 +28,13 @@ corrupt chunk and says so; it never raises on a damaged tail.
 
 from __future__ import annotations
 
-import fnmatch
+import atexit
+import contextlib
 import queue
 import struct
 import threading
 import time
+import weakref
 import zlib
 from dataclasses import dataclass
 from pathlib import Path
@@ -47,6 +49,29 @@ MAGIC = b"RRC2"
 MAGIC_V1 = b"RRC1"
 FORMAT = 2
 _HEAD = struct.Struct("<4sII")
+
+
+#: blocks waiting for the writer at most (about 25 s of frames in real time)
+QUEUE_BLOCKS = 256
+_OPEN: weakref.WeakSet = weakref.WeakSet()
+
+
+@atexit.register
+def _close_open_recorders() -> None:
+    """A recording not closed when the interpreter exits (an exception past the
+    caller, Ctrl-C) still gets its buffered rows written."""
+    for recorder in list(_OPEN):
+        with contextlib.suppress(Exception):
+            recorder.close()
+
+
+def _plain(value: Any) -> Any:
+    """numpy scalars and arrays as Python numbers and lists, for msgpack."""
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    raise TypeError(f"a mark cannot hold {type(value).__name__} values")
 
 
 class RecordingError(ValueError):
@@ -81,10 +106,9 @@ class Recorder:
             raise ValueError("kinds, scales and units need one entry per column")
         if set(self.kinds) - set(KINDS):
             raise ValueError(f"storage kinds are {', '.join(KINDS)}")
-        wire = np.array([k == "wire" for k in self.kinds])
+        wire = np.array([k in ("wire", "sent") for k in self.kinds], dtype=bool)
         if np.any(self.scales[wire] <= 0):
             raise ValueError("a wire column needs a positive scale")
-        self._inv = np.where(wire, 1.0 / np.where(wire, self.scales, 1.0), 0.0)
         self._fh = self.path.open("xb" if exclusive else "wb")
         self._buf = np.zeros((chunk_rows, n))
         self._n = 0
@@ -95,12 +119,15 @@ class Recorder:
         self._write({"format": FORMAT, "meta": meta, "columns": self.columns,
                      "kinds": self.kinds, "scales": self.scales.tolist(),
                      "units": self.units})
-        self._queue: queue.SimpleQueue = queue.SimpleQueue()
+        # bounded: a writer that falls behind (a stalled disk) holds the frame loop
+        # rather than letting the unwritten backlog grow without end
+        self._queue: queue.Queue = queue.Queue(maxsize=QUEUE_BLOCKS)
         self._spare: list[np.ndarray] = []
         self.error: BaseException | None = None
         self._writer = threading.Thread(target=self._write_blocks, name="railrig-recorder",
                                         daemon=True)
         self._writer.start()
+        _OPEN.add(self)  # closed at interpreter exit if nobody did (atexit below)
 
     def _write(self, obj: dict[str, Any]) -> None:
         payload = msgpack.packb(obj, use_bin_type=True)
@@ -118,7 +145,7 @@ class Recorder:
                     self._write({"mark": item})
                     continue
                 frame0, buf, rows = item
-                types, z = encode_block(buf[:rows], self.kinds, self._inv)
+                types, z = encode_block(buf[:rows], self.kinds, self.scales)
                 self._write({"frame0": frame0, "rows": rows, "types": types, "z": z})
                 self._spare.append(buf)  # back to the frame loop (list ops are atomic)
             except Exception as exc:  # a full disk: kept, reported at close
@@ -132,8 +159,17 @@ class Recorder:
         if self._n == len(self._buf) or time.monotonic() - self._last_flush >= self._flush_s:
             self.flush()
 
+    def tick(self) -> None:
+        """Hand over buffered rows that are due (call while no frames come: a silent
+        controller in lockstep, a paused run), so that they reach the disk in time."""
+        if self._n and time.monotonic() - self._last_flush >= self._flush_s:
+            self.flush()
+
     def flush(self) -> None:
         """Hand the buffered rows to the writer as one block."""
+        if self.error is not None:
+            raise OSError(f"{self.path}: the recording could not be written: "
+                          f"{self.error}") from self.error
         self._last_flush = time.monotonic()
         if self._n:
             self._queue.put((self._frame0, self._buf, self._n))
@@ -142,18 +178,23 @@ class Recorder:
             self._buf = self._spare.pop() if self._spare else np.zeros_like(self._buf)
 
     def mark(self, **what: Any) -> None:
-        """Note a moment (e.g. ``label=..., t=...``) in order with the rows."""
+        """Note a moment (e.g. ``label=..., t=...``) in order with the rows; a value
+        msgpack cannot hold raises TypeError here (numpy scalars are taken as numbers)."""
         if not self._fh.closed:
+            plain = msgpack.unpackb(msgpack.packb(what, default=_plain, use_bin_type=True),
+                                    raw=False)
             self.flush()
-            self._queue.put(what)
+            self._queue.put(plain)
 
     def close(self) -> None:
         """Flush, let the writer finish, and close."""
         if not self._fh.closed:
-            self.flush()
+            with contextlib.suppress(OSError):  # said below, once the writer has stopped
+                self.flush()
             self._queue.put(None)
             self._writer.join()
             self._fh.close()
+            _OPEN.discard(self)
             if self.error is not None:
                 raise OSError(f"{self.path}: the recording could not be written: "
                               f"{self.error}") from self.error
@@ -178,26 +219,30 @@ class Recording:
     kinds: list[str] | None = None  # how each column was stored (blocks.py)
     units: list[str] | None = None
     format: int = FORMAT
+    scales: list[float] | None = None  # the wire scale of sent and wire columns
 
     def select(self, patterns: list[str] | None = None, from_s: float | None = None,
                to_s: float | None = None) -> Recording:
-        """The columns matching any glob (``time_s`` always kept) within a time span."""
-        keep = list(range(len(self.columns)))
-        if patterns:
-            keep = [i for i, c in enumerate(self.columns)
-                    if c == "time_s" or any(fnmatch.fnmatchcase(c, p) for p in patterns)]
+        """The columns a channel spec keeps (set names and globs, channels.py; time_s
+        always kept; ChannelError for an item that is nothing) within a time span."""
+        from .channels import select_channels
+
+        keep = select_channels(self.columns, patterns) if patterns else list(
+            range(len(self.columns)))
         rows = np.ones(len(self.data), dtype=bool)
-        if "time_s" in self.columns and (from_s is not None or to_s is not None):
+        if "time_s" in self.columns:
             t = self.column("time_s")
-            rows &= (t >= from_s) if from_s is not None else rows
-            rows &= (t <= to_s) if to_s is not None else rows
-        def pick(xs: list) -> list:
-            return [xs[i] for i in keep]
+            if from_s is not None:
+                rows &= t >= from_s
+            if to_s is not None:
+                rows &= t <= to_s
+
+        def pick(xs: list | None) -> list | None:
+            return None if xs is None else [xs[i] for i in keep]
         return Recording(self.meta, pick(self.columns), self.data[np.ix_(rows, keep)],
                          self.complete, self.note,
                          [m for m in (self.marks or []) if _within(m, from_s, to_s)],
-                         pick(self.kinds) if self.kinds else None,
-                         pick(self.units) if self.units else None, self.format)
+                         pick(self.kinds), pick(self.units), self.format, pick(self.scales))
 
     def column(self, name: str) -> np.ndarray:
         """One column by name."""
@@ -236,30 +281,76 @@ def read_recording(path: str | Path) -> Recording:
             note = f"unreadable chunk at byte {pos}"
             break
         pos += _HEAD.size + length
-    if not chunks or "columns" not in chunks[0]:
-        raise RecordingError(f"{path}: not a railrig recording ({note or 'empty'})")
-    head = chunks[0]
-    columns = head["columns"]
-    marks = [c["mark"] for c in chunks[1:] if "mark" in c]
-    if magic == MAGIC_V1:
-        blocks = [np.frombuffer(c["data"], dtype=np.float64).reshape(c["rows"], len(columns))
-                  for c in chunks[1:] if "data" in c]
-    else:
-        scales = np.array(head["scales"], dtype=float)
-        blocks = []
-        for c in chunks[1:]:
-            if "z" not in c:
+    head = _header(path, chunks, magic, note)
+    columns, n = head["columns"], len(head["columns"])
+    scales = np.array(head["scales"], dtype=float)
+    marks: list[dict[str, Any]] = []
+    blocks: list[np.ndarray] = []
+    frames = 0
+    for c in chunks[1:]:
+        try:
+            if not isinstance(c, dict):
+                raise ValueError("a chunk that is not a table")
+            if "mark" in c:
+                if not isinstance(c["mark"], dict):
+                    raise ValueError("a mark that is not a table")
+                marks.append(c["mark"])
                 continue
-            try:
-                blocks.append(decode_block(c["types"], c["z"], c["rows"], scales))
-            except Exception as exc:  # zstd or layout fault behind a good CRC
-                note = f"undecodable block at frame {c.get('frame0')}: {exc}"
-                break
-    data = np.concatenate(blocks) if blocks else np.zeros((0, len(columns)))
+            if c.get("frame0") != frames:
+                raise ValueError(f"a block of frame {c.get('frame0')!r} after {frames} "
+                                 "frames (one is missing)")
+            if magic == MAGIC_V1:
+                rows = c["rows"]
+                data = np.frombuffer(c["data"], dtype="<f8")
+                if type(rows) is not int or data.size != rows * n:
+                    raise ValueError("a block whose data is not rows x columns")
+                block = data.reshape(rows, n)
+            else:
+                block = decode_block(c["types"], c["z"], c["rows"], scales)
+        except Exception as exc:  # anything a CRC-valid chunk can hold that we did not write
+            note = f"unreadable block after frame {frames}: {exc}"
+            break
+        blocks.append(block)
+        frames += len(block)
+    data = np.concatenate(blocks) if blocks else np.zeros((0, n))
     return Recording(head["meta"], columns, data, complete=not note, note=note,
-                     marks=marks, kinds=head.get("kinds", ["f64"] * len(columns)),
-                     units=head.get("units", [""] * len(columns)),
-                     format=1 if magic == MAGIC_V1 else FORMAT)
+                     marks=marks, kinds=head["kinds"], units=head["units"],
+                     format=1 if magic == MAGIC_V1 else FORMAT, scales=scales.tolist())
+
+
+def _header(path, chunks: list, magic: bytes, note: str) -> dict[str, Any]:
+    """The first chunk, checked: what a reader relies on, or RecordingError."""
+    head = chunks[0] if chunks else None
+    if not isinstance(head, dict) or not isinstance(head.get("columns"), list):
+        raise RecordingError(f"{path}: not a railrig recording ({note or 'no header'})")
+    columns = head["columns"]
+    n = len(columns)
+    meta = head.get("meta", {})
+    kinds = head.get("kinds", ["f64"] * n)
+    scales = head.get("scales", [1.0] * n)
+    units = head.get("units", [""] * n)
+    ok = (isinstance(meta, dict) and all(isinstance(c, str) for c in columns)
+          and isinstance(kinds, list) and len(kinds) == n and not set(kinds) - set(KINDS)
+          and isinstance(scales, list) and len(scales) == n
+          and all(type(x) in (int, float) for x in scales)
+          and isinstance(units, list) and len(units) == n)
+    if not ok:
+        raise RecordingError(f"{path}: a railrig recording whose header is damaged")
+    return {"meta": meta, "columns": columns, "kinds": kinds, "scales": scales,
+            "units": units}
+
+
+def at_stored_precision(rec: Recording, kinds: list[str], scales: list[float],
+                        rows: int = 4096) -> Recording:
+    """rec's frames as a recording of these storage kinds would hold them (a format 1
+    recording compared with a run recorded now: blocks.py's rounding, applied to it)."""
+    scale = np.asarray(scales, dtype=float)
+    parts = [decode_block(*encode_block(rec.data[i:i + rows], kinds, scale),
+                          len(rec.data[i:i + rows]), scale)
+             for i in range(0, len(rec.data), rows)]
+    data = np.concatenate(parts) if parts else rec.data.copy()
+    return Recording(rec.meta, rec.columns, data, rec.complete, rec.note, rec.marks,
+                     list(kinds), rec.units, FORMAT, list(scales))
 
 
 def _within(mark: dict[str, Any], from_s: float | None, to_s: float | None) -> bool:

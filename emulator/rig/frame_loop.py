@@ -368,8 +368,8 @@ class Rig:
                                                               for s in sm.commands}
         kinds, scales, units = [], [], []
         for name in columns:
-            if name in wire:
-                kinds.append("wire")
+            if name in wire:  # y as the telegram carried it, u exactly as applied
+                kinds.append("sent" if name.startswith("y.") else "wire")
                 scales.append(wire[name].scale)
                 units.append(wire[name].unit)
                 continue
@@ -574,6 +574,8 @@ class Rig:
                 return False
             if await self.link.wait(min(left, LOCKSTEP_STOP_CHECK_S)):
                 return True
+            if self.recorder is not None:
+                self.recorder.tick()  # rows buffered before the silence reach the disk
 
     def _note_round_trip(self, ns: int) -> None:
         """A lockstep round trip into the smoothed estimate (RFC 6298, section 2:

@@ -136,6 +136,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
         raise RunError(f"cannot open the controller link {url!r}: {exc}") from None
     temp = None
     watch = None
+    rig = None
     try:
         rig = Rig(params, link, mode=mode, seed=seed)
         if controller == "reference":
@@ -189,6 +190,8 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
                         f"{'passed' if result.passed else 'FAILED'}")
             watch.publish()
     finally:
+        if rig is not None and rig.recorder is not None:  # a run that raised keeps
+            rig.recorder.close()  # what it recorded
         if watch is not None:
             watch.close()
         link.close()

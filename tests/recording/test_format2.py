@@ -19,35 +19,65 @@ from hypothesis import strategies as st
 from emulator.recording.channels import ChannelError, select_channels
 from emulator.recording.recorder import Recorder, RecordingError, read_recording
 
-SCALES = {"wire": [1.0, 0.1, 1e-4, 0.01], "f32": [1.0], "f64": [1.0]}
+SCALES = {"sent": [1.0, 0.1, 1e-4, 0.01], "wire": [1.0, 0.1, 1e-4, 0.01], "f32": [1.0],
+          "f64": [1.0]}
+
+
+def _sent(x: np.ndarray, scale: float) -> np.ndarray | None:
+    """What the telegram codec puts on the wire for these values, times the scale (the
+    value the controller received), or None where it could not send them (not finite,
+    past int64; the recorder then keeps float64)."""
+    from emulator.link.telegram import TelegramCodec
+
+    codec = TelegramCodec(1, np.full(len(x), scale), np.ones(1), np.zeros(1), np.ones(1))
+    try:
+        wire = msgpack.unpackb(codec.encode(0, 0, 0, 0, x))[6:]
+    except ValueError:
+        return None
+    return np.array(wire, dtype=float) * scale
 
 
 def _expected(x: np.ndarray, kind: str, scale: float) -> np.ndarray:
-    """What a column must read back as (independent of blocks.py's code paths)."""
+    """What a column's block must read back as, from outside blocks.py: the codec's own
+    rounding for sent values, numpy's float32 for f32, the values themselves otherwise."""
     if kind == "f64":
         return x
     if kind == "f32":
         if np.any(np.abs(x) > np.finfo(np.float32).max):  # past float32: kept float64
             return x
         return x.astype(np.float32).astype(np.float64)
-    wire = np.rint(x / scale)
-    if np.all(np.abs(wire) < 2**31):  # a block of wire integers
-        return wire * scale
-    return x  # a block with a value past int32 or not finite keeps float64
+    sent = _sent(x, scale)
+    fits = sent is not None and np.all(np.abs(sent / scale) < 2**31)
+    if kind == "sent":
+        return sent if fits else x
+    return x  # wire: exact either way (wire integers, or float64 where a value is off-grid)
 
 
-@settings(max_examples=40, deadline=None,
+def _column(rng, rows: int, kind: str, scale: float, spread: float, draw) -> np.ndarray:
+    """Random values; for sent and wire columns often on the wire grid, with the ties a
+    rounding rule decides (k + 0.5 steps)."""
+    x = rng.normal(0.0, spread, rows)
+    if kind in ("sent", "wire") and draw(st.booleans()):
+        x = np.round(x / scale) * scale  # on the grid (a controller sending integers)
+        if rows and draw(st.booleans()):
+            x[rng.integers(rows)] = (np.round(x[0] / scale) + 0.5) * scale  # a tie
+    return x
+
+
+@settings(max_examples=60, deadline=None,
           suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(data=st.data())
 def test_round_trip_at_the_stored_precision(tmp_path_factory, data) -> None:
     n_cols = data.draw(st.integers(1, 12))
-    kinds = data.draw(st.lists(st.sampled_from(["f64", "f32", "wire"]), min_size=n_cols,
-                               max_size=n_cols))
+    kinds = data.draw(st.lists(st.sampled_from(["f64", "f32", "sent", "wire"]),
+                               min_size=n_cols, max_size=n_cols))
     scales = [data.draw(st.sampled_from(SCALES[k])) for k in kinds]
     rows = data.draw(st.integers(0, 700))
     chunk_rows = data.draw(st.integers(1, 300))
     rng = np.random.default_rng(data.draw(st.integers(0, 2**32 - 1)))
-    values = rng.normal(0.0, data.draw(st.sampled_from([1.0, 1e3, 1e6])), (rows, n_cols))
+    spread = data.draw(st.sampled_from([1.0, 1e3, 1e6]))
+    values = np.column_stack([_column(rng, rows, k, sc, spread, data.draw)
+                              for k, sc in zip(kinds, scales, strict=True)])
     if rows and data.draw(st.booleans()):  # a NaN, an infinity, a huge value somewhere
         values[rng.integers(rows), rng.integers(n_cols)] = data.draw(
             st.sampled_from([np.nan, np.inf, -np.inf, 1e300]))
@@ -162,3 +192,97 @@ def test_mdf_export_opens_with_every_channel_unit_event_and_value(tmp_path) -> N
         assert bytes(data).decode() == "[scenario]\nname = 'x'\n"
     finally:
         mdf.close()
+
+
+def _chunk(obj, magic=b"RRC2") -> bytes:
+    payload = msgpack.packb(obj, use_bin_type=True)
+    return struct.pack("<4sII", magic, len(payload), zlib.crc32(payload)) + payload
+
+
+HEAD = {"format": 2, "meta": {}, "columns": ["time_s", "x"], "kinds": ["f64", "f64"],
+        "scales": [1.0, 1.0], "units": ["s", ""]}
+
+
+@pytest.mark.parametrize("body", [
+    [{"frame0": 0, "rows": 2, "types": "d", "z": b"\x00"}],  # types too short
+    [{"frame0": 0, "rows": 2, "types": "ddd", "z": b"\x00"}],  # types too long
+    [{"frame0": 0, "rows": "2", "types": "dd", "z": b"\x00"}],  # rows not a number
+    [{"frame0": 0, "rows": 2, "types": "dd", "z": b"not zstd"}],
+    [{"frame0": 5, "rows": 0, "types": "dd", "z": b""}],  # a block missing before it
+    [7], ["text"], [{"mark": 3}],
+])
+def test_a_hostile_block_behind_a_good_crc_ends_the_reading_with_a_note(tmp_path, body):
+    import zstandard
+
+    good = {"frame0": 0, "rows": 1, "types": "dd",
+            "z": zstandard.ZstdCompressor().compress(np.array([0.5, 2.0]).tobytes())}
+    path = tmp_path / "h.rrec"
+    fixed = [{**b, "frame0": b["frame0"] + 1} if isinstance(b, dict) and "frame0" in b
+             else b for b in body]
+    path.write_bytes(_chunk(HEAD) + _chunk(good) + b"".join(_chunk(b) for b in fixed))
+    back = read_recording(path)
+    assert not back.complete and "unreadable block" in back.note
+    np.testing.assert_array_equal(back.data, [[0.5, 2.0]])  # the good block before it
+
+
+@pytest.mark.parametrize("head", [7, "x", {"columns": "ab"}, {**HEAD, "kinds": ["f64"]},
+                                  {**HEAD, "scales": ["a", "b"]}, {**HEAD, "meta": 3}])
+def test_a_damaged_header_is_a_recording_error(tmp_path, head) -> None:
+    path = tmp_path / "d.rrec"
+    path.write_bytes(_chunk(head))
+    with pytest.raises(RecordingError):
+        read_recording(path)
+
+
+def test_rows_buffered_before_a_silence_reach_the_disk(tmp_path) -> None:
+    # a rig waiting for a silent controller calls tick(): the buffered rows are
+    # written within flush_s though no frame comes
+    import time as _time
+
+    path = tmp_path / "s.rrec"
+    rec = Recorder(path, ["time_s"], {}, chunk_rows=1000, flush_s=0.05)
+    for i in range(50):
+        rec.append(np.array([i * 1e-3]))
+    _time.sleep(0.06)
+    rec.tick()
+    deadline = _time.monotonic() + 5
+    while len(read_recording(path).data) < 50 and _time.monotonic() < deadline:
+        _time.sleep(0.01)
+    assert len(read_recording(path).data) == 50
+    rec.close()
+
+
+def test_a_mark_takes_numpy_numbers_and_refuses_what_msgpack_cannot_hold(tmp_path) -> None:
+    with Recorder(tmp_path / "m.rrec", ["time_s"], {}) as rec:
+        rec.append(np.array([0.0]))
+        rec.mark(label="x", t=np.float32(0.5), n=np.int64(3))
+        with pytest.raises(TypeError):
+            rec.mark(label="y", t=object())
+    assert read_recording(tmp_path / "m.rrec").marks == [{"label": "x", "t": 0.5, "n": 3}]
+
+
+def test_a_format_1_run_compares_at_the_stored_precision_of_the_new_one(tmp_path) -> None:
+    # replay of a recording made before format 2: its measurements were kept unrounded;
+    # compared with a new run they are rounded as the telegram carried them first, so a
+    # value within half a count is the same frame and one a count off is not
+    from emulator.commands.replay import compare
+
+    cols = ["time_s", "y.a", "u.b", "p.c"]
+    kinds, scales = ["f64", "sent", "wire", "f32"], [1.0, 0.1, 1e-4, 1.0]
+    rng = np.random.default_rng(2)
+    new_rows = np.column_stack([np.arange(100) * 1e-3, np.round(rng.normal(0, 50, 100)) * 0.1,
+                                np.round(rng.uniform(0, 1, 100) * 1e4) * 1e-4,
+                                rng.normal(0, 1, 100).astype(np.float32)])
+    with Recorder(tmp_path / "new.rrec", cols, {}, kinds=kinds, scales=scales) as rec:
+        for row in new_rows:
+            rec.append(row)
+    new = read_recording(tmp_path / "new.rrec")
+    old_rows = new_rows.copy()
+    old_rows[:, 1] += rng.uniform(-0.04, 0.04, 100)  # unrounded, within half a count
+    _v1_file(tmp_path / "old.rrec", cols, old_rows)
+    same, note = compare(read_recording(tmp_path / "old.rrec"), new)
+    assert same, note
+    old_rows[40, 1] += 0.1  # a count off at frame 40
+    _v1_file(tmp_path / "old2.rrec", cols, old_rows)
+    same, note = compare(read_recording(tmp_path / "old2.rrec"), new)
+    assert not same and "frame 40" in note

@@ -219,7 +219,10 @@ def test_rig_recording_with_a_channel_set_and_the_mdf_export_command(tmp_path, p
     rig, ctl = asyncio.run(go())
     back = read_recording(tmp_path / "run.rrec")
     assert back.columns[0] == "time_s" and not any(c.startswith("p.") for c in back.columns)
-    assert set(back.kinds[1:]) == {"wire"}
+    assert {k for c, k in zip(back.columns, back.kinds, strict=True)
+            if c.startswith("y.")} == {"sent"}
+    assert {k for c, k in zip(back.columns, back.kinds, strict=True)
+            if c.startswith("u.")} == {"wire"}
     # y_k as recorded is y_k as the controller received it: wire value x scale
     sm = rig.signal_map
     i = sm.index("measurement", "DC-A.voltage_v")
@@ -243,3 +246,27 @@ def msgpack_unpack(payload: bytes) -> list:
     import msgpack
 
     return msgpack.unpackb(payload)
+
+
+def test_a_command_sent_as_a_float_is_recorded_as_applied(tmp_path, params) -> None:
+    # a controller may send floats in wire units (the README): 1234.56 at scale 1e-4 acts
+    # as a duty of 0.123456, and the recording says 0.123456, not the nearest count
+    import asyncio
+
+    import msgpack
+
+    from tests.link.conftest import command, make_rig
+
+    def answer(rig, m):
+        items = msgpack.unpackb(command(rig, m[1]))
+        items[6 + rig.signal_map.index("command", "INV-A1.duty_a")] = 1234.56
+        return msgpack.packb(items)
+
+    async def go():
+        rig, _ = await make_rig(params, answer, ideal_dc_links=True)
+        rig.start_recording(str(tmp_path / "f.rrec"), channels=["link"])
+        await rig.run(frames=50)
+        rig.recorder.close()
+    asyncio.run(go())
+    duty = read_recording(tmp_path / "f.rrec").column("u.INV-A1.duty_a")[1:]
+    np.testing.assert_array_equal(duty, 1234.56 * 1e-4)  # the codec's wire x scale
