@@ -63,6 +63,9 @@ def add_arguments(serve: argparse.ArgumentParser) -> None:
     serve.add_argument("--record-channels", default=None, metavar="SETS",
                        help="--record: channel sets and globs, comma-separated (all, "
                        "default, line, motors, link, or e.g. p.motor.*); default: default")
+    serve.add_argument("--record-decimate", default=None, metavar="GLOB=N,...",
+                       help="--record: keep the matching columns every N-th frame only "
+                       "(slow signals), e.g. '*temperature*=100'")
     serve.add_argument("--monitor", default=None, metavar="ADDRESS",
                        help="monitor endpoint: a Unix socket path or 127.0.0.1:PORT "
                        "(default: railrig-monitor.sock in the runtime directory)")
@@ -76,7 +79,12 @@ def run(args: argparse.Namespace) -> int:
     """Run the rig until the frame count, the duration, or Ctrl-C/SIGTERM."""
     from emulator.link import LinkError, open_link
     from emulator.monitor.endpoint import Monitor, MonitorError
-    from emulator.recording.channels import ChannelError, parse_channels, select_channels
+    from emulator.recording.channels import (
+        ChannelError,
+        parse_channels,
+        parse_decimation,
+        select_channels,
+    )
     from emulator.rig.clock import MonotonicClock
     from emulator.rig.frame_loop import Rig, RigError
     from emulator.scenario.runner import LINE_SIDE, MOTOR_SIDE
@@ -110,6 +118,7 @@ def run(args: argparse.Namespace) -> int:
         states = MOTOR_SIDE + (LINE_SIDE if rig.plant.line_side else [])
         select_channels(rig.record_columns(states), channels)  # a wrong name is said
         # now, not after the plant has started
+        decimate = parse_decimation(args.record_decimate)
     except (LinkError, RigError, MonitorError, ChannelError) as exc:
         console.print(f"[red]error:[/red] {exc}")
         return 2
@@ -148,7 +157,8 @@ def run(args: argparse.Namespace) -> int:
         frames = args.frames
         if args.duration is not None:
             frames = round(args.duration * 1e6 / rig.period_us)
-        recorder = (rig.start_recording(args.record, channels=channels, states=states)
+        recorder = (rig.start_recording(args.record, channels=channels, states=states,
+                                        decimate=decimate)
                     if args.record else None)
         waiting = (asyncio.create_task(_say_until_first_telegram(rig, args.link))
                    if args.link else None)

@@ -38,38 +38,63 @@ _INT32 = 2**31 - 1
 _F32_MAX = float(np.finfo(np.float32).max)
 
 
-def encode_block(block: np.ndarray, kinds: list[str], scales: np.ndarray) -> tuple[str, bytes]:
+def kept_rows(frame0: int, rows: int, every: int) -> np.ndarray:
+    """Which rows of a block starting at frame ``frame0`` a column decimated to every
+    ``every``-th frame keeps: the frames whose number is a multiple of it."""
+    first = (-frame0) % every
+    return np.arange(first, rows, every)
+
+
+def encode_block(block: np.ndarray, kinds: list[str], scales: np.ndarray,
+                 every: np.ndarray | None = None, frame0: int = 0) -> tuple[str, bytes]:
     """Frames x columns (float64) -> (type string, one char per column; compressed
     bytes). ``scales``: the wire scale of each sent or wire column (others unused).
+    ``every``: per column, keep every n-th frame only (1: all; frames counted from the
+    recording's start, ``frame0`` the block's first).
 
     Whole-array operations per storage type, not per column: the writer thread holds
     the interpreter for microseconds a block, not milliseconds, so the frame loop it
     shares the process with does not wait for it (DESIGN.md, timing facts); the
     compressor itself runs without the interpreter lock."""
     kinds_arr = np.asarray(kinds)
-    rows = block.shape[0]
+    scales = np.asarray(scales, dtype=float)
     codes = np.full(len(kinds), "d")
     pieces: list = [b""] * len(kinds)
-    wire = np.flatnonzero((kinds_arr == "wire") | (kinds_arr == "sent"))
-    if wire.size:
-        x = block[:, wire]
-        scale = np.asarray(scales, dtype=float)[wire]
-        with np.errstate(invalid="ignore", over="ignore"):
-            w = np.rint(x * (1.0 / scale))  # as the telegram codec rounds (link/telegram.py)
-            ok = np.all(np.abs(w) <= _INT32, axis=0)  # False for NaN and infinity too
-            exact = kinds_arr[wire] == "sent"
-            exact |= np.all(w * scale == x, axis=0)  # read back as wire x scale
-        ok &= exact
-        _place(pieces, codes, wire[ok], "i", w[:, ok], rows)
-    f32 = np.flatnonzero(kinds_arr == "f32")
-    if f32.size:
-        x = block[:, f32]
-        fits = ~np.any(np.abs(x) > _F32_MAX, axis=0)  # finite values past float32 stay f64
-        _place(pieces, codes, f32[fits], "f", x[:, fits], rows)
-    rest = np.flatnonzero(codes == "d")  # float64 columns, and those that did not fit
-    _place(pieces, codes, rest, "d", block[:, rest], rows)
+    every = np.ones(len(kinds), dtype=np.int64) if every is None else np.asarray(every)
+    for n in np.unique(every).tolist():
+        cols = np.flatnonzero(every == n)
+        rows = slice(None) if n == 1 else kept_rows(frame0, block.shape[0], n)
+        _encode_group(pieces, codes, cols, block[rows][:, cols], kinds_arr[cols],
+                      scales[cols])
     compressor = zstandard.ZstdCompressor(level=LEVEL)
     return "".join(codes.tolist()), compressor.compress(b"".join(pieces))
+
+
+def _encode_group(pieces: list, codes: np.ndarray, cols: np.ndarray, x: np.ndarray,
+                  kinds: np.ndarray, scales: np.ndarray) -> None:
+    """Columns of the same row count, by storage kind."""
+    rows = x.shape[0]
+    done = np.zeros(len(cols), dtype=bool)
+    wire = np.flatnonzero((kinds == "wire") | (kinds == "sent"))
+    if wire.size:
+        v = x[:, wire]
+        scale = scales[wire]
+        with np.errstate(invalid="ignore", over="ignore"):
+            w = np.rint(v * (1.0 / scale))  # as the telegram codec rounds (link/telegram.py)
+            ok = np.all(np.abs(w) <= _INT32, axis=0)  # False for NaN and infinity too
+            exact = kinds[wire] == "sent"
+            exact |= np.all(w * scale == v, axis=0)  # read back as wire x scale
+        ok &= exact
+        _place(pieces, codes, cols[wire[ok]], "i", w[:, ok], rows)
+        done[wire[ok]] = True
+    f32 = np.flatnonzero(kinds == "f32")
+    if f32.size:
+        v = x[:, f32]
+        fits = ~np.any(np.abs(v) > _F32_MAX, axis=0)  # finite values past float32 stay f64
+        _place(pieces, codes, cols[f32[fits]], "f", v[:, fits], rows)
+        done[f32[fits]] = True
+    rest = np.flatnonzero(~done)  # float64 columns, and those that did not fit
+    _place(pieces, codes, cols[rest], "d", x[:, rest], rows)
 
 
 def _place(pieces: list, codes: np.ndarray, columns: np.ndarray, code: str,
@@ -88,24 +113,37 @@ def _place(pieces: list, codes: np.ndarray, columns: np.ndarray, code: str,
         codes[j] = code
 
 
-def decode_block(codes: str, payload: bytes, rows: int, scales: np.ndarray) -> np.ndarray:
+def decode_block(codes: str, payload: bytes, rows: int, scales: np.ndarray,
+                 every: np.ndarray | None = None, frame0: int = 0,
+                 before: np.ndarray | None = None) -> np.ndarray:
     """The inverse of encode_block: frames x columns, float64 (wire x scale for the
-    wire columns). Raises ValueError for a block that does not hold what it says."""
+    wire columns). A decimated column holds each kept sample until the next (zero-order
+    hold); rows before its first kept one hold ``before`` (the previous block's last
+    row). Raises ValueError for a block that does not hold what it says."""
     if not isinstance(codes, str) or len(codes) != len(scales) or set(codes) - set(_ITEM):
         raise ValueError("the block's type string does not fit the columns")
     if type(rows) is not int or rows < 0 or not isinstance(payload, bytes):
         raise ValueError("the block's row count or data is not what a block holds")
-    size = rows * sum(_ITEM[c].itemsize for c in codes)
+    every = np.ones(len(codes), dtype=np.int64) if every is None else np.asarray(every)
+    counts = [rows if n == 1 else len(kept_rows(frame0, rows, int(n))) for n in every]
+    size = sum(c * _ITEM[code].itemsize for c, code in zip(counts, codes, strict=True))
     raw = zstandard.ZstdDecompressor().decompress(payload, max_output_size=max(size, 1))
     if len(raw) != size:
         raise ValueError(f"a block of {len(raw)} bytes where its columns need {size}")
     out = np.empty((rows, len(codes)))
     at = 0
     for j, code in enumerate(codes):
-        item = _ITEM[code]
-        n = rows * item.itemsize
-        col = np.frombuffer(raw[at:at + n], dtype=np.uint8).reshape(item.itemsize, rows)
-        values = col.T.copy().view(item).reshape(rows)
-        out[:, j] = values * scales[j] if code == "i" else values
+        item, count = _ITEM[code], counts[j]
+        n = count * item.itemsize
+        col = np.frombuffer(raw[at:at + n], dtype=np.uint8).reshape(item.itemsize, count)
+        values = col.T.copy().view(item).reshape(count)
+        values = values * scales[j] if code == "i" else values.astype(np.float64)
         at += n
+        if every[j] == 1:
+            out[:, j] = values
+            continue
+        kept = kept_rows(frame0, rows, int(every[j]))
+        last = np.searchsorted(kept, np.arange(rows), side="right") - 1
+        held = np.concatenate([[np.nan if before is None else before[j]], values])
+        out[:, j] = held[last + 1]
     return out

@@ -51,3 +51,19 @@ def parse_channels(text: str | None) -> list[str] | None:
     if text is None:
         return None
     return [item.strip() for item in text.split(",") if item.strip()]
+
+
+def parse_decimation(text: str | None) -> dict[str, int]:
+    """``"p.motor.*temperature*=100,y.*temperature*=100"`` -> {glob: n}; ChannelError
+    for an item that is not GLOB=N with N a whole number >= 1."""
+    out: dict[str, int] = {}
+    for item in (text or "").split(","):
+        item = item.strip()
+        if not item:
+            continue
+        glob, sep, n = item.rpartition("=")
+        if not sep or not glob or not n.strip().isdigit() or int(n) < 1:
+            raise ChannelError(f"decimation {item!r}: write GLOB=N, N a whole number >= 1 "
+                               "(keep every N-th frame)")
+        out[glob.strip()] = int(n)
+    return out

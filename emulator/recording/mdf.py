@@ -26,12 +26,13 @@ _WHAT = {"y": "measurement as sent to the controller (wire value x scale)",
          "p": "plant state"}
 
 
-def _comment(name: str, kind: str) -> str:
+def _comment(name: str, kind: str, every: int = 1) -> str:
     what = _WHAT.get(name.split(".", 1)[0], "")
     stored = {"sent": "stored as the wire integer sent", "wire": "stored as the wire "
               "integer (float64 where a controller sent a float)", "f32": "stored as float32",
               "f64": "stored as float64"}.get(kind, "")
-    return "; ".join(x for x in (what, stored) if x)
+    kept = f"kept every {every} frames, held between" if every > 1 else ""
+    return "; ".join(x for x in (what, stored, kept) if x)
 
 
 def export_mdf(rec: Recording, path: str | Path) -> None:
@@ -41,6 +42,7 @@ def export_mdf(rec: Recording, path: str | Path) -> None:
     t = rec.column("time_s")
     kinds = rec.kinds or ["f64"] * len(rec.columns)
     units = rec.units or [""] * len(rec.columns)
+    every = rec.every or [1] * len(rec.columns)
     signals = []
     for j, name in enumerate(rec.columns):
         if name == "time_s":
@@ -50,7 +52,7 @@ def export_mdf(rec: Recording, path: str | Path) -> None:
             samples = samples.astype(np.float32)  # what was stored, no wider (a block
             # kept at float64 for a value past float32 keeps the column float64)
         signals.append(Signal(samples=samples, timestamps=t, name=name, unit=units[j],
-                              comment=_comment(name, kinds[j])))
+                              comment=_comment(name, kinds[j], every[j])))
     mdf = MDF(version="4.10")
     mdf.append(signals, comment=f"railrig recording: {rec.meta.get('name', '')}".strip())
     for mark in rec.marks or []:

@@ -87,6 +87,8 @@ class Recorder:
             for every column by default.
         scales: per column, the wire scale of "wire" columns (physical = wire x scale).
         units: per column, its unit (for readers and the MDF export).
+        every: per column, keep every n-th frame only (1, the default: every frame); a
+            reader holds each kept sample until the next (slow signals: temperatures).
         chunk_rows: frames in a block at most.
         flush_s: a block is written at least this often (wall time).
         exclusive: create the file or raise FileExistsError, never overwrite one.
@@ -95,15 +97,18 @@ class Recorder:
     def __init__(self, path: str | Path, columns: list[str], meta: dict[str, Any],
                  chunk_rows: int = 1024, flush_s: float = 0.1, exclusive: bool = False,
                  kinds: list[str] | None = None, scales: list[float] | None = None,
-                 units: list[str] | None = None) -> None:
+                 units: list[str] | None = None, every: list[int] | None = None) -> None:
         self.path = Path(path)
         self.columns = list(columns)
         n = len(self.columns)
         self.kinds = list(kinds) if kinds is not None else ["f64"] * n
         self.scales = np.array(scales if scales is not None else [1.0] * n, dtype=float)
         self.units = list(units) if units is not None else [""] * n
-        if not len(self.kinds) == len(self.scales) == len(self.units) == n:
-            raise ValueError("kinds, scales and units need one entry per column")
+        self.every = np.array(every if every is not None else [1] * n, dtype=np.int64)
+        if not len(self.kinds) == len(self.scales) == len(self.units) == len(self.every) == n:
+            raise ValueError("kinds, scales, units and every need one entry per column")
+        if np.any(self.every < 1):
+            raise ValueError("a column keeps every n-th frame, n >= 1")
         if set(self.kinds) - set(KINDS):
             raise ValueError(f"storage kinds are {', '.join(KINDS)}")
         wire = np.array([k in ("wire", "sent") for k in self.kinds], dtype=bool)
@@ -118,7 +123,7 @@ class Recorder:
         self._last_flush = time.monotonic()
         self._write({"format": FORMAT, "meta": meta, "columns": self.columns,
                      "kinds": self.kinds, "scales": self.scales.tolist(),
-                     "units": self.units})
+                     "units": self.units, "every": self.every.tolist()})
         # bounded: a writer that falls behind (a stalled disk) holds the frame loop
         # rather than letting the unwritten backlog grow without end
         self._queue: queue.Queue = queue.Queue(maxsize=QUEUE_BLOCKS)
@@ -145,7 +150,8 @@ class Recorder:
                     self._write({"mark": item})
                     continue
                 frame0, buf, rows = item
-                types, z = encode_block(buf[:rows], self.kinds, self.scales)
+                types, z = encode_block(buf[:rows], self.kinds, self.scales, self.every,
+                                        frame0)
                 self._write({"frame0": frame0, "rows": rows, "types": types, "z": z})
                 self._spare.append(buf)  # back to the frame loop (list ops are atomic)
             except Exception as exc:  # a full disk: kept, reported at close
@@ -220,6 +226,7 @@ class Recording:
     units: list[str] | None = None
     format: int = FORMAT
     scales: list[float] | None = None  # the wire scale of sent and wire columns
+    every: list[int] | None = None  # each column kept every n-th frame (held between)
 
     def select(self, patterns: list[str] | None = None, from_s: float | None = None,
                to_s: float | None = None) -> Recording:
@@ -242,7 +249,8 @@ class Recording:
         return Recording(self.meta, pick(self.columns), self.data[np.ix_(rows, keep)],
                          self.complete, self.note,
                          [m for m in (self.marks or []) if _within(m, from_s, to_s)],
-                         pick(self.kinds), pick(self.units), self.format, pick(self.scales))
+                         pick(self.kinds), pick(self.units), self.format, pick(self.scales),
+                         pick(self.every))
 
     def column(self, name: str) -> np.ndarray:
         """One column by name."""
@@ -284,6 +292,7 @@ def read_recording(path: str | Path) -> Recording:
     head = _header(path, chunks, magic, note)
     columns, n = head["columns"], len(head["columns"])
     scales = np.array(head["scales"], dtype=float)
+    every = np.array(head["every"], dtype=np.int64)
     marks: list[dict[str, Any]] = []
     blocks: list[np.ndarray] = []
     frames = 0
@@ -306,7 +315,8 @@ def read_recording(path: str | Path) -> Recording:
                     raise ValueError("a block whose data is not rows x columns")
                 block = data.reshape(rows, n)
             else:
-                block = decode_block(c["types"], c["z"], c["rows"], scales)
+                block = decode_block(c["types"], c["z"], c["rows"], scales, every, frames,
+                                     blocks[-1][-1] if blocks and len(blocks[-1]) else None)
         except Exception as exc:  # anything a CRC-valid chunk can hold that we did not write
             note = f"unreadable block after frame {frames}: {exc}"
             break
@@ -315,7 +325,8 @@ def read_recording(path: str | Path) -> Recording:
     data = np.concatenate(blocks) if blocks else np.zeros((0, n))
     return Recording(head["meta"], columns, data, complete=not note, note=note,
                      marks=marks, kinds=head["kinds"], units=head["units"],
-                     format=1 if magic == MAGIC_V1 else FORMAT, scales=scales.tolist())
+                     format=1 if magic == MAGIC_V1 else FORMAT, scales=scales.tolist(),
+                     every=every.tolist())
 
 
 def _header(path, chunks: list, magic: bytes, note: str) -> dict[str, Any]:
@@ -329,15 +340,18 @@ def _header(path, chunks: list, magic: bytes, note: str) -> dict[str, Any]:
     kinds = head.get("kinds", ["f64"] * n)
     scales = head.get("scales", [1.0] * n)
     units = head.get("units", [""] * n)
+    every = head.get("every", [1] * n)
     ok = (isinstance(meta, dict) and all(isinstance(c, str) for c in columns)
           and isinstance(kinds, list) and len(kinds) == n and not set(kinds) - set(KINDS)
           and isinstance(scales, list) and len(scales) == n
           and all(type(x) in (int, float) for x in scales)
-          and isinstance(units, list) and len(units) == n)
+          and isinstance(units, list) and len(units) == n
+          and isinstance(every, list) and len(every) == n
+          and all(type(k) is int and k >= 1 for k in every))
     if not ok:
         raise RecordingError(f"{path}: a railrig recording whose header is damaged")
     return {"meta": meta, "columns": columns, "kinds": kinds, "scales": scales,
-            "units": units}
+            "units": units, "every": every}
 
 
 def at_stored_precision(rec: Recording, kinds: list[str], scales: list[float],

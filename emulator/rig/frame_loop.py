@@ -18,6 +18,7 @@ if present).
 from __future__ import annotations
 
 import asyncio
+import fnmatch
 import gc
 import logging
 import time
@@ -381,12 +382,13 @@ class Rig:
 
     def start_recording(self, path: str, *, exclusive: bool = False,
                         channels: list[str] | None = None, states: list[str] = (),
-                        **meta: Any):
+                        decimate: dict[str, int] | None = None, **meta: Any):
         """Record every frame from now on to ``path`` (time, y, u), headed with what a
         reader needs to know of the run; returns the emulator.recording.recorder.Recorder.
         ``exclusive``: refuse (FileExistsError) rather than overwrite a file.
         ``channels``: channel set names and globs (emulator/recording/channels.py);
-        every column when None. ``states``: plant states to record beside y and u."""
+        every column when None. ``states``: plant states to record beside y and u.
+        ``decimate``: glob -> n, the matching columns kept every n-th frame only."""
         from emulator import __version__
         from emulator.recording.channels import select_channels
         from emulator.recording.recorder import Recorder
@@ -395,11 +397,16 @@ class Rig:
         pick = select_channels(columns, channels) if channels else list(range(len(columns)))
         chosen = [columns[i] for i in pick]
         kinds, scales, units = self.record_storage(chosen)
+        every = [1] * len(chosen)
+        for pattern, n in (decimate or {}).items():
+            for i, name in enumerate(chosen):
+                if name != "time_s" and fnmatch.fnmatchcase(name, pattern):
+                    every[i] = n
         self.recorder = Recorder(path, chosen, {
             "profile": self.plant.params.source, "seed": self.seed, "mode": self.mode,
             "period_us": self.period_us, "version": __version__,
             "started_at_s": self.plant.time_s, "channels": channels or ["all"], **meta},
-            exclusive=exclusive, kinds=kinds, scales=scales, units=units)
+            exclusive=exclusive, kinds=kinds, scales=scales, units=units, every=every)
         self._record_pick = None if len(pick) == len(columns) else np.array(pick)
         return self.recorder
 

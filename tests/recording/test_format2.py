@@ -286,3 +286,30 @@ def test_a_format_1_run_compares_at_the_stored_precision_of_the_new_one(tmp_path
     _v1_file(tmp_path / "old2.rrec", cols, old_rows)
     same, note = compare(read_recording(tmp_path / "old2.rrec"), new)
     assert not same and "frame 40" in note
+
+
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.data())
+def test_a_decimated_column_holds_every_nth_frame(tmp_path_factory, data) -> None:
+    # frame k of a column kept every n frames reads as the value of frame n * (k // n)
+    # (zero-order hold), whatever the block boundaries; the other columns in full
+    n_cols = data.draw(st.integers(1, 6))
+    every = data.draw(st.lists(st.sampled_from([1, 2, 3, 7, 100]), min_size=n_cols,
+                               max_size=n_cols))
+    kinds = data.draw(st.lists(st.sampled_from(["f64", "wire"]), min_size=n_cols,
+                               max_size=n_cols))
+    rows = data.draw(st.integers(0, 600))
+    chunk_rows = data.draw(st.integers(1, 250))
+    rng = np.random.default_rng(data.draw(st.integers(0, 2**32 - 1)))
+    values = np.round(rng.normal(0, 100, (rows, n_cols)))  # on a wire grid of scale 1
+    path = tmp_path_factory.mktemp("dec") / "d.rrec"
+    with Recorder(path, [f"c{j}" for j in range(n_cols)], {}, chunk_rows=chunk_rows,
+                  kinds=kinds, every=every, flush_s=1e9) as rec:
+        for i in range(rows):
+            rec.append(values[i])
+    back = read_recording(path)
+    assert back.every == every
+    frames = np.arange(rows)
+    for j, n in enumerate(every):
+        np.testing.assert_array_equal(back.data[:, j], values[n * (frames // n), j])
