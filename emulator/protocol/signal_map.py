@@ -14,21 +14,9 @@ from dataclasses import asdict, dataclass
 from typing import Any
 
 from emulator.plant.params import TrainsetParams
-from emulator.protocol.header import (  # noqa: F401 (re-exported: the map's users import them here)
-    CONTROLLER_FLAGS,
-    FLAG_BAD_TELEGRAM,
-    FLAG_COMMAND_HELD,
-    FLAG_FRAMING,
-    FLAG_OVERRUN,
-    FLAG_REPEAT,
-    FLAG_SEQUENCE,
-    FLAG_WATCHDOG,
-    HEADER,
-    PROTOCOL_VERSION,
-    RIG_FLAGS,
-)
+from emulator.protocol.header import CONTROLLER_FLAGS, HEADER, PROTOCOL_VERSION, RIG_FLAGS
 
-# the header, its flags and rules live in header.py; names kept here for the map's users
+# the header, its flags and rules live in header.py; the flags' meanings by value
 FLAG_NAMES = {f.value: f.meaning for f in RIG_FLAGS}
 
 # train modes (train.mode)

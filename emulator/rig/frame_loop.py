@@ -23,7 +23,6 @@ import gc
 import logging
 import time
 from collections import Counter
-from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -45,6 +44,9 @@ from emulator.protocol.header import (
 )
 from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.clock import FrameStats, MonotonicClock
+from emulator.rig.link_health import LinkHealth
+from emulator.rig.record_layout import storage_of
+from emulator.rig.round_trip import RoundTrip
 from emulator.rig.sampling import CommandMapper, DriverDemand, MeasurementSampler
 
 log = logging.getLogger(__name__)
@@ -70,52 +72,8 @@ LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking 
 FAIR_SLACK = 0.25
 
 
-#: recorded plant states with these in their names are kept at float64 (they accumulate)
-EXACT_STATE_WORDS = ("position", "energy", "time")
-#: the unit a column's name ends in (names carry their units: DESIGN.md)
-UNIT_SUFFIXES = (("_rad_s", "rad/s"), ("_mps2", "m/s^2"), ("_mps", "m/s"), ("_kmh", "km/h"),
-                 ("_degc", "degC"), ("_nm", "N m"), ("_kn", "kN"), ("_hz", "Hz"),
-                 ("_v", "V"), ("_a", "A"), ("_w", "W"), ("_n", "N"), ("_m", "m"),
-                 ("_s", "s"), ("_k", "K"), ("_j", "J"), ("_pct", "%"))
-
-
-def unit_from_name(name: str) -> str:
-    """The unit a recorded column's name says (``p.motor.speed_rad_s[3]`` -> rad/s)."""
-    base = name.split("[", 1)[0]
-    for suffix, unit in UNIT_SUFFIXES:
-        if base.endswith(suffix):
-            return unit
-    return ""
-
-
 class RigError(ValueError):
     """A rig setting that cannot be used."""
-
-
-@dataclass
-class LinkHealth:
-    """What the rig saw of the controller's telegrams."""
-
-    accepted: int = 0  # telegrams that passed the checks and were queued
-    valid: int = 0  # frames that ran on a fresh command
-    missing: int = 0  # frames that held the previous command (the controller's doing)
-    overrun_held: int = 0  # frames that held it because the rig left too little time
-    watchdog_trips: int = 0
-    rejected: Counter = field(default_factory=Counter)  # by TelegramError kind
-    sequence: Counter = field(default_factory=Counter)  # duplicate, late, unexpected
-    expired: int = 0  # accepted answers whose frame passed before they were used
-    reordered: int = 0  # accepted, but after a later-numbered one
-    repeat_requests: int = 0  # valid telegrams asking for the measurement again
-    answers_to_repeats: int = 0  # second answers to a measurement the rig said again
-
-    def as_dict(self) -> dict[str, Any]:
-        """Plain dictionary, for reports and JSON."""
-        return {"accepted": self.accepted, "valid": self.valid, "missing": self.missing,
-                "overrun_held": self.overrun_held, "expired": self.expired,
-                "reordered": self.reordered, "repeat_requests": self.repeat_requests,
-                "answers_to_repeats": self.answers_to_repeats,
-                "watchdog_trips": self.watchdog_trips, "rejected": dict(self.rejected),
-                "sequence": dict(self.sequence)}
 
 
 class Rig:
@@ -190,8 +148,7 @@ class Rig:
         self.repeat_causes: Counter = Counter()  # silence, bad_telegram, framing, request
         self._repeat_asked = False
         self._repeated = -1  # the last sequence said again: a second answer is no error
-        self._srtt = self._rttvar = 0.0  # lockstep round trips (RFC 6298 estimator)
-        self._rtt_samples = 0
+        self._round_trip = RoundTrip()  # lockstep round trips (RFC 6298 estimator)
         self._y = np.zeros(len(sm.measurements))
         self._sent_ns = np.zeros(8, dtype=np.int64)  # when y_k went out, by k mod 8
 
@@ -360,25 +317,8 @@ class Rig:
         return cols
 
     def record_storage(self, columns: list[str]) -> tuple[list[str], list[float], list[str]]:
-        """How each recorded column is stored (emulator/recording/blocks.py) and its unit:
-        measurements and commands as the wire integers they travel as, plant time and
-        the states that accumulate (positions, energies) as float64, other states as
-        float32."""
-        sm = self.signal_map
-        wire = {f"y.{s.name}": s for s in sm.measurements} | {f"u.{s.name}": s
-                                                              for s in sm.commands}
-        kinds, scales, units = [], [], []
-        for name in columns:
-            if name in wire:  # y as the telegram carried it, u exactly as applied
-                kinds.append("sent" if name.startswith("y.") else "wire")
-                scales.append(wire[name].scale)
-                units.append(wire[name].unit)
-                continue
-            exact = name == "time_s" or any(w in name for w in EXACT_STATE_WORDS)
-            kinds.append("f64" if exact else "f32")
-            scales.append(1.0)
-            units.append(unit_from_name(name))
-        return kinds, scales, units
+        """How each recorded column is stored and its unit (record_layout.py)."""
+        return storage_of(self.signal_map, columns)
 
     def start_recording(self, path: str, *, exclusive: bool = False,
                         channels: list[str] | None = None, states: list[str] = (),
@@ -585,27 +525,16 @@ class Rig:
                 self.recorder.tick()  # rows buffered before the silence reach the disk
 
     def _note_round_trip(self, ns: int) -> None:
-        """A lockstep round trip into the smoothed estimate (RFC 6298, section 2:
-        alpha 1/8, beta 1/4)."""
-        r = ns * 1e-9
-        if self._rtt_samples == 0:
-            self._srtt, self._rttvar = r, r / 2
-        else:
-            self._rttvar += 0.25 * (abs(self._srtt - r) - self._rttvar)
-            self._srtt += 0.125 * (r - self._srtt)
-        self._rtt_samples += 1
+        """A lockstep round trip into the smoothed estimate (round_trip.py)."""
+        self._round_trip.note(ns * 1e-9)
 
     def _silence_s(self) -> float:
         """How long lockstep waits in silence before it says the measurement again:
-        RFC 6298's timeout, SRTT + 4 RTTVAR, from the round trips measured, within
-        [LOCKSTEP_REPEAT_MIN_PERIODS periods, lockstep_repeat_s]; lockstep_repeat_s
-        until there are 8 samples. A lost delimiter or a measurement lost on the way
-        costs this, not the ceiling."""
-        if self._rtt_samples < 8:
-            return self.lockstep_repeat_s
-        rto = self._srtt + 4 * self._rttvar
-        floor = LOCKSTEP_REPEAT_MIN_PERIODS * self.period_us * 1e-6
-        return min(max(rto, floor), self.lockstep_repeat_s)
+        RFC 6298's timeout from the round trips measured, within
+        [LOCKSTEP_REPEAT_MIN_PERIODS periods, lockstep_repeat_s]. A lost delimiter or a
+        measurement lost on the way costs this, not the ceiling."""
+        return self._round_trip.timeout(
+            LOCKSTEP_REPEAT_MIN_PERIODS * self.period_us * 1e-6, self.lockstep_repeat_s)
 
     def report(self) -> dict[str, Any]:
         """Counters and timing of the run so far."""

@@ -7,12 +7,12 @@ import numpy as np
 import pytest
 
 from emulator.link.loop import Manipulator
-from emulator.protocol.header import HEADER
-from emulator.protocol.signal_map import (
+from emulator.protocol.header import (
     FLAG_BAD_TELEGRAM,
     FLAG_COMMAND_HELD,
     FLAG_OVERRUN,
     FLAG_WATCHDOG,
+    HEADER,
     PROTOCOL_VERSION,
 )
 
