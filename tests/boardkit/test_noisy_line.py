@@ -7,7 +7,7 @@ more frames than crossed untouched (a spoiled one let through would be the CRC f
 rejects nothing that passed the CRC, and in lockstep recovers every spoiled round trip
 by saying the measurement again (no frame is held, the run completes). In real time a
 spoiled frame in either direction costs the command of one frame (held), so the held
-frames are the spoiled frames, give or take the few a busy machine adds.
+frames are the spoiled frames and the answers the rig counted as late (a busy machine).
 """
 
 from __future__ import annotations
@@ -86,19 +86,21 @@ def test_real_time_holds_one_frame_per_spoiled_frame(kit_dir, ber) -> None:
     _no_spoiled_frame_accepted(report, log)
     spoiled = log["to_rig"]["spoiled"] + log["to_board"]["spoiled"]
     held = result["held"]
-    excused = report["link"]["overrun_held"]  # held, counted as the rig's own overrun
-    # each spoiled measurement or command costs its frame's command. The board's repeat
-    # request after a spoiled measurement (real time only counts it) is one more frame
-    # to the rig that can be spoiled without costing a frame: at most n p + 3 sd of them
-    # (binomial: n requests, p the chance a frame of the rig-bound mean length is hit).
-    # A busy machine adds held frames of its own, never fewer: 1 % of the frames allowed
-    # above (common practice, no source), none below.
+    link = report["link"]
+    excused = link["overrun_held"]  # held, counted as the rig's own overrun
+    # each spoiled measurement or command costs its frame's command; so does an answer
+    # that came after its frame (a busy machine: counted late or expired by the rig), and
+    # nothing else. The board's repeat request after a spoiled measurement (real time
+    # only counts it) is one more frame to the rig that can be spoiled without costing
+    # a frame: at most n p + 3 sd of them (binomial: n requests, p the chance a frame of
+    # the rig-bound mean length is hit).
+    late = link["sequence"].get("late", 0) + link["expired"]
     n = log["to_board"]["spoiled"]
     length = log["to_rig"]["bytes"] / max(log["to_rig"]["frames"], 1)
     p = 1.0 - (1.0 - ber) ** (8 * length)
     requests_spoiled = n * p + 3.0 * math.sqrt(n * p * (1.0 - p)) + 1.0
-    assert held <= spoiled + 0.01 * result["frames"]
-    assert held + excused >= spoiled - requests_spoiled
-    if ber <= 1e-4:  # at 1e-3 most frames are spoiled: ten in a row trip the watchdog,
-        # as they should (the README's watchdog rule)
-        assert report["link"]["watchdog_trips"] == 0
+    assert held <= spoiled + late, (held, spoiled, late)
+    assert held + excused + late >= spoiled - requests_spoiled, (held, excused, spoiled)
+    # (whether the watchdog trips in real time depends on the machine as well as the
+    # line: a benchmark figure, `railrig bench --link --serial-ber 1e-5 --serial-mode
+    # realtime`, DEVELOPERS.md, not a test)
