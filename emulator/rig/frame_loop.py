@@ -18,7 +18,6 @@ if present).
 from __future__ import annotations
 
 import asyncio
-import fnmatch
 import gc
 import logging
 import time
@@ -45,7 +44,7 @@ from emulator.protocol.header import (
 from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.clock import FrameStats, MonotonicClock
 from emulator.rig.link_health import LinkHealth
-from emulator.rig.record_layout import storage_of
+from emulator.rig.record_layout import RecordsFrames
 from emulator.rig.round_trip import RoundTrip
 from emulator.rig.sampling import CommandMapper, DriverDemand, MeasurementSampler
 
@@ -76,8 +75,8 @@ class RigError(ValueError):
     """A rig setting that cannot be used."""
 
 
-class Rig:
-    """One trainset plant behind one controller link."""
+class Rig(RecordsFrames):
+    """One trainset plant behind one controller link (its recording: RecordsFrames)."""
 
     def __init__(self, params: TrainsetParams, link: Link, *, mode: str = "realtime",
                  period_s: float | None = None, command_delay: int = 1,
@@ -291,64 +290,6 @@ class Rig:
         self.frame += 1
         if self.monitor is not None:
             self.monitor.service()
-
-    def record_columns(self, states: list[str] = (), extras: list[str] = ()) -> list[str]:
-        """Columns of a recording: plant time, the measurements, the commands applied,
-        then any plant states asked for (``p.<state>``, ``p.<state>[i]`` per element),
-        then ``extras``: values a driver program keeps in ``rig.extras`` (a frame late)."""
-        sm = self.signal_map
-        cols = (["time_s"] + [f"y.{s.name}" for s in sm.measurements]
-                + [f"u.{s.name}" for s in sm.commands])
-        self._states = []
-        for name in states:
-            array, col = self.plant.state_column(name)
-            if array.ndim == 2:  # one element per motor, inverter or link
-                n = array.shape[0]
-                self._states.append((array, (slice(None), col), n))
-                cols += [f"p.{name}[{i}]" for i in range(n)]
-            else:
-                self._states.append((array, col, 1))
-                cols.append(f"p.{name}")
-        self.extras = np.zeros(len(extras))
-        cols += [f"p.{name}" for name in extras]
-        self._row = np.zeros(len(cols))
-        self._record_pick = None  # all columns, unless start_recording chose some
-        self._columns = cols
-        return cols
-
-    def record_storage(self, columns: list[str]) -> tuple[list[str], list[float], list[str]]:
-        """How each recorded column is stored and its unit (record_layout.py)."""
-        return storage_of(self.signal_map, columns)
-
-    def start_recording(self, path: str, *, exclusive: bool = False,
-                        channels: list[str] | None = None, states: list[str] = (),
-                        decimate: dict[str, int] | None = None, **meta: Any):
-        """Record every frame from now on to ``path`` (time, y, u), headed with what a
-        reader needs to know of the run; returns the emulator.recording.recorder.Recorder.
-        ``exclusive``: refuse (FileExistsError) rather than overwrite a file.
-        ``channels``: channel set names and globs (emulator/recording/channels.py);
-        every column when None. ``states``: plant states to record beside y and u.
-        ``decimate``: glob -> n, the matching columns kept every n-th frame only."""
-        from emulator import __version__
-        from emulator.recording.channels import select_channels
-        from emulator.recording.recorder import Recorder
-
-        columns = self.record_columns(states)
-        pick = select_channels(columns, channels) if channels else list(range(len(columns)))
-        chosen = [columns[i] for i in pick]
-        kinds, scales, units = self.record_storage(chosen)
-        every = [1] * len(chosen)
-        for pattern, n in (decimate or {}).items():
-            for i, name in enumerate(chosen):
-                if name != "time_s" and fnmatch.fnmatchcase(name, pattern):
-                    every[i] = n
-        self.recorder = Recorder(path, chosen, {
-            "profile": self.plant.params.source, "seed": self.seed, "mode": self.mode,
-            "period_us": self.period_us, "version": __version__,
-            "started_at_s": self.plant.time_s, "channels": channels or ["all"], **meta},
-            exclusive=exclusive, kinds=kinds, scales=scales, units=units, every=every)
-        self._record_pick = None if len(pick) == len(columns) else np.array(pick)
-        return self.recorder
 
     def start(self) -> None:
         """Warm every compiled path and take y_0 (call before the first frame)."""
