@@ -3,7 +3,7 @@
 The estimator of RFC 6298 (Paxson et al., "Computing TCP's Retransmission Timer",
 section 2): the smoothed round trip SRTT and its variation RTTVAR, gains 1/8 and 1/4, the
 timeout SRTT + 4 RTTVAR. Samples only from round trips without a repeat (Karn's rule,
-section 3); bounds of our own (emulator/rig/frame_loop.py: at least two periods, at
+section 3); bounds of our own (emulator/rig/lockstep.py: at least two periods, at
 most the rig's lockstep repeat interval, which also holds until 8 samples are in).
 """
 
