@@ -21,7 +21,7 @@ from emulator.profiles.reader import load_trainset
 from emulator.recording.recorder import Recorder, Recording, read_recording
 from emulator.rig.frame_loop import Rig
 
-from .checks import CheckError, CheckResult, check_signals, evaluate
+from .checks import CheckError, CheckResult, check_signals, evaluate, signal_columns
 from .driver import DriverProgram
 from .spec import Scenario, ScenarioError
 from .track import Track
@@ -157,6 +157,11 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
                 "controller": controller, "period_us": rig.period_us,
                 "name": scenario.name, **_texts(scenario)}
         kinds, scales, units = rig.record_storage(columns)
+        # the plant states the checks judge stay float64: a verdict is the model's, not
+        # float32's (a value within 6e-8 of a limit would otherwise be rounded across it)
+        judged = {j for c in scenario.checks if c.signal is not None
+                  for j in signal_columns(columns, c.signal)[0]}
+        kinds = ["f64" if j in judged and k == "f32" else k for j, k in enumerate(kinds)]
         recorder = Recorder(path, columns, meta, kinds=kinds, scales=scales, units=units)
         program = ScenarioProgram(scenario, rig, recorder)
         rig.program, rig.recorder = program, recorder

@@ -270,3 +270,27 @@ def test_a_command_sent_as_a_float_is_recorded_as_applied(tmp_path, params) -> N
     asyncio.run(go())
     duty = read_recording(tmp_path / "f.rrec").column("u.INV-A1.duty_a")[1:]
     np.testing.assert_array_equal(duty, 1234.56 * 1e-4)  # the codec's wire x scale
+
+
+def test_the_states_a_scenario_judges_are_recorded_at_float64(tmp_path) -> None:
+    # a verdict must not depend on float32 rounding of the value it judges
+    import asyncio
+    import dataclasses
+
+    from emulator.profiles.reader import PROFILES_DIR
+    from emulator.scenario.checks import signal_columns
+    from emulator.scenario.runner import run_scenario
+    from emulator.scenario.spec import load_scenario
+
+    scenario = dataclasses.replace(
+        load_scenario(PROFILES_DIR / "scenarios" / "four-modes.toml"), duration_s=0.5)
+    asyncio.run(run_scenario(scenario, record=tmp_path / "s.rrec"))
+    rec = read_recording(tmp_path / "s.rrec")
+    judged = {j for c in scenario.checks if c.signal is not None
+              for j in signal_columns(rec.columns, c.signal)[0]}
+    plant = [j for j in judged if rec.columns[j].startswith("p.")]
+    assert plant  # the scenario judges plant states
+    assert all(rec.kinds[j] == "f64" for j in plant), [rec.columns[j] for j in plant]
+    others = [k for j, (c, k) in enumerate(zip(rec.columns, rec.kinds, strict=True))
+              if c.startswith("p.") and j not in judged]
+    assert "f32" in others  # the rest stays compact
