@@ -18,13 +18,9 @@ from typing import Any
 
 import numpy as np
 
+from emulator.scenario.runner import recorded_states
+
 SETS = ("default", "all", "link")
-
-
-def _states(rig) -> list[str]:
-    from emulator.scenario.runner import LINE_SIDE, MOTOR_SIDE
-
-    return MOTOR_SIDE + (LINE_SIDE if rig.plant.line_side else [])
 
 
 def _timed_append(recorder, samples: list[int]) -> None:
@@ -47,7 +43,7 @@ async def _lockstep(profile, channels: str, plant_s: float, path: Path,
 
     def setup(rig, _tcu) -> None:
         held["rig"] = rig
-        rig.start_recording(str(path), channels=[channels], states=_states(rig))
+        rig.start_recording(str(path), channels=[channels], states=recorded_states(rig))
         _timed_append(rig.recorder, samples)
 
     summary = await run_reference_demo(profile, in_process=True, max_plant_s=plant_s,
@@ -72,7 +68,7 @@ async def _realtime(profile, seconds: float, path: Path | None) -> dict[str, Any
     await attach_reference(name, rig, profile)
     rig.program = demo_program(target_kmh=80.0, stop_at_m=2000.0)
     if path is not None:
-        rig.start_recording(str(path), channels=["default"], states=_states(rig))
+        rig.start_recording(str(path), channels=["default"], states=recorded_states(rig))
     try:
         await rig.run(frames=round(seconds * 1e6 / rig.period_us))
     finally:

@@ -87,7 +87,7 @@ def run(args: argparse.Namespace) -> int:
     )
     from emulator.rig.clock import MonotonicClock
     from emulator.rig.frame_loop import Rig, RigError
-    from emulator.scenario.runner import LINE_SIDE, MOTOR_SIDE
+    from emulator.scenario.runner import recorded_states
 
     if (args.link is None) == (args.controller is None):
         console.print("[red]error:[/red] give either --link or --controller reference")
@@ -115,7 +115,7 @@ def run(args: argparse.Namespace) -> int:
         monitor = None if args.no_monitor else Monitor(rig, args.monitor,
                                                         record_dir=args.record_dir)
         channels = parse_channels(args.record_channels) or ["default"]
-        states = MOTOR_SIDE + (LINE_SIDE if rig.plant.line_side else [])
+        states = recorded_states(rig)
         select_channels(rig.record_columns(states), channels)  # a wrong name is said
         # now, not after the plant has started
         decimate = parse_decimation(args.record_decimate)

@@ -118,7 +118,6 @@ class Recorder:
         self._buf = np.zeros((chunk_rows, n))
         self._n = 0
         self._frame0 = 0
-        self._frames = 0
         self._flush_s = flush_s
         self._last_flush = time.monotonic()
         self._write({"format": FORMAT, "meta": meta, "columns": self.columns,
@@ -161,7 +160,6 @@ class Recorder:
         """Add one frame's values (as many as there are columns)."""
         self._buf[self._n] = row
         self._n += 1
-        self._frames += 1
         if self._n == len(self._buf) or time.monotonic() - self._last_flush >= self._flush_s:
             self.flush()
 

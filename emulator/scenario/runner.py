@@ -42,6 +42,11 @@ LINE_EXTRAS = ["line.voltage_rms_v", "line.current_rms_a", "line.power_factor",
 PQ_EVERY = 20
 
 
+def recorded_states(rig: Rig) -> list[str]:
+    """The plant states a scenario records (and serve and the benchmarks with it)."""
+    return MOTOR_SIDE + (LINE_SIDE if rig.plant.line_side else [])
+
+
 class RunError(RuntimeError):
     """The run could not be made (no controller, a fault that cannot be applied...)."""
 
@@ -143,7 +148,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
             tcu = await attach_reference(channel, rig, scenario.trainset)
             if tune is not None:
                 tune(tcu)
-        states = MOTOR_SIDE + (LINE_SIDE if rig.plant.line_side else [])
+        states = recorded_states(rig)
         columns = rig.record_columns(states, LINE_EXTRAS if rig.plant.line_side else [])
         try:
             check_signals(scenario.checks, columns, str(scenario.path))
