@@ -8,10 +8,8 @@ from __future__ import annotations
 
 import argparse
 import asyncio
-import re
 import tempfile
-from pathlib import Path, PurePosixPath
-from typing import Any
+from pathlib import Path
 
 import numpy as np
 from rich.console import Console
@@ -28,64 +26,9 @@ from emulator.commands.run import (
 from emulator.profiles.table import ProfileError
 from emulator.recording.recorder import RecordingError, read_recording
 from emulator.scenario.runner import RunError, judge
+from emulator.scenario.texts import UnsafeTextsError, rebuild
 
 HELP = "run a recorded scenario again and compare"
-
-
-FILE_NAME = re.compile(r"[A-Za-z0-9_][A-Za-z0-9._-]{0,127}")
-MAX_UP = 8  # leading ".." a recorded machine path may climb (trainsets/ -> machines/ is 1)
-
-
-class UnsafeRecordingError(ValueError):
-    """A recording that names a path the replay will not write to."""
-
-
-def _file_name(text: Any, what: str) -> str:
-    name = PurePosixPath(str(text)).name
-    if not FILE_NAME.fullmatch(name):
-        raise UnsafeRecordingError(f"the recording's {what} has no usable file name: {text!r}")
-    return name
-
-
-def _machine_parts(relative: Any) -> tuple[int, list[str]]:
-    """(how many folders up, the folders and name below) of the recorded machine path:
-    leading ``..`` only, then plain names; absolute paths refused."""
-    path = PurePosixPath(str(relative))
-    if path.is_absolute() or "\\" in str(relative):
-        raise UnsafeRecordingError(f"the recording names an absolute machine path {relative!r}: "
-                              "refusing to write there")
-    parts = list(path.parts)
-    up = 0
-    while parts and parts[0] == "..":
-        parts.pop(0)
-        up += 1
-    if up > MAX_UP or not parts or any(not FILE_NAME.fullmatch(p) for p in parts):
-        raise UnsafeRecordingError(f"the recording names a machine path {relative!r} that climbs "
-                              "out of its folder or is not plain names: refusing it")
-    return up, parts
-
-
-def _rebuild(meta: dict, where: Path) -> tuple[Path, Path]:
-    """Write the recorded scenario, trainset and machine texts inside ``where`` and
-    nowhere else: (scenario, trainset). Raises UnsafeRecordingError for a path that would
-    leave it (an absolute path, ``..`` after a name, an odd file name)."""
-    machine = meta.get("machine")
-    up, below = _machine_parts(machine["relative"]) if machine else (0, [])
-    trainset = where.joinpath(*["t"] * (up + 1), _file_name(meta["trainset"]["path"],
-                                                             "trainset"))
-    scenario = where / _file_name(meta["scenario"]["path"], "scenario")
-    target = trainset.parent.joinpath(*[".."] * up, *below) if machine else None
-    for path in (trainset, scenario, target):
-        if path is not None and not path.resolve().is_relative_to(where.resolve()):
-            raise UnsafeRecordingError(f"the recording would write {path}, outside {where}")
-    trainset.parent.mkdir(parents=True)
-    trainset.write_text(meta["trainset"]["text"], encoding="utf-8")
-    if target is not None:
-        target = target.resolve()
-        target.parent.mkdir(parents=True, exist_ok=True)
-        target.write_text(machine["text"], encoding="utf-8")
-    scenario.write_text(meta["scenario"]["text"], encoding="utf-8")
-    return scenario, trainset
 
 
 def add_arguments(replay: argparse.ArgumentParser) -> None:
@@ -111,12 +54,12 @@ def run(args: argparse.Namespace) -> int:
         return EXIT_UNRUNNABLE
     with tempfile.TemporaryDirectory() as tmp:
         try:
-            scenario_path, trainset = _rebuild(meta, Path(tmp))
+            scenario_path, trainset = rebuild(meta, Path(tmp))
             seed = meta["seed"]
             if isinstance(seed, bool) or not isinstance(seed, int):
-                raise UnsafeRecordingError(f"the recording's seed is not a whole number: "
+                raise UnsafeTextsError(f"the recording's seed is not a whole number: "
                                            f"{seed!r}")
-        except (UnsafeRecordingError, KeyError, TypeError, AttributeError) as exc:
+        except (UnsafeTextsError, KeyError, TypeError, AttributeError) as exc:
             what = f"the recording has no {exc}" if isinstance(exc, KeyError) else exc
             console.print(f"[red]cannot replay: {what}[/red]")
             return EXIT_UNRUNNABLE

@@ -24,6 +24,7 @@ from emulator.rig.frame_loop import Rig
 from .checks import CheckError, CheckResult, check_signals, evaluate, signal_columns
 from .driver import DriverProgram
 from .spec import Scenario, ScenarioError
+from .texts import scenario_texts
 from .track import Track
 
 MOTOR_SIDE = ["train.speed_mps", "train.position_m", "train.acceleration_mps2",
@@ -103,19 +104,6 @@ class ScenarioProgram:
                                  pq["power_factor"], pq["active_power_w"])
 
 
-def _texts(scenario: Scenario) -> dict:
-    from emulator.profiles.table import read_toml
-
-    trainset_text = scenario.trainset.read_text(encoding="utf-8")
-    machine = read_toml(scenario.trainset).get("trainset", {}).get("machine_profile")
-    machine_path = (scenario.trainset.parent / machine).resolve() if machine else None
-    return {"scenario": {"path": str(scenario.path), "text": scenario.text},
-            "trainset": {"path": str(scenario.trainset), "text": trainset_text},
-            "machine": ({"path": str(machine_path), "relative": machine,
-                         "text": machine_path.read_text(encoding="utf-8")}
-                        if machine_path else None)}
-
-
 async def run_scenario(scenario: Scenario, *, controller: str = "reference",
                        mode: str = "lockstep", seed: int | None = None,
                        record: str | Path | None = None, progress=None,
@@ -160,7 +148,8 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
         path = Path(record) if record is not None else Path(temp)
         meta = {"railrig": emulator.__version__, "seed": seed, "mode": mode,
                 "controller": controller, "period_us": rig.period_us,
-                "name": scenario.name, **_texts(scenario)}
+                "name": scenario.name, **scenario_texts(scenario.path, scenario.text,
+                                                     scenario.trainset)}
         kinds, scales, units = rig.record_storage(columns)
         # the plant states the checks judge stay float64: a verdict is the model's, not
         # float32's (a value within 6e-8 of a limit would otherwise be rounded across it)

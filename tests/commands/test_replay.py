@@ -9,8 +9,8 @@ from pathlib import Path
 
 import pytest
 
-from emulator.commands.replay import UnsafeRecordingError, _rebuild
 from emulator.recording.recorder import Recorder, read_recording
+from emulator.scenario.texts import UnsafeTextsError, rebuild
 
 from .test_run import ROOT, SHORT, _railrig
 
@@ -84,8 +84,8 @@ def test_crafted_file_names_are_refused(recorded, tmp_path, key: str, path: str)
     meta[key]["path"] = path
     where = tmp_path / "rebuilt"
     where.mkdir()
-    with pytest.raises(UnsafeRecordingError, match="file name"):
-        _rebuild(meta, where)
+    with pytest.raises(UnsafeTextsError, match="file name"):
+        rebuild(meta, where)
 
 
 def test_the_shipped_layout_rebuilds_inside_the_folder(recorded, tmp_path) -> None:
@@ -93,7 +93,7 @@ def test_the_shipped_layout_rebuilds_inside_the_folder(recorded, tmp_path) -> No
     assert meta["machine"]["relative"].startswith("../")  # trainsets/ -> machines/
     where = tmp_path / "rebuilt"
     where.mkdir()
-    scenario, _trainset = _rebuild(meta, where)
+    scenario, _trainset = rebuild(meta, where)
     written = sorted(p for p in where.rglob("*") if p.is_file())
     assert len(written) == 3
     assert all(p.resolve().is_relative_to(where.resolve()) for p in written)
