@@ -16,7 +16,7 @@ from rich.console import Console
 from emulator.profiles.table import ProfileError
 
 SUBCOMMANDS = ("demo", "dash", "controller", "serve", "protocol", "export", "run", "replay",
-               "characteristic", "adhesion", "bench", "board-kit")
+               "campaign", "characteristic", "adhesion", "bench", "board-kit")
 console = Console(stderr=True)
 
 

@@ -32,10 +32,13 @@ MAY_IMPORT: dict[str, set[str]] = {
     "monitor": {"plant", "faults", "protocol", "tui"},
     "scenario": {"plant", "rig", "link", "protocol", "faults", "monitor", "profiles",
                  "recording", "controller"},
+    # many runs: the scenario room runs each; faults names what a sweep may set
+    "campaign": {"scenario", "profiles", "recording", "faults"},
     "bench": {"plant", "rig", "link", "protocol", "monitor", "profiles", "controller",
               "scenario", "recording"},
     "commands": {"plant", "rig", "link", "protocol", "faults", "monitor", "profiles",
-                 "recording", "controller", "scenario", "bench", "tui", "boardkit"},
+                 "recording", "controller", "scenario", "campaign", "bench", "tui",
+                 "boardkit"},
 }
 #: modules that stay loose at the top of emulator/ (the package face and the entry point)
 LOOSE = {"__init__", "cli", "kernel_cache"}

@@ -70,6 +70,9 @@ class CheckResult:
     measured: str
     detail: str
     window: tuple[float, float]
+    #: the measured figure as a number where it is one (the extreme of a max or min, the
+    #: settling time, the time a rises_to / falls_to took after its moment), for plots
+    value: float | None = None
 
 
 def _codes(t: Table, key: str) -> tuple[int, ...]:
@@ -213,12 +216,12 @@ def _judge(check, data, t, x, mask, base, window) -> CheckResult:
         k = np.unravel_index(np.argmax(v), v.shape)[0]
         peak = float(v.max())
         return CheckResult(check, peak <= check.value, f"{peak:.4g}",
-                           f"highest at {tw[k]:.2f} s", window)
+                           f"highest at {tw[k]:.2f} s", window, peak)
     if kind == "min":
         k = np.unravel_index(np.argmin(v), v.shape)[0]
         low = float(v.min())
         return CheckResult(check, low >= check.value, f"{low:.4g}", f"lowest at {tw[k]:.2f} s",
-                           window)
+                           window, low)
     lo, hi = check.band or (0.0, 0.0)
     if kind == "band":
         vmin, vmax = float(v.min()), float(v.max())
@@ -231,7 +234,7 @@ def _judge(check, data, t, x, mask, base, window) -> CheckResult:
                                window)
         settle = float(tw[outside[-1] + 1] - base) if outside.size else 0.0
         return CheckResult(check, settle <= check.within_s, f"{settle:.3g} s",
-                           f"in the band from {base + settle:.2f} s", window)
+                           f"in the band from {base + settle:.2f} s", window, settle)
     # rises_to / falls_to: every element must reach the value
     reached = (v >= check.value) if kind == "rises_to" else (v <= check.value)
     firsts = [np.flatnonzero(reached[:, j]) for j in range(v.shape[1])]
@@ -241,4 +244,5 @@ def _judge(check, data, t, x, mask, base, window) -> CheckResult:
     t_hit, x_hit = float(tw[k]), float(x[mask][k])
     ok = ((check.by_s is None or t_hit - base <= check.by_s)
           and (check.by_m is None or x_hit <= check.by_m))
-    return CheckResult(check, ok, f"at {t_hit:.2f} s, {x_hit:.1f} m", "", window)
+    return CheckResult(check, ok, f"at {t_hit:.2f} s, {x_hit:.1f} m", "", window,
+                       t_hit - base)

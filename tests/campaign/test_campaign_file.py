@@ -1,0 +1,168 @@
+"""Campaign files: the matrix they expand to, and errors that name file, line and key.
+
+The expected values are the campaign's own definition (the product of the value lists of
+the sweeps that apply, times the seeds) and what the scenario file says once varied, read
+back by the scenario loader (the same reader ``railrig run`` uses).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from emulator.campaign.spec import CampaignError, load_campaign
+from emulator.campaign.variation import parse_address
+from emulator.scenario.spec import load_scenario
+from emulator.scenario.texts import rebuild
+
+from .conftest import short_start
+
+DIP = '''
+[[fault]]
+name = "catenary-dip"
+target = "catenary"
+params = { voltage_pu = 0.8 }
+at_s = 7.0
+until_s = 8.0
+label = "dip"
+'''
+
+
+def _write(where: Path, campaign: str, scenario: str | None = None) -> Path:
+    (where / "start.toml").write_text(scenario or short_start() + DIP, encoding="utf-8")
+    path = where / "c.toml"
+    path.write_text(campaign, encoding="utf-8")
+    return path
+
+
+def _loaded(run, where: Path):
+    """A run's scenario as a worker reads it (from its texts, in a folder of its own)."""
+    folder = where / f"run{run.run}"
+    folder.mkdir()
+    scenario, trainset = rebuild(run.texts, folder)
+    return load_scenario(scenario, trainset=trainset)
+
+
+HEAD = '''[campaign]
+name = "t"
+scenarios = ["start.toml"]
+'''
+
+
+def test_the_matrix_is_the_product_of_the_lists_and_the_seeds(tmp_path: Path) -> None:
+    path = _write(tmp_path, HEAD + '''seeds = [3, 4, 5]
+[[vary]]
+set = "adhesion[wet rail].factor"
+values = [0.5, 0.7]
+[[vary]]
+set = "fault[dip].voltage_pu"
+from = 0.6
+to = 0.9
+steps = 4
+[[vary]]
+set = "driver[start].to_kmh"
+values = [30.0]
+''')
+    campaign = load_campaign(path)
+    assert len(campaign.runs) == 2 * 4 * 1 * 3
+    assert len({r.digest for r in campaign.runs}) == len(campaign.runs)
+    assert {r.seed for r in campaign.runs} == {3, 4, 5}
+    # the range: both ends exactly, evenly spaced
+    assert sorted({r.values["fault[dip].voltage_pu"] for r in campaign.runs}) == [
+        0.6, 0.7, 0.8, 0.9]
+    for run in campaign.runs[::5]:  # what each run's scenario says, read back
+        scenario = _loaded(run, tmp_path)
+        (zone,) = scenario.track.adhesion_zones
+        assert zone.factor == run.values["adhesion[wet rail].factor"]
+        (dip,) = [f for f in scenario.faults if f.label == "dip"]
+        assert dip.params["voltage_pu"] == run.values["fault[dip].voltage_pu"]
+        start = next(s for s in scenario.driver.steps if s.name == "start")
+        assert start.to_kmh == 30.0
+
+
+def test_a_run_is_keyed_by_its_inputs_not_its_place(tmp_path: Path) -> None:
+    text = HEAD + '[[vary]]\nset = "adhesion[wet rail].factor"\nvalues = [0.5, 0.7]\n'
+    a = load_campaign(_write(tmp_path, text))
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    b = load_campaign(_write(elsewhere, text))
+    assert [r.digest for r in a.runs] == [r.digest for r in b.runs]
+    c = load_campaign(_write(tmp_path, text.replace("0.7", "0.71")))
+    assert a.runs[0].digest == c.runs[0].digest and a.runs[1].digest != c.runs[1].digest
+
+
+def test_the_line_level_is_a_catenary_fault_from_the_start(tmp_path: Path) -> None:
+    path = _write(tmp_path, HEAD + '[[vary]]\nset = "line.voltage_pu"\nvalues = [0.9]\n'
+                  '[[vary]]\nset = "line.frequency_hz"\nvalues = [49.5]\n')
+    (run,) = load_campaign(path).runs
+    faults = {f.label: f for f in _loaded(run, tmp_path).faults}
+    level = faults["line voltage (campaign)"]
+    assert level.name == "catenary-dip" and level.params == {"voltage_pu": 0.9}
+    assert level.at_s == 0.0 and level.until_s is None
+    assert faults["line frequency (campaign)"].params == {"frequency_hz": 49.5}
+    assert faults["dip"].params == {"voltage_pu": 0.8}  # the scenario's own dip stays
+
+
+def test_a_sweep_limited_to_some_scenarios_leaves_the_others_alone(tmp_path: Path) -> None:
+    (tmp_path / "other.toml").write_text(short_start(0.9), encoding="utf-8")
+    path = _write(tmp_path, '''[campaign]
+name = "t"
+scenarios = ["*.toml"]
+seeds = [1]
+[[vary]]
+set = "fault[dip].voltage_pu"
+values = [0.6, 0.7]
+''')
+    (tmp_path / "c.toml").rename(tmp_path / "c.campaign")
+    path = tmp_path / "c.campaign"
+    runs = load_campaign(path).runs
+    # the dip is in start.toml only: two runs of it, one of other.toml
+    assert sorted((r.scenario, tuple(r.values.values())) for r in runs) == [
+        ("other", ()), ("start", (0.6,)), ("start", (0.7,))]
+
+
+@pytest.mark.parametrize(("campaign", "line", "key", "says"), [
+    (HEAD + "colour = 'red'\n", 4, "colour", "unknown key"),
+    ('[campaign]\nname = "t"\nscenarios = ["nothing-*.toml"]\n', 3, "scenarios",
+     "matches no file"),
+    (HEAD + '[[vary]]\nset = "fault[no such].voltage_pu"\nvalues = [0.5]\n', 5, "set",
+     "fault[no such].voltage_pu is in none of the campaign's scenarios"),
+    (HEAD + '[[vary]]\nset = "fault[dip].angle_deg"\nvalues = [5.0]\n', 5, "set",
+     "no parameter 'angle_deg'"),
+    (HEAD + '[[vary]]\nset = "adhesion[wet rail].colour"\nvalues = [5.0]\n', 5, "set",
+     "has no 'colour'"),
+    (HEAD + '[[vary]]\nset = "driver[start].for_s"\nvalues = [5.0]\n', 5, "set",
+     "has no 'for_s' written"),
+    (HEAD + '[[vary]]\nset = "wheel.radius"\nvalues = [5.0]\n', 5, "set",
+     "not an address"),
+    (HEAD + '\n[[vary]]\nset = "adhesion[wet rail].factor"\nvalues = [0.5, 2.5]\n', 7,
+     "values", "factor = 2.5"),
+    (HEAD + '[[vary]]\nset = "adhesion[wet rail].factor"\nvalues = []\n', 6, "values",
+     "expected a list"),
+    (HEAD + '[[vary]]\nset = "adhesion[wet rail].factor"\nvalues = [0.5]\n'
+     'scenarios = ["nope"]\n', 7, "scenarios", "no scenario 'nope'"),
+    (HEAD + '[[vary]]\nset = "adhesion[wet rail].factor"\nfrom = 0.5\nto = 0.9\n', 4,
+     "steps", "missing"),  # a missing key: the line of its table
+    (HEAD + "seeds = [1, 1.5]\n", 4, "seeds", "whole numbers"),
+    (HEAD + 'controller = "udp://{rig}?peer={bind}"\n', 4, "controller",
+     "needs controller_command"),
+    (HEAD + 'controller = "udp://{rig}"\ncontroller_command = "x {bind}"\n', 4,
+     "controller", "both {rig}"),
+    (HEAD + 'controller = "udp://{rig}?peer={bind}"\ncontroller_command = "x {port}"\n', 5,
+     "controller_command", "unknown placeholder {port}"),
+])
+def test_campaign_file_errors_name_file_line_and_key(tmp_path: Path, campaign: str,
+                                                     line: int, key: str, says: str) -> None:
+    path = _write(tmp_path, campaign)
+    with pytest.raises(CampaignError) as err:
+        load_campaign(path)
+    message = str(err.value)
+    assert message.startswith(f"{path}:{line}: "), message
+    assert f"] {key}: " in message and says in message, message
+
+
+def test_an_address_says_its_forms() -> None:
+    assert str(parse_address(" fault[dip 2].voltage_pu ")) == "fault[dip 2].voltage_pu"
+    with pytest.raises(ValueError, match=r"the forms: fault\[LABEL\]"):
+        parse_address("fault.dip.voltage_pu")
