@@ -48,6 +48,9 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
                    "campaign-NAME in the current folder, NAME the file's)")
     p.add_argument("--resume", action="store_true",
                    help="keep the results in --out and run only the runs without one")
+    p.add_argument("--record", choices=("failed", "all", "none"), default=None,
+                   help="which runs' recordings to keep in --out/recordings (default: the "
+                   "file's record, else failed)")
     p.add_argument("--timeout-s", type=float, default=None,
                    help="wall time a run may take (default: 60 s + 10 x its duration in "
                    "lockstep, 60 s + 2 x in real time)")
@@ -82,7 +85,8 @@ def run(args: argparse.Namespace) -> int:
         console.print(f"{writer.cut} row(s) cut short by an interruption dropped from "
                       f"{out}: their runs run again")
     done = writer.done
-    todo = [dict(r.as_dict(), record=campaign.record) for r in campaign.runs
+    record = args.record or campaign.record
+    todo = [dict(r.as_dict(), record=record) for r in campaign.runs
             if r.digest not in done]
     console.print(f"campaign {campaign.name!r}: {len(campaign.runs)} runs, "
                   f"{len(campaign.runs) - len(todo)} with results in {out}, {len(todo)} to run")

@@ -16,7 +16,9 @@ from emulator.campaign.variation import parse_address
 from emulator.scenario.spec import load_scenario
 from emulator.scenario.texts import rebuild
 
-from .conftest import short_start
+from .conftest import ROOT, short_start
+
+TRAINSETS = ROOT / "profiles" / "trainsets"
 
 DIP = '''
 [[fault]]
@@ -90,6 +92,18 @@ def test_a_run_is_keyed_by_its_inputs_not_its_place(tmp_path: Path) -> None:
     assert [r.digest for r in a.runs] == [r.digest for r in b.runs]
     c = load_campaign(_write(tmp_path, text.replace("0.7", "0.71")))
     assert a.runs[0].digest == c.runs[0].digest and a.runs[1].digest != c.runs[1].digest
+
+
+def test_trainsets_replace_the_scenarios_own_and_multiply_the_matrix(tmp_path: Path) -> None:
+    path = _write(tmp_path, HEAD + 'trainsets = ["{}", "{}"]\nseeds = [1, 2]\n'.format(
+        TRAINSETS / "tern-15kv.toml", TRAINSETS / "tern-25kv.toml"))
+    runs = load_campaign(path).runs
+    assert sorted((r.trainset, r.seed) for r in runs) == [
+        ("tern-15kv", 1), ("tern-15kv", 2), ("tern-25kv", 1), ("tern-25kv", 2)]
+    for run in runs:  # the run carries the trainset's text, and reads it back
+        assert run.texts["trainset"]["text"] == (TRAINSETS / f"{run.trainset}.toml"
+                                                 ).read_text(encoding="utf-8")
+        assert _loaded(run, tmp_path).trainset.stem == run.trainset
 
 
 def test_the_line_level_is_a_catenary_fault_from_the_start(tmp_path: Path) -> None:
