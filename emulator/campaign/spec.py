@@ -19,6 +19,7 @@ import glob
 import hashlib
 import itertools
 import json
+import math
 import re
 import tempfile
 from dataclasses import dataclass, field
@@ -154,6 +155,10 @@ def load_campaign(path: str | Path) -> Campaign:
     plot = tuple(_strings(head, "plot")) if head.optional("plot") else ()
     head.finish()
     sweeps = tuple(_sweep(t) for t in root.tables("vary")) if root.optional("vary") else ()
+    for i, s in enumerate(sweeps):
+        if s.address in [o.address for o in sweeps[:i]]:
+            raise s.table.error("set", f"{s.address} is swept twice: give one [[vary]] "
+                                "its values")
     root.finish()
     runs = _expand(scenarios, trainsets, seeds, sweeps, controller, mode, name)
     return Campaign(name, path, controller, mode, record, plot, sweeps, tuple(runs))
@@ -253,6 +258,12 @@ def _expand(scenarios: list[Path], trainsets: list[Path | None], seeds: list[int
             if stem not in stems:
                 raise s.table.error("scenarios", f"no scenario {stem!r} in this campaign "
                                     f"(it has: {', '.join(sorted(stems))})")
+    size = len(scenarios) * len(trainsets) * len(seeds) * math.prod(
+        len(s.values) for s in sweeps)
+    if size > MAX_RUNS:  # an upper bound (a sweep may leave a scenario alone): say it early
+        raise (sweeps[0].table.error("values", f"the matrix would have up to {size} runs, "
+                                     f"more than {MAX_RUNS}") if sweeps else
+               CampaignError(f"the campaign would have {size} runs, more than {MAX_RUNS}"))
     runs: list[RunCase] = []
     used: dict[int, str] = {}  # sweep index -> why it applied to none (if it did not)
     seen: set[str] = set()
@@ -307,9 +318,6 @@ def _expand(scenarios: list[Path], trainsets: list[Path | None], seeds: list[int
                             len(runs) + 1, path.stem, base.trainset.stem, seed,
                             {str(a): v for a, v in changes}, texts,
                             scenario.duration_s, digest, controller, mode))
-                        if len(runs) > MAX_RUNS:
-                            raise sweeps[0].table.error(
-                                "set", f"the matrix has more than {MAX_RUNS} runs")
     for i, s in enumerate(sweeps):
         if used.get(i):
             raise s.table.error("set", f"{s.address} is in none of the campaign's "

@@ -159,6 +159,8 @@ values = [0.6, 0.7]
     (HEAD + '[[vary]]\nset = "adhesion[wet rail].factor"\nfrom = 0.5\nto = 0.9\n', 4,
      "steps", "missing"),  # a missing key: the line of its table
     (HEAD + "seeds = [1, 1.5]\n", 4, "seeds", "whole numbers"),
+    (HEAD + '[[vary]]\nset = "fault[dip].at_s"\nvalues = [1.0]\n'
+     '[[vary]]\nset = " fault[dip].at_s"\nvalues = [2.0]\n', 8, "set", "swept twice"),
     (HEAD + 'controller = "udp://{rig}?peer={bind}"\n', 4, "controller",
      "needs controller_command"),
     (HEAD + 'controller = "udp://{rig}"\ncontroller_command = "x {bind}"\n', 4,
@@ -180,3 +182,11 @@ def test_an_address_says_its_forms() -> None:
     assert str(parse_address(" fault[dip 2].voltage_pu ")) == "fault[dip 2].voltage_pu"
     with pytest.raises(ValueError, match=r"the forms: fault\[LABEL\]"):
         parse_address("fault.dip.voltage_pu")
+
+
+def test_a_matrix_too_large_is_refused_before_anything_is_loaded(tmp_path: Path) -> None:
+    sweeps = "".join(f'[[vary]]\nset = "scenario.{key}"\nfrom = 1\nto = 10\nsteps = 1000\n'
+                     for key in ("initial_speed_kmh", "duration_s"))
+    path = _write(tmp_path, HEAD + "seeds = [1, 2]\n" + sweeps)
+    with pytest.raises(CampaignError, match=r"up to 2000000 runs, more than 100000"):
+        load_campaign(path)
