@@ -142,8 +142,6 @@ class CompiledController(ref.ReferenceController):
                                                                 enc.window, enc.short)
         k[pp.K_SENSOR_JUMP] = SENSOR_JUMP
         k[pp.K_LEAKAGE_H] = cfg.secondary_leakage_h
-        k[pp.K_LIVE_AMPLITUDE], k[pp.K_LIVE_WINDOW] = self.live_amplitude_v, self.live_window_v
-        k[pp.K_LINK_HOLD] = ref.LINK_HOLD_FRACTION
         if self.links:
             link = self.links[0]
             k[pp.K_RAMP_V_PER_S], k[pp.K_DEADBEAT_GAIN] = link.ramp_v_per_s, link.g

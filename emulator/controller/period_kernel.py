@@ -58,10 +58,7 @@ from .period_parts import (
     K_GEAR_EFFICIENCY,
     K_LINE_NOMINAL,
     K_LINE_SIDE,
-    K_LINK_HOLD,
     K_LINK_NOMINAL,
-    K_LIVE_AMPLITUDE,
-    K_LIVE_WINDOW,
     K_LOCK_S,
     K_MAGNETISED_MPS,
     K_MASS,
@@ -205,8 +202,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         recent[ri] = abs(y[x[X_LINE_V]])
         g[G_RECENT_I] = (ri + 1) % recent.shape[0]
         amplitude = g[G_PLL_AMPLITUDE]
-        live = (k[K_LIVE_AMPLITUDE] < amplitude < 1.3 * peak
-                and recent.max() > k[K_LIVE_WINDOW])
+        live = 0.7 * peak < amplitude < 1.3 * peak and recent.max() > 0.5 * peak
         g[G_LINE_LIVE_S] = g[G_LINE_LIVE_S] + period_s if live else 0.0
         breaker, precharge, line_contactor = sequence_step(
             g, k, y[x[X_BREAKER]] > 0.5, pre, line, u_link_min, neutral,
@@ -402,10 +398,9 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         for i in range(n_links):
             u_d = y[xl[i, XL_VOLTAGE]]
             if enabled:
-                p_hold = k[K_LINK_HOLD] * lnk[i, L_P_RATED]
                 chopper = link_step(lnk[i], k, i, xc, y, out, u_applied, u_d, theta,
                                     g[G_PLL_W], u_sec_peak, link_power(k, p_links[i]),
-                                    p_lo[i], max(p_hi[i], p_hold))
+                                    p_lo[i], p_hi[i])
             else:
                 link_reset(lnk[i])
                 for j in range(xc.shape[0]):

@@ -39,12 +39,6 @@ from .speed_plausibility import SpeedPlausibility
 DRIVE_EFFICIENCY = 0.85
 FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
-#: the power a line converter may always draw from a live line, as a fraction of its
-#: link's rating: the drive's no-load losses and the auxiliaries, so the link stays
-#: charged while the line sits at or under U_min2 and traction is cut (EN 50388 cuts the
-#: train's traction current there, not the link's upkeep); a few per cent of the rating
-#: is common practice, no source
-LINK_HOLD_FRACTION = 0.02
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
 # multiple units: from memory, REFERENCES.md)
 HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
@@ -54,24 +48,6 @@ HARDWARE_WINDOW_S = 10.0  # this long is isolated: left blocked, no more resets 
 # practice of traction protection: a repeated hardware trip means a fault, not a transient)
 MAGNETISED_ABOVE_MPS = 1.0  # in a driving mode, the motors stay fluxed above this speed
 FLUX_HOLD_S = 3.0  # ... and as long after the last demand (coasting between brake steps)
-
-
-def live_line_levels(cfg: ControllerConfig, window: int, T: float) -> tuple[float, float]:
-    """(amplitude floor, window floor), V: the line is live while the PLL's amplitude and
-    the largest |sample| of the last ``window`` samples stay above them.
-
-    A sine of peak A sampled every T over ``window`` samples spans the arc
-    phi = 2 pi f (window - 1) T; the largest |sample| of any such span is at least
-    A sin(phi / 2) (the span centred on a zero crossing; the sine's shape, no source
-    needed). Each floor is half of what a line at U_min2 (EN 50163's lowest
-    non-permanent voltage, which a train rides through) gives: sqrt(2) U_min2 / 2 for
-    the amplitude, sqrt(2) U_min2 sin(phi / 2) / 2 for the window. The half is margin
-    for the line's own drop under the train's current and for noise (common practice,
-    no source); a dead line (a neutral section, an open feeder) reads near zero.
-    """
-    phi = 2 * math.pi * cfg.line_frequency_hz * (window - 1) * T
-    peak_min2 = math.sqrt(2) * cfg.line_u_min2_v
-    return 0.5 * peak_min2, 0.5 * peak_min2 * math.sin(min(phi, math.pi) / 2)
 
 
 class ReferenceController:
@@ -122,8 +98,6 @@ class ReferenceController:
         self.line_rms_f = cfg.line_nominal_v
         self._recent = [0.0] * max(round(1 / (4 * cfg.line_frequency_hz * T)), 1)
         self._recent_i = 0
-        self.live_amplitude_v, self.live_window_v = live_line_levels(cfg, len(self._recent),
-                                                                     T)
         self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
                                   for i in range(len(cfg.link_names))]
         self.block_until = [0.0] * n_inv
@@ -253,14 +227,12 @@ class ReferenceController:
             # release the line converters only after the PLL has tracked a live line for
             # LOCK_S (after a neutral section or an interruption its phase is stale)
             peak = cfg.line_nominal_v * math.sqrt(2)
-            # the samples of a quarter period show a dead line within 5 ms (50 Hz), far
-            # sooner than the PLL's amplitude falls; both floors sit at half of what a
-            # line at U_min2 gives (live_line_levels), so a dip the train must ride
-            # through is never taken for a dead line
+            # a quarter period of a live sine always reaches 0.71 of its peak: a dead line
+            # is seen within 5 ms (50 Hz), far sooner than the PLL's amplitude falls
             self._recent[self._recent_i] = abs(y[self.ix_line_v])
             self._recent_i = (self._recent_i + 1) % len(self._recent)
-            live = (self.live_amplitude_v < self.pll.amplitude < 1.3 * peak
-                    and max(self._recent) > self.live_window_v)
+            live = (0.7 * peak < self.pll.amplitude < 1.3 * peak
+                    and max(self._recent) > 0.5 * peak)
             self.line_live_s = self.line_live_s + period_s if live else 0.0
             sw = self.sequence.step(y[self.ix_breaker] > 0.5, pre, line, u_link_min, neutral,
                                     enabled=True, line_locked=self.line_live_s >= LOCK_S)
@@ -451,10 +423,8 @@ class ReferenceController:
                 p_min, p_max = limits[i]  # (0, 0) on a dead line, where they are unused
                 if running and line_live:
                     i_sec = [y[j] for j in self.ix_isec[i]]
-                    p_hold = LINK_HOLD_FRACTION * self.p_rated_link[i]
                     mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,
-                                              link_power(p_links[i]), p_min,
-                                              max(p_max, p_hold))
+                                              link_power(p_links[i]), p_min, p_max)
                 else:
                     link.reset()
                     mods = [0.0] * len(self.ox_mod[i])
