@@ -14,8 +14,10 @@ the reason. Ctrl-C cancels what is left; the results written so far stay valid.
 
 from __future__ import annotations
 
+import itertools
 import logging
 import os
+import uuid
 from collections.abc import Callable
 from typing import Any
 
@@ -35,51 +37,64 @@ def default_workers() -> int:
 
 
 def run_all(cases: list[dict[str, Any]], *, timeout_s: Callable[[dict], float],
-            on_result: Callable[[dict[str, Any]], None], workers: int | None = None,
+            on_result: Callable[[dict[str, Any]], None], workers: int = 1,
             scheduler: str | None = None, on_ready: Callable[[str], None] | None = None,
-            ) -> bool:
-    """Run every case; call on_result with each result as it ends. True when all ended,
-    False when interrupted (Ctrl-C): the runs not ended are cancelled."""
+            ) -> str:
+    """Run every case; call on_result with each result as it ends. Returns "" when all
+    ended, else why not ("interrupted", or what the cluster lost): the runs not ended are
+    cancelled and get no result, so ``--resume`` runs them."""
     import dask
-    from distributed import Client, LocalCluster, as_completed
+    from distributed import Client, KilledWorker, LocalCluster, as_completed
 
     cluster = client = None
     futures: dict = {}
+    token = uuid.uuid4().hex[:8]  # two campaigns on one scheduler never share a task
     try:
         with dask.config.set({"distributed.scheduler.allowed-failures": 1}):
             try:
                 if scheduler:
                     client = Client(scheduler, timeout=CONNECT_TIMEOUT_S)
                 else:
-                    cluster = LocalCluster(n_workers=workers or default_workers(),
-                                           threads_per_worker=1, processes=True,
-                                           dashboard_address=None,
+                    cluster = LocalCluster(n_workers=workers, threads_per_worker=1,
+                                           processes=True, dashboard_address=None,
                                            silence_logs=logging.ERROR)
                     client = Client(cluster)
             except (OSError, TimeoutError, ValueError) as exc:
                 where = scheduler or "a local cluster"
                 raise ClusterError(f"cannot reach {where}: {exc}") from None
+            n = len(client.scheduler_info().get("workers", {}))
             if on_ready is not None:
-                n = len(client.scheduler_info().get("workers", {}))
                 on_ready(f"{scheduler or 'local cluster'}: {n} worker(s)")
-            for case in cases:
+            # a bounded number in flight: a large matrix is not all in the scheduler at once
+            window = max(64, 4 * max(n, workers))
+            waiting = iter(cases)
+
+            def submit(case: dict[str, Any]):
                 fut = client.submit(execute_run, case, timeout_s(case),
-                                    key=f"railrig-run-{case['digest']}", pure=False,
-                                    priority=int(case["duration_s"]))
+                                    key=f"railrig-run-{case['digest'][:32]}-{token}",
+                                    pure=False, priority=int(case["duration_s"]))
                 futures[fut] = case
-            for fut in as_completed(list(futures)):
+                return fut
+
+            running = as_completed([submit(c) for c in itertools.islice(waiting, window)])
+            for fut in running:
                 case = futures.pop(fut)
                 try:
                     result = fut.result()
-                except Exception as exc:  # KilledWorker after the retry, lost data...
+                except KilledWorker as exc:  # died with it twice: the run's own verdict
                     result = lost_run(case, exc)
+                except Exception as exc:  # the cluster lost it, or cannot run railrig
+                    return f"the cluster did not run it: {type(exc).__name__}: {exc}"
                 on_result(result)
-        return True
+                following = next(waiting, None)
+                if following is not None:
+                    running.add(submit(following))
+        return ""
     except KeyboardInterrupt:
+        return "interrupted"
+    finally:
         for fut in futures:
             fut.cancel()
-        return False
-    finally:
         if client is not None:
             client.close(timeout=10)
         if cluster is not None:
@@ -87,10 +102,9 @@ def run_all(cases: list[dict[str, Any]], *, timeout_s: Callable[[dict], float],
 
 
 def lost_run(case: dict[str, Any], exc: BaseException) -> dict[str, Any]:
-    """The result of a run the cluster lost (its worker died twice, say)."""
+    """The result of a run whose worker died twice (the scheduler's KilledWorker)."""
     name = type(exc).__name__
-    why = ("the worker running it died, and again on its retry" if name == "KilledWorker"
-           else "the cluster lost it")
+    why = "the worker running it died, and again on its retry"
     return {**{k: case[k] for k in ("run", "digest", "label", "scenario", "trainset",
                                     "seed", "values")},
             "verdict": ERROR, "failed_checks": [], "checks": [], "wall_s": 0.0,

@@ -54,7 +54,7 @@ def write_index(out: Path, name: str, addresses: list[str], rows: list[dict[str,
         parts.append("<h2>Runs that did not pass</h2><table><tr><th>run</th><th>scenario"
                      "</th><th>values</th><th>verdict</th><th>failed checks or reason</th>"
                      "<th>recording</th></tr>")
-        for r in sorted(bad, key=lambda r: int(r["run"])):
+        for r in sorted(bad, key=lambda r: (len(r["run"]), r["run"])):
             values = ", ".join(f"{a}={r[a]}" for a in addresses if r.get(a)) + (
                 f", seed={r['seed']}")
             rec = (f"<a href='{html.escape(r['recording'])}'>{html.escape(r['recording'])}"
@@ -80,7 +80,7 @@ def _cell(runs: list[dict[str, str]]) -> str:
 
 def _matrix(runs: list[dict[str, str]], swept: list[str]) -> str:
     def values(a: str) -> list[str]:
-        return sorted({r[a] for r in runs}, key=_key)
+        return sorted({r.get(a, "") for r in runs}, key=_key)
 
     out = ["<table>"]
     if not swept:
@@ -89,7 +89,7 @@ def _matrix(runs: list[dict[str, str]], swept: list[str]) -> str:
         a = swept[0]
         out.append(f"<tr><th>{html.escape(a)}</th>"
                    + "".join(f"<th>{html.escape(v)}</th>" for v in values(a)) + "</tr>")
-        out.append("<tr><th></th>" + "".join(_cell([r for r in runs if r[a] == v])
+        out.append("<tr><th></th>" + "".join(_cell([r for r in runs if r.get(a, "") == v])
                                              for v in values(a)) + "</tr>")
     else:
         down, across = swept[0], swept[1]
@@ -97,7 +97,7 @@ def _matrix(runs: list[dict[str, str]], swept: list[str]) -> str:
                    + "".join(f"<th>{html.escape(v)}</th>" for v in values(across)) + "</tr>")
         for d in values(down):
             out.append(f"<tr><th>{html.escape(d)}</th>" + "".join(
-                _cell([r for r in runs if r[down] == d and r[across] == c])
+                _cell([r for r in runs if r.get(down, "") == d and r.get(across, "") == c])
                 for c in values(across)) + "</tr>")
     out.append("</table>")
     return "\n".join(out)
@@ -128,12 +128,12 @@ def _figures(out: Path, groups, addresses: list[str], checks: list[dict[str, str
             judged = [(r, by_run[r["digest"]].get(check)) for r in runs]
             points = [(r, c) for r, c in judged if c and _num(c["value"]) is not None]
             # judged, but with no number to show (a speed never reached): on the top edge
-            blank = [_num(r[address]) for r, c in judged if c and _num(c["value"]) is None]
+            blank = [_num(r.get(address)) for r, c in judged if c and _num(c["value"]) is None]
             if not points:
                 continue
             fig, ax = plt.subplots(figsize=(6.4, 3.6))
             for seed in sorted({r["seed"] for r, _ in points}, key=_key):
-                mine = sorted(((_num(r[address]), _num(c["value"]), c["passed"] == "True")
+                mine = sorted(((_num(r.get(address)), _num(c["value"]), c["passed"] == "True")
                                for r, c in points if r["seed"] == seed),
                               key=lambda p: p[0])
                 xs = [p[0] for p in mine]

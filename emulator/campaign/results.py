@@ -3,14 +3,17 @@
 ``results.csv`` has one row a run, written and flushed as each run ends, so an
 interrupted campaign leaves a valid file of the runs that ended; ``checks.csv`` has one
 row a check of a run (its verdict, what was measured and the figure as a number, for
-plotting against the sweeps). ``--resume`` reads both back and runs only the digests
-that have no row; a last row cut short by a kill is dropped and said.
+plotting against the sweeps). ``--resume`` reads both back (after a copy of each, .bak)
+and runs only the digests that have no row; a last row cut short by a kill is dropped
+and said, any other row that does not fit is an error naming its line.
 """
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import os
+import shutil
 import xml.etree.ElementTree as ET
 from pathlib import Path
 from typing import Any
@@ -27,15 +30,45 @@ def results_columns(addresses: list[str]) -> list[str]:
     return HEAD + addresses + TAIL
 
 
-def read_rows(path: Path) -> tuple[list[dict[str, str]], int]:
-    """The whole rows of a CSV file with a header, and how many were cut short."""
+class ResultsFileError(ValueError):
+    """A results file that cannot be read back as written (edited, or another file)."""
+
+
+#: a field may hold a run's whole reason (its controller's last lines): above csv's default
+csv.field_size_limit(16 * 1024 * 1024)
+REQUIRED = ("run", "digest", "verdict", "scenario")
+
+
+def read_rows(path: Path, required: tuple[str, ...] = REQUIRED
+              ) -> tuple[list[dict[str, str]], int]:
+    """The rows of a CSV file with a header, and how many were cut short: only a last
+    line with no line end (a kill mid-write) is; any other row that does not fit the
+    header is a ResultsFileError naming the file and the line (nothing is rewritten)."""
     if not path.is_file():
         return [], 0
-    with path.open(newline="", encoding="utf-8") as fh:
-        reader = csv.DictReader(fh)
-        rows = list(reader)
-    whole = [r for r in rows if None not in r.values() and None not in r]
-    return whole, len(rows) - len(whole)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (UnicodeDecodeError, OSError) as exc:
+        raise ResultsFileError(f"{path}: cannot read it as UTF-8 text: {exc}") from None
+    cut = 0
+    if text and not text.endswith("\n"):
+        text = text[:text.rfind("\n") + 1]
+        cut = 1
+    reader = csv.DictReader(text.splitlines(keepends=True))
+    rows = []
+    try:
+        for row in reader:
+            if None in row or None in row.values():
+                raise ResultsFileError(f"{path}:{reader.line_num}: the row does not have "
+                                       "the header's columns (edited?)")
+            rows.append(row)
+    except csv.Error as exc:
+        raise ResultsFileError(f"{path}:{reader.line_num}: {exc}") from None
+    missing = [c for c in required if c not in (reader.fieldnames or [])]
+    if missing:
+        raise ResultsFileError(f"{path}:1: no column {missing[0]!r}: not a railrig "
+                               "campaign's file")
+    return rows, cut
 
 
 class ResultsWriter:
@@ -50,13 +83,17 @@ class ResultsWriter:
         (out / RECORDINGS).mkdir(exist_ok=True)
         results, checks = out / RESULTS, out / CHECKS
         if resume:
-            self.rows, self.cut = read_rows(results)
-            old_checks, cut = read_rows(checks)
+            rows, self.cut = read_rows(results)
+            old_checks, cut = read_rows(checks, ("run", "digest", "check"))
             self.cut += cut
-            known = {r["digest"] for r in self.rows}
+            known = {r["digest"] for r in rows}
             # columns of an earlier campaign file kept: nothing recorded is dropped
-            extra = [k for r in self.rows for k in r if k not in self.columns]
+            extra = [k for r in rows for k in r if k not in self.columns]
             self.columns = self.columns[:-len(TAIL)] + list(dict.fromkeys(extra)) + TAIL
+            self.rows = [{c: r.get(c, "") for c in self.columns} for r in rows]
+            for f in (results, checks):  # as they were, beside: a rewrite loses nothing
+                if f.exists():
+                    shutil.copyfile(f, f.with_suffix(".csv.bak"))
             _rewrite(results, self.columns, self.rows)
             _rewrite(checks, CHECK_COLUMNS, [c for c in old_checks if c["digest"] in known])
         else:
@@ -110,6 +147,14 @@ class ResultsWriter:
         self._results.close()
         self._checks.close()
 
+    def remove(self) -> None:
+        """Take away the empty files this writer made (a campaign that never started)."""
+        for f in (self.out / RESULTS, self.out / CHECKS):
+            f.unlink(missing_ok=True)
+        with contextlib.suppress(OSError):
+            (self.out / RECORDINGS).rmdir()
+            self.out.rmdir()
+
 
 def _rewrite(path: Path, columns: list[str], rows: list[dict]) -> None:
     """Write a whole CSV file through a temporary one (a kill leaves the old or the new)."""
@@ -131,7 +176,7 @@ def write_junit(name: str, rows: list[dict[str, str]], labels: dict[str, str],
     root = ET.Element("testsuites", name=f"railrig campaign {name}")
     suite = ET.SubElement(root, "testsuite", name=name, tests=str(len(rows)))
     counts = {"fail": 0, "error": 0, "timeout": 0}
-    for r in sorted(rows, key=lambda r: int(r["run"])):
+    for r in sorted(rows, key=lambda r: (len(r["run"]), r["run"])):
         case = ET.SubElement(suite, "testcase", classname=f"railrig.campaign.{r['scenario']}",
                              name=labels.get(r["digest"], f"run {r['run']}"),
                              time=r.get("wall_s", "0"))

@@ -21,6 +21,7 @@ import itertools
 import json
 import math
 import re
+import shlex
 import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -28,7 +29,7 @@ from typing import Any
 
 from emulator.profiles.table import ProfileError, Table, read_toml_lines
 from emulator.scenario.spec import load_scenario
-from emulator.scenario.texts import rebuild, scenario_texts
+from emulator.scenario.texts import UnsafeTextsError, rebuild, scenario_texts
 
 from .variation import Address, NotInScenarioError, apply, locate, parse_address, scenario_text
 
@@ -118,10 +119,14 @@ def _plain(value: Any) -> str:
     return f"{value:g}" if isinstance(value, float) else str(value)
 
 
-def run_digest(texts: dict, seed: int, controller: ControllerSpec, mode: str) -> str:
-    """SHA-256 of what makes a run: the three texts, the seed, the controller, the mode
-    (file paths are not in it: the same texts elsewhere are the same run)."""
-    key = {"scenario": texts["scenario"]["text"], "trainset": texts["trainset"]["text"],
+def run_digest(name: str, texts: dict, seed: int, controller: ControllerSpec,
+               mode: str) -> str:
+    """SHA-256 of what makes a run: the scenario's name in the campaign (its file's stem),
+    the three texts, the seed, the controller, the mode. Folders and the campaign's own
+    name are not in it: the same run from another place, or in a renamed campaign, is
+    the same run."""
+    key = {"name": name, "scenario": texts["scenario"]["text"],
+           "trainset": texts["trainset"]["text"],
            "machine": (texts["machine"] or {}).get("text"), "seed": seed,
            "controller": controller.as_dict(), "mode": mode}
     return hashlib.sha256(json.dumps(key, sort_keys=True).encode()).hexdigest()
@@ -137,11 +142,16 @@ def load_campaign(path: str | Path) -> Campaign:
     if head.optional("description"):
         head.string("description")
     scenarios = _scenario_paths(head, path.parent)
-    controller = _controller(head)
+    controller = _controller(head, path.parent)
     trainsets: list[Path | None] = [None]
     if head.optional("trainsets"):
-        trainsets = [_existing(head, "trainsets", path.parent, p)
-                     for p in _strings(head, "trainsets")]
+        trainsets = list(dict.fromkeys(_existing(head, "trainsets", path.parent, p)
+                                       for p in _strings(head, "trainsets")))
+        stems = [t.stem for t in trainsets]
+        twice = sorted({s for s in stems if stems.count(s) > 1})
+        if twice:
+            raise head.error("trainsets", f"two trainset files are named {twice[0]!r}: runs "
+                             "are told apart by file name")
     seeds: list[int | None] = [None]
     if head.optional("seeds"):
         raw = head.raw("seeds")
@@ -160,7 +170,11 @@ def load_campaign(path: str | Path) -> Campaign:
             raise s.table.error("set", f"{s.address} is swept twice: give one [[vary]] "
                                 "its values")
     root.finish()
-    runs = _expand(scenarios, trainsets, seeds, sweeps, controller, mode, name)
+    runs, checks = _expand(head, scenarios, trainsets, seeds, sweeps, controller, mode)
+    for check in plot:
+        if check not in checks:
+            raise head.error("plot", f"no check of the campaign's scenarios is named "
+                             f"{check!r}")
     return Campaign(name, path, controller, mode, record, plot, sweeps, tuple(runs))
 
 
@@ -197,21 +211,28 @@ def _scenario_paths(head: Table, base: Path) -> list[Path]:
     return found
 
 
-def _controller(head: Table) -> ControllerSpec:
+def placeholders(text: str) -> set[str]:
+    """The {name} placeholders of a template ({{ and }} stand for literal braces)."""
+    return set(_PLACEHOLDER.findall(text.replace("{{", "").replace("}}", "")))
+
+
+def _controller(head: Table, base: Path) -> ControllerSpec:
     url = head.string("controller") if head.optional("controller") else "reference"
     command = head.string("controller_command") if head.optional(
         "controller_command") else None
+    allowed = {"controller": {"rig", "bind"}, "controller_command": {"rig", "bind", "trainset"}}
     for key, text in (("controller", url), ("controller_command", command or "")):
-        unknown = {p for p in _PLACEHOLDER.findall(text)} - {"rig", "bind", "trainset"}
+        unknown = placeholders(text) - allowed[key]
         if unknown:
-            raise head.error(key, f"unknown placeholder {{{sorted(unknown)[0]}}}: "
-                             "use {rig}, {bind} (and {trainset} in the command)")
+            raise head.error(key, f"unknown placeholder {{{sorted(unknown)[0]}}}: use "
+                             f"{', '.join('{' + a + '}' for a in sorted(allowed[key]))} "
+                             "(and {{ }} for a literal brace)")
     if url == "reference":
         if command:
             raise head.error("controller_command", "the reference controller runs in the "
                              "rig's process: give a link URL as controller to start one")
         return ControllerSpec(url)
-    if ("{rig}" in url) != ("{bind}" in url) or "{trainset}" in url:
+    if ("{rig}" in url) != ("{bind}" in url):
         raise head.error("controller", "a URL template has both {rig} (the rig's address) "
                          "and {bind} (the controller's), e.g. udp://{rig}?peer={bind}")
     if "{rig}" in url and not url.startswith("udp://"):
@@ -219,6 +240,20 @@ def _controller(head: Table) -> ControllerSpec:
     if "{rig}" in url and not command:
         raise head.error("controller", "a URL template needs controller_command, the "
                          "command that starts the controller for each run")
+    if command is not None:
+        if "{rig}" not in url and placeholders(command) & {"rig", "bind"}:
+            raise head.error("controller_command", "{rig} and {bind} come from a URL "
+                             "template (udp://{rig}?peer={bind}); this URL is fixed")
+        try:
+            args = shlex.split(command)
+        except ValueError as exc:
+            raise head.error("controller_command", f"cannot split it as a shell would: "
+                             f"{exc}") from None
+        if not args:
+            raise head.error("controller_command", "expected a command")
+        if "/" in args[0] and not Path(args[0]).is_absolute():  # ./my-tcu: beside the file
+            args[0] = str((base / args[0]).resolve())
+            command = shlex.join(args)
     return ControllerSpec(url, command)
 
 
@@ -249,26 +284,31 @@ def _sweep(t: Table) -> Sweep:
     return Sweep(address, values, scenarios, t)
 
 
-def _expand(scenarios: list[Path], trainsets: list[Path | None], seeds: list[int | None],
-            sweeps: tuple[Sweep, ...], controller: ControllerSpec, mode: str,
-            name: str) -> list[RunCase]:
+def _expand(head: Table, scenarios: list[Path], trainsets: list[Path | None],
+            seeds: list[int | None], sweeps: tuple[Sweep, ...], controller: ControllerSpec,
+            mode: str) -> tuple[list[RunCase], set[str]]:
+    """The runs, and the names of the checks their scenarios hold."""
     stems = {p.stem for p in scenarios}
     for s in sweeps:
         for stem in s.scenarios:
             if stem not in stems:
                 raise s.table.error("scenarios", f"no scenario {stem!r} in this campaign "
                                     f"(it has: {', '.join(sorted(stems))})")
-    size = len(scenarios) * len(trainsets) * len(seeds) * math.prod(
-        len(s.values) for s in sweeps)
-    if size > MAX_RUNS:  # an upper bound (a sweep may leave a scenario alone): say it early
-        raise (sweeps[0].table.error("values", f"the matrix would have up to {size} runs, "
-                                     f"more than {MAX_RUNS}") if sweeps else
-               CampaignError(f"the campaign would have {size} runs, more than {MAX_RUNS}"))
+    # an upper bound (a sweep may not hold in a scenario), said before anything is loaded
+    size = sum(len(trainsets) * len(seeds) * math.prod(
+        len(s.values) for s in sweeps if not s.scenarios or p.stem in s.scenarios)
+        for p in scenarios)
+    if size > MAX_RUNS:
+        raise head.error("scenarios", f"the matrix would have up to {size} runs, more "
+                         f"than {MAX_RUNS}")
     runs: list[RunCase] = []
+    checks: set[str] = set()
     used: dict[int, str] = {}  # sweep index -> why it applied to none (if it did not)
     seen: set[str] = set()
+    folders = itertools.count()
     with tempfile.TemporaryDirectory(prefix="railrig-campaign-") as tmp:
         for path in scenarios:
+            own = load_scenario(path)  # the file is sound before its values are looked up
             data, _lines, text = read_toml_lines(path)
             applied = []
             for i, s in enumerate(sweeps):
@@ -284,33 +324,45 @@ def _expand(scenarios: list[Path], trainsets: list[Path | None], seeds: list[int
                 used[i] = ""
                 applied.append(s)
             for trainset in trainsets:
-                base = load_scenario(path, trainset=trainset)
+                base = own if trainset is None else load_scenario(path, trainset=trainset)
+                checks |= {c.name for c in base.checks}
+                key = "trainsets" if trainset is not None else "scenarios"
 
-                def made(changes, where, base=base, data=data, text=text, path=path):
+                def made(changes, base=base, data=data, text=text, path=path, key=key):
                     varied = text
                     if changes:
-                        note = (f"{path.name}, varied by the campaign {name!r}: " + ", ".join(
-                            f"{a} = {_plain(v)}" for a, v in changes))
+                        note = "varied by a campaign: " + ", ".join(
+                            f"{a} = {_plain(v)}" for a, v in changes)
                         varied = scenario_text(apply(data, changes), note)
                     texts = scenario_texts(path, varied, base.trainset)
-                    return texts, _check_run(texts, Path(tmp) / where, changes, path)
+                    # fixed file names: a worker writes the texts under these, whatever
+                    # the files were called here
+                    texts["scenario"]["path"] = "scenario.toml"
+                    texts["trainset"]["path"] = "trainset.toml"
+                    try:
+                        return texts, _check_run(texts, Path(tmp) / str(next(folders)),
+                                                 changes, path)
+                    except UnsafeTextsError as exc:
+                        raise head.error(key, f"{path.name} on {base.trainset.name}: "
+                                         f"{exc}; campaigns ship texts, so a trainset "
+                                         "names its machine profile by a plain relative "
+                                         "path") from None
 
-                for k, s in enumerate(applied):  # each value alone first: an error is its own
-                    for j, v in enumerate(s.values):
+                for s in applied:  # each value alone first: an error is its own
+                    for v in s.values:
                         try:
-                            made([(s.address, v)], f"{path.stem}-{trainset and trainset.stem}"
-                                 f"-{k}-{j}")
-                        except ValueError as exc:
+                            made([(s.address, v)])
+                        except _ValuesError as exc:
                             raise s.table.error("values", str(exc)) from None
                 for combo in itertools.product(*(s.values for s in applied)):
                     changes = [(s.address, v) for s, v in zip(applied, combo, strict=True)]
                     try:
-                        texts, scenario = made(changes, f"run-{len(runs)}")
-                    except ValueError as exc:  # values that are fine alone, not together
+                        texts, scenario = made(changes)
+                    except _ValuesError as exc:  # values that are fine alone, not together
                         raise applied[-1].table.error("values", str(exc)) from None
                     for seed in seeds:
                         seed = scenario.seed if seed is None else seed
-                        digest = run_digest(texts, seed, controller, mode)
+                        digest = run_digest(path.stem, texts, seed, controller, mode)
                         if digest in seen:
                             continue
                         seen.add(digest)
@@ -322,12 +374,17 @@ def _expand(scenarios: list[Path], trainsets: list[Path | None], seeds: list[int
         if used.get(i):
             raise s.table.error("set", f"{s.address} is in none of the campaign's "
                                 f"scenarios (first: {used[i]})")
-    return runs
+    return runs, checks
+
+
+class _ValuesError(ValueError):
+    """A run's scenario does not load with the values a campaign set in it."""
 
 
 def _check_run(texts: dict, where: Path, changes, path: Path):
-    """Load a run's scenario as a worker will (from its texts, in a folder of its own);
-    ValueError naming the scenario file and the values for an error the values made."""
+    """Load a run's scenario as a worker will (from its texts, in a folder of its own).
+    _ValuesError naming the scenario file and the values for an error the values made;
+    UnsafeTextsError for texts a worker would not write."""
     where.mkdir(parents=True)
     scenario_path, trainset = rebuild(texts, where)
     try:
@@ -337,4 +394,4 @@ def _check_run(texts: dict, where: Path, changes, path: Path):
             raise
         said = re.sub(r"^.*?:\d+: ", "", str(exc), count=1)
         values = ", ".join(f"{a} = {_plain(v)}" for a, v in changes)
-        raise ValueError(f"{path.name} with {values}: {said}") from None
+        raise _ValuesError(f"{path.name} with {values}: {said}") from None

@@ -27,6 +27,8 @@ from typing import Any
 PASS, FAIL, ERROR, TIMEOUT = "pass", "fail", "error", "timeout"
 #: lines of a controller process's output kept for the reason of an error
 LOG_TAIL = 20
+#: and of characters (a reason is one field of results.csv)
+LOG_CHARS = 4000
 
 
 def execute_run(case: dict[str, Any], timeout_s: float) -> dict[str, Any]:
@@ -50,6 +52,8 @@ def execute_run(case: dict[str, Any], timeout_s: float) -> dict[str, Any]:
                 keep == "all" or (keep == "failed" and out["verdict"] != PASS)):
             out["recording"] = record.read_bytes()
     out["wall_s"] = time.perf_counter() - t0
+    if len(out["reason"]) > 2 * LOG_CHARS:
+        out["reason"] = out["reason"][:2 * LOG_CHARS] + "..."
     return out
 
 
@@ -69,11 +73,12 @@ def _run(case: dict, where: Path, record: Path, timeout_s: float, out: dict) -> 
     else:
         rig = bind = ""
     if command:
-        args = [a.replace("{rig}", rig).replace("{bind}", bind)
-                .replace("{trainset}", str(trainset)) for a in shlex.split(command)]
+        values = {"{rig}": rig, "{bind}": bind, "{trainset}": str(trainset)}
+        args = [_fill(a, values) for a in shlex.split(command)]
         with log.open("wb") as fh:
             proc = subprocess.Popen(args, stdout=fh, stderr=subprocess.STDOUT, cwd=where,
-                                    stdin=subprocess.DEVNULL, start_new_session=True)
+                                    stdin=subprocess.DEVNULL, start_new_session=True,
+                                    preexec_fn=_death_signal())
     deadline = time.monotonic() + timeout_s
 
     def progress(*_) -> None:  # called every 250 frames: an in-process run never awaits
@@ -140,12 +145,38 @@ def _stop(proc: subprocess.Popen) -> None:
             proc.wait(wait)
 
 
+def _fill(arg: str, values: dict[str, str]) -> str:
+    """A command's argument with its placeholders filled ({{ and }}: literal braces)."""
+    out = []
+    for part in arg.split("{{"):
+        for key, value in values.items():
+            part = part.replace(key, value)
+        out.append(part.replace("}}", "}"))
+    return "{".join(out)
+
+
+def _death_signal():
+    """A function for the controller's process to call before it starts (Linux): end it
+    when the worker that started it ends, however that happens (a killed worker runs no
+    clean-up of its own). Resolved here, in the worker: the child only calls it (no
+    imports or locks between fork and exec). None where prctl is not there."""
+    try:
+        import ctypes
+
+        prctl = ctypes.CDLL(None, use_errno=True).prctl
+    except (OSError, AttributeError):
+        return None
+    sigkill = int(signal.SIGKILL)
+    return lambda: prctl(1, sigkill)  # PR_SET_PDEATHSIG
+
+
 def _tail(log: Path) -> str:
     try:
         lines = log.read_text(encoding="utf-8", errors="replace").splitlines()
     except OSError:
         return "(no output)"
-    return "\n".join(lines[-LOG_TAIL:]) or "(no output)"
+    tail = "\n".join(lines[-LOG_TAIL:]) or "(no output)"
+    return tail if len(tail) <= LOG_CHARS else "..." + tail[-LOG_CHARS:]
 
 
 def free_udp_ports(n: int) -> list[int]:

@@ -8,6 +8,8 @@ campaign's results) or was interrupted before its end (``--resume`` runs the res
 from __future__ import annotations
 
 import argparse
+import contextlib
+import signal
 import time
 from collections import Counter
 from pathlib import Path
@@ -26,7 +28,15 @@ from rich.table import Table
 
 from emulator.campaign.execute import ClusterError, default_workers, run_all
 from emulator.campaign.report import write_index
-from emulator.campaign.results import CHECKS, JUNIT, RESULTS, ResultsWriter, read_rows, write_junit
+from emulator.campaign.results import (
+    CHECKS,
+    JUNIT,
+    RESULTS,
+    ResultsFileError,
+    ResultsWriter,
+    read_rows,
+    write_junit,
+)
 from emulator.campaign.spec import CampaignError, load_campaign
 from emulator.commands.run import EXIT_FAILED, EXIT_PASSED, EXIT_UNRUNNABLE
 
@@ -56,30 +66,43 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
                    "lockstep, 60 s + 2 x in real time)")
 
 
+MAX_WORKERS = 512
+
+
 def run(args: argparse.Namespace) -> int:
     """railrig campaign FILE"""
     try:
         campaign = load_campaign(args.campaign)
-    except (CampaignError, OSError) as exc:
-        console.print(f"[red]{escape(str(exc))}[/red]")
+    except (CampaignError, OSError, UnicodeDecodeError) as exc:
+        say = str(exc) if not isinstance(exc, UnicodeDecodeError) else (
+            f"{args.campaign}: not UTF-8 text: {exc}")
+        console.print(f"[red]{escape(say)}[/red]")
         return EXIT_UNRUNNABLE
-    if args.workers is not None and args.workers < 1:
-        console.print("[red]--workers takes 1 or more[/red]")
+    if args.workers is not None and not 1 <= args.workers <= MAX_WORKERS:
+        console.print(f"[red]--workers takes 1 to {MAX_WORKERS}[/red]")
         return EXIT_UNRUNNABLE
     if args.timeout_s is not None and not args.timeout_s > 0:
         console.print("[red]--timeout-s takes a positive number of seconds[/red]")
         return EXIT_UNRUNNABLE
-    if not campaign.controller.per_run and (args.scheduler or (args.workers or 1) != 1):
-        console.print(f"[red]the controller at {campaign.controller.url} is one for the whole "
-                      "campaign, so its runs go one at a time: give --workers 1 (and no "
-                      "--scheduler), or a URL with {rig} and {bind} and a controller_command"
-                      "[/red]")
+    per_run = campaign.controller.per_run
+    workers = args.workers or (default_workers() if per_run else 1)
+    if not per_run and (args.scheduler or workers != 1):
+        console.print(escape(f"the controller at {campaign.controller.url} is one for the "
+                             "whole campaign, so its runs go one at a time: give --workers 1 "
+                             "(and no --scheduler), or a URL with {rig} and {bind} and a "
+                             "controller_command"), style="red")
         return EXIT_UNRUNNABLE
     out = Path(args.out) if args.out else Path(f"campaign-{campaign.path.stem}")
+    if (not args.resume and out.is_dir() and any(out.iterdir())
+            and not (out / RESULTS).exists()):
+        console.print(escape(f"{out} holds other files: give an empty or new folder as "
+                             "--out"), style="red")
+        return EXIT_UNRUNNABLE
+    fresh = not (out / RESULTS).exists()
     try:
         writer = ResultsWriter(out, campaign.addresses, resume=args.resume)
-    except (FileExistsError, OSError) as exc:
-        console.print(f"[red]{exc}[/red]")
+    except (FileExistsError, ResultsFileError, OSError) as exc:
+        console.print(escape(str(exc)), style="red")
         return EXIT_UNRUNNABLE
     if writer.cut:
         console.print(f"{writer.cut} row(s) cut short by an interruption dropped from "
@@ -88,8 +111,9 @@ def run(args: argparse.Namespace) -> int:
     record = args.record or campaign.record
     todo = [dict(r.as_dict(), record=record) for r in campaign.runs
             if r.digest not in done]
-    console.print(f"campaign {campaign.name!r}: {len(campaign.runs)} runs, "
-                  f"{len(campaign.runs) - len(todo)} with results in {out}, {len(todo)} to run")
+    console.print(escape(f"campaign {campaign.name!r}: {len(campaign.runs)} runs, "
+                         f"{len(campaign.runs) - len(todo)} with results in {out}, "
+                         f"{len(todo)} to run"))
 
     def timeout_s(case: dict) -> float:
         if args.timeout_s is not None:
@@ -99,12 +123,12 @@ def run(args: argparse.Namespace) -> int:
     counts: Counter = Counter()
     walls: list[float] = []
     t0 = time.perf_counter()
-    finished = True
+    stopped = ""
     bar = Progress(TextColumn("[bold]{task.description}"), BarColumn(), MofNCompleteColumn(),
                    TextColumn("{task.fields[failed]} not passed"), TimeElapsedColumn(),
                    TextColumn("left"), TimeRemainingColumn(), console=console)
-    with bar:
-        task = bar.add_task(campaign.name, total=len(todo), failed=0)
+    with bar, _sigterm_as_interrupt():
+        task = bar.add_task(escape(campaign.name), total=len(todo), failed=0)
 
         def on_result(result: dict) -> None:
             writer.add(result)
@@ -113,26 +137,47 @@ def run(args: argparse.Namespace) -> int:
             bar.update(task, advance=1, failed=sum(v for k, v in counts.items()
                                                    if k != "pass"))
             if result["verdict"] != "pass":
-                what = "; ".join(result["failed_checks"]) or result["reason"].splitlines()[0]
+                what = "; ".join(result["failed_checks"]) or (
+                    result["reason"].splitlines() or [""])[0]
                 bar.console.print(escape(f"run {result['run']} {result['label']}: "
                                          f"{result['verdict']}: {what}"))
 
         try:
             if todo:
-                finished = run_all(todo, timeout_s=timeout_s, on_result=on_result,
-                                   workers=args.workers, scheduler=args.scheduler,
-                                   on_ready=lambda s: bar.console.print(s))
+                stopped = run_all(todo, timeout_s=timeout_s, on_result=on_result,
+                                  workers=workers, scheduler=args.scheduler,
+                                  on_ready=lambda s: bar.console.print(escape(s)))
         except ClusterError as exc:
-            console.print(f"[red]{exc}[/red]")
-            finished = False
+            writer.close()
+            console.print(escape(str(exc)), style="red")
+            if fresh and not writer.rows:  # nothing ran: leave no half-made results
+                writer.remove()
+            return EXIT_UNRUNNABLE
         finally:
             writer.close()
     elapsed = time.perf_counter() - t0
-    return _finish(campaign, out, writer.rows, counts, walls, elapsed, finished)
+    return _finish(campaign, out, writer.rows, counts, walls, elapsed, stopped)
+
+
+@contextlib.contextmanager
+def _sigterm_as_interrupt():
+    """SIGTERM (a CI job cancelled, a kill) ends the campaign as Ctrl-C does: what ended
+    is written, the rest is cancelled."""
+    def interrupt(signum, frame):
+        raise KeyboardInterrupt
+    try:
+        before = signal.signal(signal.SIGTERM, interrupt)
+    except ValueError:  # not the main thread
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, before)
 
 
 def _finish(campaign, out: Path, rows: list[dict], counts: Counter, walls: list[float],
-            elapsed: float, finished: bool) -> int:
+            elapsed: float, stopped: str) -> int:
     ran = sum(counts.values())
     speed = ""
     if ran and elapsed > 0:
@@ -140,29 +185,38 @@ def _finish(campaign, out: Path, rows: list[dict], counts: Counter, walls: list[
                  f"their own wall times add up to {sum(walls):.1f} s (one after another: "
                  f"x{sum(walls) / elapsed:.2f} the time this took)")
     labels = {r.digest: r.label for r in campaign.runs}
-    verdicts = Counter(r["verdict"] for r in rows)
+    mine = [r for r in rows if r["digest"] in labels]
+    others = len(rows) - len(mine)
+    verdicts = Counter(r["verdict"] for r in mine)
     summary = (", ".join(f"{verdicts[v]} {v}" for v in ("pass", "fail", "error", "timeout")
                          if verdicts[v]) or "no runs") + f" of {len(campaign.runs)} runs"
-    write_junit(campaign.name, rows, labels, out / JUNIT)
-    checks, _ = read_rows(out / CHECKS)
-    index = write_index(out, campaign.name, campaign.addresses, rows, checks, campaign.plot,
+    write_junit(campaign.name, mine, labels, out / JUNIT)
+    try:
+        checks, _ = read_rows(out / CHECKS, ("run", "digest", "check"))
+    except ResultsFileError as exc:  # edited under our feet: the page goes without plots
+        console.print(escape(str(exc)), style="yellow")
+        checks = []
+    index = write_index(out, campaign.name, campaign.addresses, mine, checks, campaign.plot,
                         f"{summary}. {speed}")
-    table = Table(title=f"campaign {campaign.name}")
+    table = Table(title=escape(f"campaign {campaign.name}"))
     for col in ("verdict", "runs"):
         table.add_column(col)
     for v in ("pass", "fail", "error", "timeout"):
         table.add_row(v, str(verdicts[v]))
-    table.add_row("no result yet", str(len(campaign.runs) - len(rows)))
+    table.add_row("no result yet", str(len(campaign.runs) - len(mine)))
     result = Console()
     result.print(table)
     if speed:
         result.print(speed)
+    if others:
+        result.print(f"{others} row(s) in {out / RESULTS} are of runs this campaign file no "
+                     "longer has (kept; not counted here)")
     result.print(f"results: {out / RESULTS}\nJUnit XML: {out / JUNIT}\nreport: {index}")
-    if not finished:
-        console.print(f"[yellow]interrupted: {len(rows)} of {len(campaign.runs)} runs have "
-                      f"results; railrig campaign {campaign.path} --out {out} --resume runs "
-                      "the rest[/yellow]")
+    if stopped:
+        console.print(escape(f"{stopped}: {len(mine)} of {len(campaign.runs)} runs have "
+                             f"results; railrig campaign {campaign.path} --out {out} "
+                             "--resume runs the rest"), style="yellow")
         return EXIT_UNRUNNABLE
-    if any(r["verdict"] != "pass" for r in rows):
+    if any(r["verdict"] != "pass" for r in mine):
         return EXIT_FAILED
-    return EXIT_PASSED if len(rows) == len(campaign.runs) else EXIT_UNRUNNABLE
+    return EXIT_PASSED if len(mine) == len(campaign.runs) else EXIT_UNRUNNABLE

@@ -157,6 +157,8 @@ def read_toml(path: Path | str) -> dict[str, Any]:
         raise ProfileError(f"{path}: no such profile") from None
     except tomllib.TOMLDecodeError as exc:
         raise ProfileError(f"{path}: not valid TOML: {exc}") from None
+    except UnicodeDecodeError as exc:
+        raise ProfileError(f"{path}: not UTF-8 text (TOML is): {exc}") from None
     except OSError as exc:
         raise ProfileError(f"{path}: cannot read: {exc}") from None
 

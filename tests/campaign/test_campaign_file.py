@@ -88,10 +88,15 @@ def test_a_run_is_keyed_by_its_inputs_not_its_place(tmp_path: Path) -> None:
     a = load_campaign(_write(tmp_path, text))
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()
-    b = load_campaign(_write(elsewhere, text))
-    assert [r.digest for r in a.runs] == [r.digest for r in b.runs]
+    b = load_campaign(_write(elsewhere, text.replace('name = "t"', 'name = "renamed"')))
+    assert [r.digest for r in a.runs] == [r.digest for r in b.runs]  # place, campaign name
     c = load_campaign(_write(tmp_path, text.replace("0.7", "0.71")))
     assert a.runs[0].digest == c.runs[0].digest and a.runs[1].digest != c.runs[1].digest
+    # the same text under another scenario name is another entry of the library
+    (tmp_path / "start.toml").rename(tmp_path / "copy.toml")
+    d = load_campaign(_write(tmp_path, text.replace("start.toml", "copy.toml")))
+    assert not {r.digest for r in d.runs} & {r.digest for r in a.runs}
+    assert [r.values for r in d.runs] == [r.values for r in a.runs]
 
 
 def test_trainsets_replace_the_scenarios_own_and_multiply_the_matrix(tmp_path: Path) -> None:
@@ -103,7 +108,8 @@ def test_trainsets_replace_the_scenarios_own_and_multiply_the_matrix(tmp_path: P
     for run in runs:  # the run carries the trainset's text, and reads it back
         assert run.texts["trainset"]["text"] == (TRAINSETS / f"{run.trainset}.toml"
                                                  ).read_text(encoding="utf-8")
-        assert _loaded(run, tmp_path).trainset.stem == run.trainset
+        loaded = _loaded(run, tmp_path)  # shipped under a fixed name, read back whole
+        assert loaded.trainset.read_text(encoding="utf-8") == run.texts["trainset"]["text"]
 
 
 def test_the_line_level_is_a_catenary_fault_from_the_start(tmp_path: Path) -> None:
@@ -134,6 +140,21 @@ values = [0.6, 0.7]
     # the dip is in start.toml only: two runs of it, one of other.toml
     assert sorted((r.scenario, tuple(r.values.values())) for r in runs) == [
         ("other", ()), ("start", (0.6,)), ("start", (0.7,))]
+
+
+def test_a_sweep_limited_by_name_applies_there_only(tmp_path: Path) -> None:
+    (tmp_path / "other.toml").write_text(short_start(0.9) + DIP, encoding="utf-8")
+    path = _write(tmp_path, '''[campaign]
+name = "t"
+scenarios = ["start.toml", "other.toml"]
+[[vary]]
+set = "fault[dip].voltage_pu"
+values = [0.6, 0.7]
+scenarios = ["other"]
+''')
+    runs = load_campaign(path).runs
+    assert sorted((r.scenario, tuple(r.values.values())) for r in runs) == [
+        ("other", (0.6,)), ("other", (0.7,)), ("start", ())]
 
 
 @pytest.mark.parametrize(("campaign", "line", "key", "says"), [
@@ -167,9 +188,21 @@ values = [0.6, 0.7]
      "controller", "both {rig}"),
     (HEAD + 'controller = "udp://{rig}?peer={bind}"\ncontroller_command = "x {port}"\n', 5,
      "controller_command", "unknown placeholder {port}"),
+    (HEAD + 'controller = "udp://{rig}?peer={bind}"\ncontroller_command = "x \'{bind}"\n',
+     5, "controller_command", "cannot split it"),
+    (HEAD + 'controller = "udp://127.0.0.1:5000?peer=127.0.0.1:5001"\n'
+     'controller_command = "x {bind}"\n', 5, "controller_command", "this URL is fixed"),
+    (HEAD + 'plot = ["gets awya"]\n', 4, "plot", "no check of the campaign's scenarios"),
+    (HEAD + 'trainsets = ["a/tern.toml", "b/tern.toml"]\n', 4, "trainsets",
+     "two trainset files are named 'tern'"),
 ])
 def test_campaign_file_errors_name_file_line_and_key(tmp_path: Path, campaign: str,
                                                      line: int, key: str, says: str) -> None:
+    for twin in ("a", "b"):  # two trainsets of one name, in two folders
+        (tmp_path / twin).mkdir()
+        (tmp_path / twin / "tern.toml").write_text(
+            (TRAINSETS / "tern-15kv.toml").read_text(encoding="utf-8").replace(
+                "../machines/", str(TRAINSETS.parent / "machines") + "/"), encoding="utf-8")
     path = _write(tmp_path, campaign)
     with pytest.raises(CampaignError) as err:
         load_campaign(path)
@@ -189,4 +222,11 @@ def test_a_matrix_too_large_is_refused_before_anything_is_loaded(tmp_path: Path)
                      for key in ("initial_speed_kmh", "duration_s"))
     path = _write(tmp_path, HEAD + "seeds = [1, 2]\n" + sweeps)
     with pytest.raises(CampaignError, match=r"up to 2000000 runs, more than 100000"):
+        load_campaign(path)
+
+
+def test_a_file_that_is_not_utf8_is_an_error_naming_it(tmp_path: Path) -> None:
+    path = _write(tmp_path, HEAD)
+    path.write_bytes(HEAD.replace('"t"', '"caf\xe9"').encode("latin-1"))
+    with pytest.raises(CampaignError, match=f"{path}: not UTF-8"):
         load_campaign(path)

@@ -157,7 +157,8 @@ def test_a_scheduler_and_workers_of_their_own_give_the_same_and_survive_a_death(
     _same_as_one_by_one([r for r in rows if int(r["seed"]) in SEEDS], one_by_one)
 
 
-def test_ctrl_c_leaves_valid_results_and_resume_runs_only_the_rest(campaign_dir) -> None:
+def test_ctrl_c_leaves_valid_results_and_resume_runs_only_the_rest(campaign_dir, one_by_one
+                                                                  ) -> None:
     (campaign_dir / "six.toml").write_text(
         CAMPAIGN.replace("seeds = [1, 2]", "seeds = [1, 2, 3]")
         .replace('record = "all"', 'record = "failed"'), encoding="utf-8")
@@ -183,7 +184,46 @@ def test_ctrl_c_leaves_valid_results_and_resume_runs_only_the_rest(campaign_dir)
     after = _rows(out)
     assert after[:len(before)] == before
     assert len(after) == 6 and len({r["digest"] for r in after}) == 6
+    # no run got a verdict from the interruption: each is what it is when run alone
+    assert {r["verdict"] for r in after} <= {"pass", "fail"}, [r["reason"] for r in after]
+    _same_as_one_by_one([r for r in after if int(r["seed"]) in SEEDS], one_by_one)
     # without --resume the folder is not written over
     again = _railrig("campaign", "six.toml", "--out", str(out), cwd=campaign_dir)
     assert again.returncode == 2 and "--resume" in again.stderr
     assert _rows(out) == after
+
+
+def test_a_run_that_kills_its_worker_is_retried_once_then_an_error(campaign_dir) -> None:
+    """The run's controller process kills the worker process that started it, on every
+    attempt: the scheduler gives the run to a worker once more, then the run is an
+    error with the reason (and the campaign goes on)."""
+    (campaign_dir / "killer.toml").write_text('''[campaign]
+name = "worker killer"
+scenarios = ["start.toml"]
+seeds = [1]
+controller = "udp://{rig}?peer={bind}"
+controller_command = "sh -c 'kill -9 $PPID; sleep 30'"
+''', encoding="utf-8")
+    out = campaign_dir / "out"
+    done = _railrig("campaign", "killer.toml", "--workers", "2", "--out", str(out),
+                    "--timeout-s", "120", cwd=campaign_dir)
+    assert done.returncode == 1, done.stderr
+    (row,) = _rows(out)
+    assert row["verdict"] == "error"
+    assert "died, and again on its retry" in row["reason"] and "KilledWorker" in row["reason"]
+    suite = ET.parse(out / "junit.xml").getroot().find("testsuite")
+    assert suite.get("errors") == "1"
+    (case,) = suite.findall("testcase")
+    assert case.find("error").get("type") == "error"
+
+
+def test_a_fixed_controller_address_runs_one_at_a_time(campaign_dir) -> None:
+    (campaign_dir / "board.toml").write_text(
+        CAMPAIGN.replace('controller = "reference"',
+                         'controller = "udp://127.0.0.1:5000?peer=127.0.0.1:5001"'),
+        encoding="utf-8")
+    done = _railrig("campaign", "board.toml", "--workers", "2", "--out", "o",
+                    cwd=campaign_dir, timeout=120)
+    assert done.returncode == 2
+    assert "one at a time: give --workers 1" in " ".join(done.stderr.split())
+    assert not (campaign_dir / "o").exists()
