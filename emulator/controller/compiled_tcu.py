@@ -142,6 +142,11 @@ class CompiledController(ref.ReferenceController):
                                                                 enc.window, enc.short)
         k[pp.K_SENSOR_JUMP] = SENSOR_JUMP
         k[pp.K_LEAKAGE_H] = cfg.secondary_leakage_h
+        k[pp.K_LINK_STOP], k[pp.K_LINK_RESTART] = (ref.LINK_STOP_FRACTION,
+                                                   ref.LINK_RESTART_FRACTION)
+        k[pp.K_FLUX_DECAY_S] = self.flux_decay_s
+        k[pp.K_BUFFER_LINK], k[pp.K_BUFFER_POWER] = (ref.BUFFER_LINK_FRACTION,
+                                                     ref.BUFFER_POWER_FRACTION)
         if self.links:
             link = self.links[0]
             k[pp.K_RAMP_V_PER_S], k[pp.K_DEADBEAT_GAIN] = link.ramp_v_per_s, link.g

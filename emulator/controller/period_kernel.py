@@ -33,6 +33,7 @@ from .period_parts import (
     G_SEQ_STATE,
     G_SPEED_INTEGRAL,
     G_T,
+    G_TRIP_NOW,
     HARDWARE_TRIP,
     HARDWARE_TRIP_BIT,
     I_BLOCK_UNTIL,
@@ -46,12 +47,17 @@ from .period_parts import (
     I_N_MOTORS,
     I_N_TRIPS,
     I_RELEASED,
+    I_RESTART_AFTER,
     I_TRIP_0,
     I_TRIP_1,
     I_TRIP_2,
+    I_UNDERVOLTED,
     INVERTER_OVERCURRENT,
+    K_BUFFER_LINK,
+    K_BUFFER_POWER,
     K_DRIVE_EFFICIENCY,
     K_FEEDFORWARD_EFFICIENCY,
+    K_FLUX_DECAY_S,
     K_FLUX_HOLD_S,
     K_FLUX_RAMP_S,
     K_GEAR,
@@ -59,6 +65,8 @@ from .period_parts import (
     K_LINE_NOMINAL,
     K_LINE_SIDE,
     K_LINK_NOMINAL,
+    K_LINK_RESTART,
+    K_LINK_STOP,
     K_LOCK_S,
     K_MAGNETISED_MPS,
     K_MASS,
@@ -157,6 +165,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
            x, xi, xm, xl, xc):
     """One control period: measurements y (SI, map order) in, commands out."""
     g[G_T] += period_s
+    g[G_TRIP_NOW] = 0.0
     t = g[G_T]
     if flags & 1:
         raise_event(g, counts, LINK_WATCHDOG)
@@ -277,7 +286,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
     p_links = np.zeros(n_links)
     achieved = 0.0
-    u_min_run = 0.6 * k[K_LINK_NOMINAL]
+    u_stop = k[K_LINK_STOP] * k[K_LINK_NOMINAL]
+    u_restart = k[K_LINK_RESTART] * k[K_LINK_NOMINAL]
     line_live = not line_side or g[G_LINE_LIVE_S] >= k[K_LOCK_S]
     p_lo = np.zeros(n_links)
     p_hi = np.zeros(n_links)
@@ -315,18 +325,24 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         row[I_LATCHED] = 1.0 if tripped else 0.0
         out[xi[kk, XI_RESET_OUT]] = (
             1.0 if tripped != 0 and row[I_BLOCK_UNTIL] - t < 3.5 * period_s else 0.0)
-        if row[I_FACTOR] < 0.95:
+        if row[I_FACTOR] < 0.95 and g[G_TRIP_NOW] == 0.0:
             g[G_EVENT] = WHEEL_SLIP
         demanded = mode == 1 or mode == 2 or mode == 4
-        if running and demanded and u_d <= u_min_run:
+        if running and demanded and u_d <= u_stop:
             raise_event(g, counts, LINK_UNDERVOLTAGE)
+            if row[I_UNDERVOLTED] == 0.0:
+                row[I_UNDERVOLTED] = 1.0
+                row[I_RESTART_AFTER] = t + k[K_FLUX_DECAY_S]
+        elif (row[I_UNDERVOLTED] != 0.0 and u_d > u_restart
+              and t >= row[I_RESTART_AFTER]):
+            row[I_UNDERVOLTED] = 0.0
         if demanded:
             row[I_DEMANDED_AT] = t
             row[I_RELEASED] = 0.0
         held = (row[I_RELEASED] == 0.0 and abs(v) > k[K_MAGNETISED_MPS]
                 and t - row[I_DEMANDED_AT] < k[K_FLUX_HOLD_S])
         active = (running and (demanded or held) and t >= row[I_BLOCK_UNTIL]
-                  and u_d > u_min_run
+                  and u_d > u_stop and row[I_UNDERVOLTED] == 0.0
                   and (effort != 0.0 or mode == 2 or abs(v) > k[K_MAGNETISED_MPS]))
         torque = direction * torque_motor * row[I_FACTOR]
         motor_speed = 0.0
@@ -354,6 +370,15 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                       / lnk[link, L_ON_LINK])
             t_power = p_feed / max(abs(motor_speed) * n_m, 1.0)
             torque = math.copysign(min(abs(torque), t_power), torque)
+        if line_side and running and not line_live and abs(motor_speed) > 1.0:
+            short = k[K_BUFFER_LINK] * k[K_LINK_NOMINAL] - u_d
+            p_buffer = (min(max(short / (0.1 * k[K_LINK_NOMINAL]), 0.0), 1.0)
+                        * k[K_BUFFER_POWER] * lnk[link, L_P_RATED])
+            t_buffer = p_buffer / (lnk[link, L_ON_LINK] * n_m * abs(motor_speed))
+            if motor_speed > 0:
+                torque = min(torque, -t_buffer)
+            else:
+                torque = max(torque, t_buffer)
         if active:
             row[I_ENABLED_FOR] += period_s
             if k[K_VECTOR] > 0.0:

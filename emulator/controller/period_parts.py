@@ -34,7 +34,7 @@ SQRT2 = math.sqrt(2)
 (G_T, G_EVENT, G_EFFORT, G_SPEED_INTEGRAL, G_LINE_LIVE_S, G_LINE_RMS_F, G_ACHIEVED,
  G_AVAILABLE, G_RECENT_I, G_PLL_W, G_PLL_THETA, G_PLL_VA, G_PLL_VB, G_PLL_AMPLITUDE,
  G_PLL_INTEGRAL, G_SEQ_STATE, G_SEQ_TIMER, G_SEQ_RETRIES, G_SEQ_REASON, G_ADH_V_REF,
- G_ADH_HAS_V_REF, G_ADH_ENABLED, N_G) = range(23)
+ G_ADH_HAS_V_REF, G_ADH_ENABLED, G_TRIP_NOW, N_G) = range(24)
 # the constants
 (K_PERIOD, K_LINE_SIDE, K_VECTOR, K_LINE_NOMINAL, K_U_MIN2, K_U_MIN1, K_U_MAX1, K_U_MAX2,
  K_TRANSFORMER_RATIO, K_LINK_NOMINAL, K_P_CHOP, K_MASS, K_MAX_SPEED, K_WHEEL_R, K_GEAR,
@@ -44,14 +44,15 @@ SQRT2 = math.sqrt(2)
  K_PLL_MIN_AMPLITUDE, K_SEQ_CHARGED_V, K_SEQ_TIMEOUT_S, K_SEQ_RETRY_S, K_SEQ_MAX_RETRIES,
  K_ADH_CREEP_LIMIT, K_ADH_A_MAX, K_ADH_A_MARGIN, K_ADH_CUT, K_ADH_REAPPLY, K_RAD_PER_COUNT,
  K_WINDOW, K_SHORT, K_SENSOR_JUMP, K_LEAKAGE_H, K_RAMP_V_PER_S, K_DEADBEAT_GAIN, K_NOTCH_B0,
- K_NOTCH_B1, K_NOTCH_B2, K_NOTCH_A1, K_NOTCH_A2, N_K) = range(57)
+ K_NOTCH_B1, K_NOTCH_B2, K_NOTCH_A1, K_NOTCH_A2, K_LINK_STOP, K_LINK_RESTART, K_FLUX_DECAY_S,
+ K_BUFFER_LINK, K_BUFFER_POWER, N_K) = range(62)
 # per motor: encoder, plausibility, creep; its count window from M_WINDOW on
 (M_LAST, M_HAS_LAST, M_ANGLE, M_DIFFERENCES, M_SPEED_RAW, M_HAS_RAW, M_SPEED, M_SPEED_SHORT,
  M_RING_POS, M_OK, M_JUDGED_RAW, M_HAS_JUDGED, M_CREEP, M_INVERTER, M_WINDOW) = range(15)
 # per inverter
 (I_ENABLED_FOR, I_BLOCK_UNTIL, I_LATCHED, I_DEMANDED_AT, I_RELEASED, I_N_TRIPS, I_TRIP_0,
  I_TRIP_1, I_TRIP_2, I_FALLBACK_ANGLE, I_FACTOR, I_LINK, I_N_MOTORS, I_FIRST_MOTOR,
- N_I) = range(15)
+ I_UNDERVOLTED, I_RESTART_AFTER, N_I) = range(17)
 # per DC link
 (L_INTEGRAL, L_POWER_REF, L_U_RAMP, L_HAS_RAMP, L_HAS_APPLIED, L_HAS_NOTCH, L_X1, L_X2,
  L_Y1, L_Y2, L_KP, L_KI, L_I_MAX, L_N, L_P_RATED, L_ON_LINK, N_L) = range(17)
@@ -83,9 +84,21 @@ OFF, BREAKER, PRECHARGE, LINE, RUNNING, TRIPPED, NEUTRAL = range(7)
 
 
 @compiled
+def is_trip(code):
+    """Whether an event code is a protective trip (emulator.protocol.events.TRIPS)."""
+    return code in (SEQUENCE_TIMEOUT, INVERTER_OVERCURRENT, HARDWARE_TRIP, LINK_OVERVOLTAGE,
+                    OVERSPEED, MOTOR_OVERTEMPERATURE, LINE_OVERCURRENT)
+
+
+@compiled
 def raise_event(g, counts, code):
-    """ReferenceController._raise (counts[0] counts them all: code 0 is no event)."""
-    g[G_EVENT] = code
+    """ReferenceController._raise (counts[0] counts them all: code 0 is no event); a trip
+    raised in this period (G_TRIP_NOW) is not overwritten by an event that is not one."""
+    if is_trip(code):
+        g[G_EVENT] = code
+        g[G_TRIP_NOW] = 1.0
+    elif g[G_TRIP_NOW] == 0.0:
+        g[G_EVENT] = code
     counts[code] += 1
     counts[0] += 1
 

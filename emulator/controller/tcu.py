@@ -39,6 +39,22 @@ from .speed_plausibility import SpeedPlausibility
 DRIVE_EFFICIENCY = 0.85
 FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
+#: a drive stops when its link falls to this fraction of nominal while effort is asked
+#: for, and runs again once the link is back above the second and its machines' rotor
+#: flux has died away (3 rotor time constants after the stop: e^-3, 5 % left). The band
+#: between them keeps a link that the line's loss pulled down (the few ms before a dead
+#: line is seen, at full effort) from stopping and restarting the drives: a control
+#: started afresh on a magnetised machine turning at speed meets its back-EMF with no
+#: voltage of its own (a current surge and a trip). Fractions: common practice, no source
+LINK_STOP_FRACTION, LINK_RESTART_FRACTION = 0.5, 0.6
+FLUX_DECAY_TAU = 3.0
+#: with the line away (an interruption, before a dead line's relock) the drives hold
+#: their link from the train's motion (kinetic buffering): a braking power rising from 0
+#: with the link at BUFFER_LINK_FRACTION of nominal to BUFFER_POWER_FRACTION of the
+#: link's rating 0.1 of nominal lower, enough for the drives' no-load losses, so the link
+#: never falls to the stop and the machines stay in step for the line's return (common
+#: practice; the values are ours, no source)
+BUFFER_LINK_FRACTION, BUFFER_POWER_FRACTION = 0.9, 0.1
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
 # multiple units: from memory, REFERENCES.md)
 HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
@@ -101,12 +117,18 @@ class ReferenceController:
         self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
                                   for i in range(len(cfg.link_names))]
         self.block_until = [0.0] * n_inv
+        self.undervolted = [False] * n_inv  # stopped by a low link, not yet restarted
+        self.restart_after = [0.0] * n_inv
+        # the rotor's time constant (L_m + L_lr) / R_r, times FLUX_DECAY_TAU
+        self.flux_decay_s = FLUX_DECAY_TAU * (cfg.magnetising_h + cfg.rotor_leakage_h) / (
+            cfg.rotor_resistance_ohm)
         self.hardware_trips: list[list[float]] = [[] for _ in range(n_inv)]
         self.hardware_latched = [False] * n_inv  # the trip bit at the last sample
         self.demanded_at = [-math.inf] * n_inv
         self.released = [False] * n_inv  # off since the demand ended (see the gates below)
         self.t = 0.0
         self.event = 0
+        self._trip_now = False  # a trip was raised in this period
         self.events: Counter = Counter()
         self.achieved_n = 0.0
         self.available_n = 0.0
@@ -180,7 +202,13 @@ class ReferenceController:
         self.events.clear()
 
     def _raise(self, code: int) -> None:
-        self.event = code
+        """Report an event; a trip raised in this period is not overwritten by an event
+        that is not one (the telegram carries one code a period: a check looking for
+        trips must see it)."""
+        if code in events.TRIPS:
+            self.event, self._trip_now = code, True
+        elif not self._trip_now:
+            self.event = code
         self.events[code] += 1
 
     # --- one period ---------------------------------------------------------------------
@@ -188,6 +216,7 @@ class ReferenceController:
         """The control laws: y the measurements in SI units (map order), out the commands."""
         cfg = self.cfg
         self.t += period_s
+        self._trip_now = False
         if flags & 1:
             self._raise(events.LINK_WATCHDOG)
         u_links = [y[i] for i in self.ix_link_v]
@@ -304,7 +333,8 @@ class ReferenceController:
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
-        u_min_run = 0.6 * cfg.link_nominal_v
+        u_stop = LINK_STOP_FRACTION * cfg.link_nominal_v
+        u_restart = LINK_RESTART_FRACTION * cfg.link_nominal_v
         # what each link may draw: the line's power limit (EN 50388, 0 on a dead line)
         # shared by its inverters; a sagging link cuts traction too (ride-through)
         line_live = not cfg.line_side or self.line_live_s >= LOCK_S
@@ -343,11 +373,17 @@ class ReferenceController:
             self.hardware_latched[k] = bool(tripped)
             out[self.ox_reset[k]] = float(
                 bool(tripped) and self.block_until[k] - self.t < 3.5 * period_s)
-            if factors[k] < 0.95:
+            if factors[k] < 0.95 and not self._trip_now:
                 self.event = events.WHEEL_SLIP
             demanded = mode in (1, 2, 4)
-            if running and demanded and u_d <= u_min_run:
+            if running and demanded and u_d <= u_stop:
                 self._raise(events.LINK_UNDERVOLTAGE)
+                if not self.undervolted[k]:
+                    self.undervolted[k] = True
+                    self.restart_after[k] = self.t + self.flux_decay_s
+            elif (self.undervolted[k] and u_d > u_restart
+                  and self.t >= self.restart_after[k]):
+                self.undervolted[k] = False
             # magnetised while a mode asks for effort, and for FLUX_HOLD_S after it at speed
             # (a driver modulating the brake goes to coast and back): rebuilding the flux
             # takes a rotor time constant (~0.6 s) each time
@@ -361,7 +397,7 @@ class ReferenceController:
             held = (not self.released[k] and abs(v) > MAGNETISED_ABOVE_MPS
                     and self.t - self.demanded_at[k] < FLUX_HOLD_S)
             active = (running and (demanded or held) and self.t >= self.block_until[k]
-                      and u_d > u_min_run
+                      and u_d > u_stop and not self.undervolted[k]
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
@@ -376,6 +412,13 @@ class ReferenceController:
             elif p_feed is not None and torque * motor_speed < 0:  # generating
                 t_power = p_feed[link] / max(abs(motor_speed) * n_mot, 1.0)
                 torque = math.copysign(min(abs(torque), t_power), torque)
+            if cfg.line_side and running and not line_live and abs(motor_speed) > 1.0:
+                short = BUFFER_LINK_FRACTION * cfg.link_nominal_v - u_d
+                p_buffer = (min(max(short / (0.1 * cfg.link_nominal_v), 0.0), 1.0)
+                            * BUFFER_POWER_FRACTION * self.p_rated_link[link])
+                t_buffer = p_buffer / (self.inverters_on_link[link] * n_mot * abs(motor_speed))
+                torque = (min(torque, -t_buffer) if motor_speed > 0
+                          else max(torque, t_buffer))
             first += n_mot
             duty_ix = self.ox_duty[k]
             if active:

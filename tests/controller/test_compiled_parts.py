@@ -171,3 +171,31 @@ def test_vector_step_compiled_and_plain_agree_over_a_start() -> None:
     # the paths ran: the flux model, the observer and the prediction moved
     assert a[vk.V_PSI_R] > 0.0 and a[vk.V_HAS_EXPECTED] == 1.0
     assert abs(complex(a[vk.V_DU_RE], a[vk.V_DU_IM])) > 1.0
+
+
+def test_the_kernel_knows_the_trips_the_protocol_names() -> None:
+    """period_parts.is_trip against emulator.protocol.events.TRIPS, code by code (the
+    kernel cannot import the set, so it spells it out)."""
+    from emulator.controller import period_parts as pp
+    from emulator.protocol import events
+
+    assert [c for c in range(pp.N_EVENT_CODES) if pp.is_trip(c)] == sorted(events.TRIPS)
+
+
+def test_a_trip_is_not_overwritten_in_its_period() -> None:
+    """One code a period reaches the wire: a trip raised in a period stays the period's
+    code whatever is raised after it in the same period; the next period starts anew."""
+    import numpy as np
+
+    from emulator.controller import period_parts as pp
+    from emulator.protocol import events
+
+    g = np.zeros(pp.N_G)
+    counts = np.zeros(pp.N_EVENT_CODES, dtype=np.int64)
+    pp.raise_event(g, counts, events.HARDWARE_TRIP)
+    pp.raise_event(g, counts, events.LINE_UNDERVOLTAGE)
+    assert g[pp.G_EVENT] == events.HARDWARE_TRIP
+    assert counts[events.LINE_UNDERVOLTAGE] == 1 and counts[0] == 2
+    g[pp.G_TRIP_NOW] = 0.0  # what period() does when a period begins
+    pp.raise_event(g, counts, events.LINE_UNDERVOLTAGE)
+    assert g[pp.G_EVENT] == events.LINE_UNDERVOLTAGE
