@@ -147,6 +147,9 @@ class CompiledController(ref.ReferenceController):
         k[pp.K_FLUX_DECAY_S] = self.flux_decay_s
         k[pp.K_BUFFER_LINK], k[pp.K_BUFFER_POWER] = (ref.BUFFER_LINK_FRACTION,
                                                      ref.BUFFER_POWER_FRACTION)
+        k[pp.K_BUFFER_NONE_MPS], k[pp.K_BUFFER_FULL_MPS] = (ref.BUFFER_NONE_MPS,
+                                                            ref.BUFFER_FULL_MPS)
+        k[pp.K_BUFFER_TORQUE] = ref.BUFFER_TORQUE_FRACTION * cfg.rated_torque_nm
         if self.links:
             link = self.links[0]
             k[pp.K_RAMP_V_PER_S], k[pp.K_DEADBEAT_GAIN] = link.ramp_v_per_s, link.g

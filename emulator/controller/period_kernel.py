@@ -53,8 +53,11 @@ from .period_parts import (
     I_TRIP_2,
     I_UNDERVOLTED,
     INVERTER_OVERCURRENT,
+    K_BUFFER_FULL_MPS,
     K_BUFFER_LINK,
+    K_BUFFER_NONE_MPS,
     K_BUFFER_POWER,
+    K_BUFFER_TORQUE,
     K_DRIVE_EFFICIENCY,
     K_FEEDFORWARD_EFFICIENCY,
     K_FLUX_DECAY_S,
@@ -370,11 +373,16 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                       / lnk[link, L_ON_LINK])
             t_power = p_feed / max(abs(motor_speed) * n_m, 1.0)
             torque = math.copysign(min(abs(torque), t_power), torque)
-        if line_side and running and not line_live and abs(motor_speed) > 1.0:
+        if (line_side and running and not line_live and abs(v) > k[K_BUFFER_NONE_MPS]
+                and abs(motor_speed) > 1.0):
             short = k[K_BUFFER_LINK] * k[K_LINK_NOMINAL] - u_d
-            p_buffer = (min(max(short / (0.1 * k[K_LINK_NOMINAL]), 0.0), 1.0)
+            fade = min((abs(v) - k[K_BUFFER_NONE_MPS])
+                       / (k[K_BUFFER_FULL_MPS] - k[K_BUFFER_NONE_MPS]), 1.0)
+            p_buffer = (min(max(short / (0.1 * k[K_LINK_NOMINAL]), 0.0), 1.0) * fade
                         * k[K_BUFFER_POWER] * lnk[link, L_P_RATED])
-            t_buffer = p_buffer / (lnk[link, L_ON_LINK] * n_m * abs(motor_speed))
+            t_buffer = row[I_FACTOR] * min(
+                p_buffer / (lnk[link, L_ON_LINK] * n_m * abs(motor_speed)),
+                k[K_BUFFER_TORQUE])
             if motor_speed > 0:
                 torque = min(torque, -t_buffer)
             else:

@@ -51,10 +51,14 @@ FLUX_DECAY_TAU = 3.0
 #: with the line away (an interruption, before a dead line's relock) the drives hold
 #: their link from the train's motion (kinetic buffering): a braking power rising from 0
 #: with the link at BUFFER_LINK_FRACTION of nominal to BUFFER_POWER_FRACTION of the
-#: link's rating 0.1 of nominal lower, enough for the drives' no-load losses, so the link
-#: never falls to the stop and the machines stay in step for the line's return (common
-#: practice; the values are ours, no source)
+#: link's rating 0.1 of nominal lower, enough for the drives' no-load losses at speed, so
+#: the machines stay in step for the line's return. The power fades out between
+#: BUFFER_FULL_MPS and BUFFER_NONE_MPS and the torque is capped at BUFFER_TORQUE_FRACTION
+#: of rated (and scaled by the adhesion control's factor): at a crawl the copper loss of
+#: the torque it would take exceeds the power it returns, and the residual EMF a restart
+#: meets there is small (common practice; the values are ours, no source)
 BUFFER_LINK_FRACTION, BUFFER_POWER_FRACTION = 0.9, 0.1
+BUFFER_NONE_MPS, BUFFER_FULL_MPS, BUFFER_TORQUE_FRACTION = 15 / 3.6, 30 / 3.6, 0.3
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
 # multiple units: from memory, REFERENCES.md)
 HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
@@ -412,11 +416,16 @@ class ReferenceController:
             elif p_feed is not None and torque * motor_speed < 0:  # generating
                 t_power = p_feed[link] / max(abs(motor_speed) * n_mot, 1.0)
                 torque = math.copysign(min(abs(torque), t_power), torque)
-            if cfg.line_side and running and not line_live and abs(motor_speed) > 1.0:
+            if (cfg.line_side and running and not line_live and abs(v) > BUFFER_NONE_MPS
+                    and abs(motor_speed) > 1.0):
                 short = BUFFER_LINK_FRACTION * cfg.link_nominal_v - u_d
-                p_buffer = (min(max(short / (0.1 * cfg.link_nominal_v), 0.0), 1.0)
+                fade = min((abs(v) - BUFFER_NONE_MPS) / (BUFFER_FULL_MPS - BUFFER_NONE_MPS),
+                           1.0)
+                p_buffer = (min(max(short / (0.1 * cfg.link_nominal_v), 0.0), 1.0) * fade
                             * BUFFER_POWER_FRACTION * self.p_rated_link[link])
-                t_buffer = p_buffer / (self.inverters_on_link[link] * n_mot * abs(motor_speed))
+                t_buffer = factors[k] * min(
+                    p_buffer / (self.inverters_on_link[link] * n_mot * abs(motor_speed)),
+                    BUFFER_TORQUE_FRACTION * cfg.rated_torque_nm)
                 torque = (min(torque, -t_buffer) if motor_speed > 0
                           else max(torque, t_buffer))
             first += n_mot
