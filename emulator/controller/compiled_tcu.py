@@ -22,6 +22,7 @@ from emulator.link import msgpack_array
 
 from . import period_kernel as pk
 from . import period_parts as pp
+from . import ride_through as rt
 from . import tcu as ref
 from .config import ControllerConfig
 from .effort import (
@@ -142,14 +143,14 @@ class CompiledController(ref.ReferenceController):
                                                                 enc.window, enc.short)
         k[pp.K_SENSOR_JUMP] = SENSOR_JUMP
         k[pp.K_LEAKAGE_H] = cfg.secondary_leakage_h
-        k[pp.K_LINK_STOP], k[pp.K_LINK_RESTART] = (ref.LINK_STOP_FRACTION,
-                                                   ref.LINK_RESTART_FRACTION)
+        k[pp.K_LINK_STOP], k[pp.K_LINK_RESTART] = (rt.LINK_STOP_FRACTION,
+                                                   rt.LINK_RESTART_FRACTION)
         k[pp.K_FLUX_DECAY_S] = self.flux_decay_s
-        k[pp.K_BUFFER_LINK], k[pp.K_BUFFER_POWER] = (ref.BUFFER_LINK_FRACTION,
-                                                     ref.BUFFER_POWER_FRACTION)
-        k[pp.K_BUFFER_NONE_MPS], k[pp.K_BUFFER_FULL_MPS] = (ref.BUFFER_NONE_MPS,
-                                                            ref.BUFFER_FULL_MPS)
-        k[pp.K_BUFFER_TORQUE] = ref.BUFFER_TORQUE_FRACTION * cfg.rated_torque_nm
+        k[pp.K_BUFFER_LINK], k[pp.K_BUFFER_POWER] = (rt.BUFFER_LINK_FRACTION,
+                                                     rt.BUFFER_POWER_FRACTION)
+        k[pp.K_BUFFER_NONE_MPS], k[pp.K_BUFFER_FULL_MPS] = (rt.BUFFER_NONE_MPS,
+                                                            rt.BUFFER_FULL_MPS)
+        k[pp.K_BUFFER_TORQUE] = rt.BUFFER_TORQUE_FRACTION * cfg.rated_torque_nm
         if self.links:
             link = self.links[0]
             k[pp.K_RAMP_V_PER_S], k[pp.K_DEADBEAT_GAIN] = link.ramp_v_per_s, link.g

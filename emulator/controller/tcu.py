@@ -17,6 +17,7 @@ import msgpack
 from emulator.protocol import events
 from emulator.protocol.header import CFLAG_REPEAT_REQUEST, H_FLAGS
 
+from . import ride_through as rt
 from .adhesion import AdhesionControl
 from .config import ControllerConfig
 from .effort import (
@@ -39,26 +40,6 @@ from .speed_plausibility import SpeedPlausibility
 DRIVE_EFFICIENCY = 0.85
 FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
-#: a drive stops when its link falls to this fraction of nominal while effort is asked
-#: for, and runs again once the link is back above the second and its machines' rotor
-#: flux has died away (3 rotor time constants after the stop: e^-3, 5 % left). The band
-#: between them keeps a link that the line's loss pulled down (the few ms before a dead
-#: line is seen, at full effort) from stopping and restarting the drives: a control
-#: started afresh on a magnetised machine turning at speed meets its back-EMF with no
-#: voltage of its own (a current surge and a trip). Fractions: common practice, no source
-LINK_STOP_FRACTION, LINK_RESTART_FRACTION = 0.5, 0.6
-FLUX_DECAY_TAU = 3.0
-#: with the line away (an interruption, before a dead line's relock) the drives hold
-#: their link from the train's motion (kinetic buffering): a braking power rising from 0
-#: with the link at BUFFER_LINK_FRACTION of nominal to BUFFER_POWER_FRACTION of the
-#: link's rating 0.1 of nominal lower, enough for the drives' no-load losses at speed, so
-#: the machines stay in step for the line's return. The power fades out between
-#: BUFFER_FULL_MPS and BUFFER_NONE_MPS and the torque is capped at BUFFER_TORQUE_FRACTION
-#: of rated (and scaled by the adhesion control's factor): at a crawl the copper loss of
-#: the torque it would take exceeds the power it returns, and the residual EMF a restart
-#: meets there is small (common practice; the values are ours, no source)
-BUFFER_LINK_FRACTION, BUFFER_POWER_FRACTION = 0.9, 0.1
-BUFFER_NONE_MPS, BUFFER_FULL_MPS, BUFFER_TORQUE_FRACTION = 15 / 3.6, 30 / 3.6, 0.3
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
 # multiple units: from memory, REFERENCES.md)
 HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
@@ -123,9 +104,7 @@ class ReferenceController:
         self.block_until = [0.0] * n_inv
         self.undervolted = [False] * n_inv  # stopped by a low link, not yet restarted
         self.restart_after = [0.0] * n_inv
-        # the rotor's time constant (L_m + L_lr) / R_r, times FLUX_DECAY_TAU
-        self.flux_decay_s = FLUX_DECAY_TAU * (cfg.magnetising_h + cfg.rotor_leakage_h) / (
-            cfg.rotor_resistance_ohm)
+        self.flux_decay_s = rt.flux_decay_s(cfg)
         self.hardware_trips: list[list[float]] = [[] for _ in range(n_inv)]
         self.hardware_latched = [False] * n_inv  # the trip bit at the last sample
         self.demanded_at = [-math.inf] * n_inv
@@ -337,8 +316,8 @@ class ReferenceController:
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
-        u_stop = LINK_STOP_FRACTION * cfg.link_nominal_v
-        u_restart = LINK_RESTART_FRACTION * cfg.link_nominal_v
+        u_stop = rt.LINK_STOP_FRACTION * cfg.link_nominal_v
+        u_restart = rt.LINK_RESTART_FRACTION * cfg.link_nominal_v
         # what each link may draw: the line's power limit (EN 50388, 0 on a dead line)
         # shared by its inverters; a sagging link cuts traction too (ride-through)
         line_live = not cfg.line_side or self.line_live_s >= LOCK_S
@@ -416,16 +395,10 @@ class ReferenceController:
             elif p_feed is not None and torque * motor_speed < 0:  # generating
                 t_power = p_feed[link] / max(abs(motor_speed) * n_mot, 1.0)
                 torque = math.copysign(min(abs(torque), t_power), torque)
-            if (cfg.line_side and running and not line_live and abs(v) > BUFFER_NONE_MPS
-                    and abs(motor_speed) > 1.0):
-                short = BUFFER_LINK_FRACTION * cfg.link_nominal_v - u_d
-                fade = min((abs(v) - BUFFER_NONE_MPS) / (BUFFER_FULL_MPS - BUFFER_NONE_MPS),
-                           1.0)
-                p_buffer = (min(max(short / (0.1 * cfg.link_nominal_v), 0.0), 1.0) * fade
-                            * BUFFER_POWER_FRACTION * self.p_rated_link[link])
-                t_buffer = factors[k] * min(
-                    p_buffer / (self.inverters_on_link[link] * n_mot * abs(motor_speed)),
-                    BUFFER_TORQUE_FRACTION * cfg.rated_torque_nm)
+            if cfg.line_side and running and not line_live:  # the train holds the link
+                t_buffer = factors[k] * rt.buffer_torque(
+                    u_d, cfg.link_nominal_v, v, motor_speed, self.p_rated_link[link],
+                    self.inverters_on_link[link] * n_mot, cfg.rated_torque_nm)
                 torque = (min(torque, -t_buffer) if motor_speed > 0
                           else max(torque, t_buffer))
             first += n_mot

@@ -97,6 +97,21 @@ def test_broken_adhesion_control_fails_the_wet_rail_start() -> None:
     assert not run.passed
 
 
+def _run_variant(text: str):
+    """Run a variant of the shipped dip-and-interruption scenario (its text changed) on
+    its 25 kV trainset: (the run, the reference controller that answered it)."""
+    import tempfile
+
+    seen = {}
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "variant.toml"
+        path.write_text(text, encoding="utf-8")
+        trainset = (LIBRARY[0].parent / "../trainsets/tern-25kv.toml").resolve()
+        run = asyncio.run(run_scenario(load_scenario(path, trainset=trainset),
+                                       tune=lambda tcu: seen.update(tcu=tcu)))
+    return run, seen["tcu"]
+
+
 @pytest.mark.parametrize("until_s", [15.0, 16.0])
 def test_a_longer_interruption_at_speed_is_ridden_through(until_s: float) -> None:
     """The shipped dip-and-interruption scenario with its 0.3 s interruption made 1 s and
@@ -105,7 +120,6 @@ def test_a_longer_interruption_at_speed_is_ridden_through(until_s: float) -> Non
     nominal 1800 V), so they never restart on a magnetised machine, and no protective trip
     comes: neither in the event codes the checks read nor in the controller's own counts
     of every event it raised, nor as a hardware trip in the plant."""
-    import tempfile
 
     from emulator.protocol import events
 
@@ -114,16 +128,10 @@ def test_a_longer_interruption_at_speed_is_ridden_through(until_s: float) -> Non
     assert "at_s = 14.0\nuntil_s = 14.3" in text and "at_s = 14.3\nlabel = \"return\"" in text
     longer = text.replace("until_s = 14.3", f"until_s = {until_s}").replace(
         "at_s = 14.3\nlabel = \"return\"", f"at_s = {until_s}\nlabel = \"return\"")
-    seen = {}
-    with tempfile.TemporaryDirectory() as tmp:
-        path = Path(tmp) / "longer-interruption.toml"
-        path.write_text(longer, encoding="utf-8")
-        scenario = load_scenario(path, trainset=(source.parent / "../trainsets/tern-25kv.toml"
-                                                 ).resolve())
-        run = asyncio.run(run_scenario(scenario, tune=lambda tcu: seen.update(tcu=tcu)))
+    run, tcu = _run_variant(longer)
     verdicts = {r.spec.name: r for r in run.results}
     assert verdicts["no protective trip"].passed, verdicts["no protective trip"].measured
-    assert not set(seen["tcu"].events) & events.TRIPS, dict(seen["tcu"].events)
+    assert not set(tcu.events) & events.TRIPS, dict(tcu.events)
     rec = run.recording
     trips = [c for c in rec.columns if c.startswith("p.inverter.hardware_trip")]
     assert trips and not rec.data[:, [rec.columns.index(c) for c in trips]].any()
@@ -146,7 +154,6 @@ def test_an_interruption_at_a_crawl_does_not_brake_against_the_driver(kmh: float
     driver's demand beyond the train's own resistance (common practice: a drive does not
     brake a train whose driver asks for traction), no current near the 1200 A software
     trip, no protective trip (event codes, the controller's own counts, the plant)."""
-    import tempfile
 
     from emulator.protocol import events
 
@@ -156,14 +163,8 @@ def test_an_interruption_at_a_crawl_does_not_brake_against_the_driver(kmh: float
     crawl = (text.replace("initial_speed_kmh = 80.0", f"initial_speed_kmh = {kmh}")
              .replace("at_s = 14.0\nuntil_s = 14.3", "at_s = 3.3\nuntil_s = 7.0")
              .replace("duration_s = 30.0", "duration_s = 10.0"))
-    seen = {}
-    with tempfile.TemporaryDirectory() as tmp:
-        path = Path(tmp) / "crawl-interruption.toml"
-        path.write_text(crawl, encoding="utf-8")
-        scenario = load_scenario(path, trainset=(source.parent / "../trainsets/tern-25kv.toml"
-                                                 ).resolve())
-        run = asyncio.run(run_scenario(scenario, tune=lambda tcu: seen.update(tcu=tcu)))
-    assert not set(seen["tcu"].events) & events.TRIPS, dict(seen["tcu"].events)
+    run, tcu = _run_variant(crawl)
+    assert not set(tcu.events) & events.TRIPS, dict(tcu.events)
     rec = run.recording
     t = rec.column("time_s")
     during = (t > 3.3) & (t < 7.0)
