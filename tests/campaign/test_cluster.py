@@ -175,7 +175,8 @@ def test_ctrl_c_leaves_valid_results_and_resume_runs_only_the_rest(campaign_dir,
     _, stderr = run.communicate(timeout=120)
     assert run.returncode == 2, stderr
     before = _rows(out)
-    assert 1 <= len(before) < 6
+    assert len(before) >= 1  # a run had ended when the interrupt came
+    assert len(before) < 6  # and not all of them
     assert "--resume runs the rest" in " ".join(stderr.split())
     done = _railrig("campaign", "six.toml", "--workers", "1", "--out", str(out),
                     "--resume", cwd=campaign_dir)
