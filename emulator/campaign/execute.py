@@ -21,7 +21,7 @@ import uuid
 from collections.abc import Callable
 from typing import Any
 
-from .worker import ERROR, execute_run
+from .worker import error_result, execute_run
 
 #: how long to wait for an external scheduler to answer
 CONNECT_TIMEOUT_S = 15.0
@@ -103,10 +103,5 @@ def run_all(cases: list[dict[str, Any]], *, timeout_s: Callable[[dict], float],
 
 def lost_run(case: dict[str, Any], exc: BaseException) -> dict[str, Any]:
     """The result of a run whose worker died twice (the scheduler's KilledWorker)."""
-    name = type(exc).__name__
-    why = "the worker running it died, and again on its retry"
-    return {**{k: case[k] for k in ("run", "digest", "label", "scenario", "trainset",
-                                    "seed", "values")},
-            "verdict": ERROR, "failed_checks": [], "checks": [], "wall_s": 0.0,
-            "sim_s": 0.0, "realtime_factor": 0.0, "recording_digest": "",
-            "recording": None, "reason": f"{why}: {name}: {exc}", "worker": ""}
+    return error_result(case, "the worker running it died, and again on its retry: "
+                              f"{type(exc).__name__}: {exc}")

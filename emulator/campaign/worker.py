@@ -34,11 +34,7 @@ LOG_CHARS = 4000
 def execute_run(case: dict[str, Any], timeout_s: float) -> dict[str, Any]:
     """Run one case (``RunCase.as_dict()``) within timeout_s of wall time."""
     t0 = time.perf_counter()
-    out = {key: case[key] for key in ("run", "digest", "label", "scenario", "trainset",
-                                      "seed", "values")}
-    out.update(verdict=ERROR, failed_checks=[], checks=[], wall_s=0.0, sim_s=0.0,
-               realtime_factor=0.0, recording_digest="", recording=None, reason="",
-               worker=f"{socket.gethostname()}:{os.getpid()}")
+    out = error_result(case, "", worker=f"{socket.gethostname()}:{os.getpid()}")
     with tempfile.TemporaryDirectory(prefix="railrig-run-") as tmp:
         where = Path(tmp)
         record = where / "run.rrec"
@@ -55,6 +51,16 @@ def execute_run(case: dict[str, Any], timeout_s: float) -> dict[str, Any]:
     if len(out["reason"]) > 2 * LOG_CHARS:
         out["reason"] = out["reason"][:2 * LOG_CHARS] + "..."
     return out
+
+
+def error_result(case: dict[str, Any], reason: str, worker: str = "") -> dict[str, Any]:
+    """A run's result dict with the verdict error and nothing measured (what a run starts
+    from, and what a run the cluster lost ends as)."""
+    return {**{key: case[key] for key in ("run", "digest", "label", "scenario", "trainset",
+                                          "seed", "values")},
+            "verdict": ERROR, "failed_checks": [], "checks": [], "wall_s": 0.0, "sim_s": 0.0,
+            "realtime_factor": 0.0, "recording_digest": "", "recording": None,
+            "reason": reason, "worker": worker}
 
 
 def _run(case: dict, where: Path, record: Path, timeout_s: float, out: dict) -> None:

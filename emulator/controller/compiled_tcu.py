@@ -20,6 +20,7 @@ import numpy as np
 
 from emulator.link import msgpack_array
 
+from . import inverter_guard as guard
 from . import period_kernel as pk
 from . import period_parts as pp
 from . import ride_through as rt
@@ -103,7 +104,7 @@ class CompiledController(ref.ReferenceController):
 
     def _constants(self) -> np.ndarray:
         cfg, k = self.cfg, np.zeros(pp.N_K)
-        if ref.HARDWARE_TRIPS_TO_ISOLATE > pp.TRIP_SLOTS:
+        if guard.HARDWARE_TRIPS_TO_ISOLATE > pp.TRIP_SLOTS:
             raise ValueError(f"the kernel keeps {pp.TRIP_SLOTS} hardware trips an inverter")
         k[pp.K_PERIOD], k[pp.K_LINE_SIDE] = cfg.period_s, float(cfg.line_side)
         k[pp.K_VECTOR] = float(self.vector is not None)
@@ -123,9 +124,9 @@ class CompiledController(ref.ReferenceController):
         k[pp.K_FEEDFORWARD_EFFICIENCY] = FEEDFORWARD_EFFICIENCY
         k[pp.K_DRIVE_EFFICIENCY], k[pp.K_FLUX_RAMP_S] = ref.DRIVE_EFFICIENCY, ref.FLUX_RAMP_S
         k[pp.K_LOCK_S], k[pp.K_ROTATING_FACTOR] = ref.LOCK_S, ref.ROTATING_FACTOR
-        k[pp.K_RESET_S] = ref.HARDWARE_RESET_S
-        k[pp.K_TRIPS_TO_ISOLATE] = ref.HARDWARE_TRIPS_TO_ISOLATE
-        k[pp.K_TRIP_WINDOW_S] = ref.HARDWARE_WINDOW_S
+        k[pp.K_RESET_S] = guard.HARDWARE_RESET_S
+        k[pp.K_TRIPS_TO_ISOLATE] = guard.HARDWARE_TRIPS_TO_ISOLATE
+        k[pp.K_TRIP_WINDOW_S] = guard.HARDWARE_WINDOW_S
         k[pp.K_MAGNETISED_MPS], k[pp.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
         pll = self.pll
         k[pp.K_PLL_K], k[pp.K_PLL_W_NOM] = pll.k, pll.w_nom

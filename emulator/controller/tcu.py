@@ -29,6 +29,7 @@ from .effort import (
     motor_torque_limit,
 )
 from .encoder import EncoderSpeed
+from .inverter_guard import InverterGuards
 from .line_converter import LinkControl, chopper_duty, power_limits
 from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
@@ -42,11 +43,6 @@ FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
 # multiple units: from memory, REFERENCES.md)
-HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
-HARDWARE_RESET_S = 0.2  # gates off after a hardware trip before the drivers are reset
-HARDWARE_TRIPS_TO_ISOLATE = 3  # ... and an inverter that trips this often within
-HARDWARE_WINDOW_S = 10.0  # this long is isolated: left blocked, no more resets (common
-# practice of traction protection: a repeated hardware trip means a fault, not a transient)
 MAGNETISED_ABOVE_MPS = 1.0  # in a driving mode, the motors stay fluxed above this speed
 FLUX_HOLD_S = 3.0  # ... and as long after the last demand (coasting between brake steps)
 
@@ -101,12 +97,8 @@ class ReferenceController:
         self._recent_i = 0
         self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
                                   for i in range(len(cfg.link_names))]
-        self.block_until = [0.0] * n_inv
-        self.undervolted = [False] * n_inv  # stopped by a low link, not yet restarted
-        self.restart_after = [0.0] * n_inv
         self.flux_decay_s = rt.flux_decay_s(cfg)
-        self.hardware_trips: list[list[float]] = [[] for _ in range(n_inv)]
-        self.hardware_latched = [False] * n_inv  # the trip bit at the last sample
+        self.guards = InverterGuards(n_inv, self.flux_decay_s)
         self.demanded_at = [-math.inf] * n_inv
         self.released = [False] * n_inv  # off since the demand ended (see the gates below)
         self.t = 0.0
@@ -316,8 +308,6 @@ class ReferenceController:
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
-        u_stop = rt.LINK_STOP_FRACTION * cfg.link_nominal_v
-        u_restart = rt.LINK_RESTART_FRACTION * cfg.link_nominal_v
         # what each link may draw: the line's power limit (EN 50388, 0 on a dead line)
         # shared by its inverters; a sagging link cuts traction too (ride-through)
         line_live = not cfg.line_side or self.line_live_s >= LOCK_S
@@ -336,37 +326,14 @@ class ReferenceController:
             link = cfg.inverter_links[k]
             u_d = u_links[link]
             ia, ib, ic = (y[i] for i in self.ix_phase[k])
-            if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
-                self._raise(events.INVERTER_OVERCURRENT)
-                # (a longer block stands: an isolated inverter stays isolated)
-                self.block_until[k] = max(self.block_until[k], self.t + 0.1)
-            # the gate drivers' own trip (bit 3): blocked by the hardware already. Each new
-            # trip (the bit rising, also during a block of our own) is reported and
-            # counted; keep the gates off a while, then reset the drivers for the last
-            # three periods of it (the reset acts a command delay later, and its effect
-            # shows a sample after that)
-            tripped = int(y[self.ix_gate_fault[k]]) & HARDWARE_TRIP_BIT
-            if tripped and not self.hardware_latched[k]:
-                self._raise(events.HARDWARE_TRIP)
-                recent = [t for t in self.hardware_trips[k] if self.t - t < HARDWARE_WINDOW_S]
-                self.hardware_trips[k] = [*recent, self.t]
-                isolate = len(self.hardware_trips[k]) >= HARDWARE_TRIPS_TO_ISOLATE
-                self.block_until[k] = (math.inf if isolate
-                                       else max(self.block_until[k], self.t + HARDWARE_RESET_S))
-            self.hardware_latched[k] = bool(tripped)
-            out[self.ox_reset[k]] = float(
-                bool(tripped) and self.block_until[k] - self.t < 3.5 * period_s)
+            guards = self.guards
+            guards.judge(k, self.t, (ia, ib, ic), y[self.ix_gate_fault[k]], self._raise)
+            out[self.ox_reset[k]] = float(guards.resets(k, self.t, period_s))
             if factors[k] < 0.95 and not self._trip_now:
                 self.event = events.WHEEL_SLIP
             demanded = mode in (1, 2, 4)
-            if running and demanded and u_d <= u_stop:
-                self._raise(events.LINK_UNDERVOLTAGE)
-                if not self.undervolted[k]:
-                    self.undervolted[k] = True
-                    self.restart_after[k] = self.t + self.flux_decay_s
-            elif (self.undervolted[k] and u_d > u_restart
-                  and self.t >= self.restart_after[k]):
-                self.undervolted[k] = False
+            link_ok = guards.link(k, self.t, u_d, cfg.link_nominal_v, running and demanded,
+                                  self._raise)
             # magnetised while a mode asks for effort, and for FLUX_HOLD_S after it at speed
             # (a driver modulating the brake goes to coast and back): rebuilding the flux
             # takes a rotor time constant (~0.6 s) each time
@@ -379,8 +346,8 @@ class ReferenceController:
                 self.released[k] = False
             held = (not self.released[k] and abs(v) > MAGNETISED_ABOVE_MPS
                     and self.t - self.demanded_at[k] < FLUX_HOLD_S)
-            active = (running and (demanded or held) and self.t >= self.block_until[k]
-                      and u_d > u_stop and not self.undervolted[k]
+            active = (running and (demanded or held) and self.t >= guards.block_until[k]
+                      and link_ok
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot

@@ -168,7 +168,7 @@ def test_random_drive_gives_the_same_commands(layout: str, control: str) -> None
     # the run went where it was meant to: motors driven, trips and faults on the way
     assert states["active"] > 500, states
     assert {11, 30, 41, 50, 80} <= set(plain.events), plain.events
-    assert any(math.isinf(b) for b in plain.block_until)  # an inverter isolated
+    assert any(math.isinf(b) for b in plain.guards.block_until)  # an inverter isolated
     if cfg.line_side:
         assert {20, 61} <= set(plain.events) and states[5] > 0, (plain.events, states)
         assert states[4] > 500 and states[6] > 0, states  # running, neutral section
