@@ -27,6 +27,7 @@ start (231 columns): 0.36 MB per second of plant time with Zstandard level 3 alo
 
 from __future__ import annotations
 
+import numba as nb
 import numpy as np
 import zstandard
 
@@ -52,65 +53,103 @@ def encode_block(block: np.ndarray, kinds: list[str], scales: np.ndarray,
     ``every``: per column, keep every n-th frame only (1: all; frames counted from the
     recording's start, ``frame0`` the block's first).
 
-    Whole-array operations per storage type, not per column: the writer thread holds
-    the interpreter for microseconds a block, not milliseconds, so the frame loop it
-    shares the process with does not wait for it (DESIGN.md, timing facts); the
-    compressor itself runs without the interpreter lock."""
-    kinds_arr = np.asarray(kinds)
-    scales = np.asarray(scales, dtype=float)
-    codes = np.full(len(kinds), "d")
-    pieces: list = [b""] * len(kinds)
-    every = np.ones(len(kinds), dtype=np.int64) if every is None else np.asarray(every)
-    for n in np.unique(every).tolist():
-        cols = np.flatnonzero(every == n)
-        rows = slice(None) if n == 1 else kept_rows(frame0, block.shape[0], n)
-        _encode_group(pieces, codes, cols, block[rows][:, cols], kinds_arr[cols],
-                      scales[cols])
+    The writer thread calls this beside the frame loop. The casting and shuffling run
+    compiled without the interpreter lock, and so does the compressor: the thread holds
+    the lock for a few calls a block. (Whole-array numpy in the thread took and gave back
+    the lock at every operation, and the frame loop paid about 40 us a frame for the
+    hand-overs, measured on the full-braking scenario: DEVELOPERS.md, Throughput.)"""
+    block = np.ascontiguousarray(block, dtype=np.float64)
+    kind_codes = np.array([_KIND_CODE[k] for k in kinds], dtype=np.int64)
+    scales = np.asarray(scales, dtype=np.float64)
+    every = (np.ones(len(kinds), dtype=np.int64) if every is None
+             else np.asarray(every, dtype=np.int64))
+    codes = np.zeros(len(kinds), dtype=np.int64)
+    raw = _shuffled_columns(block, kind_codes, scales, every, int(frame0), codes)
     compressor = zstandard.ZstdCompressor(level=LEVEL)
-    return "".join(codes.tolist()), compressor.compress(b"".join(pieces))
+    return "".join(_CODE_CHAR[c] for c in codes.tolist()), compressor.compress(raw)
 
 
-def _encode_group(pieces: list, codes: np.ndarray, cols: np.ndarray, x: np.ndarray,
-                  kinds: np.ndarray, scales: np.ndarray) -> None:
-    """Columns of the same row count, by storage kind."""
-    rows = x.shape[0]
-    done = np.zeros(len(cols), dtype=bool)
-    wire = np.flatnonzero((kinds == "wire") | (kinds == "sent"))
-    if wire.size:
-        v = x[:, wire]
-        scale = scales[wire]
-        with np.errstate(invalid="ignore", over="ignore"):
-            w = np.rint(v * (1.0 / scale))  # as the telegram codec rounds (link/telegram.py)
-            ok = np.all(np.abs(w) <= _INT32, axis=0)  # False for NaN and infinity too
-            exact = kinds[wire] == "sent"
-            exact |= np.all(w * scale == v, axis=0)  # read back as wire x scale
-        ok &= exact
-        _place(pieces, codes, cols[wire[ok]], "i", w[:, ok], rows)
-        done[wire[ok]] = True
-    f32 = np.flatnonzero(kinds == "f32")
-    if f32.size:
-        v = x[:, f32]
-        fits = ~np.any(np.abs(v) > _F32_MAX, axis=0)  # finite values past float32 stay f64
-        _place(pieces, codes, cols[f32[fits]], "f", v[:, fits], rows)
-        done[f32[fits]] = True
-    rest = np.flatnonzero(~done)  # float64 columns, and those that did not fit
-    _place(pieces, codes, cols[rest], "d", x[:, rest], rows)
+#: storage kinds and per-block type codes as the compiled encoder numbers them
+_KIND_CODE = {k: i for i, k in enumerate(KINDS)}
+_F64, _F32, _SENT, _WIRE = range(4)
+_CODE_CHAR = ("d", "f", "i")
+_CODE_SIZE = np.array([8, 4, 4], dtype=np.int64)
 
 
-def _place(pieces: list, codes: np.ndarray, columns: np.ndarray, code: str,
-           values: np.ndarray, rows: int) -> None:
-    """Cast values (rows x len(columns)) to the code's type, shuffle each column's bytes,
-    and put each column's bytes at its place."""
-    if not columns.size:
-        return
-    item = _ITEM[code]
-    cast = np.ascontiguousarray(values.T, dtype=item)  # column by column
-    shuffled = cast.view(np.uint8).reshape(len(columns), rows, item.itemsize)
-    shuffled = np.ascontiguousarray(shuffled.transpose(0, 2, 1))  # byte k of all rows
-    flat = shuffled.reshape(len(columns), -1)  # each row contiguous: a buffer to join
-    for n, j in enumerate(columns.tolist()):
-        pieces[j] = flat[n]
-        codes[j] = code
+@nb.njit(cache=True, nogil=True)
+def _kept_count(rows, every, frame0):
+    """How many of a block's rows a column keeping every n-th frame holds (kept_rows)."""
+    first = (-frame0) % every
+    return 0 if first >= rows else (rows - first + every - 1) // every
+
+
+@nb.njit(cache=True, nogil=True)
+def _column_code(block, j, kind, scale, every, frame0):
+    """A column's type in this block: 0 float64, 1 float32, 2 int32 wire units.
+
+    Wire and sent columns: x (1 / scale) rounded half to even (as the telegram codec
+    rounds) must be within int32 for every kept frame (NaN and infinity are not), and a
+    wire column must read back exactly as that integer x scale; otherwise float64. A
+    float32 column with a finite value past float32's range is float64."""
+    rows = block.shape[0]
+    first = (-frame0) % every
+    if kind in (_SENT, _WIRE):
+        inv = 1.0 / scale
+        for r in range(first, rows, every):
+            v = block[r, j]
+            w = np.rint(v * inv)
+            if not abs(w) <= _INT32:
+                return 0
+            if kind == _WIRE and w * scale != v:
+                return 0
+        return 2
+    if kind == _F32:
+        for r in range(first, rows, every):
+            if abs(block[r, j]) > _F32_MAX:
+                return 0
+        return 1
+    return 0
+
+
+@nb.njit(cache=True, nogil=True)
+def _shuffled_columns(block, kinds, scales, every, frame0, codes):
+    """The block's bytes: column after column, each its kept frames in its type
+    (little-endian, as every platform numba targets here), byte k of all of them
+    together (the shuffle); ``codes`` receives each column's type."""
+    rows, ncol = block.shape
+    total = 0
+    for j in range(ncol):
+        codes[j] = _column_code(block, j, kinds[j], scales[j], every[j], frame0)
+        total += _kept_count(rows, every[j], frame0) * _CODE_SIZE[codes[j]]
+    out = np.empty(total, dtype=np.uint8)
+    at = 0
+    for j in range(ncol):
+        n = every[j]
+        first = (-frame0) % n
+        count = _kept_count(rows, n, frame0)
+        code = codes[j]
+        if code == 2:
+            inv = 1.0 / scales[j]
+            cast32 = np.empty(count, dtype=np.int32)
+            for c in range(count):
+                cast32[c] = np.int32(np.rint(block[first + c * n, j] * inv))
+            raw = cast32.view(np.uint8)
+        elif code == 1:
+            castf = np.empty(count, dtype=np.float32)
+            for c in range(count):
+                castf[c] = np.float32(block[first + c * n, j])
+            raw = castf.view(np.uint8)
+        else:
+            castd = np.empty(count, dtype=np.float64)
+            for c in range(count):
+                castd[c] = block[first + c * n, j]
+            raw = castd.view(np.uint8)
+        size = _CODE_SIZE[code]
+        for c in range(count):
+            for k in range(size):
+                out[at + k * count + c] = raw[c * size + k]
+        at += count * size
+    return out
 
 
 def decode_block(codes: str, payload: bytes, rows: int, scales: np.ndarray,

@@ -18,12 +18,17 @@ Format 1 (magic ``RRC1``, read only): the same envelope; rows as float64 bytes r
 (``{"frame0", "rows", "data"}``) after a first chunk ``{"meta", "columns"}``.
 
 CRC-32 is zlib's (the IEEE polynomial; check value 0xCBF43926 over "123456789"). Rows are
-buffered and handed to a writer thread as a block at least every ``flush_s`` of wall time
-(and whenever the buffer is full); the thread compresses and writes it and hands it to
-the operating system, so the frame loop never compresses. A run killed with SIGKILL
-leaves a file whose chunks up to the last complete one read back intact (losing at most
-``flush_s`` and the block being compressed). The reader stops at the first truncated or
-corrupt chunk and says so; it never raises on a damaged tail.
+buffered and written as a block at least every ``flush_s`` of wall time (and whenever
+the buffer is full), compressed and handed to the operating system. In real time a
+writer thread does that, so the frame loop never compresses; without deadlines (lockstep,
+as fast as possible) the frame loop writes its blocks itself (``background=False``): the
+thread would take the interpreter's lock back from the frame loop a few times a block,
+and on a shared virtual machine a hand-over can cost milliseconds (measured: about
+40 us a frame on the full-braking scenario, against 4.6 us a frame for writing inline).
+A run killed with SIGKILL leaves a file whose chunks up to the last complete one read
+back intact (losing at most ``flush_s`` and the block being compressed). The reader
+stops at the first truncated or corrupt chunk and says so; it never raises on a damaged
+tail.
 """
 
 from __future__ import annotations
@@ -93,12 +98,16 @@ class Recorder:
         chunk_rows: frames in a block at most.
         flush_s: a block is written at least this often (wall time).
         exclusive: create the file or raise FileExistsError, never overwrite one.
+        background: compress and write in a thread of its own (runs with deadlines);
+            False: in the caller's thread at each flush (lockstep: see the module's
+            docstring).
     """
 
     def __init__(self, path: str | Path, columns: list[str], meta: dict[str, Any],
                  chunk_rows: int = 1024, flush_s: float = 0.1, exclusive: bool = False,
                  kinds: list[str] | None = None, scales: list[float] | None = None,
-                 units: list[str] | None = None, every: list[int] | None = None) -> None:
+                 units: list[str] | None = None, every: list[int] | None = None,
+                 background: bool = True) -> None:
         self.path = Path(path)
         self.columns = list(columns)
         n = len(self.columns)
@@ -129,9 +138,11 @@ class Recorder:
         self._queue: queue.Queue = queue.Queue(maxsize=QUEUE_BLOCKS)
         self._spare: list[np.ndarray] = []
         self.error: BaseException | None = None
-        self._writer = threading.Thread(target=self._write_blocks, name="railrig-recorder",
-                                        daemon=True)
-        self._writer.start()
+        self._writer = None
+        if background:
+            self._writer = threading.Thread(target=self._write_blocks,
+                                            name="railrig-recorder", daemon=True)
+            self._writer.start()
         _OPEN.add(self)  # closed at interpreter exit if nobody did (atexit below)
 
     def _write(self, obj: dict[str, Any]) -> None:
@@ -145,17 +156,28 @@ class Recorder:
             item = self._queue.get()
             if item is None:
                 return
-            try:
-                if isinstance(item, dict):
-                    self._write({"mark": item})
-                    continue
-                frame0, buf, rows = item
-                types, z = encode_block(buf[:rows], self.kinds, self.scales, self.every,
-                                        frame0)
-                self._write({"frame0": frame0, "rows": rows, "types": types, "z": z})
-                self._spare.append(buf)  # back to the frame loop (list ops are atomic)
-            except Exception as exc:  # a full disk: kept, reported at close
-                self.error = self.error or exc
+            self._write_item(item)
+
+    def _write_item(self, item) -> None:
+        """Write a mark or a block (frame0, buffer, rows); the buffer goes back to the
+        spares."""
+        try:
+            if isinstance(item, dict):
+                self._write({"mark": item})
+                return
+            frame0, buf, rows = item
+            types, z = encode_block(buf[:rows], self.kinds, self.scales, self.every,
+                                    frame0)
+            self._write({"frame0": frame0, "rows": rows, "types": types, "z": z})
+            self._spare.append(buf)  # back to the frame loop (list ops are atomic)
+        except Exception as exc:  # a full disk: kept, reported at the next flush
+            self.error = self.error or exc
+
+    def _hand_over(self, item) -> None:
+        if self._writer is None:
+            self._write_item(item)
+        else:
+            self._queue.put(item)
 
     def append(self, row: np.ndarray) -> None:
         """Add one frame's values (as many as there are columns)."""
@@ -177,10 +199,13 @@ class Recorder:
                           f"{self.error}") from self.error
         self._last_flush = time.monotonic()
         if self._n:
-            self._queue.put((self._frame0, self._buf, self._n))
+            self._hand_over((self._frame0, self._buf, self._n))
             self._frame0 += self._n
             self._n = 0
             self._buf = self._spare.pop() if self._spare else np.zeros_like(self._buf)
+            if self._writer is None and self.error is not None:  # written here: say so now
+                raise OSError(f"{self.path}: the recording could not be written: "
+                              f"{self.error}") from self.error
 
     def mark(self, **what: Any) -> None:
         """Note a moment (e.g. ``label=..., t=...``) in order with the rows; a value
@@ -189,15 +214,16 @@ class Recorder:
             plain = msgpack.unpackb(msgpack.packb(what, default=_plain, use_bin_type=True),
                                     raw=False)
             self.flush()
-            self._queue.put(plain)
+            self._hand_over(plain)
 
     def close(self) -> None:
         """Flush, let the writer finish, and close."""
         if not self._fh.closed:
             with contextlib.suppress(OSError):  # said below, once the writer has stopped
                 self.flush()
-            self._queue.put(None)
-            self._writer.join()
+            if self._writer is not None:
+                self._queue.put(None)
+                self._writer.join()
             self._fh.close()
             _OPEN.discard(self)
             if self.error is not None:

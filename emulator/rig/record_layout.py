@@ -108,6 +108,7 @@ class RecordsFrames:
             "profile": self.plant.params.source, "seed": self.seed, "mode": self.mode,
             "period_us": self.period_us, "version": __version__,
             "started_at_s": self.plant.time_s, "channels": channels or ["all"], **meta},
-            exclusive=exclusive, kinds=kinds, scales=scales, units=units, every=every)
+            exclusive=exclusive, kinds=kinds, scales=scales, units=units, every=every,
+            background=self.mode == "realtime")  # a thread only where frames have deadlines
         self._record_pick = None if len(pick) == len(columns) else np.array(pick)
         return self.recorder

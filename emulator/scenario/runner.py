@@ -156,7 +156,8 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
         judged = {j for c in scenario.checks if c.signal is not None
                   for j in signal_columns(columns, c.signal)[0]}
         kinds = ["f64" if j in judged and k == "f32" else k for j, k in enumerate(kinds)]
-        recorder = Recorder(path, columns, meta, kinds=kinds, scales=scales, units=units)
+        recorder = Recorder(path, columns, meta, kinds=kinds, scales=scales, units=units,
+                            background=mode == "realtime")  # recorder.py: why
         program = ScenarioProgram(scenario, rig, recorder)
         rig.program, rig.recorder = program, recorder
         rig.faults = FaultSet(rig, seed=seed)

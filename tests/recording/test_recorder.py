@@ -294,3 +294,41 @@ def test_the_states_a_scenario_judges_are_recorded_at_float64(tmp_path) -> None:
     others = [k for j, (c, k) in enumerate(zip(rec.columns, rec.kinds, strict=True))
               if c.startswith("p.") and j not in judged]
     assert "f32" in others  # the rest stays compact
+
+
+@pytest.mark.parametrize("background", [True, False])
+def test_a_disk_that_fills_up_is_said_and_what_was_written_stays(tmp_path, background) -> None:
+    # a full disk: ENOSPC from the file (as /dev/full gives), after two whole blocks
+    import errno
+
+    path = tmp_path / "full.rrec"
+    rec = Recorder(path, ["i"], {}, chunk_rows=10, flush_s=1e9, background=background)
+    for i in range(20):
+        rec.append(np.array([float(i)]))
+    rec.flush()
+    real = rec._fh
+
+    class Full:
+        closed = False
+
+        def write(self, data):
+            raise OSError(errno.ENOSPC, "No space left on device")
+
+        def flush(self):
+            real.flush()
+
+        def close(self):
+            real.close()
+            self.closed = True
+
+    if background:  # let the thread write the two blocks before the disk fills
+        _wait_for_chunks(path, 3)
+    rec._fh = Full()
+    with pytest.raises(OSError, match=r"could not be written: .*No space left"):
+        for i in range(20, 60):
+            rec.append(np.array([float(i)]))
+        rec.flush()
+        if background:
+            rec.close()
+    back = read_recording(path)
+    np.testing.assert_array_equal(back.column("i"), np.arange(20.0))
