@@ -11,13 +11,12 @@ import importlib
 import sys
 from collections.abc import Sequence
 
-from rich.console import Console
-
+from emulator.commands import stderr_console
 from emulator.profiles.table import ProfileError
 
 SUBCOMMANDS = ("demo", "dash", "controller", "serve", "protocol", "export", "run", "replay",
                "campaign", "characteristic", "adhesion", "bench", "board-kit")
-console = Console(stderr=True)
+console = stderr_console()
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -18,9 +18,9 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from emulator.commands import DEFAULT_TRAINSET
+from emulator.commands import DEFAULT_TRAINSET, stderr_console
 
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "print (and plot) the plant's creep-force curves per rail condition"
 SPEEDS_KMH = (0.0, 20.0, 40.0, 80.0, 120.0, 160.0)
 

@@ -11,9 +11,9 @@ import json
 from rich.console import Console
 from rich.table import Table
 
-from emulator.commands import DEFAULT_TRAINSET, pairs_table
+from emulator.commands import DEFAULT_TRAINSET, pairs_table, stderr_console
 
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "print the plant's cost per frame"
 
 

@@ -38,10 +38,11 @@ from emulator.campaign.results import (
     write_junit,
 )
 from emulator.campaign.spec import CampaignError, load_campaign
+from emulator.commands import stderr_console
 from emulator.commands.run import EXIT_FAILED, EXIT_PASSED, EXIT_UNRUNNABLE
 
 HELP = "run a campaign of scenario runs (a matrix of sweeps and seeds) through Dask"
-console = Console(stderr=True)
+console = stderr_console()
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
@@ -204,7 +205,7 @@ def _finish(campaign, out: Path, rows: list[dict], counts: Counter, walls: list[
     for v in ("pass", "fail", "error", "timeout"):
         table.add_row(v, str(verdicts[v]))
     table.add_row("no result yet", str(len(campaign.runs) - len(mine)))
-    result = Console()
+    result = Console(soft_wrap=True)  # paths and names whole, whatever the width
     result.print(table)
     if speed:
         result.print(speed)

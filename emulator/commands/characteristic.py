@@ -16,9 +16,9 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from emulator.commands import DEFAULT_TRAINSET
+from emulator.commands import DEFAULT_TRAINSET, stderr_console
 
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "measure the controller's tractive- and braking-effort characteristic"
 
 

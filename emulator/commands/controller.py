@@ -4,11 +4,9 @@ from __future__ import annotations
 
 import argparse
 
-from rich.console import Console
+from emulator.commands import DEFAULT_TRAINSET, stderr_console
 
-from emulator.commands import DEFAULT_TRAINSET
-
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "run the reference controller on a link"
 
 

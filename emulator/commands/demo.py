@@ -13,10 +13,10 @@ import sys
 
 from rich.console import Console
 
-from emulator.commands import DEFAULT_TRAINSET, pairs_table
+from emulator.commands import DEFAULT_TRAINSET, pairs_table, stderr_console
 from emulator.scenario.demo_run import run_reference_demo
 
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "run the demo trainset with the reference controller"
 
 

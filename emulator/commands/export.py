@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import argparse
 
-from rich.console import Console
+from emulator.commands import stderr_console
 
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "convert a recording to MDF 4, CSV or NPZ (channels and a time span may be cut)"
 
 

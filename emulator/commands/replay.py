@@ -71,7 +71,7 @@ def run(args: argparse.Namespace) -> int:
             console.print(f"[red]cannot replay: {exc}[/red]")
             return EXIT_UNRUNNABLE
     same, note = compare(old, new.recording)
-    out = Console()
+    out = Console(soft_wrap=True)  # paths and names whole, whatever the width
     out.print(summary(judge(new.scenario, old)))
     out.print(f"replay: {note}")
     return EXIT_PASSED if same else EXIT_FAILED

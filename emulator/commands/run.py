@@ -14,11 +14,12 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
+from emulator.commands import stderr_console
 from emulator.profiles.table import ProfileError
 from emulator.scenario.runner import RunError, RunResult, run_scenario
 from emulator.scenario.spec import load_scenario
 
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "run scenario files headless and judge their checks"
 EXIT_PASSED, EXIT_FAILED, EXIT_UNRUNNABLE = 0, 1, 2
 
@@ -91,7 +92,7 @@ def run(args: argparse.Namespace) -> int:
             except (ProfileError, RunError, ValueError, OSError) as exc:
                 console.print(f"[red]cannot run {path}:[/red] {exc}")
                 code = EXIT_UNRUNNABLE
-    out = Console()
+    out = Console(soft_wrap=True)  # paths and names whole, whatever the width
     for result in runs:
         out.print(summary(result))
         if not result.passed and code == EXIT_PASSED:

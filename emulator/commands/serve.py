@@ -15,12 +15,10 @@ import os
 import signal
 import time
 
-from rich.console import Console
-
-from emulator.commands import DEFAULT_TRAINSET
+from emulator.commands import DEFAULT_TRAINSET, stderr_console
 from emulator.profiles.reader import load_trainset, resolve_profile
 
-console = Console(stderr=True)
+console = stderr_console()
 HELP = "run the plant behind a controller link"
 
 

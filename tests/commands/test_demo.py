@@ -23,7 +23,8 @@ def test_demo_reaches_speed_and_stops_on_the_mark(run) -> None:
 
 
 def test_controller_over_udp_gives_the_same_run(run) -> None:
-    kw = dict(target_kmh=30.0, stop_at_m=250.0, cruise_s=2.0, coast_s=2.0)
+    # a short ride through every mode: what is compared is the link, not the ride
+    kw = dict(target_kmh=20.0, stop_at_m=100.0, cruise_s=1.0, coast_s=1.0)
     local = run(run_reference_demo(TRAINSET, in_process=True, **kw))
     remote = run(run_reference_demo(TRAINSET, in_process=False, **kw))
     assert remote.completed and local.completed
