@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import asyncio
 import logging
+import os
 import subprocess
 import sys
 import time
@@ -42,6 +43,7 @@ async def serve_controller(profile, link_url: str, *, allow_remote: bool = False
             spin_until = time.monotonic_ns() + POLL_BEFORE_WAIT_NS
             while not link.pending() and time.monotonic_ns() < spin_until:
                 link.poll()
+                os.sched_yield()  # the core to the rig if it waits for one
             if not link.pending() and not await link.wait(idle_timeout_s):
                 log.info("rig silent for %.0f s: controller stops", idle_timeout_s)
                 break

@@ -9,6 +9,7 @@ emulator/protocol/header.py, LOCKSTEP_PACING.
 from __future__ import annotations
 
 import asyncio
+import os
 import time
 
 from emulator.protocol.header import FLAG_FRAMING, FLAG_REPEAT, FLAG_WATCHDOG
@@ -69,6 +70,7 @@ class LockstepPacing:
             spin_until = time.monotonic_ns() + LOCKSTEP_POLL_NS
             while not self.link.pending() and time.monotonic_ns() < spin_until:
                 self.link.poll()
+                os.sched_yield()  # the core to the controller if it waits for one
             if not self.link.pending() and not await self._wait_link(silence_s, stop):
                 if self._done(frames, stop):
                     break
