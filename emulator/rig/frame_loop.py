@@ -252,16 +252,8 @@ class Rig(LockstepPacing, RecordsFrames):
             self.faults.transform_command(held, self._command_index)
         commands = self.mapper.commands(held, gates_allowed=not self.tripped)
         self.plant.advance(commands, period_us / 1e6)
-        if self.recorder is not None:
-            row, ny, nu = self._row, len(self._y), len(held)
-            row[0] = self.plant.time_s
-            row[1:1 + ny] = self._y  # y_k, what the controller saw
-            row[1 + ny:1 + ny + nu] = held  # the command that acted in this frame
-            i = 1 + ny + nu
-            for array, key, n in self._states:  # the plant's own states at t_(k+1)
-                row[i:i + n] = array[key]
-                i += n
-            row[i:] = self.extras
+        if self.recorder is not None:  # y_k, what acted in the frame, states at t_(k+1)
+            row = self.fill_row(self.plant.time_s, self._y, held)
             self.recorder.append(row if self._record_pick is None else row[self._record_pick])
         if self.program is not None:
             self.program.update(self)  # the train's demands for the next measurement

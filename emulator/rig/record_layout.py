@@ -10,6 +10,7 @@ from __future__ import annotations
 import fnmatch
 from typing import Any
 
+import numba as nb
 import numpy as np
 
 from emulator.protocol.signal_map import SignalMap
@@ -62,21 +63,39 @@ class RecordsFrames:
         sm = self.signal_map
         cols = (["time_s"] + [f"y.{s.name}" for s in sm.measurements]
                 + [f"u.{s.name}" for s in sm.commands])
-        self._states = []
+        # the states as (which array, row, column) for the compiled gather; a state of
+        # the train or the supply is a row of its own (a 1 x n view of its array)
+        arrays: list[np.ndarray] = []
+        plan: list[tuple[int, int, int]] = []
         for name in states:
             array, col = self.plant.state_column(name)
+            which = next((i for i, a in enumerate(arrays) if a is array), len(arrays))
+            if which == len(arrays):
+                arrays.append(array)
             if array.ndim == 2:  # one element per motor, inverter or link
-                n = array.shape[0]
-                self._states.append((array, (slice(None), col), n))
-                cols += [f"p.{name}[{i}]" for i in range(n)]
+                plan += [(which, i, col) for i in range(array.shape[0])]
+                cols += [f"p.{name}[{i}]" for i in range(array.shape[0])]
             else:
-                self._states.append((array, col, 1))
+                plan.append((which, 0, col))
                 cols.append(f"p.{name}")
+        self._state_arrays = tuple(a if a.ndim == 2 else a.reshape(1, -1)
+                                   for a in arrays) or (np.zeros((1, 1)),)
+        self._state_plan = np.array(plan, dtype=np.int64).reshape(-1, 3)
         self.extras = np.zeros(len(extras))
         cols += [f"p.{name}" for name in extras]
         self._row = np.zeros(len(cols))
+        # compile or load the gather for this layout now, not in the first frame
+        _fill_row(self._row, 0.0, np.zeros(len(sm.measurements)), np.zeros(len(sm.commands)),
+                  self._state_arrays, self._state_plan, self.extras)
         self._record_pick = None  # all columns, unless start_recording chose some
         return cols
+
+    def fill_row(self, time_s: float, y: np.ndarray, u: np.ndarray) -> np.ndarray:
+        """The frame's row: plant time, y_k as the controller saw it, the command that
+        acted in the frame, the plant's states now, the driver program's extras."""
+        _fill_row(self._row, time_s, y, u, self._state_arrays, self._state_plan,
+                  self.extras)
+        return self._row
 
     def record_storage(self, columns: list[str]) -> tuple[list[str], list[float], list[str]]:
         """How each recorded column is stored and its unit (record_layout.py)."""
@@ -112,3 +131,21 @@ class RecordsFrames:
             background=self.mode == "realtime")  # a thread only where frames have deadlines
         self._record_pick = None if len(pick) == len(columns) else np.array(pick)
         return self.recorder
+
+
+@nb.njit(cache=True)
+def _fill_row(row, time_s, y, u, arrays, plan, extras):
+    """row = [t, y, u, the states by plan (array, row, column), extras]."""
+    row[0] = time_s
+    i = 1
+    for j in range(y.shape[0]):
+        row[i + j] = y[j]
+    i += y.shape[0]
+    for j in range(u.shape[0]):
+        row[i + j] = u[j]
+    i += u.shape[0]
+    for j in range(plan.shape[0]):
+        row[i + j] = arrays[plan[j, 0]][plan[j, 1], plan[j, 2]]
+    i += plan.shape[0]
+    for j in range(extras.shape[0]):
+        row[i + j] = extras[j]
