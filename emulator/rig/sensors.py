@@ -120,11 +120,10 @@ class AnalogChannels:
         self.noise[i] = rms
         self._noisy = bool(np.any(self.noise > 0))
 
-    def sample(self, trace: np.ndarray, h: float) -> np.ndarray:
-        """The channel outputs after a frame whose sub-steps of length h ended with the
-        plant values trace[0], trace[1], ..., trace[-1] (the last row: the values at the
-        sampling instant that ends the frame). The first call starts every filter settled
-        at its input."""
+    def prepare(self, h: float) -> bool:
+        """The filters' coefficients for sub-steps of length h and this frame's noise,
+        in the table; True for the first sample of a run (the filters start settled at
+        their input)."""
         t = self.table
         if h != self._coeffs_for:
             t[C_DECAY], t[C_SLOPE] = _filter_coefficients(self.tau, h)
@@ -138,10 +137,18 @@ class AnalogChannels:
         else:
             t[C_NORMAL] = 0.0
         settle = not self._started
+        self._started = True
+        return settle
+
+    def sample(self, trace: np.ndarray, h: float) -> np.ndarray:
+        """The channel outputs after a frame whose sub-steps of length h ended with the
+        plant values trace[0], trace[1], ..., trace[-1] (the last row: the values at the
+        sampling instant that ends the frame). The first call starts every filter settled
+        at its input."""
+        settle = self.prepare(h)
         if settle:
             trace = trace[-1:]
-            self._started = True
-        _chain(trace, h, t, self._out, settle)
+        _chain(trace, h, self.table, self._out, settle)
         return self._out
 
 
