@@ -1,7 +1,9 @@
 """What recording costs: the file's size per second of plant time for each channel set,
-the frame loop's cost per frame (the recorder's append: a copy, and a hand-over to the
-writer thread every block), late frames in real time with and without a recording in
-the same run, and the export of a recording to MDF 4. Figures printed, nothing asserted.
+the frame loop's cost per frame (the recorder's append: a copy, and every block a
+hand-over to the writer thread in real time, or in lockstep the block compressed and
+written there: its p99 and maximum are those blocks), late frames in real time with
+and without a recording in the same run, and the export of a recording to MDF 4.
+Figures printed, nothing asserted.
 
 The runs are the demo (reference controller in the rig's process, the demo's driver),
 recording the plant states a scenario records beside the measurements and commands.

@@ -53,12 +53,16 @@ def encode_block(block: np.ndarray, kinds: list[str], scales: np.ndarray,
     ``every``: per column, keep every n-th frame only (1: all; frames counted from the
     recording's start, ``frame0`` the block's first).
 
-    The writer thread calls this beside the frame loop. The casting and shuffling run
-    compiled without the interpreter lock, and so does the compressor: the thread holds
+    The recorder calls this at each block, in its writer thread beside the frame loop
+    (real time) or in the frame loop itself (lockstep). The casting and shuffling run
+    compiled without the interpreter lock, and so does the compressor: a thread holds
     the lock for a few calls a block. (Whole-array numpy in the thread took and gave back
     the lock at every operation, and the frame loop paid about 40 us a frame for the
     hand-overs, measured on the full-braking scenario: DEVELOPERS.md, Throughput.)"""
     block = np.ascontiguousarray(block, dtype=np.float64)
+    if block.ndim != 2 or not block.shape[1] == len(kinds) == len(scales) == (
+            len(kinds) if every is None else len(every)):
+        raise ValueError("a block needs one kind, scale and decimation per column")
     kind_codes = np.array([_KIND_CODE[k] for k in kinds], dtype=np.int64)
     scales = np.asarray(scales, dtype=np.float64)
     every = (np.ones(len(kinds), dtype=np.int64) if every is None

@@ -138,6 +138,9 @@ class Recorder:
         self._queue: queue.Queue = queue.Queue(maxsize=QUEUE_BLOCKS)
         self._spare: list[np.ndarray] = []
         self.error: BaseException | None = None
+        # compile or load the block encoder now, not at the first flush (in real time a
+        # first flush compiling with an empty numba cache made hundreds of frames late)
+        encode_block(np.zeros((1, n)), self.kinds, self.scales, self.every)
         self._writer = None
         if background:
             self._writer = threading.Thread(target=self._write_blocks,
@@ -199,10 +202,13 @@ class Recorder:
                           f"{self.error}") from self.error
         self._last_flush = time.monotonic()
         if self._n:
-            self._hand_over((self._frame0, self._buf, self._n))
+            # the block leaves the buffer before it is written: a write interrupted
+            # (Ctrl-C inline) never leaves its rows to be written a second time
+            block = (self._frame0, self._buf, self._n)
             self._frame0 += self._n
             self._n = 0
             self._buf = self._spare.pop() if self._spare else np.zeros_like(self._buf)
+            self._hand_over(block)
             if self._writer is None and self.error is not None:  # written here: say so now
                 raise OSError(f"{self.path}: the recording could not be written: "
                               f"{self.error}") from self.error

@@ -136,6 +136,8 @@ class RecordsFrames:
 @nb.njit(cache=True)
 def _fill_row(row, time_s, y, u, arrays, plan, extras):
     """row = [t, y, u, the states by plan (array, row, column), extras]."""
+    if 1 + y.shape[0] + u.shape[0] + plan.shape[0] + extras.shape[0] != row.shape[0]:
+        raise ValueError("the recorded row's parts do not add up to its columns")
     row[0] = time_s
     i = 1
     for j in range(y.shape[0]):

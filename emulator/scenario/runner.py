@@ -190,13 +190,15 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
                         f"{'passed' if result.passed else 'FAILED'}")
             watch.publish()
     finally:
-        if rig is not None and rig.recorder is not None:  # a run that raised keeps
-            rig.recorder.close()  # what it recorded
-        if watch is not None:
-            watch.close()
-        link.close()
-        if temp is not None:  # the recording is in memory by now, or the run failed
-            Path(temp).unlink(missing_ok=True)
+        try:
+            if rig is not None and rig.recorder is not None:  # a run that raised keeps
+                rig.recorder.close()  # what it recorded (a failed write raises here)
+        finally:
+            if watch is not None:
+                watch.close()
+            link.close()
+            if temp is not None:  # the recording is in memory by now, or the run failed
+                Path(temp).unlink(missing_ok=True)
     return result
 
 

@@ -190,3 +190,21 @@ def test_profile_sampling_keys(tmp_path) -> None:
     path.write_text(both.replace("../machines/", str(MACHINE.parent) + "/"))
     with pytest.raises(ProfileError, match="only an instantaneous sample"):
         load_trainset(path)
+
+
+def test_the_noise_is_the_generators_draws_frame_after_frame() -> None:
+    """Drawn ahead in batches, the noise is still what one draw a frame of the same
+    seeded generator gives, in that order, across a noise switched off and on again
+    (a fault's): numpy's own generator is the reference."""
+    specs = [ChannelSpec(noise_rms=1.0), ChannelSpec(noise_rms=0.5), ChannelSpec()]
+    chain = AnalogChannels(specs, np.random.default_rng(11))
+    reference = np.random.default_rng(11)
+    trace = np.zeros((2, 3))
+    for frame in range(600):  # several batches
+        quiet = 200 <= frame < 260
+        if frame in (200, 260):
+            for i, rms in enumerate((0.0, 0.0) if quiet else (1.0, 0.5)):
+                chain.set_noise(i, rms)
+        y = chain.sample(trace, 125e-6).copy()
+        want = np.zeros(3) if quiet else reference.standard_normal(3) * [1.0, 0.5, 0.0]
+        np.testing.assert_array_equal(y, want, err_msg=f"frame {frame}")

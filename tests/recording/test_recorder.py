@@ -330,5 +330,32 @@ def test_a_disk_that_fills_up_is_said_and_what_was_written_stays(tmp_path, backg
         rec.flush()
         if background:
             rec.close()
+    if not background:  # said at the flush, and again when it is closed
+        with pytest.raises(OSError, match="could not be written"):
+            rec.close()
     back = read_recording(path)
     np.testing.assert_array_equal(back.column("i"), np.arange(20.0))
+
+
+def test_ctrl_c_while_a_block_is_written_inline_writes_it_once(tmp_path) -> None:
+    # a KeyboardInterrupt after the block reached the file, before the flush returned
+    path = tmp_path / "ctrl-c.rrec"
+    rec = Recorder(path, ["i"], {}, chunk_rows=10, flush_s=1e9, background=False)
+    write, calls = rec._write, []
+
+    def write_then_interrupted(obj):
+        write(obj)
+        calls.append(obj)
+        if len(calls) == 1:
+            raise KeyboardInterrupt
+
+    rec._write = write_then_interrupted
+    with pytest.raises(KeyboardInterrupt):
+        for i in range(10):
+            rec.append(np.array([float(i)]))
+    for i in range(10, 15):
+        rec.append(np.array([float(i)]))
+    rec.close()
+    back = read_recording(path)
+    assert back.complete, back.note
+    np.testing.assert_array_equal(back.column("i"), np.arange(15.0))
