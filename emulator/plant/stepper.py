@@ -62,6 +62,7 @@ class Plant:
         self.frames = 0
         self.substeps = 0
         self.probes = Probes()  # values the measurement chain reads at every sub-step
+        self._read_at: dict[str, tuple[np.ndarray, int]] = {}  # read(): name -> place
         build_motor_side(self, params)
         build_load_transfer(self, params)
         build_line_side(self, params, ideal_dc_links or params.transformer is None)
@@ -392,7 +393,10 @@ class Plant:
     # --- reading ----------------------------------------------------------------------
     def read(self, name: str) -> np.ndarray | float:
         """A state by name: an array over motors/inverters/links, or a train scalar."""
-        data, column = self.state_column(name)
+        place = self._read_at.get(name)
+        if place is None:  # (the state arrays are made once, in build.py)
+            place = self._read_at[name] = self.state_column(name)
+        data, column = place
         return float(data[column]) if data.ndim == 1 else data[:, column].copy()
 
     def state_column(self, name: str) -> tuple[np.ndarray, int]:
