@@ -167,85 +167,70 @@ class MeasurementSampler:
         self._out = np.zeros(len(names))
 
     def warm_up(self) -> None:
-        """Compile or load what the samples after a frame use and the first does not
-        (the sub-steps' trace, the usual frame's one call), on copies: nothing of the
-        sampler or the plant changes."""
+        """Compile or load the sample's one call, on copies: nothing of the sampler or
+        the plant changes."""
         n, motors = self._n_analog, self.plant.n_motors
-        _complete_trace(np.zeros((2, n)), np.zeros(n), np.zeros(n))
-        args = self._frame_args(np.zeros((2, n)), 1e-4, np.zeros(motors), np.zeros(motors))
+        args = self._frame_args(np.zeros((2, n)), 1e-4, False, np.zeros(motors),
+                                np.zeros(motors), True)
         _sample_frame(*(a.copy() if isinstance(a, np.ndarray) else a for a in args))
 
-    def _frame_args(self, trace, h, last_angle, last_disc) -> tuple:
+    def _frame_args(self, trace, h, settle, last_angle, last_disc, first) -> tuple:
         """The arguments of _sample_frame (the live arrays, but for those given)."""
         p, analog, enc = self.plant, self.analog, self.encoders
         src, row, col, off = self._plan
         return (src, row, col, off, p.ss, p.ls2, p.lst, p.ist, p.ms, self._values,
-                self._angle, self._shaft, trace, self._offsets, h, analog.table, analog._out,
-                enc.eccentricity, enc.pitch, 2 * math.pi / enc.edges_per_rev,
+                self._angle, self._shaft, trace, self._offsets, h, settle, analog.table,
+                analog._out, enc.eccentricity, enc.pitch, 2 * math.pi / enc.edges_per_rev,
                 enc.edges_per_rev / (2 * math.pi), enc.edge_scale, enc.count_offset,
                 enc.COUNTER_MODULUS, self._count_pos, self._analog_pos, self._flag_pos,
-                self.gate_fault, self._fault_pos, self._train, self._train_pos, last_angle,
-                last_disc, p.time_s, enc._last_time, enc.CAPTURE_MODULUS, enc._capture,
-                self._capture_pos, self._out)
+                self.gate_fault, self._fault_pos, self._train, self._train_pos, first,
+                last_angle, last_disc, p.time_s, enc._last_time, enc.CAPTURE_MODULUS,
+                enc._capture, self._capture_pos, self._out)
 
     def sample(self, period_s: float, driver: DriverDemand) -> np.ndarray:
         """The measurement vector (physical units) at the present plant state."""
-        out = self._out
-        p = self.plant
-        probes, analog, enc = p.probes, self.analog, self.encoders
-        if (probes.frame == p.frames and self._sampled_frame == p.frames - 1
-                and analog._started and enc._last_angle is not None):
-            # the usual frame (one since the last sample, after the first): the steps
-            # below as one compiled call, in their order
-            analog.prepare(probes.h)
-            self._train[:] = driver.values()
-            _sample_frame(*self._frame_args(probes.trace[:probes.n_sub], probes.h,
-                                            enc._last_angle, enc._last_disc))
-            enc._last_time = p.time_s
-            self._sampled_frame = p.frames
-            return out
-        src, row, col, off = self._plan
-        _gather(src, row, col, off, p.ss, p.ls2, p.lst, p.ist, p.ms, self._values,
-                self._angle, self._shaft)
-        n = self._n_analog
+        p, probes, analog, enc = self.plant, self.plant.probes, self.analog, self.encoders
         if probes.frame == p.frames and self._sampled_frame == p.frames - 1:
             # one frame since the last sample: its sub-steps, the last at this instant
-            trace = probes.trace[:probes.n_sub]
-            _complete_trace(trace, self._offsets, self._values)
-            h = probes.h
+            trace, h = probes.trace[:probes.n_sub], probes.h
         else:  # a first sample, or frames the chain did not see: the present values
-            trace = self._values[:n].reshape(1, n)
-            h = period_s
+            trace, h = self._values[:self._n_analog].reshape(1, -1), period_s
         self._sampled_frame = p.frames
-        analog = self.analog.sample(trace, h)
-        enc.distort(self._angle)  # now the angles the discs show
+        settle = analog.prepare(h)  # coefficients and this frame's noise
+        first = enc._last_angle is None  # the captures start here (none yet)
+        if first:
+            enc._last_angle, enc._last_disc = np.zeros(p.n_motors), np.zeros(p.n_motors)
+            enc._last_time = p.time_s
         self._train[:] = driver.values()
-        _assemble(analog, self._analog_pos, self._values[n:], self._flag_pos, self._angle,
-                  enc.edges_per_rev / (2 * math.pi), enc.edge_scale, enc.count_offset,
-                  enc.COUNTER_MODULUS,
-                  self._count_pos, self.gate_fault, p.ist, self._fault_pos, self._train,
-                  self._train_pos, out)
-        out[self._capture_pos] = enc.captures(self._shaft, self._angle, p.time_s)
-        return out
+        _sample_frame(*self._frame_args(trace, h, settle, enc._last_angle, enc._last_disc,
+                                        first))
+        enc._last_time = p.time_s
+        return self._out
 
 
 @nb.njit(cache=True)
 def _sample_frame(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft, trace,
-                  offsets, h, table, analog, eccentricity, pitch, edge_rad, edges_per_rad,
-                  edge_scale, count_offset, modulus, count_pos, analog_pos, flag_pos,
-                  gate_fault, ist_fault_pos, train, train_pos, last_angle, last_disc, time_s,
-                  last_time, capture_modulus, capture, capture_pos, out):
-    """MeasurementSampler.sample's usual frame in one call: gather, the frame's trace,
-    the analog chain, the discs' angles, y assembled, the edge captures (the same
-    functions in the same order as the general path)."""
+                  offsets, h, settle, table, analog, eccentricity, pitch, edge_rad,
+                  edges_per_rad, edge_scale, count_offset, modulus, count_pos, analog_pos,
+                  flag_pos, gate_fault, ist_fault_pos, train, train_pos, first, last_angle,
+                  last_disc, time_s, last_time, capture_modulus, capture, capture_pos, out):
+    """y from the plant state: gather (the shaft angles too), the frame's trace in the
+    measured units (a trace that is a view of the values gathered: unchanged), the
+    analog chain (settle: the filters start at the last row's input), the angles the
+    discs show, y assembled, and the edge captures (first: they start here, none
+    latched)."""
     _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft)
     _complete_trace(trace, offsets, values)
-    _chain(trace, h, table, analog, False)
+    _chain(trace[trace.shape[0] - 1:] if settle else trace, h, table, analog, settle)
     _distort(angle, eccentricity, pitch, edge_rad)
     n = analog.shape[0]
     _assemble(analog, analog_pos, values[n:], flag_pos, angle, edges_per_rad, edge_scale,
               count_offset, modulus, count_pos, gate_fault, ist, ist_fault_pos, train,
               train_pos, out)
+    if first:
+        for m in range(shaft.shape[0]):
+            last_angle[m] = shaft[m]
+            last_disc[m] = angle[m]
     _captures(shaft, last_angle, angle, last_disc, time_s, last_time, edges_per_rad,
               edge_scale, eccentricity, pitch, edge_rad, capture_modulus, capture)
     for m in range(shaft.shape[0]):

@@ -144,7 +144,7 @@ class AnalogChannels:
         """The channel outputs after a frame whose sub-steps of length h ended with the
         plant values trace[0], trace[1], ..., trace[-1] (the last row: the values at the
         sampling instant that ends the frame). The first call starts every filter settled
-        at its input."""
+        at its input. (The rig's sampler calls the same chain inside one compiled call.)"""
         settle = self.prepare(h)
         if settle:
             trace = trace[-1:]
@@ -233,6 +233,8 @@ class Encoders:
         rng = rng or np.random.default_rng(0)
         self.pitch = (np.clip(rng.normal(0.0, pitch_error, (n, self.edges_per_rev)), -0.45,
                               0.45) if pitch_error > 0 else np.zeros((n, 1)))
+        # the last sample's shaft and disc angles and time, which the captures start
+        # from (kept by the sampler's compiled call, rig/sampling.py; None: none yet)
         self._last_angle: np.ndarray | None = None
         self._last_disc = np.zeros(n)
         self._last_time = 0.0
@@ -244,30 +246,6 @@ class Encoders:
         before = math.floor(k * self.edge_scale[i])
         self.edge_scale[i] = scale
         self.count_offset[i] += before - math.floor(k * scale)
-
-    def distort(self, angle_rad: np.ndarray) -> None:
-        """Turn shaft angles into the angles the discs show, in place: the nearest edge j
-        sits at (j + pitch_j) edge pitches, the whole disc off by e sin(angle)."""
-        _distort(angle_rad, self.eccentricity, self.pitch, 2 * math.pi / self.edges_per_rev)
-
-    def captures(self, shaft_rad: np.ndarray, disc_rad: np.ndarray,
-                 time_s: float) -> np.ndarray:
-        """The edge-time captures (us, wrapping) after a sample at plant time time_s of
-        the shaft angles and the angles the discs show (distort()); an encoder without an
-        edge since the last sample keeps its capture."""
-        if self._last_angle is None:
-            self._last_angle = shaft_rad.copy()
-            self._last_disc = disc_rad.copy()
-            self._last_time = time_s
-            self._capture = np.zeros(len(shaft_rad), dtype=np.int64)
-        _captures(shaft_rad, self._last_angle, disc_rad, self._last_disc, time_s,
-                  self._last_time, self.edges_per_rev / (2 * math.pi), self.edge_scale,
-                  self.eccentricity, self.pitch, 2 * math.pi / self.edges_per_rev,
-                  self.CAPTURE_MODULUS, self._capture)
-        self._last_angle[:] = shaft_rad
-        self._last_disc[:] = disc_rad
-        self._last_time = time_s
-        return self._capture
 
     def counts(self, angle_rad: np.ndarray) -> np.ndarray:
         """Counter values for the shaft angles (unwrapped, rad)."""
@@ -318,6 +296,8 @@ def _captures(shaft, last, disc, last_disc, t, t_last, edges_per_rad, scale, ecc
 
 @nb.njit(cache=True)
 def _distort(angle, eccentricity, pitch, edge_rad):
+    """Turn shaft angles into the angles the discs show, in place: the nearest edge j
+    sits at (j + pitch_j) edge pitches, the whole disc off by e sin(angle)."""
     for i in range(angle.shape[0]):
         a = angle[i] + eccentricity[i] * math.sin(angle[i])
         if pitch.shape[1] > 1:
