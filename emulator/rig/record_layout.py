@@ -97,6 +97,12 @@ class RecordsFrames:
                   self.extras)
         return self._row
 
+    @property
+    def records_in_background(self) -> bool:
+        """Whether this rig's recordings are written by a thread of their own: only
+        where frames have deadlines (emulator/recording/recorder.py says why)."""
+        return self.mode == "realtime"
+
     def record_storage(self, columns: list[str]) -> tuple[list[str], list[float], list[str]]:
         """How each recorded column is stored and its unit (record_layout.py)."""
         return storage_of(self.signal_map, columns)
@@ -128,7 +134,7 @@ class RecordsFrames:
             "period_us": self.period_us, "version": __version__,
             "started_at_s": self.plant.time_s, "channels": channels or ["all"], **meta},
             exclusive=exclusive, kinds=kinds, scales=scales, units=units, every=every,
-            background=self.mode == "realtime")  # a thread only where frames have deadlines
+            background=self.records_in_background)
         self._record_pick = None if len(pick) == len(columns) else np.array(pick)
         return self.recorder
 

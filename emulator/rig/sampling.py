@@ -200,7 +200,6 @@ class MeasurementSampler:
         first = enc._last_angle is None  # the captures start here (none yet)
         if first:
             enc._last_angle, enc._last_disc = np.zeros(p.n_motors), np.zeros(p.n_motors)
-            enc._last_time = p.time_s
         self._train[:] = driver.values()
         _sample_frame(*self._frame_args(trace, h, settle, enc._last_angle, enc._last_disc,
                                         first))
@@ -227,12 +226,9 @@ def _sample_frame(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaf
     _assemble(analog, analog_pos, values[n:], flag_pos, angle, edges_per_rad, edge_scale,
               count_offset, modulus, count_pos, gate_fault, ist, ist_fault_pos, train,
               train_pos, out)
-    if first:
-        for m in range(shaft.shape[0]):
-            last_angle[m] = shaft[m]
-            last_disc[m] = angle[m]
-    _captures(shaft, last_angle, angle, last_disc, time_s, last_time, edges_per_rad,
-              edge_scale, eccentricity, pitch, edge_rad, capture_modulus, capture)
+    if not first:  # edges crossed since the last sample
+        _captures(shaft, last_angle, angle, last_disc, time_s, last_time, edges_per_rad,
+                  edge_scale, eccentricity, pitch, edge_rad, capture_modulus, capture)
     for m in range(shaft.shape[0]):
         last_angle[m] = shaft[m]
         last_disc[m] = angle[m]

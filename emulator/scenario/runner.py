@@ -157,7 +157,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
                   for j in signal_columns(columns, c.signal)[0]}
         kinds = ["f64" if j in judged and k == "f32" else k for j, k in enumerate(kinds)]
         recorder = Recorder(path, columns, meta, kinds=kinds, scales=scales, units=units,
-                            background=mode == "realtime")  # recorder.py: why
+                            background=rig.records_in_background)
         program = ScenarioProgram(scenario, rig, recorder)
         rig.program, rig.recorder = program, recorder
         rig.faults = FaultSet(rig, seed=seed)
