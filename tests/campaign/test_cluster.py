@@ -25,6 +25,8 @@ from emulator.recording.recorder import read_recording
 
 from .conftest import CAMPAIGN, short_start
 
+pytestmark = pytest.mark.long
+
 FACTORS, SEEDS = (1.0, 0.6), (1, 2)
 DASK = Path(sys.executable).parent / "dask"
 

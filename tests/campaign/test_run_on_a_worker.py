@@ -13,6 +13,8 @@ import shlex
 import sys
 from pathlib import Path
 
+import pytest
+
 from emulator.campaign.spec import load_campaign
 from emulator.campaign.worker import ERROR, TIMEOUT, execute_run
 from emulator.scenario.runner import run_scenario
@@ -33,6 +35,7 @@ def _one_case(where: Path, controller: str, command: str | None = None) -> dict:
     return dict(run.as_dict(), record="all")
 
 
+@pytest.mark.long
 def test_a_controller_started_for_the_run_over_udp_gives_the_in_process_frames(
         campaign_dir: Path) -> None:
     result = execute_run(_one_case(campaign_dir, "udp://{rig}?peer={bind}", CONTROLLER),

@@ -45,6 +45,7 @@ def test_bad_settings_give_a_clear_error_and_exit_2(args, words, capsys) -> None
     assert words in " ".join(capsys.readouterr().err.split())
 
 
+@pytest.mark.long
 def test_throughput_bench_json_has_the_documented_keys() -> None:
     """Three short demo runs (2 s of plant time each): the figures are there and add up
     (the stages and the rest make the instrumented frame); their values are benchmarks,

@@ -13,6 +13,7 @@ from emulator.scenario.demo_run import run_reference_demo
 from tests.controller.conftest import TRAINSET
 
 
+@pytest.mark.long
 def test_demo_reaches_speed_and_stops_on_the_mark(run) -> None:
     s = run(run_reference_demo(TRAINSET, in_process=True, target_kmh=60.0, stop_at_m=1200.0))
     assert s.completed
@@ -22,6 +23,7 @@ def test_demo_reaches_speed_and_stops_on_the_mark(run) -> None:
     assert s.catenary_returned_kwh > 0.3 * s.catenary_drawn_kwh  # it regenerated
 
 
+@pytest.mark.long
 def test_controller_over_udp_gives_the_same_run(run) -> None:
     # a short ride through every mode: what is compared is the link, not the ride
     kw = dict(target_kmh=20.0, stop_at_m=100.0, cruise_s=1.0, coast_s=1.0)

@@ -189,6 +189,7 @@ def _send(address: str, payload: bytes) -> None:
           suppress_health_check=[HealthCheck.function_scoped_fixture,
                                  HealthCheck.too_slow, HealthCheck.data_too_large])
 @given(payload=messages)
+@pytest.mark.long
 def test_fuzzed_monitor_messages_never_stop_the_rig(served_rig, payload: bytes) -> None:
     rig, address, _, _, _ = served_rig
     _send(address, payload)

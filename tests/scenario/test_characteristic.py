@@ -34,6 +34,7 @@ def _check(points: list[dict]) -> None:
             assert abs(p["line_power_factor"]) >= 0.95, p
 
 
+@pytest.mark.long
 def test_vector_control_meets_the_curve_as_a_user_measures_it(tmp_path) -> None:
     out = subprocess.run(
         [sys.executable, "-m", "emulator.cli", "characteristic", "--profile",
@@ -57,6 +58,7 @@ def test_each_trainset_and_control_meets_the_curve(trainset: str, control: str) 
     _check([dict(p.__dict__, share_of_limit=p.share_of_limit) for p in points])
 
 
+@pytest.mark.long
 def test_a_controller_under_test_is_measured_over_its_link(tmp_path) -> None:
     # the reference controller in a process of its own on loopback UDP stands for a board:
     # the command reaches it by URL as a user's firmware would be reached

@@ -11,6 +11,7 @@ import sys
 from pathlib import Path
 
 import numpy as np
+import pytest
 
 from emulator.scenario import load_scenario, run_scenario
 
@@ -44,6 +45,7 @@ print(hashlib.sha256(run.recording.data.tobytes()).hexdigest())
 """
 
 
+@pytest.mark.long
 def test_fresh_and_cached_kernels_give_the_same_run(tmp_path: Path) -> None:
     # The first process compiles the plant kernel into an empty cache, the second loads
     # it. With fastmath the two roundings differed and the wet start parted at the

@@ -69,6 +69,7 @@ TWINNED = {"protections", "speed-sensor-loss", "catenary-dip-interruption",
 
 
 @pytest.mark.parametrize("path", list(_library_params()))
+@pytest.mark.long
 def test_shipped_scenario_passes_in_lockstep(path: Path) -> None:
     twin = Twin() if path.stem in TWINNED else None
     run = asyncio.run(run_scenario(load_scenario(path),

@@ -11,6 +11,7 @@ import re
 import subprocess
 import sys
 
+import pytest
 from textual.widgets import Input, OptionList
 
 from tui.app import RigDashboard
@@ -60,6 +61,7 @@ async def rig_state(address: str) -> dict:
         probe.writer.close()
 
 
+@pytest.mark.long
 async def test_inject_a_catenary_dip_by_keys_see_it_then_clear_it(rig_process) -> None:  # noqa: F811
     app = RigDashboard(rig_process, retry=False)
     async with app.run_test(size=(100, 32)) as pilot:
