@@ -86,12 +86,16 @@ def start_controller(profile: Path, device: str, board: str | None) -> subproces
 
 async def run_over_cable(params: TrainsetParams, device: str, mode: str,
                          seconds: float | None = None,
-                         frames: int | None = None) -> dict[str, Any]:
+                         frames: int | None = None, setup=None) -> dict[str, Any]:
     """The rig on ``device`` for ``seconds`` of wall time or ``frames`` frames (after
-    the controller's first answer, in lockstep); its report and the timing."""
+    the controller's first answer, in lockstep); its report and the timing.
+    ``setup(rig)`` is called before the first frame (tests record through it); a
+    recording started there is closed at the end."""
     link = open_link(f"serial://{device}?baud={BAUD}")
     await link.open()
     rig = Rig(params, link, mode=mode, clock=MonotonicClock())
+    if setup is not None:
+        setup(rig)
     try:
         if mode == "lockstep":  # the controller's first answer (its start-up) untimed
             await rig.run(frames=1)
@@ -105,6 +109,8 @@ async def run_over_cable(params: TrainsetParams, device: str, mode: str,
     finally:
         link.close()
         rig.clock.close()
+        if rig.recorder is not None:
+            rig.recorder.close()
     report = rig.report()
     frames = rig.frame - frame0
     return {"frames": frames, "wall_s": wall,

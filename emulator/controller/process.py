@@ -24,6 +24,7 @@ from .config import config_from_profile
 log = logging.getLogger(__name__)
 
 POLL_BEFORE_WAIT_NS = 300_000  # poll the link this long before blocking on it
+STOP_CHECK_S = 0.05  # a blocked wait looks at the stop event this often
 
 
 async def serve_controller(profile, link_url: str, *, allow_remote: bool = False,
@@ -44,8 +45,9 @@ async def serve_controller(profile, link_url: str, *, allow_remote: bool = False
             while not link.pending() and time.monotonic_ns() < spin_until:
                 link.poll()
                 os.sched_yield()  # the core to the rig if it waits for one
-            if not link.pending() and not await link.wait(idle_timeout_s):
-                log.info("rig silent for %.0f s: controller stops", idle_timeout_s)
+            if not link.pending() and not await _wait_or_stop(link, idle_timeout_s, stop):
+                if stop is None or not stop.is_set():
+                    log.info("rig silent for %.0f s: controller stops", idle_timeout_s)
                 break
             payloads = link.take()
             for payload in payloads:
@@ -60,6 +62,29 @@ async def serve_controller(profile, link_url: str, *, allow_remote: bool = False
     finally:
         link.close()
     return tcu
+
+
+async def _wait_or_stop(link, timeout_s: float, stop: asyncio.Event | None) -> bool:
+    """Wait for a telegram up to timeout_s, looking at stop every STOP_CHECK_S (SIGTERM
+    ends a controller at once, not at its idle timeout); True when one is waiting."""
+    deadline = time.monotonic() + timeout_s
+    while not link.pending():
+        left = deadline - time.monotonic()
+        if left <= 0 or (stop is not None and stop.is_set()):
+            return False
+        await link.wait(min(left, STOP_CHECK_S))
+    return True
+
+
+def stop_controller(child: subprocess.Popen, timeout_s: float = 10.0) -> None:
+    """End a controller started by spawn_controller (SIGTERM, then kill)."""
+    if child.poll() is None:
+        child.terminate()
+    try:
+        child.wait(timeout_s)
+    except subprocess.TimeoutExpired:
+        child.kill()
+        child.wait()
 
 
 def spawn_controller(profile, idle_timeout_s: float = 5.0,

@@ -135,6 +135,13 @@ class Rig(LockstepPacing, RecordsFrames):
         self._sent_frame = -1  # the frame whose measurement went out last
         self._sent_flags = 0  # the flags y_k went out with (a repeat carries them again)
         self._sent_mono_ns = 0  # lockstep: when y_k went out (for the round trip)
+        self._sent_time_us = 0  # the plant time y_k went out with
+        self._y_out = np.zeros(len(sm.measurements))  # y_k while frame k has run ahead
+        self._ahead_flags = 0  # flags for y_(k+1) from frame k run ahead (lockstep.py)
+        self.frames_ahead = 0  # lockstep: frames run while the controller computed
+        #: lockstep: run frame k while the controller computes its answer to y_k
+        #: (lockstep.py, _run_ahead); False runs it when the answer is in (comparisons)
+        self.run_ahead = True
         self.repeats = 0  # lockstep: measurements said again (the causes: repeat_causes)
         self.repeat_causes: Counter = Counter()  # silence, bad_telegram, framing, request
         self._repeat_asked = False
@@ -145,18 +152,21 @@ class Rig(LockstepPacing, RecordsFrames):
 
     # --- one frame, without waiting ----------------------------------------------------
     def _send_measurement(self, k: int) -> None:
+        self._flags |= self._ahead_flags  # what the frame run ahead saw (lockstep.py)
+        self._ahead_flags = 0
         flags = self._flags | (FLAG_WATCHDOG if self.tripped else 0)
-        payload = self.codec.encode(k, round(self.plant.time_s * 1e6), self.period_us, flags,
-                                    self._y)
+        self._sent_time_us = round(self.plant.time_s * 1e6)
+        payload = self.codec.encode(k, self._sent_time_us, self.period_us, flags, self._y)
         self.link.send(payload)
         self._sent_ns[k % len(self._sent_ns)] = self.clock.now_ns()
         self._sent_flags = flags
         self._sent_frame = k
         self._flags = 0
 
-    def _receive(self, payloads: list[bytes]) -> None:
-        """Decode telegrams; keep valid answers by the sequence number they answer."""
-        k = self.frame
+    def _receive(self, payloads: list[bytes], k: int | None = None) -> None:
+        """Decode telegrams; keep valid answers by the sequence number they answer.
+        ``k``: the last measurement out (lockstep: frame k may have run ahead)."""
+        k = self.frame if k is None else k
         for payload in payloads:
             if self.faults is not None and self.faults.drop():
                 self.health.rejected["fault_dropped"] += 1
@@ -335,6 +345,7 @@ class Rig(LockstepPacing, RecordsFrames):
                 "watchdog_tripped": self.tripped, "link": self.health.as_dict(),
                 "lockstep_repeats": self.repeats,
                 "lockstep_repeat_causes": dict(self.repeat_causes),
+                "frames_ahead": self.frames_ahead,
                 "transport": {"sent": self.link.stats.sent,
                               "received": self.link.stats.received,
                               "tx_errors": self.link.stats.tx_errors,

@@ -12,6 +12,8 @@ import asyncio
 import os
 import time
 
+import numpy as np
+
 from emulator.protocol.header import FLAG_FRAMING, FLAG_REPEAT, FLAG_WATCHDOG
 
 #: lockstep: say the current measurement again after at most this many periods of
@@ -37,8 +39,9 @@ class LockstepPacing:
         and the repeat bit (the board answers it with its last command for k)."""
         flags = self._sent_flags | self._flags | FLAG_REPEAT
         flags |= FLAG_WATCHDOG if self.tripped else 0
-        self.link.send(self.codec.encode(self._sent_frame, round(self.plant.time_s * 1e6),
-                                         self.period_us, flags, self._y))
+        y = self._y if self.frame == self._sent_frame else self._y_out  # (run ahead)
+        self.link.send(self.codec.encode(self._sent_frame, self._sent_time_us,
+                                         self.period_us, flags, y))
         self._repeated = self._sent_frame
         self._sent_flags = flags & ~FLAG_REPEAT
         self._flags = 0
@@ -86,10 +89,10 @@ class LockstepPacing:
                 if payload is None:
                     break
                 arrived_ns = time.monotonic_ns()
-                k = self.frame
+                k = self._sent_frame  # (self.frame is k + 1 when frame k ran ahead)
                 rejected = self.health.rejected.total()
                 dropped_by_fault = self.health.rejected["fault_dropped"]
-                self._receive([payload])
+                self._receive([payload], k)
                 if self._repeat_asked:
                     self._repeat_asked, repeat = False, "request"
                     continue
@@ -106,12 +109,14 @@ class LockstepPacing:
                 clean_sample = self._repeated != k  # Karn: no sample from a repeat
                 if clean_sample:  # y_k out, its answer in
                     self._note_round_trip(arrived_ns - self._sent_mono_ns)
-                if (self.monitor is not None and not self.monitor.may_run()
-                        and not await self.monitor.hold(stop)):
-                    break  # stopped while paused (the controller waits for y_k meanwhile)
-                start = self.clock.now_ns()
-                period = self._take_command(k) or self.period_us
-                self._step(period)
+                if self.frame == k:  # frame k has not run ahead: run it now
+                    if (self.monitor is not None and not self.monitor.may_run()
+                            and not await self.monitor.hold(stop)):
+                        break  # stopped while paused (the controller waits for y_k)
+                    start = self.clock.now_ns()
+                    period = self._take_command(k) or self.period_us
+                    self._step(period)
+                    self.stats.record(0, self.clock.now_ns() - start, period * 1000)
                 if self.link.take_damaged():  # seen with this batch: say so in y_(k+1)
                     self._flags |= FLAG_FRAMING
                 self._send_measurement(self.frame)
@@ -120,7 +125,7 @@ class LockstepPacing:
                 bad_repeats = quick_repeats = 0
                 if clean_sample:  # the backed-off wait stays until a clean sample
                     silence_s = self._silence_s()
-                self.stats.record(0, self.clock.now_ns() - start, period * 1000)
+                self._run_ahead(frames, stop)
                 if self.monitor is not None and self.frame % self.monitor.every == 0:
                     await asyncio.sleep(0)  # an in-process controller never waits: let
                     # the monitor's socket and snapshot in
@@ -140,6 +145,34 @@ class LockstepPacing:
             self._repeat_measurement(repeat)
             if self.repeats % 16 == 0:
                 await asyncio.sleep(0)  # never starve the loop (stop, monitor, I/O)
+
+    def _run_ahead(self, frames: int | None, stop: asyncio.Event | None) -> None:
+        """Run frame k while the controller computes its answer to y_k (just sent).
+
+        Frame k acts on the command answering y_(k-d), d >= 1, which is here: so it can
+        run before the answer to y_k arrives, and the rig's work overlaps the
+        controller's. What the board sees is unchanged: y_(k+1) goes out only after the
+        answer to y_k (its flags include what frame k saw), and a repeat of y_k carries
+        y_k. Only in the plain case: a command of its own for frame k (no hold, no
+        watchdog), no faults (their telegram drops draw in the order of the frames), not
+        paused, not the last frame asked for; otherwise frame k runs when the answer to
+        y_k is in, as before. Runs are the same bit for bit either way."""
+        k = self.frame
+        if (not self.run_ahead or self.delay == 0 or self.tripped
+                or (k - self.delay) not in self._answers
+                or (frames is not None and k + 1 >= frames)
+                or (stop is not None and stop.is_set())
+                or (self.faults is not None and self.faults.faults)
+                or (self.monitor is not None and not self.monitor.may_run())):
+            return
+        np.copyto(self._y_out, self._y)  # y_k, for a repeat while frame k has run
+        flags, self._flags = self._flags, 0
+        start = self.clock.now_ns()
+        period = self._take_command(k) or self.period_us
+        self._step(period)
+        self.stats.record(0, self.clock.now_ns() - start, period * 1000)
+        self._ahead_flags, self._flags = self._flags, flags
+        self.frames_ahead += 1
 
     async def _wait_link(self, timeout_s: float, stop: asyncio.Event | None) -> bool:
         """Wait for the link up to timeout_s; False when the time ran out or stop was

@@ -43,7 +43,6 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
     own process); the throughput benchmark times stages through it.
     """
     import asyncio
-    import subprocess
 
     from emulator.link import open_link
     from emulator.profiles.reader import load_trainset
@@ -61,7 +60,7 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
         rig = Rig(params, link, mode="lockstep")
         tcu = await attach_reference("railrig-demo", rig, profile)
     else:
-        from emulator.controller.process import spawn_controller
+        from emulator.controller.process import spawn_controller, stop_controller
 
         url, child = spawn_controller(profile)
         link = open_link(url)
@@ -85,10 +84,7 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
         wall = time.perf_counter() - t_wall
         link.close()
         if child is not None:
-            try:
-                child.wait(10)
-            except subprocess.TimeoutExpired:
-                child.kill()
+            stop_controller(child)  # not left to idle out: its wait is no part of the run
         await asyncio.sleep(0)
     x = rig.plant.read("train.position_m")
     return ReferenceDemoSummary(

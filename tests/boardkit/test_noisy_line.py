@@ -20,6 +20,7 @@ import pytest
 
 from emulator.bench.serial_ber import NoisyCable, run_over_cable
 from emulator.profiles.reader import load_trainset
+from emulator.recording.recorder import read_recording
 from tests.boardkit.conftest import PROFILES
 
 TRAINSET = PROFILES / "tern-25kv.toml"
@@ -104,3 +105,31 @@ def test_real_time_holds_one_frame_per_spoiled_frame(kit_dir, ber) -> None:
     # (whether the watchdog trips in real time depends on the machine as well as the
     # line: a benchmark figure, `railrig bench --link --serial-ber 1e-5 --serial-mode
     # realtime`, DEVELOPERS.md, not a test)
+
+
+def test_frames_run_ahead_give_the_run_of_frames_run_one_by_one(kit_dir, tmp_path) -> None:
+    # In lockstep the rig runs frame k while the board computes its answer to y_k (frame
+    # k acts on the answer to y_(k-1)): the board must see exactly what it saw when each
+    # frame waited for its answer, repeats of y_k included. The reference is the run one
+    # frame at a time on a clean cable; the kit's example is deterministic, so any
+    # difference in what it was sent (a repeat carrying y_(k+1), a flag, a time) shows in
+    # its commands and so in the recorded run.
+    def recorded(ber: float, run_ahead: bool) -> tuple[object, dict]:
+        path = tmp_path / f"{ber:g}-{run_ahead}.rrec"
+
+        def setup(rig) -> None:
+            rig.run_ahead = run_ahead
+            rig.start_recording(str(path))
+
+        result, _ = _over_the_cable(kit_dir, ber, "lockstep", frames=400, setup=setup)
+        return read_recording(path), result["report"]
+
+    one_by_one, plain = recorded(0.0, False)
+    ahead, clean = recorded(0.0, True)
+    noisy_ahead, noisy = recorded(1e-3, True)
+    assert plain["frames_ahead"] == 0 and clean["frames_ahead"] >= 390
+    assert noisy["lockstep_repeats"] > 50  # y_k said again while frame k had run ahead
+    assert noisy["frames_ahead"] > 0
+    assert one_by_one.data.shape == (401, len(one_by_one.columns))  # 1 + 400 frames
+    assert ahead.data.tobytes() == one_by_one.data.tobytes()
+    assert noisy_ahead.data.tobytes() == one_by_one.data.tobytes()

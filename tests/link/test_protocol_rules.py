@@ -162,6 +162,36 @@ def test_lockstep_repeat_request_gets_the_measurement_again(params) -> None:
     assert sum(rig.health.sequence.values()) == 0  # its sequence was not read
 
 
+def test_frames_run_ahead_send_the_board_what_frames_run_one_by_one_send(params) -> None:
+    # lockstep runs frame k while the board computes its answer to y_k (frame k acts on
+    # the answer to y_(k-1)); the board must not be able to tell: every telegram it gets,
+    # repeats of y_k asked for after frame k ran included, is the same to the byte
+    def telegrams(run_ahead: bool) -> tuple[list[bytes], int]:
+        asked = {2, 5, 6}
+
+        def answer(rig, m):
+            seq = m[H_SEQUENCE]
+            if seq in asked:
+                asked.discard(seq)
+                return _with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
+            return command(rig, seq, duty=0.5 + 0.01 * seq)
+
+        async def go():
+            rig, ctl = await make_rig(params, answer, mode="lockstep")
+            rig.run_ahead = run_ahead
+            await rig.run(frames=10)
+            return rig, ctl
+        rig, ctl = run(go())
+        return list(ctl.received), rig.frames_ahead
+
+    ahead, n_ahead = telegrams(True)
+    one_by_one, n_one = telegrams(False)
+    assert n_one == 0 and n_ahead >= 5
+    heads = [msgpack.unpackb(p)[:6] for p in ahead]
+    assert [h[H_SEQUENCE] for h in heads] == [0, 1, 2, 2, 3, 4, 5, 5, 6, 6, 7, 8, 9, 10]
+    assert ahead == one_by_one
+
+
 def test_lockstep_silence_repeats_after_the_interval_then_doubling(params) -> None:
     # a controller that stays silent: the rig says y_0 again after 5 ms, then 10, 20,
     # 40 ms ... (doubling, RFC 6298 5.5), and sends nothing once it is stopped

@@ -62,7 +62,7 @@ def test_each_trainset_and_control_meets_the_curve(trainset: str, control: str) 
 def test_a_controller_under_test_is_measured_over_its_link(tmp_path) -> None:
     # the reference controller in a process of its own on loopback UDP stands for a board:
     # the command reaches it by URL as a user's firmware would be reached
-    from emulator.controller.process import spawn_controller
+    from emulator.controller.process import spawn_controller, stop_controller
 
     profile = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
     url, board = spawn_controller(profile, quiet=True)
@@ -73,10 +73,7 @@ def test_a_controller_under_test_is_measured_over_its_link(tmp_path) -> None:
              "--demands", "1", "--json"], cwd=ROOT, capture_output=True, text=True,
             timeout=600)
     finally:
-        try:
-            board.wait(timeout=30)  # it stops when the rig falls silent
-        except subprocess.TimeoutExpired:
-            board.kill()
+        stop_controller(board)
     assert out.returncode == 0, out.stderr
     points = json.loads(out.stdout)
     _check(points)
