@@ -48,12 +48,15 @@ class OpenLoopBoard:
         self.speed = 0.0
         self.answered = 0
         self.flags_seen = 0
+        self.last: tuple[int, bytes] | None = None  # (sequence, the answer sent for it)
 
     def answer(self, payload: bytes) -> bytes:
         m = msgpack.unpackb(payload)
         version, seq, _time_us, period_us, flags, _digest = m[:6]
         assert version == self.version
         self.flags_seen |= flags
+        if self.last is not None and self.last[0] == seq:  # said again (the rig's repeat
+            return self.last[1]  # rule): the same answer, the control not run again
         body = m[6:]
         period = period_us / 1e6
         counts = [body[i] for i in self.encoders]
@@ -85,7 +88,9 @@ class OpenLoopBoard:
         named = zip(self.cmds, self.scale_c, strict=True)
         wire = [round(values.get(n, 0.0) / s) for n, s in named]
         self.answered += 1
-        return msgpack.packb([self.version, seq, 0, 0, 0, 0, *wire])
+        reply = msgpack.packb([self.version, seq, 0, 0, 0, 0, *wire])
+        self.last = (seq, reply)
+        return reply
 
 
 def frame(payload: bytes) -> bytes:
