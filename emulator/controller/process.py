@@ -72,7 +72,8 @@ async def _wait_or_stop(link, timeout_s: float, stop: asyncio.Event | None) -> b
         left = deadline - time.monotonic()
         if left <= 0 or (stop is not None and stop.is_set()):
             return False
-        await link.wait(min(left, STOP_CHECK_S))
+        if await link.wait(min(left, STOP_CHECK_S)):
+            return True  # a telegram, or a damaged frame (the caller asks again)
     return True
 
 

@@ -138,6 +138,8 @@ class Rig(LockstepPacing, RecordsFrames):
         self._sent_time_us = 0  # the plant time y_k went out with
         self._y_out = np.zeros(len(sm.measurements))  # y_k while frame k has run ahead
         self._ahead_flags = 0  # flags for y_(k+1) from frame k run ahead (lockstep.py)
+        self._ran_ahead = False  # frame _sent_frame ran before its answer came
+        self._used_before_ahead = -1  # _last_used before it ran
         self.frames_ahead = 0  # lockstep: frames run while the controller computed
         #: lockstep: run frame k while the controller computes its answer to y_k
         #: (lockstep.py, _run_ahead); False runs it when the answer is in (comparisons)
@@ -154,6 +156,7 @@ class Rig(LockstepPacing, RecordsFrames):
     def _send_measurement(self, k: int) -> None:
         self._flags |= self._ahead_flags  # what the frame run ahead saw (lockstep.py)
         self._ahead_flags = 0
+        self._ran_ahead = False
         flags = self._flags | (FLAG_WATCHDOG if self.tripped else 0)
         self._sent_time_us = round(self.plant.time_s * 1e6)
         payload = self.codec.encode(k, self._sent_time_us, self.period_us, flags, self._y)
@@ -167,6 +170,9 @@ class Rig(LockstepPacing, RecordsFrames):
         """Decode telegrams; keep valid answers by the sequence number they answer.
         ``k``: the last measurement out (lockstep: frame k may have run ahead)."""
         k = self.frame if k is None else k
+        # frame k ran ahead: classify as if it had not (its command is still 'waiting')
+        ahead = self._ran_ahead and self.frame == k + 1
+        last_used = self._used_before_ahead if ahead else self._last_used
         for payload in payloads:
             if self.faults is not None and self.faults.drop():
                 self.health.rejected["fault_dropped"] += 1
@@ -190,11 +196,13 @@ class Rig(LockstepPacing, RecordsFrames):
             seq = tg.sequence
             if seq > k:
                 self._sequence_error("unexpected")  # answers a measurement never sent
-            elif seq == self._repeated and (seq in self._answers or seq == self._last_used):
+            elif seq == self._repeated and (
+                    seq in self._answers or seq == self._last_used or seq == last_used):
                 self.health.answers_to_repeats += 1  # we asked twice: not their error
-            elif seq in self._answers or seq <= self._last_used:
+            elif seq in self._answers or seq <= self._last_used or seq <= last_used:
                 self._sequence_error("duplicate" if seq in self._answers
-                                     or seq == self._last_used else "late")
+                                     or seq == self._last_used or seq == last_used
+                                     else "late")
             elif seq < k - self.delay:
                 self._sequence_error("late")
             else:

@@ -59,10 +59,11 @@ class LockstepPacing:
         LOCKSTEP_QUICK_REPEATS times, then the silence timer); silence gets it again
         after ``_silence_s()``, then at doubling intervals (up to LOCKSTEP_REPEAT_MAX_S)
         until a frame runs on a clean round trip (RFC 6298, 5.5 and 5.7)."""
-        if self._sent_frame != self.frame:  # not when resuming a run already under way
-            self._send_measurement(self.frame)
+        if self._sent_frame != self.frame and not self._ran_ahead:  # not when resuming
+            self._send_measurement(self.frame)  # a run under way (frame k run ahead: y_k's
+            # answer is still owed)
         self._sent_mono_ns = time.monotonic_ns()
-        self._repeated = self.frame  # the first measurement's round trip includes the
+        self._repeated = self._sent_frame  # the first measurement's round trip includes the
         # controller's start-up: not a sample
         self.stats.restart_cpu_window()
         silence_s = self._silence_s()
@@ -167,6 +168,7 @@ class LockstepPacing:
             return
         np.copyto(self._y_out, self._y)  # y_k, for a repeat while frame k has run
         flags, self._flags = self._flags, 0
+        self._used_before_ahead, self._ran_ahead = self._last_used, True
         start = self.clock.now_ns()
         period = self._take_command(k) or self.period_us
         self._step(period)
