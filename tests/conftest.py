@@ -65,13 +65,14 @@ def _kernels_cached() -> bool:
     """Whether numba's cache beside the sources holds the two big kernels."""
     import os
 
-    import emulator  # refreshes a stale cache (emulator/kernel_cache.py)
+    from emulator.controller import period_kernel
+    from emulator.rig.warmup import kernel_cached  # (importing emulator refreshes a
+    # stale cache: emulator/kernel_cache.py)
 
     if os.environ.get("NUMBA_CACHE_DIR"):
         return False  # cached elsewhere: let the compile processes look
-    root = Path(emulator.__file__).parent
-    return (any((root / "plant" / "__pycache__").glob("kernel.advance_frame-*.nbi"))
-            and any((root / "controller" / "__pycache__").glob("period_kernel.period-*.nbi")))
+    cache = Path(period_kernel.__file__).parent / "__pycache__"
+    return kernel_cached() and any(cache.glob("period_kernel.period-*.nbi"))
 
 
 def pytest_configure(config: pytest.Config) -> None:

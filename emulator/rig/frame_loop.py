@@ -137,7 +137,6 @@ class Rig(LockstepPacing, RecordsFrames):
         self._sent_mono_ns = 0  # lockstep: when y_k went out (for the round trip)
         self._sent_time_us = 0  # the plant time y_k went out with
         self._y_out = np.zeros(len(sm.measurements))  # y_k while frame k has run ahead
-        self._ahead_flags = 0  # flags for y_(k+1) from frame k run ahead (lockstep.py)
         self._ran_ahead = False  # frame _sent_frame ran before its answer came
         self._used_before_ahead = -1  # _last_used before it ran
         self.frames_ahead = 0  # lockstep: frames run while the controller computed
@@ -154,8 +153,6 @@ class Rig(LockstepPacing, RecordsFrames):
 
     # --- one frame, without waiting ----------------------------------------------------
     def _send_measurement(self, k: int) -> None:
-        self._flags |= self._ahead_flags  # what the frame run ahead saw (lockstep.py)
-        self._ahead_flags = 0
         self._ran_ahead = False
         flags = self._flags | (FLAG_WATCHDOG if self.tripped else 0)
         self._sent_time_us = round(self.plant.time_s * 1e6)
@@ -199,7 +196,7 @@ class Rig(LockstepPacing, RecordsFrames):
             elif seq == self._repeated and (
                     seq in self._answers or seq == self._last_used or seq == last_used):
                 self.health.answers_to_repeats += 1  # we asked twice: not their error
-            elif seq in self._answers or seq <= self._last_used or seq <= last_used:
+            elif seq in self._answers or seq <= self._last_used:  # (>= last_used)
                 self._sequence_error("duplicate" if seq in self._answers
                                      or seq == self._last_used or seq == last_used
                                      else "late")

@@ -114,10 +114,7 @@ class LockstepPacing:
                     if (self.monitor is not None and not self.monitor.may_run()
                             and not await self.monitor.hold(stop)):
                         break  # stopped while paused (the controller waits for y_k)
-                    start = self.clock.now_ns()
-                    period = self._take_command(k) or self.period_us
-                    self._step(period)
-                    self.stats.record(0, self.clock.now_ns() - start, period * 1000)
+                    self._run_frame(k)
                 if self.link.take_damaged():  # seen with this batch: say so in y_(k+1)
                     self._flags |= FLAG_FRAMING
                 self._send_measurement(self.frame)
@@ -153,9 +150,11 @@ class LockstepPacing:
         Frame k acts on the command answering y_(k-d), d >= 1, which is here: so it can
         run before the answer to y_k arrives, and the rig's work overlaps the
         controller's. What the board sees is unchanged: y_(k+1) goes out only after the
-        answer to y_k (its flags include what frame k saw), and a repeat of y_k carries
-        y_k. Only in the plain case: a command of its own for frame k (no hold, no
-        watchdog), no faults (their telegram drops draw in the order of the frames), not
+        answer to y_k, a repeat of y_k carries y_k, and answers read meanwhile are told
+        as if frame k had not run (Rig._receive). Only in the plain case: a command of
+        its own for frame k (no hold, no watchdog; nor a stale answer to expire, as
+        none older than y_(k-d) is ever accepted: so the frame raises no flag for
+        y_(k+1)), no faults (their telegram drops draw in the order of the frames), not
         paused, not the last frame asked for; otherwise frame k runs when the answer to
         y_k is in, as before. Runs are the same bit for bit either way."""
         k = self.frame
@@ -167,14 +166,16 @@ class LockstepPacing:
                 or (self.monitor is not None and not self.monitor.may_run())):
             return
         np.copyto(self._y_out, self._y)  # y_k, for a repeat while frame k has run
-        flags, self._flags = self._flags, 0
         self._used_before_ahead, self._ran_ahead = self._last_used, True
+        self._run_frame(k)
+        self.frames_ahead += 1
+
+    def _run_frame(self, k: int) -> None:
+        """Frame k on its command, timed."""
         start = self.clock.now_ns()
         period = self._take_command(k) or self.period_us
         self._step(period)
         self.stats.record(0, self.clock.now_ns() - start, period * 1000)
-        self._ahead_flags, self._flags = self._flags, flags
-        self.frames_ahead += 1
 
     async def _wait_link(self, timeout_s: float, stop: asyncio.Event | None) -> bool:
         """Wait for the link up to timeout_s; False when the time ran out or stop was
