@@ -27,6 +27,7 @@ import time
 from pathlib import Path
 from typing import Any
 
+from emulator.controller.process import stop_controller
 from emulator.link import open_link
 from emulator.plant.params import TrainsetParams
 from emulator.rig.clock import MonotonicClock
@@ -131,11 +132,7 @@ def serial_ber_benchmark(params: TrainsetParams, profile: Path, bers: list[float
                     time.sleep(3.0 if board else 8.0)
                 run = asyncio.run(run_over_cable(params, cable.rig, mode, seconds))
             finally:
-                child.terminate()
-                try:
-                    child.wait(timeout=10)
-                except subprocess.TimeoutExpired:
-                    child.kill()
+                stop_controller(child)
         rep = run["report"]
         link = rep["link"]
         framing = rep["transport"]["framing"]

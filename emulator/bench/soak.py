@@ -106,7 +106,7 @@ async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool,
     where = Path(tempfile.mkdtemp(prefix="railrig-soak-"))
     board = None
     if controller == "process":  # as a board: the reference controller over UDP
-        from emulator.controller.process import spawn_controller
+        from emulator.controller.process import spawn_controller, stop_controller
 
         url, board = spawn_controller(profile, quiet=True)
         link = open_link(url)
@@ -168,8 +168,7 @@ async def _soak(profile: Path, minutes: float, sample_s: float, pty: bool,
         probe.send_signal(signal.SIGTERM)
         out, _ = probe.communicate(timeout=10)
         if board is not None:
-            board.terminate()
-            board.wait(10)
+            stop_controller(board)
         monitor.close()
         link.close()
         rig.clock.close()

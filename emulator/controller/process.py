@@ -78,7 +78,8 @@ async def _wait_or_stop(link, timeout_s: float, stop: asyncio.Event | None) -> b
 
 
 def stop_controller(child: subprocess.Popen, timeout_s: float = 10.0) -> None:
-    """End a controller started by spawn_controller (SIGTERM, then kill)."""
+    """End a controller's process (spawn_controller's, or a board's command line):
+    SIGTERM, then kill."""
     if child.poll() is None:
         child.terminate()
     try:

@@ -163,13 +163,12 @@ class Rig(LockstepPacing, RecordsFrames):
         self._sent_frame = k
         self._flags = 0
 
-    def _receive(self, payloads: list[bytes], k: int | None = None) -> None:
-        """Decode telegrams; keep valid answers by the sequence number they answer.
-        ``k``: the last measurement out (lockstep: frame k may have run ahead)."""
-        k = self.frame if k is None else k
-        # frame k ran ahead: classify as if it had not (its command is still 'waiting')
-        ahead = self._ran_ahead and self.frame == k + 1
-        last_used = self._used_before_ahead if ahead else self._last_used
+    def _receive(self, payloads: list[bytes]) -> None:
+        """Decode telegrams; keep valid answers by the sequence number they answer."""
+        # k: the last measurement out; when frame k ran ahead (lockstep.py) self.frame is
+        # k + 1 and the answers are told as if it had not (its command still waiting)
+        k = self.frame - 1 if self._ran_ahead else self.frame
+        last_used = self._used_before_ahead if self._ran_ahead else self._last_used
         for payload in payloads:
             if self.faults is not None and self.faults.drop():
                 self.health.rejected["fault_dropped"] += 1

@@ -93,7 +93,7 @@ class LockstepPacing:
                 k = self._sent_frame  # (self.frame is k + 1 when frame k ran ahead)
                 rejected = self.health.rejected.total()
                 dropped_by_fault = self.health.rejected["fault_dropped"]
-                self._receive([payload], k)
+                self._receive([payload])
                 if self._repeat_asked:
                     self._repeat_asked, repeat = False, "request"
                     continue
