@@ -107,6 +107,7 @@ async def run_over_cable(params: TrainsetParams, device: str, mode: str,
             asyncio.get_running_loop().call_later(seconds, stop.set)
         await rig.run(frames=None if frames is None else frame0 + frames, stop=stop)
         wall = time.perf_counter() - t0
+        await _read_what_is_in_flight(link)
     finally:
         link.close()
         rig.clock.close()
@@ -117,6 +118,24 @@ async def run_over_cable(params: TrainsetParams, device: str, mode: str,
     return {"frames": frames, "wall_s": wall,
             "realtime_factor": frames * rig.period_us * 1e-6 / wall,
             "held": rig.health.missing - held0, "report": report}
+
+
+async def _read_what_is_in_flight(link, quiet_s: float = 0.2, longest_s: float = 3.0) -> None:
+    """Go on reading after the run until the line has been quiet for ``quiet_s`` (at
+    most ``longest_s``), so that the rig's framing counters hold every frame the cable
+    delivered: the answers in flight at the stop, and in real time a busy board's
+    backlog (it answers measurements it had queued after the rig stopped sending). The
+    frames read are counted, not used."""
+    stats = link.stats.framing
+    loop = asyncio.get_running_loop()
+    deadline = loop.time() + longest_s
+    seen = (-1, -1)
+    while loop.time() < deadline:
+        now = (stats.frames + stats.dropped, stats.discarded_bytes)
+        if now == seen:
+            return
+        seen = now
+        await asyncio.sleep(quiet_s)
 
 
 def serial_ber_benchmark(params: TrainsetParams, profile: Path, bers: list[float],
