@@ -102,8 +102,3 @@ def pytest_configure(config: pytest.Config) -> None:
             print(f"compiling {what} for the test workers failed: {tail[0]}")
     print(f"compiled the kernels for the test workers in {time.monotonic() - t0:.0f} s")
 
-
-def pytest_collection_modifyitems(items: list[pytest.Item]) -> None:
-    """The long tests first: the workers then share the short ones out at the end and
-    finish together, rather than one running a long test alone."""
-    items.sort(key=lambda item: item.get_closest_marker("long") is None)
