@@ -145,6 +145,7 @@ from .period_parts import (
     encoder_update,
     fill,
     gear_efficiency,
+    is_line_live,
     judge,
     link_power,
     link_reset,
@@ -214,7 +215,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         recent[ri] = abs(y[x[X_LINE_V]])
         g[G_RECENT_I] = (ri + 1) % recent.shape[0]
         amplitude = g[G_PLL_AMPLITUDE]
-        live = 0.7 * peak < amplitude < 1.3 * peak and recent.max() > 0.5 * peak
+        live = is_line_live(y[x[X_LINE_V]], theta, amplitude, recent.max(), peak,
+                         k[K_U_MIN2] * SQRT2)
         g[G_LINE_LIVE_S] = g[G_LINE_LIVE_S] + period_s if live else 0.0
         breaker, precharge, line_contactor = sequence_step(
             g, k, y[x[X_BREAKER]] > 0.5, pre, line, u_link_min, neutral,

@@ -23,6 +23,7 @@ import math
 import numba as nb
 
 from . import vector_kernel as vk
+from .pll import LIVE_CEILING, LIVE_FLOOR_OF_U_MIN2, LOCK_RESIDUAL, QUARTER_FLOOR
 
 compiled = nb.njit(cache=True, error_model="numpy")
 
@@ -133,6 +134,16 @@ def pll_update(g, k, v):
     theta_now = g[G_PLL_THETA] - w * T / 2
     g[G_PLL_THETA] = (g[G_PLL_THETA] + g[G_PLL_W] * T) % TWO_PI
     return theta_now % TWO_PI
+
+
+# --- pll.is_line_live ------------------------------------------------------------------------
+@compiled
+def is_line_live(v, theta, amplitude, recent_max, nominal_peak, u_min2_peak):
+    """Whether v is a live line the PLL is locked to (pll.is_line_live)."""
+    floor = LIVE_FLOOR_OF_U_MIN2 * u_min2_peak
+    return (floor < amplitude < LIVE_CEILING * nominal_peak
+            and recent_max > QUARTER_FLOOR * floor
+            and abs(v - amplitude * math.sin(theta)) < LOCK_RESIDUAL * amplitude)
 
 
 # --- sequence.SwitchOnSequence ----------------------------------------------------------

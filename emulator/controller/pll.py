@@ -78,3 +78,38 @@ class SogiPll:
     def frequency_hz(self) -> float:
         """Tracked frequency, Hz."""
         return self.w / (2 * math.pi)
+
+
+# --- is the line live, and the PLL locked to it? ----------------------------------------
+#: the amplitude's floor, of U_min2's peak (EN 50163: the lowest non-permanent voltage,
+#: 17.5 kV on 25 kV, 11 kV on 15 kV). A train must be able to run on a line at U_min2
+#: (our reading: the standard specifies the supply; EN 50388 has the train's current
+#: limited towards it): the margin is for the drop that the train's own current makes
+#: across the supply's impedance, which pulls the pantograph under the line's voltage
+LIVE_FLOOR_OF_U_MIN2 = 0.8
+#: the amplitude's ceiling, of the nominal peak (U_max2 is 1.16 pu on 25 kV, 1.2 on 15 kV)
+LIVE_CEILING = 1.3
+#: the largest sample of the last quarter period, of the amplitude's floor: a quarter
+#: period sampled at 1 kHz and 50 Hz spans 72 degrees between its first and last sample,
+#: so a sine's largest sample there is at least sin 36 deg = 0.59 of its peak
+QUARTER_FLOOR = 0.5
+#: the lock monitor: a sample further than this (of the amplitude) from the tracked
+#: sine A sin(theta) is not the line the PLL follows. A dead line shows once the tracked
+#: sine is 36.9 degrees (asin 0.6) from its zero: at worst 73.7 degrees after the loss
+#: (4 ms at 50 Hz, 12 ms at 16.7 Hz; 0-1 ms in the median over the phase it is lost
+#: at), a phase jump of 90 degrees or more as soon; a step down to U_min2 (at most
+#: 0.3 A off while the amplitude follows) does not (tests/controller/test_pll.py)
+LOCK_RESIDUAL = 0.6
+
+
+def is_line_live(v: float, theta: float, amplitude: float, recent_max: float,
+              nominal_peak: float, u_min2_peak: float) -> bool:
+    """Whether the sample v is a live line the PLL is locked to: the amplitude between
+    LIVE_FLOOR_OF_U_MIN2 x U_min2 and LIVE_CEILING x nominal (peaks), the last quarter
+    period's largest |sample| (recent_max) above QUARTER_FLOOR of that floor, and
+    |v - A sin(theta)| within LOCK_RESIDUAL x A (theta and A for the sample's instant,
+    as SogiPll.update gives them)."""
+    floor = LIVE_FLOOR_OF_U_MIN2 * u_min2_peak
+    return (floor < amplitude < LIVE_CEILING * nominal_peak
+            and recent_max > QUARTER_FLOOR * floor
+            and abs(v - amplitude * math.sin(theta)) < LOCK_RESIDUAL * amplitude)

@@ -33,7 +33,7 @@ from .inverter_guard import InverterGuards
 from .line_converter import LinkControl, chopper_duty, power_limits
 from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
-from .pll import SogiPll
+from .pll import SogiPll, is_line_live
 from .sequence import RUNNING, SwitchOnSequence
 from .speed_plausibility import SpeedPlausibility
 
@@ -231,12 +231,13 @@ class ReferenceController:
             # release the line converters only after the PLL has tracked a live line for
             # LOCK_S (after a neutral section or an interruption its phase is stale)
             peak = cfg.line_nominal_v * math.sqrt(2)
-            # a quarter period of a live sine always reaches 0.71 of its peak: a dead line
-            # is seen within 5 ms (50 Hz), far sooner than the PLL's amplitude falls
+            # live down to U_min2, and the PLL locked to it (pll.is_line_live): a dead line
+            # or a lost lock is seen within a few samples, far sooner than the PLL's
+            # amplitude falls
             self._recent[self._recent_i] = abs(y[self.ix_line_v])
             self._recent_i = (self._recent_i + 1) % len(self._recent)
-            live = (0.7 * peak < self.pll.amplitude < 1.3 * peak
-                    and max(self._recent) > 0.5 * peak)
+            live = is_line_live(y[self.ix_line_v], theta, self.pll.amplitude, max(self._recent),
+                             peak, cfg.line_u_min2_v * math.sqrt(2))
             self.line_live_s = self.line_live_s + period_s if live else 0.0
             sw = self.sequence.step(y[self.ix_breaker] > 0.5, pre, line, u_link_min, neutral,
                                     enabled=True, line_locked=self.line_live_s >= LOCK_S)

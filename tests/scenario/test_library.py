@@ -98,9 +98,10 @@ def test_broken_adhesion_control_fails_the_wet_rail_start() -> None:
     assert not run.passed
 
 
-def _run_variant(text: str):
+def _run_variant(text: str, twin: Twin | None = None):
     """Run a variant of the shipped dip-and-interruption scenario (its text changed) on
-    its 25 kV trainset: (the run, the reference controller that answered it)."""
+    its 25 kV trainset: (the run, the reference controller that answered it); with
+    ``twin``, its plain-Python description beside it."""
     import tempfile
 
     seen = {}
@@ -109,7 +110,8 @@ def _run_variant(text: str):
         path.write_text(text, encoding="utf-8")
         trainset = (LIBRARY[0].parent / "../trainsets/tern-25kv.toml").resolve()
         run = asyncio.run(run_scenario(load_scenario(path, trainset=trainset),
-                                       tune=lambda tcu: seen.update(tcu=tcu)))
+                                       tune=lambda tcu: (seen.update(tcu=tcu),
+                                                         twin and twin.install(tcu))))
     return run, seen["tcu"]
 
 
@@ -142,6 +144,34 @@ def test_a_longer_interruption_at_speed_is_ridden_through(until_s: float) -> Non
     assert rec.data[np.ix_(during, links)].min() > 0.5 * 1800.0
     assert verdicts["DC links stay within 900..2140 V"].passed
     assert verdicts["the train keeps accelerating: 100 km/h by 25 s"].passed
+
+
+def test_a_dip_to_u_min2_keeps_the_line_converters_running() -> None:
+    """The shipped scenario's dip made 0.72 pu (18 kV: above EN 50163's U_min2 of 17.5 kV,
+    in which a train runs, its current limited towards U_min2 by EN 50388; REFERENCES.md),
+    at 80-90 km/h under traction: the line converters keep their gates released through
+    the whole dip (the train's own current pulls the pantograph under U_min2), and
+    nothing trips. Before the live-line test took U_min2 into account, they stopped for
+    the whole dip: its floor was 0.7 of the nominal peak."""
+    from emulator.protocol import events
+
+    source = LIBRARY[0].parent / "catenary-dip-interruption.toml"
+    text = source.read_text(encoding="utf-8")
+    assert "voltage_pu = 0.8" in text and "at_s = 8.0\nuntil_s = 11.0" in text
+    twin = Twin()  # the plain-Python description takes the same path, bit for bit
+    run, tcu = _run_variant(text.replace("voltage_pu = 0.8", "voltage_pu = 0.72")
+                            .replace("duration_s = 30.0", "duration_s = 12.0"), twin)
+    twin.assert_identical(at_least=len(run.recording.data) - 1)
+    assert not set(tcu.events) & events.TRIPS, dict(tcu.events)
+    rec = run.recording
+    t = rec.column("time_s")
+    during = (t > 8.0) & (t < 11.0)
+    gates = [c for c in rec.columns if c.startswith("u.LC-") and c.endswith("gates_enabled")]
+    assert len(gates) == 4
+    assert rec.data[np.ix_(during, [rec.columns.index(c) for c in gates])].all()
+    verdicts = {r.spec.name: r for r in run.results}
+    assert verdicts["no protective trip"].passed
+    assert verdicts["DC links stay within 900..2140 V"].passed
 
 
 @pytest.mark.parametrize("kmh", [1.5, pytest.param(12.0, marks=pytest.mark.xfail(
