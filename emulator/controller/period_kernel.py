@@ -23,6 +23,7 @@ from .period_parts import (
     G_ACHIEVED,
     G_ADH_HAS_V_REF,
     G_AVAILABLE,
+    G_DEAD_SAMPLES,
     G_EFFORT,
     G_EVENT,
     G_LINE_LIVE_S,
@@ -142,10 +143,10 @@ from .period_parts import (
     XM_TEMPERATURE,
     adhesion_step,
     chopper_duty,
+    dead_samples,
     encoder_update,
     fill,
     gear_efficiency,
-    is_line_live,
     judge,
     link_power,
     link_reset,
@@ -158,6 +159,7 @@ from .period_parts import (
     sequence_trip,
     vector_reset,
 )
+from .pll import DEAD_SAMPLES
 
 compiled = nb.njit(cache=True, error_model="numpy")
 
@@ -215,8 +217,9 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         recent[ri] = abs(y[x[X_LINE_V]])
         g[G_RECENT_I] = (ri + 1) % recent.shape[0]
         amplitude = g[G_PLL_AMPLITUDE]
-        live = is_line_live(y[x[X_LINE_V]], theta, amplitude, recent.max(), peak,
-                         k[K_U_MIN2] * SQRT2)
+        g[G_DEAD_SAMPLES] = dead_samples(y[x[X_LINE_V]], theta, amplitude, recent.max(),
+                                         peak, k[K_U_MIN2] * SQRT2, g[G_DEAD_SAMPLES])
+        live = g[G_DEAD_SAMPLES] < DEAD_SAMPLES
         g[G_LINE_LIVE_S] = g[G_LINE_LIVE_S] + period_s if live else 0.0
         breaker, precharge, line_contactor = sequence_step(
             g, k, y[x[X_BREAKER]] > 0.5, pre, line, u_link_min, neutral,

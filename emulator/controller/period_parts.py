@@ -35,7 +35,7 @@ SQRT2 = math.sqrt(2)
 (G_T, G_EVENT, G_EFFORT, G_SPEED_INTEGRAL, G_LINE_LIVE_S, G_LINE_RMS_F, G_ACHIEVED,
  G_AVAILABLE, G_RECENT_I, G_PLL_W, G_PLL_THETA, G_PLL_VA, G_PLL_VB, G_PLL_AMPLITUDE,
  G_PLL_INTEGRAL, G_SEQ_STATE, G_SEQ_TIMER, G_SEQ_RETRIES, G_SEQ_REASON, G_ADH_V_REF,
- G_ADH_HAS_V_REF, G_ADH_ENABLED, G_TRIP_NOW, N_G) = range(24)
+ G_ADH_HAS_V_REF, G_ADH_ENABLED, G_TRIP_NOW, G_DEAD_SAMPLES, N_G) = range(25)
 # the constants
 (K_PERIOD, K_LINE_SIDE, K_VECTOR, K_LINE_NOMINAL, K_U_MIN2, K_U_MIN1, K_U_MAX1, K_U_MAX2,
  K_TRANSFORMER_RATIO, K_LINK_NOMINAL, K_P_CHOP, K_MASS, K_MAX_SPEED, K_WHEEL_R, K_GEAR,
@@ -136,14 +136,17 @@ def pll_update(g, k, v):
     return theta_now % TWO_PI
 
 
-# --- pll.is_line_live ------------------------------------------------------------------------
+# --- pll.dead_samples ---------------------------------------------------------------------
 @compiled
-def is_line_live(v, theta, amplitude, recent_max, nominal_peak, u_min2_peak):
-    """Whether v is a live line the PLL is locked to (pll.is_line_live)."""
+def dead_samples(v, theta, amplitude, recent_max, nominal_peak, u_min2_peak, run):
+    """Samples in a row that do not look like a live, locked line (pll.dead_samples)."""
     floor = LIVE_FLOOR_OF_U_MIN2 * u_min2_peak
-    return (floor < amplitude < LIVE_CEILING * nominal_peak
-            and recent_max > QUARTER_FLOOR * floor
-            and abs(v - amplitude * math.sin(theta)) < LOCK_RESIDUAL * amplitude)
+    s = math.sin(theta)
+    short = amplitude * abs(s) - (v if s >= 0.0 else -v)
+    looks_live = (floor < amplitude < LIVE_CEILING * nominal_peak
+                  and recent_max > QUARTER_FLOOR * floor
+                  and short <= LOCK_RESIDUAL * amplitude)
+    return 0.0 if looks_live else run + 1.0
 
 
 # --- sequence.SwitchOnSequence ----------------------------------------------------------

@@ -93,23 +93,37 @@ LIVE_CEILING = 1.3
 #: period sampled at 1 kHz and 50 Hz spans 72 degrees between its first and last sample,
 #: so a sine's largest sample there is at least sin 36 deg = 0.59 of its peak
 QUARTER_FLOOR = 0.5
-#: the lock monitor: a sample further than this (of the amplitude) from the tracked
-#: sine A sin(theta) is not the line the PLL follows. A dead line shows once the tracked
-#: sine is 36.9 degrees (asin 0.6) from its zero: at worst 73.7 degrees after the loss
-#: (4 ms at 50 Hz, 12 ms at 16.7 Hz; 0-1 ms in the median over the phase it is lost
-#: at), a phase jump of 90 degrees or more as soon; a step down to U_min2 (at most
-#: 0.3 A off while the amplitude follows) does not (tests/controller/test_pll.py)
+#: the lock monitor: a sample that falls short of the tracked sine A sin(theta) (towards
+#: zero or past it) by more than this, of A, is not the line the PLL follows. Only the
+#: shortfall counts: a line that comes back higher than the PLL's amplitude (a recovery
+#: from a dip) is the same line. A dead line falls short by A |sin theta|: past the
+#: limit once the tracked sine is asin 0.6 = 36.9 degrees from its zero, so at worst
+#: 73.7 degrees after the loss (plus DEAD_SAMPLES - 1 samples: 5 ms at 50 Hz, 14 ms at
+#: 16.7 Hz), at once for about half the instants; a phase jump phi by up to
+#: 2 A sin(phi / 2): never for phi below 2 asin 0.3 = 34.9 degrees (the PLL follows
+#: those), within half a period for 90 degrees and more, and between the two it depends
+#: on the instant (tests/controller/test_pll.py)
 LOCK_RESIDUAL = 0.6
+#: samples in a row that do not look like the live line the PLL follows before the
+#: line counts as dead or the lock as lost: one outlier (a glitch on the voltage channel,
+#: which can also throw the SOGI's amplitude for a sample) does not stop the line
+#: converters for LOCK_S
+DEAD_SAMPLES = 2
 
 
-def is_line_live(v: float, theta: float, amplitude: float, recent_max: float,
-              nominal_peak: float, u_min2_peak: float) -> bool:
-    """Whether the sample v is a live line the PLL is locked to: the amplitude between
-    LIVE_FLOOR_OF_U_MIN2 x U_min2 and LIVE_CEILING x nominal (peaks), the last quarter
-    period's largest |sample| (recent_max) above QUARTER_FLOOR of that floor, and
-    |v - A sin(theta)| within LOCK_RESIDUAL x A (theta and A for the sample's instant,
-    as SogiPll.update gives them)."""
+def dead_samples(v: float, theta: float, amplitude: float, recent_max: float,
+                 nominal_peak: float, u_min2_peak: float, run: float) -> float:
+    """The samples in a row, this one (v) included, that do not look like a live line
+    the PLL is locked to: run + 1, or 0 when v does. It does when the amplitude is
+    between LIVE_FLOOR_OF_U_MIN2 x U_min2 and LIVE_CEILING x nominal (peaks), the last
+    quarter period's largest |sample| (recent_max) is above QUARTER_FLOOR of that floor,
+    and v falls short of the tracked sine A sin(theta) by at most LOCK_RESIDUAL x A
+    (theta and A for the sample's instant, as SogiPll.update gives them). The line is
+    live while the run is under DEAD_SAMPLES."""
     floor = LIVE_FLOOR_OF_U_MIN2 * u_min2_peak
-    return (floor < amplitude < LIVE_CEILING * nominal_peak
-            and recent_max > QUARTER_FLOOR * floor
-            and abs(v - amplitude * math.sin(theta)) < LOCK_RESIDUAL * amplitude)
+    s = math.sin(theta)
+    short = amplitude * abs(s) - (v if s >= 0.0 else -v)
+    looks_live = (floor < amplitude < LIVE_CEILING * nominal_peak
+                  and recent_max > QUARTER_FLOOR * floor
+                  and short <= LOCK_RESIDUAL * amplitude)
+    return 0.0 if looks_live else run + 1.0

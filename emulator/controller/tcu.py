@@ -33,7 +33,7 @@ from .inverter_guard import InverterGuards
 from .line_converter import LinkControl, chopper_duty, power_limits
 from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
-from .pll import SogiPll, is_line_live
+from .pll import DEAD_SAMPLES, SogiPll, dead_samples
 from .sequence import RUNNING, SwitchOnSequence
 from .speed_plausibility import SpeedPlausibility
 
@@ -95,6 +95,7 @@ class ReferenceController:
         self.line_rms_f = cfg.line_nominal_v
         self._recent = [0.0] * max(round(1 / (4 * cfg.line_frequency_hz * T)), 1)
         self._recent_i = 0
+        self._dead_samples = 0.0  # samples in a row not like a live line (pll.dead_samples)
         self.inverters_on_link = [max(cfg.inverter_links.count(i), 1)
                                   for i in range(len(cfg.link_names))]
         self.flux_decay_s = rt.flux_decay_s(cfg)
@@ -231,13 +232,16 @@ class ReferenceController:
             # release the line converters only after the PLL has tracked a live line for
             # LOCK_S (after a neutral section or an interruption its phase is stale)
             peak = cfg.line_nominal_v * math.sqrt(2)
-            # live down to U_min2, and the PLL locked to it (pll.is_line_live): a dead line
-            # or a lost lock is seen within a few samples, far sooner than the PLL's
-            # amplitude falls
+            # live down to U_min2, and the PLL locked to it (pll.dead_samples): a dead line
+            # or a lost lock is seen within a fifth of a period at worst, far sooner than
+            # the PLL's amplitude falls
             self._recent[self._recent_i] = abs(y[self.ix_line_v])
             self._recent_i = (self._recent_i + 1) % len(self._recent)
-            live = is_line_live(y[self.ix_line_v], theta, self.pll.amplitude, max(self._recent),
-                             peak, cfg.line_u_min2_v * math.sqrt(2))
+            self._dead_samples = dead_samples(y[self.ix_line_v], theta, self.pll.amplitude,
+                                              max(self._recent), peak,
+                                              cfg.line_u_min2_v * math.sqrt(2),
+                                              self._dead_samples)
+            live = self._dead_samples < DEAD_SAMPLES
             self.line_live_s = self.line_live_s + period_s if live else 0.0
             sw = self.sequence.step(y[self.ix_breaker] > 0.5, pre, line, u_link_min, neutral,
                                     enabled=True, line_locked=self.line_live_s >= LOCK_S)
