@@ -39,7 +39,11 @@ from .speed_plausibility import SpeedPlausibility
 
 # motors and inverters at full power, with margin: what the line converters are rated for
 DRIVE_EFFICIENCY = 0.85
-FLUX_RAMP_S = 0.1  # voltage ramp after releasing the inverter gates (flux build-up)
+#: the V/f drives' voltage ramp after releasing the gates (flux build-up): about half a
+#: rotor time constant (0.62 s on the Tern). At 0.1 s the stator flux was set far faster
+#: than the rotor's could follow, and a start at 12 km/h drew 1.18 kA, a restart there
+#: 1.25 kA, past the 1.2 kA software trip (DEVELOPERS.md, "Found by campaigns")
+FLUX_RAMP_S = 0.3
 LOCK_S = 0.2  # a live line tracked this long before the line converters run
 ROTATING_FACTOR = 1.08  # train mass with its rotating parts, of the mass (1.06-1.12 for
 # multiple units: from memory, REFERENCES.md)

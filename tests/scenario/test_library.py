@@ -176,10 +176,10 @@ def test_a_dip_to_u_min2_keeps_the_line_converters_running() -> None:
     assert verdicts["DC links stay within 900..2140 V"].passed
 
 
-@pytest.mark.parametrize("kmh", [1.5, pytest.param(12.0, marks=pytest.mark.xfail(
-    strict=True, reason="open: below the buffering's 15 km/h the link drains to the drives' "
-    "stop; their restart 3 rotor time constants later, at 11.5 km/h, meets 1260 A and an "
-    "overcurrent trip (DEVELOPERS.md, 'Found by campaigns')"))])
+# 12 km/h: below the buffering's 15 km/h the link drains to the drives' stop; their
+# restart 3 rotor time constants later, at 11.5 km/h, met 1.25 kA and an overcurrent trip
+# while the V/f drives ramped their voltage in 0.1 s (tcu.FLUX_RAMP_S: the inrush)
+@pytest.mark.parametrize("kmh", [1.5, 12.0])
 def test_an_interruption_at_a_crawl_does_not_brake_against_the_driver(kmh: float) -> None:
     """The interruption (3.7 s long) met at a crawl as the traction comes on: there the
     train's motion cannot hold the links (the copper loss of the torque it would take
@@ -216,6 +216,10 @@ def test_an_interruption_at_a_crawl_does_not_brake_against_the_driver(kmh: float
     assert rec.column("p.train.acceleration_mps2")[during].mean() > -0.1
     phases = [rec.columns.index(c) for c in rec.columns if c.startswith("p.inverter.phase")]
     assert np.abs(rec.data[np.ix_(during, phases)]).max() < 1200.0
+    # the start before it and the restart after it (the drives magnetising machines that
+    # turn) keep a quarter's margin below the 1200 A software trip (a margin of our
+    # choosing: common practice, no source)
+    assert np.abs(rec.data[:, phases]).max() < 0.75 * 1200.0
     trips = [rec.columns.index(c) for c in rec.columns
              if c.startswith("p.inverter.hardware_trip")]
     assert not rec.data[:, trips].any()
