@@ -102,9 +102,11 @@ from .period_parts import (
     MOTOR_TEMPERATURE_DERATING,
     OVERSPEED,
     RUNNING,
+    SEQUENCE_TIMEOUT,
     SPEED_SENSOR_FAULT,
     SQRT2,
     TRIP_SLOTS,
+    TRIPPED,
     WHEEL_SLIP,
     X_ACHIEVED_OUT,
     X_AVAILABLE_OUT,
@@ -221,9 +223,12 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                                          peak, k[K_U_MIN2] * SQRT2, g[G_DEAD_SAMPLES])
         live = g[G_DEAD_SAMPLES] < DEAD_SAMPLES
         g[G_LINE_LIVE_S] = g[G_LINE_LIVE_S] + period_s if live else 0.0
+        was_tripped = g[G_SEQ_STATE] == TRIPPED
         breaker, precharge, line_contactor = sequence_step(
             g, k, y[x[X_BREAKER]] > 0.5, pre, line, u_link_min, neutral,
             g[G_LINE_LIVE_S] >= k[K_LOCK_S])
+        if g[G_SEQ_STATE] == TRIPPED and not was_tripped:  # its own timeout
+            raise_event(g, counts, SEQUENCE_TIMEOUT)
         running = g[G_SEQ_STATE] == RUNNING
         out[x[X_BREAKER_OUT]] = 1.0 if breaker else 0.0
         for j in range(xc.shape[0]):

@@ -34,7 +34,7 @@ from .line_converter import LinkControl, chopper_duty, power_limits
 from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
 from .pll import DEAD_SAMPLES, SogiPll, dead_samples
-from .sequence import RUNNING, SwitchOnSequence
+from .sequence import RUNNING, TRIPPED, SwitchOnSequence
 from .speed_plausibility import SpeedPlausibility
 
 # motors and inverters at full power, with margin: what the line converters are rated for
@@ -247,8 +247,11 @@ class ReferenceController:
                                               self._dead_samples)
             live = self._dead_samples < DEAD_SAMPLES
             self.line_live_s = self.line_live_s + period_s if live else 0.0
+            was_tripped = self.sequence.state == TRIPPED
             sw = self.sequence.step(y[self.ix_breaker] > 0.5, pre, line, u_link_min, neutral,
                                     enabled=True, line_locked=self.line_live_s >= LOCK_S)
+            if self.sequence.state == TRIPPED and not was_tripped:  # its own timeout: a
+                self._raise(events.SEQUENCE_TIMEOUT)  # trip the checks must see
             running = self.sequence.state == RUNNING
             out[self.ox_breaker] = float(sw.breaker)
             for i in self.ox_pre:

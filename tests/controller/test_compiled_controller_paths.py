@@ -22,6 +22,7 @@ from emulator.controller.compiled_tcu import CompiledController
 from emulator.controller.config import config_from_params
 from emulator.controller.sequence import TRIPPED
 from emulator.profiles.reader import load_trainset
+from emulator.protocol import events
 from emulator.protocol.signal_map import build_signal_map
 
 from .conftest import TRAINSET
@@ -184,13 +185,21 @@ def test_the_sequence_times_out_retries_and_gives_up() -> None:
                                   line_trip=(9.0, 30.0), quiet_line=True)
     out = np.zeros(len(drive.ci))
     reasons = set()
+    timeout_codes = []  # periods whose event code on the wire is the sequence timeout
     for k in range(18000):
         y = drive.measurements(k * cfg.period_s, out)
         twin.compiled._period(y, 0, cfg.period_s, out)
         reasons.add(twin.plain.sequence.trip_reason)
+        if out[drive.ci["tcu.event_code"]] == events.SEQUENCE_TIMEOUT:
+            timeout_codes.append(k)
     twin.assert_identical(at_least=18000)
     seq = twin.plain.sequence
     assert {1, 61} <= reasons, reasons  # the timeout, then the overcurrent release
+    # the timeout is a trip a scenario's checks must see (not_raised = "trip" reads the
+    # event codes): counted once, and on the wire (the last event's code) from the period
+    # it tripped, 5 s after the first close
+    assert twin.plain.events[events.SEQUENCE_TIMEOUT] == 1
+    assert timeout_codes and 5.0 <= timeout_codes[0] * cfg.period_s <= 5.2, timeout_codes
     assert seq.state == TRIPPED and seq.retries == seq.max_retries + 1, (seq.state,
                                                                          seq.retries)
     assert out[drive.ci["line.breaker_close"]] == 0.0  # and stays open
