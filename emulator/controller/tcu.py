@@ -237,8 +237,8 @@ class ReferenceController:
             # LOCK_S (after a neutral section or an interruption its phase is stale)
             peak = cfg.line_nominal_v * math.sqrt(2)
             # live down to U_min2, and the PLL locked to it (pll.dead_samples): a dead line
-            # or a lost lock is seen within a fifth of a period at worst, far sooner than
-            # the PLL's amplitude falls
+            # is seen within 5 ms at 50 Hz and 14 ms at 16.7 Hz at worst, far sooner
+            # than the PLL's amplitude falls
             self._recent[self._recent_i] = abs(y[self.ix_line_v])
             self._recent_i = (self._recent_i + 1) % len(self._recent)
             self._dead_samples = dead_samples(y[self.ix_line_v], theta, self.pll.amplitude,
@@ -425,6 +425,10 @@ class ReferenceController:
             u_sec_peak = self.pll.amplitude / cfg.transformer_ratio
             for i, link in enumerate(self.links):
                 p_min, p_max = limits[i]  # (0, 0) on a dead line, where they are unused
+                # the link's own losses may always be drawn, whatever the line's limit
+                # for traction (0 at U_min2, EN 50388): the same allowance as the
+                # buffering's, so a line between its live floor and U_min2 holds the link
+                p_max = max(p_max, rt.BUFFER_POWER_FRACTION * self.p_rated_link[i])
                 if running and line_live:
                     i_sec = [y[j] for j in self.ix_isec[i]]
                     mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,
