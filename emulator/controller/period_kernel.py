@@ -47,7 +47,6 @@ from .period_parts import (
     I_LINK,
     I_N_MOTORS,
     I_N_TRIPS,
-    I_QUIET_UNTIL,
     I_RELEASED,
     I_RESTART_AFTER,
     I_TRIP_0,
@@ -356,7 +355,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         held = (row[I_RELEASED] == 0.0 and abs(v) > k[K_MAGNETISED_MPS]
                 and t - row[I_DEMANDED_AT] < k[K_FLUX_HOLD_S])
         active = (running and (demanded or held) and t >= row[I_BLOCK_UNTIL]
-                  and u_d > u_stop and row[I_UNDERVOLTED] == 0.0 and t >= row[I_QUIET_UNTIL]
+                  and u_d > u_stop and row[I_UNDERVOLTED] == 0.0
                   and (effort != 0.0 or mode == 2 or abs(v) > k[K_MAGNETISED_MPS]))
         torque = direction * torque_motor * row[I_FACTOR]
         motor_speed = 0.0
@@ -421,9 +420,6 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             p_links[link] += given * motor_speed * n_m
             achieved += estimate * n_m
         else:
-            if (row[I_ENABLED_FOR] > 0.0 and not demanded and not held
-                    and abs(v) > k[K_MAGNETISED_MPS]):  # let go at speed: magnetised
-                row[I_QUIET_UNTIL] = t + k[K_FLUX_DECAY_S]
             row[I_ENABLED_FOR] = 0.0
             row[I_RELEASED] = 0.0 if demanded else 1.0
             if k[K_VECTOR] > 0.0:

@@ -106,11 +106,6 @@ class ReferenceController:
         self.guards = InverterGuards(n_inv, self.flux_decay_s)
         self.demanded_at = [-math.inf] * n_inv
         self.released = [False] * n_inv  # off since the demand ended (see the gates below)
-        #: a drive let go at speed (its flux hold over) starts again only once its rotor
-        #: flux has died away, as after a stop on a low link (ride_through.FLUX_DECAY_TAU):
-        #: traction asked again 0.2-0.5 s after met a machine still magnetised, its
-        #: back-EMF against a control started from zero volts (1.6 kA, hardware trip)
-        self.quiet_until = [0.0] * n_inv
         self.t = 0.0
         self.event = 0
         self._trip_now = False  # a trip was raised in this period
@@ -364,7 +359,7 @@ class ReferenceController:
             held = (not self.released[k] and abs(v) > MAGNETISED_ABOVE_MPS
                     and self.t - self.demanded_at[k] < FLUX_HOLD_S)
             active = (running and (demanded or held) and self.t >= guards.block_until[k]
-                      and link_ok and self.t >= self.quiet_until[k]
+                      and link_ok
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
@@ -411,9 +406,6 @@ class ReferenceController:
                 p_links[link] += given * motor_speed * n_mot
                 achieved += estimate * n_mot
             else:
-                if (self.enabled_for[k] > 0.0 and not demanded and not held
-                        and abs(v) > MAGNETISED_ABOVE_MPS):  # let go at speed: magnetised
-                    self.quiet_until[k] = self.t + self.flux_decay_s
                 self.enabled_for[k] = 0.0
                 self.released[k] = not demanded
                 if self.vector is not None:
