@@ -99,7 +99,7 @@ QUARTER_FLOOR = 0.5
 #: from a dip) is the same line. A dead line falls short by A |sin theta|: past the
 #: limit once the tracked sine is asin 0.6 = 36.9 degrees from its zero, so at worst
 #: 73.7 degrees after the loss (plus DEAD_SAMPLES - 1 samples: 5 ms at 50 Hz, 14 ms at
-#: 16.7 Hz), at once for about half the instants; a phase jump phi by up to
+#: 16.7 Hz), at once for 40-50 % of the instants; a phase jump phi by up to
 #: 2 A sin(phi / 2): never for phi below 2 asin 0.3 = 34.9 degrees (the PLL follows
 #: those), within half a period for 90 degrees and more, and between the two it depends
 #: on the instant (tests/controller/test_pll.py)
