@@ -444,7 +444,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                 chopper = link_step(lnk[i], k, i, xc, y, out, u_applied, u_d, theta,
                                     g[G_PLL_W], u_sec_peak, link_power(k, p_links[i]),
                                     p_lo[i], max(p_hi[i], k[K_BUFFER_POWER]
-                                                 * lnk[i, L_P_RATED]))
+                                                 * lnk[i, L_P_RATED] * line_rms
+                                                 / k[K_LINE_NOMINAL]))
             else:
                 link_reset(lnk[i])
                 for j in range(xc.shape[0]):

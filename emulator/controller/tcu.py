@@ -425,10 +425,12 @@ class ReferenceController:
             u_sec_peak = self.pll.amplitude / cfg.transformer_ratio
             for i, link in enumerate(self.links):
                 p_min, p_max = limits[i]  # (0, 0) on a dead line, where they are unused
-                # the link's own losses may always be drawn, whatever the line's limit
-                # for traction (0 at U_min2, EN 50388): the same allowance as the
-                # buffering's, so a line between its live floor and U_min2 holds the link
-                p_max = max(p_max, rt.BUFFER_POWER_FRACTION * self.p_rated_link[i])
+                # what holds the link may always be drawn, whatever the line's limit for
+                # traction (0 at U_min2, EN 50388), so a line between its live floor and
+                # U_min2 holds the link: the buffering's allowance at nominal voltage,
+                # as a current (scaled with the line's voltage: it falls with it)
+                p_max = max(p_max, rt.BUFFER_POWER_FRACTION * self.p_rated_link[i]
+                            * line_rms / cfg.line_nominal_v)
                 if running and line_live:
                     i_sec = [y[j] for j in self.ix_isec[i]]
                     mods, chopper = link.step(u_links[i], theta, self.pll.w, u_sec_peak, i_sec,

@@ -156,18 +156,19 @@ def test_a_dip_to_u_min2_keeps_the_line_converters_running(trainset: str, pu: fl
     U_min2, its current limited towards U_min2 by EN 50388 (REFERENCES.md): the line
     converters keep their gates released through the dip and the line's return, nothing
     trips, and the links hold: the drives never stop on a low link, and the links stay
-    above 0.75 of their nominal 1800 V, where the drives start to cut traction for a
-    sagging link (our choice of bound). Before, the live-line test took such a line for
-    dead and the line converters stopped for the whole dip; released with no power for
-    the links once the traction limit reached zero at U_min2, they let the links fall to
-    the drives' stop (906 V at 0.65 pu)."""
+    above 0.75 of their nominal 1800 V (our bound: the reference controller's own rule
+    has cut traction entirely for a link that low). Before, the live-line test took such
+    a line for dead and the line converters stopped for the whole dip; released with no
+    power for the links once the traction limit reached zero at U_min2, they let the
+    links fall to the drives' stop (906 V at 0.65 pu)."""
     from emulator.protocol import events
 
     source = LIBRARY[0].parent / "catenary-dip-interruption.toml"
     text = source.read_text(encoding="utf-8")
     assert "voltage_pu = 0.8" in text and "at_s = 8.0\nuntil_s = 11.0" in text
-    # the plain-Python description takes the same path, bit for bit (in one of the cases)
-    twin = Twin() if pu == 0.72 else None
+    # the plain-Python description takes the same path, bit for bit: above U_min2, and
+    # under it, where the links are held by the allowance rather than the traction limit
+    twin = Twin() if pu in (0.72, 0.65) else None
     run, tcu = _run_variant(text.replace("voltage_pu = 0.8", f"voltage_pu = {pu}")
                             .replace("duration_s = 30.0", "duration_s = 12.0"), twin,
                             trainset)
