@@ -35,25 +35,16 @@ from .period_parts import (
     G_SPEED_INTEGRAL,
     G_T,
     G_TRIP_NOW,
-    HARDWARE_TRIP,
-    HARDWARE_TRIP_BIT,
     I_BLOCK_UNTIL,
     I_DEMANDED_AT,
     I_ENABLED_FOR,
     I_FACTOR,
     I_FALLBACK_ANGLE,
     I_FIRST_MOTOR,
-    I_LATCHED,
     I_LINK,
     I_N_MOTORS,
-    I_N_TRIPS,
     I_RELEASED,
-    I_RESTART_AFTER,
-    I_TRIP_0,
-    I_TRIP_1,
-    I_TRIP_2,
     I_UNDERVOLTED,
-    INVERTER_OVERCURRENT,
     K_BUFFER_FULL_MPS,
     K_BUFFER_LINK,
     K_BUFFER_NONE_MPS,
@@ -61,7 +52,6 @@ from .period_parts import (
     K_BUFFER_TORQUE,
     K_DRIVE_EFFICIENCY,
     K_FEEDFORWARD_EFFICIENCY,
-    K_FLUX_DECAY_S,
     K_FLUX_HOLD_S,
     K_FLUX_RAMP_S,
     K_GEAR,
@@ -77,11 +67,8 @@ from .period_parts import (
     K_MAX_SPEED,
     K_N_MOTORS,
     K_P_CHOP,
-    K_RESET_S,
     K_ROTATING_FACTOR,
     K_TRANSFORMER_RATIO,
-    K_TRIP_WINDOW_S,
-    K_TRIPS_TO_ISOLATE,
     K_U_MIN2,
     K_VECTOR,
     K_WHEEL_R,
@@ -91,7 +78,6 @@ from .period_parts import (
     LINE_OVERCURRENT,
     LINE_UNDERVOLTAGE,
     LINK_OVERVOLTAGE,
-    LINK_UNDERVOLTAGE,
     LINK_WATCHDOG,
     M_ANGLE,
     M_DIFFERENCES,
@@ -105,7 +91,6 @@ from .period_parts import (
     SEQUENCE_TIMEOUT,
     SPEED_SENSOR_FAULT,
     SQRT2,
-    TRIP_SLOTS,
     TRIPPED,
     WHEEL_SLIP,
     X_ACHIEVED_OUT,
@@ -149,6 +134,8 @@ from .period_parts import (
     encoder_update,
     fill,
     gear_efficiency,
+    guard_judge,
+    guard_link,
     judge,
     link_power,
     link_reset,
@@ -315,40 +302,13 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         first = int(row[I_FIRST_MOTOR])
         u_d = y[xl[link, XL_VOLTAGE]]
         ia, ib, ic = y[xi[kk, XI_IA]], y[xi[kk, XI_IB]], y[xi[kk, XI_IC]]
-        if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
-            raise_event(g, counts, INVERTER_OVERCURRENT)
-            row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + 0.1)
-        tripped = int(y[xi[kk, XI_GATE_FAULT]]) & HARDWARE_TRIP_BIT
-        if tripped and row[I_LATCHED] == 0.0:
-            raise_event(g, counts, HARDWARE_TRIP)
-            kept = 0  # the trips within the window, then this one (the last three kept)
-            for j in range(int(row[I_N_TRIPS])):
-                if t - row[I_TRIP_0 + j] < k[K_TRIP_WINDOW_S]:
-                    row[I_TRIP_0 + kept] = row[I_TRIP_0 + j]
-                    kept += 1
-            if kept == TRIP_SLOTS:
-                row[I_TRIP_0], row[I_TRIP_1] = row[I_TRIP_1], row[I_TRIP_2]
-                kept = TRIP_SLOTS - 1
-            row[I_TRIP_0 + kept] = t
-            row[I_N_TRIPS] = kept + 1
-            if kept + 1 >= k[K_TRIPS_TO_ISOLATE]:
-                row[I_BLOCK_UNTIL] = math.inf
-            else:
-                row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_RESET_S])
-        row[I_LATCHED] = 1.0 if tripped else 0.0
+        tripped = guard_judge(g, counts, row, k, t, ia, ib, ic, y[xi[kk, XI_GATE_FAULT]])
         out[xi[kk, XI_RESET_OUT]] = (
             1.0 if tripped != 0 and row[I_BLOCK_UNTIL] - t < 3.5 * period_s else 0.0)
         if row[I_FACTOR] < 0.95 and g[G_TRIP_NOW] == 0.0:
             g[G_EVENT] = WHEEL_SLIP
         demanded = mode == 1 or mode == 2 or mode == 4
-        if running and demanded and u_d <= u_stop:
-            raise_event(g, counts, LINK_UNDERVOLTAGE)
-            if row[I_UNDERVOLTED] == 0.0:
-                row[I_UNDERVOLTED] = 1.0
-                row[I_RESTART_AFTER] = t + k[K_FLUX_DECAY_S]
-        elif (row[I_UNDERVOLTED] != 0.0 and u_d > u_restart
-              and t >= row[I_RESTART_AFTER]):
-            row[I_UNDERVOLTED] = 0.0
+        guard_link(g, counts, row, k, t, u_d, running and demanded, u_stop, u_restart)
         if demanded:
             row[I_DEMANDED_AT] = t
             row[I_RELEASED] = 0.0

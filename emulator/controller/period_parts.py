@@ -22,8 +22,8 @@ import math
 
 import numba as nb
 
+from . import pll
 from . import vector_kernel as vk
-from .pll import LIVE_CEILING, LIVE_FLOOR_OF_U_MIN2, LOCK_RESIDUAL, QUARTER_FLOOR
 
 compiled = nb.njit(cache=True, error_model="numpy")
 
@@ -136,17 +136,50 @@ def pll_update(g, k, v):
     return theta_now % TWO_PI
 
 
-# --- pll.dead_samples ---------------------------------------------------------------------
+# --- pll.dead_samples: the plain function itself, compiled (pure arithmetic on numbers)
+dead_samples = compiled(pll.dead_samples)
+
+
+# --- inverter_guard.InverterGuards.judge and .link ----------------------------------------
 @compiled
-def dead_samples(v, theta, amplitude, recent_max, nominal_peak, u_min2_peak, run):
-    """Samples in a row that do not look like a live, locked line (pll.dead_samples)."""
-    floor = LIVE_FLOOR_OF_U_MIN2 * u_min2_peak
-    s = math.sin(theta)
-    short = amplitude * abs(s) - (v if s >= 0.0 else -v)
-    looks_live = (floor < amplitude < LIVE_CEILING * nominal_peak
-                  and recent_max > QUARTER_FLOOR * floor
-                  and short <= LOCK_RESIDUAL * amplitude)
-    return 0.0 if looks_live else run + 1.0
+def guard_judge(g, counts, row, k, t, ia, ib, ic, gate_fault):
+    """InverterGuards.judge on inverter row ``row``; returns its drivers' trip bit."""
+    if max(abs(ia), abs(ib), abs(ic)) > 1200.0:
+        raise_event(g, counts, INVERTER_OVERCURRENT)
+        row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + 0.1)
+    tripped = int(gate_fault) & HARDWARE_TRIP_BIT
+    if tripped and row[I_LATCHED] == 0.0:
+        raise_event(g, counts, HARDWARE_TRIP)
+        kept = 0  # the trips within the window, then this one (the last three kept)
+        for j in range(int(row[I_N_TRIPS])):
+            if t - row[I_TRIP_0 + j] < k[K_TRIP_WINDOW_S]:
+                row[I_TRIP_0 + kept] = row[I_TRIP_0 + j]
+                kept += 1
+        if kept == TRIP_SLOTS:
+            row[I_TRIP_0], row[I_TRIP_1] = row[I_TRIP_1], row[I_TRIP_2]
+            kept = TRIP_SLOTS - 1
+        row[I_TRIP_0 + kept] = t
+        row[I_N_TRIPS] = kept + 1
+        if kept + 1 >= k[K_TRIPS_TO_ISOLATE]:
+            row[I_BLOCK_UNTIL] = math.inf
+        else:
+            row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_RESET_S])
+    row[I_LATCHED] = 1.0 if tripped else 0.0
+    return tripped
+
+
+@compiled
+def guard_link(g, counts, row, k, t, u_d, asked, u_stop, u_restart):
+    """InverterGuards.link's stop on a low link while effort is asked for, and the restart
+    once the link and the rotor flux allow (the caller tests u_d > u_stop itself)."""
+    if asked and u_d <= u_stop:
+        raise_event(g, counts, LINK_UNDERVOLTAGE)
+        if row[I_UNDERVOLTED] == 0.0:
+            row[I_UNDERVOLTED] = 1.0
+            row[I_RESTART_AFTER] = t + k[K_FLUX_DECAY_S]
+    elif (row[I_UNDERVOLTED] != 0.0 and u_d > u_restart
+          and t >= row[I_RESTART_AFTER]):
+        row[I_UNDERVOLTED] = 0.0
 
 
 # --- sequence.SwitchOnSequence ----------------------------------------------------------
