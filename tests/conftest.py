@@ -34,6 +34,32 @@ async def wait_until(predicate, timeout_s: float = 30.0, every_s: float = 0.02,
 # minute of CPU each on the 2-core machine). The controller of the workers compiles them
 # first instead, the plant's side and the controller's period in two processes side by
 # side, so the workers load them from numba's cache (DEVELOPERS.md, "Throughput").
+#
+# Each of the two then runs FRESH_DIGEST's scenario once the other has written its
+# kernels: one run with the plant's and the rig's kernels compiled in its own process
+# (the controller's loaded), one the other way round. Their digests reach the workers in
+# FRESH_DIGESTS_ENV, and tests/scenario/test_determinism.py compares them with a run that
+# loads everything from the cache, instead of compiling everything once more.
+
+#: a 4 s wet start from the scenario library, seed 3: the sha256 of its recording
+FRESH_DIGEST = """
+import asyncio, dataclasses, hashlib, sys
+from emulator.scenario import load_scenario, run_scenario
+scenario = dataclasses.replace(load_scenario(sys.argv[1]), duration_s=4.0)
+run = asyncio.run(run_scenario(scenario, seed=3))
+print(hashlib.sha256(run.recording.data.tobytes()).hexdigest())
+"""
+FRESH_DIGEST_SCENARIO = PROFILES_DIR / "scenarios" / "wet-gradient-start.toml"
+FRESH_DIGESTS_ENV = "RAILRIG_TEST_FRESH_DIGESTS"
+
+# a compile process says "compiled", waits for a line on its input, then (if the line
+# is "digest") prints the digest of FRESH_DIGEST's run
+_THEN_DIGEST = """
+print("compiled", flush=True)
+if sys.stdin.readline().strip() == "digest":
+    sys.argv[1:] = [sys.argv[2]]
+""" + FRESH_DIGEST
+
 _COMPILE = {
     "the plant and the rig": """
 import asyncio, sys, tempfile
@@ -81,24 +107,48 @@ def pytest_configure(config: pytest.Config) -> None:
     workers = getattr(config.option, "numprocesses", None)
     if not isinstance(workers, int) or workers < 2 or _kernels_cached():
         return
+    import contextlib
     import subprocess
     import sys
+    import tempfile
     import time
 
     profile = str(PROFILES_DIR / "trainsets" / "tern-25kv.toml")
     t0 = time.monotonic()
-    jobs = {what: subprocess.Popen([sys.executable, "-c", code, profile],
-                                   stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-            for what, code in _COMPILE.items()}
-    for what, job in jobs.items():
-        try:
-            _, err = job.communicate(timeout=900)
-        except subprocess.TimeoutExpired:
-            job.kill()
-            job.communicate()
-            err = b"timed out"
-        if job.returncode:  # the tests that need it will fail and say why
-            tail = err.decode(errors="replace").strip().splitlines()[-1:] or ["?"]
-            print(f"compiling {what} for the test workers failed: {tail[0]}")
-    print(f"compiled the kernels for the test workers in {time.monotonic() - t0:.0f} s")
+    digests = {}
+    with contextlib.ExitStack() as stack:
+        logs = {what: stack.enter_context(tempfile.TemporaryFile("w+"))  # (a pipe could
+                for what in _COMPILE}                                      # fill up)
+        jobs = {what: subprocess.Popen([sys.executable, "-c", code + _THEN_DIGEST, profile,
+                                        str(FRESH_DIGEST_SCENARIO)],
+                                       stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                       stderr=logs[what], text=True)
+                for what, code in _COMPILE.items()}
+        # both compiled (or failed) before either runs its digest: each run then has the
+        # other side's kernels in the cache
+        compiled = {what: job.stdout.readline().strip() == "compiled"
+                    for what, job in jobs.items()}
+        order = "digest\n" if all(compiled.values()) else "stop\n"
+        for job in jobs.values():  # the two runs side by side
+            with contextlib.suppress(OSError):  # (one that died has no reader)
+                job.stdin.write(order)
+                job.stdin.flush()
+        for what, job in jobs.items():
+            try:
+                out, _ = job.communicate(timeout=900)
+                logs[what].seek(0)
+                err = logs[what].read()
+            except subprocess.TimeoutExpired:
+                job.kill()
+                out, _ = job.communicate()
+                err = "timed out"
+            if job.returncode:  # the tests that need it will fail and say why
+                tail = err.strip().splitlines()[-1:] or ["?"]
+                print(f"compiling {what} for the test workers failed: {tail[0]}")
+            elif out.strip():
+                digests[what] = out.strip()
+    if len(digests) == len(jobs):  # the workers inherit the environment
+        import os
 
+        os.environ[FRESH_DIGESTS_ENV] = ",".join(digests.values())
+    print(f"compiled the kernels for the test workers in {time.monotonic() - t0:.0f} s")
