@@ -10,8 +10,12 @@ crossed the line untouched: more accepted than untouched would be a spoiled tele
 through (the CRC's job to prevent).
 
 The controller is the reference controller (``railrig controller``) by default, or a
-board's command with ``{device}`` for its serial device (the board kit's example:
-``kit/example_controller --serial {device} --baud 921600 --frames 100000000 --quiet``).
+board's command with ``{device}`` for its serial device and ``{fec}`` for the parity
+bytes of forward error correction (the board kit's example: ``kit/example_controller
+--serial {device} --baud 921600 --fec {fec} --frames 100000000 --quiet``). With ``fec``
+the whole sweep is run with forward error correction at both ends (framing.py); the
+figures are then set against the clean cable with it and, when fec 0 is in the same
+run, without it.
 Pseudo-terminals do not limit the baud rate: a real UART adds its bytes' time.
 """
 
@@ -74,25 +78,33 @@ class NoisyCable:
         self._dir.cleanup()
 
 
-def start_controller(profile: Path, device: str, board: str | None) -> subprocess.Popen:
-    """The controller on the board's end: ``board`` with {device}, or the reference."""
+def serial_url(device: str, fec: int = 0) -> str:
+    """The serial link's address on the cable, with forward error correction if fec."""
+    return f"serial://{device}?baud={BAUD}" + (f"&fec={fec}" if fec else "")
+
+
+def start_controller(profile: Path, device: str, board: str | None,
+                     fec: int = 0) -> subprocess.Popen:
+    """The controller on the board's end: ``board`` with {device} and {fec}, or the
+    reference."""
     if board:
-        argv = shlex.split(board.format(device=device))
+        argv = shlex.split(board.format(device=device, fec=fec))
     else:
         argv = [sys.executable, "-m", "emulator.cli", "controller", "--profile",
-                str(profile), "--link", f"serial://{device}?baud={BAUD}",
-                "--idle-timeout", "5"]
+                str(profile), "--link", serial_url(device, fec), "--idle-timeout", "5"]
     return subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
 
 
 async def run_over_cable(params: TrainsetParams, device: str, mode: str,
                          seconds: float | None = None,
-                         frames: int | None = None, setup=None) -> dict[str, Any]:
+                         frames: int | None = None, setup=None,
+                         fec: int = 0) -> dict[str, Any]:
     """The rig on ``device`` for ``seconds`` of wall time or ``frames`` frames (after
     the controller's first answer, in lockstep); its report and the timing.
     ``setup(rig)`` is called before the first frame (tests record through it); a
-    recording started there is closed at the end."""
-    link = open_link(f"serial://{device}?baud={BAUD}")
+    recording started there is closed at the end. ``fec``: forward error correction's
+    parity bytes (0: none; the board must use the same)."""
+    link = open_link(serial_url(device, fec))
     await link.open()
     rig = Rig(params, link, mode=mode, clock=MonotonicClock())
     if setup is not None:
@@ -140,38 +152,53 @@ async def _read_what_is_in_flight(link, quiet_s: float = 0.2, longest_s: float =
 
 def serial_ber_benchmark(params: TrainsetParams, profile: Path, bers: list[float],
                          mode: str = "lockstep", seconds: float = 10.0, seed: int = 1,
-                         board: str | None = None) -> dict[str, Any]:
-    """Figures of each bit error rate, the clean cable first (see the module docstring)."""
+                         board: str | None = None,
+                         fecs: tuple[int, ...] = (0,)) -> dict[str, Any]:
+    """Figures of each bit error rate, the clean cable first, for each forward error
+    correction in fecs (see the module docstring)."""
     rows = []
-    for ber in [0.0, *[b for b in bers if b > 0]]:
-        with NoisyCable(ber, seed) as cable:
-            child = start_controller(profile, cable.board, board)
-            try:
-                if mode == "realtime":  # let the controller come up before the clock runs
-                    time.sleep(3.0 if board else 8.0)
-                run = asyncio.run(run_over_cable(params, cable.rig, mode, seconds))
-            finally:
-                stop_controller(child)
-        rep = run["report"]
-        link = rep["link"]
-        framing = rep["transport"]["framing"]
-        to_rig, to_board = cable.log["to_rig"], cable.log["to_board"]
-        rows.append({
-            "ber": ber, "frames": run["frames"], "wall_s": round(run["wall_s"], 2),
-            "realtime_factor": round(run["realtime_factor"], 2),
-            "spoiled_to_rig": to_rig["spoiled"], "spoiled_to_board": to_board["spoiled"],
-            "frames_to_rig": to_rig["frames"], "clean_to_rig": to_rig["clean"],
-            "rig_good_frames": framing["frames"],
-            "rig_framing_errors": (framing["crc_errors"] + framing["cobs_errors"]
-                                   + framing["runts"] + framing["oversized"]),
-            "rejected": link["rejected"], "accepted": link["accepted"],
-            "held": run["held"], "watchdog_trips": link["watchdog_trips"],
-            "repeats": rep["lockstep_repeat_causes"],
-            "repeat_requests": link["repeat_requests"],
-            "accepted_beyond_clean": max(framing["frames"] - to_rig["clean"], 0),
-        })
-    clean = rows[0]["realtime_factor"] or float("nan")
+    for fec in fecs:
+        for ber in [0.0, *[b for b in bers if b > 0]]:
+            rows.append(_one_rate(params, profile, ber, fec, mode, seconds, seed, board))
+    clean = {row["fec"]: row["realtime_factor"] or float("nan")
+             for row in rows if row["ber"] == 0.0}
     for row in rows:
-        row["factor_vs_clean"] = round(row["realtime_factor"] / clean, 3)
+        row["factor_vs_clean"] = round(row["realtime_factor"] / clean[row["fec"]], 3)
+        if 0 in clean:
+            row["factor_vs_plain_clean"] = round(row["realtime_factor"] / clean[0], 3)
     return {"mode": mode, "seconds_each": seconds, "controller": board or "reference",
             "rows": rows}
+
+
+def _one_rate(params: TrainsetParams, profile: Path, ber: float, fec: int, mode: str,
+              seconds: float, seed: int, board: str | None) -> dict[str, Any]:
+    with NoisyCable(ber, seed) as cable:
+        child = start_controller(profile, cable.board, board, fec)
+        try:
+            if mode == "realtime":  # let the controller come up before the clock runs
+                time.sleep(3.0 if board else 8.0)
+            run = asyncio.run(run_over_cable(params, cable.rig, mode, seconds, fec=fec))
+        finally:
+            stop_controller(child)
+    rep = run["report"]
+    link = rep["link"]
+    framing = rep["transport"]["framing"]
+    to_rig, to_board = cable.log["to_rig"], cable.log["to_board"]
+    mended = framing.get("fec_mended_frames", 0)
+    return {
+        "ber": ber, "fec": fec, "frames": run["frames"], "wall_s": round(run["wall_s"], 2),
+        "realtime_factor": round(run["realtime_factor"], 2),
+        "spoiled_to_rig": to_rig["spoiled"], "spoiled_to_board": to_board["spoiled"],
+        "frames_to_rig": to_rig["frames"], "clean_to_rig": to_rig["clean"],
+        "rig_good_frames": framing["frames"], "fec_mended_to_rig": mended,
+        "rig_framing_errors": (framing["crc_errors"] + framing["cobs_errors"]
+                               + framing["runts"] + framing["oversized"]
+                               + framing.get("fec_failures", 0)),
+        "rejected": link["rejected"], "accepted": link["accepted"],
+        "held": run["held"], "watchdog_trips": link["watchdog_trips"],
+        "repeats": rep["lockstep_repeat_causes"],
+        "repeat_requests": link["repeat_requests"],
+        # frames the rig decoded beyond those that crossed untouched or were mended by
+        # the code: a spoiled frame let through (the CRC's job to prevent)
+        "accepted_beyond_clean": max(framing["frames"] - to_rig["clean"] - mended, 0),
+    }

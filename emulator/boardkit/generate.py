@@ -26,8 +26,8 @@ from emulator.protocol.header import (
 from emulator.protocol.signal_map import HEADER, SignalMap, build_signal_map
 
 #: files copied verbatim from templates/
-TEMPLATES = ("railrig_codec.h", "railrig_codec.c", "example_controller.c", "Makefile",
-             "README.txt")
+TEMPLATES = ("railrig_codec.h", "railrig_codec.c", "railrig_fec.h", "railrig_fec.c",
+             "example_controller.c", "Makefile", "README.txt")
 
 
 class KitError(ValueError):

@@ -33,7 +33,11 @@ def add_arguments(bench: argparse.ArgumentParser) -> None:
                        help="--serial-ber: the rig's timing mode")
     bench.add_argument("--board", default=None, metavar="COMMAND",
                        help="--serial-ber: the controller's command line with {device} for "
-                       "its serial device (default: the reference controller)")
+                       "its serial device and {fec} for --fec (default: the reference "
+                       "controller)")
+    bench.add_argument("--fec", type=int, nargs="+", default=[0], metavar="PARITY",
+                       help="--serial-ber: forward error correction, Reed-Solomon parity "
+                       "bytes per block (0: none; even, 2..64); the sweep is run for each")
     bench.add_argument("--recording", action="store_true",
                        help="recording: MB per second of plant time by channel set, the "
                        "frame loop's cost per frame, real time with and without a "
@@ -154,14 +158,21 @@ def _print_throughput(args: argparse.Namespace, name: str) -> int:
 
 def _print_serial_ber(args: argparse.Namespace, params) -> int:
     from emulator.bench.serial_ber import serial_ber_benchmark
+    from emulator.link.framing import check_fec
     from emulator.profiles.reader import resolve_profile
 
+    try:
+        for fec in args.fec:
+            check_fec(fec)
+    except ValueError as exc:
+        console.print(f"[red]--fec: {exc}[/red]")
+        return 2
     console.print(f"serial link under bit errors: {params.name}, {args.serial_mode}, "
                   f"{args.seconds:g} s at each rate (clean first), pseudo-terminals joined "
                   "by a noisy cable process")
     figures = serial_ber_benchmark(params, resolve_profile(args.profile), args.serial_ber,
                                    mode=args.serial_mode, seconds=args.seconds,
-                                   board=args.board)
+                                   board=args.board, fecs=tuple(args.fec))
     if args.json:
         print(json.dumps(figures))
         return 0
@@ -169,11 +180,17 @@ def _print_serial_ber(args: argparse.Namespace, params) -> int:
                   f"{figures['controller']}, {figures['seconds_each']:g} s each")
     table.add_column("bit error rate")
     for row in figures["rows"]:
-        table.add_column(f"{row['ber']:g}", justify="right")
-    for key in ("frames", "realtime_factor", "factor_vs_clean", "frames_to_rig",
-                "spoiled_to_rig", "spoiled_to_board", "rig_framing_errors", "repeats",
-                "repeat_requests", "held", "watchdog_trips", "rejected",
-                "accepted_beyond_clean"):
+        table.add_column(f"{row['ber']:g}" + (f" fec {row['fec']}" if row["fec"] else ""),
+                         justify="right")
+    keys = ["frames", "realtime_factor", "factor_vs_clean", "frames_to_rig",
+            "spoiled_to_rig", "spoiled_to_board", "rig_framing_errors", "repeats",
+            "repeat_requests", "held", "watchdog_trips", "rejected",
+            "accepted_beyond_clean"]
+    if any(row["fec"] for row in figures["rows"]):
+        if "factor_vs_plain_clean" in figures["rows"][0]:
+            keys.insert(3, "factor_vs_plain_clean")
+        keys.insert(keys.index("rig_framing_errors") + 1, "fec_mended_to_rig")
+    for key in keys:
         table.add_row(key.replace("_", " "), *(
             ", ".join(f"{k} {v}" for k, v in row[key].items()) or "0"
             if isinstance(row[key], dict) else f"{row[key]:g}" for row in figures["rows"]))

@@ -14,7 +14,7 @@ def add_arguments(ctl: argparse.ArgumentParser) -> None:
     """The options of ``railrig controller``."""
     ctl.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     ctl.add_argument("--link", required=True, help="udp://HOST:PORT?peer=HOST:PORT or "
-                     "serial:///dev/ttyX?baud=N")
+                     "serial:///dev/ttyX?baud=N[&fec=P]")
     ctl.add_argument("--allow-remote", action="store_true", help="allow non-loopback UDP")
     ctl.add_argument("--idle-timeout", type=float, default=30.0,
                      help="stop after this many seconds without a telegram")

@@ -26,7 +26,7 @@ def add_arguments(serve: argparse.ArgumentParser) -> None:
     """The options of ``railrig serve``."""
     serve.add_argument("--profile", default=DEFAULT_TRAINSET, help="trainset profile")
     serve.add_argument("--link", default=None,
-                       help="udp://HOST:PORT?peer=HOST:PORT or serial:///dev/ttyX?baud=N "
+                       help="udp://HOST:PORT?peer=HOST:PORT or serial:///dev/ttyX?baud=N[&fec=P] "
                        "(not with --controller reference)")
     serve.add_argument("--controller", choices=("reference",), default=None,
                        help="run the reference controller in this process instead of a link")

@@ -1,4 +1,5 @@
-"""Serial transport through pyserial: COBS + CRC-16 frames, 0x00 delimited (framing.py).
+"""Serial transport through pyserial: COBS + CRC-16 frames, 0x00 delimited, with optional
+Reed-Solomon forward error correction (framing.py).
 
 The port is read from the event loop (``add_reader``) and written without blocking; a
 full output buffer counts a transmit error instead of stalling the frame loop.
@@ -13,11 +14,13 @@ from urllib.parse import SplitResult
 import serial
 
 from .base import Link, LinkError
-from .framing import FrameDecoder, encode_frame
+from .framing import FrameDecoder, check_fec, encode_frame
 
 
 class SerialLink(Link):
-    """``serial:///dev/ttyUSB0?baud=2000000`` (8N1)."""
+    """``serial:///dev/ttyUSB0?baud=2000000`` (8N1); ``&fec=16`` adds forward error
+    correction, 16 Reed-Solomon parity bytes per block of a frame (framing.py; the board
+    must be built or started with the same number)."""
 
     def __init__(self, parts: SplitResult, query: dict[str, str], *,
                  allow_remote: bool = False) -> None:
@@ -30,10 +33,15 @@ class SerialLink(Link):
         if not baud.isdigit() or int(baud) <= 0:
             raise LinkError(f"{url}: baud must be a positive integer, got {baud!r}")
         self.baud = int(baud)
+        fec = query.pop("fec", "0")
+        try:
+            self.fec = check_fec(int(fec) if fec.isdigit() else -1)
+        except ValueError as exc:
+            raise LinkError(f"{url}: {exc}") from None
         if query:
             raise LinkError(f"{url}: unknown option {sorted(query)[0]!r}")
         self._port: serial.Serial | None = None
-        self._decoder = FrameDecoder()
+        self._decoder = FrameDecoder(fec=self.fec)
         self.stats.framing = self._decoder.stats
 
     async def open(self) -> None:
@@ -65,7 +73,7 @@ class SerialLink(Link):
             self.stats.tx_errors += 1
             return
         try:
-            self._port.write(encode_frame(payload))
+            self._port.write(encode_frame(payload, self.fec))
             self.stats.sent += 1
         except (serial.SerialException, OSError):
             self.stats.tx_errors += 1  # includes a full output buffer (write_timeout=0)

@@ -6,6 +6,11 @@
  *   cobs HEX | uncobs HEX | frame HEX | unframe HEX -> "ok HEX" | "err CODE"
  *   crc HEX         -> "ok DECIMAL"
  *   rx HEX          push bytes into one receiver -> "ok HEX,HEX,.. frames crc cobs oversized"
+ *   fec F frame HEX | fec F unframe HEX    FEC frames with F parity bytes a block
+ *                   (unframe -> "ok HEX MENDED"); fec F rx HEX: the receiver set to F
+ *                   (rx alone sets it to 0), its answer with "fec_failures fec_mended"
+ *   rs P HEX        mend a codeword of P parity bytes -> "ok HEX MENDED" | "err CODE"
+ *   parity P HEX    its P parity bytes -> "ok HEX"
  * HEX "-" is no bytes. Built with the sanitizers by the test where the compiler has them.
  * Every input is handed to the codec in a heap block of exactly its length and every
  * output buffer is exactly the capacity passed, so that AddressSanitizer sees a read or
@@ -16,6 +21,7 @@
 #include <string.h>
 
 #include "railrig_codec.h"
+#include "railrig_fec.h"
 
 #define MAX_BYTES 16384
 static char line[4 * MAX_BYTES];
@@ -23,6 +29,7 @@ static uint8_t in[MAX_BYTES];
 static int64_t values[4096];
 static rr_rx rx;
 static long arg_cap; /* "cap N" before a request: its output capacity instead of the default */
+static unsigned arg_fec; /* "fec F" before a request: FEC frames of F parity bytes a block */
 
 static long unhex(const char *s, uint8_t *buf, size_t cap)
 {
@@ -105,10 +112,84 @@ int main(void)
             cmd = strtok(NULL, " \n");
             arg = strtok(NULL, " \n");
         }
+        arg_fec = 0;
+        if (cmd != NULL && strcmp(cmd, "fec") == 0 && arg != NULL) {
+            arg_fec = (unsigned)strtoul(arg, NULL, 10);
+            cmd = strtok(NULL, " \n");
+            arg = strtok(NULL, " \n");
+        }
         if (cmd == NULL) {
             continue;
         }
-        if (strcmp(cmd, "enc") == 0) {
+        if (strcmp(cmd, "rs") == 0 || strcmp(cmd, "parity") == 0) {
+            unsigned n_parity = arg != NULL ? (unsigned)strtoul(arg, NULL, 10) : 0;
+            uint8_t *src;
+            n = unhex(strtok(NULL, " \n"), in, sizeof in);
+            if (n < 0 || n_parity > RR_FEC_MAX || (cmd[0] == 'r' && (n > 255 || n < (long)n_parity))
+                || (cmd[0] == 'p' && (n_parity == 0 || n + (long)n_parity > 255))) {
+                puts("err bad-request");
+                continue;
+            }
+            src = exact(n);
+            if (cmd[0] == 'r') {
+                int rc = rr_rs_correct(src, (size_t)n, n_parity);
+                if (rc < 0) {
+                    printf("err %d\n", rc);
+                } else {
+                    fputs("ok ", stdout);
+                    print_hex(src, n);
+                    printf(" %d\n", rc);
+                }
+            } else {
+                uint8_t par[RR_FEC_MAX];
+                rr_rs_parity(src, (size_t)n, n_parity, par);
+                answer_bytes(par, (int)n_parity);
+            }
+            free(src);
+        } else if (arg_fec && strcmp(cmd, "frame") == 0) {
+            size_t cap;
+            uint8_t *src, *dst;
+            n = unhex(arg, in, sizeof in);
+            if (n < 0) {
+                puts("err bad-request");
+                continue;
+            }
+            cap = arg_cap >= 0 ? (size_t)arg_cap : RR_RX_CAP + 1u;
+            src = exact(n);
+            dst = malloc(cap > 0 ? cap : 1u);
+            if (dst == NULL) {
+                abort();
+            }
+            answer_bytes(dst, rr_fec_frame_encode(src, (size_t)n, arg_fec, dst, cap));
+            free(src);
+            free(dst);
+        } else if (arg_fec && strcmp(cmd, "unframe") == 0) {
+            size_t cap;
+            uint8_t *src, *dst;
+            unsigned mended = 0;
+            int rc;
+            n = unhex(arg, in, sizeof in);
+            if (n < 0) {
+                puts("err bad-request");
+                continue;
+            }
+            cap = arg_cap >= 0 ? (size_t)arg_cap : (size_t)n;
+            src = exact(n);
+            dst = malloc(cap > 0 ? cap : 1u);
+            if (dst == NULL) {
+                abort();
+            }
+            rc = rr_fec_frame_decode(src, (size_t)n, arg_fec, dst, cap, &mended);
+            if (rc < 0) {
+                printf("err %d\n", rc);
+            } else {
+                fputs("ok ", stdout);
+                print_hex(dst, rc);
+                printf(" %u\n", mended);
+            }
+            free(src);
+            free(dst);
+        } else if (strcmp(cmd, "enc") == 0) {
             rr_header h;
             int64_t head[RR_TELEGRAM_HEADER_LEN];
             size_t count = 0;
@@ -175,6 +256,7 @@ int main(void)
             long i;
             int first = 1;
             n = unhex(arg, in, sizeof in);
+            rx.fec = arg_fec;
             fputs("ok ", stdout);
             for (i = 0; i < n; i++) {
                 if (rr_rx_push(&rx, in[i])) {
@@ -188,8 +270,12 @@ int main(void)
             if (first) {
                 fputc('-', stdout);
             }
-            printf(" %lu %lu %lu %lu\n", (unsigned long)rx.frames, (unsigned long)rx.crc_errors,
+            printf(" %lu %lu %lu %lu", (unsigned long)rx.frames, (unsigned long)rx.crc_errors,
                    (unsigned long)rx.cobs_errors, (unsigned long)rx.oversized);
+            if (arg_fec) {
+                printf(" %lu %lu", (unsigned long)rx.fec_failures, (unsigned long)rx.fec_mended);
+            }
+            fputc('\n', stdout);
         } else {
             n = unhex(arg, in, sizeof in);
             if (n < 0) {

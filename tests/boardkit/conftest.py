@@ -70,6 +70,7 @@ def host_harness(kit_dir: Path, tmp_path_factory):
     cc = c_compiler()
     exe = tmp_path_factory.mktemp("harness") / "codec_harness"
     sources = [str(HERE / "codec_harness.c"), str(kit_dir / "railrig_codec.c"),
+               str(kit_dir / "railrig_fec.c"),
                f"-I{kit_dir}", "-o", str(exe)]
     sanitized = subprocess.run([cc, *STRICT, *SANITIZE, *sources],
                                capture_output=True).returncode == 0
@@ -100,7 +101,8 @@ def arm32_harness(kit_dir: Path, tmp_path_factory):
                     "qemu-user)")
     exe = tmp_path_factory.mktemp("harness-arm") / "codec_harness"
     done = subprocess.run([ARM_CC, *STRICT, "-O1", "-static", str(HERE / "codec_harness.c"),
-                           str(kit_dir / "railrig_codec.c"), f"-I{kit_dir}", "-o", str(exe)],
+                           str(kit_dir / "railrig_codec.c"), str(kit_dir / "railrig_fec.c"),
+                           f"-I{kit_dir}", "-o", str(exe)],
                           capture_output=True, text=True)
     assert done.returncode == 0, done.stderr
     h = Harness([QEMU_ARM, str(exe)], sanitized=False)

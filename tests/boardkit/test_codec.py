@@ -149,3 +149,93 @@ def test_longest_payload_is_framed_and_received_and_one_more_is_refused(harness)
     ok, text = harness.ask("rx", _hex(b"\x00" + framed))
     assert ok and text.split()[0] == _hex(payload)
     assert harness.ask("frame", _hex(payload + b"\x01"))[0] is False
+
+
+# ---- forward error correction (railrig_fec.c) against the rig's framing and reedsolo ----
+
+FEC = st.sampled_from([2, 8, 16, 64])
+
+
+def _spoil(frame: bytes, data, most: int) -> bytes:
+    """frame (delimiter included) with up to ``most`` bytes changed, none to 0x00."""
+    out = bytearray(frame)
+    for i in data.draw(st.lists(st.integers(0, len(frame) - 2), max_size=most, unique=True)):
+        out[i] = data.draw(st.integers(1, 255).filter(lambda b, old=out[i]: b != old))
+    return bytes(out)
+
+
+@FAST
+@given(payload=st.binary(max_size=2048), fec=FEC)
+def test_fec_frames_are_the_rigs(harness, payload, fec) -> None:
+    framed = encode_frame(payload, fec)
+    assert harness.ask("fec", str(fec), "frame", _hex(payload)) == (True, _hex(framed))
+    assert harness.ask("cap", str(len(framed)), "fec", str(fec), "frame",
+                       _hex(payload)) == (True, _hex(framed))
+    assert harness.ask("cap", str(len(framed) - 1), "fec", str(fec), "frame",
+                       _hex(payload)) == (False, "-6")
+
+
+@FAST
+@given(payload=st.binary(max_size=700), fec=FEC, data=st.data())
+def test_spoiled_fec_frames_are_mended_or_refused_as_the_rig_does(harness, payload, fec,
+                                                                  data) -> None:
+    frame = _spoil(encode_frame(payload, fec), data, fec)
+    ok, text = harness.ask("fec", str(fec), "unframe", _hex(frame[:-1]))
+    dec = FrameDecoder(fec=fec)
+    theirs = dec.feed(frame)
+    if theirs:
+        assert ok, text
+        got, mended = text.split()
+        assert _bytes(got) == theirs[0] == payload
+        assert int(mended) == dec.stats.fec_mended_bytes
+    else:
+        assert not ok and int(text) in (-7, -8, -9), text  # COBS, CRC or past mending
+
+
+@FAST
+@given(fec=FEC, data=st.data())
+def test_fec_receiver_agrees_with_the_rigs_decoder(harness, fec, data) -> None:
+    # (payloads of a byte or more: the harness writes none and an empty one alike)
+    frames = data.draw(st.lists(st.one_of(
+        st.binary(min_size=1, max_size=400).map(lambda p: encode_frame(p, fec)),
+        st.binary(min_size=1, max_size=400).map(lambda p: encode_frame(p, fec)).flatmap(
+            lambda f: st.just(f).map(lambda g: _spoil(g, data, fec))),
+        st.binary(max_size=100)), max_size=8))
+    stream = b"\x00" + b"".join(frames) + b"\x00"
+    ok, text = harness.ask("fec", str(fec), "rx", _hex(stream))
+    harness.ask("rx", "-")  # the receiver back to plain frames for the other tests
+    dec = FrameDecoder(fec=fec)
+    theirs = dec.feed(stream)
+    assert ok
+    words = text.split()
+    got = [] if words[0] == "-" else [_bytes(x) for x in words[0].split(",")]
+    assert got == theirs
+
+
+@FAST
+@given(data=st.binary(max_size=3000), fec=st.integers(0, 70))
+def test_hostile_bytes_never_crash_the_fec_decoders(harness, data, fec) -> None:
+    ok, text = harness.ask("fec", str(fec), "unframe", _hex(data))
+    assert ok or int(text) < 0
+    if len(data) <= 255 and fec <= 64 and len(data) >= fec:
+        ok, text = harness.ask("rs", str(fec), _hex(data))
+        assert ok or text == "-9"
+
+
+@FAST
+@given(n_parity=st.sampled_from([2, 4, 16, 32, 64]), data=st.data())
+def test_c_reed_solomon_is_reedsolos(harness, n_parity, data) -> None:
+    import numpy as np
+    import reedsolo
+
+    message = data.draw(st.binary(min_size=1, max_size=255 - n_parity))
+    codec = reedsolo.RSCodec(n_parity)
+    word = bytes(codec.encode(message))
+    assert harness.ask("parity", str(n_parity), _hex(message)) == (True, _hex(word[-n_parity:]))
+    spoiled = np.frombuffer(word, dtype=np.uint8).copy()
+    for i in data.draw(st.lists(st.integers(0, len(word) - 1), max_size=n_parity // 2,
+                                unique=True)):
+        spoiled[i] ^= data.draw(st.integers(1, 255))
+    n_wrong = int((spoiled != np.frombuffer(word, dtype=np.uint8)).sum())
+    assert harness.ask("rs", str(n_parity), _hex(spoiled.tobytes())) == (
+        True, f"{_hex(word)} {n_wrong}")

@@ -4,13 +4,16 @@ Sources: RevEng CRC catalogue (CRC-16/CCITT-FALSE, a.k.a. CRC-16/IBM-3740, check
 Cheshire & Baker, "Consistent Overhead Byte Stuffing", IEEE/ACM Trans. Networking 7(2),
 1999, and public conformance vectors (REFERENCES.md). Test layout after pymodbus
 test/framer/test_framer.py: whole, split in two, byte by byte, and a hostile table.
+Forward error correction: the layout of framing.py's text rebuilt with the reedsolo
+package's Reed-Solomon parity, and the mending a code of n parity bytes promises.
 """
 
 from __future__ import annotations
 
 import pytest
+import reedsolo
 from cobs import cobs
-from hypothesis import given
+from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from emulator.link.framing import FrameDecoder, crc16, encode_frame
@@ -159,3 +162,83 @@ def test_fuzz_never_raises_and_good_frames_survive(payloads: list[bytes], noise:
     stream = noise + b"\x00" + b"".join(encode_frame(p) for p in payloads)
     out, _dec = _feed_all([stream[i:i + 7] for i in range(0, len(stream), 7)])
     assert out == payloads
+
+
+# ---- forward error correction (framing.py's module text gives the layout) ----
+
+def fec_frame_by_the_text(payload: bytes, fec: int) -> bytes:
+    """The FEC layout built apart from the code under test: reedsolo's parity of each
+    block of 255 - fec COBS bytes, the parity's bits seven to a byte, top bit set."""
+    coded = cobs.encode(payload + crc16_by_the_catalogue(payload).to_bytes(2, "big"))
+    k = 255 - fec
+    codec = reedsolo.RSCodec(fec)
+    parity = b"".join(bytes(codec.encode(coded[i:i + k]))[-fec:]
+                      for i in range(0, len(coded), k))
+    bits = "".join(f"{b:08b}" for b in parity)
+    bits += "0" * (-len(bits) % 7)
+    groups = bytes(0x80 | int(bits[i:i + 7], 2) for i in range(0, len(bits), 7))
+    return coded + groups + b"\x00"
+
+
+@settings(max_examples=150, deadline=None)
+@given(payload=st.binary(max_size=1200), fec=st.sampled_from([2, 8, 16, 64]))
+def test_fec_frame_is_the_layout_of_the_text_and_decodes(payload, fec) -> None:
+    frame = encode_frame(payload, fec)
+    assert frame == fec_frame_by_the_text(payload, fec)
+    assert b"\x00" not in frame[:-1]
+    dec = FrameDecoder(fec=fec)
+    assert dec.feed(frame) == [payload]
+    assert dec.stats.fec_mended_frames == 0
+
+
+@settings(max_examples=300, deadline=None)
+@given(payload=st.binary(min_size=1, max_size=700), fec=st.sampled_from([4, 16]),
+       data=st.data())
+def test_fec_mends_up_to_half_its_parity_in_wrong_bytes_a_block(payload, fec, data) -> None:
+    frame = bytearray(encode_frame(payload, fec))
+    body = len(frame) - 1
+    # wrong bytes anywhere but the delimiter, at most fec / 2 of them: whatever blocks
+    # they fall in, no block has more (a wrong parity group byte spoils at most two
+    # parity bytes, of at most two blocks: count it twice)
+    n_wrong = data.draw(st.integers(1, fec // 4))
+    where = data.draw(st.lists(st.integers(0, body - 1), min_size=n_wrong,
+                               max_size=n_wrong, unique=True))
+    for i in where:
+        frame[i] ^= data.draw(st.integers(1, 255))
+    if 0 in frame[:-1]:
+        return  # a new delimiter splits the frame: lost, as without FEC (tested below)
+    dec = FrameDecoder(fec=fec)
+    assert dec.feed(bytes(frame)) == [payload]
+    assert dec.stats.fec_mended_frames == 1 and dec.stats.dropped == 0
+
+
+def test_a_flip_of_a_spare_bit_alone_is_counted_as_mended() -> None:
+    frame = bytearray(encode_frame(b"\x96\x02\x10 a telegram", 16))
+    frame[-2] ^= 0x80  # the last parity group's top bit
+    dec = FrameDecoder(fec=16)
+    assert dec.feed(bytes(frame)) == [b"\x96\x02\x10 a telegram"]
+    assert dec.stats.fec_mended_frames == 1
+
+
+def test_fec_frame_past_mending_is_counted_and_the_next_one_taken() -> None:
+    good = encode_frame(b"\x93\x01\x02\x03", 2)
+    bad = bytearray(good)
+    bad[1] ^= 0x01  # 0x93 -> 0x92
+    bad[3] ^= 0x01  # 0x02 -> 0x03: two wrong bytes in a block of a code that mends one
+    assert bad[1:5] == b"\x92\x01\x03\x03"
+    dec = FrameDecoder(fec=2)
+    got = dec.feed(bytes(bad) + good)
+    assert got == [b"\x93\x01\x02\x03"]
+    assert dec.stats.dropped == 1 and dec.stats.frames == 1
+
+
+def test_a_plain_frame_to_a_fec_receiver_is_refused_not_misread() -> None:
+    dec = FrameDecoder(fec=16)
+    assert dec.feed(encode_frame(b"\x91\x01" * 40)) == []
+    assert dec.stats.dropped == 1
+
+
+@pytest.mark.parametrize("fec", [-2, 1, 3, 66, 255])
+def test_fec_outside_the_choices_is_a_clear_error(fec) -> None:
+    with pytest.raises(ValueError, match="fec must be"):
+        FrameDecoder(fec=fec)

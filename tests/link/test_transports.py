@@ -16,10 +16,12 @@ from pathlib import Path
 
 import msgpack
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from emulator.link import open_link
+from emulator.link.base import LinkError
 from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.clock import FakeClock
 from emulator.rig.frame_loop import Rig
@@ -274,3 +276,15 @@ def test_hostile_bytes_on_the_serial_line_are_counted_and_the_rig_goes_on(params
     assert f.crc_errors + f.cobs_errors >= 2 and f.oversized >= 1
     assert rig.health.rejected["malformed"] >= 1
     assert rig.health.accepted >= 20  # the good telegrams after the noise were taken
+
+
+@pytest.mark.parametrize("fec", ["3", "66", "-2", "x", ""])
+def test_a_serial_address_with_a_wrong_fec_is_a_clear_error(fec) -> None:
+    with pytest.raises(LinkError, match="fec must be 0"):
+        open_link(f"serial:///dev/ttyS0?baud=921600&fec={fec}")
+
+
+def test_a_serial_address_with_fec_frames_with_it() -> None:
+    link = open_link("serial:///dev/ttyS0?baud=921600&fec=16")
+    assert link.fec == 16 and link._decoder.fec == 16
+    assert open_link("serial:///dev/ttyS0?baud=921600").fec == 0

@@ -41,6 +41,7 @@
 #include <unistd.h>
 
 #include "railrig_codec.h"
+#include "railrig_fec.h"
 #include "railrig_map.h"
 
 #define PI 3.14159265358979323846
@@ -445,12 +446,20 @@ static int write_all(int fd, const uint8_t *buf, size_t len)
     return 0;
 }
 
-static int run_serial(controller *c, const char *device, long baud, unsigned long frames,
-                      int verbose)
+/* One frame for the line: plain, or with fec parity bytes a block (railrig_fec.h). */
+static int frame_out(const uint8_t *payload, size_t len, unsigned fec, uint8_t *out,
+                     size_t cap)
+{
+    return fec ? rr_fec_frame_encode(payload, len, fec, out, cap)
+               : rr_frame_encode(payload, len, out, cap);
+}
+
+static int run_serial(controller *c, const char *device, long baud, unsigned fec,
+                      unsigned long frames, int verbose)
 {
     static rr_rx rx;
     struct termios tio;
-    uint8_t chunk[512], out[4096], framed[4200];
+    uint8_t chunk[512], out[4096], framed[RR_RX_CAP + 1];
     speed_t speed = baud_constant(baud);
     int fd = open(device, O_RDWR | O_NOCTTY);
     if (fd < 0) {
@@ -476,6 +485,7 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
         tcsetattr(fd, TCSANOW, &tio);
     }
     rr_rx_init(&rx);
+    rx.fec = fec;
     while (c->answered < frames) {
         ssize_t got, i;
         if (!readable(fd, c)) {
@@ -491,12 +501,13 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
         for (i = 0; i < got; i++) {
             int n, m;
             unsigned long damaged = (unsigned long)rx.crc_errors + rx.cobs_errors
-                                    + rx.oversized;
+                                    + rx.oversized + rx.fec_failures;
             if (!rr_rx_push(&rx, chunk[i])) {
-                if ((unsigned long)rx.crc_errors + rx.cobs_errors + rx.oversized != damaged) {
+                if ((unsigned long)rx.crc_errors + rx.cobs_errors + rx.oversized
+                    + rx.fec_failures != damaged) {
                     /* a damaged frame from the rig: ask for the measurement again */
                     n = repeat_request(c, out, sizeof out);
-                    m = n > 0 ? rr_frame_encode(out, (size_t)n, framed, sizeof framed) : 0;
+                    m = n > 0 ? frame_out(out, (size_t)n, fec, framed, sizeof framed) : 0;
                     if (m > 0 && write_all(fd, framed, (size_t)m) != 0) {
                         perror("example_controller: write");
                         close(fd);
@@ -510,7 +521,7 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
                 close(fd);
                 return n == -2 ? 2 : 1;
             }
-            m = rr_frame_encode(out, (size_t)n, framed, sizeof framed);
+            m = frame_out(out, (size_t)n, fec, framed, sizeof framed);
             if (m < 0 || write_all(fd, framed, (size_t)m) != 0) {
                 perror("example_controller: write");
                 close(fd);
@@ -521,10 +532,15 @@ static int run_serial(controller *c, const char *device, long baud, unsigned lon
             }
         }
     }
-    if (verbose || rx.crc_errors || rx.cobs_errors || rx.oversized) {
-        printf("serial: %lu frames, %lu CRC errors, %lu COBS errors, %lu oversized\n",
+    if (verbose || rx.crc_errors || rx.cobs_errors || rx.oversized || rx.fec_failures) {
+        printf("serial: %lu frames, %lu CRC errors, %lu COBS errors, %lu oversized",
                (unsigned long)rx.frames, (unsigned long)rx.crc_errors,
                (unsigned long)rx.cobs_errors, (unsigned long)rx.oversized);
+        if (fec) {
+            printf(", %lu past FEC mending, %lu mended", (unsigned long)rx.fec_failures,
+                   (unsigned long)rx.fec_mended);
+        }
+        fputc('\n', stdout);
     }
     close(fd);
     return 0;
@@ -534,7 +550,7 @@ static void usage(void)
 {
     fprintf(stderr,
             "usage: example_controller --bind HOST:PORT --rig HOST:PORT --frames N\n"
-            "       example_controller --serial DEVICE --baud N --frames N\n"
+            "       example_controller --serial DEVICE --baud N [--fec P] --frames N\n"
             "       [--slip-hz F] [--current-limit-a A] [--quiet]\n");
 }
 
@@ -542,6 +558,7 @@ int main(int argc, char **argv)
 {
     const char *bind_spec = NULL, *rig_spec = NULL, *device = NULL;
     long baud = 115200;
+    long fec = 0;
     unsigned long frames = 0;
     int verbose = 1, i, rc;
     controller c;
@@ -573,6 +590,13 @@ int main(int argc, char **argv)
             device = v;
         } else if (strcmp(a, "--baud") == 0) {
             baud = strtol(v, NULL, 10);
+        } else if (strcmp(a, "--fec") == 0) {
+            fec = strtol(v, NULL, 10);
+            if (fec < 0 || fec > RR_FEC_MAX || fec % 2 != 0) {
+                fprintf(stderr, "example_controller: --fec is 0 or an even number 2..%d\n",
+                        RR_FEC_MAX);
+                return 2;
+            }
         } else if (strcmp(a, "--frames") == 0) {
             frames = strtoul(v, NULL, 10);
         } else if (strcmp(a, "--slip-hz") == 0) {
@@ -590,7 +614,7 @@ int main(int argc, char **argv)
         return 2;
     }
     c.slip_hz = 0.0;
-    rc = device != NULL ? run_serial(&c, device, baud, frames, verbose)
+    rc = device != NULL ? run_serial(&c, device, baud, (unsigned)fec, frames, verbose)
                         : run_udp(&c, bind_spec, rig_spec, frames, verbose);
     printf("answered %lu frames, state %s, speed %.2f rad/s, watchdog flags seen %lu, "
            "repeats answered %lu, repeat requests %lu\n", c.answered, STATE_NAMES[c.state],

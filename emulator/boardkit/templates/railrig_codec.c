@@ -1,5 +1,6 @@
 /* railrig board kit: telegram codec, COBS and CRC-16 (see railrig_codec.h). */
 #include "railrig_codec.h"
+#include "railrig_fec.h"
 
 /* ---- msgpack: the integer forms and the array header (msgpack specification) ---- */
 
@@ -365,7 +366,9 @@ void rr_rx_init(rr_rx *rx)
     rx->fill = 0;
     rx->skipping = 0;
     rx->length = 0;
+    rx->fec = 0;
     rx->frames = rx->cobs_errors = rx->crc_errors = rx->oversized = 0;
+    rx->fec_failures = rx->fec_mended = 0;
 }
 
 int rr_rx_push(rr_rx *rx, uint8_t byte)
@@ -389,8 +392,21 @@ int rr_rx_push(rr_rx *rx, uint8_t byte)
         rx->fill = 0;
         return 0;
     }
-    n = rr_frame_decode(rx->buf, rx->fill, rx->payload, sizeof rx->payload);
+    if (rx->fec) {
+        unsigned mended = 0;
+        n = rr_fec_frame_decode(rx->buf, rx->fill, rx->fec, rx->payload, sizeof rx->payload,
+                                &mended);
+        if (n >= 0 && mended) {
+            rx->fec_mended++;
+        }
+    } else {
+        n = rr_frame_decode(rx->buf, rx->fill, rx->payload, sizeof rx->payload);
+    }
     rx->fill = 0;
+    if (n == RR_E_FEC) {
+        rx->fec_failures++;
+        return 0;
+    }
     if (n == RR_E_CRC) {
         rx->crc_errors++;
         return 0;

@@ -24,6 +24,7 @@
 #define RR_E_SPACE (-6)    /* the output buffer is too small */
 #define RR_E_COBS (-7)     /* not a valid COBS block */
 #define RR_E_CRC (-8)      /* the CRC does not match (or the frame is too short for one) */
+#define RR_E_FEC (-9)      /* FEC frames (railrig_fec.h): a block past mending */
 
 /* The six header fields of every telegram, integers on the wire (the order is
  * railrig_map.h's RR_H_*). */
@@ -70,17 +71,22 @@ size_t rr_frame_max_size(size_t payload_len);
 
 /* Incremental receiver for a serial line: feed bytes as they come; each call to
  * rr_rx_push returns 1 when a good payload is complete (in rx->payload, rx->length),
- * 0 otherwise. Bad frames are counted in cobs_errors / crc_errors / oversized and
- * dropped; the receiver resynchronises at the next 0x00. */
+ * 0 otherwise. Bad frames are counted in fec_failures / cobs_errors / crc_errors /
+ * oversized and dropped; the receiver resynchronises at the next 0x00. Set rx->fec
+ * after rr_rx_init to receive FEC frames (railrig_fec.h); fec_mended counts the frames
+ * that arrived with wrong bytes and were mended. */
 #define RR_PAYLOAD_CAP 2048 /* the longest telegram framed or received, bytes */
-#define RR_RX_CAP (RR_PAYLOAD_CAP + 2 + (RR_PAYLOAD_CAP + 2) / 254 + 1) /* its COBS frame */
+#define RR_COBS_CAP (RR_PAYLOAD_CAP + 2 + (RR_PAYLOAD_CAP + 2) / 254 + 1) /* its COBS frame */
+/* ... and with the most parity FEC adds (64 bytes for each 191, seven bits a byte) */
+#define RR_RX_CAP (RR_COBS_CAP + ((RR_COBS_CAP / 191 + 1) * 64 * 8 + 6) / 7)
 typedef struct {
     uint8_t buf[RR_RX_CAP];
     size_t fill;
     int skipping;        /* inside an oversized run: drop up to the next delimiter */
+    unsigned fec;        /* parity bytes per block of a FEC frame; 0: plain frames */
     uint8_t payload[RR_PAYLOAD_CAP];
     size_t length;
-    uint32_t frames, cobs_errors, crc_errors, oversized;
+    uint32_t frames, cobs_errors, crc_errors, oversized, fec_failures, fec_mended;
 } rr_rx;
 void rr_rx_init(rr_rx *rx);
 int rr_rx_push(rr_rx *rx, uint8_t byte);
