@@ -233,7 +233,8 @@ def link_counters_table(report: dict):
     for kind, n in sorted(link.get("sequence", {}).items()):
         table.add_row(f"sequence error: {kind}", str(n))
     framing = report.get("transport", {}).get("framing", {})
-    for key in ("crc_errors", "cobs_errors", "runts", "oversized"):
+    for key in ("crc_errors", "cobs_errors", "runts", "oversized", "fec_failures",
+                "fec_mended_frames"):
         if framing.get(key):
             table.add_row(f"serial {key.replace('_', ' ')}", str(framing[key]))
     for cause, n in sorted(report.get("lockstep_repeat_causes", {}).items()):

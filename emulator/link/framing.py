@@ -109,7 +109,7 @@ class FramingStats:
     oversized: int = 0
     discarded_bytes: int = 0
     fec_failures: int = 0  # FEC: a block with more wrong bytes than its code mends
-    fec_mended_frames: int = 0  # FEC: frames that arrived with wrong bits, mended
+    fec_mended_frames: int = 0  # FEC: frames that arrived with wrong bits, mended, taken
     fec_mended_bytes: int = 0  # ... their wrong bytes (fec_frame.mend counts them)
 
     @property
@@ -162,16 +162,14 @@ class FrameDecoder:
             start = end + 1
 
     def _decode(self, encoded: bytes) -> bytes | None:
+        wrong = 0
         if self.fec:
             mended = mend_frame(encoded, self.fec)
             if mended is None:
                 self.stats.fec_failures += 1
                 self.stats.discarded_bytes += len(encoded)
                 return None
-            if mended[1]:
-                self.stats.fec_mended_frames += 1
-                self.stats.fec_mended_bytes += mended[1]
-            encoded = mended[0]
+            encoded, wrong = mended
         try:
             raw = cobs.decode(encoded)
         except cobs.DecodeError:
@@ -188,4 +186,7 @@ class FrameDecoder:
             self.stats.discarded_bytes += len(encoded)
             return None
         self.stats.frames += 1
+        if wrong:  # counted once the CRC has passed it, as the kit's receiver does
+            self.stats.fec_mended_frames += 1
+            self.stats.fec_mended_bytes += wrong
         return payload

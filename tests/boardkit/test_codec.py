@@ -239,3 +239,15 @@ def test_c_reed_solomon_is_reedsolos(harness, n_parity, data) -> None:
     n_wrong = int((spoiled != np.frombuffer(word, dtype=np.uint8)).sum())
     assert harness.ask("rs", str(n_parity), _hex(spoiled.tobytes())) == (
         True, f"{_hex(word)} {n_wrong}")
+
+
+def test_longest_fec_frame_fits_the_receiver_exactly(harness) -> None:
+    # the longest payload without a zero at the most parity: the longest FEC frame the
+    # kit's buffers must hold (RR_RX_CAP bytes and its delimiter)
+    payload = bytes(range(1, 256)) * 8 + bytes(range(1, 9))  # 2048 bytes, RR_PAYLOAD_CAP
+    framed = encode_frame(payload, 64)
+    assert harness.ask("fec", "64", "frame", _hex(payload)) == (True, _hex(framed))
+    ok, text = harness.ask("fec", "64", "rx", _hex(b"\x00" + framed))
+    harness.ask("rx", "-")
+    assert ok and text.split()[0] == _hex(payload)
+    assert harness.ask("fec", "64", "frame", _hex(payload + b"\x01"))[0] is False

@@ -591,8 +591,9 @@ int main(int argc, char **argv)
         } else if (strcmp(a, "--baud") == 0) {
             baud = strtol(v, NULL, 10);
         } else if (strcmp(a, "--fec") == 0) {
-            fec = strtol(v, NULL, 10);
-            if (fec < 0 || fec > RR_FEC_MAX || fec % 2 != 0) {
+            char *end;
+            fec = strtol(v, &end, 10);
+            if (end == v || *end != '\0' || fec < 0 || fec > RR_FEC_MAX || fec % 2 != 0) {
                 fprintf(stderr, "example_controller: --fec is 0 or an even number 2..%d\n",
                         RR_FEC_MAX);
                 return 2;

@@ -33,8 +33,8 @@ int rr_rs_correct(uint8_t *codeword, size_t len, unsigned n_parity);
 int rr_fec_frame_encode(const uint8_t *payload, size_t len, unsigned fec, uint8_t *out,
                         size_t cap);
 
-/* The bytes between two delimiters of a FEC frame: mended in place, then as
- * rr_frame_decode. Returns the payload's length or RR_E_FEC / RR_E_COBS / RR_E_CRC /
+/* The bytes between two delimiters of a FEC frame: mended in place (on an error the
+ * frame may be left part mended), then as rr_frame_decode. Returns the payload's length or RR_E_FEC / RR_E_COBS / RR_E_CRC /
  * RR_E_SPACE; *mended (may be NULL) gets the wrong bytes found: those the code mended
  * and the groups of seven whose spare bits were wrong. */
 int rr_fec_frame_decode(uint8_t *frame, size_t len, unsigned fec, uint8_t *payload,
