@@ -64,6 +64,9 @@ typedef struct {
     uint16_t last_count[RR_N_MOTORS];
     int have_counts;
     unsigned long answered, flagged, repeated, repeat_requests;
+    unsigned long unreadable;      /* telegrams that passed the framing but not the codec */
+    int mismatch_run;              /* another protocol or map in a row (noise, or a kit
+                                      generated for another profile) */
     int64_t last_sequence;         /* the measurement answered last (-1: none yet) */
     uint8_t last_reply[RR_PAYLOAD_CAP]; /* and the answer, for a measurement said again */
     size_t last_reply_len;
@@ -239,6 +242,13 @@ static void control(controller *c, const rr_header *h, const double *y, double *
 
 /* ---- telegrams ---- */
 
+#define UNREADABLE (-3) /* answer(): a telegram to drop (counted), not a reason to stop */
+#define MISMATCH_RUN_MAX 3 /* another protocol or map this often in a row: stop */
+
+/* A telegram from the rig answered into out: its length; UNREADABLE for one that passed
+ * the framing but not the codec (on a noisy line the CRC-16 lets about one spoiled frame
+ * in 65 536 through), or for another protocol or map once in a while; -2 (stop) for
+ * another protocol or map at the first telegram or MISMATCH_RUN_MAX times in a row. */
 static int answer(controller *c, const uint8_t *in, size_t len, uint8_t *out, size_t cap,
                   int verbose)
 {
@@ -247,21 +257,31 @@ static int answer(controller *c, const uint8_t *in, size_t len, uint8_t *out, si
     rr_header h, reply;
     int i, rc = rr_decode_telegram(in, len, &h, y_wire, RR_N_MEASUREMENTS);
     if (rc != RR_OK) {
-        fprintf(stderr, "example_controller: cannot read a telegram (code %d)\n", rc);
-        return -1;
+        c->unreadable++;
+        if (verbose) {
+            fprintf(stderr, "example_controller: dropped a telegram it cannot read "
+                    "(code %d)\n", rc);
+        }
+        return UNREADABLE;
     }
-    if (h.protocol_version != RR_PROTOCOL_VERSION) {
-        fprintf(stderr, "example_controller: the rig speaks protocol %lld, this kit %d: "
-                "generate the kit again\n", (long long)h.protocol_version,
-                RR_PROTOCOL_VERSION);
+    if (h.protocol_version != RR_PROTOCOL_VERSION || h.map_digest != (int64_t)RR_MAP_DIGEST) {
+        c->unreadable++;
+        if (c->answered > 0 && ++c->mismatch_run < MISMATCH_RUN_MAX) {
+            return UNREADABLE;
+        }
+        if (h.protocol_version != RR_PROTOCOL_VERSION) {
+            fprintf(stderr, "example_controller: the rig speaks protocol %lld, this kit "
+                    "%d: generate the kit again\n", (long long)h.protocol_version,
+                    RR_PROTOCOL_VERSION);
+        } else {
+            fprintf(stderr, "example_controller: the rig's signal map has digest 0x%08llX, "
+                    "this kit's is 0x%08lX: generate the kit again from the rig's trainset "
+                    "profile\n", (unsigned long long)h.map_digest,
+                    (unsigned long)RR_MAP_DIGEST);
+        }
         return -2;
     }
-    if (h.map_digest != (int64_t)RR_MAP_DIGEST) {
-        fprintf(stderr, "example_controller: the rig's signal map has digest 0x%08llX, this "
-                "kit's is 0x%08lX: generate the kit again from the rig's trainset profile\n",
-                (unsigned long long)h.map_digest, (unsigned long)RR_MAP_DIGEST);
-        return -2;
-    }
+    c->mismatch_run = 0;
     if (h.sequence == c->last_sequence && c->last_reply_len <= cap) {
         /* said again: our answer was lost. The same answer; the control ran already */
         c->repeated++;
@@ -393,6 +413,9 @@ static int run_udp(controller *c, const char *bind_spec, const char *rig_spec,
             continue;
         }
         n = answer(c, in, (size_t)got, out, sizeof out, verbose);
+        if (n == UNREADABLE) {
+            continue; /* the rig says its measurement again after silence */
+        }
         if (n < 0) {
             close(fd);
             return n == -2 ? 2 : 1;
@@ -517,6 +540,16 @@ static int run_serial(controller *c, const char *device, long baud, unsigned fec
                 continue;
             }
             n = answer(c, rx.payload, rx.length, out, sizeof out, verbose);
+            if (n == UNREADABLE) { /* as a damaged frame: ask for the measurement again */
+                n = repeat_request(c, out, sizeof out);
+                m = n > 0 ? frame_out(out, (size_t)n, fec, framed, sizeof framed) : 0;
+                if (m > 0 && write_all(fd, framed, (size_t)m) != 0) {
+                    perror("example_controller: write");
+                    close(fd);
+                    return 1;
+                }
+                continue;
+            }
             if (n < 0) {
                 close(fd);
                 return n == -2 ? 2 : 1;
@@ -618,7 +651,8 @@ int main(int argc, char **argv)
     rc = device != NULL ? run_serial(&c, device, baud, (unsigned)fec, frames, verbose)
                         : run_udp(&c, bind_spec, rig_spec, frames, verbose);
     printf("answered %lu frames, state %s, speed %.2f rad/s, watchdog flags seen %lu, "
-           "repeats answered %lu, repeat requests %lu\n", c.answered, STATE_NAMES[c.state],
-           c.speed_rad_s, c.flagged, c.repeated, c.repeat_requests);
+           "repeats answered %lu, repeat requests %lu, unreadable telegrams %lu\n",
+           c.answered, STATE_NAMES[c.state], c.speed_rad_s, c.flagged, c.repeated,
+           c.repeat_requests, c.unreadable);
     return rc;
 }
