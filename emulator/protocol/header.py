@@ -137,11 +137,9 @@ LOCKSTEP_PACING = (
     "trips allow, after their retransmission timeout (SRTT + 4 RTTVAR, RFC 6298), at "
     "least 2 periods and at most `railrig serve --lockstep-repeat-ms` (default 20 "
     "periods, also the wait before 8 round trips are measured); then at doubling "
-    "intervals up to 1 s until a frame runs on a round trip without a repeat, or on an "
-    "answer after the line was seen spoiling a frame of that exchange (a damaged frame "
-    "at the rig, or your repeat request). Either side may start first, and a "
-    "measurement lost on the way (or whose 0x00 delimiter was lost) is said again "
-    "without a request.",
+    "intervals up to 1 s until a frame runs on a round trip without a repeat. Either "
+    "side may start first, and a measurement lost on the way (or whose 0x00 delimiter "
+    "was lost) is said again without a request.",
     "A repeated measurement carries the same sequence: answer it with the same command "
     "(do not run your control a second time for it).",
 )

@@ -58,8 +58,7 @@ class LockstepPacing:
         meets the watchdog rather than a frozen plant; damage and requests at most
         LOCKSTEP_QUICK_REPEATS times, then the silence timer); silence gets it again
         after ``_silence_s()``, then at doubling intervals (up to LOCKSTEP_REPEAT_MAX_S)
-        until a frame runs on a clean round trip (RFC 6298, 5.5 and 5.7), or on an
-        answer after the line was seen spoiling a frame of that exchange."""
+        until a frame runs on a clean round trip (RFC 6298, 5.5 and 5.7)."""
         if self._sent_frame != self.frame and not self._ran_ahead:  # not when resuming
             self._send_measurement(self.frame)  # a run under way (frame k run ahead: y_k's
             # answer is still owed)
@@ -69,7 +68,6 @@ class LockstepPacing:
         self.stats.restart_cpu_window()
         silence_s = self._silence_s()
         bad_repeats = quick_repeats = 0  # immediate repeats of y_k, by kind
-        line_spoiled = False  # a damaged frame or a repeat request since y_k went out
         while not self._done(frames, stop):
             # poll briefly before blocking: a sleeping process wakes late on some machines
             # (tens of us to ms on a VM), which would pace lockstep more than the work does
@@ -98,7 +96,6 @@ class LockstepPacing:
                 self._receive([payload])
                 if self._repeat_asked:
                     self._repeat_asked, repeat = False, "request"
-                    line_spoiled = True  # the board saw a damaged frame
                     continue
                 injected_loss = self.health.rejected["fault_dropped"] != dropped_by_fault
                 if k not in self._answers and not injected_loss:  # (an injected loss runs
@@ -120,24 +117,18 @@ class LockstepPacing:
                     self._run_frame(k)
                 if self.link.take_damaged():  # seen with this batch: say so in y_(k+1)
                     self._flags |= FLAG_FRAMING
-                    line_spoiled = True
                 self._send_measurement(self.frame)
                 self._sent_mono_ns = time.monotonic_ns()
                 paced = True
                 bad_repeats = quick_repeats = 0
-                if clean_sample or line_spoiled:  # the backed-off wait stays until a
-                    # clean sample (Karn: a controller slower than the estimate), unless
-                    # the line was seen spoiling this exchange: then the silence was the
-                    # line's, and a noisy line would otherwise keep it backed off
+                if clean_sample:  # the backed-off wait stays until a clean sample
                     silence_s = self._silence_s()
-                line_spoiled = False
                 self._run_ahead(frames, stop)
                 if self.monitor is not None and self.frame % self.monitor.every == 0:
                     await asyncio.sleep(0)  # an in-process controller never waits: let
                     # the monitor's socket and snapshot in
             if self.link.take_damaged():
                 self._flags |= FLAG_FRAMING
-                line_spoiled = True
                 if not paced:  # the answer to y_k was in it: ask again, now
                     repeat = repeat or "framing"
             if not repeat or self._done(frames, stop):

@@ -15,12 +15,14 @@
  * A measurement the rig sends again (the same sequence, flag RR_FLAG_REPEAT: our answer
  * was lost or damaged) gets the same answer again, without running the control a second
  * time. On a serial line, a frame from the rig that fails COBS or the CRC gets a repeat
- * request (RR_CFLAG_REPEAT_REQUEST) at once, so lockstep goes on after one round trip.
+ * request (RR_CFLAG_REPEAT_REQUEST) at once, so lockstep goes on after one round trip;
+ * so does a frame that passes them but holds no telegram it can read (counted as
+ * unreadable; over UDP it is dropped and the rig's silence repeat follows).
  *
  * Exits 0 after N answered frames; 1 when the rig stays silent (120 s before its first
- * telegram: its first start after install compiles for tens of seconds; 10 s later) or a
- * telegram cannot be read; 2 on bad arguments or a map mismatch (protocol version or map
- * digest: the kit was generated for another trainset profile).
+ * telegram: its first start after install compiles for tens of seconds; 10 s later);
+ * 2 on bad arguments or a map mismatch (protocol version or map digest: the kit was
+ * generated for another trainset profile) at the first telegram or three in a row.
  *
  * Safety: run it against the rig only; never on hardware wired to a real power stage.
  */
