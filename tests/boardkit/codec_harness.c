@@ -73,13 +73,32 @@ static void answer_bytes(const uint8_t *buf, int n)
     fputc('\n', stdout);
 }
 
-/* A heap copy of in[0..n) of exactly n bytes (1 for none). */
-static uint8_t *exact(long n)
+/* "ok HEX COUNT" for n >= 0 bytes of buf and a count, "err n" otherwise. */
+static void answer_counted(const uint8_t *buf, int n, long count)
 {
-    uint8_t *p = malloc(n > 0 ? (size_t)n : 1u);
+    if (n < 0) {
+        printf("err %d\n", n);
+        return;
+    }
+    fputs("ok ", stdout);
+    print_hex(buf, n);
+    printf(" %ld\n", count);
+}
+
+/* A heap block of exactly cap bytes (1 for none). */
+static uint8_t *block(size_t cap)
+{
+    uint8_t *p = malloc(cap > 0 ? cap : 1u);
     if (p == NULL) {
         abort();
     }
+    return p;
+}
+
+/* A heap copy of in[0..n) of exactly n bytes (1 for none). */
+static uint8_t *exact(long n)
+{
+    uint8_t *p = block((size_t)n);
     memcpy(p, in, (size_t)n);
     return p;
 }
@@ -89,10 +108,7 @@ static void bytes_request(int (*fn)(const uint8_t *, size_t, uint8_t *, size_t),
                           size_t cap)
 {
     uint8_t *src = exact(n);
-    uint8_t *dst = malloc(cap > 0 ? cap : 1u);
-    if (dst == NULL) {
-        abort();
-    }
+    uint8_t *dst = block(cap);
     answer_bytes(dst, fn(src, (size_t)n, dst, cap));
     free(src);
     free(dst);
@@ -133,13 +149,7 @@ int main(void)
             src = exact(n);
             if (cmd[0] == 'r') {
                 int rc = rr_rs_correct(src, (size_t)n, n_parity);
-                if (rc < 0) {
-                    printf("err %d\n", rc);
-                } else {
-                    fputs("ok ", stdout);
-                    print_hex(src, n);
-                    printf(" %d\n", rc);
-                }
+                answer_counted(src, rc < 0 ? rc : (int)n, rc);
             } else {
                 uint8_t par[RR_FEC_MAX];
                 rr_rs_parity(src, (size_t)n, n_parity, par);
@@ -156,10 +166,7 @@ int main(void)
             }
             cap = arg_cap >= 0 ? (size_t)arg_cap : RR_RX_CAP + 1u;
             src = exact(n);
-            dst = malloc(cap > 0 ? cap : 1u);
-            if (dst == NULL) {
-                abort();
-            }
+            dst = block(cap);
             answer_bytes(dst, rr_fec_frame_encode(src, (size_t)n, arg_fec, dst, cap));
             free(src);
             free(dst);
@@ -175,18 +182,9 @@ int main(void)
             }
             cap = arg_cap >= 0 ? (size_t)arg_cap : (size_t)n;
             src = exact(n);
-            dst = malloc(cap > 0 ? cap : 1u);
-            if (dst == NULL) {
-                abort();
-            }
+            dst = block(cap);
             rc = rr_fec_frame_decode(src, (size_t)n, arg_fec, dst, cap, &mended);
-            if (rc < 0) {
-                printf("err %d\n", rc);
-            } else {
-                fputs("ok ", stdout);
-                print_hex(dst, rc);
-                printf(" %u\n", mended);
-            }
+            answer_counted(dst, rc, (long)mended);
             free(src);
             free(dst);
         } else if (strcmp(cmd, "enc") == 0) {
@@ -215,10 +213,7 @@ int main(void)
             h.map_digest = head[5];
             {
                 size_t cap = arg_cap >= 0 ? (size_t)arg_cap : rr_telegram_max_size(count - RR_TELEGRAM_HEADER_LEN);
-                uint8_t *dst = malloc(cap > 0 ? cap : 1u);
-                if (dst == NULL) {
-                    abort();
-                }
+                uint8_t *dst = block(cap);
                 answer_bytes(dst, rr_encode_telegram(dst, cap, &h, values,
                                                     count - RR_TELEGRAM_HEADER_LEN));
                 free(dst);

@@ -74,8 +74,12 @@ def test_example_drives_the_demo_trainset_over_udp(kit_dir, tmp_path) -> None:
     _check(rig, board, report)
 
 
-def _relay(a: int, b: int, stop: threading.Event) -> None:
-    """Copy bytes both ways between two pseudo-terminal masters (a null-modem cable)."""
+def _relay(a: int, b: int, stop: threading.Event, slip_in: bytes = b"",
+           after: int = 0) -> None:
+    """Copy bytes both ways between two pseudo-terminal masters (a null-modem cable);
+    with ``slip_in``, add those bytes to the board's way after the rig's ``after``-th
+    frame (its ``after``-th 0x00)."""
+    delimiters = 0
     while not stop.is_set():
         ready, _, _ = select.select([a, b], [], [], 0.05)
         for fd in ready:
@@ -83,15 +87,22 @@ def _relay(a: int, b: int, stop: threading.Event) -> None:
                 data = os.read(fd, 4096)
             except OSError:
                 continue
+            if fd == a and slip_in:
+                before, delimiters = delimiters, delimiters + data.count(0)
+                if before < after <= delimiters:
+                    data += slip_in
             os.write(b if fd == a else a, data)
 
 
-def test_example_drives_the_demo_trainset_over_a_serial_line(kit_dir, tmp_path) -> None:
+def _over_a_serial_line(kit_dir, report: Path, slip_in: bytes = b"",
+                        after: int = 0) -> subprocess.CompletedProcess:
+    """`railrig serve` and the kit's example on two pseudo-terminals joined by _relay;
+    checked by _check; the board's finished process."""
     (m_rig, s_rig), (m_board, s_board) = os.openpty(), os.openpty()
     stop = threading.Event()
-    relay = threading.Thread(target=_relay, args=(m_rig, m_board, stop), daemon=True)
+    relay = threading.Thread(target=_relay, args=(m_rig, m_board, stop, slip_in, after),
+                             daemon=True)
     relay.start()
-    report = tmp_path / "report.json"
     try:
         rig = _serve(f"serial://{os.ttyname(s_rig)}?baud=921600", report)
         board = subprocess.run(
@@ -101,10 +112,7 @@ def test_example_drives_the_demo_trainset_over_a_serial_line(kit_dir, tmp_path) 
         if board.returncode != 0 and rig.poll() is None:
             rig.kill()
         _check(rig, board, report)
-        # the board's receiver prints its counters under --quiet only after errors
-        assert "serial:" not in board.stdout, board.stdout
-        framing = json.loads(report.read_text())["transport"]["framing"]
-        assert framing["crc_errors"] == 0 and framing["cobs_errors"] == 0
+        return board
     finally:
         stop.set()
         relay.join(timeout=2)
@@ -112,51 +120,27 @@ def test_example_drives_the_demo_trainset_over_a_serial_line(kit_dir, tmp_path) 
             os.close(fd)
 
 
+def test_example_drives_the_demo_trainset_over_a_serial_line(kit_dir, tmp_path) -> None:
+    report = tmp_path / "report.json"
+    board = _over_a_serial_line(kit_dir, report)
+    # the board's receiver prints its counters under --quiet only after errors
+    assert "serial:" not in board.stdout, board.stdout
+    framing = json.loads(report.read_text())["transport"]["framing"]
+    assert framing["crc_errors"] == 0 and framing["cobs_errors"] == 0
+
+
 def test_example_drops_a_telegram_it_cannot_read_and_goes_on(kit_dir, tmp_path) -> None:
     # A frame that passes COBS and the CRC can still hold no telegram: on a noisy line
     # the CRC-16 lets about one spoiled frame in 65 536 through (its 16 bits), and a run
     # at a BER of 1e-3 spoils thousands. The board must count it and ask for the
     # measurement again, not stop (it did: "cannot read a telegram", and the run froze).
-    # The relay slips two such frames to the board after the rig's 500th frame.
-    # one frame that is no telegram, and one of the right length built for another map
-    # (a digest of 1): the first is unreadable, the second a mismatch met once
+    # The relay slips two such frames to the board after the rig's 500th frame: one
+    # that is no telegram, and one of the right length built for another map (a digest
+    # of 1): the first is unreadable, the second a mismatch met once.
     n_measurements = len(build_signal_map(load_trainset(TRAINSET)).measurements)
     other_map = [PROTOCOL_VERSION, 600, 0, 1000, 0, 1] + [0] * n_measurements
     junk = encode_frame(b"\xc1 not msgpack") + encode_frame(msgpack.packb(other_map))
-    (m_rig, s_rig), (m_board, s_board) = os.openpty(), os.openpty()
-    stop = threading.Event()
-
-    def relay() -> None:
-        delimiters = 0
-        while not stop.is_set():
-            ready, _, _ = select.select([m_rig, m_board], [], [], 0.05)
-            for fd in ready:
-                try:
-                    data = os.read(fd, 4096)
-                except OSError:
-                    continue
-                if fd == m_rig:
-                    before, delimiters = delimiters, delimiters + data.count(0)
-                    if before < 500 <= delimiters:
-                        data += junk
-                os.write(m_board if fd == m_rig else m_rig, data)
-
-    thread = threading.Thread(target=relay, daemon=True)
-    thread.start()
     report = tmp_path / "report.json"
-    try:
-        rig = _serve(f"serial://{os.ttyname(s_rig)}?baud=921600", report)
-        board = subprocess.run(
-            [str(kit_dir / "example_controller"), "--serial", os.ttyname(s_board),
-             "--baud", "921600", "--frames", str(FRAMES), "--quiet"],
-            capture_output=True, text=True, timeout=120)
-        if board.returncode != 0 and rig.poll() is None:
-            rig.kill()
-        _check(rig, board, report)
-        assert re.search(r"unreadable telegrams 2$", board.stdout, re.M), board.stdout
-        assert json.loads(report.read_text())["link"]["repeat_requests"] >= 1
-    finally:
-        stop.set()
-        thread.join(timeout=2)
-        for fd in (m_rig, s_rig, m_board, s_board):
-            os.close(fd)
+    board = _over_a_serial_line(kit_dir, report, slip_in=junk, after=500)
+    assert re.search(r"unreadable telegrams 2$", board.stdout, re.M), board.stdout
+    assert json.loads(report.read_text())["link"]["repeat_requests"] >= 1

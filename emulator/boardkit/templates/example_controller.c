@@ -524,37 +524,26 @@ static int run_serial(controller *c, const char *device, long baud, unsigned fec
             return 1;
         }
         for (i = 0; i < got; i++) {
-            int n, m;
+            int n = 0, m, ask_again = 0;
             unsigned long damaged = (unsigned long)rx.crc_errors + rx.cobs_errors
                                     + rx.oversized + rx.fec_failures;
             if (!rr_rx_push(&rx, chunk[i])) {
-                if ((unsigned long)rx.crc_errors + rx.cobs_errors + rx.oversized
-                    + rx.fec_failures != damaged) {
-                    /* a damaged frame from the rig: ask for the measurement again */
-                    n = repeat_request(c, out, sizeof out);
-                    m = n > 0 ? frame_out(out, (size_t)n, fec, framed, sizeof framed) : 0;
-                    if (m > 0 && write_all(fd, framed, (size_t)m) != 0) {
-                        perror("example_controller: write");
-                        close(fd);
-                        return 1;
-                    }
-                }
-                continue;
-            }
-            n = answer(c, rx.payload, rx.length, out, sizeof out, verbose);
-            if (n == UNREADABLE) { /* as a damaged frame: ask for the measurement again */
-                n = repeat_request(c, out, sizeof out);
-                m = n > 0 ? frame_out(out, (size_t)n, fec, framed, sizeof framed) : 0;
-                if (m > 0 && write_all(fd, framed, (size_t)m) != 0) {
-                    perror("example_controller: write");
+                /* a damaged frame from the rig: ask for the measurement again */
+                ask_again = (unsigned long)rx.crc_errors + rx.cobs_errors + rx.oversized
+                            + rx.fec_failures != damaged;
+            } else {
+                n = answer(c, rx.payload, rx.length, out, sizeof out, verbose);
+                ask_again = n == UNREADABLE; /* as a damaged frame */
+                if (n < 0 && !ask_again) {
                     close(fd);
-                    return 1;
+                    return n == -2 ? 2 : 1;
                 }
-                continue;
             }
-            if (n < 0) {
-                close(fd);
-                return n == -2 ? 2 : 1;
+            if (ask_again) {
+                n = repeat_request(c, out, sizeof out); /* 0 before the first answer */
+            }
+            if (n <= 0) {
+                continue;
             }
             m = frame_out(out, (size_t)n, fec, framed, sizeof framed);
             if (m < 0 || write_all(fd, framed, (size_t)m) != 0) {
