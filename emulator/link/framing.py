@@ -27,9 +27,9 @@ parity of all blocks, in block order, is sent after the COBS bytes seven bits a 
 (most significant bit first, the last byte's spare bits zero) with the top bit set, so
 it holds no 0x00 either::
 
-    +-------------------------------------+---------------------------------+------+
-    | C = COBS( payload || CRC16 )         | 0x80 | 7 bits of P, ...          | 0x00 |
-    +-------------------------------------+---------------------------------+------+
+    +------------------------------+-------------------------------------+------+
+    | C = COBS( payload || CRC16 ) | 0x80 | 7 bits of P, each byte        | 0x00 |
+    +------------------------------+-------------------------------------+------+
     P = parity(C[0:k]) || parity(C[k:2k]) || ...,   k = 255 - fec
 
 A receiver finds the split from the frame's length alone (the length grows with
@@ -38,7 +38,8 @@ rejects whatever the code could not mend or mended wrongly. The order matters: a
 COBS code byte misplaces zeros from there on, which no code could mend after COBS
 decoding. At a bit-error rate of 1e-3 a 230-byte telegram with fec = 16 arrives usable
 about 97 % of the time against about 16 % without (2 % lost to a flip that makes a
-0x00 and splits the frame); bench/serial_ber.py measures it on the noisy cable.
+0x00 and splits the frame: our simulation, DEVELOPERS.md); bench/serial_ber.py measures
+it on the noisy cable.
 """
 
 from __future__ import annotations
