@@ -62,18 +62,8 @@ static void print_hex(const uint8_t *buf, long n)
     }
 }
 
-static void answer_bytes(const uint8_t *buf, int n)
-{
-    if (n < 0) {
-        printf("err %d\n", n);
-        return;
-    }
-    fputs("ok ", stdout);
-    print_hex(buf, n);
-    fputc('\n', stdout);
-}
-
-/* "ok HEX COUNT" for n >= 0 bytes of buf and a count, "err n" otherwise. */
+/* "ok HEX COUNT" for n >= 0 bytes of buf and a count (none when count < 0), "err n"
+ * otherwise. */
 static void answer_counted(const uint8_t *buf, int n, long count)
 {
     if (n < 0) {
@@ -82,7 +72,15 @@ static void answer_counted(const uint8_t *buf, int n, long count)
     }
     fputs("ok ", stdout);
     print_hex(buf, n);
-    printf(" %ld\n", count);
+    if (count >= 0) {
+        printf(" %ld", count);
+    }
+    fputc('\n', stdout);
+}
+
+static void answer_bytes(const uint8_t *buf, int n)
+{
+    answer_counted(buf, n, -1);
 }
 
 /* A heap block of exactly cap bytes (1 for none). */
