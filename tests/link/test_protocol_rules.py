@@ -383,3 +383,66 @@ def test_a_damaged_serial_frame_gets_the_measurement_again_at_once(params) -> No
     assert rig.repeat_causes == {"framing": 1}
     f = rig.link.stats.framing
     assert f.crc_errors + f.cobs_errors == 1
+
+
+def test_a_damaged_serial_frame_in_real_time_holds_its_frame_and_is_flagged(params) -> None:
+    # real time over a pty (10 ms frames, a command delay of one frame): the board's
+    # answer to y_2 arrives with a flipped bit. Nothing is said again (real time has no
+    # repeats); the frame that answer was for runs on the held command (counted missing)
+    # and the next measurement the rig sends carries the framing flag (README, protocol
+    # rules: "in real time the command lost in the frame counts as missing (held, flag
+    # bit 1)", flag bit 5 for the damaged frame)
+    from cobs import cobs
+
+    from emulator.rig.clock import MonotonicClock
+
+    async def go():
+        master, slave = os.openpty()
+        link = open_link(f"serial://{os.ttyname(slave)}?baud=921600")
+        await link.open()
+        rig = Rig(params, link, mode="realtime", clock=MonotonicClock(), period_s=0.01)
+        os.set_blocking(master, False)
+        got: list[list] = []
+        buffer = bytearray()
+
+        async def board():
+            nonlocal buffer
+            while True:
+                await asyncio.sleep(0.0005)
+                with contextlib.suppress(BlockingIOError):
+                    buffer += os.read(master, 65536)
+                while b"\x00" in buffer:
+                    frame, _, rest = bytes(buffer).partition(b"\x00")
+                    buffer = bytearray(rest)
+                    m = msgpack.unpackb(cobs.decode(frame)[:-2])
+                    got.append(m)
+                    answer = bytearray(encode_frame(command(rig, m[H_SEQUENCE])))
+                    if m[H_SEQUENCE] == 2:
+                        answer[5] ^= 0x10  # one bit: COBS or the CRC fails
+                    os.write(master, bytes(answer))
+
+        task = asyncio.ensure_future(board())
+        try:
+            rig.start()
+            await asyncio.wait_for(rig.run(frames=8), 10.0)
+        finally:
+            task.cancel()
+            link.close()
+            rig.clock.close()
+            os.close(master)
+            os.close(slave)
+        return rig, got
+
+    rig, got = asyncio.run(go())
+    sequences = [m[H_SEQUENCE] for m in got]
+    assert sequences == list(range(len(sequences))) and len(sequences) >= 7  # no repeat
+    flagged = [m[H_SEQUENCE] for m in got if m[H_FLAGS] & FLAG_FRAMING]
+    assert len(flagged) == 1 and flagged[0] > 2, flagged
+    assert not any(m[H_FLAGS] & FLAG_REPEAT for m in got)
+    f = rig.link.stats.framing
+    assert f.crc_errors + f.cobs_errors == 1
+    # held: the damaged frame's, and any answer a busy machine delivered after its frame
+    # (counted late or expired by the rig), nothing else
+    link = rig.report()["link"]
+    late = link["sequence"].get("late", 0) + link["expired"]
+    assert rig.health.missing == 1 + late and rig.repeats == 0
