@@ -33,6 +33,7 @@ from typing import Any
 
 from emulator.controller.process import stop_controller
 from emulator.link import open_link
+from emulator.link.framing import FramingStats
 from emulator.plant.params import TrainsetParams
 from emulator.rig.clock import MonotonicClock
 from emulator.rig.frame_loop import Rig
@@ -184,16 +185,14 @@ def _one_rate(params: TrainsetParams, profile: Path, ber: float, fec: int, mode:
     link = rep["link"]
     framing = rep["transport"]["framing"]
     to_rig, to_board = cable.log["to_rig"], cable.log["to_board"]
-    mended = framing.get("fec_mended_frames", 0)
+    mended = framing["fec_mended_frames"]
     return {
         "ber": ber, "fec": fec, "frames": run["frames"], "wall_s": round(run["wall_s"], 2),
         "realtime_factor": round(run["realtime_factor"], 2),
         "spoiled_to_rig": to_rig["spoiled"], "spoiled_to_board": to_board["spoiled"],
         "frames_to_rig": to_rig["frames"], "clean_to_rig": to_rig["clean"],
         "rig_good_frames": framing["frames"], "fec_mended_to_rig": mended,
-        "rig_framing_errors": (framing["crc_errors"] + framing["cobs_errors"]
-                               + framing["runts"] + framing["oversized"]
-                               + framing.get("fec_failures", 0)),
+        "rig_framing_errors": FramingStats(**framing).dropped,
         "rejected": link["rejected"], "accepted": link["accepted"],
         "held": run["held"], "watchdog_trips": link["watchdog_trips"],
         "repeats": rep["lockstep_repeat_causes"],

@@ -7,7 +7,7 @@ from __future__ import annotations
 import numba as nb
 import numpy as np
 
-from .reed_solomon import CODEWORD_MAX, correct, generator, parity
+from .reed_solomon import CODEWORD_MAX, correct_with, generator, parity
 
 
 @nb.njit(cache=True)
@@ -86,6 +86,7 @@ def mend(frame, fec):
     if pad and frame[n_coded + n_groups - 1] & ((1 << pad) - 1):
         wrong += 1
     word = np.empty(CODEWORD_MAX, dtype=np.uint8)
+    gen = generator(fec)
     for b in range(blocks):
         start = b * k
         size = min(k, n_coded - start)
@@ -96,7 +97,7 @@ def mend(frame, fec):
                 bit = (b * fec + i) * 8 + j
                 v = (v << 1) | ((frame[n_coded + bit // 7] >> (6 - bit % 7)) & 1)
             word[size + i] = v
-        fixed = correct(word[:size + fec], fec)
+        fixed = correct_with(word[:size + fec], gen)
         if fixed < 0:
             return -1, 0
         wrong += fixed

@@ -113,13 +113,23 @@ def correct(codeword, n_parity):
     Returns the number of bytes corrected (0: it was a codeword), or -1 when the errors
     are more than the code can locate (codeword left as it was) or the lengths are not
     a code's (n_parity outside 1..len, a codeword past 255 bytes)."""
+    if n_parity < 1:
+        return -1
+    return correct_with(codeword, generator(n_parity))
+
+
+@nb.njit(cache=True)
+def correct_with(codeword, gen):
+    """correct() with the generator g(x) of its n_parity = len(gen) - 1 given (a caller
+    that mends many blocks builds it once)."""
     n = codeword.shape[0]
+    n_parity = gen.shape[0] - 1
     if n_parity < 1 or n_parity > n or n > CODEWORD_MAX:
         return -1
     # the common case first: the parity of the message part is the parity received
     # (a codeword), at the cost of encoding; the syndromes only otherwise
     again = np.empty(n_parity, dtype=np.uint8)
-    parity(codeword[:n - n_parity], generator(n_parity), again)
+    parity(codeword[:n - n_parity], gen, again)
     clean = True
     for j in range(n_parity):
         if again[j] != codeword[n - n_parity + j]:

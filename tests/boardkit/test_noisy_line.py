@@ -109,36 +109,47 @@ def test_real_time_holds_one_frame_per_spoiled_frame(kit_dir, ber) -> None:
     # realtime`, DEVELOPERS.md, not a test)
 
 
-def test_frames_run_ahead_give_the_run_of_frames_run_one_by_one(kit_dir, tmp_path) -> None:
+def _recorded(kit_dir, path, ber: float, run_ahead: bool = True, **cable):
+    """400 lockstep frames over the cable, recorded to path: (recording, report, log)."""
+    def setup(rig) -> None:
+        rig.run_ahead = run_ahead
+        rig.start_recording(str(path))
+
+    result, log = _over_the_cable(kit_dir, ber, "lockstep", frames=400, setup=setup,
+                                  **cable)
+    return read_recording(path), result["report"], log
+
+
+@pytest.fixture(scope="module")
+def one_by_one(kit_dir, tmp_path_factory):
+    """The reference of the recorded runs below: the clean plain cable, each frame
+    waiting for its answer (no frame run ahead): (recording, report)."""
+    path = tmp_path_factory.mktemp("clean") / "one-by-one.rrec"
+    recording, report, _ = _recorded(kit_dir, path, 0.0, run_ahead=False)
+    return recording, report
+
+
+def test_frames_run_ahead_give_the_run_of_frames_run_one_by_one(kit_dir, tmp_path,
+                                                                one_by_one) -> None:
     # In lockstep the rig runs frame k while the board computes its answer to y_k (frame
     # k acts on the answer to y_(k-1)): the board must see exactly what it saw when each
     # frame waited for its answer, repeats of y_k included. The reference is the run one
     # frame at a time on a clean cable; the kit's example is deterministic, so any
     # difference in what it was sent (a repeat carrying y_(k+1), a flag, a time) shows in
     # its commands and so in the recorded run.
-    def recorded(ber: float, run_ahead: bool) -> tuple[object, dict]:
-        path = tmp_path / f"{ber:g}-{run_ahead}.rrec"
-
-        def setup(rig) -> None:
-            rig.run_ahead = run_ahead
-            rig.start_recording(str(path))
-
-        result, _ = _over_the_cable(kit_dir, ber, "lockstep", frames=400, setup=setup)
-        return read_recording(path), result["report"]
-
-    one_by_one, plain = recorded(0.0, False)
-    ahead, clean = recorded(0.0, True)
-    noisy_ahead, noisy = recorded(1e-3, True)
+    reference, plain = one_by_one
+    ahead, clean, _ = _recorded(kit_dir, tmp_path / "ahead.rrec", 0.0)
+    noisy_ahead, noisy, _ = _recorded(kit_dir, tmp_path / "noisy.rrec", 1e-3)
     assert plain["frames_ahead"] == 0 and clean["frames_ahead"] >= 390
     assert noisy["lockstep_repeats"] > 50  # y_k said again while frame k had run ahead
     assert noisy["frames_ahead"] > 0
-    assert one_by_one.data.shape == (401, len(one_by_one.columns))  # 1 + 400 frames
-    assert ahead.data.tobytes() == one_by_one.data.tobytes()
-    assert noisy_ahead.data.tobytes() == one_by_one.data.tobytes()
+    assert reference.data.shape == (401, len(reference.columns))  # 1 + 400 frames
+    assert ahead.data.tobytes() == reference.data.tobytes()
+    assert noisy_ahead.data.tobytes() == reference.data.tobytes()
 
 
-def test_forward_error_correction_mends_what_it_can_and_changes_nothing(kit_dir,
-                                                                       tmp_path) -> None:
+def test_forward_error_correction_mends_what_it_can_and_changes_nothing(kit_dir, tmp_path,
+                                                                       one_by_one) -> None:
     # With fec = 16 at both ends (the kit's railrig_fec.c, the rig's framing.py) a frame
     # hit by the line is mended when it can be, else caught and said again as without
     # it. The reference is again the run one frame at a time on a clean plain cable: the
@@ -146,16 +157,9 @@ def test_forward_error_correction_mends_what_it_can_and_changes_nothing(kit_dir,
     # either direction, would show in the recorded run. The cable's log is the other
     # reference: the rig decodes exactly the frames that crossed untouched and those
     # it says it mended, and mends a frame only if the line hit it.
-    def recorded(ber: float, fec: int) -> tuple[object, dict, dict]:
-        path = tmp_path / f"{ber:g}-{fec}.rrec"
-        result, log = _over_the_cable(kit_dir, ber, "lockstep", frames=400, fec=fec,
-                                      setup=lambda rig: rig.start_recording(str(path)))
-        return read_recording(path), result["report"], log
-
-    plain, _, _ = recorded(0.0, 0)
-    mended, report, log = recorded(1e-3, 16)
+    mended, report, log = _recorded(kit_dir, tmp_path / "fec.rrec", 1e-3, fec=16)
     framing = report["transport"]["framing"]
-    assert mended.data.tobytes() == plain.data.tobytes()
+    assert mended.data.tobytes() == one_by_one[0].data.tobytes()
     assert report["link"]["rejected"] == {} and report["link"]["missing"] == 0
     assert framing["frames"] == log["to_rig"]["clean"] + framing["fec_mended_frames"]
     assert framing["fec_mended_frames"] <= log["to_rig"]["spoiled"]
@@ -169,26 +173,19 @@ def test_forward_error_correction_mends_what_it_can_and_changes_nothing(kit_dir,
 
 @pytest.mark.parametrize("fec", [0, 16])
 def test_lost_and_inserted_bytes_cost_repeats_and_change_nothing(kit_dir, tmp_path,
-                                                                 fec) -> None:
+                                                                 one_by_one, fec) -> None:
     # bytes lost and bytes inserted on the line (a UART overrun, noise read as a start
     # bit) shift everything after them, so a frame hit so is never mended, only caught
     # and said again; with bit errors too, with and without FEC. The reference is the
     # clean plain cable's run one frame at a time: the recorded runs must be bit for bit
     # the same, and the rig must decode exactly the frames that crossed untouched or
     # that it mended (frames with a lost or inserted byte cannot be mended)
-    def recorded(ber: float, drop: float, insert: float, fec: int):
-        path = tmp_path / f"{ber:g}-{drop:g}-{fec}.rrec"
-        result, log = _over_the_cable(kit_dir, ber, "lockstep", drop=drop, insert=insert,
-                                      frames=400, fec=fec,
-                                      setup=lambda rig: rig.start_recording(str(path)))
-        return read_recording(path), result["report"], log
-
-    clean, _, _ = recorded(0.0, 0.0, 0.0, 0)
-    noisy, report, log = recorded(1e-4, 2e-4, 2e-4, fec)
+    noisy, report, log = _recorded(kit_dir, tmp_path / "noisy.rrec", 1e-4, drop=2e-4,
+                                   insert=2e-4, fec=fec)
     framing = report["transport"]["framing"]
     assert log["to_rig"]["dropped_bytes"] + log["to_board"]["dropped_bytes"] > 0, log
     assert log["to_rig"]["inserted_bytes"] + log["to_board"]["inserted_bytes"] > 0, log
-    assert noisy.data.tobytes() == clean.data.tobytes()
+    assert noisy.data.tobytes() == one_by_one[0].data.tobytes()
     assert report["link"]["rejected"] == {} and report["link"]["missing"] == 0
     assert framing["frames"] == log["to_rig"]["clean"] + framing["fec_mended_frames"]
     assert report["lockstep_repeats"] > 0
