@@ -141,5 +141,8 @@ LOCKSTEP_PACING = (
     "side may start first, and a measurement lost on the way (or whose 0x00 delimiter "
     "was lost) is said again without a request.",
     "A repeated measurement carries the same sequence: answer it with the same command "
-    "(do not run your control a second time for it).",
+    "(do not run your control a second time for it). A second answer to a measurement "
+    "the rig said again (of its last eight repeats) is counted as an answer to a "
+    "repeat, not flagged as a sequence error, even when it arrives after a later "
+    "repeat.",
 )

@@ -20,7 +20,7 @@ from __future__ import annotations
 import asyncio
 import gc
 import logging
-from collections import Counter
+from collections import Counter, deque
 from typing import Any
 
 import numpy as np
@@ -146,7 +146,10 @@ class Rig(LockstepPacing, RecordsFrames):
         self.repeats = 0  # lockstep: measurements said again (the causes: repeat_causes)
         self.repeat_causes: Counter = Counter()  # silence, bad_telegram, framing, request
         self._repeat_asked = False
-        self._repeated = -1  # the last sequence said again: a second answer is no error
+        self._repeated = -1  # the last sequence said again (no round-trip sample from it)
+        #: lockstep: the sequences said again lately: a second answer to any is no error
+        #: (a board's answer to an earlier repeat can cross a later one)
+        self._said_again: deque[int] = deque(maxlen=8)
         self._round_trip = RoundTrip()  # lockstep round trips (RFC 6298 estimator)
         self._y = np.zeros(len(sm.measurements))
         self._sent_ns = np.zeros(8, dtype=np.int64)  # when y_k went out, by k mod 8
@@ -192,8 +195,8 @@ class Rig(LockstepPacing, RecordsFrames):
             seq = tg.sequence
             if seq > k:
                 self._sequence_error("unexpected")  # answers a measurement never sent
-            elif seq == self._repeated and (
-                    seq in self._answers or seq == self._last_used or seq == last_used):
+            elif (seq == self._repeated or seq in self._said_again) and (
+                    seq in self._answers or seq <= self._last_used or seq == last_used):
                 self.health.answers_to_repeats += 1  # we asked twice: not their error
             elif seq in self._answers or seq <= self._last_used:  # (>= last_used)
                 self._sequence_error("duplicate" if seq in self._answers

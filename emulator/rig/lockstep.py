@@ -43,6 +43,7 @@ class LockstepPacing:
         self.link.send(self.codec.encode(self._sent_frame, self._sent_time_us,
                                          self.period_us, flags, y))
         self._repeated = self._sent_frame
+        self._said_again.append(self._sent_frame)
         self._sent_flags = flags & ~FLAG_REPEAT
         self._flags = 0
         self.repeats += 1

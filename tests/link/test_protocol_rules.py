@@ -21,6 +21,7 @@ from emulator.protocol.header import (
     FLAG_BAD_TELEGRAM,
     FLAG_FRAMING,
     FLAG_REPEAT,
+    FLAG_SEQUENCE,
     H_FLAGS,
     H_MAP_DIGEST,
     H_PERIOD_US,
@@ -446,3 +447,40 @@ def test_a_damaged_serial_frame_in_real_time_holds_its_frame_and_is_flagged(para
     link = rig.report()["link"]
     late = link["sequence"].get("late", 0) + link["expired"]
     assert rig.health.missing == 1 + late and rig.repeats == 0
+
+
+def test_an_answer_to_an_earlier_repeat_after_a_later_one_is_no_sequence_error(params) -> None:
+    # The board asks for y_4 again (it lost it), answers the repeat, and keeps a second
+    # answer to y_4 back (it answered y_4 twice: the copy it had and the repeat); then it
+    # asks for y_5 again too, and the held answer to y_4 arrives after the rig has said
+    # y_5 again. Both second answers are to measurements the rig itself said again:
+    # counted as answers to repeats, no sequence error flagged to the board (before the
+    # fix the rig remembered only its last repeat, and the held y_4 answer was a
+    # "duplicate" with flag bit 3; a board's relay met it in the kit's serial test).
+    held: list[bytes] = []
+    asked = {4, 5}
+    board: dict = {}
+
+    def answer(rig, m):
+        seq = m[H_SEQUENCE]
+        if seq in asked and not m[H_FLAGS] & FLAG_REPEAT:
+            asked.discard(seq)
+            return _with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
+        if seq == 4:  # the repeat of y_4: its answer now, a second one held back
+            held.append(command(rig, 4))
+        if seq == 5 and m[H_FLAGS] & FLAG_REPEAT:
+            board["link"].send(held.pop())  # y_4's second answer, after y_5's repeat
+        return command(rig, seq)
+
+    async def go():
+        rig, ctl = await make_rig(params, answer, mode="lockstep")
+        board["link"] = ctl.link
+        await rig.run(frames=8)
+        return rig, ctl
+    rig, ctl = run(go())
+    heads = [msgpack.unpackb(p)[:6] for p in ctl.received]
+    assert [h[H_SEQUENCE] for h in heads] == [0, 1, 2, 3, 4, 4, 5, 5, 6, 7, 8]
+    assert not held and rig.health.repeat_requests == 2
+    assert rig.health.answers_to_repeats == 1
+    assert sum(rig.health.sequence.values()) == 0
+    assert not any(h[H_FLAGS] & FLAG_SEQUENCE for h in heads)
