@@ -1,8 +1,10 @@
 """Plant cost benchmark: figures printed, never asserted (the machines are shared and noisy).
 
 Measures one frame of the plant at the profile's frame and sub-step while the drive is
-under load, the cost as the trainset grows (motors replicated), and the same frame of
-the machines by ``scipy.integrate.solve_ivp`` for a ratio measured in the same run.
+under load, the cost as the trainset grows (motors replicated), and a frame of the
+machines alone (held voltages, free shafts) by ``scipy.integrate.solve_ivp`` and by our
+plant, for ratios measured in the same run: solve_ivp's against our whole frame, and
+against ours of the same machines, with how far each lands from a tight reference.
 """
 
 from __future__ import annotations
@@ -88,44 +90,132 @@ def replicated(params: TrainsetParams, n_motors: int) -> TrainsetParams:
                                line_converters=tuple(units))
 
 
-def _solve_ivp_frame_us(params: TrainsetParams, repeats: int) -> float:
-    """Median time of one frame of all the trainset's machines by solve_ivp (RK45).
+class _Machines:
+    """The problem both sides solve for the ratio: the trainset's machines with held
+    voltages (900 V, a different angle each) and free shafts carrying the drivetrain's
+    inertia referred to the rotor, linear magnetising inductance, resistances at the
+    reference temperature, no core loss, friction or windage; from psi_s = 2.0, psi_r = 1.9 V s and
+    300 rad/s, one frame. Equations: machine.py's module docstring."""
 
-    Only the machines (flux linkages and shafts) with held voltages: the part the
-    plant's closed form replaces. rtol 1e-6, a usual engineering tolerance.
-    """
-    from scipy.integrate import solve_ivp
+    def __init__(self, params: TrainsetParams) -> None:
+        mp, dt = params.machine, params.drivetrain
+        self.params, self.n = params, params.motor_count
+        self.u = 900.0 * np.exp(1j * np.linspace(0, 2 * np.pi, self.n, endpoint=False))
+        self.inertia = mp.rotor_inertia_kgm2 + (
+            dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2) / dt.gear_ratio ** 2
+        self.psi_s0, self.psi_r0, self.omega0 = 2.0, 1.9, 300.0
 
-    mp = params.machine
-    n = params.motor_count
-    lm = mp.magnetising_h
-    ls, lr = mp.stator_leakage_h + lm, mp.rotor_leakage_h + lm
-    d = ls * lr - lm * lm
-    p = mp.pole_pairs
-    u = 900.0 * np.exp(1j * np.linspace(0, 2 * np.pi, n, endpoint=False))
-    dt = params.drivetrain
-    inertia = mp.rotor_inertia_kgm2 + (dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2) / (
-        dt.gear_ratio ** 2)
-
-    def rhs(_t: float, y: np.ndarray) -> np.ndarray:
+    def rhs(self, _t: float, y: np.ndarray) -> np.ndarray:
+        mp, n = self.params.machine, self.n
+        lm = mp.magnetising_h
+        ls, lr = mp.stator_leakage_h + lm, mp.rotor_leakage_h + lm
+        d = ls * lr - lm * lm
         ps = y[0:n] + 1j * y[n:2 * n]
         pr = y[2 * n:3 * n] + 1j * y[3 * n:4 * n]
         w = y[4 * n:]
         i_s = (lr * ps - lm * pr) / d
         i_r = (ls * pr - lm * ps) / d
-        dps = u - mp.stator_resistance_ohm * i_s
-        dpr = -mp.rotor_resistance_ohm * i_r + 1j * p * w * pr
-        torque = 1.5 * p * (ps.real * i_s.imag - ps.imag * i_s.real)
-        return np.concatenate([dps.real, dps.imag, dpr.real, dpr.imag, torque / inertia])
+        dps = self.u - mp.stator_resistance_ohm * i_s
+        dpr = -mp.rotor_resistance_ohm * i_r + 1j * mp.pole_pairs * w * pr
+        torque = 1.5 * mp.pole_pairs * (ps.real * i_s.imag - ps.imag * i_s.real)
+        return np.concatenate([dps.real, dps.imag, dpr.real, dpr.imag, torque / self.inertia])
 
-    y0 = np.concatenate([np.full(n, 2.0), np.zeros(n), np.full(n, 1.9), np.zeros(n),
-                         np.full(n, 300.0)])
+    def y0(self) -> np.ndarray:
+        n = self.n
+        return np.concatenate([np.full(n, self.psi_s0), np.zeros(n), np.full(n, self.psi_r0),
+                               np.zeros(n), np.full(n, self.omega0)])
+
+    def plant(self) -> Plant:
+        """Our plant set up as the same problem: one ideal source (a held voltage: a
+        0 Hz sine) per machine, each shaft free, at the profile's frame and sub-step with
+        the matrices refreshed once a frame (as the trainset runs)."""
+        p = self.params
+        one = Plant.test_bench(p.machine, 1, substep_s=p.substep_s, frame_s=p.frame_s,
+                               refresh_each_substep=False).params
+        each = tuple(dataclasses.replace(one.converters[0], name=f"bench {i}")
+                     for i in range(self.n))
+        plant = Plant(dataclasses.replace(one, converters=each), refresh_each_substep=False)
+        plant.mint[:, L.MI_SAT_POINTS] = 0  # linear magnetising inductance
+        plant.mpar[:, L.MP_G_CORE] = 0.0  # no core loss
+        plant.mpar[:, L.MP_C_FW] = 0.0  # no friction and windage
+        plant.mpar[:, L.MP_J_ROTOR] = self.inertia
+        for m in range(self.n):
+            plant.free_shaft(m, 0.0)
+            plant.drive_from_sine(m, abs(self.u[m]), 0.0, float(np.angle(self.u[m])))
+        self.restart(plant)
+        return plant
+
+    def restart(self, plant: Plant) -> None:
+        """Back to the initial state (the matrices are rebuilt at the frame's start)."""
+        plant.mx[:, L.MX_PSI_S] = self.psi_s0
+        plant.mx[:, L.MX_PSI_R] = self.psi_r0
+        plant.ms[:, L.MS_OMEGA_M] = self.omega0
+        plant.ms[:, L.MS_OMEGA_AT_REFRESH] = self.omega0
+        plant.ms[:, L.MS_T_STATOR] = plant.mpar[:, L.MP_T_REF]
+        plant.ms[:, L.MS_T_ROTOR] = plant.mpar[:, L.MP_T_REF]
+
+    def state(self, plant: Plant) -> np.ndarray:
+        """The plant's machines as solve_ivp's state vector."""
+        ps, pr = plant.mx[:, L.MX_PSI_S], plant.mx[:, L.MX_PSI_R]
+        return np.concatenate([ps.real, ps.imag, pr.real, pr.imag, plant.ms[:, L.MS_OMEGA_M]])
+
+
+def _solve_ivp_frame_us(problem: _Machines, repeats: int) -> tuple[float, np.ndarray]:
+    """Median time of one frame of the machines by solve_ivp (RK45, rtol 1e-6: a usual
+    engineering tolerance; atol 1e-9), and its end state."""
+    from scipy.integrate import solve_ivp
+
     samples = []
     for _ in range(repeats):
         t0 = time.perf_counter_ns()
-        solve_ivp(rhs, (0.0, params.frame_s), y0, method="RK45", rtol=1e-6, atol=1e-9)
+        sol = solve_ivp(problem.rhs, (0.0, problem.params.frame_s), problem.y0(),
+                        method="RK45", rtol=1e-6, atol=1e-9)
         samples.append((time.perf_counter_ns() - t0) / 1e3)
-    return float(np.median(samples))
+    return float(np.median(samples)), sol.y[:, -1]
+
+
+def _our_machines_frame_us(problem: _Machines, repeats: int,
+                           refresh_each: bool) -> tuple[float, np.ndarray]:
+    """Median time of our plant's frame of the same machines (each from the initial
+    state), its matrices refreshed once a frame or at each sub-step, and its end state."""
+    plant = problem.plant()
+    plant.refresh_each_substep = refresh_each
+    plant.advance(None)  # compiled or loaded before the clock
+    samples = []
+    for _ in range(repeats):
+        problem.restart(plant)
+        t0 = time.perf_counter_ns()
+        plant.advance(None)
+        samples.append((time.perf_counter_ns() - t0) / 1e3)
+    return float(np.median(samples)), problem.state(plant)
+
+
+def _machines_ratio(params: TrainsetParams, repeats: int) -> dict[str, float]:
+    """solve_ivp's frame of the machines against ours of the same machines, with how far
+    apart their end states are (relative to each quantity's largest magnitude); the
+    reference for the agreement is solve_ivp with DOP853 at rtol 1e-12. Ours twice: the
+    matrices refreshed once a frame, as a trainset runs (the speed frozen at its
+    predicted mid-frame value: on these free shafts, whose torque swings within the
+    frame, that is the larger error), and at each sub-step."""
+    from scipy.integrate import solve_ivp
+
+    problem = _Machines(params)
+    ivp_us, ivp_end = _solve_ivp_frame_us(problem, repeats)
+    ours_us, ours_end = _our_machines_frame_us(problem, 5 * repeats, False)
+    each_us, each_end = _our_machines_frame_us(problem, 5 * repeats, True)
+    ref = solve_ivp(problem.rhs, (0.0, params.frame_s), problem.y0(), method="DOP853",
+                    rtol=1e-12, atol=1e-12).y[:, -1]
+    n = problem.n
+
+    def apart(y: np.ndarray) -> float:
+        flux = np.abs(y[:4 * n] - ref[:4 * n]).max() / np.abs(ref[:4 * n]).max()
+        speed = np.abs(y[4 * n:] - ref[4 * n:]).max() / np.abs(ref[4 * n:]).max()
+        return float(max(flux, speed))
+
+    return {"solve_ivp_us": ivp_us, "ours_us": ours_us, "ratio": ivp_us / ours_us,
+            "solve_ivp_apart": apart(ivp_end), "ours_apart": apart(ours_end),
+            "each_us": each_us, "each_ratio": ivp_us / each_us,
+            "each_apart": apart(each_end)}
 
 
 def plant_benchmark(params: TrainsetParams, frames: int = 3000) -> dict[str, Any]:
@@ -139,7 +229,8 @@ def plant_benchmark(params: TrainsetParams, frames: int = 3000) -> dict[str, Any
     slope, intercept = np.polyfit(counts, cost, 1)
     budget = 0.1 * frame_us
     fit = math.floor((budget - intercept) / slope) if slope > 0 else 0
-    ivp = _solve_ivp_frame_us(params, repeats=15)
+    machines = _machines_ratio(params, repeats=15)
+    ivp = machines["solve_ivp_us"]
     return {
         "profile": params.name,
         "frame_us": frame_us,
@@ -154,4 +245,11 @@ def plant_benchmark(params: TrainsetParams, frames: int = 3000) -> dict[str, Any
         "motors_in_10pct": max(fit, 0),
         "solve_ivp_frame_us_median": round(ivp, 1),
         "solve_ivp_ratio": round(ivp / median, 1),
+        "machines_frame_us_median": round(machines["ours_us"], 2),
+        "solve_ivp_machines_ratio": round(machines["ratio"], 1),
+        "machines_frame_us_refresh_each_substep": round(machines["each_us"], 2),
+        "solve_ivp_machines_ratio_refresh_each_substep": round(machines["each_ratio"], 1),
+        "machines_apart_ours": float(f"{machines['ours_apart']:.2e}"),
+        "machines_apart_ours_refresh_each_substep": float(f"{machines['each_apart']:.2e}"),
+        "machines_apart_solve_ivp": float(f"{machines['solve_ivp_apart']:.2e}"),
     }

@@ -126,9 +126,21 @@ def run(args: argparse.Namespace) -> int:
         table.add_row(f"  {n} motors", f"{c:.1f} us")
     table.add_row("cost per motor", f"{figures['us_per_motor']:.2f} us")
     table.add_row("motors within 10 % of a frame", str(figures["motors_in_10pct"]))
-    table.add_row("same frame by solve_ivp (RK45, machines only)",
-                  f"{figures['solve_ivp_frame_us_median']:.0f} us")
-    table.add_row("solve_ivp / plant", f"{figures['solve_ivp_ratio']:.0f}x")
+    table.add_row("the machines alone by solve_ivp (RK45, rtol 1e-6)",
+                  f"{figures['solve_ivp_frame_us_median']:.0f} us, "
+                  f"{figures['machines_apart_solve_ivp']:.1e} from the reference")
+    table.add_row("  by our plant (matrices once a frame)",
+                  f"{figures['machines_frame_us_median']:.1f} us, "
+                  f"{figures['machines_apart_ours']:.1e} from the reference")
+    table.add_row("  by our plant (matrices each sub-step)",
+                  f"{figures['machines_frame_us_refresh_each_substep']:.1f} us, "
+                  f"{figures['machines_apart_ours_refresh_each_substep']:.1e} from the "
+                  "reference")
+    table.add_row("solve_ivp / our machines (once a frame; each sub-step)",
+                  f"{figures['solve_ivp_machines_ratio']:.0f}x; "
+                  f"{figures['solve_ivp_machines_ratio_refresh_each_substep']:.0f}x")
+    table.add_row("solve_ivp's machines / our whole frame",
+                  f"{figures['solve_ivp_ratio']:.0f}x")
     Console().print(table)
     return 0
 

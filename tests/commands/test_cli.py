@@ -66,5 +66,7 @@ def test_bench_json_has_the_documented_keys() -> None:
     assert out.returncode == 0
     figures = json.loads(out.stdout)
     for key in ("plant_frame_us_median", "plant_frame_us_p99", "frame_fraction",
-                "motors_in_10pct", "solve_ivp_ratio"):
+                "motors_in_10pct", "solve_ivp_ratio", "machines_frame_us_median",
+                "solve_ivp_machines_ratio", "machines_apart_ours",
+                "machines_apart_solve_ivp"):
         assert isinstance(figures[key], int | float)
