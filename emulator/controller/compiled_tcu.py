@@ -222,10 +222,9 @@ class CompiledController(ref.ReferenceController):
     def answer(self, payload: bytes) -> bytes:
         """The command telegram for a measurement telegram."""
         y, head = self._y, self._head
-        if msgpack_array.unpack(np.frombuffer(payload, dtype=np.uint8), head, y,
-                                self._scratch) == 0:
-            seq, period_us, flags = int(head[1]), int(head[3]), int(head[4])
-            y *= self._m_scale
+        if msgpack_array.unpack_scaled(np.frombuffer(payload, dtype=np.uint8), head, y,
+                                       self._scratch, self._m_scale) == 0:
+            _, seq, _, period_us, flags, _ = head.tolist()
         else:  # not the plain case: the msgpack package reads it, or says why not
             seq, period_us, flags = self._read_checked(payload, y)
         if seq == self._last_seq:  # said again (the rig lost our answer): not a new period

@@ -193,3 +193,14 @@ def unpack(data, header, values, scratch):
     if pos != n_data:
         return -1
     return 0
+
+
+@nb.njit(cache=True)
+def unpack_scaled(data, header, values, scratch, scales):
+    """unpack(), then each value times its scale (wire units to physical ones, the same
+    products as numpy's ``values *= scales``). Returns unpack()'s code."""
+    code = unpack(data, header, values, scratch)
+    if code == 0:
+        for i in range(values.shape[0]):
+            values[i] *= scales[i]
+    return code

@@ -97,20 +97,20 @@ class TelegramCodec:
         with contextlib.suppress(TelegramError):
             self.decode(b"")
         _first_bad(np.zeros(1), np.zeros(1), np.ones(1), np.ones(1, dtype=np.bool_))
+        _read_plain(np.zeros(1, dtype=np.uint8), self._got_header, np.zeros(self._n_recv),
+                    self._scratch, self._recv_scales, self._lo, self._hi, self._whole)
 
     def decode(self, payload: bytes) -> Telegram:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""
         values = np.empty(self._n_recv)
         head = self._got_header
-        if msgpack_array.unpack(np.frombuffer(payload, dtype=np.uint8), head, values,
-                                self._scratch) == 0 and head[0] == self.version and (
-                                    head[5] == 0 or head[5] == self.map_digest) and (
-                                    head[3] >= 0 and head[4] >= 0):
-            # the plain case, compiled; the ranges are checked as below
-            values *= self._recv_scales
-            if _first_bad(values, self._lo, self._hi, self._whole) < 0:
-                return Telegram(int(head[0]), int(head[1]), int(head[2]), int(head[3]),
-                                int(head[4]), int(head[5]), values)
+        if _read_plain(np.frombuffer(payload, dtype=np.uint8), head, values, self._scratch,
+                       self._recv_scales, self._lo, self._hi, self._whole):
+            # the plain case, compiled, its values in range; the header checked here
+            version, sequence, time_us, period_us, flags, digest = head.tolist()
+            if version == self.version and (digest == 0 or digest == self.map_digest) and (
+                    period_us >= 0 and flags >= 0):
+                return Telegram(version, sequence, time_us, period_us, flags, digest, values)
         return self._decode_checked(payload)
 
     def _decode_checked(self, payload: bytes) -> Telegram:
@@ -164,6 +164,17 @@ class TelegramCodec:
 
 
 _NUMBERS = (int, float)
+
+
+@nb.njit(cache=True)
+def _read_plain(data: np.ndarray, header: np.ndarray, values: np.ndarray,
+                scratch: np.ndarray, scales: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+                whole: np.ndarray) -> bool:
+    """The plain telegram (msgpack_array.unpack) into header and values, the values
+    scaled to physical units and all in range (_first_bad): whether it was that."""
+    if msgpack_array.unpack_scaled(data, header, values, scratch, scales) != 0:
+        return False
+    return _first_bad(values, lo, hi, whole) < 0
 
 
 @nb.njit(cache=True)

@@ -286,12 +286,15 @@ def _fill_commands(values, duty_pos, gate_pos, reset_pos, gates_allowed, duty, g
                    chopper):
     """The command vector into the plant's command arrays; the rig's watchdog
     (gates_allowed False) blocks the inverters', the line converters' gates and the
-    chopper, while the contactors keep their command."""
+    chopper, while the contactors keep their command. Returns whether any inverter's
+    fault reset is asked for."""
+    any_reset = False
     for k in range(duty_pos.shape[0]):
         for x in range(3):
             duty[k, x] = values[duty_pos[k, x]]
         gates[k] = gates_allowed and values[gate_pos[k]] >= 0.5
         reset[k] = values[reset_pos[k]] >= 0.5
+        any_reset = any_reset or reset[k]
     for j in range(line_pos.shape[0]):
         modulation[j] = values[line_pos[j, 0]]
         line_gates[j] = values[line_pos[j, 1]] >= 0.5 and gates_allowed
@@ -299,6 +302,7 @@ def _fill_commands(values, duty_pos, gate_pos, reset_pos, gates_allowed, duty, g
         contactor[j] = values[line_pos[j, 3]] >= 0.5
     for i in range(chopper_pos.shape[0]):
         chopper[i] = values[chopper_pos[i]] if gates_allowed else 0.0
+    return any_reset
 
 
 class CommandMapper:
@@ -312,8 +316,8 @@ class CommandMapper:
         self._gate_pos = np.array([names.index(f"{c.name}.gates_enabled") for c in convs])
         self._reset_pos = np.array([names.index(f"{c.name}.fault_reset") for c in convs])
         self._reply_pos = names.index("tcu.achieved_effort_kn")
-        self._cmd = Commands(np.full((len(convs), 3), 0.5), np.zeros(len(convs), dtype=bool),
-                             fault_reset=np.zeros(len(convs), dtype=bool))
+        self._cmd = Commands(np.full((len(convs), 3), 0.5), np.zeros(len(convs), dtype=bool))
+        self._reset = np.zeros(len(convs), dtype=bool)
         self.safe = np.zeros(len(names))
         self.safe[self._duty_pos] = 0.5  # gates blocked, duties at mid
         self._line_pos = None
@@ -334,15 +338,17 @@ class CommandMapper:
     def commands(self, values: np.ndarray, gates_allowed: bool = True) -> Commands:
         """Plant commands; gates_allowed=False blocks every inverter (rig watchdog).
 
-        Fills the same Commands object every frame (no allocation in the frame loop).
+        Fills the same Commands object every frame (no allocation in the frame loop); its
+        fault_reset is None when no inverter asks for one (the plant looks no further).
         """
         cmd = self._cmd
         pos, breaker, chopper = self._line_pos or self._no_line
         line = cmd.line or self._no_line_commands
-        _fill_commands(values, self._duty_pos, self._gate_pos, self._reset_pos, gates_allowed,
-                       cmd.duty, cmd.gates_enabled, cmd.fault_reset, pos, chopper,
-                       line.modulation, line.gates_enabled, line.precharge,
-                       line.line_contactor, line.chopper)
+        any_reset = _fill_commands(values, self._duty_pos, self._gate_pos, self._reset_pos,
+                                   gates_allowed, cmd.duty, cmd.gates_enabled, self._reset,
+                                   pos, chopper, line.modulation, line.gates_enabled,
+                                   line.precharge, line.line_contactor, line.chopper)
+        cmd.fault_reset = self._reset if any_reset else None
         if cmd.line is not None:  # the breaker keeps its command under the watchdog too
             line.breaker = bool(values[breaker] >= 0.5)
         return cmd
