@@ -160,16 +160,17 @@ class _Machines:
         return np.concatenate([ps.real, ps.imag, pr.real, pr.imag, plant.ms[:, L.MS_OMEGA_M]])
 
 
-def _solve_ivp_frame_us(problem: _Machines, repeats: int) -> tuple[float, np.ndarray]:
-    """Median time of one frame of the machines by solve_ivp (RK45, rtol 1e-6: a usual
-    engineering tolerance; atol 1e-9), and its end state."""
+def _solve_ivp_frame_us(problem: _Machines, repeats: int, rtol: float = 1e-6,
+                        atol: float = 1e-9) -> tuple[float, np.ndarray]:
+    """Median time of one frame of the machines by solve_ivp (RK45; by default rtol 1e-6,
+    a usual engineering tolerance, atol 1e-9), and its end state."""
     from scipy.integrate import solve_ivp
 
     samples = []
     for _ in range(repeats):
         t0 = time.perf_counter_ns()
         sol = solve_ivp(problem.rhs, (0.0, problem.params.frame_s), problem.y0(),
-                        method="RK45", rtol=1e-6, atol=1e-9)
+                        method="RK45", rtol=rtol, atol=atol)
         samples.append((time.perf_counter_ns() - t0) / 1e3)
     return float(np.median(samples)), sol.y[:, -1]
 
@@ -203,6 +204,10 @@ def _machines_ratio(params: TrainsetParams, repeats: int) -> dict[str, float]:
     ivp_us, ivp_end = _solve_ivp_frame_us(problem, repeats)
     ours_us, ours_end = _our_machines_frame_us(problem, 5 * repeats, False)
     each_us, each_end = _our_machines_frame_us(problem, 5 * repeats, True)
+    # RK45 loosened to rtol = atol = 1e-3: still closer to the reference than our frame
+    # refreshed once a frame (measured 9.8e-6 against 7.7e-5), so a ratio at no better
+    # accuracy for ours
+    loose_us, loose_end = _solve_ivp_frame_us(problem, repeats, 1e-3, 1e-3)
     ref = solve_ivp(problem.rhs, (0.0, params.frame_s), problem.y0(), method="DOP853",
                     rtol=1e-12, atol=1e-12).y[:, -1]
     n = problem.n
@@ -215,7 +220,8 @@ def _machines_ratio(params: TrainsetParams, repeats: int) -> dict[str, float]:
     return {"solve_ivp_us": ivp_us, "ours_us": ours_us, "ratio": ivp_us / ours_us,
             "solve_ivp_apart": apart(ivp_end), "ours_apart": apart(ours_end),
             "each_us": each_us, "each_ratio": ivp_us / each_us,
-            "each_apart": apart(each_end)}
+            "each_apart": apart(each_end), "loose_us": loose_us,
+            "loose_ratio": loose_us / ours_us, "loose_apart": apart(loose_end)}
 
 
 def plant_benchmark(params: TrainsetParams, frames: int = 3000) -> dict[str, Any]:
@@ -252,4 +258,7 @@ def plant_benchmark(params: TrainsetParams, frames: int = 3000) -> dict[str, Any
         "machines_apart_ours": float(f"{machines['ours_apart']:.2e}"),
         "machines_apart_ours_refresh_each_substep": float(f"{machines['each_apart']:.2e}"),
         "machines_apart_solve_ivp": float(f"{machines['solve_ivp_apart']:.2e}"),
+        "solve_ivp_loose_frame_us_median": round(machines["loose_us"], 1),
+        "machines_apart_solve_ivp_loose": float(f"{machines['loose_apart']:.2e}"),
+        "solve_ivp_loose_machines_ratio": round(machines["loose_ratio"], 1),
     }

@@ -2,14 +2,19 @@
 process and in its own over UDP, and what each stage of a frame costs.
 
 The real-time factors come from plain runs (nothing measured inside them); the stage
-costs from a third, in-process run whose stages are each wrapped in a timer (and which
-records to a scratch file, so the recorder's share shows). Wall time counts from the
-first frame, so neither a controller process starting up nor the compile is in it.
+costs from a third, in-process run whose stages are each wrapped in a timer, which
+records to a scratch file (so the recorder's share shows) and has the monitor endpoint
+open with one client reading its telemetry (a child process that only reads, so the
+monitor's share shows: what the frame loop spends on it, not the dashboard's drawing).
+Wall time counts from the first frame, so neither a controller process starting up nor
+the compile is in it.
 """
 
 from __future__ import annotations
 
 import asyncio
+import subprocess
+import sys
 import tempfile
 import time
 from collections import defaultdict
@@ -18,7 +23,35 @@ from pathlib import Path
 #: the stages of a frame, in the order they are printed ("controller": the in-process
 #: reference controller with its own codec; a dashboard's cost, the monitor's, is
 #: `railrig bench --monitor`'s)
-STAGES = ("plant", "sampling", "codec", "controller", "program", "recording")
+STAGES = ("plant", "sampling", "codec", "controller", "program", "recording", "monitor")
+
+#: the monitor's client in the instrumented run: reads the telemetry until the rig closes
+_READER = ("import socket, sys\n"
+           "s = socket.socket(socket.AF_UNIX)\n"
+           "s.connect(sys.argv[1])\n"
+           "while s.recv(1 << 16):\n"
+           "    pass\n")
+
+
+async def _watched(rig, where: Path, spent: dict[str, int]):
+    """Open rig's monitor endpoint at ``where``, its service and snapshots timed as the
+    "monitor" stage, and wait until a reading client (a child process) is attached;
+    returns (monitor, client process)."""
+    from emulator.monitor.endpoint import Monitor
+
+    monitor = Monitor(rig, str(where))
+    await monitor.start()
+    _timed(monitor, "service", "monitor", spent)
+    _timed(monitor, "publish", "monitor", spent)
+    reader = subprocess.Popen([sys.executable, "-c", _READER, str(where)])
+    deadline = time.monotonic() + 30
+    while not monitor.clients:
+        if time.monotonic() > deadline or reader.poll() is not None:
+            reader.kill()
+            monitor.close()
+            raise RuntimeError("the monitor's reading client did not connect")
+        await asyncio.sleep(0.01)
+    return monitor, reader
 
 
 def _timed(obj, name: str, stage: str, spent: dict[str, int]) -> None:
@@ -60,11 +93,11 @@ async def _demo(profile, in_process: bool, max_plant_s: float, stages: bool):
     marks: dict[str, object] = {}
     scratch = tempfile.TemporaryDirectory() if stages else None
 
-    def setup(rig, tcu) -> None:
+    def setup(rig, tcu):
         marks["first"] = _FirstFrame(rig)
         marks["rig"] = rig
         if not stages:
-            return
+            return None
         _timed(rig.plant, "advance", "plant", spent)
         _timed(rig.sampler, "sample", "sampling", spent)
         _timed(rig.codec, "encode", "codec", spent)
@@ -76,6 +109,10 @@ async def _demo(profile, in_process: bool, max_plant_s: float, stages: bool):
             _timed(rig.program, "update", "program", spent)
         rig.start_recording(str(Path(scratch.name) / "bench.rrec"))
         _timed(rig.recorder, "append", "recording", spent)
+        return _attach(rig)
+
+    async def _attach(rig) -> None:
+        marks["monitor"] = await _watched(rig, Path(scratch.name) / "monitor.sock", spent)
 
     try:
         summary = await run_reference_demo(profile, in_process=in_process,
@@ -85,6 +122,14 @@ async def _demo(profile, in_process: bool, max_plant_s: float, stages: bool):
         rig = marks.get("rig")
         if rig is not None and rig.recorder is not None:
             rig.recorder.close()
+        if "monitor" in marks:
+            monitor, reader = marks["monitor"]
+            monitor.close()
+            try:
+                reader.wait(timeout=10)  # it ends when the rig closes its connection
+            except subprocess.TimeoutExpired:
+                reader.kill()
+                reader.wait()
         if scratch is not None:
             scratch.cleanup()
     first = marks["first"]

@@ -97,8 +97,6 @@ class TelegramCodec:
         with contextlib.suppress(TelegramError):
             self.decode(b"")
         _first_bad(np.zeros(1), np.zeros(1), np.ones(1), np.ones(1, dtype=np.bool_))
-        _read_plain(np.zeros(1, dtype=np.uint8), self._got_header, np.zeros(self._n_recv),
-                    self._scratch, self._recv_scales, self._lo, self._hi, self._whole)
 
     def decode(self, payload: bytes) -> Telegram:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""

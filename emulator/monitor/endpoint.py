@@ -35,11 +35,12 @@ client that does not send ``{"op": "auth", "token": ...}`` as its first message 
 error message and is closed.
 
 It never slows the frame loop: the rig calls ``service()`` once per frame, which applies
-queued commands and, every Nth frame and only with clients attached, schedules one
-snapshot, built when the loop next waits (before the next deadline in real time) and
-written to every client without waiting. A client whose unsent backlog passes
-``MAX_BACKLOG`` (a slow or vanished reader) is dropped; so is one that sends bytes
-msgpack cannot decode.
+queued commands and, every Nth frame (N frames of plant time = 1 / RATE_HZ; no closer
+than half that in wall time when the rig runs faster than real time) and only with
+clients attached, schedules one snapshot, built when the loop next waits (before the
+next deadline in real time) and written to every client without waiting. A client
+whose unsent backlog passes ``MAX_BACKLOG`` (a slow or vanished reader) is dropped; so
+is one that sends bytes msgpack cannot decode.
 """
 
 from __future__ import annotations
@@ -147,6 +148,11 @@ class Monitor(OperatorCommands):
         self.token_path: Path | None = None
         self._socket_inode: int | None = None  # of the socket file this monitor bound
         self.every = max(1, round(1e6 / (rate_hz * rig.period_us)))
+        #: at most 2 x rate_hz snapshots a second of wall time: a rig faster than real
+        #: time (lockstep) reaches every Nth frame many times a second, and no client
+        #: draws that fast (in real time every Nth frame is 1 / rate_hz apart: no change)
+        self.min_gap_s = 0.5 / rate_hz
+        self._last_publish_s = -1e9
         self.builder = TelemetryBuilder(rig)
         self.clients: list[_Client] = []
         self.commands: deque[tuple[_Client, dict]] = deque()
@@ -334,7 +340,8 @@ class Monitor(OperatorCommands):
         self._watch()
         if self.clients:
             self.builder.accumulate()
-            if self.rig.frame % self.every == 0 and not self._publish_pending:
+            if (self.rig.frame % self.every == 0 and not self._publish_pending
+                    and time.monotonic() - self._last_publish_s >= self.min_gap_s):
                 # built when the frame loop next waits (for its deadline, the link or
                 # its periodic yield), not inside the frame: a snapshot costs ~0.1 ms
                 self._publish_pending = True
@@ -342,6 +349,7 @@ class Monitor(OperatorCommands):
 
     def _publish_soon(self) -> None:
         self._publish_pending = False
+        self._last_publish_s = time.monotonic()
         self.publish()
 
     def publish(self) -> None:

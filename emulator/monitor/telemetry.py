@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
+import numba as nb
 import numpy as np
 
 from emulator.faults.catalogue import CATALOGUE
@@ -68,6 +69,8 @@ class TelemetryBuilder:
             names.append("line_converter.dc_current_a")
         self._means = {n: plant.state_column(n) for n in names}
         self._sums = {n: np.zeros(a.shape[0]) for n, (a, _) in self._means.items()}
+        for name, (array, col) in self._means.items():  # compile or load it now, not
+            _add_column(np.zeros_like(self._sums[name]), array, col)  # in the frame loop
         self._udc = plant.state_column("dc_link.voltage_v")
         self._breaker = self._lc_pre = self._lc_main = None
         if plant.line_side:
@@ -79,8 +82,9 @@ class TelemetryBuilder:
     def accumulate(self) -> None:
         """Add this frame's DC-side currents (frame means) to the next snapshot's mean,
         so that a snapshot shows them averaged over its ~33 ms rather than one frame."""
+        sums = self._sums
         for name, (array, col) in self._means.items():
-            self._sums[name] += array[:, col]
+            _add_column(sums[name], array, col)
         self._count += 1
 
     def _take_means(self) -> dict[str, list[float]]:
@@ -198,3 +202,10 @@ class TelemetryBuilder:
                         "inverter_dc_a": sum(idc[j] for j, k in enumerate(self._inv_link)
                                              if k == i)})
         return out
+
+
+@nb.njit(cache=True)
+def _add_column(total: np.ndarray, array: np.ndarray, col: int) -> None:
+    """total += array[:, col], without numpy's per-call overhead (once a frame)."""
+    for i in range(total.shape[0]):
+        total[i] += array[i, col]

@@ -150,7 +150,7 @@ class Plant:
         if line is not None:
             self._apply_line(line)
         reset = commands.fault_reset
-        # (the rig's frame loop sends one each frame)
+        # (None unless one is asked: the rig's command mapper leaves it out)
         if reset is not None and (reset.any() if isinstance(reset, np.ndarray)
                                   else np.any(reset)):
             self.reset_gate_drivers(reset)

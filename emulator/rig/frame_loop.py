@@ -147,9 +147,11 @@ class Rig(LockstepPacing, RecordsFrames):
         self.repeat_causes: Counter = Counter()  # silence, bad_telegram, framing, request
         self._repeat_asked = False
         self._repeated = -1  # the last sequence said again (no round-trip sample from it)
-        #: lockstep: the sequences said again lately: a second answer to any is no error
-        #: (a board's answer to an earlier repeat can cross a later one)
-        self._said_again: deque[int] = deque(maxlen=8)
+        #: lockstep: for the last SAID_AGAIN_KEPT sequences said again, the further
+        #: answers still owed to those repeats (one a repeat): such an answer is no error,
+        #: even when it crosses a later repeat; a replay beyond them still is
+        self._said_again: dict[int, int] = {}
+        self._accepted: deque[int] = deque(maxlen=16)  # sequences answered, lately
         self._round_trip = RoundTrip()  # lockstep round trips (RFC 6298 estimator)
         self._y = np.zeros(len(sm.measurements))
         self._sent_ns = np.zeros(8, dtype=np.int64)  # when y_k went out, by k mod 8
@@ -195,9 +197,10 @@ class Rig(LockstepPacing, RecordsFrames):
             seq = tg.sequence
             if seq > k:
                 self._sequence_error("unexpected")  # answers a measurement never sent
-            elif (seq == self._repeated or seq in self._said_again) and (
-                    seq in self._answers or seq <= self._last_used or seq == last_used):
-                self.health.answers_to_repeats += 1  # we asked twice: not their error
+            elif self._said_again.get(seq, 0) > 0 and (
+                    seq in self._answers or seq in self._accepted):
+                self._said_again[seq] -= 1  # we asked twice: not their error
+                self.health.answers_to_repeats += 1
             elif seq in self._answers or seq <= self._last_used:  # (>= last_used)
                 self._sequence_error("duplicate" if seq in self._answers
                                      or seq == self._last_used or seq == last_used
@@ -209,6 +212,7 @@ class Rig(LockstepPacing, RecordsFrames):
                     self.health.reordered += 1
                 self._last_seq = max(self._last_seq, seq)
                 self._answers[seq] = (tg.values, period)
+                self._accepted.append(seq)
                 self.health.accepted += 1
 
     def _sequence_error(self, kind: str) -> None:

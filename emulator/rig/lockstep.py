@@ -27,6 +27,7 @@ LOCKSTEP_BAD_REPEATS = 3  # a rejected telegram gets y_k again this often, then 
 #: time: 64 in a row happens once in about 100 frames)
 LOCKSTEP_QUICK_REPEATS = 64
 LOCKSTEP_STOP_CHECK_S = 0.05  # a silence wait looks at the stop event this often
+SAID_AGAIN_KEPT = 8  # lockstep: sequences whose repeats' answers are remembered
 LOCKSTEP_POLL_NS = 300_000  # lockstep: poll the link this long before blocking on it
 
 
@@ -43,7 +44,10 @@ class LockstepPacing:
         self.link.send(self.codec.encode(self._sent_frame, self._sent_time_us,
                                          self.period_us, flags, y))
         self._repeated = self._sent_frame
-        self._said_again.append(self._sent_frame)
+        owed = self._said_again
+        owed[self._sent_frame] = owed.get(self._sent_frame, 0) + 1
+        if len(owed) > SAID_AGAIN_KEPT:
+            del owed[next(iter(owed))]  # the oldest sequence
         self._sent_flags = flags & ~FLAG_REPEAT
         self._flags = 0
         self.repeats += 1

@@ -40,7 +40,8 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
     The controller runs as a separate process over UDP on loopback (``railrig
     controller``), or in this process through the in-process adapter. ``setup(rig,
     controller)`` is called before the first frame (controller: None when it runs in its
-    own process); the throughput benchmark times stages through it.
+    own process), and awaited when it returns an awaitable; the throughput benchmark
+    times stages and attaches a monitor through it.
     """
     import asyncio
 
@@ -71,7 +72,9 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
                            coast_s=coast_s)
     rig.program = program
     if setup is not None:
-        setup(rig, tcu)
+        prepared = setup(rig, tcu)
+        if asyncio.iscoroutine(prepared):
+            await prepared
     t_wall = time.perf_counter()
     try:
         chunk = 5000

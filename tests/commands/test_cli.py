@@ -56,8 +56,9 @@ def test_throughput_bench_json_has_the_documented_keys() -> None:
     assert figures["inprocess_realtime_factor"] > 0 and figures["udp_realtime_factor"] > 0
     stages = figures["stage_us"]
     assert set(stages) == {"plant", "sampling", "codec", "controller", "program",
-                           "recording", "rig_rest"}
-    assert all(stages[k] > 0 for k in ("plant", "sampling", "codec", "controller"))
+                           "recording", "monitor", "rig_rest"}
+    assert all(stages[k] > 0 for k in ("plant", "sampling", "codec", "controller",
+                                       "monitor"))
     assert sum(stages.values()) == pytest.approx(figures["frame_us_instrumented"], rel=1e-9)
 
 

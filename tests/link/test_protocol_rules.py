@@ -449,16 +449,13 @@ def test_a_damaged_serial_frame_in_real_time_holds_its_frame_and_is_flagged(para
     assert rig.health.missing == 1 + late and rig.repeats == 0
 
 
-def test_an_answer_to_an_earlier_repeat_after_a_later_one_is_no_sequence_error(params) -> None:
-    # The board asks for y_4 again (it lost it), answers the repeat, and keeps a second
-    # answer to y_4 back (it answered y_4 twice: the copy it had and the repeat); then it
-    # asks for y_5 again too, and the held answer to y_4 arrives after the rig has said
-    # y_5 again. Both second answers are to measurements the rig itself said again:
-    # counted as answers to repeats, no sequence error flagged to the board (before the
-    # fix the rig remembered only its last repeat, and the held y_4 answer was a
-    # "duplicate" with flag bit 3; a board's relay met it in the kit's serial test).
+def _repeats_board(asked: set[int], replays: dict[int, int]):
+    """A scripted board: asks for each measurement in ``asked`` again once (a repeat
+    request instead of its answer), answers a repeat of y_4 now and keeps a second
+    answer to y_4 back, sent when y_5 is said again; ``replays`` {at: seq}: with its
+    answer to y_at, also its answer to y_seq once more. Returns (answer, board) where
+    board["link"] must be set to the board's link end."""
     held: list[bytes] = []
-    asked = {4, 5}
     board: dict = {}
 
     def answer(rig, m):
@@ -466,21 +463,53 @@ def test_an_answer_to_an_earlier_repeat_after_a_later_one_is_no_sequence_error(p
         if seq in asked and not m[H_FLAGS] & FLAG_REPEAT:
             asked.discard(seq)
             return _with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
-        if seq == 4:  # the repeat of y_4: its answer now, a second one held back
+        if seq == 4 and m[H_FLAGS] & FLAG_REPEAT:
             held.append(command(rig, 4))
-        if seq == 5 and m[H_FLAGS] & FLAG_REPEAT:
+        if seq == 5 and m[H_FLAGS] & FLAG_REPEAT and held:
             board["link"].send(held.pop())  # y_4's second answer, after y_5's repeat
+        if seq in replays and not m[H_FLAGS] & FLAG_REPEAT:
+            board["link"].send(command(rig, replays.pop(seq)))
         return command(rig, seq)
 
+    return answer, board
+
+
+def _run_board(params, answer, board, frames: int = 8):
     async def go():
         rig, ctl = await make_rig(params, answer, mode="lockstep")
         board["link"] = ctl.link
-        await rig.run(frames=8)
+        await rig.run(frames=frames)
         return rig, ctl
-    rig, ctl = run(go())
+    return run(go())
+
+
+def test_an_answer_to_an_earlier_repeat_after_a_later_one_is_no_sequence_error(params) -> None:
+    # The board asks for y_4 again (it lost it), answers the repeat, and keeps a second
+    # answer to y_4 back (it answered y_4 twice: the copy it had and the repeat); then it
+    # asks for y_5 again too, and the held answer to y_4 arrives after the rig has said
+    # y_5 again. That second answer is to a measurement the rig itself said again:
+    # counted as an answer to a repeat, no sequence error flagged to the board (the rig
+    # had remembered only its last repeat, and the held answer was a "duplicate" with
+    # flag bit 3; a board's relay met it in the kit's serial test).
+    answer, board = _repeats_board({4, 5}, {})
+    rig, ctl = _run_board(params, answer, board)
     heads = [msgpack.unpackb(p)[:6] for p in ctl.received]
     assert [h[H_SEQUENCE] for h in heads] == [0, 1, 2, 3, 4, 4, 5, 5, 6, 7, 8]
-    assert not held and rig.health.repeat_requests == 2
+    assert rig.health.repeat_requests == 2
     assert rig.health.answers_to_repeats == 1
     assert sum(rig.health.sequence.values()) == 0
     assert not any(h[H_FLAGS] & FLAG_SEQUENCE for h in heads)
+
+
+def test_an_answer_said_again_beyond_the_repeats_is_still_a_sequence_error(params) -> None:
+    # The same board, which also sends its answer to y_4 a third time with its answer to
+    # y_7 (the rig said y_4 again once: one further answer is owed, not two), and its
+    # answer to y_1 again with y_3 (y_1 was never said again). Both are sequence errors:
+    # y_1's the answer the rig last used ("duplicate"), y_4's an older one ("late"),
+    # each flagged (bit 3) in the next measurement: y_4 (and its repeat) and y_8.
+    answer, board = _repeats_board({4, 5}, {3: 1, 7: 4})
+    rig, ctl = _run_board(params, answer, board, frames=9)
+    heads = [msgpack.unpackb(p)[:6] for p in ctl.received]
+    assert rig.health.answers_to_repeats == 1
+    assert rig.health.sequence == {"duplicate": 1, "late": 1}, rig.health.sequence
+    assert [h[H_SEQUENCE] for h in heads if h[H_FLAGS] & FLAG_SEQUENCE] == [4, 4, 8]

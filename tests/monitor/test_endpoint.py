@@ -16,7 +16,7 @@ from emulator.monitor.endpoint import MonitorError, parse_address
 from emulator.plant import layout as L  # noqa: N812
 from emulator.recording.recorder import read_recording
 from tests.conftest import wait_until
-from tests.tui.conftest import RawClient, live_rig  # noqa: F401  (fixture)
+from tests.tui.conftest import TRAINSET, RawClient, live_rig  # noqa: F401  (fixture)
 
 
 @pytest.mark.parametrize(("address", "kind"), [
@@ -187,3 +187,41 @@ async def test_a_second_rig_does_not_take_a_live_socket(live_rig, tmp_path) -> N
     second = Monitor(other, str(stale))
     await second.start()  # replaces the stale file
     second.close()
+
+
+async def test_a_lockstep_rig_faster_than_real_time_sends_at_most_twice_the_rate(
+        tmp_path) -> None:
+    # Lockstep runs the demo at 10-15x real time on the 2-core machine: every 33rd frame
+    # then comes hundreds of times a second of wall time, more than any dashboard draws
+    # (and a flood a slow client is dropped for). Snapshots are at most 2 x 30 a second
+    # of wall time, and still come.
+    import time
+
+    from emulator.monitor.endpoint import RATE_HZ, Monitor
+    from emulator.scenario.demo_run import run_reference_demo
+
+    seen: dict = {}
+
+    async def drain(reader) -> None:  # a client that keeps up: never dropped
+        while await reader.read(1 << 16):
+            pass
+
+    async def attach(rig, _tcu) -> None:
+        monitor = Monitor(rig, str(tmp_path / "m.sock"))
+        await monitor.start()
+        client = await RawClient.open(monitor.address)
+        await client.next("hello")
+        seen["monitor"], seen["client"] = monitor, client  # (kept: its writer stays open)
+        seen["reading"] = asyncio.create_task(drain(client.reader))
+        seen["start"] = time.monotonic()
+
+    await run_reference_demo(TRAINSET, in_process=True, max_plant_s=4.0, setup=attach)
+    wall = time.monotonic() - seen["start"]
+    monitor = seen["monitor"]
+    snapshots = monitor.counts["snapshots"]
+    assert monitor.counts["clients_dropped"] == 0 and len(monitor.clients) == 1
+    monitor.close()
+    await asyncio.wait_for(seen["reading"], 10)
+    assert wall < 4.0 / 2  # faster than twice real time, or this checks nothing
+    # the one on connect, then no two closer than 1 / (2 x 30 Hz)
+    assert 2 <= snapshots <= 2 + wall * 2 * RATE_HZ, (snapshots, wall)
