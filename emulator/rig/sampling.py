@@ -15,6 +15,7 @@ import numba as nb
 import numpy as np
 
 from emulator.plant import Commands, Plant
+from emulator.plant.jit import WITHOUT_RUNTIME  # (the plant's kernels' reason)
 from emulator.plant.layout import (
     IS_HW_TRIP,
     IS_IA,
@@ -207,7 +208,7 @@ class MeasurementSampler:
         return self._out
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _sample_frame(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft, trace,
                   offsets, h, settle, table, analog, eccentricity, pitch, edge_rad,
                   edges_per_rad, edge_scale, count_offset, modulus, count_pos, analog_pos,
@@ -236,7 +237,7 @@ def _sample_frame(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaf
         out[capture_pos[m]] = capture[m]
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft):
     """Plant values by the plan, and the shaft angles for the encoders (twice: one copy
     becomes the angles the discs show)."""
@@ -248,7 +249,7 @@ def _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft):
         shaft[m] = angle[m]
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _complete_trace(trace, offsets, values):
     """The probes' rows in the measured units (the offsets added), the last row the
     values gathered at the sampling instant."""
@@ -260,7 +261,7 @@ def _complete_trace(trace, offsets, values):
         trace[n - 1, i] = values[i]
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, edge_scale,
               count_offset, modulus, count_pos, gate_fault, ist, fault_pos, train, train_pos,
               out):
@@ -280,7 +281,7 @@ def _assemble(analog, analog_pos, flags, flag_pos, angle, edges_per_rad, edge_sc
         out[train_pos + i] = train[i]
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _fill_commands(values, duty_pos, gate_pos, reset_pos, gates_allowed, duty, gates, reset,
                    line_pos, chopper_pos, modulation, line_gates, precharge, contactor,
                    chopper):
