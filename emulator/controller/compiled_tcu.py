@@ -68,6 +68,8 @@ class CompiledController(ref.ReferenceController):
             self._vc_state = np.zeros((len(self.scalar), 1))
             self._vc_consts = np.zeros((len(self.scalar), 1))
         self._tables = self._index_tables(cfg)
+        self._per_motor = np.zeros((3, self.n_motors))  # the period's scratch rows
+        self._per_link = np.zeros((3, len(self._lnk)))
         # the telegrams' compiled codec (msgpack_array.py) and its buffers
         self._head = np.zeros(6, dtype=np.int64)
         self._reply_head = np.zeros(6, dtype=np.int64)
@@ -275,7 +277,8 @@ class CompiledController(ref.ReferenceController):
         pk.period(y, flags, period_s, out, g, self._k, self._counts, self._recent,
                   self._mot, self._inv, self._lnk, self._u_applied, self._sc_state,
                   self._sc_consts, self._circuit, self._vc_state, self._vc_consts,
-                  self._curve_i, self._curve_psi, x, xi, xm, xl, xc)
+                  self._curve_i, self._curve_psi, x, xi, xm, xl, xc, self._per_motor,
+                  self._per_link)
         if counts[0] != raised:
             self.events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
         self.t = g[pp.G_T]

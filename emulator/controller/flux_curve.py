@@ -11,7 +11,9 @@ import math
 import numba as nb
 import numpy as np
 
-compiled = nb.njit(cache=True, error_model="numpy")
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
+compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
 
 @compiled

@@ -20,11 +20,13 @@ import math
 
 import numba as nb
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 TWO_PI_3 = 2 * math.pi / 3
 _COS = tuple(complex(math.cos(x * TWO_PI_3), -math.sin(x * TWO_PI_3)) for x in range(3))
 
 
-@nb.njit(cache=True, error_model="numpy")
+@nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 def clarke(a, b, c):
     """The amplitude-invariant space vector of three phase values (Clarke):
     (2a - b - c) / 3 + j (b - c) / sqrt(3)."""
@@ -47,7 +49,7 @@ def duties(u: complex, u_dc: float, *, current: complex | None = None,
                            dead_time_s * switching_frequency_hz * u_dc, sign_band_a))
 
 
-@nb.njit(cache=True, error_model="numpy")
+@nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 def leg_duties(u, u_dc, current, compensate, du, sign_band_a):
     """The three legs' duties (compiled: a few calls a period per inverter; ``py_func``
     is its plain-Python twin). du: the dead time's voltage, t_d f_sw U_dc."""

@@ -15,7 +15,8 @@ from __future__ import annotations
 import math
 
 import numba as nb
-import numpy as np
+
+from emulator.kernel_cache import WITHOUT_RUNTIME
 
 from . import scalar_kernel as sk
 from . import vector_kernel as vk
@@ -150,15 +151,27 @@ from .period_parts import (
 )
 from .pll import DEAD_SAMPLES
 
-compiled = nb.njit(cache=True, error_model="numpy")
+compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
+
+
+@compiled
+def _largest(a):
+    """a.max() (NaN if any is), without numba's runtime, which its array.max() wants."""
+    m = a[0]
+    for i in range(1, a.shape[0]):
+        if a[i] > m or a[i] != a[i]:
+            m = a[i]
+    return m
 
 
 # --- tcu.ReferenceController.step ---------------------------------------------------------
 @compiled
 def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_applied,
            sc_state, sc_consts, circuit, vc_state, vc_consts, curve_i, curve_psi,
-           x, xi, xm, xl, xc):
-    """One control period: measurements y (SI, map order) in, commands out."""
+           x, xi, xm, xl, xc, per_motor, per_link):
+    """One control period: measurements y (SI, map order) in, commands out.
+    per_motor (3 x motors) and per_link (3 x links): the period's scratch rows (it
+    allocates nothing: compiled without numba's runtime)."""
     g[G_T] += period_s
     g[G_TRIP_NOW] = 0.0
     t = g[G_T]
@@ -206,7 +219,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         recent[ri] = abs(y[x[X_LINE_V]])
         g[G_RECENT_I] = (ri + 1) % recent.shape[0]
         amplitude = g[G_PLL_AMPLITUDE]
-        g[G_DEAD_SAMPLES] = dead_samples(y[x[X_LINE_V]], theta, amplitude, recent.max(),
+        g[G_DEAD_SAMPLES] = dead_samples(y[x[X_LINE_V]], theta, amplitude, _largest(recent),
                                          peak, k[K_U_MIN2] * SQRT2, g[G_DEAD_SAMPLES])
         live = g[G_DEAD_SAMPLES] < DEAD_SAMPLES
         g[G_LINE_LIVE_S] = g[G_LINE_LIVE_S] + period_s if live else 0.0
@@ -230,12 +243,12 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         encoder_update(mot[m], k, y[xm[m, XM_COUNT]])
     if judge(mot, k):
         raise_event(g, counts, SPEED_SENSOR_FAULT)
-    speeds = np.empty(n_mot)
+    speeds = per_motor[0]
     fill(mot, M_SPEED, speeds)
-    quick = np.empty(n_mot)
+    quick = per_motor[1]
     fill(mot, M_SPEED_SHORT, quick)
     k_wheel = r / gear
-    wheel_mps = np.empty(n_mot)
+    wheel_mps = per_motor[2]
     total = 0.0
     for m in range(n_mot):
         wheel_mps[m] = quick[m] * k_wheel
@@ -284,13 +297,16 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             g[G_ADH_HAS_V_REF] = 0.0
         adhesion_step(g, k, mot, inv, wheel_mps, braking, plausible)
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
-    p_links = np.zeros(n_links)
+    p_links = per_link[0]
+    p_links[:] = 0.0
     achieved = 0.0
     u_stop = k[K_LINK_STOP] * k[K_LINK_NOMINAL]
     u_restart = k[K_LINK_RESTART] * k[K_LINK_NOMINAL]
     line_live = not line_side or g[G_LINE_LIVE_S] >= k[K_LOCK_S]
-    p_lo = np.zeros(n_links)
-    p_hi = np.zeros(n_links)
+    p_lo = per_link[1]
+    p_hi = per_link[2]
+    p_lo[:] = 0.0
+    p_hi[:] = 0.0
     for i in range(n_links):
         if line_live:
             p_lo[i] = power_limits(k, regen_rms, regen_ok, lnk[i, L_P_RATED])[0]

@@ -22,10 +22,12 @@ import math
 
 import numba as nb
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 from . import pll
 from . import vector_kernel as vk
 
-compiled = nb.njit(cache=True, error_model="numpy")
+compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
 TWO_PI = 2 * math.pi
 SQRT2 = math.sqrt(2)

@@ -18,11 +18,13 @@ import math
 
 import numba as nb
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 from . import slip_circuit as sc
 from .flux_curve import secant_lm
 from .modulation import clarke, leg_duties
 
-compiled = nb.njit(cache=True, error_model="numpy")
+compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
 # the state: angles, frequency, flux, slip, trim, the last current, the link's mean, the
 # voltage sent, the estimates, the breakdown search, and what the last two commands

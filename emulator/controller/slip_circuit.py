@@ -22,9 +22,11 @@ import math
 
 import numba as nb
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 CIRCUIT_RS, CIRCUIT_RR, CIRCUIT_LLS, CIRCUIT_LLR, CIRCUIT_P, CIRCUIT_PSI_RATED = range(6)
 
-compiled = nb.njit(cache=True, error_model="numpy")
+compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
 
 @compiled

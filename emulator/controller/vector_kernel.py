@@ -13,10 +13,12 @@ import math
 
 import numba as nb
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 from .flux_curve import interpolate, secant_lm
 from .modulation import clarke, leg_duties
 
-compiled = nb.njit(cache=True, error_model="numpy")
+compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
 LAMBDA = 0.6  # share of the current's error removed per period
 FLUX_KP = 2.0  # flux forcing: d current per flux error, in units of 1 / L_m

@@ -18,28 +18,21 @@ branches): perf put 17 % of the 128-motor frame in ``NRT_incref``/``NRT_decref``
 plant's kernels allocate no arrays and return none; every array they touch belongs to
 the Python caller for the whole call (the plant's state, its views are not kept), so
 they need no counting. Compiled with numba's ``_nrt=False`` (a CPU target option of
-numba's own, underscored: not in its user documentation, hence the check below, which
-falls back to the counted build where a numba lacks it): the demo trainset's frame
-17.6 -> 13.6 us, 128 motors 163 -> 127 us (one run each, same host), every result the
-same to the bit (the counting never touched the arithmetic). A kernel that allocated
-would not compile: numba refuses it without the runtime.
+numba's own, underscored: not in its user documentation, hence the check in
+kernel_cache.py, which falls back to the counted build where a numba lacks it): the
+demo trainset's frame 17.6 -> 13.6 us, 128 motors 163 -> 127 us (one run each, same
+host), every result the same to the bit (the counting never touched the arithmetic).
+A kernel that allocated would not compile: numba refuses it without the runtime.
 """
 
 from __future__ import annotations
 
 import numba as nb
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 FASTMATH = False
 
-
-def _without_runtime() -> dict[str, bool]:
-    """numba's option to compile without its runtime, where this numba has it."""
-    from numba.core import cpu
-
-    return {"_nrt": False} if hasattr(cpu.CPUTargetOptions, "_nrt") else {}
-
-
-WITHOUT_RUNTIME = _without_runtime()
 
 compiled = nb.njit(cache=True, error_model="numpy", fastmath=FASTMATH, **WITHOUT_RUNTIME)
 compiled_inline = nb.njit(cache=True, error_model="numpy", fastmath=FASTMATH, inline="always",

@@ -14,8 +14,8 @@ from dataclasses import dataclass, fields
 import numba as nb
 import numpy as np
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
 from emulator.plant import Commands, Plant
-from emulator.plant.jit import WITHOUT_RUNTIME  # (the plant's kernels' reason)
 from emulator.plant.layout import (
     IS_HW_TRIP,
     IS_IA,
