@@ -22,6 +22,8 @@ import math
 import numba as nb
 import numpy as np
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 
 #: room for a telegram of n values: array header, header fields and values at their
 #: longest (9 bytes each)
@@ -33,7 +35,7 @@ def buffer_size(n_values: int, n_header: int = 6) -> int:
 WIRE_LIMIT = 2.0**63  # a wire value's magnitude stays below this (int64)
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _put(buf, pos, value, n_bytes):
     """value big-endian in n_bytes at pos; returns the position after it."""
     for j in range(n_bytes):
@@ -41,7 +43,7 @@ def _put(buf, pos, value, n_bytes):
     return pos + n_bytes
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def pack_int(buf, pos, v):
     """One integer in msgpack's shortest form at pos; returns the position after it."""
     if v >= 0:
@@ -75,7 +77,7 @@ def pack_int(buf, pos, v):
     return _put(buf, pos + 1, v, 8)
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def pack(header, values, inv_scales, buf):
     """[*header, *rint(values x inv_scales)] as a msgpack array into buf; returns its
     length in bytes, or -1 - i where value i is not finite or past int64 in wire units
@@ -101,7 +103,7 @@ def pack(header, values, inv_scales, buf):
     return pos
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _get(data, pos, n_bytes):
     v = np.uint64(0)
     for j in range(n_bytes):
@@ -109,7 +111,7 @@ def _get(data, pos, n_bytes):
     return v
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _signed(u, bits):
     """The two's complement value of the low ``bits`` of u."""
     v = np.int64(u)
@@ -118,7 +120,7 @@ def _signed(u, bits):
     return v
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def unpack(data, header, values, scratch):
     """A msgpack array of len(header) integers then len(values) numbers from data
     (uint8): the header into header (int64), the numbers into values (float64).
@@ -195,7 +197,7 @@ def unpack(data, header, values, scratch):
     return 0
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def unpack_scaled(data, header, values, scratch, scales):
     """unpack(), then each value times its scale (wire units to physical ones, the same
     products as numpy's ``values *= scales``). Returns unpack()'s code."""

@@ -16,6 +16,8 @@ import msgpack
 import numba as nb
 import numpy as np
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 from . import msgpack_array
 
 #: header fields (emulator/protocol/header.py names them; the link knows only the count)
@@ -164,7 +166,7 @@ class TelegramCodec:
 _NUMBERS = (int, float)
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _read_plain(data: np.ndarray, header: np.ndarray, values: np.ndarray,
                 scratch: np.ndarray, scales: np.ndarray, lo: np.ndarray, hi: np.ndarray,
                 whole: np.ndarray) -> bool:
@@ -175,7 +177,7 @@ def _read_plain(data: np.ndarray, header: np.ndarray, values: np.ndarray,
     return _first_bad(values, lo, hi, whole) < 0
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _first_bad(values: np.ndarray, lo: np.ndarray, hi: np.ndarray,
                whole: np.ndarray) -> int:
     """Index of the first value outside [lo, hi], not finite, or not whole where it

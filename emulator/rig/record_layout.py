@@ -13,6 +13,7 @@ from typing import Any
 import numba as nb
 import numpy as np
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
 from emulator.protocol.signal_map import SignalMap
 
 #: recorded plant states with these in their names are kept at float64 (they accumulate)
@@ -139,7 +140,7 @@ class RecordsFrames:
         return self.recorder
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _fill_row(row, time_s, y, u, arrays, plan, extras):
     """row = [t, y, u, the states by plan (array, row, column), extras]."""
     if 1 + y.shape[0] + u.shape[0] + plan.shape[0] + extras.shape[0] != row.shape[0]:

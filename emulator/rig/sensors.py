@@ -28,6 +28,8 @@ from dataclasses import dataclass
 import numba as nb
 import numpy as np
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
+
 
 @dataclass(frozen=True)
 class ChannelSpec:
@@ -166,7 +168,7 @@ def _filter_coefficients(tau: np.ndarray, h: float) -> tuple[np.ndarray, np.ndar
     return a, c
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _chain(trace, h, t, out, settle):
     """Per channel (a column of the table t): gain and offset, the filter through every
     sub-step, the sample (at its instant, or the frame's mean by the trapezoidal rule),
@@ -255,13 +257,13 @@ class Encoders:
         return out
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _counts(angle, edges_per_rad, scale, offset, modulus, out):
     for i in range(angle.shape[0]):
         out[i] = (np.int64(math.floor(angle[i] * edges_per_rad * scale[i])) + offset[i]) % modulus
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _captures(shaft, last, disc, last_disc, t, t_last, edges_per_rad, scale, eccentricity,
               pitch, edge_rad, modulus, capture):
     """Update each capture with the time of the last edge crossed since the last sample.
@@ -294,7 +296,7 @@ def _captures(shaft, last, disc, last_disc, t, t_last, edges_per_rad, scale, ecc
         capture[i] = np.int64(math.floor(t_edge * 1e6 + 1e-6)) % modulus
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _distort(angle, eccentricity, pitch, edge_rad):
     """Turn shaft angles into the angles the discs show, in place: the nearest edge j
     sits at (j + pitch_j) edge pitches, the whole disc off by e sin(angle)."""
