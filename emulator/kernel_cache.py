@@ -7,9 +7,10 @@ old callee. So a digest of every source of the packages that hold compiled code 
 beside the cache, and their cache files are removed when any of those sources changed.
 Runs once per process, on import of emulator.
 
-Also the one compile option every kernel that allocates nothing shares:
-``WITHOUT_RUNTIME`` (plant/jit.py says why and what it measured). This file is in the
-digest too, so a change of it recompiles them.
+Also the compile option the kernels that allocate nothing share: ``WITHOUT_RUNTIME``
+(plant/jit.py says why and what it measured). This file is in the digest too, so a
+change of it drops the kernels cached beside the sources (a cache elsewhere, under
+``NUMBA_CACHE_DIR``, is numba's own to check, as before).
 """
 
 from __future__ import annotations
@@ -27,18 +28,27 @@ STAMP = "railrig-compiled-sources.sha256"
 
 
 def _without_runtime() -> dict[str, bool]:
-    """numba's CPU target option that compiles without its runtime's reference counting
+    """numba's CPU target option that compiles a function without numba's runtime (NRT):
+    no reference counts on the arrays it holds, and no allocation at all
     (``_nrt=False``, underscored: numba's own, not in its user documentation), where
-    this numba has it; else nothing (the counted build, slower, the same results)."""
+    this numba has it; else nothing (the runtime's build: slower, the same results)."""
     from numba.core import cpu
 
     return {"_nrt": False} if hasattr(cpu.CPUTargetOptions, "_nrt") else {}
 
 
-#: for ``numba.njit(**WITHOUT_RUNTIME)``: kernels that allocate no array, return none,
-#: and touch only arrays their Python caller holds for the whole call (numba refuses to
-#: compile an allocation without its runtime)
-WITHOUT_RUNTIME = _without_runtime()
+def __getattr__(name: str):
+    """``WITHOUT_RUNTIME``, for ``numba.njit(**WITHOUT_RUNTIME)``, made when a kernel
+    module first asks (importing emulator does not load numba). Rules for the kernels
+    compiled with it: allocate no array (numba refuses to compile that), return no
+    array in any form (numba refuses a bare one, not one inside a tuple: the caller
+    would get a view of freed or wrong memory; tests/test_kernel_cache.py checks every
+    such kernel's return types), touch only arrays their Python caller holds for the
+    whole call."""
+    if name == "WITHOUT_RUNTIME":
+        globals()[name] = options = _without_runtime()
+        return options
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def compiled_sources_digest(root: Path = PACKAGE_DIR) -> str:

@@ -33,3 +33,61 @@ def test_a_callee_changed_in_another_package_drops_every_cached_kernel(tmp_path)
     (tmp_path / "controller" / "parts.py").write_text("# controller, edited\n")
     assert refresh_kernel_cache(tmp_path)
     assert not any(p.exists() for p in cached)  # the plant's and the rig's too
+
+
+def test_an_edit_of_the_compile_options_drops_every_cached_kernel(tmp_path) -> None:
+    # kernel_cache.py holds the option the kernels are compiled with (WITHOUT_RUNTIME)
+    for package in COMPILED_PACKAGES:
+        (tmp_path / package).mkdir()
+        (tmp_path / package / "parts.py").write_text(f"# {package}\n")
+    (tmp_path / "kernel_cache.py").write_text("# options\n")
+    refresh_kernel_cache(tmp_path)
+    cached = _cached_kernels(tmp_path)
+    assert not refresh_kernel_cache(tmp_path)
+    (tmp_path / "kernel_cache.py").write_text("# options, edited\n")
+    assert refresh_kernel_cache(tmp_path)
+    assert not any(p.exists() for p in cached)
+
+
+def _holds_an_array(t) -> bool:
+    from numba.core import types
+
+    if isinstance(t, types.Array):
+        return True
+    return isinstance(t, types.BaseTuple) and any(_holds_an_array(e) for e in t.types)
+
+
+def test_no_kernel_compiled_without_the_runtime_returns_an_array() -> None:
+    # Without numba's runtime a returned array would point into memory nobody holds;
+    # numba refuses a bare one but not one inside a tuple. Every kernel the demo runs
+    # (plant, sampler, sensors, codec, recorder row, controller) is compiled or loaded
+    # here, then every overload's return type is read.
+    import asyncio
+    import importlib
+    import pkgutil
+
+    import numba
+
+    from emulator.kernel_cache import WITHOUT_RUNTIME
+    from emulator.profiles.reader import PROFILES_DIR
+    from emulator.scenario.demo_run import run_reference_demo
+
+    if not WITHOUT_RUNTIME:
+        return  # this numba has no such option: every kernel keeps the runtime
+    asyncio.run(run_reference_demo(PROFILES_DIR / "trainsets" / "tern-25kv.toml",
+                                   in_process=True, max_plant_s=0.5))
+    checked, bad = 0, []
+    for package in COMPILED_PACKAGES:
+        root = importlib.import_module(f"emulator.{package}")
+        for info in pkgutil.iter_modules(root.__path__):
+            module = importlib.import_module(f"emulator.{package}.{info.name}")
+            for name, obj in vars(module).items():
+                if not isinstance(obj, numba.core.registry.CPUDispatcher) or (
+                        obj.targetoptions.get("_nrt", True)):
+                    continue
+                for sig in obj.nopython_signatures:
+                    checked += 1
+                    if _holds_an_array(sig.return_type):
+                        bad.append(f"{module.__name__}.{name}: {sig}")
+    assert checked >= 40, checked  # the demo ran them: the check is not of nothing
+    assert bad == []
