@@ -10,6 +10,7 @@ import msgpack
 
 from emulator.link import open_link
 from emulator.profiles.reader import PROFILES_DIR
+from emulator.protocol.header import H_FLAGS, H_MAP_DIGEST, H_PERIOD_US
 from emulator.rig.clock import FakeClock
 from emulator.rig.frame_loop import Rig
 
@@ -63,3 +64,12 @@ async def make_rig(params, answer, *, mode: str = "afap", **kw) -> tuple[Rig, Sy
 
 def run(coro):
     return asyncio.run(coro)
+
+
+def with_header(telegram: bytes, **fields: int) -> bytes:
+    """The telegram with header fields (period_us, flags, map_digest) set anew."""
+    items = msgpack.unpackb(telegram)
+    index = {"period_us": H_PERIOD_US, "flags": H_FLAGS, "map_digest": H_MAP_DIGEST}
+    for name, value in fields.items():
+        items[index[name]] = value
+    return msgpack.packb(items)

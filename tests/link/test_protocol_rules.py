@@ -24,22 +24,13 @@ from emulator.protocol.header import (
     FLAG_SEQUENCE,
     H_FLAGS,
     H_MAP_DIGEST,
-    H_PERIOD_US,
     H_SEQUENCE,
     HEADER,
 )
 from emulator.rig.clock import FakeClock
 from emulator.rig.frame_loop import Rig
 
-from .conftest import command, make_rig, run
-
-
-def _with_header(telegram: bytes, **fields: int) -> bytes:
-    items = msgpack.unpackb(telegram)
-    index = {"period_us": H_PERIOD_US, "flags": H_FLAGS, "map_digest": H_MAP_DIGEST}
-    for name, value in fields.items():
-        items[index[name]] = value
-    return msgpack.packb(items)
+from .conftest import command, make_rig, run, with_header
 
 
 @pytest.mark.parametrize(("mode", "period_us", "accepted"), [
@@ -50,7 +41,7 @@ def _with_header(telegram: bytes, **fields: int) -> bytes:
 ])
 def test_period_us_is_read_by_the_mode(params, mode, period_us, accepted) -> None:
     async def go():
-        rig, _ = await make_rig(params, lambda rig, m: _with_header(
+        rig, _ = await make_rig(params, lambda rig, m: with_header(
             command(rig, m[H_SEQUENCE]), period_us=period_us), mode=mode)
         if mode == "lockstep":
             await rig.run(frames=2) if accepted else await _run_briefly(rig, 0.05)
@@ -76,7 +67,7 @@ async def _run_briefly(rig: Rig, seconds: float) -> None:
 @pytest.mark.parametrize(("digest", "accepted"), [(0, True), (None, True), (1, False)])
 def test_the_map_digest_must_be_zero_or_the_rigs(params, digest, accepted) -> None:
     async def go():
-        rig, _ = await make_rig(params, lambda rig, m: _with_header(
+        rig, _ = await make_rig(params, lambda rig, m: with_header(
             command(rig, m[H_SEQUENCE]), map_digest=(
                 rig.signal_map.digest() if digest is None else digest)))
         await rig.run(frames=5)
@@ -148,7 +139,7 @@ def test_lockstep_repeat_request_gets_the_measurement_again(params) -> None:
         seq = m[H_SEQUENCE]
         if seq in asked:  # "I lost it": a valid telegram with the request bit
             asked.discard(seq)
-            return _with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
+            return with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
         return command(rig, seq)
 
     async def go():
@@ -161,114 +152,6 @@ def test_lockstep_repeat_request_gets_the_measurement_again(params) -> None:
     assert heads[3][H_FLAGS] & FLAG_REPEAT
     assert rig.health.repeat_requests == 1 and rig.repeat_causes == {"request": 1}
     assert sum(rig.health.sequence.values()) == 0  # its sequence was not read
-
-
-def test_frames_run_ahead_send_the_board_what_frames_run_one_by_one_send(params) -> None:
-    # lockstep runs frame k while the board computes its answer to y_k (frame k acts on
-    # the answer to y_(k-1)); the board must not be able to tell: every telegram it gets,
-    # repeats of y_k asked for after frame k ran included, is the same to the byte
-    def telegrams(run_ahead: bool) -> tuple[list[bytes], int]:
-        asked = {2, 5, 6}
-
-        def answer(rig, m):
-            seq = m[H_SEQUENCE]
-            if seq in asked:
-                asked.discard(seq)
-                return _with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
-            return command(rig, seq, duty=0.5 + 0.01 * seq)
-
-        async def go():
-            rig, ctl = await make_rig(params, answer, mode="lockstep")
-            rig.run_ahead = run_ahead
-            await rig.run(frames=10)
-            return rig, ctl
-        rig, ctl = run(go())
-        return list(ctl.received), rig.frames_ahead
-
-    ahead, n_ahead = telegrams(True)
-    one_by_one, n_one = telegrams(False)
-    assert n_one == 0 and n_ahead >= 5
-    heads = [msgpack.unpackb(p)[:6] for p in ahead]
-    assert [h[H_SEQUENCE] for h in heads] == [0, 1, 2, 2, 3, 4, 5, 5, 6, 6, 7, 8, 9, 10]
-    assert ahead == one_by_one
-
-
-def _both_ways(go) -> tuple[tuple, tuple]:
-    """go(run_ahead) -> (rig, controller) run with frames run ahead and one by one: what
-    the board received and the rig's link counters, for each."""
-    def seen(run_ahead: bool) -> tuple:
-        rig, ctl = run(go(run_ahead))
-        health = rig.health.as_dict()
-        return list(ctl.received), health, rig.frame, rig.plant.time_s
-    return seen(True), seen(False)
-
-
-def test_a_run_stopped_while_a_frame_ran_ahead_resumes_as_one_by_one(params) -> None:
-    # the board does not answer y_5 before the run is stopped (frame 5 has run ahead);
-    # resumed, the rig must still owe y_5 its answer (say it again), not send y_6
-    def go(run_ahead: bool):
-        async def inner():
-            alive = {"yes": False}
-
-            def answer(rig, m):
-                seq = m[H_SEQUENCE]
-                if seq >= 5 and not alive["yes"]:
-                    return None
-                return command(rig, seq, duty=0.5 + 0.01 * seq)
-            rig, ctl = await make_rig(params, answer, mode="lockstep")
-            rig.run_ahead = run_ahead
-            stop = asyncio.Event()
-            asyncio.get_running_loop().call_later(0.3, stop.set)
-            await rig.run(stop=stop)
-            alive["yes"] = True
-            await rig.run(frames=10)
-            return rig, ctl
-        return inner()
-    (ahead, h_ahead, f_ahead, _), (one, h_one, f_one, _) = _both_ways(go)
-    assert h_ahead["missing"] == h_one["missing"] == 0
-    assert f_ahead == f_one == 10
-    # y_5 said again (silence) while stopped and after: the repeats' count depends on
-    # timing, so compare the telegrams past the last repeat of y_5
-    def past_y5(telegrams):
-        heads = [msgpack.unpackb(p)[:6] for p in telegrams]
-        last = max(i for i, h in enumerate(heads) if h[H_SEQUENCE] == 5)
-        return telegrams[:6], telegrams[last + 1:]
-    assert past_y5(ahead) == past_y5(one)
-    assert all(msgpack.unpackb(p)[H_FLAGS] & ~FLAG_REPEAT == 0 for p in ahead)
-
-
-@pytest.mark.parametrize("late_at", [4, 5])
-def test_a_late_answer_after_a_frame_ran_ahead_is_told_as_one_by_one(params, late_at) -> None:
-    # y_3 is said again after silence; the board's first answer to it arrives two round
-    # trips late (UDP may reorder): an answer to a repeat, no error, with or without
-    # frames run ahead; and a plain duplicate of the answer to y_3 likewise
-    def go_with(slow: bool):
-        def go(run_ahead: bool):
-            async def inner():
-                first = set()
-
-                def answer(rig, m):
-                    seq = m[H_SEQUENCE]
-                    if slow and seq == 3 and seq not in first:
-                        first.add(seq)
-                        return None
-                    if seq == late_at:
-                        ctl.link.send(command(rig, 3, duty=0.53))
-                    return command(rig, seq, duty=0.5 + 0.01 * seq)
-                rig, ctl = await make_rig(params, answer, mode="lockstep",
-                                          lockstep_repeat_s=0.005)
-                rig.run_ahead = run_ahead
-                await rig.run(frames=10)
-                return rig, ctl
-            return inner()
-        return go
-    (ahead, h_ahead, *_), (one, h_one, *_) = _both_ways(go_with(slow=True))
-    assert h_ahead["answers_to_repeats"] == h_one["answers_to_repeats"] >= 1
-    assert h_ahead["sequence"] == h_one["sequence"] == {}
-    assert ahead == one
-    (ahead, h_ahead, *_), (one, h_one, *_) = _both_ways(go_with(slow=False))
-    assert h_ahead["sequence"] == h_one["sequence"] != {}  # a duplicate, told alike
-    assert ahead == one
 
 
 def test_lockstep_silence_repeats_after_the_interval_then_doubling(params) -> None:
@@ -309,7 +192,7 @@ def test_a_board_that_repeats_its_bad_answer_meets_the_watchdog_not_a_storm(para
         seq = m[H_SEQUENCE]
         if seq not in replies:
             reply = command(rig, seq)
-            replies[seq] = _with_header(reply, map_digest=1) if seq == 3 else reply
+            replies[seq] = with_header(reply, map_digest=1) if seq == 3 else reply
         return replies[seq]
 
     async def go():
@@ -462,7 +345,7 @@ def _repeats_board(asked: set[int], replays: dict[int, int]):
         seq = m[H_SEQUENCE]
         if seq in asked and not m[H_FLAGS] & FLAG_REPEAT:
             asked.discard(seq)
-            return _with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
+            return with_header(command(rig, 0), flags=CFLAG_REPEAT_REQUEST)
         if seq == 4 and m[H_FLAGS] & FLAG_REPEAT:
             held.append(command(rig, 4))
         if seq == 5 and m[H_FLAGS] & FLAG_REPEAT and held:
