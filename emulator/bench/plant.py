@@ -57,20 +57,32 @@ def _frame(plant: Plant, vf: SlipFrequencyVf) -> None:
     plant.advance(_commands(plant, vf))
 
 
-def _frame_times_us(params: TrainsetParams, frames: int) -> np.ndarray:
-    plant, vf = _loaded_plant(params)
-    samples = np.empty(frames)
+def _times_us(run, repeats: int, before=None) -> np.ndarray:
+    """Wall time of each of ``repeats`` calls of run(), us; before() (untimed) ahead of
+    each. The collector stays off: a collection in the loop would measure it, not run."""
+    samples = np.empty(repeats)
     gc.collect()
-    gc.disable()  # a collection in the loop measures the collector, not the plant
+    gc.disable()
     try:
-        for k in range(frames):
-            commands = _commands(plant, vf)  # the controller's part, not timed
+        for k in range(repeats):
+            if before is not None:
+                before()
             t0 = time.perf_counter_ns()
-            plant.advance(commands)
+            run()
             samples[k] = (time.perf_counter_ns() - t0) / 1e3
     finally:
         gc.enable()
     return samples
+
+
+def _frame_times_us(params: TrainsetParams, frames: int) -> np.ndarray:
+    plant, vf = _loaded_plant(params)
+    held: list[Commands] = []
+
+    def commands() -> None:  # the controller's part, not timed
+        held[:] = [_commands(plant, vf)]
+
+    return _times_us(lambda: plant.advance(held[0]), frames, commands)
 
 
 def replicated(params: TrainsetParams, n_motors: int) -> TrainsetParams:
@@ -94,8 +106,8 @@ class _Machines:
     """The problem both sides solve for the ratio: the trainset's machines with held
     voltages (900 V, a different angle each) and free shafts carrying the drivetrain's
     inertia referred to the rotor, linear magnetising inductance, resistances at the
-    reference temperature, no core loss, friction or windage; from psi_s = 2.0, psi_r = 1.9 V s and
-    300 rad/s, one frame. Equations: machine.py's module docstring."""
+    reference temperature, no core loss, friction or windage; from psi_s = 2.0 V s,
+    psi_r = 1.9 V s and 300 rad/s, one frame. Equations: machine.py's module docstring."""
 
     def __init__(self, params: TrainsetParams) -> None:
         mp, dt = params.machine, params.drivetrain
@@ -104,20 +116,22 @@ class _Machines:
         self.inertia = mp.rotor_inertia_kgm2 + (
             dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2) / dt.gear_ratio ** 2
         self.psi_s0, self.psi_r0, self.omega0 = 2.0, 1.9, 300.0
+        lm = mp.magnetising_h  # the constants of rhs, once (solve_ivp's time is measured)
+        ls, lr = mp.stator_leakage_h + lm, mp.rotor_leakage_h + lm
+        self._lm, self._ls, self._lr, self._d = lm, ls, lr, ls * lr - lm * lm
+        self._rs, self._rr, self._p = (mp.stator_resistance_ohm, mp.rotor_resistance_ohm,
+                                       mp.pole_pairs)
 
     def rhs(self, _t: float, y: np.ndarray) -> np.ndarray:
-        mp, n = self.params.machine, self.n
-        lm = mp.magnetising_h
-        ls, lr = mp.stator_leakage_h + lm, mp.rotor_leakage_h + lm
-        d = ls * lr - lm * lm
+        n, lm, ls, lr, d, p = self.n, self._lm, self._ls, self._lr, self._d, self._p
         ps = y[0:n] + 1j * y[n:2 * n]
         pr = y[2 * n:3 * n] + 1j * y[3 * n:4 * n]
         w = y[4 * n:]
         i_s = (lr * ps - lm * pr) / d
         i_r = (ls * pr - lm * ps) / d
-        dps = self.u - mp.stator_resistance_ohm * i_s
-        dpr = -mp.rotor_resistance_ohm * i_r + 1j * mp.pole_pairs * w * pr
-        torque = 1.5 * mp.pole_pairs * (ps.real * i_s.imag - ps.imag * i_s.real)
+        dps = self.u - self._rs * i_s
+        dpr = -self._rr * i_r + 1j * p * w * pr
+        torque = 1.5 * p * (ps.real * i_s.imag - ps.imag * i_s.real)
         return np.concatenate([dps.real, dps.imag, dpr.real, dpr.imag, torque / self.inertia])
 
     def y0(self) -> np.ndarray:
@@ -166,13 +180,13 @@ def _solve_ivp_frame_us(problem: _Machines, repeats: int, rtol: float = 1e-6,
     a usual engineering tolerance, atol 1e-9), and its end state."""
     from scipy.integrate import solve_ivp
 
-    samples = []
-    for _ in range(repeats):
-        t0 = time.perf_counter_ns()
-        sol = solve_ivp(problem.rhs, (0.0, problem.params.frame_s), problem.y0(),
-                        method="RK45", rtol=rtol, atol=atol)
-        samples.append((time.perf_counter_ns() - t0) / 1e3)
-    return float(np.median(samples)), sol.y[:, -1]
+    sol = []
+
+    def run() -> None:
+        sol[:] = [solve_ivp(problem.rhs, (0.0, problem.params.frame_s), problem.y0(),
+                            method="RK45", rtol=rtol, atol=atol)]
+
+    return float(np.median(_times_us(run, repeats))), sol[0].y[:, -1]
 
 
 def _our_machines_frame_us(problem: _Machines, repeats: int,
@@ -182,12 +196,7 @@ def _our_machines_frame_us(problem: _Machines, repeats: int,
     plant = problem.plant()
     plant.refresh_each_substep = refresh_each
     plant.advance(None)  # compiled or loaded before the clock
-    samples = []
-    for _ in range(repeats):
-        problem.restart(plant)
-        t0 = time.perf_counter_ns()
-        plant.advance(None)
-        samples.append((time.perf_counter_ns() - t0) / 1e3)
+    samples = _times_us(lambda: plant.advance(None), repeats, lambda: problem.restart(plant))
     return float(np.median(samples)), problem.state(plant)
 
 

@@ -297,16 +297,14 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             g[G_ADH_HAS_V_REF] = 0.0
         adhesion_step(g, k, mot, inv, wheel_mps, braking, plausible)
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
+    per_link[:] = 0.0  # (np.zeros before)
     p_links = per_link[0]
-    p_links[:] = 0.0
     achieved = 0.0
     u_stop = k[K_LINK_STOP] * k[K_LINK_NOMINAL]
     u_restart = k[K_LINK_RESTART] * k[K_LINK_NOMINAL]
     line_live = not line_side or g[G_LINE_LIVE_S] >= k[K_LOCK_S]
     p_lo = per_link[1]
     p_hi = per_link[2]
-    p_lo[:] = 0.0
-    p_hi[:] = 0.0
     for i in range(n_links):
         if line_live:
             p_lo[i] = power_limits(k, regen_rms, regen_ok, lnk[i, L_P_RATED])[0]
