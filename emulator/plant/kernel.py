@@ -14,7 +14,8 @@ Order inside each sub-step of length h (commands held over the frame):
 4. train: lumped mass with stiction at rest; the unmotored axles' brakes.
 
 Once a frame, before the sub-steps: the axle loads from the creep forces (load transfer).
-Each sub-step, first: the brake cylinders follow their demands.
+Each sub-step, first: the brake cylinders follow their demands, and the contact law
+gives each axle's creep force at its slip (used in 3).
 
 The machine matrices are refreshed at the start of each frame (default) or of each
 sub-step (``refresh_each``), at the speed predicted for the middle of the interval,
@@ -136,6 +137,7 @@ from .probe import probe_values
 from .shaft import (
     axle_loads,
     brake_cylinders,
+    contact_forces,
     locked_hold,
     shaft_step,
     unmotored_grip,
@@ -199,11 +201,13 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     p_sw = 0.0
     s_a = s_b = s_c = 0.5
     dr_a = dr_b = dr_c = 0.0
+    u1 = 0j  # a sine source's voltage at the end of the sub-step
     if source == SOURCE_SINE:
         amp = iu[k, IU_SINE_AMP]
         om_s = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
         th0 = om_s * t + iu[k, IU_SINE_PHASE]
         u = amp * cmath.exp(complex(0.0, th0))
+        u1 = amp * cmath.exp(complex(0.0, th0 + om_s * h))
     elif blocked:
         u_target = -g0 / g1 if g1 != 0j else 0j
         u, s_a, s_b, s_c, dr_a, dr_b, dr_c = blocked_bridge(u_target, udc, ipar[k, IP_VF0])
@@ -229,11 +233,8 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         is0 = mx[m, MX_IS]
         ir0 = mx[m, MX_IR]
         if source == SOURCE_SINE:
-            om_s = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
-            th0 = om_s * t + iu[k, IU_SINE_PHASE]
-            ps1, pr1 = step_flux_sine(mx, m, iu[k, IU_SINE_AMP], th0, th0 + om_s * h)
+            ps1, pr1 = step_flux_sine(mx, m, u, u1)
             is1, ir1 = currents_frozen(ms, m, ps1, pr1)
-            u1 = iu[k, IU_SINE_AMP] * cmath.exp(complex(0.0, th0 + om_s * h))
             # source energy by the trapezoid rule (the source is not held)
             e_in = 0.75 * h * ((u * is0.conjugate()).real + (u1 * is1.conjugate()).real)
         else:
@@ -333,6 +334,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         force = 0.0
         i_link[:, :] = 0.0
         brake_cylinders(mpar, mint, mu, ms, tu, ts, h)
+        contact_forces(mpar, mint, ms, v)
         brake = min(ts[TS_BRAKE_FORCE], grip)
         for k in range(n_i):
             force += _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,

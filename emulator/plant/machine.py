@@ -261,14 +261,14 @@ def stator_current_integral(mx: np.ndarray, m: int, ps0: complex, pr0: complex, 
 
 
 @compiled_inline
-def step_flux_sine(mx: np.ndarray, m: int, amp: float, theta0: float, theta1: float):
+def step_flux_sine(mx: np.ndarray, m: int, e0: complex, e1: complex):
     """Advance motor m one sub-step from an ideal sinusoidal source, exactly.
 
-    u(t) = amp e^{j theta(t)}; with the particular solution x_p = P amp e^{j theta}
-    the homogeneous part decays with Phi: x(h) = Phi (x(0) - x_p(0)) + x_p(h).
+    u(t) = amp e^{j theta(t)}, given at the step's ends as e0 = u(0), e1 = u(h) (the
+    same for every motor of the source: computed once by the caller); with the particular
+    solution x_p = P u the homogeneous part decays with Phi:
+    x(h) = Phi (x(0) - x_p(0)) + x_p(h).
     """
-    e0 = amp * cmath.exp(complex(0.0, theta0))
-    e1 = amp * cmath.exp(complex(0.0, theta1))
     ps0 = mx[m, MX_PSI_S] - mx[m, MX_P1] * e0
     pr0 = mx[m, MX_PSI_R] - mx[m, MX_P2] * e0
     ps1 = mx[m, MX_PHI11] * ps0 + mx[m, MX_PHI12] * pr0 + mx[m, MX_P1] * e1

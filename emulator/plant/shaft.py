@@ -39,6 +39,8 @@ from .layout import (
     MS_ADHESION_UTIL,
     MS_AXLE_LOAD,
     MS_BRAKE_FORCE,
+    MS_CONTACT_DF,
+    MS_CONTACT_F,
     MS_CREEP_FORCE,
     MS_E_BRAKE,
     MS_E_DAMPER,
@@ -104,12 +106,9 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
         r = mpar[m, MP_WHEEL_R]
         eff = mpar[m, MP_GEAR_EFF]
         ow = ms[m, MS_OMEGA_W]
-        w = ow * r - v
         mu0 = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
-        f, df = polach_core(w, v, mpar[m, MP_POL_KAPPA], mpar[m, MP_POL_SCALE], mpar[m, MP_KA],
-                            mpar[m, MP_KS], mu0, mpar[m, MP_POL_A], mpar[m, MP_POL_B],
-                            mpar[m, MP_CREEP_VREF])
-        kk = max(df, 0.0)  # the falling branch stays explicit
+        f = ms[m, MS_CONTACT_F]  # at w = ow r - v (contact_forces, this sub-step)
+        kk = max(ms[m, MS_CONTACT_DF], 0.0)  # the falling branch stays explicit
         tb = ms[m, MS_BRAKE_FORCE] * r  # brake torque at the wheelset, >= 0
         k = mpar[m, MP_K_SHAFT]
         if k > 0.0:
@@ -193,6 +192,25 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
     ms[m, MS_THETA_M] += om_avg * h
     ms[m, MS_OMEGA_M] = om_new
     return force
+
+
+@compiled_inline
+def contact_forces(mpar, mint, ms, v):
+    """Each motored axle's creep force and its slope at the slip velocity w = omega_w r - v
+    of the sub-step's start (drivetrain.polach_core), into MS_CONTACT_F and
+    MS_CONTACT_DF for shaft_step. The same arithmetic as in shaft_step itself, in a short
+    pass of its own over the axles ahead of the long per-motor one: there each axle's
+    exponential and arctangent waited on the one before; here the processor overlaps
+    the axles' (the 128-motor frame's cost is latency, not arithmetic)."""
+    for m in range(mpar.shape[0]):
+        if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN:
+            w = ms[m, MS_OMEGA_W] * mpar[m, MP_WHEEL_R] - v
+            mu0 = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
+            f, df = polach_core(w, v, mpar[m, MP_POL_KAPPA], mpar[m, MP_POL_SCALE],
+                                mpar[m, MP_KA], mpar[m, MP_KS], mu0, mpar[m, MP_POL_A],
+                                mpar[m, MP_POL_B], mpar[m, MP_CREEP_VREF])
+            ms[m, MS_CONTACT_F] = f
+            ms[m, MS_CONTACT_DF] = df
 
 
 @compiled_inline
