@@ -193,7 +193,7 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     e_plus = cmath.exp(s + q)
     e_minus = cmath.exp(s - q)
     ch = 0.5 * (e_plus + e_minus)
-    if abs(q) > 1e-6:
+    if abs2(q) > 1e-12:  # |q| > 1e-6 without a hypot
         shq = 0.5 * (e_plus - e_minus) / q
     else:
         shq = cmath.exp(s) * (1.0 + q * q / 6.0)
