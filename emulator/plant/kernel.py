@@ -128,6 +128,7 @@ from .machine import (
     currents_frozen,
     open_phase_flux,
     refresh_matrices,
+    scaled,
     stator_current_integral,
     step_flux,
     step_flux_sine,
@@ -189,14 +190,14 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     for m in range(first, last):
         i_tot += mx[m, MX_IS]
         if not blocked:
-            i_tot += mpar[m, MP_G_CORE] * u_prev  # the core-loss branch's current
+            i_tot += scaled(mpar[m, MP_G_CORE], u_prev)  # the core-loss branch's current
         if blocked:
             ps = mx[m, MX_PSI_S]
             pr = mx[m, MX_PSI_R]
             # end-of-step current with zero voltage, and its sensitivity to the voltage
             ps_h = mx[m, MX_PHI11] * ps + mx[m, MX_PHI12] * pr
             pr_h = mx[m, MX_PHI21] * ps + mx[m, MX_PHI22] * pr
-            g0 += ms[m, MS_CSS] * ps_h - ms[m, MS_CSR] * pr_h
+            g0 += scaled(ms[m, MS_CSS], ps_h) - scaled(ms[m, MS_CSR], pr_h)
             g1 += mx[m, MX_CG]
     p_sw = 0.0
     s_a = s_b = s_c = 0.5
@@ -206,8 +207,8 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         amp = iu[k, IU_SINE_AMP]
         om_s = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
         th0 = om_s * t + iu[k, IU_SINE_PHASE]
-        u = amp * cmath.exp(complex(0.0, th0))
-        u1 = amp * cmath.exp(complex(0.0, th0 + om_s * h))
+        u = scaled(amp, cmath.exp(complex(0.0, th0)))
+        u1 = scaled(amp, cmath.exp(complex(0.0, th0 + om_s * h)))
     elif blocked:
         u_target = -g0 / g1 if g1 != 0j else 0j
         u, s_a, s_b, s_c, dr_a, dr_b, dr_c = blocked_bridge(u_target, udc, ipar[k, IP_VF0])
@@ -257,11 +258,11 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         g_core = mpar[m, MP_G_CORE]
         if g_core > 0.0 and not blocked:
             if source == SOURCE_SINE:
-                i_end += g_core * u1
+                i_end += scaled(g_core, u1)
                 e_core = 1.5 * g_core * iu[k, IU_SINE_AMP] ** 2 * h
             else:
-                i_end += g_core * u
-                int_i += g_core * u * h
+                i_end += scaled(g_core, u)
+                int_i += scaled(h, scaled(g_core, u))
                 e_core = 1.5 * g_core * abs2(u) * h
             e_in += e_core
             ms[m, MS_E_IRON] += e_core

@@ -103,11 +103,28 @@ def abs2(z: complex) -> float:
 
 
 @compiled_inline
+def scaled(x: float, z: complex) -> complex:
+    """x z for a real x, in two multiplications. numba widens x to x + 0j and multiplies
+    as complex numbers (four multiplications, two additions), and strict IEEE arithmetic
+    keeps the products with that zero; the value is the same for a finite z (but for
+    the sign of a zero part). Likewise ``scaled(1 / d, z)`` is not z / d: divide the
+    parts (``divided``)."""
+    return complex(x * z.real, x * z.imag)
+
+
+@compiled_inline
+def divided(z: complex, d: float) -> complex:
+    """z / d for a real d, part by part: numba's complex division by d + 0j gives the
+    same for a finite, non-zero d, after two more divisions and its branches."""
+    return complex(z.real / d, z.imag / d)
+
+
+@compiled_inline
 def currents(psi_s: complex, psi_r: complex, ls: float, lr: float, lm: float):
     """Stator and rotor current space vectors from the flux linkages, A."""
     d = ls * lr - lm * lm
-    i_s = (lr * psi_s - lm * psi_r) / d
-    i_r = (ls * psi_r - lm * psi_s) / d
+    i_s = divided(scaled(lr, psi_s) - scaled(lm, psi_r), d)
+    i_r = divided(scaled(ls, psi_r) - scaled(lm, psi_s), d)
     return i_s, i_r
 
 
@@ -116,7 +133,8 @@ def currents_frozen(ms: np.ndarray, m: int, psi_s: complex, psi_r: complex):
     """Stator and rotor currents with the coefficients stored at the last refresh, A."""
     css = ms[m, MS_CSS]
     csr = ms[m, MS_CSR]
-    return css * psi_s - csr * psi_r, ms[m, MS_CRR] * psi_r - csr * psi_s
+    return (scaled(css, psi_s) - scaled(csr, psi_r),
+            scaled(ms[m, MS_CRR], psi_r) - scaled(csr, psi_s))
 
 
 @compiled_inline
@@ -139,9 +157,9 @@ def open_phase_flux(ms: np.ndarray, m: int, psi_s: complex, psi_r: complex,
     """
     d = cmath.exp(complex(0.0, 2.0 * math.pi * phase / 3.0))
     css = ms[m, MS_CSS]
-    i_s = css * psi_s - ms[m, MS_CSR] * psi_r
+    i_s = scaled(css, psi_s) - scaled(ms[m, MS_CSR], psi_r)
     i_k = (i_s * d.conjugate()).real
-    return psi_s - d * (i_k / css)
+    return psi_s - scaled(i_k / css, d)
 
 
 @compiled_inline
@@ -218,15 +236,15 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     css = lr / d
     csr = lm / d
     # int i_s dt = CSS int psi_s - CSR int psi_r, int x dt = A^{-1} (x(h) - x(0) - B u h)
-    mx[m, MX_KI1] = css * ai11 - csr * ai21
-    mx[m, MX_KI2] = css * ai12 - csr * ai22
-    mx[m, MX_CG] = css * g1 - csr * g2
+    mx[m, MX_KI1] = scaled(css, ai11) - scaled(csr, ai21)
+    mx[m, MX_KI2] = scaled(css, ai12) - scaled(csr, ai22)
+    mx[m, MX_CG] = scaled(css, g1) - scaled(csr, g2)
     # currents with the new coefficients: the start values of the next sub-step
     ps = mx[m, MX_PSI_S]
     pr = mx[m, MX_PSI_R]
-    i_s = css * ps - csr * pr
+    i_s = scaled(css, ps) - scaled(csr, pr)
     mx[m, MX_IS] = i_s
-    mx[m, MX_IR] = (ls / d) * pr - csr * ps
+    mx[m, MX_IR] = scaled(ls / d, pr) - scaled(csr, ps)
     mstate[m, MS_TORQUE] = torque(ps, i_s, mpar[m, MP_POLE_PAIRS])
     # particular solution of dx/dt = A x + B U e^{j w t}: x_p = (j w I - A)^{-1} B U e^{j w t}
     if sine_on:
@@ -257,7 +275,7 @@ def stator_current_integral(mx: np.ndarray, m: int, ps0: complex, pr0: complex, 
     From dx/dt = A x + B u: int_0^h x dt = A^{-1} (x(h) - x(0) - B u h), and
     i_s = (L_r psi_s - L_m psi_r) / D; the coefficients are stored at the refresh.
     """
-    return mx[m, MX_KI1] * (ps1 - ps0 - u * h) + mx[m, MX_KI2] * (pr1 - pr0)
+    return mx[m, MX_KI1] * (ps1 - ps0 - scaled(h, u)) + mx[m, MX_KI2] * (pr1 - pr0)
 
 
 @compiled_inline
