@@ -211,7 +211,8 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     e_plus = cmath.exp(s + q)
     e_minus = cmath.exp(s - q)
     ch = 0.5 * (e_plus + e_minus)
-    if abs2(q) > 1e-12:  # |q| > 1e-6 without a hypot
+    if abs2(q) > 1e-12:  # |q| > 1e-6 without a hypot (the two may differ within an ulp
+        # of |q| = 1e-6, where both branches agree to 1e-10; the machines are far from it)
         shq = 0.5 * (e_plus - e_minus) / q
     else:
         shq = cmath.exp(s) * (1.0 + q * q / 6.0)

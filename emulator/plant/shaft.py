@@ -94,6 +94,9 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
     linearised backward Euler on the slip velocity (the contact is stiff). Rigid (k = 0):
     one inertia J_w + J_g + i^2 J_r. The friction brake T_b = F_b r opposes the wheel's
     turning and holds it at rest up to its size (a locked wheel).
+
+    The creep force F and its slope at the step's start come from contact_forces, which
+    the kernel runs over all axles earlier in the same sub-step.
     """
     mode = mint[m, MI_SHAFT_MODE]
     om = ms[m, MS_OMEGA_M]
