@@ -8,6 +8,7 @@ from __future__ import annotations
 import numpy as np
 
 from emulator.plant import Plant
+from emulator.plant import layout as L  # noqa: N812
 from emulator.plant.drivetrain import RAIL_CONDITIONS, creep_curve_peak, polach_force
 from emulator.profiles.reader import PROFILES_DIR, load_trainset
 from emulator.scenario.brake_unit import BrakeUnit
@@ -65,3 +66,19 @@ def test_with_protection_the_wheels_turn_and_brake_harder_than_sliding() -> None
     _, _, vented = _brake("vent")
     # and the train stops sooner than with the motored brakes let go altogether
     assert plant.read("train.speed_mps") < vented.read("train.speed_mps") - 0.3
+
+
+def test_a_release_after_braking_lets_go_and_a_second_release_keeps_it_so() -> None:
+    # The unit skips a release that follows a release (the driver releases every frame
+    # it does not brake): the one after braking must still zero every cylinder's demand
+    # and close the valves, and a brake after it must apply again.
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+    plant.set_speed(25.0)
+    unit = BrakeUnit(plant, 1e-3)
+    demands = plant.mu[:, L.MU_BRAKE_DEMAND]  # per motored axle
+    for force in (DEMAND, 0.0, 0.0, DEMAND, 0.0):
+        unit.apply(force)
+        expected = DEMAND / max(plant.params.train.axle_count, plant.n_motors)
+        assert np.all(demands == (expected if force else 0.0)), force
+        if not force:
+            assert not unit.vent.any() and unit.v_ref is None
