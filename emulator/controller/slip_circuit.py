@@ -39,14 +39,23 @@ def branches(c, w_sl, lm):
 
 
 @compiled
+def magnitude(z):
+    """|z| as sqrt(re^2 + im^2): abs() of a complex is libm's hypot, which guards
+    against overflow (none here: volts and amperes per volt-second) at several times
+    the cost, and which the compiler cannot drop where the value goes unused (it may
+    set errno). Within an ulp or so of hypot."""
+    return math.sqrt(z.real * z.real + z.imag * z.imag)
+
+
+@compiled
 def operating_point(c, w_sl, w_r, u_room, lm):
     """(torque N m, stator current A peak, main flux V s, stator voltage V) at a slip
     with the rotor at electrical speed w_r and u_room the voltage there is."""
     y, t_per_psi2 = branches(c, w_sl, lm)
     w_s = w_r + w_sl
     g = complex(c[CIRCUIT_RS], w_s * c[CIRCUIT_LLS]) * y + 1j * w_s
-    psi = min(c[CIRCUIT_PSI_RATED], u_room / max(abs(g), 1e-9))
-    return t_per_psi2 * psi * psi, abs(y) * psi, psi, g * psi
+    psi = min(c[CIRCUIT_PSI_RATED], u_room / max(magnitude(g), 1e-9))
+    return t_per_psi2 * psi * psi, magnitude(y) * psi, psi, g * psi
 
 
 @compiled
