@@ -40,10 +40,11 @@ def branches(c, w_sl, lm):
 
 @compiled
 def magnitude(z):
-    """|z| as sqrt(re^2 + im^2): abs() of a complex is libm's hypot, which guards
-    against overflow (none here: volts and amperes per volt-second) at several times
-    the cost, and which the compiler cannot drop where the value goes unused (it may
-    set errno). Within an ulp or so of hypot."""
+    """|z| as sqrt(re^2 + im^2): abs() of a complex is a call of libm's hypot, which
+    guards against overflow (none here: volts and amperes per volt-second) at several
+    times the cost, and which stayed in the searches that do not use its value (a
+    library call; the square root is an instruction the compiler drops). Within an ulp
+    or so of hypot."""
     return math.sqrt(z.real * z.real + z.imag * z.imag)
 
 
