@@ -42,9 +42,9 @@ def __getattr__(name: str):
     module first asks (importing emulator does not load numba). Rules for the kernels
     compiled with it: allocate no array (numba refuses to compile that), return no
     array in any form (numba refuses a bare one, not one inside a tuple: the caller
-    would get a view of freed or wrong memory; tests/test_kernel_cache.py checks every
-    such kernel's return types), touch only arrays their Python caller holds for the
-    whole call."""
+    would get a view of freed or wrong memory; ``returned_arrays`` finds them among the
+    kernels a process has compiled or loaded, and tests/test_kernel_cache.py runs it),
+    touch only arrays their Python caller holds for the whole call."""
     if name == "WITHOUT_RUNTIME":
         globals()[name] = options = _without_runtime()
         return options
@@ -84,3 +84,37 @@ def refresh_kernel_cache(root: Path = PACKAGE_DIR) -> bool:
     except OSError as exc:  # a read-only install: numba then compiles in memory
         log.debug("kernel cache not refreshed: %s", exc)
         return False
+
+
+def returned_arrays() -> tuple[set[str], list[str]]:
+    """(the kernels compiled without the runtime that this process has compiled or
+    loaded, the overloads among them that return an array, bare or inside a tuple), by
+    "module.name". A kernel loaded from numba's cache brings no overloads of the kernels
+    it calls, so only a process that compiled fresh sees those."""
+    import importlib
+    import pkgutil
+
+    import numba
+    from numba.core import types
+
+    def holds_an_array(t) -> bool:
+        if isinstance(t, types.Array):
+            return True
+        return isinstance(t, types.BaseTuple) and any(holds_an_array(e) for e in t.types)
+
+    seen: set[str] = set()
+    bad: list[str] = []
+    for package in COMPILED_PACKAGES:
+        root = importlib.import_module(f"emulator.{package}")
+        for info in pkgutil.iter_modules(root.__path__):
+            module = importlib.import_module(f"emulator.{package}.{info.name}")
+            for obj in vars(module).values():
+                if not isinstance(obj, numba.core.registry.CPUDispatcher) or (
+                        obj.targetoptions.get("_nrt", True)):
+                    continue
+                name = f"{obj.__module__}.{obj.__name__}"
+                for sig in obj.nopython_signatures:
+                    seen.add(name)
+                    if holds_an_array(sig.return_type):
+                        bad.append(f"{name}: {sig}")
+    return seen, sorted(set(bad))

@@ -41,21 +41,36 @@ async def wait_until(predicate, timeout_s: float = 30.0, every_s: float = 0.02,
 # FRESH_DIGESTS_ENV, and tests/scenario/test_determinism.py compares them with a run that
 # loads everything from the cache, instead of compiling everything once more.
 
-#: a 4 s wet start from the scenario library, seed 3: the sha256 of its recording
+#: a 4 s wet start from the scenario library, seed 3: the sha256 of its recording, then
+#: how often the plant's frame and the controller's period were loaded from numba's
+#: cache and how often compiled, in this process ("digest hits misses")
 FRESH_DIGEST = """
 import asyncio, dataclasses, hashlib, sys
 from emulator.scenario import load_scenario, run_scenario
 scenario = dataclasses.replace(load_scenario(sys.argv[1]), duration_s=4.0)
 run = asyncio.run(run_scenario(scenario, seed=3))
-print(hashlib.sha256(run.recording.data.tobytes()).hexdigest())
+from emulator.controller.period_kernel import period
+from emulator.plant.kernel import advance_frame
+kernels = (advance_frame.stats, period.stats)
+print(hashlib.sha256(run.recording.data.tobytes()).hexdigest(),
+      sum(sum(k.cache_hits.values()) for k in kernels),
+      sum(sum(k.cache_misses.values()) for k in kernels))
 """
 FRESH_DIGEST_SCENARIO = PROFILES_DIR / "scenarios" / "wet-gradient-start.toml"
 FRESH_DIGESTS_ENV = "RAILRIG_TEST_FRESH_DIGESTS"
 
-# a compile process says "compiled", waits for a line on its input, then (if the line
-# is "digest") prints the digest of FRESH_DIGEST's run
+#: the kernels the compile processes compiled fresh, and any of them without numba's
+#: runtime that returns an array (emulator.kernel_cache.returned_arrays), as JSON
+FRESH_RETURNS_ENV = "RAILRIG_TEST_FRESH_RETURNS"
+
+# a compile process says "compiled" with what returned_arrays found in it (JSON), waits
+# for a line on its input, then (if the line is "digest") prints the digest of
+# FRESH_DIGEST's run
 _THEN_DIGEST = """
-print("compiled", flush=True)
+import json
+from emulator.kernel_cache import returned_arrays
+_seen, _bad = returned_arrays()
+print("compiled", json.dumps({"seen": sorted(_seen), "bad": _bad}), flush=True)
 if sys.stdin.readline().strip() == "digest":
     sys.argv[1:] = [sys.argv[2]]
 """ + FRESH_DIGEST
@@ -108,11 +123,20 @@ def pytest_configure(config: pytest.Config) -> None:
     if not isinstance(workers, int) or workers < 2 or _kernels_cached():
         return
     import contextlib
+    import os
     import subprocess
     import sys
     import tempfile
     import time
 
+    from emulator.kernel_cache import COMPILED_PACKAGES, PACKAGE_DIR
+
+    if not os.environ.get("NUMBA_CACHE_DIR"):
+        # a cache that holds some kernels and not others (a run of one test folder) would
+        # let a compile process load what it should compile: its run would not be fresh
+        for package in COMPILED_PACKAGES:
+            for path in (PACKAGE_DIR / package / "__pycache__").glob("*.nb[ic]"):
+                path.unlink(missing_ok=True)
     profile = str(PROFILES_DIR / "trainsets" / "tern-25kv.toml")
     t0 = time.monotonic()
     digests = {}
@@ -126,8 +150,9 @@ def pytest_configure(config: pytest.Config) -> None:
                 for what, code in _COMPILE.items()}
         # both compiled (or failed) before either runs its digest: each run then has the
         # other side's kernels in the cache
-        compiled = {what: job.stdout.readline().strip() == "compiled"
-                    for what, job in jobs.items()}
+        said = {what: job.stdout.readline().strip().split(" ", 1)
+                for what, job in jobs.items()}
+        compiled = {what: words[0] == "compiled" for what, words in said.items()}
         order = "digest\n" if all(compiled.values()) else "stop\n"
         for job in jobs.values():  # the two runs side by side
             with contextlib.suppress(OSError):  # (one that died has no reader)
@@ -146,9 +171,16 @@ def pytest_configure(config: pytest.Config) -> None:
                 tail = err.strip().splitlines()[-1:] or ["?"]
                 print(f"compiling {what} for the test workers failed: {tail[0]}")
             elif out.strip():
-                digests[what] = out.strip()
-    if len(digests) == len(jobs):  # the workers inherit the environment
-        import os
+                digest, _hits, misses = out.split()
+                if int(misses) >= 1:  # it compiled its side (else no fresh run to offer)
+                    digests[what] = digest
+    import json
 
+    if len(digests) == len(jobs):  # the workers inherit the environment
         os.environ[FRESH_DIGESTS_ENV] = ",".join(digests.values())
+    if all(compiled.values()):
+        found = [json.loads(words[1]) for words in said.values()]
+        os.environ[FRESH_RETURNS_ENV] = json.dumps(
+            {"seen": sorted({n for f in found for n in f["seen"]}),
+             "bad": sorted({b for f in found for b in f["bad"]})})
     print(f"compiled the kernels for the test workers in {time.monotonic() - t0:.0f} s")

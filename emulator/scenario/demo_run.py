@@ -4,6 +4,7 @@ Used by ``railrig demo --headless``, the throughput benchmark and the tests."""
 
 from __future__ import annotations
 
+import math
 import time
 from dataclasses import dataclass
 
@@ -78,8 +79,9 @@ async def run_reference_demo(profile, *, in_process: bool = False, target_kmh: f
     t_wall = time.perf_counter()
     try:
         chunk = 5000
-        while not program.finished and rig.plant.time_s < max_plant_s:
-            await rig.run(frames=rig.frame + chunk)
+        last = math.ceil(max_plant_s / rig.period_us * 1e6 - 1e-9)  # frames in max_plant_s
+        while not program.finished and rig.frame < last:
+            await rig.run(frames=min(rig.frame + chunk, last))
             if progress is not None:
                 progress(rig.plant.time_s, rig.plant.read("train.speed_mps") * 3.6,
                          rig.plant.read("train.position_m"), program.phase)

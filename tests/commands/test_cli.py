@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 import subprocess
 import sys
 
@@ -47,19 +48,25 @@ def test_bad_settings_give_a_clear_error_and_exit_2(args, words, capsys) -> None
 
 @pytest.mark.long
 def test_throughput_bench_json_has_the_documented_keys() -> None:
-    """Three short demo runs (2 s of plant time each): the figures are there and add up
-    (the stages and the rest make the instrumented frame); their values are benchmarks,
-    not checked."""
+    """Three short demo runs (2 s of plant time each): the figures are there and are
+    numbers a run can give; their values are benchmarks, not checked."""
     out = railrig("bench", "--throughput", "--json", "--plant-seconds", "2")
     assert out.returncode == 0, out.stderr
     figures = json.loads(out.stdout)
-    assert figures["inprocess_realtime_factor"] > 0 and figures["udp_realtime_factor"] > 0
+    for key in ("inprocess_realtime_factor", "udp_realtime_factor",
+                "frame_us_instrumented"):
+        assert math.isfinite(figures[key]) and figures[key] > 0, key
+    # 2 s of plant time in 1 ms frames (the run stops at the first frame past 2 s)
+    assert figures["plant_time_s"] == pytest.approx(2.0, abs=2e-3)
+    assert figures["frames"] == round(figures["plant_time_s"] * 1e3)
     stages = figures["stage_us"]
     assert set(stages) == {"plant", "sampling", "codec", "controller", "program",
                            "recording", "monitor", "rig_rest"}
     assert all(stages[k] > 0 for k in ("plant", "sampling", "codec", "controller",
                                        "monitor"))
-    assert sum(stages.values()) == pytest.approx(figures["frame_us_instrumented"], rel=1e-9)
+    # the rest is the frame less the timed stages: a stage counted twice would make it
+    # negative
+    assert stages["rig_rest"] >= 0
 
 
 def test_bench_json_has_the_documented_keys() -> None:
@@ -70,4 +77,6 @@ def test_bench_json_has_the_documented_keys() -> None:
                 "motors_in_10pct", "solve_ivp_ratio", "machines_frame_us_median",
                 "solve_ivp_machines_ratio", "machines_apart_ours",
                 "machines_apart_solve_ivp"):
-        assert isinstance(figures[key], int | float)
+        value = figures[key]  # (a busy host may fit no motor in 10 %: zero allowed there)
+        assert type(value) in (int, float) and math.isfinite(value), key
+        assert value > 0 or (key == "motors_in_10pct" and value == 0), key

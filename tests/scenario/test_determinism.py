@@ -43,11 +43,14 @@ def test_fresh_and_cached_kernels_give_the_same_run(tmp_path: Path) -> None:
     run the same 4 s wet start to the same bytes. With fastmath the two roundings had
     differed and the wet start parted at the hill-start brake release (3.38 s); the
     kernels are now strict IEEE (plant/jit.py)."""
-    def digest(env: dict[str, str]) -> str:
+    def digest(env: dict[str, str]) -> tuple[str, int, int]:
+        """The run's digest, and how often its two big kernels were loaded from the
+        cache and how often compiled."""
         done = subprocess.run([sys.executable, "-c", FRESH_DIGEST, str(FRESH_DIGEST_SCENARIO)],
                               env=env, capture_output=True, text=True, timeout=600,
                               check=True)
-        return done.stdout.strip()
+        text, hits, misses = done.stdout.split()
+        return text, int(hits), int(misses)
 
     compiled = os.environ.get(FRESH_DIGESTS_ENV)
     if compiled:
@@ -61,8 +64,10 @@ def test_fresh_and_cached_kernels_give_the_same_run(tmp_path: Path) -> None:
         # nobody compiled before us (a warm cache, or one process): compile everything
         # into an empty cache, then load it
         env = {**os.environ, "NUMBA_CACHE_DIR": str(tmp_path / "numba")}
-        fresh = [digest(env)]
-        assert any((tmp_path / "numba").rglob("*.nbc"))  # the second run loads a cache
+        text, _, misses = digest(env)
+        assert misses >= 2  # both compiled here
+        fresh = [text]
     assert all(len(d) == 64 for d in fresh), fresh
-    cached = digest(env)
+    cached, hits, misses = digest(env)
+    assert misses == 0 and hits >= 2  # both loaded from the cache
     assert fresh == [cached] * len(fresh)
