@@ -168,26 +168,33 @@ class Rig(LockstepPacing, RecordsFrames):
         self._sent_frame = k
         self._flags = 0
 
-    def _receive(self, payloads: list[bytes]) -> None:
-        """Decode telegrams; keep valid answers by the sequence number they answer."""
+    def _receive(self, payloads: list[bytes]) -> tuple[int, int]:
+        """Decode telegrams; keep valid answers by the sequence number they answer.
+        Returns how many were rejected (health.rejected) and how many of those an
+        injected fault dropped."""
         # k: the last measurement out; when frame k ran ahead (lockstep.py) self.frame is
         # k + 1 and the answers are told as if it had not (its command still waiting)
         k = self.frame - 1 if self._ran_ahead else self.frame
         last_used = self._used_before_ahead if self._ran_ahead else self._last_used
+        rejected = dropped = 0
         for payload in payloads:
             if self.faults is not None and self.faults.drop():
                 self.health.rejected["fault_dropped"] += 1
+                rejected += 1
+                dropped += 1
                 continue
             try:
                 tg = self.codec.decode(payload)
             except TelegramError as exc:
                 self.health.rejected[exc.kind] += 1
+                rejected += 1
                 self._flags |= FLAG_BAD_TELEGRAM
                 continue
             period = tg.period_us
             if period and not (MIN_PERIOD_US <= period <= MAX_PERIOD_US
                                if self.mode == "lockstep" else period == self.period_us):
                 self.health.rejected["period"] += 1  # header.py, PERIOD_RULES
+                rejected += 1
                 self._flags |= FLAG_BAD_TELEGRAM
                 continue
             if tg.flags & CFLAG_REPEAT_REQUEST:  # its sequence and values are not read
@@ -214,6 +221,7 @@ class Rig(LockstepPacing, RecordsFrames):
                 self._answers[seq] = (tg.values, period)
                 self._accepted.append(seq)
                 self.health.accepted += 1
+        return rejected, dropped
 
     def _sequence_error(self, kind: str) -> None:
         self.health.sequence[kind] += 1

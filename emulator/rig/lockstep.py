@@ -96,16 +96,13 @@ class LockstepPacing:
                     break
                 arrived_ns = time.monotonic_ns()
                 k = self._sent_frame  # (self.frame is k + 1 when frame k ran ahead)
-                rejected = self.health.rejected.total()
-                dropped_by_fault = self.health.rejected["fault_dropped"]
-                self._receive([payload])
+                rejected, injected_loss = self._receive([payload])
                 if self._repeat_asked:
                     self._repeat_asked, repeat = False, "request"
                     continue
-                injected_loss = self.health.rejected["fault_dropped"] != dropped_by_fault
                 if k not in self._answers and not injected_loss:  # (an injected loss runs
                     # the frame on the held command, as a lost command does in real time)
-                    if self.health.rejected.total() == rejected:
+                    if not rejected:
                         continue  # a duplicate or stale telegram paces nothing
                     if bad_repeats < LOCKSTEP_BAD_REPEATS:
                         repeat = "bad_telegram"
