@@ -173,6 +173,22 @@ class _Machines:
         ps, pr = plant.mx[:, L.MX_PSI_S], plant.mx[:, L.MX_PSI_R]
         return np.concatenate([ps.real, ps.imag, pr.real, pr.imag, plant.ms[:, L.MS_OMEGA_M]])
 
+    def reference(self) -> np.ndarray:
+        """The end state by SciPy's DOP853 at rtol = atol = 1e-12: the reference both
+        sides are measured against."""
+        from scipy.integrate import solve_ivp
+
+        return solve_ivp(self.rhs, (0.0, self.params.frame_s), self.y0(), method="DOP853",
+                         rtol=1e-12, atol=1e-12).y[:, -1]
+
+    def apart(self, y: np.ndarray, ref: np.ndarray) -> tuple[float, float]:
+        """How far an end state y lands from ref: the largest flux and speed differences,
+        each relative to its quantity's largest magnitude in ref."""
+        n = self.n
+        flux = np.abs(y[:4 * n] - ref[:4 * n]).max() / np.abs(ref[:4 * n]).max()
+        speed = np.abs(y[4 * n:] - ref[4 * n:]).max() / np.abs(ref[4 * n:]).max()
+        return float(flux), float(speed)
+
 
 def _solve_ivp_frame_us(problem: _Machines, repeats: int, rtol: float = 1e-6,
                         atol: float = 1e-9) -> tuple[float, np.ndarray]:
@@ -207,8 +223,6 @@ def _machines_ratio(params: TrainsetParams, repeats: int) -> dict[str, float]:
     matrices refreshed once a frame, as a trainset runs (the speed frozen at its
     predicted mid-frame value: on these free shafts, whose torque swings within the
     frame, that is the larger error), and at each sub-step."""
-    from scipy.integrate import solve_ivp
-
     problem = _Machines(params)
     ivp_us, ivp_end = _solve_ivp_frame_us(problem, repeats)
     ours_us, ours_end = _our_machines_frame_us(problem, 5 * repeats, False)
@@ -217,14 +231,10 @@ def _machines_ratio(params: TrainsetParams, repeats: int) -> dict[str, float]:
     # refreshed once a frame (measured 9.8e-6 against 7.7e-5), so a ratio at no better
     # accuracy for ours
     loose_us, loose_end = _solve_ivp_frame_us(problem, repeats, 1e-3, 1e-3)
-    ref = solve_ivp(problem.rhs, (0.0, params.frame_s), problem.y0(), method="DOP853",
-                    rtol=1e-12, atol=1e-12).y[:, -1]
-    n = problem.n
+    ref = problem.reference()
 
     def apart(y: np.ndarray) -> float:
-        flux = np.abs(y[:4 * n] - ref[:4 * n]).max() / np.abs(ref[:4 * n]).max()
-        speed = np.abs(y[4 * n:] - ref[4 * n:]).max() / np.abs(ref[4 * n:]).max()
-        return float(max(flux, speed))
+        return max(problem.apart(y, ref))
 
     return {"solve_ivp_us": ivp_us, "ours_us": ours_us, "ratio": ivp_us / ours_us,
             "solve_ivp_apart": apart(ivp_end), "ours_apart": apart(ours_end),

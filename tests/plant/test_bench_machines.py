@@ -9,7 +9,6 @@ from __future__ import annotations
 import dataclasses
 
 import numpy as np
-from scipy.integrate import solve_ivp
 
 from emulator.bench.plant import _Machines
 from emulator.profiles.reader import PROFILES_DIR, load_trainset
@@ -24,13 +23,8 @@ def _apart(substep_s: float) -> tuple[float, float, _Machines, np.ndarray]:
     plant = problem.plant()
     plant.refresh_each_substep = True
     plant.advance(None)
-    ours = problem.state(plant)
-    ref = solve_ivp(problem.rhs, (0.0, params.frame_s), problem.y0(), method="DOP853",
-                    rtol=1e-12, atol=1e-12).y[:, -1]
-    n = problem.n
-    flux = np.abs(ours[:4 * n] - ref[:4 * n]).max() / np.abs(ref[:4 * n]).max()
-    speed = np.abs(ours[4 * n:] - ref[4 * n:]).max() / np.abs(ref[4 * n:]).max()
-    return flux, speed, problem, ref
+    ref = problem.reference()
+    return (*problem.apart(problem.state(plant), ref), problem, ref)
 
 
 def test_the_benchmark_plant_solves_solve_ivps_problem() -> None:
