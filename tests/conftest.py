@@ -42,16 +42,17 @@ async def wait_until(predicate, timeout_s: float = 30.0, every_s: float = 0.02,
 # loads everything from the cache, instead of compiling everything once more.
 
 #: a 4 s wet start from the scenario library, seed 3: the sha256 of its recording, then
-#: how often the plant's frame and the controller's period were loaded from numba's
-#: cache and how often compiled, in this process ("digest hits misses")
+#: how often the plant's frame and the controller's answer (its period between the
+#: telegrams) were loaded from numba's cache and how often compiled, in this process
+#: ("digest hits misses")
 FRESH_DIGEST = """
 import asyncio, dataclasses, hashlib, sys
 from emulator.scenario import load_scenario, run_scenario
 scenario = dataclasses.replace(load_scenario(sys.argv[1]), duration_s=4.0)
 run = asyncio.run(run_scenario(scenario, seed=3))
-from emulator.controller.period_kernel import period
+from emulator.controller.compiled_tcu import _answer_plain
 from emulator.plant.kernel import advance_frame
-kernels = (advance_frame.stats, period.stats)
+kernels = (advance_frame.stats, _answer_plain.stats)
 print(hashlib.sha256(run.recording.data.tobytes()).hexdigest(),
       sum(sum(k.cache_hits.values()) for k in kernels),
       sum(sum(k.cache_misses.values()) for k in kernels))
@@ -103,17 +104,18 @@ CompiledController(config_from_profile(sys.argv[1]),
 
 
 def _kernels_cached() -> bool:
-    """Whether numba's cache beside the sources holds the two big kernels."""
+    """Whether numba's cache beside the sources holds the two big kernels (the plant's
+    frame, the controller's answer)."""
     import os
 
-    from emulator.controller import period_kernel
+    from emulator.controller import compiled_tcu
     from emulator.rig.warmup import kernel_cached  # (importing emulator refreshes a
     # stale cache: emulator/kernel_cache.py)
 
     if os.environ.get("NUMBA_CACHE_DIR"):
         return False  # cached elsewhere: let the compile processes look
-    cache = Path(period_kernel.__file__).parent / "__pycache__"
-    return kernel_cached() and any(cache.glob("period_kernel.period-*.nbi"))
+    cache = Path(compiled_tcu.__file__).parent / "__pycache__"
+    return kernel_cached() and any(cache.glob("compiled_tcu._answer_plain-*.nbi"))
 
 
 def pytest_configure(config: pytest.Config) -> None:

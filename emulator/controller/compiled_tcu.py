@@ -16,8 +16,10 @@ import math
 from collections import Counter
 
 import msgpack
+import numba as nb
 import numpy as np
 
+from emulator.kernel_cache import WITHOUT_RUNTIME
 from emulator.link import msgpack_array
 
 from . import inverter_guard as guard
@@ -77,6 +79,13 @@ class CompiledController(ref.ReferenceController):
         self._reply_head[5] = self.map_digest
         self._scratch = np.zeros(1, dtype=np.uint64)
         self._wire = np.zeros(msgpack_array.buffer_size(len(self.c_names)), dtype=np.uint8)
+        x, xi, xm, xl, xc = self._tables
+        #: the period's arrays after (y, flags, period_s, out), in period_kernel.period's order
+        self._period_arrays = (self._g, self._k, self._counts, self._recent, self._mot,
+                               self._inv, self._lnk, self._u_applied, self._sc_state,
+                               self._sc_consts, self._circuit, self._vc_state,
+                               self._vc_consts, self._curve_i, self._curve_psi, x, xi, xm,
+                               xl, xc, self._per_motor, self._per_link)
         self._warm_up()
 
     def _warm_up(self) -> None:
@@ -223,22 +232,28 @@ class CompiledController(ref.ReferenceController):
     # --- telegrams and the period -------------------------------------------------------
     def answer(self, payload: bytes) -> bytes:
         """The command telegram for a measurement telegram."""
-        y, head = self._y, self._head
-        if msgpack_array.unpack_scaled(np.frombuffer(payload, dtype=np.uint8), head, y,
-                                       self._scratch, self._m_scale) == 0:
-            _, seq, _, period_us, flags, _ = head.tolist()
-        else:  # not the plain case: the msgpack package reads it, or says why not
-            seq, period_us, flags = self._read_checked(payload, y)
-        if seq == self._last_seq:  # said again (the rig lost our answer): not a new period
+        g = self._g
+        g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
+        raised = self._counts[0]
+        n = _answer_plain(np.frombuffer(payload, dtype=np.uint8), self._head, self._y,
+                          self._scratch, self._m_scale, self._last_seq, self._reply_head,
+                          self._c_inv, self._wire, self._commands, *self._period_arrays)
+        if n == ANSWER_SAID_AGAIN:
             return self._last_reply
-        out = self._commands
-        self._period(y, flags, period_us * 1e-6, out)
-        self._reply_head[1] = seq
-        n = msgpack_array.pack(self._reply_head, out, self._c_inv, self._wire)
+        if n == ANSWER_NOT_PLAIN:  # the msgpack package reads it, or says why not
+            seq, period_us, flags = self._read_checked(payload, self._y)
+            if seq == self._last_seq:
+                return self._last_reply
+            self._period(self._y, flags, period_us * 1e-6, self._commands)
+            self._reply_head[1] = seq
+            n = msgpack_array.pack(self._reply_head, self._commands, self._c_inv,
+                                   self._wire)
+        else:
+            self._after_period(raised)
         if n < 0:
-            raise ValueError(f"command {self.c_names[-1 - n]} = {out[-1 - n]!r} is not "
-                             "finite: no answer")
-        self._last_seq, self._last_reply = seq, self._wire[:n].tobytes()
+            raise ValueError(f"command {self.c_names[-1 - n]} = {self._commands[-1 - n]!r} "
+                             "is not finite: no answer")
+        self._last_seq, self._last_reply = int(self._reply_head[1]), self._wire[:n].tobytes()
         return self._last_reply
 
     def _read_checked(self, payload: bytes, y: np.ndarray) -> tuple[int, int, int]:
@@ -269,16 +284,14 @@ class CompiledController(ref.ReferenceController):
         out[:] = out_arr.tolist() if isinstance(out, list) else out_arr
 
     def _period(self, y: np.ndarray, flags: int, period_s: float, out: np.ndarray) -> None:
-        g = self._g
-        g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
-        counts = self._counts
-        raised = counts[0]
-        x, xi, xm, xl, xc = self._tables
-        pk.period(y, flags, period_s, out, g, self._k, self._counts, self._recent,
-                  self._mot, self._inv, self._lnk, self._u_applied, self._sc_state,
-                  self._sc_consts, self._circuit, self._vc_state, self._vc_consts,
-                  self._curve_i, self._curve_psi, x, xi, xm, xl, xc, self._per_motor,
-                  self._per_link)
+        self._g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
+        raised = self._counts[0]
+        pk.period(y, flags, period_s, out, *self._period_arrays)
+        self._after_period(raised)
+
+    def _after_period(self, raised: int) -> None:
+        """The attributes the Python class keeps, from the state the period left."""
+        g, counts = self._g, self._counts
         if counts[0] != raised:
             self.events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
         self.t = g[pp.G_T]
@@ -291,3 +304,31 @@ class CompiledController(ref.ReferenceController):
         super().clear_events()
         self._counts[:] = 0
 
+
+
+#: _answer_plain's codes beside a reply's length (>= 0) and pack's -1 - i (command i not
+#: finite): a telegram the compiled reader left, and a measurement already answered
+ANSWER_NOT_PLAIN = -(1 << 40)
+ANSWER_SAID_AGAIN = ANSWER_NOT_PLAIN - 1
+
+
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
+def _answer_plain(data, head, y, scratch, m_scale, last_seq, reply_head, c_inv, wire, out,
+                  g, k, counts, recent, mot, inv, lnk, u_applied, sc_state, sc_consts,
+                  circuit, vc_state, vc_consts, curve_i, curve_psi, x, xi, xm, xl, xc,
+                  per_motor, per_link):
+    """CompiledController.answer in one call, in its plain case: the measurement telegram
+    read (msgpack_array.unpack_scaled into head and y), the period (period_kernel.period,
+    unless head's sequence is last_seq: ANSWER_SAID_AGAIN) and the command telegram
+    packed into wire (msgpack_array.pack: its length, or -1 - i). ANSWER_NOT_PLAIN,
+    nothing run, when the reader leaves the telegram to the msgpack package."""
+    if msgpack_array.unpack_scaled(data, head, y, scratch, m_scale) != 0:
+        return ANSWER_NOT_PLAIN
+    seq = head[1]
+    if seq == last_seq:
+        return ANSWER_SAID_AGAIN
+    pk.period(y, head[4], head[3] * 1e-6, out, g, k, counts, recent, mot, inv, lnk,
+              u_applied, sc_state, sc_consts, circuit, vc_state, vc_consts, curve_i,
+              curve_psi, x, xi, xm, xl, xc, per_motor, per_link)
+    reply_head[1] = seq
+    return msgpack_array.pack(reply_head, out, c_inv, wire)

@@ -12,10 +12,11 @@ from emulator.link.loop import LoopLink
 
 
 async def attach_reference(channel: str, rig, profile, period_s: float | None = None,
-                           motor_control: str | None = None):
+                           motor_control: str | None = None, tune=None):
     """The reference controller for ``profile``, answering ``rig`` through
     ``loop://channel``; returned so callers may inspect or alter it. ``motor_control``
-    ("scalar" or "vector") overrides the profile's choice."""
+    ("scalar" or "vector") overrides the profile's choice; ``tune(controller)`` is called
+    before it answers (the link calls the ``answer`` the controller has then)."""
     import dataclasses
 
     from emulator.controller.compiled_tcu import CompiledController
@@ -25,6 +26,8 @@ async def attach_reference(channel: str, rig, profile, period_s: float | None = 
     if motor_control is not None:
         cfg = dataclasses.replace(cfg, motor_control=motor_control)
     tcu = CompiledController(cfg, rig.signal_map.as_dict())
+    if tune is not None:
+        tune(tcu)
     await attach(channel, tcu.answer)
     return tcu
 

@@ -133,9 +133,7 @@ async def run_scenario(scenario: Scenario, *, controller: str = "reference",
     try:
         rig = Rig(params, link, mode=mode, seed=seed)
         if controller == "reference":
-            tcu = await attach_reference(channel, rig, scenario.trainset)
-            if tune is not None:
-                tune(tcu)
+            await attach_reference(channel, rig, scenario.trainset, tune=tune)
         states = recorded_states(rig)
         columns = rig.record_columns(states, LINE_EXTRAS if rig.plant.line_side else [])
         try:

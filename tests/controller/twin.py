@@ -5,6 +5,7 @@ fastmath, and no library call that rounds differently, see pll.py's magnitude)."
 
 from __future__ import annotations
 
+import msgpack
 import numpy as np
 
 from emulator.controller.compiled_tcu import CompiledController
@@ -23,15 +24,17 @@ class Twin:
         self.compiled: CompiledController | None = None
 
     def install(self, tcu: CompiledController) -> None:
+        """Compare every period tcu runs: those of its telegrams (``answer``: in one
+        compiled call with the codec, or through ``_period`` for a telegram the compiled
+        reader leaves) and those called directly (``_period``)."""
         plain = ReferenceController(tcu.cfg, tcu.signal_map)
         self.plain, self.compiled = plain, tcu
-        inner = tcu._period
+        inner_period, inner_answer = tcu._period, tcu.answer
         out_plain = [0.0] * len(tcu.c_names)
 
-        def period(y, flags, period_s, out) -> None:
+        def compare(y: list[float], flags: int, period_s: float, out: np.ndarray) -> None:
             plain.adhesion.enabled = tcu.adhesion.enabled
-            plain.step(y.tolist(), flags, period_s, out_plain)
-            inner(y, flags, period_s, out)
+            plain.step(y, flags, period_s, out_plain)
             self.compared += 1
             same = out.tobytes() == np.array(out_plain).tobytes()  # -0.0 is not 0.0
             same_events = tcu.events == plain.events and tcu.event == plain.event
@@ -40,7 +43,21 @@ class Twin:
                                               strict=True) if repr(a) != repr(b)]
                 self.mismatches.append((self.compared, names + ["events"] * (not same_events)))
 
-        tcu._period = period
+        def period(y, flags, period_s, out) -> None:
+            y_read = y.tolist()
+            inner_period(y, flags, period_s, out)
+            compare(y_read, flags, period_s, out)
+
+        def answer(payload: bytes) -> bytes:
+            before, compared = tcu._last_seq, self.compared
+            reply = inner_answer(payload)
+            m = msgpack.unpackb(payload)
+            if m[1] != before and self.compared == compared:  # the one compiled call's
+                # period: on the measurements it read
+                compare(tcu._y.tolist(), m[4], m[3] * 1e-6, tcu._commands)
+            return reply
+
+        tcu._period, tcu.answer = period, answer
 
     def assert_identical(self, at_least: int) -> None:
         assert self.compared >= at_least
