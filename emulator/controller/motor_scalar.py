@@ -51,7 +51,7 @@ from .state_slots import slot
 VOLTAGE_MARGIN = 0.97  # of U_dc / sqrt(3): what the plan uses (ripple, dead time)
 SLIP_LIMIT_SHARE = 0.9  # of the breakdown slip: 99 % of the breakdown torque (Kloss)
 CURRENT_LIMIT_FACTOR = 2.2  # peak current per motor, of the rated peak (inverter limit)
-BISECTIONS = 16
+BISECTIONS = 16  # the searches' resolution: 2^-16 of their bracket (slip_circuit.py)
 BREAKDOWN_EVERY = 16  # periods between searches for the breakdown slip
 FLUX_TRIM_S = 0.2  # time constant of the voltage trim that holds the flux on the current's
 FLUX_TRIM_RANGE = 0.15  # the most the trim may change the voltage, of the circuit's

@@ -83,7 +83,8 @@ def estimated_torque(s, k, c, curve_i, curve_psi, ia, ib, ic):
 def slip_for(s, k, c, lm, torque, w_r, u_room):
     """The slip frequency (rad/s) that gives the torque per motor within the slip and
     current limits (the torque there otherwise); sets the torque limit. The slip limit
-    is a share of the breakdown slip, found anew every K_BREAKDOWN_EVERY periods."""
+    is a share of the breakdown slip, found anew every K_BREAKDOWN_EVERY periods. The
+    searches start from the last period's slip (S_W_SLIP)."""
     halvings = int(k[K_BISECTIONS])
     sign = 1.0 if torque >= 0 else -1.0
     key = 0 if sign > 0 else 1
@@ -97,12 +98,14 @@ def slip_for(s, k, c, lm, torque, w_r, u_room):
     cap = k[K_SLIP_LIMIT_SHARE] * s[S_BREAKDOWN_0 + key]
     t_cap, i_cap, _, _ = sc.operating_point(c, cap, w_r, u_room, lm)
     if i_cap > k[K_I_MAX]:  # the current limit comes first: its slip
-        cap = sc.slip_for_current(c, k[K_I_MAX], cap, w_r, u_room, lm, halvings)
+        cap = sc.slip_for_current(c, k[K_I_MAX], cap, i_cap, s[S_W_SLIP], w_r, u_room, lm,
+                                  halvings)
         t_cap = sc.operating_point(c, cap, w_r, u_room, lm)[0]
     s[S_TORQUE_LIMIT] = abs(t_cap)
     if abs(torque) >= abs(t_cap):
         return cap
-    return sc.slip_for_torque(c, abs(torque), cap, w_r, u_room, lm, halvings)
+    return sc.slip_for_torque(c, abs(torque), cap, abs(t_cap), s[S_W_SLIP], w_r, u_room, lm,
+                              halvings)
 
 
 @compiled

@@ -44,8 +44,9 @@ def test_compiled_and_plain_python_agree(control, w_sl, w_r, u_room, lm) -> None
                   sc.operating_point.py_func(c, w_sl, w_r, u_room, lm))
     end = math.copysign(40.0, w_sl or 1.0)
     torque = abs(sc.operating_point(c, 0.5 * end, w_r, u_room, lm)[0])
-    assert _close([sc.slip_for_torque(c, torque, end, w_r, u_room, lm, BISECTIONS)],
-                  [sc.slip_for_torque.py_func(c, torque, end, w_r, u_room, lm, BISECTIONS)])
+    t_end = abs(sc.operating_point(c, end, w_r, u_room, lm)[0])
+    args = (c, torque, end, t_end, 0.3 * end, w_r, u_room, lm, BISECTIONS)
+    assert _close([sc.slip_for_torque(*args)], [sc.slip_for_torque.py_func(*args)])
     assert _close([sc.breakdown_slip(c, 1.0, w_r, u_room, lm, BISECTIONS)],
                   [sc.breakdown_slip.py_func(c, 1.0, w_r, u_room, lm, BISECTIONS)])
 
