@@ -68,6 +68,12 @@ class Plant:
         build_line_side(self, params, ideal_dc_links or params.transformer is None)
         self.derive_drivetrain()
         build_train(self, params)
+        #: the state arrays advance_frame takes, in its order (made once, in build.py)
+        self._state_arrays = (self.mpar, self.mint, self.mu, self.ms, self.mx, self.sat_i,
+                              self.sat_psi, self.ipar, self.iint, self.iu, self.ist, self.lst,
+                              self.tpar, self.tu, self.ts, self.sp, self.harmonics, self.ss,
+                              self.lp, self.li, self.lu, self.ls2, self.kp, self.ku,
+                              self.i_link)
 
     @property
     def line_side(self) -> bool:
@@ -126,13 +132,10 @@ class Plant:
             self._h = frame / self._n_sub
             self._last_frame = frame
         n_sub, h = self._n_sub, self._h
-        advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, self.mpar, self.mint,
-                      self.mu, self.ms, self.mx, self.sat_i, self.sat_psi, self.ipar,
-                      self.iint, self.iu, self.ist, self.lst, self.tpar, self.tu, self.ts,
-                      self.sp, self.harmonics, self.ss, self.lp, self.li, self.lu, self.ls2,
-                      self.kp, self.ku, self.i_link, self.probes.src, self.probes.row,
-                      self.probes.col, self.probes.rows_for(n_sub))
-        self.probes.took(self.frames + 1, n_sub, h)
+        probes = self.probes
+        advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, *self._state_arrays,
+                      probes.src, probes.row, probes.col, probes.rows_for(n_sub))
+        probes.took(self.frames + 1, n_sub, h)
         power_quality.window_update(self.ss, self._pq_ring, self._pq_sum,
                                     self.frames % len(self._pq_ring))
         self.frames += 1
@@ -195,7 +198,8 @@ class Plant:
         seen = self._line_checked  # the arrays found well-formed last frame (the rig's)
         if not (arrays[0] is seen[0] and arrays[1] is seen[1] and arrays[2] is seen[2]
                 and arrays[3] is seen[3] and chopper is seen[4] and chopper.shape == (k,)
-                and all(a.shape == (n,) for a in arrays)):
+                and arrays[0].shape == arrays[1].shape == arrays[2].shape
+                == arrays[3].shape == (n,)):
             arrays = [a if isinstance(a, np.ndarray) else np.asarray(a, dtype=float)
                       for a in arrays]
             if not isinstance(chopper, np.ndarray):

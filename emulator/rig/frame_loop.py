@@ -241,11 +241,13 @@ class Rig(LockstepPacing, RecordsFrames):
         ``start_ns``: when frame k started (real time), to tell a controller that was
         late from a rig that left it too little time (see FAIR_SLACK)."""
         want = k - self.delay
-        answer = self._answers.pop(want, None)
-        for stale in [s for s in self._answers if s < want]:
-            del self._answers[stale]
-            self.health.expired += 1
-            self._flags |= FLAG_SEQUENCE
+        answers = self._answers
+        answer = answers.pop(want, None)
+        if answers:  # (usually none: answers come in order)
+            for stale in [s for s in answers if s < want]:
+                del answers[stale]
+                self.health.expired += 1
+                self._flags |= FLAG_SEQUENCE
         if answer is not None:
             self._held = answer[0]
             self._last_used = want

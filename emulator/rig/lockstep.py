@@ -80,6 +80,8 @@ class LockstepPacing:
             while not self.link.pending() and time.monotonic_ns() < spin_until:
                 self.link.poll()
                 os.sched_yield()  # the core to the controller if it waits for one
+            if silence_s is None:  # the round trips changed since it was last asked
+                silence_s = self._silence_s()
             if not self.link.pending() and not await self._wait_link(silence_s, stop):
                 if self._done(frames, stop):
                     break
@@ -124,7 +126,7 @@ class LockstepPacing:
                 paced = True
                 bad_repeats = quick_repeats = 0
                 if clean_sample:  # the backed-off wait stays until a clean sample
-                    silence_s = self._silence_s()
+                    silence_s = None  # (worked out again when it is next waited for)
                 self._run_ahead(frames, stop)
                 if self.monitor is not None and self.frame % self.monitor.every == 0:
                     await asyncio.sleep(0)  # an in-process controller never waits: let

@@ -166,6 +166,7 @@ class MeasurementSampler:
         self._shaft = np.zeros(plant.n_motors)
         self._train = np.zeros(8)
         self._out = np.zeros(len(names))
+        self._fixed_args: tuple | None = None  # _frame_args's arrays, once asked for
 
     def warm_up(self) -> None:
         """Compile or load the sample's one call, on copies: nothing of the sampler or
@@ -177,16 +178,23 @@ class MeasurementSampler:
 
     def _frame_args(self, trace, h, settle, last_angle, last_disc, first) -> tuple:
         """The arguments of _sample_frame (the live arrays, but for those given)."""
-        p, analog, enc = self.plant, self.analog, self.encoders
-        src, row, col, off = self._plan
-        return (src, row, col, off, p.ss, p.ls2, p.lst, p.ist, p.ms, self._values,
-                self._angle, self._shaft, trace, self._offsets, h, settle, analog.table,
-                analog._out, enc.eccentricity, enc.pitch, 2 * math.pi / enc.edges_per_rev,
-                enc.edges_per_rev / (2 * math.pi), enc.edge_scale, enc.count_offset,
-                enc.COUNTER_MODULUS, self._count_pos, self._analog_pos, self._flag_pos,
-                self.gate_fault, self._fault_pos, self._train, self._train_pos, first,
-                last_angle, last_disc, p.time_s, enc._last_time, enc.CAPTURE_MODULUS,
-                enc._capture, self._capture_pos, self._out)
+        if self._fixed_args is None:  # the arrays are made once (the plant's in build.py,
+            # these in __init__); faults write into them, never replace them
+            p, analog, enc = self.plant, self.analog, self.encoders
+            src, row, col, off = self._plan
+            self._fixed_args = (
+                (src, row, col, off, p.ss, p.ls2, p.lst, p.ist, p.ms, self._values,
+                 self._angle, self._shaft),
+                (self._offsets,),
+                (analog.table, analog._out, enc.eccentricity, enc.pitch,
+                 2 * math.pi / enc.edges_per_rev, enc.edges_per_rev / (2 * math.pi),
+                 enc.edge_scale, enc.count_offset, enc.COUNTER_MODULUS, self._count_pos,
+                 self._analog_pos, self._flag_pos, self.gate_fault, self._fault_pos,
+                 self._train, self._train_pos),
+                (enc.CAPTURE_MODULUS, enc._capture, self._capture_pos, self._out))
+        a, b, c, d = self._fixed_args
+        return (*a, trace, *b, h, settle, *c, first, last_angle, last_disc,
+                self.plant.time_s, self.encoders._last_time, *d)
 
     def sample(self, period_s: float, driver: DriverDemand) -> np.ndarray:
         """The measurement vector (physical units) at the present plant state."""
