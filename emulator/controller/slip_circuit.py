@@ -8,8 +8,8 @@ vectors (Bose 2002, ch. 8; Fitzgerald, Kingsley & Umans, ch. 6):
     U_s / psi_m = G = (R_s + j w_s L_ls) I_s / psi_m + j w_s,  w_s = w_r + w_sl,
 
 psi_m = min(psi_rated, U / |G|). The searches run on it every period: the slip for a
-torque and for the current limit (the Illinois method, a safeguarded regula falsi), the
-breakdown slip (golden section).
+torque and for the current limit (the Illinois method, a regula falsi, halving where
+it does not close in: _bracket), the breakdown slip (golden section).
 These run once a period per inverter, a few circuit evaluations each: compiled with
 numba (cache=True, strict IEEE arithmetic as the plant's kernels). Each function's
 ``py_func`` is the same code in plain Python, which the tests compare with it.
@@ -60,36 +60,46 @@ def operating_point(c, w_sl, w_r, u_room, lm):
     return t_per_psi2 * psi * psi, magnitude(y) * psi, psi, g * psi
 
 
-@compiled
-def _illinois(c, which, target, end, f_0, f_end, guess, w_r, u_room, lm, halvings):
-    """The bracket (lo, hi), hi on end's side, around the slip where |operating_point|'s
-    item ``which`` (0 the torque, 1 the current) reaches target (f = |item| - target:
-    f_0 < 0 at no slip, f_end >= 0 at end), narrowed to |end| 2^-halvings or less (the
-    width a bisection of ``halvings`` steps leaves), in fewer circuit evaluations than
-    that bisection takes. The first point is ``guess`` where it lies inside (the last
-    period's slip: the root moves little from one period to the next).
+#: secant steps a search makes at most before it only halves (_bracket)
+SECANT_STEPS = 8
 
-    The Illinois method (Dowell & Jarratt 1971, BIT 11): regula falsi, with the value
-    kept at an end that stays twice halved, so that both ends close in; and a secant
-    step shorter than half the width asked for is made that long (the tolerance step of
-    Brent's zero finder, Brent 1973, "Algorithms for Minimization without Derivatives",
-    ch. 4), so that the bracket closes across a root the secant has found instead of
-    creeping up to it. (Both references from memory; tests/controller/
-    test_slip_searches.py checks the result against SciPy's brentq.)"""
+
+@compiled
+def _bracket(c, which, target, end, f_0, f_end, guess, w_r, u_room, lm, halvings):
+    """The bracket (lo, hi), hi on end's side, around a slip where |operating_point|'s
+    item ``which`` (0 the torque, 1 the current) reaches target, f = |item| - target
+    changing sign in it (f_0 < 0 at no slip, f_end >= 0 at end): narrowed to
+    |end| 2^-halvings or less, the width a bisection of ``halvings`` steps leaves.
+
+    The first point is ``guess`` where it lies inside (the last period's slip: the
+    crossing moves little from one period to the next); then up to SECANT_STEPS points
+    by the Illinois method (Dowell & Jarratt 1971, BIT 11), a regula falsi that halves
+    the value kept at an end when that end is kept twice in a row, so that both ends
+    close in, each point at least half the final width from both ends (the least step
+    of Brent's zero finder, Brent 1973, "Algorithms for Minimization without
+    Derivatives", ch. 4), so that the bracket closes across a crossing the secant has
+    found instead of creeping up to it; then halvings. So the width is always reached,
+    in at most SECANT_STEPS + ``halvings`` circuit evaluations, and in a few where the
+    secants close in, as they do on this circuit (the bisection took ``halvings``).
+    (Both references cited from memory; tests/controller/test_slip_searches.py checks
+    the result against SciPy's brentq.)"""
     lo, hi, f_lo, f_hi = 0.0, end, f_0, f_end
     width = abs(end) * 0.5 ** halvings
     half = math.copysign(0.5 * width, end)  # half the width, from lo towards hi
     moved = 0  # the end the last point replaced: 1 lo, -1 hi
-    for j in range(halvings - 1):
-        mid = hi - f_hi * (hi - lo) / (f_hi - f_lo)
-        if j == 0 and min(lo, hi) < guess < max(lo, hi):
+    for j in range(SECANT_STEPS + halvings):
+        if abs(hi - lo) <= width:
+            break
+        if j >= SECANT_STEPS:
+            mid = 0.5 * (lo + hi)
+        elif j == 0 and min(lo, hi) < guess < max(lo, hi):
             mid = guess
-        elif moved == 1 and abs(mid - lo) < abs(half):
-            mid = lo + half
-        elif moved == -1 and abs(mid - hi) < abs(half):
-            mid = hi - half
-        if not min(lo, hi) < mid < max(lo, hi):
-            mid = 0.5 * (lo + hi)  # (rounding at a flat end)
+        else:  # the secant, kept half the width inside (the bracket is wider than that)
+            mid = hi - f_hi * (hi - lo) / (f_hi - f_lo)
+            if not abs(mid - lo) >= abs(half):  # (NaN too)
+                mid = lo + half
+            elif abs(hi - mid) < abs(half):
+                mid = hi - half
         point = operating_point(c, mid, w_r, u_room, lm)
         f = abs(point[0] if which == 0 else point[1]) - target
         if f < 0.0:
@@ -102,37 +112,39 @@ def _illinois(c, which, target, end, f_0, f_end, guess, w_r, u_room, lm, halving
             if moved == -1:
                 f_lo *= 0.5
             moved = -1
-        if abs(hi - lo) <= width:
-            break
     return lo, hi
 
 
 @compiled
 def slip_for_torque(c, torque_abs, end, t_end, guess, w_r, u_room, lm, halvings):
-    """The slip (between 0 and end, either sign) where |T| reaches torque_abs, given
-    t_end = |T(end)| >= torque_abs (|T| rising from 0 along the way): the middle of a
-    bracket |end| 2^-halvings wide, as a bisection of ``halvings`` steps gives, found by
-    the Illinois method from ``guess`` (_illinois) in a few evaluations where the
-    bisection took ``halvings``."""
+    """The slip (between 0 and end, either sign) where |T| reaches torque_abs > 0, given
+    t_end = |T(end)| >= torque_abs: the middle of a bracket around it |end| 2^-halvings
+    wide, as a bisection of ``halvings`` steps gives, found from ``guess`` (_bracket).
+    |T| rises from 0 at no slip towards the breakdown slip (at a few volts near
+    standstill it may dip by parts in 10^4 on the way; the bracket holds a crossing
+    all the same). 0 for no torque."""
+    if torque_abs <= 0.0:
+        return 0.0
     if t_end <= torque_abs:
         return end
-    lo, hi = _illinois(c, 0, torque_abs, end, -torque_abs, t_end - torque_abs, guess, w_r,
-                       u_room, lm, halvings)
+    lo, hi = _bracket(c, 0, torque_abs, end, -torque_abs, t_end - torque_abs, guess, w_r,
+                      u_room, lm, halvings)
     return 0.5 * (lo + hi)
 
 
 @compiled
 def slip_for_current(c, i_max, end, i_end, guess, w_r, u_room, lm, halvings):
     """The slip (between 0 and end) where the stator current reaches i_max, given
-    i_end > i_max, the current at end (the current rising along the way): the low end
-    of a bracket |end| 2^-halvings wide (the current within the limit there), by the
-    Illinois method from ``guess`` as slip_for_torque; 0 where even the magnetising
-    current is past the limit."""
+    i_end > i_max, the current at end: the low end of a bracket around it
+    |end| 2^-halvings wide (the current within the limit there), found from ``guess``
+    (_bracket). Where the voltage limits the flux, |I_s| may first dip below its value
+    at no slip, but not below i_max; 0 where even the current at no slip is past the
+    limit."""
     i_0 = operating_point(c, 0.0, w_r, u_room, lm)[1]
     if i_0 >= i_max:
         return 0.0
-    return _illinois(c, 1, i_max, end, i_0 - i_max, i_end - i_max, guess, w_r, u_room, lm,
-                     halvings)[0]
+    return _bracket(c, 1, i_max, end, i_0 - i_max, i_end - i_max, guess, w_r, u_room, lm,
+                    halvings)[0]
 
 
 @compiled
