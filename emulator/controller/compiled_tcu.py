@@ -232,9 +232,7 @@ class CompiledController(ref.ReferenceController):
     # --- telegrams and the period -------------------------------------------------------
     def answer(self, payload: bytes) -> bytes:
         """The command telegram for a measurement telegram."""
-        g = self._g
-        g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
-        raised = self._counts[0]
+        raised = self._before_period()
         n = _answer_plain(np.frombuffer(payload, dtype=np.uint8), self._head, self._y,
                           self._scratch, self._m_scale, self._last_seq, self._reply_head,
                           self._c_inv, self._wire, self._commands, *self._period_arrays)
@@ -284,10 +282,15 @@ class CompiledController(ref.ReferenceController):
         out[:] = out_arr.tolist() if isinstance(out, list) else out_arr
 
     def _period(self, y: np.ndarray, flags: int, period_s: float, out: np.ndarray) -> None:
-        self._g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
-        raised = self._counts[0]
+        raised = self._before_period()
         pk.period(y, flags, period_s, out, *self._period_arrays)
         self._after_period(raised)
+
+    def _before_period(self) -> int:
+        """What the period reads of the Python class (adhesion.enabled: tests switch it)
+        into its state; returns the count of the events raised so far."""
+        self._g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
+        return int(self._counts[0])
 
     def _after_period(self, raised: int) -> None:
         """The attributes the Python class keeps, from the state the period left."""
@@ -303,7 +306,6 @@ class CompiledController(ref.ReferenceController):
         """Forget the events counted so far."""
         super().clear_events()
         self._counts[:] = 0
-
 
 
 #: _answer_plain's codes beside a reply's length (>= 0) and pack's -1 - i (command i not

@@ -95,6 +95,7 @@ def test_a_malformed_telegram_is_refused_before_the_compiled_period() -> None:
     v = signal_map["protocol_version"]
     good = [v, 0, 0, 1000, 0, 0, *([0] * n)]
     tcu.answer(msgpack.packb(good))
+
     def signatures() -> tuple[int, int]:  # the kernels' compiled overloads
         return len(period_kernel.period.signatures), len(_answer_plain.signatures)
 
