@@ -323,7 +323,10 @@ def _answer_plain(data, head, y, scratch, m_scale, last_seq, reply_head, c_inv, 
     read (msgpack_array.unpack_scaled into head and y), the period (period_kernel.period,
     unless head's sequence is last_seq: ANSWER_SAID_AGAIN) and the command telegram
     packed into wire (msgpack_array.pack: its length, or -1 - i). ANSWER_NOT_PLAIN,
-    nothing run, when the reader leaves the telegram to the msgpack package."""
+    nothing run, when the reader leaves the telegram to the msgpack package. (The
+    period's arrays are spelled out, as CompiledController._period_arrays holds them:
+    taken as ``*period_arrays`` the answer was about 0.5 us slower, replaying 20 s of
+    the demo's telegrams three times each way.)"""
     if msgpack_array.unpack_scaled(data, head, y, scratch, m_scale) != 0:
         return ANSWER_NOT_PLAIN
     seq = head[1]
