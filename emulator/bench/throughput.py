@@ -125,9 +125,13 @@ async def _demo(profile, in_process: bool, max_plant_s: float, stages: bool):
         if "monitor" in marks:
             monitor, reader = marks["monitor"]
             monitor.close()
-            try:
-                reader.wait(timeout=10)  # it ends when the rig closes its connection
-            except subprocess.TimeoutExpired:
+            # the reader ends when it sees the connection closed, which the event loop
+            # does on its next turns: wait for it here without blocking the loop (a
+            # blocking wait held the close back and always ran into its 10 s timeout)
+            deadline = time.monotonic() + 10
+            while reader.poll() is None and time.monotonic() < deadline:
+                await asyncio.sleep(0.01)
+            if reader.poll() is None:
                 reader.kill()
                 reader.wait()
         if scratch is not None:
