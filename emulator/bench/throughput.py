@@ -70,9 +70,11 @@ def _timed(obj, name: str, stage: str, spent: dict[str, int]) -> None:
 
 
 class _FirstFrame:
-    """Notes when the plant first advances (the run's start, after any start-up)."""
+    """Notes when the plant first advances (the run's start, after any start-up), and
+    forgets the stage times spent before it (the rig's warm-up and first sample), so that
+    the stages and the wall time cover the same frames."""
 
-    def __init__(self, rig) -> None:
+    def __init__(self, rig, spent: dict[str, int]) -> None:
         self.at: float | None = None
         self.plant_s = 0.0
         inner = rig.plant.advance
@@ -81,6 +83,7 @@ class _FirstFrame:
             if self.at is None:
                 self.at = time.perf_counter()
                 self.plant_s = rig.plant.time_s
+                spent.clear()
             return inner(*args, **kwargs)
 
         rig.plant.advance = advance
@@ -94,7 +97,7 @@ async def _demo(profile, in_process: bool, max_plant_s: float, stages: bool):
     scratch = tempfile.TemporaryDirectory() if stages else None
 
     def setup(rig, tcu):
-        marks["first"] = _FirstFrame(rig)
+        marks["first"] = _FirstFrame(rig, spent)
         marks["rig"] = rig
         if not stages:
             return None

@@ -173,9 +173,13 @@ def test_ctrl_c_leaves_valid_results_and_resume_runs_only_the_rest(campaign_dir,
     while not (out / "results.csv").exists() or len(_rows(out)) < 1:
         assert time.monotonic() < deadline and run.poll() is None, run.communicate()
         time.sleep(0.05)
+    at_kill = len(_rows(out))
     os.killpg(run.pid, signal.SIGINT)  # as a terminal's Ctrl-C: the whole group
     _, stderr = run.communicate(timeout=120)
-    assert run.returncode == 2, stderr
+    # (once, under a busy CI run, the campaign ended its six runs with exit 1 as if no
+    # interrupt had come; said here so that a next time tells more: DEVELOPERS.md)
+    assert run.returncode == 2, (f"{at_kill} row(s) when interrupted, "
+                                 f"{len(_rows(out))} at the end", stderr)
     before = _rows(out)
     assert len(before) >= 1  # a run had ended when the interrupt came
     assert len(before) < 6  # and not all of them

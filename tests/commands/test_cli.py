@@ -56,16 +56,17 @@ def test_throughput_bench_json_has_the_documented_keys() -> None:
     for key in ("inprocess_realtime_factor", "udp_realtime_factor",
                 "frame_us_instrumented"):
         assert math.isfinite(figures[key]) and figures[key] > 0, key
-    # 2 s of plant time in 1 ms frames (the run stops at the first frame past 2 s)
-    assert figures["plant_time_s"] == pytest.approx(2.0, abs=2e-3)
-    assert figures["frames"] == round(figures["plant_time_s"] * 1e3)
+    # the 2 s asked for, in the demo trainset's 1 ms frames: 2000 frames, no more
+    assert figures["plant_time_s"] == 2.0
+    assert figures["frames"] == 2000
     stages = figures["stage_us"]
     assert set(stages) == {"plant", "sampling", "codec", "controller", "program",
                            "recording", "monitor", "rig_rest"}
+    # every stage ran and was timed (the instrumented run records, and has a client)
     assert all(stages[k] > 0 for k in ("plant", "sampling", "codec", "controller",
-                                       "monitor"))
-    # the rest is the frame less the timed stages: a stage counted twice would make it
-    # negative
+                                       "program", "recording", "monitor"))
+    # the rest is the frame less the timed stages: never negative (a stage counted twice
+    # shows only where it costs more than the rest; the stages' figures are not checked)
     assert stages["rig_rest"] >= 0
 
 

@@ -20,16 +20,22 @@ SCENARIO = Path(__file__).parents[2] / "profiles" / "scenarios" / "speed-sensor-
 
 
 def _run(seed: int) -> np.ndarray:
-    scenario = dataclasses.replace(load_scenario(SCENARIO), duration_s=2.5)
+    """The scenario's first 10.5 s: the switch-on, 7.5 s of traction (the motor control,
+    the encoders, the adhesion control) and the encoder's loss at 10 s."""
+    scenario = dataclasses.replace(load_scenario(SCENARIO), duration_s=10.5)
     return asyncio.run(run_scenario(scenario, seed=seed)).recording
 
 
 def test_same_seed_gives_an_identical_recording() -> None:
     a, b = _run(7), _run(7)
     assert a.columns == b.columns
-    assert a.data.shape == b.data.shape == (2500, len(a.columns))
+    assert a.data.shape == b.data.shape == (10500, len(a.columns))
     assert a.data.tobytes() == b.data.tobytes()
     assert a.marks == b.marks
+    # the window holds what is to be the same: every inverter driving, the sensor lost
+    for inverter in ("INV-A1", "INV-A2", "INV-B1", "INV-B2"):
+        assert a.data[:, a.columns.index(f"u.{inverter}.gates_enabled")].any(), inverter
+    assert "sensor lost" in [m["label"] for m in a.marks]
 
 
 def test_another_seed_changes_the_noise() -> None:
