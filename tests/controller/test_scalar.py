@@ -31,6 +31,7 @@ def speed_drop(compensate: bool) -> float:
                              frame_s=cfg.period_s, substep_s=125e-6)
     ctl = ScalarControl(cfg, 1)
     f_cmd, n_frames = 50.0, 6000
+    held = Commands.blocked(1)  # the rig's one-frame command delay: what frame k acts on
     for k in range(n_frames):
         f = min(f_cmd, f_cmd * k / 2000)  # ramp up in 2 s
         load = cfg.rated_torque_nm * min(max((k - 2500) / 1000, 0.0), 1.0)
@@ -38,7 +39,8 @@ def speed_drop(compensate: bool) -> float:
         currents = tuple(float(plant.read(f"inverter.phase_current_{x}_a")[0]) for x in "abc")
         duties, _ = ctl.step(0.0, float(plant.read("motor.speed_rad_s")[0]), cfg.link_nominal_v,
                              f_command_hz=f, phase_currents=currents if compensate else None)
-        plant.advance(Commands(np.array([duties]), np.array([True])))
+        plant.advance(held)  # computed at t_k, acting from t_(k+1), as on a board
+        held = Commands(np.array([duties]), np.array([True]))
     n = float(plant.read("motor.speed_rad_s")[0]) * 60 / (2 * math.pi)
     n_sync = 120 * f_cmd / (2 * cfg.pole_pairs)
     n_rated = 120 * cfg.rated_frequency_hz / (2 * cfg.pole_pairs) * (1 - cfg.rated_slip)

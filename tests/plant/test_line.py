@@ -28,6 +28,7 @@ from emulator.plant.stepper import LineCommands
 from emulator.profiles.reader import load_trainset
 
 from .conftest import TRAINSET, SlipFrequencyDrive
+from .test_energy_balance import SUBSTEPS_S, closes
 
 PROFILE_15KV = TRAINSET.with_name("tern-15kv.toml")
 
@@ -172,10 +173,12 @@ def test_blocked_bridge_charges_to_the_secondary_peak_through_the_precharge_resi
     assert peak_current <= u_peak / lc.precharge_ohm
 
 
-def test_energy_from_catenary_to_motors_balances() -> None:
+def _catenary_to_motors(substep_s: float) -> tuple[float, float, float, float, float]:
+    """(source energy, its residuals: line side, link side, whole) of 3 s of traction
+    through the line side, with sub-steps of substep_s."""
     from emulator.rig.open_loop import OpenLoopLineSide
 
-    plant = Plant(load_trainset(TRAINSET))
+    plant = Plant(dataclasses.replace(load_trainset(TRAINSET), substep_s=substep_s))
     line = OpenLoopLineSide(plant)
     blocked = Commands.blocked(plant.n_inverters)
     while not line.ready:
@@ -199,12 +202,26 @@ def test_energy_from_catenary_to_motors_balances() -> None:
                   + d("friction_brake") + d("potential") + d("magnetic_stored")
                   + d("kinetic_stored") + d("torsion_damping") + d("torsion_stored")
                   + d("iron_loss") + d("friction_windage"))
-    assert source > 3e5
-    assert line_out == pytest.approx(source, rel=5e-3)
-    assert link_out == pytest.approx(d("line_converter_dc"), rel=5e-3)
     total = (d("source_resistance") + d("winding_resistance") + d("line_converter_loss")
              + d("line_inductive_stored") + link_out - d("dc_link_in") + motors_out)
-    assert total == pytest.approx(source, rel=5e-3)
+    return (source, line_out - source, link_out - d("line_converter_dc"), total - source,
+            d("line_converter_dc"))
+
+
+def test_energy_from_catenary_to_motors_balances() -> None:
+    # the line side's, the link's and the whole books, each closing as the motors' do
+    # (test_energy_balance.closes: within the issue's 0.5 % at the profile's sub-step,
+    # the residual falling with the sub-step as the rules' order says). Every line-side
+    # and link term is under 0.5 % of the source's energy, so 0.5 % alone would not see
+    # one gone. The line currents go by the trapezoidal rule (second order), the links'
+    # capacitors by symplectic Euler with their losses on the step's start (first order:
+    # line.py), and the whole follows the links
+    runs = [_catenary_to_motors(h) for h in SUBSTEPS_S]
+    source, into_link = runs[0][0], runs[0][4]
+    assert source > 3e5
+    closes([r[1] for r in runs], source, order=2)  # the line side
+    closes([r[2] for r in runs], into_link, order=1)  # the DC links
+    closes([r[3] for r in runs], source, order=1)  # catenary to the motors
 
 
 def _regenerating(droop: float = 0.0) -> Plant:

@@ -2,9 +2,12 @@
 
 Oracle: Thevenin form of the per-phase equivalent circuit (Fitzgerald, Kingsley & Umans,
 Electric Machinery, 6th ed., ch. 6; from memory), computed in tests/oracles.py from the
-published parameters of Krause, Wasynczuk & Sudhoff (2002). Tolerance 0.5 % (the issue's
-figure); the plant's zero-order-hold solution is exact for a sinusoidal source at a held
-speed, so agreement is far tighter in practice.
+published parameters of Krause, Wasynczuk & Sudhoff (2002). The issue asked for 0.5 %;
+the plant's zero-order-hold solution is exact for a sinusoidal source at a held speed, so
+once the start's transient has died away the two agree to the rounding (about 1e-9
+measured). Checked to 1e-6: a rotor resistance 0.4 % off, which passed at 0.5 %, fails.
+The slowest transient, the 2250 hp machine at standstill, falls by e every 2.8 s
+(measured: 7.7e-4 after 20 s, 2.1e-5 after 30 s): standstill gets 60 s.
 """
 
 from __future__ import annotations
@@ -36,11 +39,11 @@ def bench(name: str) -> tuple[Plant, EquivalentCircuit]:
 @pytest.mark.parametrize("slip", [0.01, 0.05, 0.3, 1.0, -0.03])
 def test_torque_and_current_match_equivalent_circuit(name: str, slip: float) -> None:
     plant, circuit = bench(name)
-    steady_on_dynamometer(plant, slip, circuit.f_hz, settle_s=20.0)
+    steady_on_dynamometer(plant, slip, circuit.f_hz, settle_s=60.0 if slip == 1.0 else 20.0)
     torque = float(plant.read("motor.torque_nm")[0])
     current_rms = abs(plant.stator_current(0)) / math.sqrt(2)  # space-vector amplitude = peak
-    assert torque == pytest.approx(circuit.torque(slip), rel=5e-3)
-    assert current_rms == pytest.approx(circuit.stator_current_rms(slip), rel=5e-3)
+    assert torque == pytest.approx(circuit.torque(slip), rel=1e-6)
+    assert current_rms == pytest.approx(circuit.stator_current_rms(slip), rel=1e-6)
 
 
 def test_published_check_values_of_the_3hp_machine() -> None:
@@ -87,8 +90,12 @@ def test_breakdown_found_by_sweeping_the_plant(name: str) -> None:
     log_s = _golden_max(lambda x: plant_torque(math.exp(x)), math.log(0.005), math.log(1.0),
                         tol=2e-3)
     s_k = math.exp(log_s)
-    assert s_k == pytest.approx(s_k_ref, rel=0.01)
-    assert max(torques.values()) == pytest.approx(t_k_ref, rel=0.01)
+    # the search stops within 2e-3 in log(slip): s_k to 2e-3 relative (a rotor resistance
+    # 0.4 % off moves s_k, proportional to it, by 0.4 %); the torque is flat at its
+    # maximum, so the best point found is within (2e-3)^2 of T_k, and each point settles
+    # for 6 s: 1e-4
+    assert s_k == pytest.approx(s_k_ref, rel=2e-3)
+    assert max(torques.values()) == pytest.approx(t_k_ref, rel=1e-4)
 
 
 @given(
