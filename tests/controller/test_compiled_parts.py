@@ -64,7 +64,7 @@ def test_torque_is_the_textbook_circuits(control) -> None:
                                2 * cfg.pole_pairs)
     c = control.circuit.copy()
     c[sc.CIRCUIT_PSI_RATED] = np.inf  # the flux from the voltage alone
-    for slip in (0.005, 0.0124, 0.03):
+    for slip in (0.005, 0.0124, 0.03, -0.005, -0.0124, -0.03):  # motoring, generating
         w_sl = slip * w
         u_peak = cfg.rated_voltage_v * math.sqrt(2 / 3)
         torque = sc.operating_point(c, w_sl, w - w_sl, u_peak, lm)[0]

@@ -24,7 +24,11 @@ def test_locks_on_phase_and_frequency_with_harmonics(f_hz: float) -> None:
             errors.append((est - theta + math.pi) % (2 * math.pi) - math.pi)
     assert max(abs(e) for e in errors) < math.radians(2.0)  # the harmonic wobbles it a little
     assert abs(sum(errors) / len(errors)) < math.radians(0.2)
-    assert pll.amplitude == pytest.approx(35355, rel=0.02)
+    # the fundamental's amplitude, not the wave's: the SOGI's band-pass, k w s / (s^2 +
+    # k w s + w^2) (Ciobotaru et al.), passes the third harmonic with 3k / sqrt(64 + 9k^2)
+    # = 0.47 at k = 1.41, so the 1.5 % harmonic moves the estimate by at most 0.7 %
+    leak = 3 * pll.k / math.sqrt(64 + 9 * pll.k ** 2)
+    assert pll.amplitude == pytest.approx(35355, rel=0.015 * leak)
 
 
 # --- the live-line test and its lock monitor (pll.dead_samples) --------------------------

@@ -74,3 +74,23 @@ def test_force_is_odd_and_bounded_by_mu0_q(w: float, v: float) -> None:
     f_neg, _ = force(-w, v, v_ref=0.1)
     assert f_pos == pytest.approx(-f_neg)
     assert 0.0 <= f_pos <= POLACH_DRY[2] * Q * (1 + 1e-12)
+
+
+@pytest.mark.parametrize("params", [POLACH_DRY, POLACH_WET], ids=["dry", "wet"])
+@pytest.mark.parametrize("w", [0.02, 0.1, 0.4, 1.5, 6.0])  # slip velocity, m/s, at 20 m/s
+def test_the_whole_curve_is_polachs_formula(params, w: float) -> None:
+    # Polach (Wear 258, 2005), as REFERENCES.md gives it, evaluated here by hand:
+    #   F = 2 Q mu / pi (k_A e / (1 + (k_A e)^2) + arctan(k_S e)),
+    #   e = (2/3) C pi a^2 b / (Q mu) s,   mu = mu0 ((1 - A) e^(-B w) + A),
+    # s = w / v the creep. Kalker's linear coefficient K of the axle stands for the
+    # contact's (2/3) C pi a^2 b through the formula's own small-creep slope,
+    # dF/ds = 2 Q mu / pi (k_A + k_S) (2/3) C pi a^2 b / (Q mu) = (k_A + k_S) / 2 K
+    # (REFERENCES.md [derived]), so (2/3) C pi a^2 b = pi K / 4. The plant's function
+    # regularises the creep's denominator with v_ref (here 1e-6 m/s: no effect at 20 m/s)
+    k_a, k_s, mu0, a, b = params
+    v = 20.0
+    mu = mu0 * ((1 - a) * math.exp(-b * w) + a)
+    eps = math.pi * K / 4 / (Q * mu) * (w / v)
+    expected = 2 * Q * mu / math.pi * (k_a * eps / (1 + (k_a * eps) ** 2) + math.atan(k_s * eps))
+    assert force(w, v, params)[0] == pytest.approx(expected, rel=1e-12)
+    assert force(-w, v, params)[0] == pytest.approx(-expected, rel=1e-12)  # odd in w

@@ -9,6 +9,7 @@ contaminated rail below the wet one.
 
 from __future__ import annotations
 
+import itertools
 import json
 import subprocess
 import sys
@@ -43,6 +44,10 @@ def test_every_condition_at_the_six_speeds(curves) -> None:
 def test_dry_peak_follows_curtius_kniffler_within_20_percent(curves) -> None:
     for r in curves["dry"]:
         assert r["mu_peak"] == pytest.approx(curtius_kniffler(r["speed_kmh"]), rel=0.20), r
+    # and falls with speed as the law does (0.331 at standstill to 0.198 at 160 km/h;
+    # the plant's falls less, about 29 % against 40 %, within the 20 % at each speed)
+    peaks = [r["mu_peak"] for r in curves["dry"]]
+    assert all(b < a for a, b in itertools.pairwise(peaks)), peaks
 
 
 def test_wet_below_dry_and_within_the_manuals_range(curves) -> None:
