@@ -183,7 +183,14 @@ class FaultSet:
         if kind == "sensor-offset":
             analog.fault_offset[i] -= f.params["offset"]
         elif kind == "sensor-gain":
-            analog.fault_gain[i] /= f.params["gain"] or 1.0
+            # the product of the gain faults still acting on the channel (none: 1): exact,
+            # and a gain of 0 (within its range) is undone too, where dividing could not
+            gain = 1.0
+            for other in self.faults:
+                if (other is not f and other.active and other.kind.name == "sensor-gain"
+                        and other.index == i):
+                    gain *= other.params["gain"]
+            analog.fault_gain[i] = gain
         elif kind in ("sensor-stuck", "sensor-dropout"):
             analog.stuck[i] = math.nan
         elif kind == "sensor-drift":

@@ -70,6 +70,14 @@ def test_stuck_sensor_applies_and_clears_by_time(params) -> None:
     run(rig.run(frames=150))
     assert measured(rig, ctl, "DC-A.voltage_v") == pytest.approx(1800, abs=20)
     assert rig.faults.listing()[0]["state"] == "cleared"
+    # to the frame (points.py: a fault starts or ends at the start of the first frame
+    # whose plant time has reached its time, and acts from that frame on): frame 50
+    # starts at 50 ms, so y_51, sampled after it, is the first stuck measurement; frame
+    # 100 starts at 100 ms and ends it, so y_100 is the last: 50 of them
+    i = rig.signal_map.index("measurement", "DC-A.voltage_v")
+    stuck = [msgpack.unpackb(p)[1] for p in ctl.received
+             if msgpack.unpackb(p)[len(HEADER) + i] == 0.0]
+    assert stuck == list(range(51, 101))
 
 
 def test_encoder_pulse_loss_drifts_the_count(params) -> None:
@@ -138,3 +146,90 @@ def test_open_motor_phase_opens_and_reconnects(params) -> None:
     assert list(rig.plant.mu[:, L.MU_OPEN_PHASE]) == [0, 0, 0, 3.0, 0, 0, 0, 0]
     run(rig.run(frames=40))  # frames counts from the start of the run
     assert not rig.plant.mu[:, L.MU_OPEN_PHASE].any()
+
+
+#: what a fault leaves changed after it ends, by design (the rest must be as before)
+LEFT_AFTER = {
+    "encoder-pulse-loss": {"count_offset"},  # the counts lost stay lost
+    "encoder-channel-loss": {"count_offset"},  # the counter resumes where it froze
+    "encoder-wrong-ppr": {"count_offset"},  # the count miscounted stays miscounted
+}
+
+#: parameters that make a fault visible within its 10 ms (the defaults of these are
+#: neutral or act too slowly to see: a gain of 1, an offset of 0, 100 counts/s, sand
+#: after 1 s); each list is tried in turn. The gain's range edge 0 is one of them
+PARAMS = {"sensor-gain": [{"gain": 2.0}, {"gain": 0.0}], "sensor-offset": [{"offset": 10.0}],
+          "sensor-dropout": [{"probability": 1.0}], "encoder-pulse-loss": [
+              {"counts_per_s": 1000.0}], "sanding": [{"delay_s": 0.0}]}
+
+
+def _settings(rig) -> dict[str, np.ndarray]:
+    """What the fault hooks may change: the analog chain's settings, the encoders', the
+    sampler's gate-fault flags, the plant's parameters and inputs (less the columns the
+    plant itself moves each frame: the contact constants that follow the axle loads, the
+    supply's phase reference, which a change of frequency moves to keep the phase
+    continuous), the link fault's drop rate, and what the command faults do to a command
+    vector of halves."""
+    from emulator.rig.sensors import (
+        C_FAULT_GAIN,
+        C_FAULT_OFFSET,
+        C_GAIN,
+        C_HI,
+        C_LO,
+        C_NOISE,
+        C_OFFSET,
+        C_STUCK,
+    )
+
+    plant, enc = rig.plant, rig.sampler.encoders
+    table = rig.sampler.analog.table
+    mpar = np.delete(plant.mpar, [L.MP_POL_KAPPA, L.MP_POL_SCALE], axis=1)
+    sp = np.delete(plant.sp, [L.SP_PHASE_REF, L.SP_T_REF])
+    commands = np.full(len(rig.signal_map.commands), 0.5)  # (a command fault sets 0 or 1)
+    rig.faults.transform_command(commands, rig._command_index)
+    return {"analog": table[[C_GAIN, C_FAULT_GAIN, C_OFFSET, C_FAULT_OFFSET, C_NOISE, C_LO,
+                             C_HI, C_STUCK]].copy(),
+            "count_offset": enc.count_offset.copy(), "edge_scale": enc.edge_scale.copy(),
+            "eccentricity": enc.eccentricity.copy(),
+            "gate_fault": np.array(rig.sampler.gate_fault, dtype=float),
+            "mpar": mpar, "kp": plant.kp.copy(), "ipar": plant.ipar.copy(), "sp": sp,
+            "mu": plant.mu.copy(), "drop": np.array([rig.faults.drop_probability]),
+            "commands": commands}
+
+
+def _changed(a: dict, b: dict) -> set[str]:
+    return {k for k in a if not np.array_equal(a[k], b[k], equal_nan=True)}
+
+
+@pytest.mark.parametrize("name", sorted(CATALOGUE))
+def test_every_fault_acts_and_is_undone_exactly_when_it_ends(params, name: str) -> None:
+    # points.py: "Every change is undone exactly when the fault ends". Each entry of the
+    # catalogue (at its default parameters, or PARAMS'), on the first target of its kind,
+    # from 10 to 20 ms: while it acts something it may change has changed (the rotor
+    # temperature: the plant's state; a phase jump: the supply's phase); 25 frames after
+    # its end everything is as before, but for what LEFT_AFTER names
+    kind = CATALOGUE[name]
+    rig, _ = rig_with_faults(params)
+    target = ("DC-A.voltage_v" if kind.target == "analog channel"
+              else rig.faults.targets()[kind.target][0])
+    for given in PARAMS.get(name, [None]):
+        rig, _ = rig_with_faults(params)
+        run(rig.run(frames=5))
+        before = _settings(rig)
+        phase_before = float(rig.plant.sp[L.SP_PHASE_REF])
+        fault = rig.faults.add(name, target, given, at_s=0.010, until_s=0.020)
+        run(rig.run(frames=15))
+        assert fault.active, name
+        during = _settings(rig)
+        if name == "rotor-temperature":
+            motor = rig.faults.targets()["motor"].index(target)
+            assert rig.plant.ms[motor, L.MS_T_ROTOR] == pytest.approx(
+                fault.params["temperature_degc"] + 273.15)
+        elif name == "phase-jump":  # an event: the phase moved, and stays moved
+            assert rig.plant.sp[L.SP_PHASE_REF] != phase_before
+        else:
+            assert _changed(before, during), f"{name} changed nothing while it acted"
+        run(rig.run(frames=25))
+        assert fault.done and not fault.active, name
+        left = _changed(before, _settings(rig))
+        assert left <= LEFT_AFTER.get(name, set()), (name, given, left)
