@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import math
-
 import msgpack
 import numpy as np
 import pytest
@@ -133,7 +131,7 @@ def test_telegram_loss_at_the_link(params) -> None:
     run(rig.run(frames=1000))
     dropped = rig.health.rejected["fault_dropped"]
     assert 400 < dropped < 600  # binomial, n = 1000, p = 0.5
-    assert math.isclose(dropped + rig.health.accepted, 1000, abs_tol=1)
+    assert dropped + rig.health.accepted == 1000  # each of the 1000 answers one or other
     assert np.all(np.isfinite(rig.plant.ms))
 
 

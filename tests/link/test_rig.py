@@ -259,16 +259,23 @@ def test_a_rig_stall_is_not_blamed_on_a_punctual_controller(params) -> None:
 
 
 def test_a_controller_too_slow_for_its_period_still_trips_the_watchdog(params) -> None:
-    # 1.5 periods of computing with the rig on time: every answer misses its frame
+    # 1.5 periods of computing with the rig on time: every answer misses its frame. The
+    # answer to y_k is due at t_k + 1.5 T and goes out with the board's next chance, at
+    # y_(k+2): frame k + 1, which wanted it (d = 1), has held; frame k + 2 refuses it as
+    # late. So frames 1..299 of the 300 hold (frame 0 wants no answer), the answers to
+    # y_0..y_297 come in late, and the watchdog trips once and stays tripped
     rig, _ = run(_timed_rig(params, compute_ns=1_500_000))
     assert rig.health.overrun_held == 0
-    assert rig.health.watchdog_trips >= 1 and rig.health.missing > 3
+    assert rig.health.missing == 299 and rig.health.sequence["late"] == 298
+    assert rig.health.watchdog_trips == 1 and rig.tripped
 
 
 def test_a_controller_that_falls_silent_trips_the_watchdog(params) -> None:
+    # silent from y_150: the answer to y_149 still comes (with the board's next chance,
+    # at y_150), so frames 151..299 hold: 149, and the watchdog trips once
     rig, _ = run(_timed_rig(params, compute_ns=500_000, silent_from=150))
     assert rig.tripped and rig.health.watchdog_trips == 1
-    assert rig.health.missing >= 4 and rig.health.overrun_held == 0
+    assert rig.health.missing == 149 and rig.health.overrun_held == 0
 
 
 def test_a_long_stall_does_not_excuse_a_silent_controller_for_ever(params) -> None:

@@ -218,7 +218,8 @@ def test_realtime_watchdog_when_the_udp_peer_dies(params, tmp_path) -> None:
     rig, left_at = asyncio.run(_rig_with_a_board_that_dies(params, tmp_path, "realtime",
                                                            300, 1.0))
     assert rig.frame > left_at + 50  # plant time went on without the board
-    assert rig.tripped and rig.health.watchdog_trips >= 1
+    # once, and it stays tripped: no valid command comes again
+    assert rig.tripped and rig.health.watchdog_trips == 1
     assert not rig.plant.iu[:, 3].any()  # every inverter's gates blocked
 
 
@@ -273,9 +274,20 @@ def test_hostile_bytes_on_the_serial_line_are_counted_and_the_rig_goes_on(params
 
     rig = asyncio.run(go())
     f = rig.link.stats.framing
-    assert f.crc_errors + f.cobs_errors >= 2 and f.oversized >= 1
-    assert rig.health.rejected["malformed"] >= 1
-    assert rig.health.accepted >= 20  # the good telegrams after the noise were taken
+    # each hostile piece counted once, as its kind: the noise is one damaged frame (its
+    # COBS or its CRC fails, by the seed), the flipped bit a CRC error, the long run one
+    # oversized frame, the frame of non-msgpack one malformed telegram; the delimiters
+    # alone are idle line, nothing
+    assert f.crc_errors + f.cobs_errors == 2 and f.crc_errors >= 1
+    assert f.oversized == 1
+    assert rig.health.rejected["malformed"] == 1
+    assert sum(rig.health.rejected.values()) == 1
+    # the 50 good telegrams: none lost. Each is read at a frame of the rig's and taken,
+    # or refused as late if the pseudo-terminal gave it a frame later than written (a busy
+    # machine); the last may still be on its way when the run ends
+    read = rig.health.accepted + rig.health.sequence["late"]
+    assert read in (49, 50), (rig.health.accepted, dict(rig.health.sequence))
+    assert rig.health.accepted >= 45
 
 
 @pytest.mark.parametrize("fec", ["3", "66", "-2", "x", ""])

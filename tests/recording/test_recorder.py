@@ -158,8 +158,12 @@ def test_sigkill_of_a_recording_rig_leaves_what_it_flushed(tmp_path, command) ->
         proc.wait()
     back = read_recording(path)
     assert len(back.data) >= len(seen.data) > 0  # nothing flushed is lost
+    # and it is what was flushed, row for row, from the run's first frame (a recording
+    # that lost its leading blocks, or rewrote one, would not be)
+    assert np.array_equal(back.data[:len(seen.data)], seen.data, equal_nan=True)
     assert back.meta["period_us"] == 1000
     t = back.column("time_s")
+    assert t[0] == pytest.approx(1e-3, abs=1e-12)  # the state after frame 0, at t_1
     np.testing.assert_allclose(np.diff(t), 1e-3, rtol=1e-9)  # contiguous frames
 
 
