@@ -138,12 +138,18 @@ def test_telegram_loss_at_the_link(params) -> None:
 def test_open_motor_phase_opens_and_reconnects(params) -> None:
     # The physics of the open phase is checked against scipy in
     # tests/plant/test_open_phase.py; here: the fault reaches the right motor and clears.
+    # It acts in frames 10..29 exactly: a fault starts at the start of the first frame
+    # whose plant time has reached at_s (frame 10 starts at 10 ms) and ends at the start
+    # of the one that reaches until_s (frame 30)
     rig, _ = rig_with_faults(params)
     rig.faults.add("open-motor-phase", "INV-A2.m2", {"phase": 2}, at_s=0.01, until_s=0.03)
-    run(rig.run(frames=20))
-    assert list(rig.plant.mu[:, L.MU_OPEN_PHASE]) == [0, 0, 0, 3.0, 0, 0, 0, 0]
-    run(rig.run(frames=40))  # frames counts from the start of the run
-    assert not rig.plant.mu[:, L.MU_OPEN_PHASE].any()
+    opened = []
+    for k in range(40):
+        run(rig.run(frames=k + 1))  # frame k (frames counts from the start of the run)
+        if rig.plant.mu[:, L.MU_OPEN_PHASE].any():
+            assert list(rig.plant.mu[:, L.MU_OPEN_PHASE]) == [0, 0, 0, 3.0, 0, 0, 0, 0]
+            opened.append(k)
+    assert opened == list(range(10, 30))
 
 
 #: what a fault leaves changed after it ends, by design (the rest must be as before)
