@@ -4,11 +4,13 @@ what was written before is kept beside as .bak when the file is rewritten."""
 
 from __future__ import annotations
 
+import csv
 from pathlib import Path
 
 import pytest
 
 from emulator.campaign.results import (
+    CHECKS,
     RESULTS,
     ResultsFileError,
     ResultsWriter,
@@ -44,6 +46,15 @@ def test_a_last_row_cut_short_is_dropped_and_said(tmp_path: Path) -> None:
     assert writer.done == {"d1", "d2"} and writer.cut == 1
     writer.close()
     assert (tmp_path / "results.csv.bak").read_text(encoding="utf-8") == text[:-20]
+    # rewritten: the header and the two whole rows, as they were written
+    assert path.read_text(encoding="utf-8") == "".join(text.splitlines(keepends=True)[:3])
+    # and the checks of the runs kept, none of the run cut short (run 3 will run again),
+    # each as _result gave it
+    with (tmp_path / CHECKS).open(newline="", encoding="utf-8") as fh:
+        checks = list(csv.DictReader(fh))
+    assert checks == [{"run": str(k), "digest": f"d{k}", "check": "gets away",
+                       "passed": "True", "measured": "at 1 s", "value": "1.0"}
+                      for k in (1, 2)]
 
 
 def test_an_edited_row_is_an_error_naming_its_line_and_nothing_is_rewritten(

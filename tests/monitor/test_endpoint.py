@@ -9,6 +9,7 @@ from __future__ import annotations
 import asyncio
 import os
 
+import numpy as np
 import pytest
 
 from emulator.monitor import endpoint as monitor_module
@@ -66,7 +67,7 @@ async def test_inject_clear_and_errors_reach_the_rig(live_rig) -> None:  # noqa:
     assert not bad["ok"] and "no motor named 'INV-Z9.m1'" in bad["text"]
     bad = await c.ask("inject", fault="catenary-dip", target="catenary",
                       params={"voltage_pu": float("nan")})
-    assert not bad["ok"]
+    assert not bad["ok"] and "voltage_pu must be a finite number" in bad["text"]
     bad = await c.ask("warp", speed=9)
     assert not bad["ok"] and "unknown op" in bad["text"]
     bad = await c.ask("demand", effort=3.0)
@@ -108,7 +109,11 @@ async def test_operator_demand_record_and_mark(live_rig, tmp_path) -> None:  # n
     assert (await c.ask("demand", release=True))["ok"]
     assert rig.program is program
     rec = read_recording(path)
-    assert rec.complete and len(rec.data) > 100
+    # every frame from the start to the stop, none lost at the close: more than the 150
+    # waited for, one a period without a gap
+    t = rec.column("time_s")
+    assert rec.complete and len(rec.data) > 150
+    assert np.allclose(np.diff(t), 1e-3, rtol=1e-9, atol=0)
     assert any(m.get("label") == "before the dip" for m in rec.marks)
 
 
@@ -120,6 +125,7 @@ async def test_garbage_drops_only_that_client(live_rig) -> None:  # noqa: F811
     writer.write(b"\xc1" * 64)  # 0xc1 is never used in msgpack
     await wait_until(lambda: monitor.counts["bad_messages"] >= 1, what="garbage counted")
     await wait_until(lambda: len(monitor.clients) == 1, what="the garbling client dropped")
+    assert monitor.counts["bad_messages"] == 1  # one undecodable stream, counted once
     frame = rig.frame
     await wait_until(lambda: rig.frame > frame, what="frames going on")
     assert (await good.ask("mark", text="still here"))["ok"]
