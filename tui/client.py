@@ -57,6 +57,11 @@ def private_dir(path: Path) -> Path:
     return path
 
 
+#: what the client's reader says when the rig's monitor has closed the stream (not None:
+#: a nil is a message, of the wrong shape)
+GONE = object()
+
+
 class RigConnectionError(ConnectionError):
     """The rig's monitor cannot be reached or went away."""
 
@@ -93,32 +98,36 @@ class RigClient:
                                      "give it with --token") from None
         except (OSError, ValueError, TimeoutError) as exc:
             raise RigConnectionError(f"no rig monitor at {a}: {exc}") from None
-        if first is not None and first.get("kind") == "error":
+        if not isinstance(first, dict):
+            raise RigConnectionError(f"{a} did not greet as a rig monitor")
+        if first.get("kind") == "error":
             raise RigConnectionError(f"{a} refused: {first.get('text')}")
-        if first is None or first.get("kind") != "hello":
+        if first.get("kind") != "hello":
             raise RigConnectionError(f"{a} did not greet as a rig monitor")
         self.hello = first
         return first
 
-    async def _next_message(self) -> dict[str, Any] | None:
+    async def _next_message(self) -> Any:
+        """The next message, whatever its shape (the dashboard counts and drops one that
+        is not a map, nil too), or GONE when the rig has gone."""
         assert self._reader is not None
         while True:
             for message in self._unpacker:
-                if isinstance(message, dict):
-                    return message
+                return message
             data = await self._reader.read(65536)
             if not data:
-                return None
+                return GONE
             self._unpacker.feed(data)
 
-    async def messages(self) -> AsyncIterator[dict[str, Any]]:
-        """Telemetry, events and replies until the rig goes away."""
+    async def messages(self) -> AsyncIterator[Any]:
+        """Telemetry, events and replies until the rig goes away (as sent: a message of
+        another shape is the caller's to refuse)."""
         while True:
             try:
                 message = await self._next_message()
             except (OSError, ValueError, msgpack.UnpackException) as exc:
                 raise RigConnectionError(f"monitor stream broken: {exc}") from None
-            if message is None:
+            if message is GONE:
                 return
             yield message
 

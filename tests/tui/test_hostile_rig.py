@@ -70,10 +70,10 @@ async def test_malformed_telemetry_is_dropped_and_the_rig_dying_is_said() -> Non
     bad_groups = copy.deepcopy(good)
     bad_groups["groups"] = [{"name": "DC-A"}]
     # each malformed message is either refused on arrival or drawn once and dropped; the
-    # fake rig waits for the dashboard to have dealt with one before it sends the next
-    # (lists and strings never reach the dashboard: its client takes maps only)
+    # fake rig waits for the dashboard to have dealt with one before it sends the next.
+    # Messages that are no map (a list, a string, a number, nil) are counted alike
     script = [hello, good, no_motors, bad_types, bad_groups, {"kind": "telemetry"},
-              {"no kind": 1}, later]
+              {"no kind": 1}, [1, 2], "telemetry", 7, None, later]
     holder = {}
 
     async def pace(k: int, message) -> None:
@@ -91,7 +91,7 @@ async def test_malformed_telemetry_is_dropped_and_the_rig_dying_is_said() -> Non
         async with app.run_test(size=(100, 30)) as pilot:
             await _until(pilot, lambda: rig.done.is_set() and not app.attached)
             assert app.is_running
-            assert app.malformed == 5
+            assert app.malformed == 9
             assert app.good_snap is not None and app.good_snap["t_s"] == later["t_s"]
             log = "\n".join(app.log_lines)
             assert "malformed" in log
