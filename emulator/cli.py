@@ -11,6 +11,8 @@ import importlib
 import sys
 from collections.abc import Sequence
 
+from rich.markup import escape
+
 from emulator.commands import stderr_console
 from emulator.profiles.table import ProfileError
 
@@ -39,7 +41,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return args.func(args)
     except ProfileError as exc:
-        console.print(f"[red]profile error:[/red] {exc}")
+        console.print(f"[red]profile error:[/red] {escape(str(exc))}")
         return 2
     except KeyboardInterrupt:
         return 130

@@ -16,6 +16,7 @@ from pathlib import Path
 
 from rich import box
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from emulator.commands import DEFAULT_TRAINSET, stderr_console
@@ -97,13 +98,13 @@ def run(args: argparse.Namespace) -> int:
 
     params = load_trainset(resolve_profile(args.profile))
     if args.condition is not None and args.condition not in RAIL_CONDITIONS:
-        console.print(f"[red]error:[/red] no rail condition {args.condition!r}; the plant "
-                      f"offers {', '.join(RAIL_CONDITIONS)}")
+        console.print(f"[red]error:[/red] no rail condition {escape(repr(args.condition))}; "
+                      f"the plant offers {', '.join(RAIL_CONDITIONS)}")
         return 2
     try:
         speeds = [float(v) for v in args.speeds_kmh.split(",")]
     except ValueError as exc:
-        console.print(f"[red]error:[/red] speeds are numbers: {exc}")
+        console.print(f"[red]error:[/red] speeds are numbers: {escape(str(exc))}")
         return 2
     if not speeds or any(not math.isfinite(v) or not 0.0 <= v <= 500.0 for v in speeds):
         console.print("[red]error:[/red] speeds are within 0..500 km/h")

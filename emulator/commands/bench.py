@@ -9,6 +9,7 @@ import argparse
 import json
 
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from emulator.commands import DEFAULT_TRAINSET, pairs_table, stderr_console
@@ -182,7 +183,7 @@ def _print_serial_ber(args: argparse.Namespace, params) -> int:
         for fec in args.fec:
             check_fec(fec)
     except ValueError as exc:
-        console.print(f"[red]--fec: {exc}[/red]")
+        console.print(f"[red]--fec: {escape(str(exc))}[/red]")
         return 2
     console.print(f"serial link under bit errors: {params.name}, {args.serial_mode}, "
                   f"{args.seconds:g} s at each rate (clean first), pseudo-terminals joined "

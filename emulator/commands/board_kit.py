@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from rich.console import Console
+from rich.markup import escape
 
 from emulator.commands import DEFAULT_TRAINSET
 
@@ -28,7 +29,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         files = write_kit(params, args.out)
     except (KitError, OSError) as exc:
-        out.print(f"[red]board-kit:[/red] {exc}")
+        out.print(f"[red]board-kit:[/red] {escape(str(exc))}")
         return 2
     sm = build_signal_map(params)
     out.print(f"Board kit for {params.name}: protocol {sm.version}, map digest "

@@ -14,6 +14,7 @@ from pathlib import Path
 
 from rich import box
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from emulator.commands import DEFAULT_TRAINSET, stderr_console
@@ -52,7 +53,7 @@ def run(args: argparse.Namespace) -> int:
                   [5.0, *range(20, int(params.train.max_speed_mps * 3.6) + 1, 20)])
         demands = [float(d) for d in args.demands.split(",")]
     except ValueError as exc:
-        console.print(f"[red]error:[/red] speeds and demands are numbers: {exc}")
+        console.print(f"[red]error:[/red] speeds and demands are numbers: {escape(str(exc))}")
         return 2
     if not demands or any(not -1.0 <= d <= 1.0 or d == 0 for d in demands):
         console.print("[red]error:[/red] demands are within -1..1 and not 0")
@@ -69,7 +70,7 @@ def run(args: argparse.Namespace) -> int:
         points = asyncio.run(measure(profile, speeds, demands, controller=args.controller,
                                      control=control, progress=progress))
     except (ValueError, OSError) as exc:
-        console.print(f"[red]error:[/red] {exc}")
+        console.print(f"[red]error:[/red] {escape(str(exc))}")
         return 2
     data = as_json(points)
     if args.report:

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import argparse
 
+from rich.markup import escape
+
 from emulator.commands import DEFAULT_TRAINSET, stderr_console
 
 console = stderr_console()
@@ -41,6 +43,6 @@ def run(args: argparse.Namespace) -> int:
     try:
         asyncio.run(serve())
     except LinkError as exc:
-        console.print(f"[red]link error:[/red] {exc}")
+        console.print(f"[red]link error:[/red] {escape(str(exc))}")
         return 2
     return 0

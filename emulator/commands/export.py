@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import argparse
 
+from rich.markup import escape
+
 from emulator.commands import stderr_console
 
 console = stderr_console()
@@ -38,7 +40,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         rec = read_recording(args.file)
     except (OSError, RecordingError) as exc:
-        console.print(f"[red]error:[/red] {exc}")
+        console.print(f"[red]error:[/red] {escape(str(exc))}")
         return 2
     if not rec.complete:
         console.print(f"[yellow]note:[/yellow] {rec.note}; exporting the "
@@ -48,7 +50,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         rec = rec.select(parse_channels(args.channels), args.from_s, args.to_s)
     except ChannelError as exc:
-        console.print(f"[red]error:[/red] {exc}")
+        console.print(f"[red]error:[/red] {escape(str(exc))}")
         return 2
     if len(rec.data) == 0:
         console.print("[red]error:[/red] no frame in that time span")

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import numpy as np
 from rich.console import Console
+from rich.markup import escape
 
 from emulator.commands.run import (
     EXIT_FAILED,
@@ -42,7 +43,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         old = read_recording(args.recording)
     except (RecordingError, OSError) as exc:
-        console.print(f"[red]{exc}[/red]")
+        console.print(f"[red]{escape(str(exc))}[/red]")
         return EXIT_UNRUNNABLE
     meta = old.meta
     if "scenario" not in meta:
@@ -61,14 +62,14 @@ def run(args: argparse.Namespace) -> int:
                                            f"{seed!r}")
         except (UnsafeTextsError, KeyError, TypeError, AttributeError) as exc:
             what = f"the recording has no {exc}" if isinstance(exc, KeyError) else exc
-            console.print(f"[red]cannot replay: {what}[/red]")
+            console.print(f"[red]cannot replay: {escape(str(what))}[/red]")
             return EXIT_UNRUNNABLE
         args.controller, args.mode, args.seed = "reference", "lockstep", seed
         try:
             with progress_bar() as bar:
                 new = asyncio.run(run_one(scenario_path, args, bar, None, trainset))
         except (ProfileError, RunError, ValueError, OSError) as exc:
-            console.print(f"[red]cannot replay: {exc}[/red]")
+            console.print(f"[red]cannot replay: {escape(str(exc))}[/red]")
             return EXIT_UNRUNNABLE
     same, note = compare(old, new.recording)
     out = Console(soft_wrap=True)  # paths and names whole, whatever the width

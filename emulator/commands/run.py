@@ -11,6 +11,7 @@ import asyncio
 from pathlib import Path
 
 from rich.console import Console
+from rich.markup import escape
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
@@ -90,7 +91,7 @@ def run(args: argparse.Namespace) -> int:
                 record = Path(args.record) if args.record else None
                 runs.append(asyncio.run(run_one(path, args, bar, record)))
             except (ProfileError, RunError, ValueError, OSError) as exc:
-                console.print(f"[red]cannot run {path}:[/red] {exc}")
+                console.print(f"[red]cannot run {escape(str(path))}:[/red] {escape(str(exc))}")
                 code = EXIT_UNRUNNABLE
     out = Console(soft_wrap=True)  # paths and names whole, whatever the width
     for result in runs:
@@ -105,7 +106,7 @@ def run(args: argparse.Namespace) -> int:
                 index = write_report(result, where)
                 out.print(f"report: {index}")
             except RuntimeError as exc:
-                console.print(f"[red]{exc}[/red]")
+                console.print(f"[red]{escape(str(exc))}[/red]")
                 code = max(code, EXIT_UNRUNNABLE)
     if args.junit:
         from emulator.scenario.junit import write_junit

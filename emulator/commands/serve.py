@@ -15,6 +15,8 @@ import os
 import signal
 import time
 
+from rich.markup import escape
+
 from emulator.commands import DEFAULT_TRAINSET, stderr_console
 from emulator.profiles.reader import load_trainset, resolve_profile
 
@@ -99,7 +101,7 @@ def run(args: argparse.Namespace) -> int:
         try:
             os.sched_setaffinity(0, {args.cpu})
         except (AttributeError, OSError, ValueError) as exc:
-            console.print(f"[red]error:[/red] cannot pin to CPU {args.cpu}: {exc}")
+            console.print(f"[red]error:[/red] cannot pin to CPU {args.cpu}: {escape(str(exc))}")
             return 2
     link_url = args.link or f"loop://railrig-serve-{os.getpid()}"
     try:
@@ -118,7 +120,7 @@ def run(args: argparse.Namespace) -> int:
         # now, not after the plant has started
         decimate = parse_decimation(args.record_decimate)
     except (LinkError, RigError, MonitorError, ChannelError) as exc:
-        console.print(f"[red]error:[/red] {exc}")
+        console.print(f"[red]error:[/red] {escape(str(exc))}")
         return 2
     if args.program == "demo":
         from emulator.scenario.driver import demo_program
@@ -175,7 +177,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         asyncio.run(serve())
     except LinkError as exc:
-        console.print(f"[red]link error:[/red] {exc}")
+        console.print(f"[red]link error:[/red] {escape(str(exc))}")
         return 2
     report = rig.report()
     if monitor is not None:

@@ -75,11 +75,16 @@ def test_run_junit_report_and_replay(tmp_path: Path) -> None:
 def test_bad_file_exits_2_naming_the_line(tmp_path: Path) -> None:
     scenario = tmp_path / "bad.toml"
     text = SHORT.format(trainset=ROOT / "profiles/trainsets/tern-25kv.toml")
-    scenario.write_text(text.replace('signal = "train.speed_kmh"\nmin',
-                                     'signal = "train.sped"\nmin'))
+    bad = text.replace('signal = "train.speed_kmh"\nmin', 'signal = "train.sped"\nmin')
+    scenario.write_text(bad)
     done = _railrig("run", str(scenario), cwd=tmp_path)
     assert done.returncode == 2
-    assert "bad.toml:" in done.stderr and "train.sped" in done.stderr
+    # the signal is looked up when the run starts, against what is recorded: the error
+    # names the check (the line its table starts on) and its key
+    line = next(i for i, row in enumerate(bad.splitlines(), 1)
+                if row == 'name = "impossible on purpose"')
+    assert f"bad.toml:{line}: [check] signal:" in done.stderr
+    assert "no recorded signal named 'train.sped'" in done.stderr
 
 
 def test_no_controller_exits_2(tmp_path: Path) -> None:
