@@ -49,12 +49,14 @@ async def run_one(path: Path, args, bar: Progress, record: Path | None,
 
 def summary(run: RunResult) -> Table:
     """The checks of a run as a table (verdict in words: readable without colour)."""
-    table = Table(title=f"{run.scenario.name}: {'passed' if run.passed else 'FAILED'}")
+    # names and values as written (escaped: rich would read "[...]" in them as markup)
+    table = Table(title=escape(f"{run.scenario.name}: "
+                               f"{'passed' if run.passed else 'FAILED'}"))
     for col in ("verdict", "check", "measured", "window"):
         table.add_column(col)
     for r in run.results:
-        table.add_row("pass" if r.passed else "[bold red]FAIL[/]", r.spec.name,
-                      f"{r.measured} {r.detail}".strip(),
+        table.add_row("pass" if r.passed else "[bold red]FAIL[/]", escape(r.spec.name),
+                      escape(f"{r.measured} {r.detail}".strip()),
                       f"{r.window[0]:.1f}..{r.window[1]:.1f} s")
     return table
 
