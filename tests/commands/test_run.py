@@ -98,15 +98,15 @@ def test_no_controller_exits_2(tmp_path: Path) -> None:
 def test_the_summary_prints_names_with_brackets_as_written() -> None:
     # a check or scenario name may hold square brackets (a TOML table's name, an axle
     # index); rich would take "[...]" for markup and drop it
-    from types import SimpleNamespace as NS
+    from types import SimpleNamespace as Ns
 
     from rich.console import Console
 
     from emulator.commands.run import summary
 
-    check = NS(passed=False, spec=NS(name="creep [axle 1]"), measured="0 .. 36",
+    check = Ns(passed=False, spec=Ns(name="creep [axle 1]"), measured="0 .. 36",
                detail="[over]", window=(0.0, 1.0))
-    run = NS(scenario=NS(name="start[tern-15kv]"), passed=False, results=[check])
+    run = Ns(scenario=Ns(name="start[tern-15kv]"), passed=False, results=[check])
     console = Console(width=120, record=True)
     console.print(summary(run))
     text = console.export_text()
