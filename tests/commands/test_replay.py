@@ -7,6 +7,7 @@ import copy
 import shutil
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from emulator.recording.recorder import Recorder, read_recording
@@ -53,6 +54,11 @@ def test_a_truncated_recording_exits_1_saying_so(recorded, tmp_path) -> None:
     cut.write_bytes(raw[:len(raw) * 2 // 3])  # a run killed mid-chunk
     rec = read_recording(cut)
     assert not rec.complete
+    # what the cut file still holds is the whole recording's beginning, row for row, and
+    # less than all of its 3500 frames: the frames the replay then finds the same
+    whole = read_recording(recorded).data
+    assert len(whole) == 3500 and 0 < len(rec.data) < 3500
+    assert np.array_equal(rec.data, whole[:len(rec.data)], equal_nan=True)
     done = _railrig("replay", str(cut), cwd=tmp_path)
     assert done.returncode == 1, done.stdout + done.stderr
     assert f"same first {len(rec.data)} frames" in done.stdout
