@@ -14,6 +14,13 @@ in both, so an axle is one contact with twice a wheel's load and stiffness.
 
 Near standstill the creep denominator is regularised, s = w / sqrt(v^2 + v_ref^2), so
 the force stays finite and smooth when the train starts or rolls back.
+
+Left out: the law is the steady state (no contact relaxation, the creep's lag over a
+relaxation length), and an axle is one contact with one inertia, so the torsional mode
+of the axle between its two wheels (often 50-100 Hz, and what drives stick-slip) is not
+there: the coupling's mode (shaft.py, about 30 Hz on the Tern) is the only mechanical
+mode an adhesion control meets here (Iwnicki (ed.), Handbook of Railway Vehicle
+Dynamics, traction chapter; from memory).
 """
 
 from __future__ import annotations

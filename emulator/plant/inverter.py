@@ -21,6 +21,21 @@ of its current and can only clamp to a rail: the bridge applies the voltage that
 bring the phase currents to zero at the end of the sub-step, clipped to the rails
 (+-(U_dc/2 + V_F)). A current that would cross zero thus stops at zero within the
 sub-step, and a back-EMF above the link voltage drives current into the link.
+
+What the average model leaves out, which a firmware engineer tuning against it should
+know: the PWM ripple. At the Tern's 800 Hz carrier a two-level leg puts about +-180 A
+of ripple on each phase current at the rated point (about +-36 % of the fundamental,
+with the two motors' leakage inductance in parallel: a carrier-based PWM simulation
+outside the plant, 2026-12-04); here the currents are the switching-period averages. So
+the current sensors read ripple-free values (what a board sampling in step with its
+carrier reads); the gate drivers' overcurrent comparator (kernel.py) compares the
+average with its threshold, where a real detector sees the peak (on the Tern it would
+act near 1420 A of average, not 1600); and the dead time's error changes sign across
+``sign_band_a`` (5 A on the Tern), where with the ripple it changes across the ripple's
+amplitude, so dead-time compensation tuned here over-compensates near zero crossings
+on a real drive (Holmes & Lipo, ch. 5-6; Munoz & Lipo, IEEE TPEL 14(4), 1999; from
+memory). At low pulse ratios (about 6 at 160 km/h) the low-order harmonics and
+subharmonics of asynchronous PWM are missing too.
 """
 
 from __future__ import annotations

@@ -22,6 +22,11 @@ DC link: C dU/dt = sum i_dc,4QC - sum i_dc,inverter - i_chopper - U/R_dis - i_fi
 an optional series-resonant filter (L_f di_f/dt = U - u_cf - R_f i_f, C_f du_cf/dt = i_f)
 tuned to twice the line frequency, L_f C_f = 1/(2 omega)^2; the chopper is an average
 model i_ch = d U / R_ch.
+
+Left out: the transformer's magnetising branch (no inrush when the breaker closes, no
+saturation from a DC offset of the converters' currents, so a firmware's DC-offset
+control has nothing to act on), and the converters' switching harmonics (average
+models: no carrier-frequency currents for an interference-current monitor).
 """
 
 from __future__ import annotations

@@ -9,6 +9,12 @@ a conductance between them and to the coolant::
 Stepped by backward Euler once per frame (unconditionally stable; the time constants
 are seconds to hours against a millisecond frame). Standard first-order thermal
 equivalent circuit (Cauer form), e.g. IEC 60349 thermal practice, common practice.
+
+An inverter's junction node takes the whole inverter's mean loss over the frame. At a
+start, at 1-3 Hz, one IGBT or diode carries the peak current for hundreds of
+milliseconds and its junction swings well above the mean, which one node cannot show:
+low-speed current derating tuned against it is optimistic (per-device Foster or Cauer
+networks would show the swing; common practice, no source).
 """
 
 from __future__ import annotations
