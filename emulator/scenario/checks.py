@@ -50,6 +50,7 @@ class CheckSpec:
     value: float | None = None
     band: tuple[float, float] | None = None
     codes: tuple[int, ...] = ()
+    times: int | None = None  # raised: exactly this many separate raises in the window
     within_s: float | None = None
     by_s: float | None = None
     by_m: float | None = None
@@ -107,6 +108,10 @@ def read_check(t: Table, labels: list[str]) -> CheckSpec:
         kw["codes"] = _codes(t, kind)
         if t.optional("signal"):
             raise t.error("signal", "event checks read the controller's tcu.event_code")
+        if t.optional("times"):
+            if kind != "raised":
+                raise t.error("times", "times counts the raises of a raised check")
+            kw["times"] = t.integer("times", 1, 100_000)
     else:
         kw["signal"] = t.string("signal")
         if kind in ("band", "settles"):
@@ -204,6 +209,13 @@ def _events(check, code, t, mask, window) -> CheckResult:
     names = {v: k for k, v in ev.SLUGS.items()}
     said = ", ".join(f"{names.get(c, c)} at {s:.2f} s" for c, s in sorted(hits.items(),
                                                                            key=lambda h: h[1]))
+    if check.times is not None:  # each frame the code turns to one of them: one raise
+        raises = [float(t[i]) for i in entered if mask[i] and int(code[i]) in check.codes]
+        said = (f"{len(raises)} raise(s)" + (" at " if raises else "")
+                + ", ".join(f"{s:.2f}" for s in raises[:8]) + (" ..." if len(raises) > 8
+                                                               else "") + (" s" if raises else ""))
+        return CheckResult(check, len(raises) == check.times, said,
+                           f"expected {check.times}", window)
     passed = bool(hits) if check.kind == "raised" else not hits
     return CheckResult(check, passed, said or "none", "", window)
 

@@ -214,3 +214,18 @@ def test_an_event_that_never_happened() -> None:
     late = evaluate(CheckSpec("e", "max", signal="train.speed_mps", value=100.0,
                               after="brake"), rec, {})
     assert not late.passed and "never happened" in late.detail
+
+
+
+@pytest.mark.parametrize(("times", "passed"), [(1, True), (2, False)])
+def test_raised_times_counts_the_separate_raises(times: int, passed: bool) -> None:
+    # the recording's event code is 70 from 0.3 to 0.4 s: one raise (_recording)
+    r = evaluate(CheckSpec("w", "raised", codes=(70,), times=times), _recording(), {})
+    assert r.passed is passed
+    assert r.measured.startswith("1 raise(s) at 0.30")
+
+
+def test_times_belongs_to_a_raised_check(tmp_path: Path) -> None:
+    text = GOOD + '\n[[check]]\nname = "x"\nnot_raised = "trip"\ntimes = 2\n'
+    with pytest.raises(ScenarioError, match="times counts the raises"):
+        load_scenario(_write(tmp_path, text))
