@@ -24,4 +24,5 @@ def test_without_the_hardware_trip_the_protection_checks_fail() -> None:
     assert failed == {
         "INV-A1's gate drivers trip within a second of it (the plant's hardware)",
         "the controller reports the hardware trip",
+        "reset, retried, isolated: the hardware trip raised exactly three times",
         "INV-A1 isolated after three trips: its trip stays latched from 10 s"}
