@@ -98,11 +98,10 @@ class RigClient:
                                      "give it with --token") from None
         except (OSError, ValueError, TimeoutError) as exc:
             raise RigConnectionError(f"no rig monitor at {a}: {exc}") from None
-        if not isinstance(first, dict):
-            raise RigConnectionError(f"{a} did not greet as a rig monitor")
-        if first.get("kind") == "error":
+        kind = first.get("kind") if isinstance(first, dict) else None
+        if kind == "error":
             raise RigConnectionError(f"{a} refused: {first.get('text')}")
-        if first.get("kind") != "hello":
+        if kind != "hello":
             raise RigConnectionError(f"{a} did not greet as a rig monitor")
         self.hello = first
         return first

@@ -204,18 +204,17 @@ def evaluate(check: CheckSpec, rec, marks: dict[str, float]) -> CheckResult:
 
 def _events(check, code, t, mask, window) -> CheckResult:
     entered = np.flatnonzero(np.diff(code, prepend=0.0) != 0)
+    if check.times is not None:  # each frame the code turns to one of them: one raise
+        raises = [float(t[i]) for i in entered if mask[i] and int(code[i]) in check.codes]
+        shown = ", ".join(f"{s:.2f}" for s in raises[:8]) + (" ..." if len(raises) > 8 else "")
+        said = f"{len(raises)} raise(s)" + (f" at {shown} s" if raises else "")
+        return CheckResult(check, len(raises) == check.times, said,
+                           f"expected {check.times}", window)
     seen = {int(code[i]): float(t[i]) for i in entered[::-1] if mask[i] and code[i] != 0}
     hits = {c: seen[c] for c in check.codes if c in seen}
     names = {v: k for k, v in ev.SLUGS.items()}
     said = ", ".join(f"{names.get(c, c)} at {s:.2f} s" for c, s in sorted(hits.items(),
                                                                            key=lambda h: h[1]))
-    if check.times is not None:  # each frame the code turns to one of them: one raise
-        raises = [float(t[i]) for i in entered if mask[i] and int(code[i]) in check.codes]
-        said = (f"{len(raises)} raise(s)" + (" at " if raises else "")
-                + ", ".join(f"{s:.2f}" for s in raises[:8]) + (" ..." if len(raises) > 8
-                                                               else "") + (" s" if raises else ""))
-        return CheckResult(check, len(raises) == check.times, said,
-                           f"expected {check.times}", window)
     passed = bool(hits) if check.kind == "raised" else not hits
     return CheckResult(check, passed, said or "none", "", window)
 

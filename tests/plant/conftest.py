@@ -15,6 +15,19 @@ from emulator.rig.open_loop import SlipFrequencyVf
 TRAINSET = PROFILES_DIR / "trainsets" / "tern-25kv.toml"
 
 
+def wheel_radii(params) -> np.ndarray:
+    """Each motored axle's wheel radius, m, in the plant's motor order."""
+    return np.array([d / 2 for c in params.converters for d in c.wheel_diameters_m])
+
+
+def windage_coefficient(machine) -> float:
+    """c_fw of the motor's friction and windage, a drag c_fw w_m on the rotor that takes
+    the profile's P_fw at the synchronous speed of the rated frequency: P_fw / w_sync^2
+    (the profile's definition)."""
+    w_sync = 2 * math.pi * machine.rated_frequency_hz / machine.pole_pairs
+    return machine.friction_windage_w / w_sync ** 2
+
+
 def machine_profile(name: str):
     """A shipped machine profile by name."""
     return load_machine(PROFILES_DIR / "machines" / f"{name}.toml")

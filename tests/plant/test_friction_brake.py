@@ -13,7 +13,7 @@ from emulator.plant import layout as L  # noqa: N812
 from emulator.plant.drivetrain import RAIL_CONDITIONS, polach_force
 from emulator.profiles.reader import load_trainset
 
-from .conftest import TRAINSET
+from .conftest import TRAINSET, wheel_radii, windage_coefficient
 from .test_energy_balance import SUBSTEPS_S, _plant, balance, closes
 
 
@@ -39,7 +39,7 @@ def _braking_on_dry_rail(substep_s: float):
     e0 = plant.energy()
     plant.set_brake_force(demand)  # 0.77 m/s^2 of a 195 t train: far inside dry adhesion
     speeds, work = [v0], 0.0
-    r = np.array([d / 2 for c in p.converters for d in c.wheel_diameters_m])
+    r = wheel_radii(p)
     last = plant.read("motor.brake_force_n") * r * plant.read("motor.wheelset_speed_rad_s")
     for _ in range(round(t_end / 1e-3)):
         plant.advance(None)
@@ -56,7 +56,7 @@ def test_braking_on_dry_rail_follows_newton_and_the_books_close() -> None:
     p = plant.params
     tr, dt = p.train, p.drivetrain
     v0, demand, t_end = 20.0, 150e3, 4.0
-    r = np.array([d / 2 for c in p.converters for d in c.wheel_diameters_m])
+    r = wheel_radii(p)
     creep = plant.read("motor.creep_velocity_mps")
     assert np.all((creep < 0) & (creep > -0.05))  # rolling, a small braking creep
     # Newton with the wheels rolling along (momentum of the train and the wheelsets):
@@ -75,9 +75,7 @@ def test_braking_on_dry_rail_follows_newton_and_the_books_close() -> None:
                                               + i ** 2 * p.machine.rotor_inertia_kgm2)
     m_train = tr.mass_kg * (1 + tr.rotating_mass_allowance)
     davis = tr.davis_a_n + tr.davis_b_n_per_mps * v + tr.davis_c_n_per_mps2 * v ** 2
-    w_sync = 2 * math.pi * p.machine.rated_frequency_hz / p.machine.pole_pairs
-    c_fw = p.machine.friction_windage_w / w_sync ** 2
-    windage = (eta * i ** 2 * c_fw / r ** 2).sum() * v
+    windage = (eta * i ** 2 * windage_coefficient(p.machine) / r ** 2).sum() * v
     impulse = (demand * (t_end - tau * (1 - math.exp(-t_end / tau)))
                + np.trapezoid(davis + windage, dx=1e-3))
     momentum = ((m_train + (j_eff / r ** 2).sum()) * (v0 - v[-1])

@@ -9,7 +9,7 @@ import pytest
 from emulator.plant import Plant
 from emulator.profiles.reader import load_trainset
 
-from .conftest import TRAINSET, SlipFrequencyDrive
+from .conftest import TRAINSET, SlipFrequencyDrive, wheel_radii, windage_coefficient
 
 
 def test_no_creeping_drift_at_zero_effort_on_the_level() -> None:
@@ -44,10 +44,10 @@ def test_rolls_back_on_a_gradient_with_brakes_off_and_holds_with_brakes_on() -> 
     tr, dt, mp = p.train, p.drivetrain, p.machine
     j_eq = (dt.wheelset_inertia_kgm2 + dt.gear_inertia_kgm2
             + dt.gear_ratio**2 * mp.rotor_inertia_kgm2)
-    radii = [d / 2 for c in p.converters for d in c.wheel_diameters_m]
+    radii = wheel_radii(p)
     rotating = sum(j_eq / r**2 for r in radii)
     v = plant.read("train.speed_mps")
-    c_fw = mp.friction_windage_w / (2 * math.pi * mp.rated_frequency_hz / mp.pole_pairs) ** 2
+    c_fw = windage_coefficient(mp)
     f_fw = sum(c_fw * dt.gear_ratio**2 * abs(v) / (dt.gear_efficiency * r**2) for r in radii)
     theta = math.atan(0.03)
     drive = (-tr.mass_kg * 9.80665 * math.sin(theta) + tr.davis_a_n
@@ -141,12 +141,11 @@ def test_coasting_from_speed_follows_the_davis_law_by_an_ode_solver() -> None:
     for _ in range(round(t_end / p.frame_s)):
         plant.advance(None)
         speeds.append(plant.read("train.speed_mps"))
-    r = np.array([d / 2 for c in p.converters for d in c.wheel_diameters_m])
+    r = wheel_radii(p)
     eta, i = dt.gear_efficiency, dt.gear_ratio
     j_eff = dt.wheelset_inertia_kgm2 + (dt.gear_inertia_kgm2 + i ** 2 * mc.rotor_inertia_kgm2) / eta
     m_eff = tr.mass_kg * (1 + tr.rotating_mass_allowance) + (j_eff / r ** 2).sum()
-    w_sync = 2 * math.pi * mc.rated_frequency_hz / mc.pole_pairs
-    k_fw = (i ** 2 * mc.friction_windage_w / w_sync ** 2 / (eta * r ** 2)).sum()
+    k_fw = (i ** 2 * windage_coefficient(mc) / (eta * r ** 2)).sum()
 
     def rhs(_t, y):
         v = y[0]
