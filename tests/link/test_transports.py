@@ -9,7 +9,6 @@ from __future__ import annotations
 import asyncio
 import json
 import os
-import socket
 import sys
 import tempfile
 from pathlib import Path
@@ -22,17 +21,12 @@ from hypothesis import strategies as st
 
 from emulator.link import open_link
 from emulator.link.base import LinkError
+from emulator.link.udp import free_loopback_port
 from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.clock import FakeClock
 from emulator.rig.frame_loop import Rig
 
 BOARD = Path(__file__).with_name("board.py")
-
-
-def free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 def signal_map_file(params, tmp_path: Path) -> Path:
@@ -60,7 +54,7 @@ async def _run_with_board(params, link_url: str, board_args: list[str], frames: 
 
 
 def test_board_drives_the_train_over_udp(params, tmp_path) -> None:
-    rig_port, board_port = free_port(), free_port()
+    rig_port, board_port = free_loopback_port(), free_loopback_port()
     url = f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}"
     args = [str(BOARD), str(signal_map_file(params, tmp_path)), "udp",
             f"127.0.0.1:{rig_port}", f"127.0.0.1:{board_port}", "2500"]
@@ -92,19 +86,38 @@ def test_board_over_a_pseudo_terminal_serial_line(params, tmp_path) -> None:
     assert framing.frames >= 400 and framing.crc_errors == 0
 
 
+#: the sender of _rig_receiving: binds a port of its own (0: the system's choice, held
+#: from then on), says it, waits for the rig's port, then sends each datagram of the file
+_SENDER = """
+import socket, sys, time
+s = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
+s.bind(("127.0.0.1", 0))
+print(s.getsockname()[1], flush=True)
+rig = int(sys.stdin.readline())
+for line in open(sys.argv[1]):
+    if line.strip():
+        s.sendto(bytes.fromhex(line.strip()), ("127.0.0.1", rig))
+        time.sleep(0.0002)
+"""
+
+
 async def _rig_receiving(params, datagrams: list[bytes], from_peer: bool) -> Rig:
-    rig_port, peer_port = free_port(), free_port()
-    link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{peer_port}")
-    await link.open()
-    rig = Rig(params, link, mode="realtime", clock=FakeClock())
+    # every port is bound by its holder before anyone is told it (a port found free and
+    # let go could be taken by another test process in between: a sender that failed to
+    # bind, and another's datagrams counted here, happened once on a fresh clone)
     with tempfile.NamedTemporaryFile("w", suffix=".txt", delete=False) as fh:
         fh.write("\n".join(d.hex() for d in datagrams))
-    sender_port = peer_port if from_peer else free_port()
-    script = ("import socket,sys,time;s=socket.socket(socket.AF_INET,socket.SOCK_DGRAM);"
-              f"s.bind(('127.0.0.1',{sender_port}));"
-              "[s.sendto(bytes.fromhex(l.strip()),('127.0.0.1',%d)) or time.sleep(0.0002) "
-              "for l in open(sys.argv[1]) if l.strip()]" % rig_port)
-    sender = await asyncio.create_subprocess_exec(sys.executable, "-c", script, fh.name)
+    sender = await asyncio.create_subprocess_exec(
+        sys.executable, "-c", _SENDER, fh.name, stdin=asyncio.subprocess.PIPE,
+        stdout=asyncio.subprocess.PIPE)
+    sender_port = int(await sender.stdout.readline())
+    peer_port = sender_port if from_peer else free_loopback_port()  # (nobody sends from the latter)
+    link = open_link(f"udp://127.0.0.1:0?peer=127.0.0.1:{peer_port}")
+    await link.open()
+    rig = Rig(params, link, mode="realtime", clock=FakeClock())
+    sender.stdin.write(f"{link.local_address[1]}\n".encode())
+    await sender.stdin.drain()
+    sender.stdin.close()
     stop = asyncio.Event()
 
     async def until_all_arrived():
@@ -187,7 +200,7 @@ async def _rig_with_a_board_that_dies(params, tmp_path, mode: str, answered: int
     for ``wall_s`` seconds of wall time. Returns the rig and the frame the board left at."""
     from emulator.rig.clock import MonotonicClock
 
-    rig_port, board_port = free_port(), free_port()
+    rig_port, board_port = free_loopback_port(), free_loopback_port()
     link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}")
     await link.open()
     # 5 ms periods: a busy 2-core machine keeps up, so only the board's death trips
