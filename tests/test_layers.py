@@ -32,8 +32,9 @@ MAY_IMPORT: dict[str, set[str]] = {
     "monitor": {"plant", "faults", "protocol", "tui"},
     "scenario": {"plant", "rig", "link", "protocol", "faults", "monitor", "profiles",
                  "recording", "controller"},
-    # many runs: the scenario room runs each; faults names what a sweep may set
-    "campaign": {"scenario", "profiles", "recording", "faults"},
+    # many runs: the scenario room runs each; faults names what a sweep may set; link
+    # the loopback ports of a run's own controller process
+    "campaign": {"scenario", "profiles", "recording", "faults", "link"},
     "bench": {"plant", "rig", "link", "protocol", "monitor", "profiles", "controller",
               "scenario", "recording"},
     "commands": {"plant", "rig", "link", "protocol", "faults", "monitor", "profiles",

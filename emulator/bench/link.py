@@ -22,7 +22,7 @@ import msgpack
 import numpy as np
 
 from emulator.link import open_link
-from emulator.link.udp import free_loopback_port
+from emulator.link.udp import free_loopback_ports
 from emulator.plant.params import TrainsetParams
 from emulator.rig.clock import MonotonicClock
 from emulator.rig.frame_loop import Rig
@@ -122,7 +122,7 @@ async def _rig_run(params: TrainsetParams, rig_port: int, echo_port: int, mode: 
 
 def link_benchmark(params: TrainsetParams, seconds: float = 10.0) -> dict[str, Any]:
     """Figures of the rig's pacing and link (see the module docstring)."""
-    rig_port, echo_port = free_loopback_port(), free_loopback_port()
+    rig_port, echo_port = free_loopback_ports(2)
     from emulator.protocol.signal_map import build_signal_map
 
     sm = build_signal_map(params)  # the echo answers duties 0.5, gates blocked, zeros

@@ -23,6 +23,8 @@ import time
 from pathlib import Path
 from typing import Any
 
+from emulator.link.udp import free_loopback_ports
+
 #: the verdicts a run can get
 PASS, FAIL, ERROR, TIMEOUT = "pass", "fail", "error", "timeout"
 #: lines of a controller process's output kept for the reason of an error
@@ -74,7 +76,7 @@ def _run(case: dict, where: Path, record: Path, timeout_s: float, out: dict) -> 
     proc = None
     log = where / "controller.log"
     if "{rig}" in url:
-        rig, bind = (f"127.0.0.1:{p}" for p in free_udp_ports(2))
+        rig, bind = (f"127.0.0.1:{p}" for p in free_loopback_ports(2))
         url = url.replace("{rig}", rig).replace("{bind}", bind)
     else:
         rig = bind = ""
@@ -183,15 +185,3 @@ def _tail(log: Path) -> str:
         return "(no output)"
     tail = "\n".join(lines[-LOG_TAIL:]) or "(no output)"
     return tail if len(tail) <= LOG_CHARS else "..." + tail[-LOG_CHARS:]
-
-
-def free_udp_ports(n: int) -> list[int]:
-    """n loopback UDP ports free now (bound to port 0 together, then released)."""
-    socks = [socket.socket(socket.AF_INET, socket.SOCK_DGRAM) for _ in range(n)]
-    try:
-        for s in socks:
-            s.bind(("127.0.0.1", 0))
-        return [s.getsockname()[1] for s in socks]
-    finally:
-        for s in socks:
-            s.close()

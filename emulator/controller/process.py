@@ -15,7 +15,7 @@ import sys
 import time
 
 from emulator.link import open_link
-from emulator.link.udp import free_loopback_port
+from emulator.link.udp import free_loopback_ports
 from emulator.protocol.signal_map import build_signal_map
 
 from .compiled_tcu import CompiledController
@@ -93,7 +93,7 @@ def spawn_controller(profile, idle_timeout_s: float = 5.0,
                      quiet: bool = False) -> tuple[str, subprocess.Popen]:
     """Start ``railrig controller`` in a process of its own on loopback UDP; returns the
     link URL the rig opens to reach it, and the process."""
-    rig_port, ctl_port = free_loopback_port(), free_loopback_port()
+    rig_port, ctl_port = free_loopback_ports(2)
     out = subprocess.DEVNULL if quiet else None
     child = subprocess.Popen(
         [sys.executable, "-m", "emulator.cli", "controller", "--profile", str(profile),

@@ -14,9 +14,22 @@ from .base import Link, LinkError, host_port
 def free_loopback_port() -> int:
     """A UDP port on 127.0.0.1 that nobody holds now (for a rig and a controller on one
     machine; another process may take it before it is bound again)."""
-    with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
+    return free_loopback_ports(1)[0]
+
+
+def free_loopback_ports(count: int) -> list[int]:
+    """``count`` different UDP ports on 127.0.0.1 that nobody holds now: all held at once
+    while they are chosen, so that two calls in a row cannot be given the same port (the
+    kernel may hand a port just let go out again). Another process may still take one
+    before it is bound again."""
+    held = [socket.socket(socket.AF_INET, socket.SOCK_DGRAM) for _ in range(count)]
+    try:
+        for s in held:
+            s.bind(("127.0.0.1", 0))
+        return [s.getsockname()[1] for s in held]
+    finally:
+        for s in held:
+            s.close()
 
 
 def _is_loopback(host: str) -> bool:

@@ -18,7 +18,7 @@ from pathlib import Path
 import msgpack
 
 from emulator.link.framing import encode_frame
-from emulator.link.udp import free_loopback_port
+from emulator.link.udp import free_loopback_ports
 from emulator.profiles.reader import load_trainset
 from emulator.protocol.header import PROTOCOL_VERSION
 from emulator.protocol.signal_map import build_signal_map
@@ -62,7 +62,7 @@ def _check(rig: subprocess.Popen, board: subprocess.CompletedProcess, report: Pa
 
 
 def test_example_drives_the_demo_trainset_over_udp(kit_dir, tmp_path) -> None:
-    rig_port, board_port = free_loopback_port(), free_loopback_port()
+    rig_port, board_port = free_loopback_ports(2)
     report = tmp_path / "report.json"
     rig = _serve(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}", report)
     board = subprocess.run(

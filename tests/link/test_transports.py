@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 
 from emulator.link import open_link
 from emulator.link.base import LinkError
-from emulator.link.udp import free_loopback_port
+from emulator.link.udp import free_loopback_port, free_loopback_ports
 from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.clock import FakeClock
 from emulator.rig.frame_loop import Rig
@@ -54,7 +54,7 @@ async def _run_with_board(params, link_url: str, board_args: list[str], frames: 
 
 
 def test_board_drives_the_train_over_udp(params, tmp_path) -> None:
-    rig_port, board_port = free_loopback_port(), free_loopback_port()
+    rig_port, board_port = free_loopback_ports(2)
     url = f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}"
     args = [str(BOARD), str(signal_map_file(params, tmp_path)), "udp",
             f"127.0.0.1:{rig_port}", f"127.0.0.1:{board_port}", "2500"]
@@ -200,7 +200,7 @@ async def _rig_with_a_board_that_dies(params, tmp_path, mode: str, answered: int
     for ``wall_s`` seconds of wall time. Returns the rig and the frame the board left at."""
     from emulator.rig.clock import MonotonicClock
 
-    rig_port, board_port = free_loopback_port(), free_loopback_port()
+    rig_port, board_port = free_loopback_ports(2)
     link = open_link(f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}")
     await link.open()
     # 5 ms periods: a busy 2-core machine keeps up, so only the board's death trips
