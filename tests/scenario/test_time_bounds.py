@@ -65,6 +65,12 @@ def _step_start_s(scenario: dict, name: str) -> float:
     raise KeyError(name)
 
 
+def _held_at_rest(v: float, a: float) -> float:
+    """A train at rest that its effort cannot move stays (the brakes of a standing train,
+    static friction): it does not roll back in these bounds."""
+    return 0.0 if v <= 0.0 and a < 0.0 else a
+
+
 class Specified:
     """The trainset's specified run: the effort curve at the rail (constant effort, then
     constant power, then above the natural-characteristic speed falling as 1/v^2) and the
@@ -94,25 +100,28 @@ class Specified:
         return math.copysign(a + b * abs(v) + c * v * v, v) if v != 0.0 else 0.0
 
     def time_to(self, v0_kmh: float, to_kmh: float, starts_s: float, effort: float,
-                share=lambda t, v: 1.0, braking: bool = False) -> float:
-        """When the train, at v0_kmh from 0 s, coasting until starts_s and then asked for
-        ``effort`` of the curve (ramped at full effort in RAMP_FULL_S), times
-        share(t, v), first passes to_kmh; s from 0."""
+                share=lambda t, v: 1.0, braking: bool = False,
+                slope=lambda x: 0.0) -> float:
+        """When the train, at v0_kmh from 0 s and 0 m, coasting until starts_s and then
+        asked for ``effort`` of the curve (ramped at full effort in RAMP_FULL_S), times
+        share(t, v), first passes to_kmh; s from 0. slope(x): the gradient (rising > 0)
+        and curve resistance at x m, per unit of the weight."""
         ramp_s = RAMP_FULL_S * effort
 
         def rhs(t, y):
-            v = y[0]
+            v, x = y
             f = 0.0
             if t >= starts_s:
                 f = (effort * min(1.0, (t - starts_s) / ramp_s) * self.curve(v, braking)
                      * share(t, v))
             f = -f if braking else f
-            return [(f - self.resistance(v)) / self.m_eff]
+            a = (f - self.resistance(v) - self.mass * G * slope(x)) / self.m_eff
+            return [_held_at_rest(v, a), v]
 
         def passes(t, y):
             return y[0] * 3.6 - to_kmh
         passes.terminal = True
-        out = solve_ivp(rhs, (0.0, 300.0), [v0_kmh / 3.6], events=passes, rtol=1e-9,
+        out = solve_ivp(rhs, (0.0, 300.0), [v0_kmh / 3.6, 0.0], events=passes, rtol=1e-9,
                         atol=1e-9, max_step=0.05)
         assert out.t_events[0].size == 1, "the specified run never gets there"
         return float(out.t_events[0][0])
@@ -264,7 +273,8 @@ def test_wet_gradient_start_bound_is_the_adhesion_a_control_should_use() -> None
         v = y[0]
         grip = ADHESION_USED * motored * _polach_peak(v, q, kalker, params)
         pull = min(grip, spec.curve(v, False)) * min(1.0, t / RAMP_FULL_S)
-        return [(pull - spec.mass * G * slope - spec.resistance(v)) / spec.m_eff]
+        return [_held_at_rest(v, (pull - spec.mass * G * slope - spec.resistance(v))
+                              / spec.m_eff)]
 
     def passes(t, y):
         return y[0] * 3.6 - check["rises_to"]
@@ -274,3 +284,96 @@ def test_wet_gradient_start_bound_is_the_adhesion_a_control_should_use() -> None
     bound = float(out.t_events[0][0])
     assert check["by_s"] == _tenths_below(bound), bound
     assert scenario["scenario"]["duration_s"] >= starts + check["by_s"]
+
+
+def _without_one_inverter(scenario: dict, at_s: float, inverters: int = 4):
+    """The share of a train that loses one of its inverters for good at at_s, the others
+    within the controller's accuracy."""
+    accuracy = _accuracy(BASE_KMH)
+    kept = (inverters - 1) / inverters
+    return lambda t, v: accuracy(t, v) * (1.0 if t < at_s else kept)
+
+
+#: the 25 kV Tern's scalar control falls short of the curve as its rotors warm in a run
+#: (92-93 % of it at 25-55 km/h in four-modes, measured 2026-12-05; 96 % held at 30 km/h
+#: with cold motors): these files still carry their older, fitted bounds
+SCALAR_SHORT = pytest.mark.xfail(strict=True, reason="the scalar control's torque falls "
+                                 "short as the rotor warms: the file keeps its fitted bound")
+
+
+@pytest.mark.parametrize(("stem", "check_name", "fault"), [
+    pytest.param("igbt-wont-turn-on", "the train keeps accelerating", "IGBT fault",
+                 marks=SCALAR_SHORT),
+    ("protections", "the other inverters carry the train", "transducer a"),
+])
+def test_a_lost_inverter_bound_is_the_train_on_the_other_three(stem, check_name,
+                                                               fault) -> None:
+    """"The train goes on with the healthy inverters": the bound is when the train gets
+    there with the faulted inverter lost for good at the fault and the other three
+    within the controller's accuracy."""
+    scenario, trainset = _scenario(stem)
+    spec = Specified(trainset)
+    accel = next(s for s in scenario["driver"]["step"] if s["mode"] == "accelerate")
+    check = _check(scenario, check_name)
+    (at_s,) = [f["at_s"] for f in scenario["fault"] if f.get("label") == fault]
+    bound = spec.time_to(scenario["scenario"].get("initial_speed_kmh", 0.0), check["rises_to"],
+                         _step_start_s(scenario, accel["name"]), accel["effort"],
+                         _without_one_inverter(scenario, at_s))
+    assert "after" not in check
+    assert check["by_s"] == _tenths_below(bound), bound
+
+
+@SCALAR_SHORT
+def test_four_modes_bound_is_the_curve_up_the_gradient() -> None:
+    """Full effort (the driver's default) up the 2 per mille and through the 800 m curve
+    (Roeckl's curve resistance, 650 / (R - 55) per mille: REFERENCES.md, from memory)."""
+    scenario, trainset = _scenario("four-modes")
+    spec = Specified(trainset)
+    track = scenario["track"]
+    grades = sorted((g["from_m"], g["permille"] / 1000) for g in track["gradient"])
+    curves = [(c["from_m"], c["to_m"], 0.650 / (c["radius_m"] - 55.0)) for c in track["curve"]]
+    assert all(c["radius_m"] >= 300 for c in track["curve"])  # (the formula's range)
+
+    def slope(x: float) -> float:
+        grade = next((g for start, g in reversed(grades) if x >= start), 0.0)
+        return grade + sum(w for a, b, w in curves if a <= x < b)
+
+    accel = next(s for s in scenario["driver"]["step"] if s["mode"] == "accelerate")
+    starts = _step_start_s(scenario, accel["name"])
+    check = _check(scenario, "reaches 60 km/h")
+    bound = spec.time_to(0.0, check["rises_to"], starts, accel.get("effort", 1.0),
+                         _accuracy(BASE_KMH), slope=slope)
+    assert check["after"] == accel["name"]
+    assert check["by_s"] == _tenths_below(bound - starts), bound - starts
+
+
+def catenary_dip_bound(scenario: dict, trainset: dict) -> float:
+    """When the train of the dip-and-interruption scenario (or a variant of it) passes its
+    "keeps accelerating" speed at the latest, s: the effort at 0.8 of the curve within the
+    controller's accuracy, less what the line takes away: during the dip the line
+    converters' power at their current limit scales with the voltage (the effort with
+    it), and from the interruption to a second after the return (the scenario's own
+    "power flows again within 1 s") no traction."""
+    spec = Specified(trainset)
+    faults = {f["label"]: f for f in scenario["fault"]}
+    dip, cut, back = faults["dip"], faults["interruption"], faults["return"]
+    accuracy = _accuracy(BASE_KMH)
+
+    def share(t: float, v: float) -> float:
+        if dip["at_s"] <= t < dip["until_s"]:
+            return accuracy(t, v) * dip["params"]["voltage_pu"]
+        if cut["at_s"] <= t < back["at_s"] + 1.0:
+            return 0.0
+        return accuracy(t, v)
+
+    accel = next(s for s in scenario["driver"]["step"] if s["mode"] == "accelerate")
+    check = _check(scenario, "the train keeps accelerating")
+    return spec.time_to(scenario["scenario"]["initial_speed_kmh"], check["rises_to"],
+                        _step_start_s(scenario, accel["name"]), accel["effort"], share)
+
+
+def test_catenary_dip_bound_allows_the_line_what_it_takes_away() -> None:
+    scenario, trainset = _scenario("catenary-dip-interruption")
+    bound = catenary_dip_bound(scenario, trainset)
+    assert "after" not in _check(scenario, "the train keeps accelerating")
+    assert _check(scenario, "the train keeps accelerating")["by_s"] == _tenths_below(bound), bound
