@@ -72,14 +72,23 @@ def _held_at_rest(v: float, a: float) -> float:
 
 
 class Specified:
-    """The trainset's specified run: the effort curve at the rail (constant effort, then
-    constant power, then above the natural-characteristic speed falling as 1/v^2) and the
-    Davis running resistance, on a lumped mass with its rotating allowance."""
+    """The trainset's specified run: the effort curve (constant effort, then constant
+    power, then above the natural-characteristic speed falling as 1/v^2: the motors'
+    torque through gear and wheel) and the Davis running resistance, on the train's mass
+    with its rotating allowance (the trailer wheelsets) and the motored drivetrains'
+    inertia referred to the rail, sum (J_wheelset + J_gear + J_rotor i^2) / r^2 (what the
+    motors' torque spends on turning them faster does not reach the rail)."""
 
     def __init__(self, trainset: dict) -> None:
-        train, ctl = trainset["train"], trainset["controller"]
+        train, ctl, dt = trainset["train"], trainset["controller"], trainset["drivetrain"]
+        machine_file = PROFILES / "trainsets" / trainset["trainset"]["machine_profile"]
+        j_rotor = _toml(machine_file.resolve())["machine"]["rotor_inertia_kgm2"]
+        j_axle = (dt["wheelset_inertia_kgm2"] + dt["gear_inertia_kgm2"]
+                  + j_rotor * dt["gear_ratio"] ** 2)
+        radii = [d / 2 for c in trainset["converter"] for d in c["wheel_diameters_m"]]
         self.mass = train["mass_kg"]
-        self.m_eff = self.mass * (1.0 + train["rotating_mass_allowance"])
+        self.m_eff = (self.mass * (1.0 + train["rotating_mass_allowance"])
+                      + sum(j_axle / r ** 2 for r in radii))
         self.davis = (train["running_resistance_a_n"], train["running_resistance_b_n_per_mps"],
                       train["running_resistance_c_n_per_mps2"])
         self.traction = (ctl["max_tractive_effort_kn"] * 1e3, ctl["max_tractive_power_kw"] * 1e3)
@@ -219,22 +228,18 @@ def test_regeneration_bound_is_the_braking_curve() -> None:
 #: control is expected to use (common practice, no source: modern controls are reported
 #: at about 90 % and more, from memory)
 ADHESION_USED = 0.90
-#: the contact law's creep reference near standstill (emulator/plant/drivetrain.py: the
-#: creep is w / sqrt(v^2 + v_ref^2)), m/s
-CREEP_V_REF = 0.1
-
-
-def _polach_peak(v: float, q: float, kalker: float, params: tuple) -> float:
+def _polach_peak(v: float, q: float, kalker: float, params: tuple, v_ref: float) -> float:
     """The peak over the slip velocity of Polach's creep force on an axle (Wear 258,
     2005, as REFERENCES.md gives it, evaluated here by hand: see
-    tests/plant/test_adhesion.py), at train speed v; N."""
+    tests/plant/test_adhesion.py), at train speed v; N. The creep near standstill is
+    w / sqrt(v^2 + v_ref^2), as the profile's creep reference speed makes it."""
     from scipy.optimize import minimize_scalar
 
     k_a, k_s, mu0, a, b = params
 
     def minus_force(w: float) -> float:
         mu = mu0 * ((1 - a) * math.exp(-b * w) + a)
-        eps = math.pi * kalker / 4 / (q * mu) * w / math.hypot(v, CREEP_V_REF)
+        eps = math.pi * kalker / 4 / (q * mu) * w / math.hypot(v, v_ref)
         return -2 * q * mu / math.pi * (k_a * eps / (1 + (k_a * eps) ** 2)
                                         + math.atan(k_s * eps))
 
@@ -260,18 +265,19 @@ def test_wet_gradient_start_bound_is_the_adhesion_a_control_should_use() -> None
     motored = 8
     q = spec.mass * G / train["axle_count"]
     kalker = drivetrain["kalker_coefficient_n"]
+    v_ref = drivetrain["creep_reference_speed_mps"]
     slope = grade["permille"] / 1000
     accel = next(s for s in scenario["driver"]["step"] if s["mode"] == "accelerate")
     starts = _step_start_s(scenario, accel["name"])
     check = _check(scenario, "gets away")
     assert check["after"] == accel["name"]
     # the specified curve asks for more than the rail gives: adhesion-limited throughout
-    assert spec.curve(check["rises_to"] / 3.6, False) > motored * _polach_peak(0.0, q, kalker,
-                                                                               params)
+    peak_at_rest = _polach_peak(0.0, q, kalker, params, v_ref)
+    assert spec.curve(check["rises_to"] / 3.6, False) > motored * peak_at_rest
 
     def rhs(t, y):
         v = y[0]
-        grip = ADHESION_USED * motored * _polach_peak(v, q, kalker, params)
+        grip = ADHESION_USED * motored * _polach_peak(v, q, kalker, params, v_ref)
         pull = min(grip, spec.curve(v, False)) * min(1.0, t / RAMP_FULL_S)
         return [_held_at_rest(v, (pull - spec.mass * G * slope - spec.resistance(v))
                               / spec.m_eff)]
@@ -294,16 +300,8 @@ def _without_one_inverter(scenario: dict, at_s: float, inverters: int = 4):
     return lambda t, v: accuracy(t, v) * (1.0 if t < at_s else kept)
 
 
-#: the 25 kV Tern's scalar control falls short of the curve as its rotors warm in a run
-#: (92-93 % of it at 25-55 km/h in four-modes, measured 2026-12-05; 96 % held at 30 km/h
-#: with cold motors): these files still carry their older, fitted bounds
-SCALAR_SHORT = pytest.mark.xfail(strict=True, reason="the scalar control's torque falls "
-                                 "short as the rotor warms: the file keeps its fitted bound")
-
-
 @pytest.mark.parametrize(("stem", "check_name", "fault"), [
-    pytest.param("igbt-wont-turn-on", "the train keeps accelerating", "IGBT fault",
-                 marks=SCALAR_SHORT),
+    ("igbt-wont-turn-on", "the train keeps accelerating", "IGBT fault"),
     ("protections", "the other inverters carry the train", "transducer a"),
 ])
 def test_a_lost_inverter_bound_is_the_train_on_the_other_three(stem, check_name,
@@ -323,7 +321,6 @@ def test_a_lost_inverter_bound_is_the_train_on_the_other_three(stem, check_name,
     assert check["by_s"] == _tenths_below(bound), bound
 
 
-@SCALAR_SHORT
 def test_four_modes_bound_is_the_curve_up_the_gradient() -> None:
     """Full effort (the driver's default) up the 2 per mille and through the 800 m curve
     (Roeckl's curve resistance, 650 / (R - 55) per mille: REFERENCES.md, from memory)."""
