@@ -17,6 +17,14 @@ curve. The slip is limited to 0.9 of the breakdown slip of the circuit at that v
 (Kloss: T / T_k = 2 / (s / s_k + s_k / s), 99 % of the breakdown torque there) and by the
 inverter current limit. L_m is the secant of the magnetising curve at the flux.
 
+The slip for a torque assumes the model's rotor resistance and the planned flux; a rotor
+warmer than the model (R_r up by 0.393 % a kelvin) or a flux a little under the plan
+leaves the torque short by as much. From a fifth of the rated frequency up, where the
+air-gap power of the held voltage and the measured current is a sound torque estimate
+(Bose 2002, slip compensation), an integral trim on the slip brings the air-gap torque
+to the torque asked for (``scalar_kernel.slip_trim``; not at the torque limit, whose
+slip is the breakdown's share).
+
 Slip regulation is angle-based: the stator angle is the counted rotor angle (times p)
 plus the integrated slip, so the slip is what the torque needs whatever the lag and
 quantisation of the speed reading. The inverter's dead time is compensated by the sign of
@@ -57,6 +65,12 @@ FLUX_TRIM_S = 0.2  # time constant of the voltage trim that holds the flux on th
 FLUX_TRIM_RANGE = 0.15  # the most the trim may change the voltage, of the circuit's
 TRIM_UP_TO = 0.5  # of the rated frequency
 LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple
+SLIP_TRIM_S = 0.5  # the slip trim's integral time (temperature moves over minutes)
+#: the trim learns while the torque asked moves less than this share of rated a period
+#: (the jerk limit's ramp moves it 0.1 %: full effort in 1.5 s)
+SLIP_TRIM_STEADY = 0.002
+SLIP_TRIM_FROM = 0.2  # of the rated frequency: the air-gap power is trusted from here up
+SLIP_TRIM_LOW, SLIP_TRIM_HIGH = 0.3, 0.8  # its range: rotor from about -60 to 220 degC
 
 
 class ScalarControl:
@@ -90,6 +104,10 @@ class ScalarControl:
         k[sk.K_BREAKDOWN_EVERY], k[sk.K_FLUX_TRIM_S] = BREAKDOWN_EVERY, FLUX_TRIM_S
         k[sk.K_FLUX_TRIM_RANGE], k[sk.K_TRIM_UP_TO] = FLUX_TRIM_RANGE, TRIM_UP_TO
         k[sk.K_LINK_FILTER_S] = LINK_FILTER_S
+        k[sk.K_RATED_TORQUE], k[sk.K_SLIP_TRIM_S] = cfg.rated_torque_nm, SLIP_TRIM_S
+        k[sk.K_SLIP_TRIM_FROM] = SLIP_TRIM_FROM
+        k[sk.K_SLIP_TRIM_LOW], k[sk.K_SLIP_TRIM_HIGH] = SLIP_TRIM_LOW, SLIP_TRIM_HIGH
+        k[sk.K_SLIP_TRIM_STEADY] = SLIP_TRIM_STEADY
         self.consts = k  # the compiled step's constants (scalar_kernel.K_*)
         # the control's state (scalar_kernel.S_*), read by name through the properties
         # below: angles, stator frequency, main flux, slip, trim, the link's mean, the
@@ -111,6 +129,7 @@ class ScalarControl:
     u_d_mean = slot(sk.S_U_D_MEAN, "the link's mean the plan uses, V")
     torque_estimate = slot(sk.S_TORQUE_ESTIMATE, "torque per motor estimated, N m")
     torque_limit = slot(sk.S_TORQUE_LIMIT, "the most torque per motor there is now, N m")
+    slip_trim = slot(sk.S_SLIP_TRIM, "the slip's trim from the air-gap torque (0: none)")
 
     @property
     def u_vec(self) -> complex:
@@ -201,6 +220,11 @@ class ScalarControl:
         self.u_vec = cmath.rect(u, self.theta + 2 * math.pi * f_s * 1.5 * self.T)
         self._push_history()
         return duties(self.u_vec, u_d), f_s
+
+    def forget_torque_asked(self) -> None:
+        """The command just planned is no measure for the slip trim (its voltage was
+        scaled after the plan: the flux ramp after the gates are released)."""
+        self.state[sk.S_H1_T] = 0.0
 
     def slip_for_torque(self, torque_per_motor: float, f_s_estimate: float) -> float:
         """Slip frequency for a torque in classic V/f, Hz (linear region, 1/f flux above

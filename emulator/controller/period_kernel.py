@@ -53,6 +53,7 @@ from .period_parts import (
     K_BUFFER_TORQUE,
     K_DRIVE_EFFICIENCY,
     K_FEEDFORWARD_EFFICIENCY,
+    K_FLUX_DECAY_S,
     K_FLUX_HOLD_S,
     K_FLUX_RAMP_S,
     K_GEAR,
@@ -386,14 +387,20 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                                       curve_psi, torque, motor_speed, u_d, ia, ib, ic, True,
                                       angle, True)
                 ramp = min(row[I_ENABLED_FOR] / k[K_FLUX_RAMP_S], 1.0)
+                if ramp < 1.0 or row[I_FACTOR] < 1.0:  # (tcu.py)
+                    sc_state[kk, sk.S_H1_T] = 0.0
                 limit = sc_state[kk, sk.S_TORQUE_LIMIT]
             out[xi[kk, XI_DUTY_A]] = 0.5 + ramp * (d[0] - 0.5)
             out[xi[kk, XI_DUTY_B]] = 0.5 + ramp * (d[1] - 0.5)
             out[xi[kk, XI_DUTY_C]] = 0.5 + ramp * (d[2] - 0.5)
-            given = math.copysign(min(abs(torque), limit), torque)
+            given = math.copysign(min(abs(torque), limit), torque) * (ramp * ramp)  # (tcu.py)
             p_links[link] += given * motor_speed * n_m
             achieved += estimate * n_m
         else:
+            if (k[K_VECTOR] <= 0.0 and row[I_ENABLED_FOR] > 0.0 and not demanded
+                    and abs(v) > k[K_MAGNETISED_MPS]):
+                # V/f: released at speed, wait for the rotor's flux to die away (tcu.py)
+                row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_FLUX_DECAY_S])
             row[I_ENABLED_FOR] = 0.0
             row[I_RELEASED] = 0.0 if demanded else 1.0
             if k[K_VECTOR] > 0.0:

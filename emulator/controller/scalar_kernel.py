@@ -28,16 +28,19 @@ compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
 # the state: angles, frequency, flux, slip, trim, the last current, the link's mean, the
 # voltage sent, the estimates, the breakdown search, and what the last two commands
-# carried (H0: the period just measured, H1: the one after it)
+# carried (H0: the period just measured, H1: the one after it); the slip trim, and the
+# torque the last two commands asked for
 (S_THETA, S_THETA_SLIP, S_F_S, S_PSI_M, S_W_SLIP, S_U_TRIM, S_I_PREV_RE, S_I_PREV_IM,
  S_HAS_I_PREV, S_U_D_MEAN, S_U_VEC_RE, S_U_VEC_IM, S_TORQUE_ESTIMATE, S_TORQUE_LIMIT,
  S_BREAKDOWN_0, S_BREAKDOWN_1, S_BREAKDOWN_AGE_0, S_BREAKDOWN_AGE_1, S_BREAKDOWN_KEY,
  S_H0_U_RE, S_H0_U_IM, S_H0_F, S_H0_SLIP, S_H0_PSI, S_H1_U_RE, S_H1_U_IM, S_H1_F,
- S_H1_SLIP, S_H1_PSI, N_STATE) = range(30)
+ S_H1_SLIP, S_H1_PSI, S_SLIP_TRIM, S_H0_T, S_H1_T, S_T_PREV, N_STATE) = range(34)
 # the constants besides the circuit's (slip_circuit.CIRCUIT_*)
 (K_T, K_N_MOTORS, K_I_MAX, K_SIGN_BAND, K_RATED_HZ, K_LINK_NOMINAL, K_DEAD_TIME, K_FSW,
  K_VOLTAGE_MARGIN, K_SLIP_LIMIT_SHARE, K_BISECTIONS, K_BREAKDOWN_EVERY, K_FLUX_TRIM_S,
- K_FLUX_TRIM_RANGE, K_TRIM_UP_TO, K_LINK_FILTER_S, N_CONSTS) = range(17)
+ K_FLUX_TRIM_RANGE, K_TRIM_UP_TO, K_LINK_FILTER_S, K_RATED_TORQUE, K_SLIP_TRIM_S,
+ K_SLIP_TRIM_FROM, K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH, K_SLIP_TRIM_STEADY,
+ N_CONSTS) = range(23)
 
 TWO_PI = 2 * math.pi
 
@@ -70,6 +73,7 @@ def estimated_torque(s, k, c, curve_i, curve_psi, ia, ib, ic):
     mean = 0.5 * (i + i_prev) * (math.tan(x) / x if abs(x) > 1e-6 else 1.0)
     p_air = 1.5 * ((u_held * mean.conjugate()).real - c[sc.CIRCUIT_RS] * abs(mean) ** 2)
     t_now = c[sc.CIRCUIT_P] * p_air / w_s
+    slip_trim(s, k, t_now, f_held)
     weight = low_frequency_weight(k, f_held)
     if weight > 0.0:
         y, t_per_psi2 = sc.branches(c, slip_held, secant_lm(psi_held, curve_i, curve_psi))
@@ -77,6 +81,26 @@ def estimated_torque(s, k, c, curve_i, curve_psi, ia, ib, ic):
         t_now = weight * t_per_psi2 * psi * psi + (1.0 - weight) * t_now
     s[S_TORQUE_ESTIMATE] += (t_now - s[S_TORQUE_ESTIMATE]) * min(T / 0.01, 1.0)
     return s[S_TORQUE_ESTIMATE]
+
+
+@compiled
+def slip_trim(s, k, t_airgap, f_held):
+    """Trim the slip by the air-gap torque (N m a motor) the period just measured gave
+    against the torque its command asked for (S_H0_T; 0 where it was at the limit):
+    integral action, T / K_SLIP_TRIM_S a period, on the relative error, within
+    [-K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH]. The circuit's slip for a torque assumes the
+    rotor resistance and flux of the model; the torque at a slip goes as 1 / R_r (small
+    slip), so a rotor warmer than the model, or a flux a little under the plan, leaves
+    the torque short by as much (R(T) = R_20 (1 + 0.00393 (T - 20 degC)), REFERENCES.md:
+    x 0.76 at -40 degC, x 1.71 at 200 degC). Only from K_SLIP_TRIM_FROM of the rated
+    frequency up, where the air-gap power is not swamped by the stator's drop, and above a
+    fifth of the rated torque."""
+    asked = s[S_H0_T]
+    if (abs(f_held) < k[K_SLIP_TRIM_FROM] * k[K_RATED_HZ]
+            or abs(asked) < 0.2 * k[K_RATED_TORQUE]):
+        return
+    trim = s[S_SLIP_TRIM] - k[K_T] / k[K_SLIP_TRIM_S] * (t_airgap / asked - 1.0)
+    s[S_SLIP_TRIM] = min(max(trim, -k[K_SLIP_TRIM_LOW]), k[K_SLIP_TRIM_HIGH])
 
 
 @compiled
@@ -149,9 +173,19 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     hold = math.sin(x) / x if x > 1e-6 else 1.0
     u_room = hold * min(k[K_VOLTAGE_MARGIN] * min(s[S_U_D_MEAN], k[K_LINK_NOMINAL]),
                         u_d) / math.sqrt(3)
-    s[S_W_SLIP] = slip_for(s, k, c, secant_lm(s[S_PSI_M], curve_i, curve_psi), torque, w_r,
-                           u_room)
-    w_slip = s[S_W_SLIP]
+    w_slip = slip_for(s, k, c, secant_lm(s[S_PSI_M], curve_i, curve_psi), torque, w_r,
+                      u_room)
+    # the torque this command asks for, for the slip trim to learn from: none at the
+    # limit, nor while the torque asked moves faster than the jerk limit moves it (the
+    # adhesion control's cuts, whose transients are no measure of the slip's error)
+    given = 0.0
+    if abs(torque) < s[S_TORQUE_LIMIT]:
+        cap = k[K_SLIP_LIMIT_SHARE] * s[S_BREAKDOWN_0 + int(s[S_BREAKDOWN_KEY])]
+        w_slip = math.copysign(min(abs(w_slip * (1.0 + s[S_SLIP_TRIM])), abs(cap)), w_slip)
+        if abs(torque - s[S_T_PREV]) < k[K_SLIP_TRIM_STEADY] * k[K_RATED_TORQUE]:
+            given = torque
+    s[S_T_PREV] = torque
+    s[S_W_SLIP] = w_slip
     _, _, psi, u_s = sc.operating_point(c, w_slip, w_r, u_room,
                                         secant_lm(s[S_PSI_M], curve_i, curve_psi))
     f_s = f_rotor + w_slip / TWO_PI
@@ -176,8 +210,9 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     s[S_U_VEC_RE], s[S_U_VEC_IM] = u_vec.real, u_vec.imag
     for j in range(5):  # the history moves on: H0 <- H1 <- this command
         s[S_H0_U_RE + j] = s[S_H1_U_RE + j]
+    s[S_H0_T] = s[S_H1_T]
     s[S_H1_U_RE], s[S_H1_U_IM] = u_vec.real, u_vec.imag
-    s[S_H1_F], s[S_H1_SLIP], s[S_H1_PSI] = f_s, w_slip, psi
+    s[S_H1_F], s[S_H1_SLIP], s[S_H1_PSI], s[S_H1_T] = f_s, w_slip, psi, given
     # the current turned on to the middle of the acting period
     current = clarke(ia, ib, ic) * cmath.exp(1j * TWO_PI * f_s * 1.5 * T)
     d = leg_duties(u_vec, u_d, current, has_currents and k[K_DEAD_TIME] > 0.0,

@@ -395,17 +395,33 @@ class ReferenceController:
                                                     phase_currents=(ia, ib, ic),
                                                     rotor_angle_rad=angle)
                     ramp = min(self.enabled_for[k] / FLUX_RAMP_S, 1.0)
+                    # a command under the flux ramp, or cut by the adhesion control (the
+                    # wheelset's swings are in its torque), teaches the slip trim nothing
+                    if ramp < 1.0 or factors[k] < 1.0:
+                        self.scalar[k].forget_torque_asked()
                 for i, d in zip(duty_ix, duties, strict=True):
                     out[i] = 0.5 + ramp * (d - 0.5)
                 # the line converter's feed-forward: the torque the motor control can
                 # give now (its limit from the current and the voltage), not the demand; a
                 # drive at its voltage limit in braking returns less than asked, and a
                 # line converter that takes the demand's power empties the link
+                # (a V/f drive's voltage ramp builds its flux: its torque grows about as
+                # the ramp squared, and a link fed for the whole torque at a restart at
+                # speed rose past its overvoltage trip within milliseconds)
                 ctl_k = self.vector[k] if self.vector is not None else self.scalar[k]
-                given = math.copysign(min(abs(torque), ctl_k.torque_limit), torque)
+                given = math.copysign(min(abs(torque), ctl_k.torque_limit), torque) * (
+                    ramp * ramp)
                 p_links[link] += given * motor_speed * n_mot
                 achieved += estimate * n_mot
             else:
+                if (self.vector is None and self.enabled_for[k] > 0.0 and not demanded
+                        and abs(v) > MAGNETISED_ABOVE_MPS):
+                    # V/f drives released at speed wait for the rotor's flux to die away:
+                    # it turns with the rotor, and a voltage that does not know its phase
+                    # meets it as an out-of-phase source (a restart 0.4 s after the
+                    # release at 30 km/h drew 1.2 kA and braked the train)
+                    guards.block_until[k] = max(guards.block_until[k],
+                                                self.t + self.flux_decay_s)
                 self.enabled_for[k] = 0.0
                 self.released[k] = not demanded
                 if self.vector is not None:

@@ -37,8 +37,11 @@ WINDOW = 50  # frames at the end over which the torque and the voltage are taken
 
 
 def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float,
-              step_at: int = 3000, frames: int = 3400, before_nm: float = 0.0) -> dict:
-    """A torque step (before_nm to torque_nm at frame step_at) at a held speed."""
+              step_at: int = 3000, frames: int = 3400, before_nm: float = 0.0,
+              rotor_degc: float | None = None, tune=None) -> dict:
+    """A torque step (before_nm to torque_nm at frame step_at) at a held speed; with
+    rotor_degc, the rotor cage held at that temperature (the stator's sensor does not see
+    it); tune(ctl) may change the motor control before the run."""
     cfg = config_from_profile(trainset)
     params = load_trainset(trainset)
     u_dc = cfg.link_nominal_v
@@ -52,6 +55,8 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
     # which has its own tests (tests/plant/test_protection.py)
     plant.ipar[:, L.IP_HW_ON] = 0.0
     ctl = VectorControl(cfg, 1) if control == "vector" else ScalarControl(cfg, 1)
+    if tune is not None:
+        tune(ctl)
     encoder = EncoderSpeed(cfg.encoder_lines, frame_s)
     edges_per_rad = 4 * cfg.encoder_lines / (2 * math.pi)
     acting = (0.5, 0.5, 0.5)  # the duties held in the frame now: computed a frame ago
@@ -69,6 +74,8 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
             computed, _ = ctl.step(t_ref, speed, u_dc, phase_currents=currents,
                                    rotor_angle_rad=encoder.angle)
         cmd = Commands(np.array([acting]), np.array([True]))
+        if rotor_degc is not None:
+            plant.ms[0, L.MS_T_ROTOR] = rotor_degc + 273.15
         frame_torque = []
         for _ in range(SUBSTEPS):
             plant.advance(cmd, frame_s / SUBSTEPS)

@@ -167,7 +167,8 @@ def test_random_drive_gives_the_same_commands(layout: str, control: str) -> None
     twin.assert_identical(at_least=10000)
     plain = twin.plain
     # the run went where it was meant to: motors driven, trips and faults on the way
-    assert states["active"] > 500, states
+    # (V/f drives released at speed wait out their rotor's flux before they start again)
+    assert states["active"] > 400, states
     assert {11, 30, 41, 50, 80} <= set(plain.events), plain.events
     assert any(math.isinf(b) for b in plain.guards.block_until)  # an inverter isolated
     if cfg.line_side:

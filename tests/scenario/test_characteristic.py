@@ -54,9 +54,13 @@ def test_vector_control_meets_the_curve_as_a_user_measures_it(tmp_path) -> None:
 @pytest.mark.parametrize(("trainset", "control"), [
     ("tern-25kv", "scalar"), ("tern-25kv", "vector"), ("tern-15kv", "scalar")])
 def test_each_trainset_and_control_meets_the_curve(trainset: str, control: str) -> None:
-    # constant effort, constant power and the natural characteristic (above 130 km/h)
+    # constant effort, constant power and the natural characteristic (above 130 km/h);
+    # 30 km/h after 20: the drives, released while the speed moves on, start again on
+    # motors whose rotor flux has not died away (the V/f drives drew 1.2 kA there and
+    # tripped, and fell 5.7 % short of the curve at 30 km/h)
     points = asyncio.run(measure(PROFILES_DIR / "trainsets" / f"{trainset}.toml",
-                                 [20.0, 70.0, 120.0, 160.0], [1.0, -1.0], control=control))
+                                 [20.0, 30.0, 70.0, 120.0, 160.0], [1.0, -1.0],
+                                 control=control))
     _check([dict(p.__dict__, share_of_limit=p.share_of_limit) for p in points])
 
 
