@@ -8,9 +8,14 @@ of the trainset that would move the bound.
 
 The allowances, all outside the code under test:
 
-- the effort reaches its demand at the rate of full effort in 1.5 s (the comfort jerk
-  of about 0.6 m/s^3 on the Tern, within the 1.0-1.5 m/s^3 of passenger comfort:
-  ../shared REFERENCES, from memory): a ramp, not a step;
+- the effort reaches its demand at the rate of full effort in 1.5 s: a ramp, not a step.
+  This is the reference controller's own jerk limit (about 0.6 m/s^3 on the Tern, below
+  the 1.0-1.5 m/s^3 passengers accept: REFERENCES.md, from memory), so a controller
+  whose ramp is gentler still needs about half its extra ramp time more than a bound
+  gives (common practice, no source for a slowest acceptable ramp);
+- a train held by the scenario driver's holding brake (a "hold" step) is let go as its
+  brake cylinders let go (the profile's time constant), and on a gradient only once
+  the effort reaches 1.1 times the gradient's pull (the driver's hill-start aid);
 - the reference controller's effort at the rail within 5 % of the curve below base speed
   and 10 % above it (the controller issue's target, measured by
   tests/scenario/test_characteristic.py): a bound takes the low end;
@@ -67,8 +72,15 @@ def _step_start_s(scenario: dict, name: str) -> float:
 
 def _held_at_rest(v: float, a: float) -> float:
     """A train at rest that its effort cannot move stays (the brakes of a standing train,
-    static friction): it does not roll back in these bounds."""
-    return 0.0 if v <= 0.0 and a < 0.0 else a
+    static friction): it does not roll back in these bounds (nor brake below rest)."""
+    return max(a, 0.0) if v <= 0.0 else a
+
+
+def _held(scenario: dict, name: str) -> bool:
+    """Whether the driver's step before ``name`` holds the train on its brake."""
+    steps = scenario["driver"]["step"]
+    i = next(j for j, step in enumerate(steps) if step["name"] == name)
+    return i > 0 and steps[i - 1]["mode"] == "hold"
 
 
 class Specified:
@@ -94,6 +106,21 @@ class Specified:
         self.traction = (ctl["max_tractive_effort_kn"] * 1e3, ctl["max_tractive_power_kw"] * 1e3)
         self.braking = (ctl["max_braking_effort_kn"] * 1e3, ctl["max_braking_power_kw"] * 1e3)
         self.v_natural = ctl["natural_characteristic_from_kmh"] / 3.6
+        # the scenario driver's holding brake in a "hold" step (emulator/scenario/
+        # driver.py: half the mass's weight in newtons over g, at most 300 kN: the test
+        # rig's own driver, not the controller) and the brake cylinders' lag, with which
+        # it lets go when the step ends
+        self.hold_brake_n = min(self.mass * (1.0 + train["rotating_mass_allowance"]) * 0.5,
+                                3e5)
+        self.brake_tau_s = train["brake_cylinder_time_constant_s"]
+
+    def holding_brake(self, t: float, released_s: float | None) -> float:
+        """The holding brake's force at t (N), let go at released_s (None: never held)."""
+        if released_s is None:
+            return 0.0
+        if t < released_s:
+            return self.hold_brake_n
+        return self.hold_brake_n * math.exp(-(t - released_s) / self.brake_tau_s)
 
     def curve(self, v: float, braking: bool) -> float:
         """The specified effort at speed v (m/s), N."""
@@ -110,11 +137,13 @@ class Specified:
 
     def time_to(self, v0_kmh: float, to_kmh: float, starts_s: float, effort: float,
                 share=lambda t, v: 1.0, braking: bool = False,
-                slope=lambda x: 0.0) -> float:
-        """When the train, at v0_kmh from 0 s and 0 m, coasting until starts_s and then
-        asked for ``effort`` of the curve (ramped at full effort in RAMP_FULL_S), times
-        share(t, v), first passes to_kmh; s from 0. slope(x): the gradient (rising > 0)
-        and curve resistance at x m, per unit of the weight."""
+                slope=lambda x: 0.0, held: bool = False) -> float:
+        """When the train, at v0_kmh from 0 s and 0 m, coasting until starts_s (held by
+        the driver's holding brake until then, with ``held``) and then asked for
+        ``effort`` of the curve (ramped at full effort in RAMP_FULL_S), times share(t, v),
+        first passes to_kmh; s from 0. slope(x): the gradient (rising > 0) and curve
+        resistance at x m, per unit of the weight."""
+        released = starts_s if held else None
         ramp_s = RAMP_FULL_S * effort
 
         def rhs(t, y):
@@ -124,6 +153,7 @@ class Specified:
                 f = (effort * min(1.0, (t - starts_s) / ramp_s) * self.curve(v, braking)
                      * share(t, v))
             f = -f if braking else f
+            f -= self.holding_brake(t, released)  # (these runs go forwards only)
             a = (f - self.resistance(v) - self.mass * G * slope(x)) / self.m_eff
             return [_held_at_rest(v, a), v]
 
@@ -136,8 +166,14 @@ class Specified:
         return float(out.t_events[0][0])
 
 
+def _tenths_above(t: float) -> float:
+    """A bound "by then at the latest" as a file gives it: to a tenth of a second,
+    rounded up (so that a controller at the low end of its accuracy passes)."""
+    return math.ceil(t * 10 - 1e-9) / 10
+
+
 def _tenths_below(t: float) -> float:
-    """A bound as a file gives it: to a tenth of a second, rounded the strict way."""
+    """A bound a failure must not meet, as a file gives it: rounded down."""
     return math.floor(t * 10) / 10
 
 
@@ -171,7 +207,7 @@ def test_rotor_detuning_bound_is_the_detuned_drives_least_torque() -> None:
                          _step_start_s(scenario, accel["name"]), accel["effort"],
                          lambda t, v: share * _accuracy(BASE_KMH)(t, v))
     assert "after" not in check
-    assert check["by_s"] == _tenths_below(bound), bound
+    assert check["by_s"] == _tenths_above(bound), bound
     # and the bound is worth having: a train that lost the two hot motors' torque
     # altogether takes longer
     lost = spec.time_to(scenario["scenario"]["initial_speed_kmh"], check["rises_to"],
@@ -193,11 +229,14 @@ def test_speed_sensor_loss_bound_is_the_train_without_the_inverter() -> None:
     starts = _step_start_s(scenario, accel["name"])
     axles = {c["name"]: len(c["wheel_diameters_m"]) for c in trainset["converter"]}
     kept_share = 1.0 - axles[loss["target"].split(".")[0]] / sum(axles.values())
-    cut = spec.time_to(0.0, check["rises_to"], starts, accel["effort"],
-                       lambda t, v: (2 - BELOW_BASE) * (1.0 if t < loss["at_s"]
-                                                        else kept_share))
+    held = _held(scenario, accel["name"])
+    def cut_share(t: float, v: float) -> float:
+        return (2 - BELOW_BASE) * (1.0 if t < loss["at_s"] else kept_share)
+
+    cut = spec.time_to(0.0, check["rises_to"], starts, accel["effort"], cut_share,
+                       held=held)
     kept = spec.time_to(0.0, check["rises_to"], starts, accel["effort"],
-                        _accuracy(BASE_KMH))
+                        _accuracy(BASE_KMH), held=held)
     assert "after" not in check
     assert check["by_s"] == _tenths_below(cut), cut
     assert kept < check["by_s"] - 0.5  # room for the second or so the fault's handover takes
@@ -214,7 +253,7 @@ def test_regeneration_bound_is_the_braking_curve() -> None:
     bound = spec.time_to(scenario["scenario"]["initial_speed_kmh"], check["falls_to"],
                          starts, brake["effort"], _accuracy(BASE_KMH), braking=True)
     assert check["after"] == brake["name"]
-    assert check["by_s"] == _tenths_below(bound - starts), bound - starts
+    assert check["by_s"] == _tenths_above(bound - starts), bound - starts
     # the sinks can take the curve's power at the top speed of the check: the two
     # brake resistors at the link's nominal voltage and what the line takes up to U_max1
     links = trainset["dc_link"]
@@ -279,10 +318,19 @@ def test_wet_gradient_start_bound_is_the_adhesion_a_control_should_use() -> None
     peak_at_rest = _polach_peak(0.0, q, kalker, params, v_ref)
     assert spec.curve(check["rises_to"] / 3.6, False) > motored * peak_at_rest
 
+    # the driver's hill-start aid keeps the holding brake on until the effort reaches 1.1
+    # times the gradient's pull (emulator/scenario/driver.py), then lets it go
+    assert _held(scenario, accel["name"])
+    at_rest = min(ADHESION_USED * motored * peak_at_rest, spec.curve(0.0, False))
+    hill = 1.1 * spec.mass * (1.0 + train["rotating_mass_allowance"]) * G * slope
+    assert hill < at_rest
+    released = RAMP_FULL_S * hill / at_rest
+
     def rhs(t, y):
         v = y[0]
         grip = ADHESION_USED * motored * _polach_peak(v, q, kalker, params, v_ref)
         pull = min(grip, spec.curve(v, False)) * min(1.0, t / RAMP_FULL_S)
+        pull -= spec.holding_brake(t, released)  # (forwards only)
         return [_held_at_rest(v, (pull - spec.mass * G * slope - spec.resistance(v))
                               / spec.m_eff)]
 
@@ -292,7 +340,7 @@ def test_wet_gradient_start_bound_is_the_adhesion_a_control_should_use() -> None
     out = solve_ivp(rhs, (0.0, 300.0), [0.0], events=passes, rtol=1e-8, atol=1e-8,
                     max_step=0.1)
     bound = float(out.t_events[0][0])
-    assert check["by_s"] == _tenths_below(bound), bound
+    assert check["by_s"] == _tenths_above(bound), bound
     assert scenario["scenario"]["duration_s"] >= starts + check["by_s"]
 
 
@@ -322,9 +370,10 @@ def test_a_lost_inverter_bound_is_the_train_on_the_other_three(stem, check_name,
     (at_s,) = [f["at_s"] for f in scenario["fault"] if f.get("label") == fault]
     bound = spec.time_to(scenario["scenario"].get("initial_speed_kmh", 0.0), check["rises_to"],
                          _step_start_s(scenario, accel["name"]), accel["effort"],
-                         _without_one_inverter(trainset, at_s))
+                         _without_one_inverter(trainset, at_s),
+                         held=_held(scenario, accel["name"]))
     assert "after" not in check
-    assert check["by_s"] == _tenths_below(bound), bound
+    assert check["by_s"] == _tenths_above(bound), bound
 
 
 def test_four_modes_bound_is_the_curve_up_the_gradient() -> None:
@@ -347,7 +396,7 @@ def test_four_modes_bound_is_the_curve_up_the_gradient() -> None:
     bound = spec.time_to(0.0, check["rises_to"], starts, accel.get("effort", 1.0),
                          _accuracy(BASE_KMH), slope=slope)
     assert check["after"] == accel["name"]
-    assert check["by_s"] == _tenths_below(bound - starts), bound - starts
+    assert check["by_s"] == _tenths_above(bound - starts), bound - starts
 
 
 def catenary_dip_bound(scenario: dict, trainset: dict) -> float:
@@ -379,7 +428,7 @@ def test_catenary_dip_bound_allows_the_line_what_it_takes_away() -> None:
     scenario, trainset = _scenario("catenary-dip-interruption")
     bound = catenary_dip_bound(scenario, trainset)
     assert "after" not in _check(scenario, "the train keeps accelerating")
-    assert _check(scenario, "the train keeps accelerating")["by_s"] == _tenths_below(bound), bound
+    assert _check(scenario, "the train keeps accelerating")["by_s"] == _tenths_above(bound), bound
 
 
 def test_greasy_patch_bound_is_the_adhesion_a_control_should_use_in_it() -> None:
@@ -402,6 +451,8 @@ def test_greasy_patch_bound_is_the_adhesion_a_control_should_use_in_it() -> None
     assert check["after"] == accel["name"] and accel["effort"] == 1.0
     accuracy = _accuracy(BASE_KMH)
 
+    released = 0.0 if _held(scenario, accel["name"]) else None  # (t from the start)
+
     # where each motored axle runs, behind the train's front end (its position)
     behind = [a for c in trainset["converter"] for a in c["axle_positions_m"]]
     assert len(behind) == motored
@@ -413,6 +464,7 @@ def test_greasy_patch_bound_is_the_adhesion_a_control_should_use_in_it() -> None
         pull = sum(min(share, grip) if zone["from_m"] <= x - a < zone["to_m"] else share
                    for a in behind)
         pull *= min(1.0, t / RAMP_FULL_S)
+        pull -= spec.holding_brake(t, released)  # (forwards only)
         return [_held_at_rest(v, (pull - spec.resistance(v)) / spec.m_eff), v]
 
     def passes(t, y):
@@ -423,4 +475,4 @@ def test_greasy_patch_bound_is_the_adhesion_a_control_should_use_in_it() -> None
     bound = float(out.t_events[0][0])
     x_end = out.y_events[0][0][1]
     assert zone["from_m"] < x_end - min(behind)  # (the leading axles in the patch by then)
-    assert check["by_s"] == _tenths_below(bound), bound
+    assert check["by_s"] == _tenths_above(bound), bound
