@@ -22,8 +22,11 @@ warmer than the model (R_r up by 0.393 % a kelvin) or a flux a little under the 
 leaves the torque short by as much. From a fifth of the rated frequency up, where the
 air-gap power of the held voltage and the measured current is a sound torque estimate
 (Bose 2002, slip compensation), an integral trim on the slip brings the air-gap torque
-to the torque asked for (``scalar_kernel.slip_trim``; not at the torque limit, whose
-slip is the breakdown's share).
+to the torque asked for (``scalar_kernel.slip_trim``; not at the torque limit, nor with
+the trimmed slip held at the slip limit: the breakdown's share, or the current limit's
+at low speed). The estimate takes R_s at 20 degC: a hot stator at low frequency leaves
+the air-gap power high and the torque a few per cent short (the stator's sensor is not
+used for it yet).
 
 Slip regulation is angle-based: the stator angle is the counted rotor angle (times p)
 plus the integrated slip, so the slip is what the torque needs whatever the lag and
@@ -65,7 +68,7 @@ FLUX_TRIM_S = 0.2  # time constant of the voltage trim that holds the flux on th
 FLUX_TRIM_RANGE = 0.15  # the most the trim may change the voltage, of the circuit's
 TRIM_UP_TO = 0.5  # of the rated frequency
 LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple
-SLIP_TRIM_S = 0.5  # the slip trim's integral time (temperature moves over minutes)
+SLIP_TRIM_S = 0.5  # the slip trim's integral time: a torque loop, slow beside the period
 #: the trim learns while the torque asked moves less than this share of rated a period
 #: (the jerk limit's ramp moves it 0.1 %: full effort in 1.5 s)
 SLIP_TRIM_STEADY = 0.002
@@ -108,6 +111,7 @@ class ScalarControl:
         k[sk.K_SLIP_TRIM_FROM] = SLIP_TRIM_FROM
         k[sk.K_SLIP_TRIM_LOW], k[sk.K_SLIP_TRIM_HIGH] = SLIP_TRIM_LOW, SLIP_TRIM_HIGH
         k[sk.K_SLIP_TRIM_STEADY] = SLIP_TRIM_STEADY
+        k[sk.K_CORE_G] = 1.0 / cfg.core_loss_resistance_ohm  # (0 without a core loss)
         self.consts = k  # the compiled step's constants (scalar_kernel.K_*)
         # the control's state (scalar_kernel.S_*), read by name through the properties
         # below: angles, stator frequency, main flux, slip, trim, the link's mean, the

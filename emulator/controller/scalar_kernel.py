@@ -34,13 +34,14 @@ compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
  S_HAS_I_PREV, S_U_D_MEAN, S_U_VEC_RE, S_U_VEC_IM, S_TORQUE_ESTIMATE, S_TORQUE_LIMIT,
  S_BREAKDOWN_0, S_BREAKDOWN_1, S_BREAKDOWN_AGE_0, S_BREAKDOWN_AGE_1, S_BREAKDOWN_KEY,
  S_H0_U_RE, S_H0_U_IM, S_H0_F, S_H0_SLIP, S_H0_PSI, S_H1_U_RE, S_H1_U_IM, S_H1_F,
- S_H1_SLIP, S_H1_PSI, S_SLIP_TRIM, S_H0_T, S_H1_T, S_T_PREV, N_STATE) = range(34)
+ S_H1_SLIP, S_H1_PSI, S_SLIP_TRIM, S_H0_T, S_H1_T, S_T_PREV, S_SLIP_CAP,
+ N_STATE) = range(35)
 # the constants besides the circuit's (slip_circuit.CIRCUIT_*)
 (K_T, K_N_MOTORS, K_I_MAX, K_SIGN_BAND, K_RATED_HZ, K_LINK_NOMINAL, K_DEAD_TIME, K_FSW,
  K_VOLTAGE_MARGIN, K_SLIP_LIMIT_SHARE, K_BISECTIONS, K_BREAKDOWN_EVERY, K_FLUX_TRIM_S,
  K_FLUX_TRIM_RANGE, K_TRIM_UP_TO, K_LINK_FILTER_S, K_RATED_TORQUE, K_SLIP_TRIM_S,
- K_SLIP_TRIM_FROM, K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH, K_SLIP_TRIM_STEADY,
- N_CONSTS) = range(23)
+ K_SLIP_TRIM_FROM, K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH, K_SLIP_TRIM_STEADY, K_CORE_G,
+ N_CONSTS) = range(24)
 
 TWO_PI = 2 * math.pi
 
@@ -71,7 +72,8 @@ def estimated_torque(s, k, c, curve_i, curve_psi, ia, ib, ic):
         return s[S_TORQUE_ESTIMATE]
     x = 0.5 * w_s * T
     mean = 0.5 * (i + i_prev) * (math.tan(x) / x if abs(x) > 1e-6 else 1.0)
-    p_air = 1.5 * ((u_held * mean.conjugate()).real - c[sc.CIRCUIT_RS] * abs(mean) ** 2)
+    p_air = 1.5 * ((u_held * mean.conjugate()).real - c[sc.CIRCUIT_RS] * abs(mean) ** 2
+                   - k[K_CORE_G] * abs(u_held) ** 2)  # less the core loss across the terminals
     t_now = c[sc.CIRCUIT_P] * p_air / w_s
     slip_trim(s, k, t_now, f_held)
     weight = low_frequency_weight(k, f_held)
@@ -126,6 +128,7 @@ def slip_for(s, k, c, lm, torque, w_r, u_room):
                                   halvings)
         t_cap = sc.operating_point(c, cap, w_r, u_room, lm)[0]
     s[S_TORQUE_LIMIT] = abs(t_cap)
+    s[S_SLIP_CAP] = cap
     if abs(torque) >= abs(t_cap):
         return cap
     return sc.slip_for_torque(c, abs(torque), cap, abs(t_cap), s[S_W_SLIP], w_r, u_room, lm,
@@ -178,11 +181,15 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     # the torque this command asks for, for the slip trim to learn from: none at the
     # limit, nor while the torque asked moves faster than the jerk limit moves it (the
     # adhesion control's cuts, whose transients are no measure of the slip's error)
+    # (nor while the trimmed slip is held at the slip limit, breakdown's or current's:
+    # the trim would wind up against it)
     given = 0.0
     if abs(torque) < s[S_TORQUE_LIMIT]:
-        cap = k[K_SLIP_LIMIT_SHARE] * s[S_BREAKDOWN_0 + int(s[S_BREAKDOWN_KEY])]
-        w_slip = math.copysign(min(abs(w_slip * (1.0 + s[S_SLIP_TRIM])), abs(cap)), w_slip)
-        if abs(torque - s[S_T_PREV]) < k[K_SLIP_TRIM_STEADY] * k[K_RATED_TORQUE]:
+        trimmed = abs(w_slip * (1.0 + s[S_SLIP_TRIM]))
+        cap = abs(s[S_SLIP_CAP])
+        w_slip = math.copysign(min(trimmed, cap), w_slip)
+        if (trimmed < cap
+                and abs(torque - s[S_T_PREV]) < k[K_SLIP_TRIM_STEADY] * k[K_RATED_TORQUE]):
             given = torque
     s[S_T_PREV] = torque
     s[S_W_SLIP] = w_slip

@@ -417,8 +417,8 @@ class ReferenceController:
                 if (self.vector is None and self.enabled_for[k] > 0.0 and not demanded
                         and abs(v) > MAGNETISED_ABOVE_MPS):
                     # V/f drives released at speed wait for the rotor's flux to die away:
-                    # it turns with the rotor, and a voltage that does not know its phase
-                    # meets it as an out-of-phase source (a restart 0.4 s after the
+                    # it turns with the rotor, and the restart's voltage, ramped from
+                    # zero, meets it as a source of its own (a restart 0.4 s after the
                     # release at 30 km/h drew 1.2 kA and braked the train)
                     guards.block_until[k] = max(guards.block_until[k],
                                                 self.t + self.flux_decay_s)

@@ -167,8 +167,9 @@ def test_random_drive_gives_the_same_commands(layout: str, control: str) -> None
     twin.assert_identical(at_least=10000)
     plain = twin.plain
     # the run went where it was meant to: motors driven, trips and faults on the way
-    # (V/f drives released at speed wait out their rotor's flux before they start again)
-    assert states["active"] > 400, states
+    assert states["active"] > 500, states
+    if control == "scalar" and layout == "dc-fed":  # the V/f slip trim learned, the same
+        assert any(c.slip_trim != 0.0 for c in twin.plain.scalar)  # in both twins
     assert {11, 30, 41, 50, 80} <= set(plain.events), plain.events
     assert any(math.isinf(b) for b in plain.guards.block_until)  # an inverter isolated
     if cfg.line_side:
