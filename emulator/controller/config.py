@@ -61,6 +61,10 @@ class ControllerConfig:
     saturation_flux_vs: tuple[float, ...] = ()
     #: the motor's core-loss resistance per phase across its terminals (type test), ohm
     core_loss_resistance_ohm: float = math.inf
+    #: the stator winding's resistance change with temperature (copper: 0.00393 /K) and
+    #: the temperature its resistance is given at (the motor's data sheet)
+    stator_temp_coeff_per_k: float = 0.0
+    resistance_reference_degc: float = 20.0
     link_names: tuple[str, ...] = ()
     line_converter_names: tuple[str, ...] = ()
     line_converter_links: tuple[int, ...] = ()
@@ -168,6 +172,8 @@ def config_from_params(p, period_s: float | None = None) -> ControllerConfig:
         saturation_current_a=tuple(m.saturation_current_a),
         saturation_flux_vs=tuple(m.saturation_flux_vs),
         core_loss_resistance_ohm=m.core_loss_resistance_ohm,
+        stator_temp_coeff_per_k=m.stator_temp_coeff_per_k,
+        resistance_reference_degc=m.reference_temperature_k - 273.15,
         link_names=tuple(lk.name for lk in links),
         line_converter_names=tuple(u.name for u in p.line_converters),
         line_converter_links=tuple(u.dc_link for u in p.line_converters),

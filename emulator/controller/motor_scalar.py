@@ -19,14 +19,15 @@ inverter current limit. L_m is the secant of the magnetising curve at the flux.
 
 The slip for a torque assumes the model's rotor resistance and the planned flux; a rotor
 warmer than the model (R_r up by 0.393 % a kelvin) or a flux a little under the plan
-leaves the torque short by as much. From a fifth of the rated frequency up, where the
-air-gap power of the held voltage and the measured current is a sound torque estimate
-(Bose 2002, slip compensation), an integral trim on the slip brings the air-gap torque
-to the torque asked for (``scalar_kernel.slip_trim``; not at the torque limit, nor with
-the trimmed slip held at the slip limit: the breakdown's share, or the current limit's
-at low speed). The estimate takes R_s at 20 degC: a hot stator at low frequency leaves
-the air-gap power high and the torque a few per cent short (the stator's sensor is not
-used for it yet).
+leaves the torque short by as much. From half the rated frequency up, where the air-gap
+power of the held voltage and the measured current is a sound torque estimate (Bose
+2002, slip compensation), an integral trim on the slip brings the air-gap torque to the
+torque asked for (``scalar_kernel.slip_trim``; not at the torque limit, nor with the
+trimmed slip held at the slip limit: the breakdown's share, or the current limit's at
+low speed). The estimate takes R_s at the stator winding's measured temperature. Below
+half the rated frequency the flux trim works from the current's magnitude, on the
+circuit with the rotor resistance the slip trim found, and the slip keeps its trim (the
+two trims acting together there pulled each other to their limits).
 
 Slip regulation is angle-based: the stator angle is the counted rotor angle (times p)
 plus the integrated slip, so the slip is what the torque needs whatever the lag and
@@ -72,7 +73,7 @@ SLIP_TRIM_S = 0.5  # the slip trim's integral time: a torque loop, slow beside t
 #: the trim learns while the torque asked moves less than this share of rated a period
 #: (the jerk limit's ramp moves it 0.1 %: full effort in 1.5 s)
 SLIP_TRIM_STEADY = 0.002
-SLIP_TRIM_FROM = 0.2  # of the rated frequency: the air-gap power is trusted from here up
+SLIP_TRIM_FROM = 0.5  # of the rated frequency: the slip trim learns from here up
 SLIP_TRIM_LOW, SLIP_TRIM_HIGH = 0.3, 0.8  # its range: rotor from about -60 to 220 degC
 
 
@@ -112,6 +113,8 @@ class ScalarControl:
         k[sk.K_SLIP_TRIM_LOW], k[sk.K_SLIP_TRIM_HIGH] = SLIP_TRIM_LOW, SLIP_TRIM_HIGH
         k[sk.K_SLIP_TRIM_STEADY] = SLIP_TRIM_STEADY
         k[sk.K_CORE_G] = 1.0 / cfg.core_loss_resistance_ohm  # (0 without a core loss)
+        k[sk.K_RS_ALPHA] = cfg.stator_temp_coeff_per_k
+        k[sk.K_RS_REF_DEGC] = cfg.resistance_reference_degc
         self.consts = k  # the compiled step's constants (scalar_kernel.K_*)
         # the control's state (scalar_kernel.S_*), read by name through the properties
         # below: angles, stator frequency, main flux, slip, trim, the link's mean, the
@@ -224,6 +227,11 @@ class ScalarControl:
         self.u_vec = cmath.rect(u, self.theta + 2 * math.pi * f_s * 1.5 * self.T)
         self._push_history()
         return duties(self.u_vec, u_d), f_s
+
+    def stator_temperature(self, degc: float) -> None:
+        """The stator winding's temperature (its sensor, degC): the torque estimate takes
+        R_s at it (scalar_kernel.stator_temperature)."""
+        sk.stator_temperature(self.state, self.consts, self.circuit, degc)
 
     def forget_torque_asked(self) -> None:
         """The command just planned is no measure for the slip trim (its voltage was

@@ -334,9 +334,12 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                   and (effort != 0.0 or mode == 2 or abs(v) > k[K_MAGNETISED_MPS]))
         torque = direction * torque_motor * row[I_FACTOR]
         motor_speed = 0.0
+        stator_degc = 0.0
         for a in range(first, first + n_m):
             motor_speed += speeds[a]
+            stator_degc += y[xm[a, XM_TEMPERATURE]]
         motor_speed = motor_speed / n_m
+        stator_degc = stator_degc / n_m
         angle_sum, n_healthy = 0.0, 0
         for a in range(first, first + n_m):
             if mot[a, M_OK] > 0.0:
@@ -381,6 +384,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                 estimate = vc_state[kk, vk.V_TORQUE_ESTIMATE]
                 limit = vc_state[kk, vk.V_TORQUE_LIMIT]
             else:
+                sk.stator_temperature(sc_state[kk], sc_consts[kk], circuit, stator_degc)
                 estimate = sk.estimated_torque(sc_state[kk], sc_consts[kk], circuit,
                                                curve_i, curve_psi, ia, ib, ic)
                 d, _ = sk.torque_step(sc_state[kk], sc_consts[kk], circuit, curve_i,

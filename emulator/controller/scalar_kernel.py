@@ -34,14 +34,14 @@ compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
  S_HAS_I_PREV, S_U_D_MEAN, S_U_VEC_RE, S_U_VEC_IM, S_TORQUE_ESTIMATE, S_TORQUE_LIMIT,
  S_BREAKDOWN_0, S_BREAKDOWN_1, S_BREAKDOWN_AGE_0, S_BREAKDOWN_AGE_1, S_BREAKDOWN_KEY,
  S_H0_U_RE, S_H0_U_IM, S_H0_F, S_H0_SLIP, S_H0_PSI, S_H1_U_RE, S_H1_U_IM, S_H1_F,
- S_H1_SLIP, S_H1_PSI, S_SLIP_TRIM, S_H0_T, S_H1_T, S_T_PREV, S_SLIP_CAP,
- N_STATE) = range(35)
+ S_H1_SLIP, S_H1_PSI, S_SLIP_TRIM, S_H0_T, S_H1_T, S_T_PREV, S_SLIP_CAP, S_RS_WARM,
+ N_STATE) = range(36)
 # the constants besides the circuit's (slip_circuit.CIRCUIT_*)
 (K_T, K_N_MOTORS, K_I_MAX, K_SIGN_BAND, K_RATED_HZ, K_LINK_NOMINAL, K_DEAD_TIME, K_FSW,
  K_VOLTAGE_MARGIN, K_SLIP_LIMIT_SHARE, K_BISECTIONS, K_BREAKDOWN_EVERY, K_FLUX_TRIM_S,
  K_FLUX_TRIM_RANGE, K_TRIM_UP_TO, K_LINK_FILTER_S, K_RATED_TORQUE, K_SLIP_TRIM_S,
  K_SLIP_TRIM_FROM, K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH, K_SLIP_TRIM_STEADY, K_CORE_G,
- N_CONSTS) = range(24)
+ K_RS_ALPHA, K_RS_REF_DEGC, N_CONSTS) = range(26)
 
 TWO_PI = 2 * math.pi
 
@@ -72,17 +72,30 @@ def estimated_torque(s, k, c, curve_i, curve_psi, ia, ib, ic):
         return s[S_TORQUE_ESTIMATE]
     x = 0.5 * w_s * T
     mean = 0.5 * (i + i_prev) * (math.tan(x) / x if abs(x) > 1e-6 else 1.0)
-    p_air = 1.5 * ((u_held * mean.conjugate()).real - c[sc.CIRCUIT_RS] * abs(mean) ** 2
+    rs = s[S_RS_WARM] if s[S_RS_WARM] > 0.0 else c[sc.CIRCUIT_RS]
+    p_air = 1.5 * ((u_held * mean.conjugate()).real - rs * abs(mean) ** 2
                    - k[K_CORE_G] * abs(u_held) ** 2)  # less the core loss across the terminals
     t_now = c[sc.CIRCUIT_P] * p_air / w_s
     slip_trim(s, k, t_now, f_held)
     weight = low_frequency_weight(k, f_held)
     if weight > 0.0:
-        y, t_per_psi2 = sc.branches(c, slip_held, secant_lm(psi_held, curve_i, curve_psi))
+        # (the circuit with the rotor resistance the slip trim has found: R_r (1 + trim)
+        # at a slip is the model's R_r at the slip over (1 + trim), exactly)
+        y, t_per_psi2 = sc.branches(c, slip_held / (1.0 + s[S_SLIP_TRIM]),
+                                    secant_lm(psi_held, curve_i, curve_psi))
         psi = abs(mean) / abs(y)
         t_now = weight * t_per_psi2 * psi * psi + (1.0 - weight) * t_now
     s[S_TORQUE_ESTIMATE] += (t_now - s[S_TORQUE_ESTIMATE]) * min(T / 0.01, 1.0)
     return s[S_TORQUE_ESTIMATE]
+
+
+@compiled
+def stator_temperature(s, k, c, degc):
+    """The stator's resistance the torque estimate takes, from the stator winding's
+    temperature sensor: R_s (1 + alpha (T - T_ref)) (copper, REFERENCES.md). A reading
+    outside -60..250 degC (a broken sensor, NaN) is not taken: the last good one stays."""
+    if -60.0 <= degc <= 250.0:
+        s[S_RS_WARM] = c[sc.CIRCUIT_RS] * (1.0 + k[K_RS_ALPHA] * (degc - k[K_RS_REF_DEGC]))
 
 
 @compiled
@@ -95,8 +108,8 @@ def slip_trim(s, k, t_airgap, f_held):
     slip), so a rotor warmer than the model, or a flux a little under the plan, leaves
     the torque short by as much (R(T) = R_20 (1 + 0.00393 (T - 20 degC)), REFERENCES.md:
     x 0.76 at -40 degC, x 1.71 at 200 degC). Only from K_SLIP_TRIM_FROM of the rated
-    frequency up, where the air-gap power is not swamped by the stator's drop, and above a
-    fifth of the rated torque."""
+    frequency up, where the flux trim has let go and the air-gap power is not swamped by
+    the stator's drop, and above a fifth of the rated torque."""
     asked = s[S_H0_T]
     if (abs(f_held) < k[K_SLIP_TRIM_FROM] * k[K_RATED_HZ]
             or abs(asked) < 0.2 * k[K_RATED_TORQUE]):
@@ -142,7 +155,10 @@ def trim(s, k, c, curve_i, curve_psi, ia, ib, ic, weight):
     applied (|I_s| = psi_m |I_s / psi_m|), which no voltage error biases."""
     i = abs(clarke(ia, ib, ic)) / k[K_N_MOTORS]
     slip_held, psi_held = s[S_H0_SLIP], s[S_H0_PSI]  # what the sampled current answers
-    y, _ = sc.branches(c, slip_held, secant_lm(psi_held, curve_i, curve_psi))
+    # on the circuit with the rotor resistance the slip trim has found (as in
+    # estimated_torque), so that the two trims do not both take up one model error
+    y, _ = sc.branches(c, slip_held / (1.0 + s[S_SLIP_TRIM]),
+                       secant_lm(psi_held, curve_i, curve_psi))
     psi_seen = i / abs(y)
     if psi_seen <= 0.2 * psi_held:
         return

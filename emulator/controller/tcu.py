@@ -363,6 +363,7 @@ class ReferenceController:
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
+            stator_degc = sum(y[self.ix_temp[a]] for a in range(first, first + n_mot)) / n_mot
             healthy = [a for a in range(first, first + n_mot) if self.speed_check.ok[a]]
             angle = (sum(self.encoders[a].angle for a in healthy) / len(healthy) if healthy
                      else self.speed_check.fallback_angle(k, motor_speed, period_s))
@@ -390,6 +391,7 @@ class ReferenceController:
                     ramp = 1.0  # the flux model builds the flux up itself
                     estimate = ctl.torque_estimate  # from the measured currents and flux
                 else:
+                    self.scalar[k].stator_temperature(stator_degc)
                     estimate = self.scalar[k].estimated_torque((ia, ib, ic))
                     duties, _ = self.scalar[k].step(torque, motor_speed, u_d,
                                                     phase_currents=(ia, ib, ic),

@@ -26,6 +26,7 @@ from emulator.protocol.signal_map import MODES
 MODE = {name: code for code, name in MODES.items()}
 SWITCH_ON_S = 3.0  # breaker, precharge, line contactors: before the first point
 SETTLE_S = 2.5  # the demand ramps in 1.5 s (jerk limit), then settles
+WAIT_RUNNING_S = 4.0  # at most this long for the drives to start before settling counts
 AVERAGE_S = 0.5  # the measuring window at the end of each point
 RAMP_MPS2 = 2.0  # between speed points, coasting
 # after a point, coasting before the speed moves: the effort ramps out as it ramped in;
@@ -125,6 +126,15 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     tcu.clear_events()
                 rig.driver.mode = MODE["accelerate"] if demand > 0 else MODE["brake"]
                 rig.driver.effort_demand = demand
+                # a drive released while the speed moved on may wait for its rotor's flux
+                # to die away before it starts (up to WAIT_RUNNING_S): the settling time
+                # counts from when every inverter carries current
+                for _ in range(round(WAIT_RUNNING_S / frame_s)):
+                    p = rig.plant
+                    amps = sum(np.abs(p.read(f"inverter.phase_current_{x}_a")) for x in "abc")
+                    if np.all(amps > 1.0):
+                        break
+                    await rig.run(frames=rig.frame + 1)
                 await rig.run(frames=rig.frame + round(SETTLE_S / frame_s))
                 sums = {"force": 0.0, "i2": 0.0, "flux": 0.0, "mod": 0.0, "udc": 0.0,
                         "reported": 0.0}

@@ -38,10 +38,12 @@ WINDOW = 50  # frames at the end over which the torque and the voltage are taken
 
 def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float,
               step_at: int = 3000, frames: int = 3400, before_nm: float = 0.0,
-              rotor_degc: float | None = None, tune=None) -> dict:
+              rotor_degc: float | None = None, stator_degc: float | None = None,
+              tune=None) -> dict:
     """A torque step (before_nm to torque_nm at frame step_at) at a held speed; with
     rotor_degc, the rotor cage held at that temperature (the stator's sensor does not see
-    it); tune(ctl) may change the motor control before the run."""
+    it); with stator_degc, the stator winding held there and its sensor read by the
+    control; tune(ctl) may change the motor control before the run."""
     cfg = config_from_profile(trainset)
     params = load_trainset(trainset)
     u_dc = cfg.link_nominal_v
@@ -70,12 +72,16 @@ def bench_run(trainset: Path, control: str, speed_rad_s: float, torque_nm: float
             computed = ctl.step(t_ref, encoder.angle, speed, u_dc, currents)
             estimates.append(ctl.torque_estimate)  # over the period just ended
         else:
+            if stator_degc is not None:
+                ctl.stator_temperature(stator_degc)
             estimates.append(ctl.estimated_torque(currents))
             computed, _ = ctl.step(t_ref, speed, u_dc, phase_currents=currents,
                                    rotor_angle_rad=encoder.angle)
         cmd = Commands(np.array([acting]), np.array([True]))
         if rotor_degc is not None:
             plant.ms[0, L.MS_T_ROTOR] = rotor_degc + 273.15
+        if stator_degc is not None:
+            plant.ms[0, L.MS_T_STATOR] = stator_degc + 273.15
         frame_torque = []
         for _ in range(SUBSTEPS):
             plant.advance(cmd, frame_s / SUBSTEPS)

@@ -104,7 +104,7 @@ def test_a_hot_rotor_is_trimmed_out_of_the_torque(trim: bool) -> None:
     def no_trim(ctl) -> None:
         ctl.consts[sk.K_SLIP_TRIM_LOW] = ctl.consts[sk.K_SLIP_TRIM_HIGH] = 0.0
 
-    r = bench_run(TRAINSET, "scalar", 0.5 * BASE_RAD_S, target, step_at=0, frames=3000,
+    r = bench_run(TRAINSET, "scalar", 0.7 * BASE_RAD_S, target, step_at=0, frames=3000,
                   rotor_degc=150.0, tune=None if trim else no_trim)
     print(f"V/f, hot rotor, trim {trim}: {r['final_nm']:.0f} N m of {target:.0f}, "
           f"trim {r['ctl'].slip_trim:+.3f}")
@@ -112,6 +112,24 @@ def test_a_hot_rotor_is_trimmed_out_of_the_torque(trim: bool) -> None:
         assert r["final_nm"] == pytest.approx(target, rel=0.05)
     else:
         assert r["final_nm"] < 0.8 * target
+
+
+@pytest.mark.parametrize("share", [0.22, 0.3, 0.7])  # of base speed: 14, 19 and 43 Hz
+def test_a_hot_stator_leaves_the_torque_right(share: float) -> None:
+    # the stator at 150 degC (R_s x 1.51, copper: REFERENCES.md), its sensor read: at low
+    # frequency the flux trim makes up the larger drop from the current's magnitude (within
+    # its 15 % range), above half the rated frequency the air-gap estimate takes R_s at
+    # the sensor's temperature (with R_s at 20 degC it overstated the air-gap power by
+    # 0.51 x 3/2 R_s |i|^2 and the slip trim left 94-96 %: an independent review's
+    # measurement). The torque within the 5 % asked of the controls
+    cfg = config_from_profile(TRAINSET)
+    target = 1.4 * cfg.rated_torque_nm if share < 0.5 else cfg.rated_torque_nm
+    r = bench_run(TRAINSET, "scalar", share * BASE_RAD_S, target, step_at=0, frames=3000,
+                  stator_degc=150.0)
+    print(f"V/f, hot stator at {share} x base: {r['final_nm']:.0f} N m of {target:.0f}, "
+          f"trim {r['ctl'].slip_trim:+.3f}, flux trim {r['ctl'].u_trim:.3f}")
+    assert r["final_nm"] == pytest.approx(target, rel=0.05)
+    assert abs(r["ctl"].u_trim - 1.0) < 0.1  # within its range, not at its 15 % limit
 
 
 @pytest.mark.parametrize("speed", [300.0, 430.0])  # 1.55 and 2.2 of base speed
