@@ -256,7 +256,13 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         total += wheel_mps[m]
     v = total / n_mot
     f_max = k[K_N_MOTORS] * motor_torque_limit(k, abs(v)) * gear * k[K_GEAR_EFFICIENCY] / r
-    g[G_AVAILABLE] = f_max if running else 0.0
+    # the effort the drives can give now: not the share of drives blocked (waiting out
+    # a trip or their rotor's flux, or isolated), which a brake manager must make up
+    ready = 0.0
+    for kk in range(n_inv):
+        if t >= inv[kk, I_BLOCK_UNTIL]:
+            ready += inv[kk, I_N_MOTORS]
+    g[G_AVAILABLE] = f_max * (ready / n_mot) if running else 0.0
     if mode == 1:
         target = max(demand, 0.0) * f_max
     elif mode == 2:

@@ -275,7 +275,13 @@ class ReferenceController:
         wheel_mps = [w * k_wheel for w in quick]
         v = sum(wheel_mps) / len(wheel_mps)
         f_max = self.n_motors * motor_torque_limit(cfg, abs(v)) * gear * GEAR_EFFICIENCY / r
-        self.available_n = f_max if running else 0.0
+        # the effort the drives can give now: not the share of drives blocked (waiting out
+        # a trip or their rotor's flux, or isolated), which a brake manager must make up
+        ready = 0.0
+        for k, n_mot in enumerate(cfg.n_motors_per_inverter):
+            if self.t >= self.guards.block_until[k]:
+                ready += n_mot
+        self.available_n = f_max * (ready / self.n_motors) if running else 0.0
         if mode == 1:
             target = max(demand, 0.0) * f_max
         elif mode == 2:
