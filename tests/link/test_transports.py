@@ -53,6 +53,24 @@ async def _run_with_board(params, link_url: str, board_args: list[str], frames: 
     return rig, json.loads(out.decode().strip().splitlines()[-1])
 
 
+def test_loopback_ports_asked_for_together_differ_and_were_free() -> None:
+    # each is bound once chosen (so it was free), and none repeats (the kernel may hand a
+    # port just let go out again: chosen one by one, two could be the same)
+    import socket
+
+    ports = free_loopback_ports(8)
+    assert len(set(ports)) == 8
+    held = []
+    try:
+        for port in ports:
+            sock = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
+            held.append(sock)
+            sock.bind(("127.0.0.1", port))
+    finally:
+        for sock in held:
+            sock.close()
+
+
 def test_board_drives_the_train_over_udp(params, tmp_path) -> None:
     rig_port, board_port = free_loopback_ports(2)
     url = f"udp://127.0.0.1:{rig_port}?peer=127.0.0.1:{board_port}"

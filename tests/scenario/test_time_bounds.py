@@ -37,6 +37,8 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
+from emulator.plant.drivetrain import RAIL_CONDITIONS
+
 PROFILES = Path(__file__).parents[2] / "profiles"
 G = 9.81  # m/s^2, standard gravity
 RAMP_FULL_S = 1.5  # full effort in this long (comfort jerk, see above)
@@ -261,6 +263,7 @@ def test_regeneration_bound_is_the_braking_curve() -> None:
     r = np.array([d["chopper_resistance_ohm"] for d in links])
     droop = next(f for f in scenario["fault"] if f["name"] == "non-receptive-line")
     # EN 50163 table 1: U_max1 17.25 kV on the 15 kV system (REFERENCES.md)
+    assert trainset["supply"]["nominal_voltage_kv"] == 15.0
     rise_v = 17.25e3 - trainset["supply"]["nominal_voltage_kv"] * 1e3
     line_w = rise_v / droop["params"]["droop_v_per_kw"] * 1e3
     v = scenario["scenario"]["initial_speed_kmh"] / 3.6
@@ -305,6 +308,7 @@ def test_wet_gradient_start_bound_is_the_adhesion_a_control_should_use() -> None
     # Polach's wet shape (REFERENCES.md: k_A 0.3, k_S 0.1, A 0.4, B 0.2 s/m) with the
     # plant's wet mu0 (its shape's peak set to the wet 0.10-0.20 of the literature)
     params = (0.3, 0.1, 0.154 * zone["factor"], 0.4, 0.2)
+    assert RAIL_CONDITIONS["wet"] == (0.3, 0.1, 0.154, 0.4, 0.2)  # (the plant's, as read)
     motored = len([d for c in trainset["converter"] for d in c["wheel_diameters_m"]])
     q = spec.mass * G / train["axle_count"]
     kalker = drivetrain["kalker_coefficient_n"]
@@ -443,6 +447,7 @@ def test_greasy_patch_bound_is_the_adhesion_a_control_should_use_in_it() -> None
     (zone,) = scenario["track"]["low_adhesion"]
     assert zone["rail"] == "dry" and zone["cleaning_per_axle"] == 0.0
     params = (1.0, 0.4, 0.324 * zone["factor"], 0.4, 0.6)
+    assert RAIL_CONDITIONS["dry"] == (1.0, 0.4, 0.324, 0.4, 0.6)  # (the plant's, as read)
     motored = len([d for c in trainset["converter"] for d in c["wheel_diameters_m"]])
     q = spec.mass * G / train["axle_count"]
     kalker, v_ref = drivetrain["kalker_coefficient_n"], drivetrain["creep_reference_speed_mps"]
