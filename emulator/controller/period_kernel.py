@@ -138,6 +138,7 @@ from .period_parts import (
     gear_efficiency,
     guard_judge,
     guard_link,
+    guard_ready_share,
     judge,
     link_power,
     link_reset,
@@ -256,13 +257,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         total += wheel_mps[m]
     v = total / n_mot
     f_max = k[K_N_MOTORS] * motor_torque_limit(k, abs(v)) * gear * k[K_GEAR_EFFICIENCY] / r
-    # the effort the drives can give now: not the share of drives blocked (waiting out
-    # a trip or their rotor's flux, or isolated), which a brake manager must make up
-    ready = 0.0
-    for kk in range(n_inv):
-        if t >= inv[kk, I_BLOCK_UNTIL]:
-            ready += inv[kk, I_N_MOTORS]
-    g[G_AVAILABLE] = f_max * (ready / n_mot) if running else 0.0
+    g[G_AVAILABLE] = f_max * guard_ready_share(inv, t) if running else 0.0  # (tcu.py)
     if mode == 1:
         target = max(demand, 0.0) * f_max
     elif mode == 2:
@@ -408,8 +403,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             achieved += estimate * n_m
         else:
             if (k[K_VECTOR] <= 0.0 and row[I_ENABLED_FOR] > 0.0 and not demanded
-                    and abs(v) > k[K_MAGNETISED_MPS]):
-                # V/f: released at speed, wait for the rotor's flux to die away (tcu.py)
+                    and abs(v) > k[K_MAGNETISED_MPS]):  # (InverterGuards.released_at_speed)
                 row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_FLUX_DECAY_S])
             row[I_ENABLED_FOR] = 0.0
             row[I_RELEASED] = 0.0 if demanded else 1.0

@@ -142,7 +142,7 @@ def pll_update(g, k, v):
 dead_samples = compiled(pll.dead_samples)
 
 
-# --- inverter_guard.InverterGuards.judge and .link ----------------------------------------
+# --- inverter_guard.InverterGuards.judge, .ready_share and .link ------------------------
 @compiled
 def guard_judge(g, counts, row, k, t, ia, ib, ic, gate_fault):
     """InverterGuards.judge on inverter row ``row``; returns its drivers' trip bit."""
@@ -168,6 +168,17 @@ def guard_judge(g, counts, row, k, t, ia, ib, ic, gate_fault):
             row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_RESET_S])
     row[I_LATCHED] = 1.0 if tripped else 0.0
     return tripped
+
+
+@compiled
+def guard_ready_share(inv, t):
+    """InverterGuards.ready_share over the inverter rows."""
+    ready, total = 0.0, 0.0
+    for kk in range(inv.shape[0]):
+        total += inv[kk, I_N_MOTORS]
+        if t >= inv[kk, I_BLOCK_UNTIL]:
+            ready += inv[kk, I_N_MOTORS]
+    return ready / total
 
 
 @compiled

@@ -275,13 +275,9 @@ class ReferenceController:
         wheel_mps = [w * k_wheel for w in quick]
         v = sum(wheel_mps) / len(wheel_mps)
         f_max = self.n_motors * motor_torque_limit(cfg, abs(v)) * gear * GEAR_EFFICIENCY / r
-        # the effort the drives can give now: not the share of drives blocked (waiting out
-        # a trip or their rotor's flux, or isolated), which a brake manager must make up
-        ready = 0.0
-        for k, n_mot in enumerate(cfg.n_motors_per_inverter):
-            if self.t >= self.guards.block_until[k]:
-                ready += n_mot
-        self.available_n = f_max * (ready / self.n_motors) if running else 0.0
+        # the effort the drives can give now (what a brake manager must make up is not)
+        self.available_n = (f_max * self.guards.ready_share(self.t, cfg.n_motors_per_inverter)
+                            if running else 0.0)
         if mode == 1:
             target = max(demand, 0.0) * f_max
         elif mode == 2:
@@ -424,12 +420,7 @@ class ReferenceController:
             else:
                 if (self.vector is None and self.enabled_for[k] > 0.0 and not demanded
                         and abs(v) > MAGNETISED_ABOVE_MPS):
-                    # V/f drives released at speed wait for the rotor's flux to die away:
-                    # it turns with the rotor, and the restart's voltage, ramped from
-                    # zero, meets it as a source of its own (a restart 0.4 s after the
-                    # release at 30 km/h drew 1.2 kA and braked the train)
-                    guards.block_until[k] = max(guards.block_until[k],
-                                                self.t + self.flux_decay_s)
+                    guards.released_at_speed(k, self.t)
                 self.enabled_for[k] = 0.0
                 self.released[k] = not demanded
                 if self.vector is not None:
