@@ -228,6 +228,22 @@ class ScalarControl:
         self._push_history()
         return duties(self.u_vec, u_d), f_s
 
+    def period(self, torque_per_motor: float, rotor_speed_rad_s: float, u_d: float,
+               phase_currents: tuple[float, float, float], rotor_angle_rad: float,
+               stator_degc: float, learns: bool) -> tuple[float, list[float]]:
+        """One period of the torque mode as the reference controller runs it: the stator
+        sensor's temperature, the torque estimate (N m a motor, returned) and the duties
+        for the torque; with ``learns`` False (under the flux ramp, whose voltage is scaled
+        after the plan, or an adhesion cut, whose torque swings with the wheelset) the
+        command teaches the slip trim nothing."""
+        self.stator_temperature(stator_degc)
+        estimate = self.estimated_torque(phase_currents)
+        duties, _ = self.step(torque_per_motor, rotor_speed_rad_s, u_d,
+                              phase_currents=phase_currents, rotor_angle_rad=rotor_angle_rad)
+        if not learns:
+            self.forget_torque_asked()
+        return estimate, duties
+
     def stator_temperature(self, degc: float) -> None:
         """The stator winding's temperature (its sensor, degC): the torque estimate takes
         R_s at it (scalar_kernel.stator_temperature)."""

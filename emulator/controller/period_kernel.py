@@ -392,7 +392,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                                       curve_psi, torque, motor_speed, u_d, ia, ib, ic, True,
                                       angle, True)
                 ramp = min(row[I_ENABLED_FOR] / k[K_FLUX_RAMP_S], 1.0)
-                if ramp < 1.0 or row[I_FACTOR] < 1.0:  # (tcu.py)
+                if ramp < 1.0 or row[I_FACTOR] < 1.0:  # (ScalarControl.period)
                     sc_state[kk, sk.S_H1_T] = 0.0
                 limit = sc_state[kk, sk.S_TORQUE_LIMIT]
             out[xi[kk, XI_DUTY_A]] = 0.5 + ramp * (d[0] - 0.5)

@@ -393,16 +393,10 @@ class ReferenceController:
                     ramp = 1.0  # the flux model builds the flux up itself
                     estimate = ctl.torque_estimate  # from the measured currents and flux
                 else:
-                    self.scalar[k].stator_temperature(stator_degc)
-                    estimate = self.scalar[k].estimated_torque((ia, ib, ic))
-                    duties, _ = self.scalar[k].step(torque, motor_speed, u_d,
-                                                    phase_currents=(ia, ib, ic),
-                                                    rotor_angle_rad=angle)
                     ramp = min(self.enabled_for[k] / FLUX_RAMP_S, 1.0)
-                    # a command under the flux ramp, or cut by the adhesion control (the
-                    # wheelset's swings are in its torque), teaches the slip trim nothing
-                    if ramp < 1.0 or factors[k] < 1.0:
-                        self.scalar[k].forget_torque_asked()
+                    estimate, duties = self.scalar[k].period(
+                        torque, motor_speed, u_d, (ia, ib, ic), angle, stator_degc,
+                        learns=ramp >= 1.0 and factors[k] >= 1.0)
                 for i, d in zip(duty_ix, duties, strict=True):
                     out[i] = 0.5 + ramp * (d - 0.5)
                 # the line converter's feed-forward: the torque the motor control can
