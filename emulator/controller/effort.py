@@ -9,6 +9,8 @@ the drive's efficiency are taken by the direction the power flows.
 
 from __future__ import annotations
 
+import math
+
 from .config import ControllerConfig
 
 GEAR_EFFICIENCY = 0.975  # design value of the TCU's effort estimate
@@ -30,6 +32,22 @@ def motor_torque_limit(cfg: ControllerConfig, v_mps: float) -> float:
     if w_motor > w_natural:
         return min(t_max, p_max * w_natural / (w_motor * w_motor))
     return min(t_max, p_max / w_motor)
+
+
+def line_limited_torque(torque: float, motor_speed: float, n_motors: int, u_d: float,
+                        u_nominal: float, p_draw: float | None,
+                        p_feed: float | None) -> float:
+    """A drive's torque within what its link's line converters let it draw (p_draw, W,
+    motoring: less as the link sags from 90 % to 75 % of nominal) or return (p_feed,
+    generating), shared by its n_motors at motor_speed (rad/s); None: no limit."""
+    if p_draw is not None and torque * motor_speed > 0:  # motoring
+        sag = min(max((u_d - 0.75 * u_nominal) / (0.15 * u_nominal), 0.0), 1.0)
+        t_power = p_draw / max(abs(motor_speed) * n_motors, 1.0)
+        return math.copysign(min(abs(torque), t_power) * sag, torque)
+    if p_feed is not None and torque * motor_speed < 0:  # generating
+        t_power = p_feed / max(abs(motor_speed) * n_motors, 1.0)
+        return math.copysign(min(abs(torque), t_power), torque)
+    return torque
 
 
 def link_power(p_shaft: float) -> float:

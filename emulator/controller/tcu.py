@@ -25,6 +25,7 @@ from .effort import (
     GEAR_EFFICIENCY,
     POWER_OVERLOAD,
     gear_efficiency,
+    line_limited_torque,
     link_power,
     motor_torque_limit,
 )
@@ -369,14 +370,10 @@ class ReferenceController:
             healthy = [a for a in range(first, first + n_mot) if self.speed_check.ok[a]]
             angle = (sum(self.encoders[a].angle for a in healthy) / len(healthy) if healthy
                      else self.speed_check.fallback_angle(k, motor_speed, period_s))
-            if p_draw is not None and torque * motor_speed > 0:  # motoring
-                sag = min(max((u_d - 0.75 * cfg.link_nominal_v)
-                              / (0.15 * cfg.link_nominal_v), 0.0), 1.0)
-                t_power = p_draw[link] / max(abs(motor_speed) * n_mot, 1.0)
-                torque = math.copysign(min(abs(torque), t_power) * sag, torque)
-            elif p_feed is not None and torque * motor_speed < 0:  # generating
-                t_power = p_feed[link] / max(abs(motor_speed) * n_mot, 1.0)
-                torque = math.copysign(min(abs(torque), t_power), torque)
+            torque = line_limited_torque(
+                torque, motor_speed, n_mot, u_d, cfg.link_nominal_v,
+                None if p_draw is None else p_draw[link],
+                None if p_feed is None else p_feed[link])
             if cfg.line_side and running and not line_live:  # the train holds the link
                 t_buffer = factors[k] * rt.buffer_torque(
                     u_d, cfg.link_nominal_v, v, motor_speed, self.p_rated_link[link],
