@@ -36,6 +36,7 @@ from .motor_scalar import ScalarControl
 from .motor_vector import VectorControl
 from .pll import DEAD_SAMPLES, SogiPll, dead_samples
 from .sequence import RUNNING, TRIPPED, SwitchOnSequence
+from .signal_positions import SignalPositions
 from .speed_plausibility import SpeedPlausibility
 
 # motors and inverters at full power, with margin: what the line converters are rated for
@@ -52,7 +53,7 @@ MAGNETISED_ABOVE_MPS = 1.0  # in a driving mode, the motors stay fluxed above th
 FLUX_HOLD_S = 3.0  # ... and as long after the last demand (coasting between brake steps)
 
 
-class ReferenceController:
+class ReferenceController(SignalPositions):
     """Reads telegrams by name, runs the control, writes telegrams by name."""
 
     def __init__(self, cfg: ControllerConfig, signal_map: dict) -> None:
@@ -139,44 +140,6 @@ class ReferenceController:
         items = msgpack.unpackb(self._last_reply)
         items[H_FLAGS] = CFLAG_REPEAT_REQUEST
         return msgpack.packb(items)
-
-    def _index_signals(self, cfg: ControllerConfig) -> None:
-        """Positions of every value the control reads and writes (looked up once)."""
-        mi = self.m_index.__getitem__
-        ci = {n: i for i, n in enumerate(self.c_names)}.__getitem__
-        self.ix_link_v = [mi(f"{n}.voltage_v") for n in cfg.link_names]
-        self.ix_mode, self.ix_demand = mi("train.mode"), mi("train.effort_demand")
-        self.ix_direction = mi("train.direction")
-        self.ix_neutral = mi("train.neutral_section_ahead")
-        self.ix_regen = mi("train.regeneration_allowed")
-        self.ix_cruise = mi("train.cruise_speed_kmh")
-        self.ix_count = [mi(f"{mo}.encoder_count") for ms in self.motors for mo in ms]
-        self.ix_temp = [mi(f"{mo}.stator_temperature_degc") for ms in self.motors for mo in ms]
-        self.ix_phase = [[mi(f"{inv}.current_{x}_a") for x in "abc"]
-                         for inv in cfg.inverter_names]
-        self.ox_duty = [[ci(f"{inv}.duty_{x}") for x in "abc"] for inv in cfg.inverter_names]
-        self.ox_gates = [ci(f"{inv}.gates_enabled") for inv in cfg.inverter_names]
-        self.ix_gate_fault = [mi(f"{inv}.gate_fault") for inv in cfg.inverter_names]
-        self.ox_reset = [ci(f"{inv}.fault_reset") for inv in cfg.inverter_names]
-        self.ox_achieved, self.ox_available = ci("tcu.achieved_effort_kn"), ci(
-            "tcu.available_effort_kn")
-        self.ox_status, self.ox_event = ci("tcu.status"), ci("tcu.event_code")
-        if cfg.line_side:
-            names = cfg.line_converter_names
-            self.ix_line_v, self.ix_breaker = mi("line.voltage_v"), mi("line.breaker_closed")
-            self.ix_line_trip = mi("line.overcurrent_trip")
-            self.ix_ovp = [mi(f"{n}.overvoltage") for n in cfg.link_names]
-            self.ix_pre = [mi(f"{n}.precharge_closed") for n in names]
-            self.ix_line = [mi(f"{n}.line_contactor_closed") for n in names]
-            self.ox_breaker = ci("line.breaker_close")
-            self.ox_pre = [ci(f"{n}.precharge_close") for n in names]
-            self.ox_line = [ci(f"{n}.line_contactor_close") for n in names]
-            by_link = [[k for k, lk in enumerate(cfg.line_converter_links) if lk == i]
-                       for i in range(len(cfg.link_names))]
-            self.ix_isec = [[mi(f"{names[k]}.current_a") for k in ks] for ks in by_link]
-            self.ox_mod = [[ci(f"{names[k]}.modulation") for k in ks] for ks in by_link]
-            self.ox_lc_gates = [[ci(f"{names[k]}.gates_enabled") for k in ks] for ks in by_link]
-            self.ox_chopper = [ci(f"{n}.chopper_duty") for n in cfg.link_names]
 
     def clear_events(self) -> None:
         """Forget the events counted so far."""
