@@ -190,3 +190,21 @@ def single_phased_machine_rhs(ls: float, lr: float, lm: float, rs: float, rr: fl
         return [u_beta(t) - rs * i_sb, -rr * i_ra - w_r * prb, -rr * i_rb + w_r * pra]
 
     return rhs, currents
+
+
+def polach_creep_force(w: float, v: float, q: float, kalker: float, k_a: float, k_s: float,
+                       mu0: float, a: float, b: float, v_ref: float = 0.0) -> float:
+    """Polach's creep force on an axle, N (Polach, Wear 258 (2005) 992-1000, as
+    REFERENCES.md gives it):
+
+        F = 2 Q mu / pi (k_A e / (1 + (k_A e)^2) + arctan(k_S e)),
+        e = (2/3) C pi a^2 b / (Q mu) s,   mu = mu0 ((1 - A) e^(-B w) + A),
+
+    w the slip velocity, s = w / sqrt(v^2 + v_ref^2) the creep (v_ref: a creep reference
+    speed near standstill). Kalker's linear coefficient K of the axle stands for the
+    contact's (2/3) C pi a^2 b through the formula's own small-creep slope,
+    dF/ds = (k_A + k_S) / 2 K (REFERENCES.md [derived]), so (2/3) C pi a^2 b = pi K / 4.
+    Odd in w."""
+    mu = mu0 * ((1 - a) * math.exp(-b * abs(w)) + a)
+    eps = math.pi * kalker / 4 / (q * mu) * w / math.hypot(v, v_ref)
+    return 2 * q * mu / math.pi * (k_a * eps / (1 + (k_a * eps) ** 2) + math.atan(k_s * eps))

@@ -101,7 +101,7 @@ def stator_temperature(s, k, c, degc):
 @compiled
 def slip_trim(s, k, t_airgap, f_held):
     """Trim the slip by the air-gap torque (N m a motor) the period just measured gave
-    against the torque its command asked for (S_H0_T; 0 where it was at the limit):
+    against the torque its command asked for (S_H0_T; 0 where it teaches nothing):
     integral action, T / K_SLIP_TRIM_S a period, on the relative error, within
     [-K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH]. The circuit's slip for a torque assumes the
     rotor resistance and flux of the model; the torque at a slip goes as 1 / R_r (small
@@ -195,10 +195,10 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     w_slip = slip_for(s, k, c, secant_lm(s[S_PSI_M], curve_i, curve_psi), torque, w_r,
                       u_room)
     # the torque this command asks for, for the slip trim to learn from: none at the
-    # limit, nor while the torque asked moves faster than the jerk limit moves it (the
-    # adhesion control's cuts, whose transients are no measure of the slip's error)
-    # (nor while the trimmed slip is held at the slip limit, breakdown's or current's:
-    # the trim would wind up against it)
+    # torque limit, nor with the trimmed slip held at the slip limit (breakdown's or
+    # current's: the trim would wind up against it), nor while the torque asked moves
+    # faster than the jerk limit moves it (the adhesion control's cuts, whose transients
+    # are no measure of the slip's error)
     given = 0.0
     if abs(torque) < s[S_TORQUE_LIMIT]:
         trimmed = abs(w_slip * (1.0 + s[S_SLIP_TRIM]))

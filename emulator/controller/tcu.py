@@ -329,7 +329,8 @@ class ReferenceController(SignalPositions):
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
-            stator_degc = sum(y[self.ix_temp[a]] for a in range(first, first + n_mot)) / n_mot
+            stator_degc = (sum(y[self.ix_temp[a]] for a in range(first, first + n_mot)) / n_mot
+                           if self.vector is None else 0.0)  # (V/f: its torque estimate)
             healthy = [a for a in range(first, first + n_mot) if self.speed_check.ok[a]]
             angle = (sum(self.encoders[a].angle for a in healthy) / len(healthy) if healthy
                      else self.speed_check.fallback_angle(k, motor_speed, period_s))

@@ -17,6 +17,7 @@ from emulator.plant.drivetrain import (
     POLACH_WET,
     polach_force,
 )
+from tests.oracles import polach_creep_force
 
 Q = 2 * 75e3  # axle load, N
 K = 1.7e7  # Kalker linear coefficient of the axle, N
@@ -79,18 +80,11 @@ def test_force_is_odd_and_bounded_by_mu0_q(w: float, v: float) -> None:
 @pytest.mark.parametrize("params", [POLACH_DRY, POLACH_WET], ids=["dry", "wet"])
 @pytest.mark.parametrize("w", [0.02, 0.1, 0.4, 1.5, 6.0])  # slip velocity, m/s, at 20 m/s
 def test_the_whole_curve_is_polachs_formula(params, w: float) -> None:
-    # Polach (Wear 258, 2005), as REFERENCES.md gives it, evaluated here by hand:
-    #   F = 2 Q mu / pi (k_A e / (1 + (k_A e)^2) + arctan(k_S e)),
-    #   e = (2/3) C pi a^2 b / (Q mu) s,   mu = mu0 ((1 - A) e^(-B w) + A),
-    # s = w / v the creep. Kalker's linear coefficient K of the axle stands for the
-    # contact's (2/3) C pi a^2 b through the formula's own small-creep slope,
-    # dF/ds = 2 Q mu / pi (k_A + k_S) (2/3) C pi a^2 b / (Q mu) = (k_A + k_S) / 2 K
-    # (REFERENCES.md [derived]), so (2/3) C pi a^2 b = pi K / 4. The plant's function
-    # regularises the creep's denominator with v_ref (here 1e-6 m/s: no effect at 20 m/s)
-    k_a, k_s, mu0, a, b = params
+    # Polach (Wear 258, 2005), as REFERENCES.md gives it, evaluated by hand in
+    # tests/oracles.py (with Kalker's coefficient for the contact's constant). The plant's
+    # function regularises the creep's denominator with v_ref (here 1e-6 m/s: no effect at
+    # 20 m/s)
     v = 20.0
-    mu = mu0 * ((1 - a) * math.exp(-b * w) + a)
-    eps = math.pi * K / 4 / (Q * mu) * (w / v)
-    expected = 2 * Q * mu / math.pi * (k_a * eps / (1 + (k_a * eps) ** 2) + math.atan(k_s * eps))
+    expected = polach_creep_force(w, v, Q, K, *params)
     assert force(w, v, params)[0] == pytest.approx(expected, rel=1e-12)
     assert force(-w, v, params)[0] == pytest.approx(-expected, rel=1e-12)  # odd in w

@@ -5,11 +5,11 @@ specified run and the allowances every bound takes)."""
 
 from __future__ import annotations
 
-import math
-
 from scipy.integrate import solve_ivp
+from scipy.optimize import minimize_scalar
 
 from emulator.plant.drivetrain import RAIL_CONDITIONS
+from tests.oracles import polach_creep_force
 from tests.scenario.specified_run import (
     BASE_KMH,
     RAMP_FULL_S,
@@ -29,22 +29,11 @@ from tests.scenario.specified_run import (
 #: at about 90 % and more, from memory)
 ADHESION_USED = 0.90
 def _polach_peak(v: float, q: float, kalker: float, params: tuple, v_ref: float) -> float:
-    """The peak over the slip velocity of Polach's creep force on an axle (Wear 258,
-    2005, as REFERENCES.md gives it, evaluated here by hand: see
-    tests/plant/test_adhesion.py), at train speed v; N. The creep near standstill is
+    """The peak over the slip velocity of Polach's creep force on an axle
+    (tests/oracles.py), at train speed v; N. The creep near standstill is
     w / sqrt(v^2 + v_ref^2), as the profile's creep reference speed makes it."""
-    from scipy.optimize import minimize_scalar
-
-    k_a, k_s, mu0, a, b = params
-
-    def minus_force(w: float) -> float:
-        mu = mu0 * ((1 - a) * math.exp(-b * w) + a)
-        eps = math.pi * kalker / 4 / (q * mu) * w / math.hypot(v, v_ref)
-        return -2 * q * mu / math.pi * (k_a * eps / (1 + (k_a * eps) ** 2)
-                                        + math.atan(k_s * eps))
-
-    best = minimize_scalar(minus_force, bounds=(1e-4, 5.0), method="bounded",
-                           options={"xatol": 1e-7})
+    best = minimize_scalar(lambda w: -polach_creep_force(w, v, q, kalker, *params, v_ref),
+                           bounds=(1e-4, 5.0), method="bounded", options={"xatol": 1e-7})
     return -best.fun
 
 
