@@ -7,6 +7,7 @@ import math
 import numpy as np
 
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
+from .columns import column_buffer
 from .drivetrain import RAIL_CONDITIONS
 from .params import TrainsetParams
 
@@ -22,6 +23,7 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
     plant.mu = np.zeros((n_m, L.MU_N))
     plant.ms = np.zeros((n_m, L.MS_N))
     plant.mx = np.zeros((n_m, L.MX_N), dtype=np.complex128)
+    plant.cols = column_buffer(n_m, n_i)  # the machines within a frame (the kernel's)
     n_sat = max(1, len(mp.saturation_current_a))
     plant.sat_i = np.ones((n_m, n_sat))
     plant.sat_psi = np.ones((n_m, n_sat))

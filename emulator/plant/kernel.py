@@ -28,6 +28,34 @@ from __future__ import annotations
 import cmath
 import math
 
+from .columns import (
+    B_IR_RE,
+    B_IS_RE,
+    B_PR_RE,
+    B_PS_RE,
+    C_E_CU_R,
+    C_E_CU_S,
+    C_E_IN,
+    C_INT_RE,
+    C_IR_RE,
+    C_IS_RE,
+    C_PR_RE,
+    C_PS_RE,
+    C_T1,
+    C_U_RE,
+    IW_BLOCKED,
+    IW_DR_A,
+    IW_DR_B,
+    IW_DR_C,
+    IW_P_SW,
+    IW_S_A,
+    IW_S_B,
+    IW_S_C,
+    IW_U1_RE,
+    W,
+    get_c,
+    put_c,
+)
 from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents
 from .jit import compiled, compiled_inline
 from .layout import (
@@ -91,8 +119,6 @@ from .layout import (
     MU_LOAD_TORQUE,
     MU_OPEN_PHASE,
     MX_CG,
-    MX_IR,
-    MX_IS,
     MX_PHI11,
     MX_PHI12,
     MX_PHI21,
@@ -129,11 +155,10 @@ from .machine import (
     open_phase_flux,
     refresh_matrices,
     scaled,
-    stator_current_integral,
-    step_flux,
     step_flux_sine,
     torque,
 )
+from .machine_columns import held_voltage_step, keep_start, load_columns, store_columns
 from .probe import probe_values
 from .shaft import (
     axle_loads,
@@ -175,9 +200,11 @@ def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval):
 
 
 @compiled_inline
-def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, a_train,
-                      i_link):
-    """One sub-step of inverter k and its motors; returns the creep force on the train."""
+def _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, c):
+    """Inverter k's stator voltage for the sub-step, from the phase currents at its start:
+    into C_U_* for each of its motors, and for the inverter (IW_*) with its legs'
+    switching functions, drops and switching power. Keeps aside the start of each motor
+    the scalar path steps (a sine source's, an open phase's)."""
     first = iint[k, II_FIRST_MOTOR]
     last = first + iint[k, II_MOTOR_COUNT]
     udc = lst[iint[k, II_LINK], LS_UDC]
@@ -188,12 +215,12 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
     blocked = source != SOURCE_SINE and (iu[k, IU_ENABLE] < 0.5 or ist[k, IS_HW_TRIP] > 0.5)
     u_prev = complex(ist[k, IS_U_ALPHA], ist[k, IS_U_BETA])
     for m in range(first, last):
-        i_tot += mx[m, MX_IS]
+        i_tot += get_c(c, C_IS_RE, m)
         if not blocked:
             i_tot += scaled(mpar[m, MP_G_CORE], u_prev)  # the core-loss branch's current
         if blocked:
-            ps = mx[m, MX_PSI_S]
-            pr = mx[m, MX_PSI_R]
+            ps = get_c(c, C_PS_RE, m)
+            pr = get_c(c, C_PR_RE, m)
             # end-of-step current with zero voltage, and its sensitivity to the voltage
             ps_h = mx[m, MX_PHI11] * ps + mx[m, MX_PHI12] * pr
             pr_h = mx[m, MX_PHI21] * ps + mx[m, MX_PHI22] * pr
@@ -221,37 +248,73 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
         p_sw = pa + pb + pc
     ist[k, IS_U_ALPHA] = u.real
     ist[k, IS_U_BETA] = u.imag
+    put_c(c, IW_U1_RE, k, u1)
+    c[IW_BLOCKED * W + k] = 1.0 if blocked else 0.0
+    c[IW_S_A * W + k] = s_a
+    c[IW_S_B * W + k] = s_b
+    c[IW_S_C * W + k] = s_c
+    c[IW_DR_A * W + k] = dr_a
+    c[IW_DR_B * W + k] = dr_b
+    c[IW_DR_C * W + k] = dr_c
+    c[IW_P_SW * W + k] = p_sw
+    for m in range(first, last):
+        put_c(c, C_U_RE, m, u)
+        if source == SOURCE_SINE or mu[m, MU_OPEN_PHASE] > 0.0:
+            keep_start(c, m)
 
+
+@compiled_inline
+def _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, a_train,
+                      i_link, c):
+    """The rest of inverter k's sub-step after every motor's held-voltage step
+    (machine_columns.held_voltage_step): the motors of a sine source and with an open
+    phase, the core losses, the energies, the shafts, the phase currents and the DC side;
+    returns the creep force on the train."""
+    first = iint[k, II_FIRST_MOTOR]
+    last = first + iint[k, II_MOTOR_COUNT]
+    udc = lst[iint[k, II_LINK], LS_UDC]
+    source = iint[k, II_SOURCE]
+    blocked = c[IW_BLOCKED * W + k] > 0.5
+    u = complex(ist[k, IS_U_ALPHA], ist[k, IS_U_BETA])
+    u1 = get_c(c, IW_U1_RE, k)
     force_sum = 0.0
     int_i = 0j
     i_end = 0j
     for m in range(first, last):
         pp = mpar[m, MP_POLE_PAIRS]
-        rs = ms[m, MS_RS]
-        rr = ms[m, MS_RR]
-        ps0 = mx[m, MX_PSI_S]
-        pr0 = mx[m, MX_PSI_R]
-        is0 = mx[m, MX_IS]
-        ir0 = mx[m, MX_IR]
-        if source == SOURCE_SINE:
-            ps1, pr1 = step_flux_sine(mx, m, u, u1)
-            is1, ir1 = currents_frozen(ms, m, ps1, pr1)
-            # source energy by the trapezoid rule (the source is not held)
-            e_in = 0.75 * h * ((u * is0.conjugate()).real + (u1 * is1.conjugate()).real)
-        else:
-            ps1, pr1 = step_flux(mx, m, u)
-            is1, ir1 = currents_frozen(ms, m, ps1, pr1)
-            int_is = stator_current_integral(mx, m, ps0, pr0, ps1, pr1, u, h)
-            int_i += int_is
-            e_in = 1.5 * (u * int_is.conjugate()).real  # exact for the held voltage
         open_phase = int(mu[m, MU_OPEN_PHASE])
-        if open_phase > 0:
-            ps1 = open_phase_flux(ms, m, ps1, pr1, open_phase - 1)
+        if source == SOURCE_SINE or open_phase > 0:
+            ps0 = get_c(c, B_PS_RE, m)
+            pr0 = get_c(c, B_PR_RE, m)
+            is0 = get_c(c, B_IS_RE, m)
+            ir0 = get_c(c, B_IR_RE, m)
+            if source == SOURCE_SINE:
+                ps1, pr1 = step_flux_sine(mx, m, u, u1, ps0, pr0)
+                is1, ir1 = currents_frozen(ms, m, ps1, pr1)
+                # source energy by the trapezoid rule (the source is not held)
+                e_in = 0.75 * h * ((u * is0.conjugate()).real + (u1 * is1.conjugate()).real)
+            else:
+                ps1 = get_c(c, C_PS_RE, m)  # the held-voltage step's end
+                pr1 = get_c(c, C_PR_RE, m)
+                int_i += get_c(c, C_INT_RE, m)
+                e_in = c[C_E_IN * W + m]
+            if open_phase > 0:
+                ps1 = open_phase_flux(ms, m, ps1, pr1, open_phase - 1)
             is1, ir1 = currents_frozen(ms, m, ps1, pr1)
-        mx[m, MX_PSI_S] = ps1
-        mx[m, MX_PSI_R] = pr1
-        mx[m, MX_IS] = is1
-        mx[m, MX_IR] = ir1
+            put_c(c, C_PS_RE, m, ps1)
+            put_c(c, C_PR_RE, m, pr1)
+            put_c(c, C_IS_RE, m, is1)
+            put_c(c, C_IR_RE, m, ir1)
+            e_cu_s = 0.75 * h * ms[m, MS_RS] * (abs2(is0) + abs2(is1))
+            e_cu_r = 0.75 * h * ms[m, MS_RR] * (abs2(ir0) + abs2(ir1))
+            t1 = torque(ps1, is1, pp)
+        else:
+            is1 = get_c(c, C_IS_RE, m)
+            int_i += get_c(c, C_INT_RE, m)
+            e_in = c[C_E_IN * W + m]
+            e_cu_s = c[C_E_CU_S * W + m]
+            e_cu_r = c[C_E_CU_R * W + m]
+            t1 = c[C_T1 * W + m]
         i_end += is1
         # iron loss: a core-loss resistance across the terminals carries u / R_c (held u;
         # a sine source's amplitude is constant); none while the gates are blocked
@@ -269,14 +332,11 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
             ms[m, MS_Q_STATOR] += e_core
         ms[m, MS_E_TERMINAL] += e_in
         # copper losses 3/2 R |i|^2, trapezoid rule
-        e_cu_s = 0.75 * h * rs * (abs2(is0) + abs2(is1))
-        e_cu_r = 0.75 * h * rr * (abs2(ir0) + abs2(ir1))
         ms[m, MS_E_CU_S] += e_cu_s
         ms[m, MS_E_CU_R] += e_cu_r
         ms[m, MS_Q_STATOR] += e_cu_s
         ms[m, MS_Q_ROTOR] += e_cu_r
         t0 = ms[m, MS_TORQUE]  # end of the last sub-step (set again at each refresh)
-        t1 = torque(ps1, is1, pp)
         ms[m, MS_TORQUE] = t1
         force_sum += shaft_step(mpar, mint, mu, ms, m, 0.5 * (t0 + t1), v, a_train, h)
 
@@ -294,9 +354,11 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
             and max(abs(ia), abs(ib), abs(ic)) > ipar[k, IP_I_TRIP]):
         ist[k, IS_HW_TRIP] = 1.0
     if source != SOURCE_SINE:
+        p_sw = c[IW_P_SW * W + k]
         ja, jb, jc = phase_currents(int_i)  # integrals of the phase currents, A s
-        q_dc = s_a * ja + s_b * jb + s_c * jc + (p_sw * h / udc if udc > 0.0 else 0.0)
-        e_cond = dr_a * ja + dr_b * jb + dr_c * jc
+        q_dc = (c[IW_S_A * W + k] * ja + c[IW_S_B * W + k] * jb + c[IW_S_C * W + k] * jc
+                + (p_sw * h / udc if udc > 0.0 else 0.0))
+        e_cond = c[IW_DR_A * W + k] * ja + c[IW_DR_B * W + k] * jb + c[IW_DR_C * W + k] * jc
         ist[k, IS_E_DC] += udc * q_dc
         ist[k, IS_IDC] += q_dc  # charge; divided by the frame length at the end
         i_link[iint[k, II_LINK], 0] += q_dc / h
@@ -309,12 +371,13 @@ def _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst,
 @compiled
 def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat_psi,
                   ipar, iint, iu, ist, lst, tpar, tu, ts, sp, harmonics, ss, lp, li, lu, ls2,
-                  kp, ku, i_link, probe_src, probe_row, probe_col, trace):
+                  kp, ku, i_link, probe_src, probe_row, probe_col, trace, cols):
     """Advance every converter, motor, axle and the train by n_sub sub-steps of h.
 
     Arrays are laid out as in layout.py and updated in place. t0 is the plant time at
     the start of the frame, s; periodic sources are evaluated at each sub-step's instant.
-    After each sub-step s, trace[s] takes the probed values (probe.py).
+    After each sub-step s, trace[s] takes the probed values (probe.py). cols is the
+    machines' column buffer (machine_columns.py): their state within the frame.
     """
     n_i = ipar.shape[0]
     frame = n_sub * h
@@ -326,11 +389,17 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     axle_loads(mpar, mint, ms)
     grip = unmotored_grip(mpar, mint, tpar)
     line_frame_start(ss, ls2, lst)
+    any_held = False  # (a bench's sine sources alone need no held-voltage pass)
+    for k in range(n_i):
+        any_held = any_held or iint[k, II_SOURCE] != SOURCE_SINE
     for s in range(n_sub):
         t = t0 + s * h
         if s == 0 or refresh_each:
+            if s > 0:
+                store_columns(mx, cols)
             _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h,
                      h if refresh_each else frame)
+            load_columns(mpar, ms, mx, cols)
         v = ts[TS_SPEED]
         force = 0.0
         i_link[:, :] = 0.0
@@ -338,8 +407,12 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         contact_forces(mpar, mint, ms, v)
         brake = min(ts[TS_BRAKE_FORCE], grip)
         for k in range(n_i):
-            force += _inverter_substep(k, t, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,
-                                       lst, v, ts[TS_ACCEL], i_link)
+            _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, cols)
+        if any_held:
+            held_voltage_step(cols, mpar.shape[0], h)
+        for k in range(n_i):
+            force += _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,
+                                       lst, v, ts[TS_ACCEL], i_link, cols)
         line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link)
         f_grade = gradient_force(mass, tpar[TP_GRAVITY], tu[TU_GRADIENT])
         v_new, resist = step_speed(v, force - f_grade, tpar[TP_DAVIS_A] + brake + curve,
@@ -362,6 +435,7 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
                 ms[m, MS_CREEP_VEL] = ms[m, MS_OMEGA_W] * mpar[m, MP_WHEEL_R] - v_new
         probe_values(probe_src, probe_row, probe_col, ss, ls2, lst, ist, ms, trace[s])
 
+    store_columns(mx, cols)
     for k in range(n_i):
         ist[k, IS_IDC] /= frame
     for link in range(lst.shape[0]):

@@ -280,16 +280,18 @@ def stator_current_integral(mx: np.ndarray, m: int, ps0: complex, pr0: complex, 
 
 
 @compiled_inline
-def step_flux_sine(mx: np.ndarray, m: int, e0: complex, e1: complex):
-    """Advance motor m one sub-step from an ideal sinusoidal source, exactly.
+def step_flux_sine(mx: np.ndarray, m: int, e0: complex, e1: complex, psi_s: complex,
+                   psi_r: complex):
+    """Advance motor m's flux linkages (psi_s, psi_r at the step's start) one sub-step
+    from an ideal sinusoidal source, exactly.
 
     u(t) = amp e^{j theta(t)}, given at the step's ends as e0 = u(0), e1 = u(h) (the
     same for every motor of the source: computed once by the caller); with the particular
     solution x_p = P u the homogeneous part decays with Phi:
     x(h) = Phi (x(0) - x_p(0)) + x_p(h).
     """
-    ps0 = mx[m, MX_PSI_S] - mx[m, MX_P1] * e0
-    pr0 = mx[m, MX_PSI_R] - mx[m, MX_P2] * e0
+    ps0 = psi_s - mx[m, MX_P1] * e0
+    pr0 = psi_r - mx[m, MX_P2] * e0
     ps1 = mx[m, MX_PHI11] * ps0 + mx[m, MX_PHI12] * pr0 + mx[m, MX_P1] * e1
     pr1 = mx[m, MX_PHI21] * ps0 + mx[m, MX_PHI22] * pr0 + mx[m, MX_P2] * e1
     return ps1, pr1

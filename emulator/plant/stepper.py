@@ -134,7 +134,7 @@ class Plant:
         n_sub, h = self._n_sub, self._h
         probes = self.probes
         advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, *self._state_arrays,
-                      probes.src, probes.row, probes.col, probes.rows_for(n_sub))
+                      probes.src, probes.row, probes.col, probes.rows_for(n_sub), self.cols)
         probes.took(self.frames + 1, n_sub, h)
         power_quality.window_update(self.ss, self._pq_ring, self._pq_sum,
                                     self.frames % len(self._pq_ring))
