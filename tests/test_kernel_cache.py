@@ -64,8 +64,7 @@ DEMO_ENTRY_POINTS = {"emulator.plant.kernel.advance_frame",
                      "emulator.link.msgpack_array.pack",
                      "emulator.link.telegram._read_plain"}
 #: callees of those (not inlined: kernels of their own) that only a fresh compile types
-CALLEES = {"emulator.plant.machine.refresh_matrices",
-           "emulator.controller.period_kernel.period",
+CALLEES = {"emulator.controller.period_kernel.period",
            "emulator.link.msgpack_array.unpack_scaled",
            "emulator.plant.inverter.blocked_bridge",
            "emulator.plant.thermal.thermal_frame",

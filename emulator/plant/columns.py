@@ -11,9 +11,10 @@ no array as free of aliasing, and with a stride known only at run time the compi
 would need a run-time overlap check for every pair of columns, and gives up. Hence the
 compile-time stride and a limit of ``W`` motors and inverters to a plant.
 
-Between frames the motors' arrays (``ms``, ``mx``) hold the state, as before:
-machine_columns.py loads the columns after each refresh of the matrices and stores
-them back at the frame's end.
+Between frames the motors' arrays (``ms``, ``mx``) hold the state, as before: each
+refresh of the matrices (machine.refresh_matrices) writes the columns too, and
+machine_columns.store_columns puts the state back before the next refresh and at the
+frame's end.
 """
 
 from __future__ import annotations

@@ -29,9 +29,6 @@ import cmath
 import math
 
 from .columns import (
-    B_IR_RE,
-    B_IS_RE,
-    B_PR_RE,
     B_PS_RE,
     C_E_CU_R,
     C_E_CU_S,
@@ -158,12 +155,13 @@ from .machine import (
     step_flux_sine,
     torque,
 )
-from .machine_columns import held_voltage_step, keep_start, load_columns, store_columns
+from .machine_columns import held_voltage_step, keep_start, store_columns
 from .probe import probe_values
 from .shaft import (
     axle_loads,
     brake_cylinders,
     contact_forces,
+    load_contact_columns,
     locked_hold,
     shaft_step,
     unmotored_grip,
@@ -173,8 +171,9 @@ from .train import gradient_force, step_speed
 
 
 @compiled
-def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval):
-    """Freeze each motor's speed for the coming interval and rebuild its matrices."""
+def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval, c):
+    """Freeze each motor's speed for the coming interval and rebuild its matrices (into
+    mx, ms and the columns c)."""
     for m in range(mpar.shape[0]):
         mode = mint[m, MI_SHAFT_MODE]
         om = ms[m, MS_OMEGA_M]
@@ -196,11 +195,11 @@ def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval):
         sine_omega = 2.0 * math.pi * iu[k, IU_SINE_FREQ]
         refresh_matrices(mpar, ms, mx, m, mpar[m, MP_POLE_PAIRS] * om_ref, h, sine_on,
                          sine_omega,
-                         sat_i[m], sat_psi[m], mint[m, MI_SAT_POINTS])
+                         sat_i[m], sat_psi[m], mint[m, MI_SAT_POINTS], c)
 
 
 @compiled_inline
-def _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, c):
+def _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, c, any_held):
     """Inverter k's stator voltage for the sub-step, from the phase currents at its start:
     into C_U_* for each of its motors, and for the inverter (IW_*) with its legs'
     switching functions, drops and switching power. Keeps aside the start of each motor
@@ -259,13 +258,13 @@ def _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, c):
     c[IW_P_SW * W + k] = p_sw
     for m in range(first, last):
         put_c(c, C_U_RE, m, u)
-        if source == SOURCE_SINE or mu[m, MU_OPEN_PHASE] > 0.0:
+        if any_held and (source == SOURCE_SINE or mu[m, MU_OPEN_PHASE] > 0.0):
             keep_start(c, m)
 
 
 @compiled_inline
 def _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, a_train,
-                      i_link, c):
+                      i_link, c, any_held):
     """The rest of inverter k's sub-step after every motor's held-voltage step
     (machine_columns.held_voltage_step): the motors of a sine source and with an open
     phase, the core losses, the energies, the shafts, the phase currents and the DC side;
@@ -284,10 +283,11 @@ def _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v,
         pp = mpar[m, MP_POLE_PAIRS]
         open_phase = int(mu[m, MU_OPEN_PHASE])
         if source == SOURCE_SINE or open_phase > 0:
-            ps0 = get_c(c, B_PS_RE, m)
-            pr0 = get_c(c, B_PR_RE, m)
-            is0 = get_c(c, B_IS_RE, m)
-            ir0 = get_c(c, B_IR_RE, m)
+            start = B_PS_RE if any_held else C_PS_RE  # (kept aside if the pass ran)
+            ps0 = get_c(c, start, m)
+            pr0 = get_c(c, start + 2, m)
+            is0 = get_c(c, start + 4, m)
+            ir0 = get_c(c, start + 6, m)
             if source == SOURCE_SINE:
                 ps1, pr1 = step_flux_sine(mx, m, u, u1, ps0, pr0)
                 is1, ir1 = currents_frozen(ms, m, ps1, pr1)
@@ -300,7 +300,7 @@ def _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v,
                 e_in = c[C_E_IN * W + m]
             if open_phase > 0:
                 ps1 = open_phase_flux(ms, m, ps1, pr1, open_phase - 1)
-            is1, ir1 = currents_frozen(ms, m, ps1, pr1)
+                is1, ir1 = currents_frozen(ms, m, ps1, pr1)
             put_c(c, C_PS_RE, m, ps1)
             put_c(c, C_PR_RE, m, pr1)
             put_c(c, C_IS_RE, m, is1)
@@ -338,7 +338,7 @@ def _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v,
         ms[m, MS_Q_ROTOR] += e_cu_r
         t0 = ms[m, MS_TORQUE]  # end of the last sub-step (set again at each refresh)
         ms[m, MS_TORQUE] = t1
-        force_sum += shaft_step(mpar, mint, mu, ms, m, 0.5 * (t0 + t1), v, a_train, h)
+        force_sum += shaft_step(mpar, mint, mu, ms, c, m, 0.5 * (t0 + t1), v, a_train, h)
 
     ia, ib, ic = phase_currents(i_end)
     ist[k, IS_IA] = ia
@@ -387,32 +387,36 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     m_eff = mass * (1.0 + tpar[TP_ROT_ALLOWANCE])
     curve = max(tu[TU_CURVE_RESISTANCE], 0.0)  # a friction: against motion, holds at rest
     axle_loads(mpar, mint, ms)
+    load_contact_columns(mpar, cols)
     grip = unmotored_grip(mpar, mint, tpar)
     line_frame_start(ss, ls2, lst)
     any_held = False  # (a bench's sine sources alone need no held-voltage pass)
     for k in range(n_i):
         any_held = any_held or iint[k, II_SOURCE] != SOURCE_SINE
+    any_contact = False  # (nor its free shafts a contact law)
+    for m in range(mpar.shape[0]):
+        any_contact = any_contact or mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN
     for s in range(n_sub):
         t = t0 + s * h
         if s == 0 or refresh_each:
             if s > 0:
                 store_columns(mx, cols)
             _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h,
-                     h if refresh_each else frame)
-            load_columns(mpar, ms, mx, cols)
+                     h if refresh_each else frame, cols)
         v = ts[TS_SPEED]
         force = 0.0
         i_link[:, :] = 0.0
         brake_cylinders(mpar, mint, mu, ms, tu, ts, h)
-        contact_forces(mpar, mint, ms, v)
+        if any_contact:
+            contact_forces(mpar, ms, cols, v)
         brake = min(ts[TS_BRAKE_FORCE], grip)
         for k in range(n_i):
-            _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, cols)
+            _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, cols, any_held)
         if any_held:
             held_voltage_step(cols, mpar.shape[0], h)
         for k in range(n_i):
             force += _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist,
-                                       lst, v, ts[TS_ACCEL], i_link, cols)
+                                       lst, v, ts[TS_ACCEL], i_link, cols, any_held)
         line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link)
         f_grade = gradient_force(mass, tpar[TP_GRAVITY], tu[TU_GRADIENT])
         v_new, resist = step_speed(v, force - f_grade, tpar[TP_DAVIS_A] + brake + curve,

@@ -116,9 +116,7 @@ MS_E_BRAKE = 31  # friction brake energy of the axle, J
 MS_AXLE_LOAD = 32  # axle load in use (static plus load transfer), N
 MS_E_IRON = 33  # iron loss energy (the core-loss resistance), J
 MS_E_FW = 34  # friction and windage energy, J
-MS_CONTACT_F = 35  # the contact law's creep force at the start of the sub-step, N, and
-MS_CONTACT_DF = 36  # its slope by slip velocity, N s/m (shaft.contact_forces; scratch)
-MS_N = 37
+MS_N = 35
 
 # --- motor complex data: complex128 [n_motor, MX_N] -----------------------------------
 MX_PSI_S = 0  # stator flux linkage space vector (stationary frame), V s

@@ -25,7 +25,29 @@ import math
 
 import numpy as np
 
-from .jit import compiled, compiled_inline
+from .columns import (
+    C_CRR,
+    C_CSR,
+    C_CSS,
+    C_G1_RE,
+    C_G2_RE,
+    C_IR_RE,
+    C_IS_RE,
+    C_KI1_RE,
+    C_KI2_RE,
+    C_P11_RE,
+    C_P12_RE,
+    C_P21_RE,
+    C_P22_RE,
+    C_PP,
+    C_PR_RE,
+    C_PS_RE,
+    C_RR,
+    C_RS,
+    W,
+    put_c,
+)
+from .jit import compiled_inline
 from .layout import (
     MP_ALPHA_R,
     MP_ALPHA_S,
@@ -73,7 +95,7 @@ def winding_resistance(r_ref: float, alpha: float, temp_k: float, temp_ref_k: fl
     return r_ref * (1.0 + alpha * (temp_k - temp_ref_k))
 
 
-@compiled
+@compiled_inline
 def saturated_lm(i_m: float, table_i: np.ndarray, table_psi: np.ndarray, n: int,
                  lm_linear: float) -> float:
     """Secant magnetising inductance L_m = psi_m(i_m) / i_m from a magnetising curve.
@@ -168,11 +190,14 @@ def torque(psi_s: complex, i_s: complex, pole_pairs: float) -> float:
     return 1.5 * pole_pairs * (psi_s.real * i_s.imag - psi_s.imag * i_s.real)
 
 
-@compiled
+@compiled_inline
 def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: int,
                      omega_e: float, h: float, sine_on: bool, sine_omega: float,
-                     sat_i: np.ndarray, sat_psi: np.ndarray, sat_n: int) -> None:
-    """Recompute motor m's zero-order-hold matrices for rotor speed omega_e (electrical).
+                     sat_i: np.ndarray, sat_psi: np.ndarray, sat_n: int,
+                     c: np.ndarray) -> None:
+    """Recompute motor m's zero-order-hold matrices for rotor speed omega_e (electrical),
+    into mx and ms and, with the flux linkages and currents the frame starts from, into
+    the kernel's columns c (columns.py).
 
     Resistances follow the winding temperatures, L_m the saturation curve at the present
     magnetising current. Also stores the coefficients of the exact stator-current
@@ -247,6 +272,24 @@ def refresh_matrices(mpar: np.ndarray, mstate: np.ndarray, mx: np.ndarray, m: in
     mx[m, MX_IS] = i_s
     mx[m, MX_IR] = scaled(ls / d, pr) - scaled(csr, ps)
     mstate[m, MS_TORQUE] = torque(ps, i_s, mpar[m, MP_POLE_PAIRS])
+    put_c(c, C_PS_RE, m, ps)
+    put_c(c, C_PR_RE, m, pr)
+    put_c(c, C_IS_RE, m, i_s)
+    put_c(c, C_IR_RE, m, mx[m, MX_IR])
+    put_c(c, C_P11_RE, m, phi11)
+    put_c(c, C_P12_RE, m, phi12)
+    put_c(c, C_P21_RE, m, phi21)
+    put_c(c, C_P22_RE, m, phi22)
+    put_c(c, C_G1_RE, m, g1)
+    put_c(c, C_G2_RE, m, g2)
+    put_c(c, C_KI1_RE, m, mx[m, MX_KI1])
+    put_c(c, C_KI2_RE, m, mx[m, MX_KI2])
+    c[C_CSS * W + m] = css
+    c[C_CSR * W + m] = csr
+    c[C_CRR * W + m] = mstate[m, MS_CRR]
+    c[C_RS * W + m] = rs
+    c[C_RR * W + m] = rr
+    c[C_PP * W + m] = mpar[m, MP_POLE_PAIRS]
     # particular solution of dx/dt = A x + B U e^{j w t}: x_p = (j w I - A)^{-1} B U e^{j w t}
     if sine_on:
         jw = complex(0.0, sine_omega)

@@ -57,53 +57,14 @@ from .columns import (
     C_U_RE,
     W,
     get_c,
-    put_c,
 )
 from .jit import compiled_inline
 from .layout import (
-    MP_POLE_PAIRS,
-    MS_CRR,
-    MS_CSR,
-    MS_CSS,
-    MS_RR,
-    MS_RS,
-    MX_G1,
-    MX_G2,
     MX_IR,
     MX_IS,
-    MX_KI1,
-    MX_KI2,
-    MX_PHI11,
-    MX_PHI12,
-    MX_PHI21,
-    MX_PHI22,
     MX_PSI_R,
     MX_PSI_S,
 )
-
-
-@compiled_inline
-def load_columns(mpar, ms, mx, c):
-    """After the matrices' refresh: the state and the frame's coefficients into columns."""
-    for m in range(mpar.shape[0]):
-        put_c(c, C_PS_RE, m, mx[m, MX_PSI_S])
-        put_c(c, C_PR_RE, m, mx[m, MX_PSI_R])
-        put_c(c, C_IS_RE, m, mx[m, MX_IS])
-        put_c(c, C_IR_RE, m, mx[m, MX_IR])
-        put_c(c, C_P11_RE, m, mx[m, MX_PHI11])
-        put_c(c, C_P12_RE, m, mx[m, MX_PHI12])
-        put_c(c, C_P21_RE, m, mx[m, MX_PHI21])
-        put_c(c, C_P22_RE, m, mx[m, MX_PHI22])
-        put_c(c, C_G1_RE, m, mx[m, MX_G1])
-        put_c(c, C_G2_RE, m, mx[m, MX_G2])
-        put_c(c, C_KI1_RE, m, mx[m, MX_KI1])
-        put_c(c, C_KI2_RE, m, mx[m, MX_KI2])
-        c[C_CSS * W + m] = ms[m, MS_CSS]
-        c[C_CSR * W + m] = ms[m, MS_CSR]
-        c[C_CRR * W + m] = ms[m, MS_CRR]
-        c[C_RS * W + m] = ms[m, MS_RS]
-        c[C_RR * W + m] = ms[m, MS_RR]
-        c[C_PP * W + m] = mpar[m, MP_POLE_PAIRS]
 
 
 @compiled_inline

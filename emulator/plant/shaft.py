@@ -8,7 +8,28 @@ from __future__ import annotations
 
 import math
 
-from .drivetrain import polach_core, wheel_torque
+from .columns import (
+    K_A,
+    K_ATAN,
+    K_B,
+    K_DEPS,
+    K_DF,
+    K_DMU,
+    K_EX,
+    K_F,
+    K_KA,
+    K_KAE,
+    K_KAPPA,
+    K_KS,
+    K_KSE,
+    K_MU,
+    K_MU0,
+    K_SCALE,
+    K_VREF,
+    K_W,
+    W,
+)
+from .drivetrain import wheel_torque
 from .jit import compiled_inline
 from .layout import (
     LT_TERMS,
@@ -39,8 +60,6 @@ from .layout import (
     MS_ADHESION_UTIL,
     MS_AXLE_LOAD,
     MS_BRAKE_FORCE,
-    MS_CONTACT_DF,
-    MS_CONTACT_F,
     MS_CREEP_FORCE,
     MS_E_BRAKE,
     MS_E_DAMPER,
@@ -77,7 +96,7 @@ def start_direction(j_eff, d_free, brake_torque, h):
 
 
 @compiled_inline
-def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
+def shaft_step(mpar, mint, mu, ms, c, m, t_avg, v, a_train, h):
     """Advance motor m's shaft; returns the creep force applied to the train, N.
 
     Drivetrain mode, two-mass (MP_K_SHAFT > 0): the rotor with the gear, J_1 = J_r +
@@ -96,7 +115,7 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
     turning and holds it at rest up to its size (a locked wheel).
 
     The creep force F and its slope at the step's start come from contact_forces, which
-    the kernel runs over all axles earlier in the same sub-step.
+    the kernel runs over all axles earlier in the same sub-step (into the columns c).
     """
     mode = mint[m, MI_SHAFT_MODE]
     om = ms[m, MS_OMEGA_M]
@@ -110,8 +129,8 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
         eff = mpar[m, MP_GEAR_EFF]
         ow = ms[m, MS_OMEGA_W]
         mu0 = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
-        f = ms[m, MS_CONTACT_F]  # at w = ow r - v (contact_forces, this sub-step)
-        kk = max(ms[m, MS_CONTACT_DF], 0.0)  # the falling branch stays explicit
+        f = c[K_F * W + m]  # at w = ow r - v (contact_forces, this sub-step)
+        kk = max(c[K_DF * W + m], 0.0)  # the falling branch stays explicit
         tb = ms[m, MS_BRAKE_FORCE] * r  # brake torque at the wheelset, >= 0
         k = mpar[m, MP_K_SHAFT]
         if k > 0.0:
@@ -198,22 +217,68 @@ def shaft_step(mpar, mint, mu, ms, m, t_avg, v, a_train, h):
 
 
 @compiled_inline
-def contact_forces(mpar, mint, ms, v):
-    """Each motored axle's creep force and its slope at the slip velocity w = omega_w r - v
-    of the sub-step's start (drivetrain.polach_core), into MS_CONTACT_F and
-    MS_CONTACT_DF for shaft_step. The same arithmetic as in shaft_step itself, in a short
-    pass of its own over the axles ahead of the long per-motor one: there each axle's
-    exponential and arctangent waited on the one before; here the processor overlaps
-    the axles' (the 128-motor frame's cost is latency, not arithmetic)."""
+def load_contact_columns(mpar, c):
+    """The contact law's constants for the frame into the columns (after axle_loads)."""
     for m in range(mpar.shape[0]):
-        if mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN:
-            w = ms[m, MS_OMEGA_W] * mpar[m, MP_WHEEL_R] - v
-            mu0 = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
-            f, df = polach_core(w, v, mpar[m, MP_POL_KAPPA], mpar[m, MP_POL_SCALE],
-                                mpar[m, MP_KA], mpar[m, MP_KS], mu0, mpar[m, MP_POL_A],
-                                mpar[m, MP_POL_B], mpar[m, MP_CREEP_VREF])
-            ms[m, MS_CONTACT_F] = f
-            ms[m, MS_CONTACT_DF] = df
+        c[K_KAPPA * W + m] = mpar[m, MP_POL_KAPPA]
+        c[K_SCALE * W + m] = mpar[m, MP_POL_SCALE]
+        c[K_KA * W + m] = mpar[m, MP_KA]
+        c[K_KS * W + m] = mpar[m, MP_KS]
+        c[K_MU0 * W + m] = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
+        c[K_A * W + m] = mpar[m, MP_POL_A]
+        c[K_B * W + m] = mpar[m, MP_POL_B]
+        c[K_VREF * W + m] = mpar[m, MP_CREEP_VREF]
+
+
+@compiled_inline
+def contact_forces(mpar, ms, c, v):
+    """Each axle's creep force and its slope at the slip velocity w = omega_w r - v of the
+    sub-step's start, into the columns K_F and K_DF for shaft_step: drivetrain.polach_core
+    for every motor (used only on the motored axles' drivetrains), its arithmetic in the
+    same order, so the same to the bit (tests/plant/test_columns.py compares them).
+
+    In four passes over the motors (columns.py): the exponential and the arctangent,
+    calls into the maths library, each in a short scalar loop of its own; the arithmetic
+    around them (a square root and four divisions an axle) in loops the compiler
+    vectorises. In one loop each axle's chain of dependent operations waited on the
+    one before; the 128-motor frame's cost is that latency, not the arithmetic."""
+    n = mpar.shape[0]
+    for m in range(n):
+        w = ms[m, MS_OMEGA_W] * mpar[m, MP_WHEEL_R] - v
+        c[K_W * W + m] = w
+        c[K_EX * W + m] = math.exp(-c[K_B * W + m] * abs(w))
+    for m in range(n):
+        aw = abs(c[K_W * W + m])
+        ex = c[K_EX * W + m]
+        mu0 = c[K_MU0 * W + m]
+        a_ratio = c[K_A * W + m]
+        v_ref = c[K_VREF * W + m]
+        mu = mu0 * ((1.0 - a_ratio) * ex + a_ratio)
+        dmu = -mu0 * (1.0 - a_ratio) * c[K_B * W + m] * ex  # d mu / d|w|
+        inv_mu = 1.0 / mu
+        cc = c[K_KAPPA * W + m] * inv_mu / math.sqrt(v * v + v_ref * v_ref)
+        eps = cc * aw
+        c[K_MU * W + m] = mu
+        c[K_DMU * W + m] = dmu
+        c[K_DEPS * W + m] = cc * (1.0 - aw * dmu * inv_mu)
+        c[K_KAE * W + m] = c[K_KA * W + m] * eps
+        c[K_KSE * W + m] = c[K_KS * W + m] * eps
+    for m in range(n):
+        c[K_ATAN * W + m] = math.atan(c[K_KSE * W + m])
+    for m in range(n):
+        ka_e = c[K_KAE * W + m]
+        ks_e = c[K_KSE * W + m]
+        k_a = c[K_KA * W + m]
+        mu = c[K_MU * W + m]
+        g = 1.0 / (1.0 + ka_e * ka_e)
+        f = ka_e * g + c[K_ATAN * W + m]
+        df = k_a * (1.0 - ka_e * ka_e) * g * g + c[K_KS * W + m] / (1.0 + ks_e * ks_e)
+        scale = c[K_SCALE * W + m]
+        force = scale * mu * f
+        dforce = scale * (c[K_DMU * W + m] * f + mu * df * c[K_DEPS * W + m])
+        off = c[K_MU0 * W + m] <= 0.0  # no friction: no force
+        c[K_F * W + m] = 0.0 if off else (force if c[K_W * W + m] >= 0.0 else -force)
+        c[K_DF * W + m] = 0.0 if off else dforce
 
 
 @compiled_inline

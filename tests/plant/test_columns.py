@@ -1,0 +1,168 @@
+"""The kernel's passes over motors laid out as columns (plant/columns.py) against the
+per-motor functions they were written from, to the last bit.
+
+The column passes exist only for speed: the same arithmetic in the same order, on a
+layout the compiler vectorises. The per-motor functions (machine.step_flux,
+currents_frozen, stator_current_integral, torque; drivetrain.polach_core) are the
+readable description, and machine.py's docstring gives their equations and sources.
+Inputs are random, in the ranges a traction machine and a wheel-rail contact have.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from emulator.plant import layout as L  # noqa: N812
+from emulator.plant.columns import (
+    C_CRR,
+    C_CSR,
+    C_CSS,
+    C_E_CU_R,
+    C_E_CU_S,
+    C_E_IN,
+    C_G1_RE,
+    C_G2_RE,
+    C_INT_RE,
+    C_IR_RE,
+    C_IS_RE,
+    C_KI1_RE,
+    C_KI2_RE,
+    C_P11_RE,
+    C_P12_RE,
+    C_P21_RE,
+    C_P22_RE,
+    C_PP,
+    C_PR_RE,
+    C_PS_RE,
+    C_RR,
+    C_RS,
+    C_T1,
+    C_U_RE,
+    K_DF,
+    K_F,
+    W,
+    column_buffer,
+)
+from emulator.plant.drivetrain import polach_core
+from emulator.plant.machine import (
+    currents_frozen,
+    stator_current_integral,
+    step_flux,
+    torque,
+)
+from emulator.plant.machine_columns import held_voltage_step
+from emulator.plant.shaft import contact_forces, load_contact_columns
+
+
+def _complex(rng, n, scale):
+    return scale * (rng.uniform(-1, 1, n) + 1j * rng.uniform(-1, 1, n))
+
+
+def _put(c, f, values):
+    c[f * W: f * W + len(values)] = values.real
+    c[(f + 1) * W: (f + 1) * W + len(values)] = values.imag
+
+
+def _get(c, f, n):
+    return c[f * W: f * W + n] + 1j * c[(f + 1) * W: (f + 1) * W + n]
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_the_held_voltage_pass_is_the_per_motor_step_to_the_bit(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    n, h = 37, 125e-6
+    mx = np.zeros((n, L.MX_N), dtype=np.complex128)
+    ms = np.zeros((n, L.MS_N))
+    for f, scale in ((L.MX_PSI_S, 2.5), (L.MX_PSI_R, 2.5), (L.MX_IS, 800.0),
+                     (L.MX_IR, 800.0), (L.MX_PHI11, 1.0), (L.MX_PHI12, 0.05),
+                     (L.MX_PHI21, 0.05), (L.MX_PHI22, 1.0), (L.MX_G1, 1.2e-4),
+                     (L.MX_G2, 1e-5), (L.MX_KI1, 400.0), (L.MX_KI2, 400.0)):
+        mx[:, f] = _complex(rng, n, scale)
+    ms[:, L.MS_CSS] = rng.uniform(50, 400, n)
+    ms[:, L.MS_CSR] = rng.uniform(50, 400, n)
+    ms[:, L.MS_CRR] = rng.uniform(50, 400, n)
+    ms[:, L.MS_RS] = rng.uniform(0.01, 0.1, n)
+    ms[:, L.MS_RR] = rng.uniform(0.01, 0.1, n)
+    pole_pairs = rng.integers(1, 4, n).astype(float)
+    u = _complex(rng, n, 1500.0)
+
+    c = column_buffer(n, 1)
+    for f, col in ((C_PS_RE, L.MX_PSI_S), (C_PR_RE, L.MX_PSI_R), (C_IS_RE, L.MX_IS),
+                   (C_IR_RE, L.MX_IR), (C_P11_RE, L.MX_PHI11), (C_P12_RE, L.MX_PHI12),
+                   (C_P21_RE, L.MX_PHI21), (C_P22_RE, L.MX_PHI22), (C_G1_RE, L.MX_G1),
+                   (C_G2_RE, L.MX_G2), (C_KI1_RE, L.MX_KI1), (C_KI2_RE, L.MX_KI2)):
+        _put(c, f, mx[:, col])
+    for f, col in ((C_CSS, L.MS_CSS), (C_CSR, L.MS_CSR), (C_CRR, L.MS_CRR), (C_RS, L.MS_RS),
+                   (C_RR, L.MS_RR)):
+        c[f * W: f * W + n] = ms[:, col]
+    c[C_PP * W: C_PP * W + n] = pole_pairs
+    _put(c, C_U_RE, u)
+    held_voltage_step(c, n, h)
+
+    for m in range(n):
+        ps0, pr0 = mx[m, L.MX_PSI_S], mx[m, L.MX_PSI_R]
+        is0, ir0 = mx[m, L.MX_IS], mx[m, L.MX_IR]
+        ps1, pr1 = step_flux(mx, m, u[m])
+        is1, ir1 = currents_frozen(ms, m, ps1, pr1)
+        int_is = stator_current_integral(mx, m, ps0, pr0, ps1, pr1, u[m], h)
+        e_in = 1.5 * (u[m] * int_is.conjugate()).real
+        assert _get(c, C_PS_RE, n)[m] == ps1
+        assert _get(c, C_PR_RE, n)[m] == pr1
+        assert _get(c, C_IS_RE, n)[m] == is1
+        assert _get(c, C_IR_RE, n)[m] == ir1
+        assert _get(c, C_INT_RE, n)[m] == int_is
+        assert c[C_E_IN * W + m] == e_in
+        assert c[C_T1 * W + m] == torque(ps1, is1, pole_pairs[m])
+        assert c[C_E_CU_S * W + m] == 0.75 * h * ms[m, L.MS_RS] * (
+            (is0.real * is0.real + is0.imag * is0.imag)
+            + (is1.real * is1.real + is1.imag * is1.imag))
+        assert c[C_E_CU_R * W + m] == 0.75 * h * ms[m, L.MS_RR] * (
+            (ir0.real * ir0.real + ir0.imag * ir0.imag)
+            + (ir1.real * ir1.real + ir1.imag * ir1.imag))
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_the_contact_passes_are_polach_core_to_the_bit(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    n = 41
+    mpar = np.zeros((n, L.MP_N))
+    ms = np.zeros((n, L.MS_N))
+    v = float(rng.uniform(0.0, 45.0))
+    mpar[:, L.MP_WHEEL_R] = rng.uniform(0.4, 0.5, n)
+    # slip velocities from -3 to +3 m/s about the train's speed, some exactly rolling
+    w = rng.uniform(-3.0, 3.0, n) * rng.choice([0.0, 0.01, 1.0], n)
+    ms[:, L.MS_OMEGA_W] = (v + w) / mpar[:, L.MP_WHEEL_R]
+    load = rng.uniform(50e3, 110e3, n)
+    mpar[:, L.MP_POL_KAPPA] = 0.25 * np.pi * rng.uniform(1e8, 3e8, n) / load
+    mpar[:, L.MP_POL_SCALE] = 2.0 * load / np.pi
+    mpar[:, L.MP_KA] = rng.uniform(0.1, 1.0, n)
+    mpar[:, L.MP_KS] = rng.uniform(0.1, 1.0, n)
+    mpar[:, L.MP_MU0] = rng.choice([0.0, 0.2, 0.3, 0.55], n)  # no friction, some
+    mpar[:, L.MP_ADHESION_FACTOR] = rng.uniform(0.2, 1.0, n)
+    mpar[:, L.MP_POL_A] = rng.uniform(0.2, 0.5, n)
+    mpar[:, L.MP_POL_B] = rng.uniform(0.2, 0.7, n)
+    mpar[:, L.MP_CREEP_VREF] = rng.uniform(0.5, 2.0, n)
+
+    c = column_buffer(n, 1)
+    load_contact_columns(mpar, c)
+    contact_forces(mpar, ms, c, v)
+
+    for m in range(n):
+        slip = ms[m, L.MS_OMEGA_W] * mpar[m, L.MP_WHEEL_R] - v
+        f, df = polach_core(slip, v, mpar[m, L.MP_POL_KAPPA], mpar[m, L.MP_POL_SCALE],
+                            mpar[m, L.MP_KA], mpar[m, L.MP_KS],
+                            mpar[m, L.MP_MU0] * mpar[m, L.MP_ADHESION_FACTOR],
+                            mpar[m, L.MP_POL_A], mpar[m, L.MP_POL_B],
+                            mpar[m, L.MP_CREEP_VREF])
+        assert c[K_F * W + m] == f, m
+        assert c[K_DF * W + m] == df, m
+    # (not of nothing: forces both ways, and the frictionless axles give none)
+    forces = c[K_F * W: K_F * W + n]
+    assert (forces > 0).any() and (forces < 0).any()
+    assert (forces[mpar[:, L.MP_MU0] == 0.0] == 0.0).all()
+
+
+def test_a_plant_has_at_most_the_columns_motors() -> None:
+    with pytest.raises(ValueError, match="at most"):
+        column_buffer(W + 1, 1)
