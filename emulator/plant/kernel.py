@@ -247,19 +247,24 @@ def _bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, c, any_
         p_sw = pa + pb + pc
     ist[k, IS_U_ALPHA] = u.real
     ist[k, IS_U_BETA] = u.imag
-    put_c(c, IW_U1_RE, k, u1)
     c[IW_BLOCKED * W + k] = 1.0 if blocked else 0.0
-    c[IW_S_A * W + k] = s_a
-    c[IW_S_B * W + k] = s_b
-    c[IW_S_C * W + k] = s_c
-    c[IW_DR_A * W + k] = dr_a
-    c[IW_DR_B * W + k] = dr_b
-    c[IW_DR_C * W + k] = dr_c
-    c[IW_P_SW * W + k] = p_sw
-    for m in range(first, last):
-        put_c(c, C_U_RE, m, u)
-        if any_held and (source == SOURCE_SINE or mu[m, MU_OPEN_PHASE] > 0.0):
-            keep_start(c, m)
+    if source == SOURCE_SINE:
+        put_c(c, IW_U1_RE, k, u1)
+        if any_held:
+            for m in range(first, last):
+                keep_start(c, m)
+    else:
+        c[IW_S_A * W + k] = s_a
+        c[IW_S_B * W + k] = s_b
+        c[IW_S_C * W + k] = s_c
+        c[IW_DR_A * W + k] = dr_a
+        c[IW_DR_B * W + k] = dr_b
+        c[IW_DR_C * W + k] = dr_c
+        c[IW_P_SW * W + k] = p_sw
+        for m in range(first, last):
+            put_c(c, C_U_RE, m, u)
+            if mu[m, MU_OPEN_PHASE] > 0.0:
+                keep_start(c, m)
 
 
 @compiled_inline
@@ -275,7 +280,7 @@ def _inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v,
     source = iint[k, II_SOURCE]
     blocked = c[IW_BLOCKED * W + k] > 0.5
     u = complex(ist[k, IS_U_ALPHA], ist[k, IS_U_BETA])
-    u1 = get_c(c, IW_U1_RE, k)
+    u1 = get_c(c, IW_U1_RE, k) if source == SOURCE_SINE else 0j
     force_sum = 0.0
     int_i = 0j
     i_end = 0j
@@ -387,15 +392,16 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     m_eff = mass * (1.0 + tpar[TP_ROT_ALLOWANCE])
     curve = max(tu[TU_CURVE_RESISTANCE], 0.0)  # a friction: against motion, holds at rest
     axle_loads(mpar, mint, ms)
-    load_contact_columns(mpar, cols)
-    grip = unmotored_grip(mpar, mint, tpar)
-    line_frame_start(ss, ls2, lst)
     any_held = False  # (a bench's sine sources alone need no held-voltage pass)
     for k in range(n_i):
         any_held = any_held or iint[k, II_SOURCE] != SOURCE_SINE
     any_contact = False  # (nor its free shafts a contact law)
     for m in range(mpar.shape[0]):
         any_contact = any_contact or mint[m, MI_SHAFT_MODE] == SHAFT_DRIVETRAIN
+    if any_contact:
+        load_contact_columns(mpar, cols)
+    grip = unmotored_grip(mpar, mint, tpar)
+    line_frame_start(ss, ls2, lst)
     for s in range(n_sub):
         t = t0 + s * h
         if s == 0 or refresh_each:
