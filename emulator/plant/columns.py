@@ -22,8 +22,9 @@ from __future__ import annotations
 import numpy as np
 
 from .jit import compiled_inline
+from .params import MAX_MOTORS
 
-W = 520  #: the most motors (and inverters) a plant has; the stride of a field
+W = MAX_MOTORS  #: the most motors (and inverters) a plant has; the stride of a field
 # (520 * 8 bytes is not a multiple of 4096: the fields do not compete for cache sets)
 
 # the machines: flux linkages and currents at the sub-step's start (its end, after it)

@@ -6,6 +6,11 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
+#: the most motors (and inverters) a plant steps: the stride of its column buffer
+#: (columns.py), fixed when the kernel is compiled (a trainset profile has at most 400
+#: axles; only a plant built in code can ask for more, and is refused)
+MAX_MOTORS = 520
+
 
 @dataclass(frozen=True)
 class MachineThermal:
