@@ -64,11 +64,15 @@ class InverterGuards:
         after that)."""
         return self.hardware_latched[k] and self.block_until[k] - t < 3.5 * period_s
 
-    def released_at_speed(self, k: int, t: float) -> None:
-        """A V/f drive released at speed waits for its rotor's flux to die away: it turns
-        with the rotor, and the restart's voltage, ramped from zero, meets it as a source
-        of its own (a restart 0.4 s after the release at 30 km/h drew 1.2 kA and braked
-        the train)."""
+    def stopped_at_speed(self, k: int, t: float) -> None:
+        """A V/f drive that stops at speed (released after its demand, blocked by a trip,
+        stopped by its link or the switch-on sequence) waits for its rotor's flux to die
+        away: the flux turns with the rotor, and the restart's voltage, ramped from zero
+        at the control's own angle, meets it as a source of its own. A restart 0.4 s
+        after a release at 30 km/h drew 1.2 kA and braked the train; one 0.2 s after a
+        single spurious hardware trip at 50 km/h drew 1.5 kA and tripped again. (A
+        flying restart, which finds the flux's angle and speed and starts into it, would
+        not wait; the reference controller has none.)"""
         self.block_until[k] = max(self.block_until[k], t + self.flux_decay_s)
 
     def ready_share(self, t: float, motors: tuple[int, ...]) -> float:

@@ -402,8 +402,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             p_links[link] += given * motor_speed * n_m
             achieved += estimate * n_m
         else:
-            if (k[K_VECTOR] <= 0.0 and row[I_ENABLED_FOR] > 0.0 and not demanded
-                    and abs(v) > k[K_MAGNETISED_MPS]):  # (InverterGuards.released_at_speed)
+            if (k[K_VECTOR] <= 0.0 and row[I_ENABLED_FOR] > 0.0
+                    and abs(v) > k[K_MAGNETISED_MPS]):  # (InverterGuards.stopped_at_speed)
                 row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_FLUX_DECAY_S])
             row[I_ENABLED_FOR] = 0.0
             row[I_RELEASED] = 0.0 if demanded else 1.0

@@ -373,9 +373,9 @@ class ReferenceController(SignalPositions):
                 p_links[link] += given * motor_speed * n_mot
                 achieved += estimate * n_mot
             else:
-                if (self.vector is None and self.enabled_for[k] > 0.0 and not demanded
+                if (self.vector is None and self.enabled_for[k] > 0.0
                         and abs(v) > MAGNETISED_ABOVE_MPS):
-                    guards.released_at_speed(k, self.t)
+                    guards.stopped_at_speed(k, self.t)
                 self.enabled_for[k] = 0.0
                 self.released[k] = not demanded
                 if self.vector is not None:

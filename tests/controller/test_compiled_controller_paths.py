@@ -167,7 +167,9 @@ def test_random_drive_gives_the_same_commands(layout: str, control: str) -> None
     twin.assert_identical(at_least=10000)
     plain = twin.plain
     # the run went where it was meant to: motors driven, trips and faults on the way
-    assert states["active"] > 500, states
+    assert states["active"] > 200, states  # (2 % of the periods: the active paths ran;
+    # a V/f drive that stops at speed then waits 1.9 s for its flux, so fewer than a
+    # vector drive's)
     if control == "scalar" and layout == "dc-fed":  # the V/f slip trim learned, the same
         assert any(c.slip_trim != 0.0 for c in twin.plain.scalar)  # in both twins
     assert {11, 30, 41, 50, 80} <= set(plain.events), plain.events
