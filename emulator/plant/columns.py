@@ -38,7 +38,7 @@ W = MAX_MOTORS  #: the most motors (and inverters) a plant has; the stride of a 
  # results of the sub-step: the stator current's integral (A s), the energy in at the
  # terminals, the copper losses (J), the torque at its end (N m)
  C_INT_RE, C_INT_IM, C_E_IN, C_E_CU_S, C_E_CU_R, C_T1,
- # the start-of-step state of the motors the scalar path steps
+ # the start-of-step state of the motors the scalar path steps or corrects (kernel.py)
  B_PS_RE, B_PS_IM, B_PR_RE, B_PR_IM, B_IS_RE, B_IS_IM, B_IR_RE, B_IR_IM,
  # per inverter (row k): a sine source's voltage at the sub-step's end, whether the
  # gates are blocked, each leg's switching function and signed drop, the switching power
@@ -57,7 +57,7 @@ def column_buffer(n_motors: int, n_inverters: int) -> np.ndarray:
     """The buffer for a plant of n_motors motors on n_inverters inverters."""
     if max(n_motors, n_inverters) > W:
         raise ValueError(f"the plant steps at most {W} motors and {W} inverters; this "
-                         f"trainset has {n_motors} motors on {n_inverters} inverters")
+                         f"trainset has {n_motors} motors and {n_inverters} inverters")
     return np.zeros(C_N * W)
 
 

@@ -5,8 +5,10 @@ Order inside each sub-step of length h (commands held over the frame):
 1. per inverter: the held stator voltage from duties, DC-link voltage and the sign of
    each phase current at the start of the sub-step (dead time, device drops), or the
    diode-bridge voltage when the gates are blocked, or an ideal sinusoidal source;
-2. per motor: exact zero-order-hold step of the flux linkages (machine.py) with the
-   rotor speed frozen at the refresh value; energies from exact flux integrals;
+2. all motors at once on the column buffer (machine_columns.py), then per inverter the
+   sine sources' motors and open phases: exact zero-order-hold step of the flux
+   linkages (machine.py) with the rotor speed frozen at the refresh value; energies
+   from exact flux integrals;
 3. per motor shaft (shaft.py): rotor, gear, coupling and wheelset (rigid or two-mass)
    with the creep force linearised and stepped by backward Euler on the slip velocity
    (the contact is stiff: tau ~ 0.1 ms per m/s of speed) and the friction brake at the
@@ -15,7 +17,7 @@ Order inside each sub-step of length h (commands held over the frame):
 
 Once a frame, before the sub-steps: the axle loads from the creep forces (load transfer).
 Each sub-step, first: the brake cylinders follow their demands, and the contact law
-gives each axle's creep force at its slip (used in 3).
+gives each axle's creep force at its slip (on the column buffer; used in 3).
 
 The machine matrices are refreshed at the start of each frame (default) or of each
 sub-step (``refresh_each``), at the speed predicted for the middle of the interval,
@@ -382,7 +384,8 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
     Arrays are laid out as in layout.py and updated in place. t0 is the plant time at
     the start of the frame, s; periodic sources are evaluated at each sub-step's instant.
     After each sub-step s, trace[s] takes the probed values (probe.py). cols is the
-    machines' column buffer (machine_columns.py): their state within the frame.
+    column buffer (columns.py): the machines' electrical state and coefficients and the
+    contact law's values within the frame.
     """
     n_i = ipar.shape[0]
     frame = n_sub * h

@@ -8,9 +8,13 @@ In the per-motor loop each motor's sub-step is a chain of dependent operations t
 processor cannot overlap with the next motor's; here one loop runs over all the motors
 and the compiler packs several motors into each vector instruction.
 
-Motors fed from a sinusoidal source or with an open phase are stepped by the scalar path
-in kernel.py; their start-of-step state is kept aside (``B_*``) before this pass, which
-runs over every motor and overwrites it.
+The arithmetic is the same to the bit for finite values (numba's complex product from
+Python 3.14 on also recovers infinities from NaN results, which this does not).
+
+Motors fed from a sinusoidal source are stepped by the scalar path in kernel.py, and a
+motor with an open phase is corrected there after this pass (its flux, currents, copper
+losses and torque again, from the pass's end flux); the start-of-step state of both is
+kept aside (``B_*``) before this pass, which runs over every motor and overwrites it.
 """
 
 from __future__ import annotations
@@ -79,7 +83,7 @@ def store_columns(mx, c):
 
 @compiled_inline
 def keep_start(c, m):
-    """Keep motor m's start-of-step state aside (the scalar path will step it)."""
+    """Keep motor m's start-of-step state aside (the scalar path steps or corrects it)."""
     for f in range(8):
         c[(B_PS_RE + f) * W + m] = c[(C_PS_RE + f) * W + m]
 

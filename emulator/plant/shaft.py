@@ -96,7 +96,7 @@ def start_direction(j_eff, d_free, brake_torque, h):
 
 
 @compiled_inline
-def shaft_step(mpar, mint, mu, ms, c, m, t_avg, v, a_train, h):
+def shaft_step(mpar, mint, mu, ms, cols, m, t_avg, v, a_train, h):
     """Advance motor m's shaft; returns the creep force applied to the train, N.
 
     Drivetrain mode, two-mass (MP_K_SHAFT > 0): the rotor with the gear, J_1 = J_r +
@@ -115,7 +115,7 @@ def shaft_step(mpar, mint, mu, ms, c, m, t_avg, v, a_train, h):
     turning and holds it at rest up to its size (a locked wheel).
 
     The creep force F and its slope at the step's start come from contact_forces, which
-    the kernel runs over all axles earlier in the same sub-step (into the columns c).
+    the kernel runs over all axles earlier in the same sub-step (into the columns cols).
     """
     mode = mint[m, MI_SHAFT_MODE]
     om = ms[m, MS_OMEGA_M]
@@ -129,8 +129,8 @@ def shaft_step(mpar, mint, mu, ms, c, m, t_avg, v, a_train, h):
         eff = mpar[m, MP_GEAR_EFF]
         ow = ms[m, MS_OMEGA_W]
         mu0 = mpar[m, MP_MU0] * mpar[m, MP_ADHESION_FACTOR]
-        f = c[K_F * W + m]  # at w = ow r - v (contact_forces, this sub-step)
-        kk = max(c[K_DF * W + m], 0.0)  # the falling branch stays explicit
+        f = cols[K_F * W + m]  # at w = ow r - v (contact_forces, this sub-step)
+        kk = max(cols[K_DF * W + m], 0.0)  # the falling branch stays explicit
         tb = ms[m, MS_BRAKE_FORCE] * r  # brake torque at the wheelset, >= 0
         k = mpar[m, MP_K_SHAFT]
         if k > 0.0:

@@ -13,6 +13,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from emulator.bench.plant import _frame, _loaded_plant, replicated
+from emulator.plant import Commands, Plant
 from emulator.plant import layout as L  # noqa: N812
 from emulator.plant.columns import (
     C_CRR,
@@ -28,6 +30,7 @@ from emulator.plant.columns import (
     C_IS_RE,
     C_KI1_RE,
     C_KI2_RE,
+    C_N,
     C_P11_RE,
     C_P12_RE,
     C_P21_RE,
@@ -52,7 +55,11 @@ from emulator.plant.machine import (
     torque,
 )
 from emulator.plant.machine_columns import held_voltage_step
+from emulator.plant.probe import SRC_INVERTER
 from emulator.plant.shaft import contact_forces, load_contact_columns
+from emulator.profiles.reader import load_trainset
+
+from .conftest import TRAINSET, machine_profile
 
 
 def _complex(rng, n, scale):
@@ -66,6 +73,17 @@ def _put(c, f, values):
 
 def _get(c, f, n):
     return c[f * W: f * W + n] + 1j * c[(f + 1) * W: (f + 1) * W + n]
+
+
+def _bits(x) -> tuple[int, ...]:
+    """A float's or complex's bit patterns: equal bits, not merely equal values (0.0 and
+    -0.0 differ here)."""
+    z = complex(x)
+    return tuple(int(np.float64(v).view(np.uint64)) for v in (z.real, z.imag))
+
+
+def same(a, b) -> bool:
+    return _bits(a) == _bits(b)
 
 
 @pytest.mark.parametrize("seed", range(4))
@@ -107,19 +125,19 @@ def test_the_held_voltage_pass_is_the_per_motor_step_to_the_bit(seed: int) -> No
         is1, ir1 = currents_frozen(ms, m, ps1, pr1)
         int_is = stator_current_integral(mx, m, ps0, pr0, ps1, pr1, u[m], h)
         e_in = 1.5 * (u[m] * int_is.conjugate()).real
-        assert _get(c, C_PS_RE, n)[m] == ps1
-        assert _get(c, C_PR_RE, n)[m] == pr1
-        assert _get(c, C_IS_RE, n)[m] == is1
-        assert _get(c, C_IR_RE, n)[m] == ir1
-        assert _get(c, C_INT_RE, n)[m] == int_is
-        assert c[C_E_IN * W + m] == e_in
-        assert c[C_T1 * W + m] == torque(ps1, is1, pole_pairs[m])
-        assert c[C_E_CU_S * W + m] == 0.75 * h * ms[m, L.MS_RS] * (
+        assert same(_get(c, C_PS_RE, n)[m], ps1)
+        assert same(_get(c, C_PR_RE, n)[m], pr1)
+        assert same(_get(c, C_IS_RE, n)[m], is1)
+        assert same(_get(c, C_IR_RE, n)[m], ir1)
+        assert same(_get(c, C_INT_RE, n)[m], int_is)
+        assert same(c[C_E_IN * W + m], e_in)
+        assert same(c[C_T1 * W + m], torque(ps1, is1, pole_pairs[m]))
+        assert same(c[C_E_CU_S * W + m], 0.75 * h * ms[m, L.MS_RS] * (
             (is0.real * is0.real + is0.imag * is0.imag)
-            + (is1.real * is1.real + is1.imag * is1.imag))
-        assert c[C_E_CU_R * W + m] == 0.75 * h * ms[m, L.MS_RR] * (
+            + (is1.real * is1.real + is1.imag * is1.imag)))
+        assert same(c[C_E_CU_R * W + m], 0.75 * h * ms[m, L.MS_RR] * (
             (ir0.real * ir0.real + ir0.imag * ir0.imag)
-            + (ir1.real * ir1.real + ir1.imag * ir1.imag))
+            + (ir1.real * ir1.real + ir1.imag * ir1.imag)))
 
 
 @pytest.mark.parametrize("seed", range(4))
@@ -155,14 +173,74 @@ def test_the_contact_passes_are_polach_core_to_the_bit(seed: int) -> None:
                             mpar[m, L.MP_MU0] * mpar[m, L.MP_ADHESION_FACTOR],
                             mpar[m, L.MP_POL_A], mpar[m, L.MP_POL_B],
                             mpar[m, L.MP_CREEP_VREF])
-        assert c[K_F * W + m] == f, m
-        assert c[K_DF * W + m] == df, m
+        assert same(c[K_F * W + m], f), m
+        assert same(c[K_DF * W + m], df), m
     # (not of nothing: forces both ways, and the frictionless axles give none)
     forces = c[K_F * W: K_F * W + n]
     assert (forces > 0).any() and (forces < 0).any()
     assert (forces[mpar[:, L.MP_MU0] == 0.0] == 0.0).all()
 
 
-def test_a_plant_has_at_most_the_columns_motors() -> None:
+def test_after_a_frame_the_columns_hold_the_motors_state_and_coefficients() -> None:
+    # what the refresh writes into the columns and the frame's end writes back: the
+    # same quantities, to the bit, as mx and ms hold (the demo trainset under load)
+    plant, vf = _loaded_plant(load_trainset(TRAINSET))
+    for _ in range(3):
+        _frame(plant, vf)
+    c, n = plant.cols, plant.n_motors
+    for f, col in ((C_PS_RE, L.MX_PSI_S), (C_PR_RE, L.MX_PSI_R), (C_IS_RE, L.MX_IS),
+                   (C_IR_RE, L.MX_IR), (C_P11_RE, L.MX_PHI11), (C_P12_RE, L.MX_PHI12),
+                   (C_P21_RE, L.MX_PHI21), (C_P22_RE, L.MX_PHI22), (C_G1_RE, L.MX_G1),
+                   (C_G2_RE, L.MX_G2), (C_KI1_RE, L.MX_KI1), (C_KI2_RE, L.MX_KI2)):
+        assert all(same(a, b) for a, b in zip(_get(c, f, n), plant.mx[:, col], strict=True)), f
+    for f, col in ((C_CSS, L.MS_CSS), (C_CSR, L.MS_CSR), (C_CRR, L.MS_CRR), (C_RS, L.MS_RS),
+                   (C_RR, L.MS_RR)):
+        assert all(same(a, b) for a, b in zip(c[f * W: f * W + n], plant.ms[:, col],
+                                              strict=True)), f
+    assert (c[C_PP * W: C_PP * W + n] == plant.mpar[:, L.MP_POLE_PAIRS]).all()
+    assert (np.abs(plant.mx[:, L.MX_IS]) > 100.0).all()  # (under load: not of zeros)
+
+
+@pytest.mark.parametrize("refresh_each", [False, True])
+def test_an_open_phase_on_an_inverter_keeps_its_current_and_copper_loss(
+        refresh_each: bool) -> None:
+    # a motor with phase b open on a (ideal) inverter, not a sine source: the open
+    # phase carries no current (Fitzgerald, Kingsley and Umans, single-phasing), and the
+    # stator copper loss over each sub-step is the trapezoid of 3/2 R_s |i_s|^2 with
+    # |i_s|^2 = 2/3 (i_a^2 + i_b^2 + i_c^2) (amplitude-invariant Clarke transform)
+    machine = machine_profile("textbook-3hp")
+    plant = Plant.test_bench(machine, dc_link_v=400.0, refresh_each_substep=refresh_each)
+    plant.mpar[:, L.MP_G_CORE] = 0.0  # (the phase currents are the stator's alone)
+    f_hz, slip = 60.0, 0.03
+    plant.impose_speed(0, (1 - slip) * 2 * np.pi * f_hz / machine.pole_pairs)
+    plant.set_open_phase(0, 1)
+    plant.probes.set(np.full(3, SRC_INVERTER), np.zeros(3, dtype=int),
+                     np.array([L.IS_IA, L.IS_IB, L.IS_IC]))
+    amp = 0.8 * 200.0  # phase voltage amplitude within half the link
+    gates = np.ones(1, dtype=bool)
+    i2_before = 0.0
+    for frame in range(120):
+        theta = 2 * np.pi * f_hz * (plant.time_s + 0.5 * plant.params.frame_s)
+        duty = 0.5 + amp / 400.0 * np.cos(theta - 2 * np.pi * np.arange(3) / 3)
+        e0 = plant.ms[0, L.MS_E_CU_S]
+        plant.advance(Commands(duty.reshape(1, 3), gates))
+        trace = plant.probes.trace[:plant.probes.n_sub]
+        i2 = 2.0 / 3.0 * (trace ** 2).sum(axis=1)
+        starts = np.concatenate([[i2_before], i2[:-1]])
+        expected = (0.75 * plant.probes.h * plant.ms[0, L.MS_RS] * (starts + i2)).sum()
+        i2_before = i2[-1]
+        if frame < 20:
+            continue  # (the first frames start from the trace of none)
+        assert plant.ms[0, L.MS_E_CU_S] - e0 == pytest.approx(expected, rel=1e-9)
+        assert np.abs(trace[:, 1]).max() < 1e-9 * np.abs(trace).max()
+    assert np.abs(trace).max() > 10.0  # (a current flows in the live phases)
+
+
+def test_a_plant_has_at_most_the_columns_motors_and_inverters() -> None:
+    assert column_buffer(W, W).shape == (C_N * W,)
     with pytest.raises(ValueError, match="at most"):
         column_buffer(W + 1, 1)
+    with pytest.raises(ValueError, match="at most"):
+        column_buffer(1, W + 1)
+    with pytest.raises(ValueError, match=f"at most {W} motors"):
+        Plant(replicated(load_trainset(TRAINSET), W + 1))
