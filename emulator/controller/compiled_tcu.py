@@ -137,7 +137,7 @@ class CompiledController(ref.ReferenceController):
         k[pp.K_LOCK_S], k[pp.K_ROTATING_FACTOR] = ref.LOCK_S, ref.ROTATING_FACTOR
         k[pp.K_RESET_S] = guard.HARDWARE_RESET_S
         k[pp.K_TRIPS_TO_ISOLATE] = guard.HARDWARE_TRIPS_TO_ISOLATE
-        k[pp.K_TRIP_WINDOW_S] = guard.HARDWARE_WINDOW_S
+        k[pp.K_TRIP_WINDOW_S] = guard.trip_window_s(self.flux_decay_s)
         k[pp.K_MAGNETISED_MPS], k[pp.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
         pll = self.pll
         k[pp.K_PLL_K], k[pp.K_PLL_W_NOM] = pll.k, pll.w_nom

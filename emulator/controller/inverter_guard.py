@@ -4,10 +4,11 @@ must stay off, and when its gate drivers are reset.
 Per inverter, from its sampled phase currents, the drivers' trip bit and its link:
 a software overcurrent blocks it 0.1 s; a hardware trip (the bit rising) blocks it
 HARDWARE_RESET_S and resets the drivers for the last periods of that, and an inverter
-that trips HARDWARE_TRIPS_TO_ISOLATE times within HARDWARE_WINDOW_S stays blocked; a low
+that trips HARDWARE_TRIPS_TO_ISOLATE times within its trip window stays blocked; a low
 link while effort is asked for stops it until the link and the rotor flux allow a
-restart (ride_through). The compiled period (period_kernel.py) does the same on its
-inverter rows.
+restart (ride_through). A V/f drive that stops at speed is blocked longer, until its
+rotor's flux has died away (stopped_at_speed; its drivers are reset at the end of
+that). The compiled period (period_kernel.py) does the same on its inverter rows.
 """
 
 from __future__ import annotations
@@ -22,9 +23,20 @@ OVERCURRENT_A = 1200.0  # a sampled phase current above this blocks the inverter
 OVERCURRENT_BLOCK_S = 0.1
 HARDWARE_TRIP_BIT = 8  # bit 3 of gate_fault: the drivers' latched hardware trip
 HARDWARE_RESET_S = 0.2  # gates off after a hardware trip before the drivers are reset
+# (a V/f drive at speed: until its flux has died away, stopped_at_speed)
 HARDWARE_TRIPS_TO_ISOLATE = 3  # ... and an inverter that trips this often within
-HARDWARE_WINDOW_S = 10.0  # this long is isolated: left blocked, no more resets (common
-# practice of traction protection: a repeated hardware trip means a fault, not a transient)
+HARDWARE_WINDOW_S = 10.0  # this long, plus the flux waits of its retries (trip_window_s),
+# is isolated: left blocked, no more resets (common practice of traction protection: a
+# repeated hardware trip means a fault, not a transient)
+
+
+def trip_window_s(flux_decay_s: float) -> float:
+    """How far back the trips that isolate an inverter are counted: HARDWARE_WINDOW_S
+    plus a flux wait for each retry, so that a V/f drive that waits out its flux before
+    each retry is still isolated however slow its rotor's flux decays (with the window
+    alone, a wait of 5 s or more would leave the third trip outside it, and the inverter
+    would be retried for ever)."""
+    return HARDWARE_WINDOW_S + (HARDWARE_TRIPS_TO_ISOLATE - 1) * flux_decay_s
 
 
 class InverterGuards:
@@ -37,6 +49,7 @@ class InverterGuards:
         self.undervolted = [False] * n_inverters  # stopped by a low link, not restarted
         self.restart_after = [0.0] * n_inverters
         self.flux_decay_s = flux_decay_s
+        self.trip_window_s = trip_window_s(flux_decay_s)
 
     def judge(self, k: int, t: float, currents: tuple[float, float, float], gate_fault: float,
               raise_event) -> None:
@@ -51,7 +64,7 @@ class InverterGuards:
         tripped = int(gate_fault) & HARDWARE_TRIP_BIT
         if tripped and not self.hardware_latched[k]:
             raise_event(events.HARDWARE_TRIP)
-            recent = [s for s in self.hardware_trips[k] if t - s < HARDWARE_WINDOW_S]
+            recent = [s for s in self.hardware_trips[k] if t - s < self.trip_window_s]
             self.hardware_trips[k] = [*recent, t]
             isolate = len(self.hardware_trips[k]) >= HARDWARE_TRIPS_TO_ISOLATE
             self.block_until[k] = (math.inf if isolate
