@@ -27,9 +27,7 @@ from .columns import (
     C_E_CU_R,
     C_E_CU_S,
     C_E_IN,
-    C_G1_IM,
     C_G1_RE,
-    C_G2_IM,
     C_G2_RE,
     C_INT_IM,
     C_INT_RE,
@@ -37,17 +35,11 @@ from .columns import (
     C_IR_RE,
     C_IS_IM,
     C_IS_RE,
-    C_KI1_IM,
     C_KI1_RE,
-    C_KI2_IM,
     C_KI2_RE,
-    C_P11_IM,
     C_P11_RE,
-    C_P12_IM,
     C_P12_RE,
-    C_P21_IM,
     C_P21_RE,
-    C_P22_IM,
     C_P22_RE,
     C_PP,
     C_PR_IM,
@@ -89,6 +81,15 @@ def keep_start(c, m):
 
 
 @compiled_inline
+def _times(c, f, m, xr, xi):
+    """The complex coefficient in fields f, f + 1 of motor m times x = xr + j xi, as
+    numba multiplies complex numbers: (ac - bd) + j(ad + bc)."""
+    a = c[f * W + m]
+    b = c[(f + 1) * W + m]
+    return a * xr - b * xi, a * xi + b * xr
+
+
+@compiled_inline
 def held_voltage_step(c, n, h):
     """Every motor's flux linkages, currents, current integral, terminal energy, copper
     losses and torque over one sub-step with its held voltage (C_U_*); machine.py gives
@@ -100,21 +101,15 @@ def held_voltage_step(c, n, h):
         pr0i = c[C_PR_IM * W + m]
         ur = c[C_U_RE * W + m]
         ui = c[C_U_IM * W + m]
-        # psi(h) = Phi psi(0) + Gamma u: each complex product (ac - bd) + j(ad + bc)
-        a, b = c[C_P11_RE * W + m], c[C_P11_IM * W + m]
-        t1r, t1i = a * ps0r - b * ps0i, a * ps0i + b * ps0r
-        a, b = c[C_P12_RE * W + m], c[C_P12_IM * W + m]
-        t2r, t2i = a * pr0r - b * pr0i, a * pr0i + b * pr0r
-        a, b = c[C_G1_RE * W + m], c[C_G1_IM * W + m]
-        t3r, t3i = a * ur - b * ui, a * ui + b * ur
+        # psi(h) = Phi psi(0) + Gamma u
+        t1r, t1i = _times(c, C_P11_RE, m, ps0r, ps0i)
+        t2r, t2i = _times(c, C_P12_RE, m, pr0r, pr0i)
+        t3r, t3i = _times(c, C_G1_RE, m, ur, ui)
         ps1r = t1r + t2r + t3r
         ps1i = t1i + t2i + t3i
-        a, b = c[C_P21_RE * W + m], c[C_P21_IM * W + m]
-        t1r, t1i = a * ps0r - b * ps0i, a * ps0i + b * ps0r
-        a, b = c[C_P22_RE * W + m], c[C_P22_IM * W + m]
-        t2r, t2i = a * pr0r - b * pr0i, a * pr0i + b * pr0r
-        a, b = c[C_G2_RE * W + m], c[C_G2_IM * W + m]
-        t3r, t3i = a * ur - b * ui, a * ui + b * ur
+        t1r, t1i = _times(c, C_P21_RE, m, ps0r, ps0i)
+        t2r, t2i = _times(c, C_P22_RE, m, pr0r, pr0i)
+        t3r, t3i = _times(c, C_G2_RE, m, ur, ui)
         pr1r = t1r + t2r + t3r
         pr1i = t1i + t2i + t3i
         # currents with the frame's coefficients (currents_frozen)
@@ -130,10 +125,8 @@ def held_voltage_step(c, n, h):
         dsi = ps1i - ps0i - h * ui
         drr = pr1r - pr0r
         dri = pr1i - pr0i
-        a, b = c[C_KI1_RE * W + m], c[C_KI1_IM * W + m]
-        t1r, t1i = a * dsr - b * dsi, a * dsi + b * dsr
-        a, b = c[C_KI2_RE * W + m], c[C_KI2_IM * W + m]
-        t2r, t2i = a * drr - b * dri, a * dri + b * drr
+        t1r, t1i = _times(c, C_KI1_RE, m, dsr, dsi)
+        t2r, t2i = _times(c, C_KI2_RE, m, drr, dri)
         intr = t1r + t2r
         inti = t1i + t2i
         # 3/2 Re(u conj(int i_s)): exact for the held voltage
