@@ -11,10 +11,10 @@ no array as free of aliasing, and with a stride known only at run time the compi
 would need a run-time overlap check for every pair of columns, and gives up. Hence the
 compile-time stride and a limit of ``W`` motors and inverters to a plant.
 
-Between frames the motors' arrays (``ms``, ``mx``) hold the state, as before: each
-refresh of the matrices (machine.refresh_matrices) writes the columns too, and
-machine_columns.store_columns puts the state back before the next refresh and at the
-frame's end.
+``ms`` stays current throughout (the probes read it every sub-step); ``mx``'s state
+(flux linkages and currents) lags within a frame: each refresh of the matrices
+(machine.refresh_matrices) writes the columns too, and machine_columns.store_columns
+puts the state back before the next refresh and at the frame's end.
 """
 
 from __future__ import annotations
@@ -38,7 +38,8 @@ W = MAX_MOTORS  #: the most motors (and inverters) a plant has; the stride of a 
  # results of the sub-step: the stator current's integral (A s), the energy in at the
  # terminals, the copper losses (J), the torque at its end (N m)
  C_INT_RE, C_INT_IM, C_E_IN, C_E_CU_S, C_E_CU_R, C_T1,
- # the start-of-step state of the motors the scalar path steps or corrects (kernel.py)
+ # the start-of-step state of the motors the scalar path steps or corrects
+ # (drive_substep.py)
  B_PS_RE, B_PS_IM, B_PR_RE, B_PR_IM, B_IS_RE, B_IS_IM, B_IR_RE, B_IR_IM,
  # per inverter (row k): a sine source's voltage at the sub-step's end, whether the
  # gates are blocked, each leg's switching function and signed drop, the switching power

@@ -3,16 +3,15 @@
 The same arithmetic as machine.py's ``step_flux``, ``currents_frozen``,
 ``stator_current_integral``, the copper losses and ``torque``, written out in real
 numbers as numba's complex operations are ((a + jb)(c + jd) = (ac - bd) + j(ad + bc),
-no contraction), so every result is the same to the bit; what changes is the layout.
-In the per-motor loop each motor's sub-step is a chain of dependent operations that the
-processor cannot overlap with the next motor's; here one loop runs over all the motors
-and the compiler packs several motors into each vector instruction.
+no contraction), so every finite result is the same to the bit (numba's complex product
+from Python 3.14 on also recovers infinities from NaN results, which this does not);
+what changes is the layout. In the per-motor loop each motor's sub-step is a chain of
+dependent operations that the processor cannot overlap with the next motor's; here one
+loop runs over all the motors and the compiler packs several motors into each vector
+instruction.
 
-The arithmetic is the same to the bit for finite values (numba's complex product from
-Python 3.14 on also recovers infinities from NaN results, which this does not).
-
-Motors fed from a sinusoidal source are stepped by the scalar path in kernel.py, and a
-motor with an open phase is corrected there after this pass (its flux, currents, copper
+Motors fed from a sinusoidal source are stepped by the scalar path in drive_substep.py,
+and a motor with an open phase is corrected there after this pass (its flux, currents, copper
 losses and torque again, from the pass's end flux); the start-of-step state of both is
 kept aside (``B_*``) before this pass, which runs over every motor and overwrites it.
 """
