@@ -41,17 +41,16 @@ W = MAX_MOTORS  #: the most motors (and inverters) a plant has; the stride of a 
  # the start-of-step state of the motors the scalar path steps or corrects
  # (drive_substep.py)
  B_PS_RE, B_PS_IM, B_PR_RE, B_PR_IM, B_IS_RE, B_IS_IM, B_IR_RE, B_IR_IM,
- # per inverter (row k): a sine source's voltage at the sub-step's end, whether the
- # gates are blocked, each leg's switching function and signed drop, the switching power
- IW_U1_RE, IW_U1_IM, IW_BLOCKED, IW_S_A, IW_S_B, IW_S_C, IW_DR_A, IW_DR_B, IW_DR_C,
- IW_P_SW,
+ # per inverter (row k): a sine source's voltage at the sub-step's end, each leg's
+ # switching function and signed drop, the switching power
+ IW_U1_RE, IW_U1_IM, IW_S_A, IW_S_B, IW_S_C, IW_DR_A, IW_DR_B, IW_DR_C, IW_P_SW,
  # the contact law's constants for the frame (drivetrain.polach_core's arguments; the
  # axle's friction mu0 with the rail's adhesion factor)
  K_KAPPA, K_SCALE, K_KA, K_KS, K_MU0, K_A, K_B, K_VREF,
  # its sub-step: the slip velocity, then the intermediate values and the results (the
  # creep force, N, and its slope by slip velocity, N s/m)
  K_W, K_EX, K_MU, K_DMU, K_DEPS, K_KAE, K_KSE, K_ATAN, K_F, K_DF,
- C_N) = range(75)
+ C_N) = range(74)
 
 
 def column_buffer(n_motors: int, n_inverters: int) -> np.ndarray:

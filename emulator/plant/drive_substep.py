@@ -22,7 +22,6 @@ from .columns import (
     C_PS_RE,
     C_T1,
     C_U_RE,
-    IW_BLOCKED,
     IW_DR_A,
     IW_DR_B,
     IW_DR_C,
@@ -94,9 +93,16 @@ from .machine import (
     torque,
 )
 from .machine_columns import keep_start
-from .shaft import (
-    shaft_step,
-)
+from .shaft import shaft_step
+
+
+@compiled_inline
+def gates_blocked(k, iint, iu, ist):
+    """Whether inverter k's gates are off this sub-step: commanded off, or latched by the
+    gate drivers' hardware trip (a sine source has no gates). The trip is set only at a
+    sub-step's end (inverter_substep), so both halves of the sub-step see the same."""
+    return iint[k, II_SOURCE] != SOURCE_SINE and (iu[k, IU_ENABLE] < 0.5
+                                                  or ist[k, IS_HW_TRIP] > 0.5)
 
 
 @compiled_inline
@@ -112,13 +118,13 @@ def bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, c, any_h
     i_tot = 0j
     g0 = 0j
     g1 = 0j
-    blocked = source != SOURCE_SINE and (iu[k, IU_ENABLE] < 0.5 or ist[k, IS_HW_TRIP] > 0.5)
+    blocked = gates_blocked(k, iint, iu, ist)
     u_prev = complex(ist[k, IS_U_ALPHA], ist[k, IS_U_BETA])
     for m in range(first, last):
         i_tot += get_c(c, C_IS_RE, m)
         if not blocked:
             i_tot += scaled(mpar[m, MP_G_CORE], u_prev)  # the core-loss branch's current
-        if blocked:
+        else:
             ps = get_c(c, C_PS_RE, m)
             pr = get_c(c, C_PR_RE, m)
             # end-of-step current with zero voltage, and its sensitivity to the voltage
@@ -148,7 +154,6 @@ def bridge_voltage(k, t, h, mpar, mu, ms, mx, ipar, iint, iu, ist, lst, c, any_h
         p_sw = pa + pb + pc
     ist[k, IS_U_ALPHA] = u.real
     ist[k, IS_U_BETA] = u.imag
-    c[IW_BLOCKED * W + k] = 1.0 if blocked else 0.0
     if source == SOURCE_SINE:
         put_c(c, IW_U1_RE, k, u1)
         if any_held:
@@ -179,7 +184,7 @@ def inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, 
     last = first + iint[k, II_MOTOR_COUNT]
     udc = lst[iint[k, II_LINK], LS_UDC]
     source = iint[k, II_SOURCE]
-    blocked = c[IW_BLOCKED * W + k] > 0.5
+    blocked = gates_blocked(k, iint, iu, ist)
     u = complex(ist[k, IS_U_ALPHA], ist[k, IS_U_BETA])
     u1 = get_c(c, IW_U1_RE, k) if source == SOURCE_SINE else 0j
     force_sum = 0.0
