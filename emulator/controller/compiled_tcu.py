@@ -37,6 +37,22 @@ from .effort import (
 from .speed_plausibility import SENSOR_JUMP
 
 
+def _state_attribute(index: int, whole: bool = False) -> property:
+    """An attribute of ReferenceController that the compiled period keeps in its train
+    state g (index pp.G_*): read from there, so that it is always the last period's.
+    Set, it is written there (the base class's __init__ sets it before g exists: its
+    zeros are g's own start)."""
+    def get(self):
+        return int(self._g[index]) if whole else self._g[index]
+
+    def put(self, value) -> None:
+        g = self.__dict__.get("_g")
+        if g is not None:
+            g[index] = value
+
+    return property(get, put)
+
+
 class CompiledController(ref.ReferenceController):
     """The reference controller, one compiled call a period."""
 
@@ -232,7 +248,9 @@ class CompiledController(ref.ReferenceController):
     # --- telegrams and the period -------------------------------------------------------
     def answer(self, payload: bytes) -> bytes:
         """The command telegram for a measurement telegram."""
-        raised = self._before_period()
+        counts = self._counts
+        self._g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0  # (_before_period)
+        raised = counts[0]
         n = _answer_plain(np.frombuffer(payload, dtype=np.uint8), self._head, self._y,
                           self._scratch, self._m_scale, self._last_seq, self._reply_head,
                           self._c_inv, self._wire, self._commands, *self._period_arrays)
@@ -246,8 +264,8 @@ class CompiledController(ref.ReferenceController):
             self._reply_head[1] = seq
             n = msgpack_array.pack(self._reply_head, self._commands, self._c_inv,
                                    self._wire)
-        else:
-            self._after_period(raised)
+        elif counts[0] != raised:  # (_after_period)
+            self._count_events()
         if n < 0:
             raise ValueError(f"command {self.c_names[-1 - n]} = {self._commands[-1 - n]!r} "
                              "is not finite: no answer")
@@ -293,14 +311,19 @@ class CompiledController(ref.ReferenceController):
         return int(self._counts[0])
 
     def _after_period(self, raised: int) -> None:
-        """The attributes the Python class keeps, from the state the period left."""
-        g, counts = self._g, self._counts
-        if counts[0] != raised:
-            self.events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
-        self.t = g[pp.G_T]
-        self.event = int(g[pp.G_EVENT])
-        self.effort_n = g[pp.G_EFFORT]
-        self.achieved_n, self.available_n = g[pp.G_ACHIEVED], g[pp.G_AVAILABLE]
+        """The events the Python class counts, from the state the period left (its other
+        attributes read the state: _state_attribute)."""
+        if self._counts[0] != raised:
+            self._count_events()
+
+    def _count_events(self) -> None:
+        self.events = Counter({c: int(n) for c, n in enumerate(self._counts) if n and c})
+
+    t = _state_attribute(pp.G_T)
+    event = _state_attribute(pp.G_EVENT, whole=True)
+    effort_n = _state_attribute(pp.G_EFFORT)
+    achieved_n = _state_attribute(pp.G_ACHIEVED)
+    available_n = _state_attribute(pp.G_AVAILABLE)
 
     def clear_events(self) -> None:
         """Forget the events counted so far."""

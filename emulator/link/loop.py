@@ -16,6 +16,7 @@ from urllib.parse import SplitResult
 from .base import Link, LinkError
 
 _channels: dict[str, list[LoopLink]] = {}
+_SETTINGS = ("drop", "duplicate", "reorder", "corrupt", "delay")  # (Manipulator.idle)
 
 
 @dataclass
@@ -50,10 +51,12 @@ class Manipulator:
         self._held: bytes | None = None
         self.counts = {"dropped": 0, "duplicated": 0, "reordered": 0, "corrupted": 0}
 
-    @property
-    def idle(self) -> bool:
-        """No manipulation configured: telegrams pass untouched."""
-        return not (self.drop or self.duplicate or self.reorder or self.corrupt or self.delay)
+    def __setattr__(self, name: str, value) -> None:
+        """Keep ``idle`` (no manipulation configured: telegrams pass untouched) up to
+        date with the settings, so that a send reads one attribute."""
+        object.__setattr__(self, name, value)
+        if name in _SETTINGS:
+            object.__setattr__(self, "idle", not any(getattr(self, s, 0) for s in _SETTINGS))
 
     def apply(self, payload: bytes) -> list[bytes]:
         """The telegrams that arrive now because payload was sent."""

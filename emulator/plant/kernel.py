@@ -87,6 +87,7 @@ from .machine import (
     torque,
 )
 from .machine_columns import held_voltage_step, store_columns
+from .power_quality import window_update
 from .probe import probe_values
 from .shaft import (
     axle_loads,
@@ -131,14 +132,17 @@ def _refresh(mpar, mint, mu, ms, mx, sat_i, sat_psi, iint, iu, h, interval, c):
 @compiled
 def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat_psi,
                   ipar, iint, iu, ist, lst, tpar, tu, ts, sp, harmonics, ss, lp, li, lu, ls2,
-                  kp, ku, i_link, probe_src, probe_row, probe_col, trace, cols):
+                  kp, ku, i_link, probe_src, probe_row, probe_col, trace, cols, pq_ring,
+                  pq_sum, pq_row):
     """Advance every converter, motor, axle and the train by n_sub sub-steps of h.
 
     Arrays are laid out as in layout.py and updated in place. t0 is the plant time at
     the start of the frame, s; periodic sources are evaluated at each sub-step's instant.
     After each sub-step s, trace[s] takes the probed values (probe.py). cols is the
     column buffer (columns.py): the machines' electrical state and coefficients and the
-    contact law's values within the frame.
+    contact law's values within the frame. Last, the frame's power-quality integrals go
+    into row pq_row of the window's ring pq_ring, its sums pq_sum
+    (power_quality.window_update).
     """
     n_i = ipar.shape[0]
     frame = n_sub * h
@@ -210,3 +214,4 @@ def advance_frame(n_sub, h, t0, refresh_each, mpar, mint, mu, ms, mx, sat_i, sat
         lst[iint[k, II_LINK], LS_IDC] += ist[k, IS_IDC]
     line_frame_end(frame, sp, ss, ls2, kp, lst, tpar[TP_AMBIENT])
     thermal_frame(mpar, ms, ipar, ist, tpar[TP_AMBIENT], frame)
+    window_update(ss, pq_ring, pq_sum, pq_row)

@@ -43,12 +43,9 @@ class Probes:
         self.row = np.zeros(0, dtype=np.int64)
         self.col = np.zeros(0, dtype=np.int64)
         self.trace = np.zeros((1, 0))
+        # set by the plant when its kernel has filled the trace (Plant.advance):
         self.frame = -1  # the plant's frame count after the frame the trace holds
         self.n_sub, self.h = 0, 0.0  # that frame's sub-steps
-
-    def took(self, frame: int, n_sub: int, h: float) -> None:
-        """The kernel has filled the trace with frame's n_sub sub-steps of h."""
-        self.frame, self.n_sub, self.h = frame, n_sub, h
 
     def set(self, src: np.ndarray, row: np.ndarray, col: np.ndarray) -> None:
         """Probe these values from the next frame on."""

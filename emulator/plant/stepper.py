@@ -17,7 +17,13 @@ from .build import build_line_side, build_load_transfer, build_motor_side, build
 from .commands import CommandError, Commands, LineCommands
 from .drivetrain import RAIL_CONDITIONS
 from .energy import EnergyAccount, energy_account
-from .inputs import COMMAND_NOT_FINITE, COMMAND_OUT_OF_RANGE, load_commands, load_line_commands
+from .inputs import (
+    COMMAND_NOT_FINITE,
+    LINE_NOT_FINITE,
+    command_error,
+    load_commands,
+    load_line_commands,
+)
 from .kernel import advance_frame
 from .line import SUPPLY_LEVELS
 from .machine import currents
@@ -123,21 +129,22 @@ class Plant:
         ``commands=None`` keeps the previous ones (or the ideal sources).
         """
         frame = self.params.frame_s if frame_s is None else frame_s
-        if not (math.isfinite(frame) and 1e-5 <= frame <= 1.0):
-            raise CommandError(f"frame length must be within 10 us .. 1 s, got {frame!r}")
-        if commands is not None:
-            self._apply(commands)
-        if frame != self._last_frame:
+        if frame != self._last_frame:  # (a frame that failed the check is never the last)
+            if not (math.isfinite(frame) and 1e-5 <= frame <= 1.0):
+                raise CommandError(f"frame length must be within 10 us .. 1 s, got {frame!r}")
             self._n_sub = max(1, math.ceil(frame / self.substep_s - 1e-9))
             self._h = frame / self._n_sub
             self._last_frame = frame
+        if commands is not None:
+            self._apply(commands)
         n_sub, h = self._n_sub, self._h
         probes = self.probes
+        trace = probes.trace if probes.trace.shape[0] >= n_sub else probes.rows_for(n_sub)
+        ring = self._pq_ring
         advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, *self._state_arrays,
-                      probes.src, probes.row, probes.col, probes.rows_for(n_sub), self.cols)
-        probes.took(self.frames + 1, n_sub, h)
-        power_quality.window_update(self.ss, self._pq_ring, self._pq_sum,
-                                    self.frames % len(self._pq_ring))
+                      probes.src, probes.row, probes.col, trace, self.cols, ring,
+                      self._pq_sum, self.frames % ring.shape[0])
+        probes.frame, probes.n_sub, probes.h = self.frames + 1, n_sub, h  # the trace's frame
         self.frames += 1
         self.substeps += n_sub
         # integer nanoseconds: t_k = k T exactly for a constant frame, no drift
@@ -158,10 +165,8 @@ class Plant:
                                   else np.any(reset)):
             self.reset_gate_drivers(reset)
         code = load_commands(duty, gates, self.iu)
-        if code == COMMAND_NOT_FINITE:
-            raise CommandError("duty cycles must be finite (NaN or inf received)")
-        if code == COMMAND_OUT_OF_RANGE:
-            raise CommandError("duty cycles must lie within 0..1")
+        if code:
+            raise command_error(code)
 
     def _checked_arrays(self, duty, gates) -> tuple[np.ndarray, np.ndarray]:
         """Duty and gate commands as arrays of the plant's shape and type; arrays that
@@ -212,10 +217,8 @@ class Plant:
         code = load_line_commands(arrays[0], arrays[1], arrays[2], arrays[3],
                                   1.0 if line.breaker else 0.0, chopper, self.lu, self.ss,
                                   self.ku)
-        if code == COMMAND_NOT_FINITE:
-            raise CommandError("line commands must be finite (NaN or inf received)")
-        if code == COMMAND_OUT_OF_RANGE:
-            raise CommandError("modulation must lie within -1..1 and chopper duty within 0..1")
+        if code:
+            raise command_error(code + LINE_NOT_FINITE - COMMAND_NOT_FINITE)
 
     # --- the supply (used by scenarios: level steps, dips, neutral sections) -----------
     def set_supply(self, *, voltage_rms_v: float | None = None,

@@ -177,6 +177,7 @@ class FrameStats:
         self.lateness_us = np.zeros(self.capacity, dtype=np.float32)
         self.compute_us = np.zeros(self.capacity, dtype=np.float32)
         self.histogram = np.zeros(len(LATENESS_BINS_US) + 1, dtype=np.int64)
+        self._on_time = 0  # frames not late, not yet in histogram[0] (record)
         self.frames = 0
         self.late_frames = 0  # started more than one period after their deadline
         self.max_lateness_us = 0.0
@@ -186,14 +187,18 @@ class FrameStats:
     def record(self, lateness_ns: int, compute_ns: int, period_ns: int) -> None:
         """Add one frame's start lateness and compute time."""
         i = self.frames % self.capacity
-        late_us = max(lateness_ns, 0) / 1e3
-        self.lateness_us[i] = late_us
         self.compute_us[i] = compute_ns / 1e3
+        self.frames += 1
+        if lateness_ns <= 0:  # (lockstep and afap: always)
+            self.lateness_us[i] = 0.0
+            self._on_time += 1  # the first bin's, added to it when read
+            return
+        late_us = lateness_ns / 1e3
+        self.lateness_us[i] = late_us
         self.histogram[bisect.bisect_left(LATENESS_BINS_US, late_us)] += 1
         if lateness_ns > period_ns:
             self.late_frames += 1
         self.max_lateness_us = max(self.max_lateness_us, late_us)
-        self.frames += 1
 
     def restart_cpu_window(self) -> None:
         """Start measuring the CPU share from now (after warm-up)."""
@@ -206,6 +211,8 @@ class FrameStats:
         late = self.lateness_us[:n] if n else np.zeros(1, dtype=np.float32)
         comp = self.compute_us[:n] if n else np.zeros(1, dtype=np.float32)
         wall = max(time.monotonic_ns() - self._wall0, 1)
+        self.histogram[0] += self._on_time
+        self._on_time = 0
         return {
             "frames": self.frames,
             "lateness_us_median": float(np.median(late)),

@@ -281,8 +281,8 @@ class Rig(LockstepPacing, RecordsFrames):
             self.faults.update()
             held = held.copy()
             self.faults.transform_command(held, self._command_index)
-        commands = self.mapper.commands(held, gates_allowed=not self.tripped)
-        self.plant.advance(commands, period_us / 1e6)
+        self.mapper.load(held, gates_allowed=not self.tripped)
+        self.plant.advance(None, period_us / 1e6)
         if self.recorder is not None:  # y_k, what acted in the frame, states at t_(k+1)
             row = self.fill_row(self.plant.time_s, self._y, held)
             self.recorder.append(row if self._record_pick is None else row[self._record_pick])
@@ -297,7 +297,8 @@ class Rig(LockstepPacing, RecordsFrames):
         """Warm every compiled path and take y_0 (call before the first frame)."""
         # compile or load every kernel on a throwaway plant of the same kind
         spare = Plant(self.params, ideal_dc_links=not self.plant.line_side)
-        spare.advance(self.mapper.commands(self.mapper.safe.copy()), self.period_us / 1e6)
+        CommandMapper(spare, self.signal_map).load(self.mapper.safe.copy())
+        spare.advance(None, self.period_us / 1e6)
         self.codec.encode(0, 0, 0, 0, self._y)
         self.codec.warm_up()  # the reader of commands
         self.sampler.warm_up()  # the path of the samples after a frame

@@ -76,20 +76,23 @@ class LockstepPacing:
         while not self._done(frames, stop):
             # poll briefly before blocking: a sleeping process wakes late on some machines
             # (tens of us to ms on a VM), which would pace lockstep more than the work does
-            spin_until = time.monotonic_ns() + LOCKSTEP_POLL_NS
-            while not self.link.pending() and time.monotonic_ns() < spin_until:
-                self.link.poll()
-                os.sched_yield()  # the core to the controller if it waits for one
-            if silence_s is None:  # the round trips changed since it was last asked
-                silence_s = self._silence_s()
-            if not self.link.pending() and not await self._wait_link(silence_s, stop):
-                if self._done(frames, stop):
-                    break
-                # the controller is silent (not started yet, or one of the telegrams was
-                # lost): plant time stands still; say the measurement again
-                self._repeat_measurement("silence")
-                silence_s = min(2 * silence_s, LOCKSTEP_REPEAT_MAX_S)
-                continue
+            link = self.link
+            if not link.pending():  # (an in-process controller has answered already)
+                spin_until = time.monotonic_ns() + LOCKSTEP_POLL_NS
+                while not link.pending() and time.monotonic_ns() < spin_until:
+                    link.poll()
+                    os.sched_yield()  # the core to the controller if it waits for one
+            if not link.pending():
+                if silence_s is None:  # the round trips changed since it was last asked
+                    silence_s = self._silence_s()
+                if not await self._wait_link(silence_s, stop):
+                    if self._done(frames, stop):
+                        break
+                    # the controller is silent (not started yet, or one of the telegrams
+                    # was lost): plant time stands still; say the measurement again
+                    self._repeat_measurement("silence")
+                    silence_s = min(2 * silence_s, LOCKSTEP_REPEAT_MAX_S)
+                    continue
             paced = False
             repeat = ""
             while not self._done(frames, stop):

@@ -16,6 +16,7 @@ import numpy as np
 
 from emulator.kernel_cache import WITHOUT_RUNTIME
 from emulator.plant import Commands, Plant
+from emulator.plant.inputs import command_error, load_mapped
 from emulator.plant.layout import (
     IS_HW_TRIP,
     IS_IA,
@@ -326,6 +327,7 @@ class CommandMapper:
         self._reset_pos = np.array([names.index(f"{c.name}.fault_reset") for c in convs])
         self._reply_pos = names.index("tcu.achieved_effort_kn")
         self._cmd = Commands(np.full((len(convs), 3), 0.5), np.zeros(len(convs), dtype=bool))
+        self._inputs = (plant.iu, plant.lu, plant.ss, plant.ku, plant.ist)  # (load)
         self._reset = np.zeros(len(convs), dtype=bool)
         self.safe = np.zeros(len(names))
         self.safe[self._duty_pos] = 0.5  # gates blocked, duties at mid
@@ -361,6 +363,18 @@ class CommandMapper:
         if cmd.line is not None:  # the breaker keeps its command under the watchdog too
             line.breaker = bool(values[breaker] >= 0.5)
         return cmd
+
+    def load(self, values: np.ndarray, gates_allowed: bool = True) -> None:
+        """The command vector straight into the plant's inputs (the rig's frame): what
+        ``plant.advance(self.commands(values, gates_allowed))`` loads, in one compiled
+        call without the Commands object (inputs.load_mapped); the plant then advances
+        with ``plant.advance(None)``. Raises CommandError as the plant would."""
+        pos, breaker, chopper = self._line_pos or self._no_line
+        code = load_mapped(values, self._duty_pos, self._gate_pos, self._reset_pos, pos,
+                           breaker, chopper, gates_allowed, self._line_pos is not None,
+                           *self._inputs)
+        if code:
+            raise command_error(code)
 
     def replies(self, values: np.ndarray) -> dict[str, float]:
         """The controller's train-interface replies."""
