@@ -84,10 +84,8 @@ class TelegramCodec:
                values: np.ndarray) -> bytes:
         """Pack physical values as integers in wire units (rounded half to even) after
         the header: the bytes msgpack.packb gives for that list."""
-        h = self._header
-        h[0], h[1], h[2], h[3], h[4] = self.version, sequence, time_us, period_us, flags
-        h[5] = self.map_digest
-        n = msgpack_array.pack(h, values, self._inv_send, self._out)
+        n = _pack_telegram(self.version, sequence, time_us, period_us, flags,
+                           self.map_digest, self._header, values, self._inv_send, self._out)
         if n < 0:
             raise ValueError(f"value {-1 - n} = {values[-1 - n]!r} cannot be sent (not "
                              "finite, or past int64 in wire units)")
@@ -104,7 +102,7 @@ class TelegramCodec:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""
         values = np.empty(self._n_recv)
         head = self._got_header
-        if _read_plain(np.frombuffer(payload, dtype=np.uint8), head, values, self._scratch,
+        if _read_plain(np.frombuffer(payload, _BYTES), head, values, self._scratch,
                        self._recv_scales, self._lo, self._hi, self._whole):
             # the plain case, compiled, its values in range; the header checked here
             version, sequence, time_us, period_us, flags, digest = head.tolist()
@@ -164,6 +162,17 @@ class TelegramCodec:
 
 
 _NUMBERS = (int, float)
+_BYTES = np.dtype(np.uint8)  # (frombuffer takes a dtype object at half the cost of a type)
+
+
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
+def _pack_telegram(version, sequence, time_us, period_us, flags, map_digest, header, values,
+                   inv_scales, buf) -> int:
+    """The header's fields into header, then msgpack_array.pack of header and values
+    into buf (its length, or -1 - i for a value i that cannot be sent)."""
+    header[0], header[1], header[2] = version, sequence, time_us
+    header[3], header[4], header[5] = period_us, flags, map_digest
+    return msgpack_array.pack(header, values, inv_scales, buf)
 
 
 @nb.njit(cache=True, **WITHOUT_RUNTIME)

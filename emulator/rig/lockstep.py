@@ -12,8 +12,6 @@ import asyncio
 import os
 import time
 
-import numpy as np
-
 from emulator.protocol.header import FLAG_FRAMING, FLAG_REPEAT, FLAG_WATCHDOG
 
 #: lockstep: say the current measurement again after at most this many periods of
@@ -172,7 +170,7 @@ class LockstepPacing:
                 or (self.faults is not None and self.faults.faults)
                 or (self.monitor is not None and not self.monitor.may_run())):
             return
-        np.copyto(self._y_out, self._y)  # y_k, for a repeat while frame k has run
+        self._y_out[...] = self._y  # y_k, for a repeat while frame k has run
         self._used_before_ahead, self._ran_ahead = self._last_used, True
         self._run_frame(k)
         self.frames_ahead += 1

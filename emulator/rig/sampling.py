@@ -48,6 +48,7 @@ from emulator.plant.probe import (
 from emulator.plant.stepper import LineCommands
 from emulator.protocol.signal_map import SignalMap
 from emulator.rig.sensors import (
+    C_NORMAL,
     AnalogChannels,
     Encoders,
     SensorParams,
@@ -173,11 +174,12 @@ class MeasurementSampler:
         """Compile or load the sample's one call, on copies: nothing of the sampler or
         the plant changes."""
         n, motors = self._n_analog, self.plant.n_motors
-        args = self._frame_args(np.zeros((2, n)), 1e-4, False, np.zeros(motors),
+        args = self._frame_args(np.zeros((2, n)), 2, 1e-4, False, -1, np.zeros(motors),
                                 np.zeros(motors), True)
         _sample_frame(*(a.copy() if isinstance(a, np.ndarray) else a for a in args))
 
-    def _frame_args(self, trace, h, settle, last_angle, last_disc, first) -> tuple:
+    def _frame_args(self, trace, rows, h, settle, noise_row, last_angle, last_disc,
+                    first) -> tuple:
         """The arguments of _sample_frame (the live arrays, but for those given)."""
         if self._fixed_args is None:  # the arrays are made once (the plant's in build.py,
             # these in __init__); faults write into them, never replace them
@@ -187,47 +189,52 @@ class MeasurementSampler:
                 (src, row, col, off, p.ss, p.ls2, p.lst, p.ist, p.ms, self._values,
                  self._angle, self._shaft),
                 (self._offsets,),
-                (analog.table, analog._out, enc.eccentricity, enc.pitch,
+                (analog.normals, analog.table, analog._out, enc.eccentricity, enc.pitch,
                  2 * math.pi / enc.edges_per_rev, enc.edges_per_rev / (2 * math.pi),
                  enc.edge_scale, enc.count_offset, enc.COUNTER_MODULUS, self._count_pos,
                  self._analog_pos, self._flag_pos, self.gate_fault, self._fault_pos,
                  self._train, self._train_pos),
                 (enc.CAPTURE_MODULUS, enc._capture, self._capture_pos, self._out))
         a, b, c, d = self._fixed_args
-        return (*a, trace, *b, h, settle, *c, first, last_angle, last_disc,
+        return (*a, trace, rows, *b, h, settle, noise_row, *c, first, last_angle, last_disc,
                 self.plant.time_s, self.encoders._last_time, *d)
 
     def sample(self, period_s: float, driver: DriverDemand) -> np.ndarray:
         """The measurement vector (physical units) at the present plant state."""
-        p, probes, analog, enc = self.plant, self.plant.probes, self.analog, self.encoders
+        p, probes, enc = self.plant, self.plant.probes, self.encoders
         if probes.frame == p.frames and self._sampled_frame == p.frames - 1:
             # one frame since the last sample: its sub-steps, the last at this instant
-            trace, h = probes.trace[:probes.n_sub], probes.h
+            trace, rows, h = probes.trace, probes.n_sub, probes.h
         else:  # a first sample, or frames the chain did not see: the present values
-            trace, h = self._values[:self._n_analog].reshape(1, -1), period_s
+            trace, rows, h = self._values[:self._n_analog].reshape(1, -1), 1, period_s
         self._sampled_frame = p.frames
-        settle = analog.prepare(h)  # coefficients and this frame's noise
+        settle, noise_row = self.analog.draw(h)  # coefficients and this frame's noise
         first = enc._last_angle is None  # the captures start here (none yet)
         if first:
             enc._last_angle, enc._last_disc = np.zeros(p.n_motors), np.zeros(p.n_motors)
         self._train[:] = driver.values()
-        _sample_frame(*self._frame_args(trace, h, settle, enc._last_angle, enc._last_disc,
-                                        first))
+        _sample_frame(*self._frame_args(trace, rows, h, settle, noise_row, enc._last_angle,
+                                        enc._last_disc, first))
         enc._last_time = p.time_s
         return self._out
 
 
 @nb.njit(cache=True, **WITHOUT_RUNTIME)
 def _sample_frame(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft, trace,
-                  offsets, h, settle, table, analog, eccentricity, pitch, edge_rad,
-                  edges_per_rad, edge_scale, count_offset, modulus, count_pos, analog_pos,
-                  flag_pos, gate_fault, ist_fault_pos, train, train_pos, first, last_angle,
-                  last_disc, time_s, last_time, capture_modulus, capture, capture_pos, out):
-    """y from the plant state: gather (the shaft angles too), the frame's trace in the
-    measured units (a trace that is a view of the values gathered: unchanged), the
-    analog chain (settle: the filters start at the last row's input), the angles the
-    discs show, y assembled, and the edge captures (first: they start here, none
-    latched)."""
+                  rows, offsets, h, settle, noise_row, normals, table, analog, eccentricity,
+                  pitch, edge_rad, edges_per_rad, edge_scale, count_offset, modulus,
+                  count_pos, analog_pos, flag_pos, gate_fault, ist_fault_pos, train,
+                  train_pos, first, last_angle, last_disc, time_s, last_time,
+                  capture_modulus, capture, capture_pos, out):
+    """y from the plant state: gather (the shaft angles too), the frame's trace (its
+    first ``rows`` rows) in the measured units (a trace that is a view of the values
+    gathered: unchanged), the frame's noise (row noise_row of normals, -1: none) into
+    the channel table, the analog chain (settle: the filters start at the last row's
+    input), the angles the discs show, y assembled, and the edge captures (first: they
+    start here, none latched)."""
+    trace = trace[:rows]
+    for i in range(table.shape[1]):
+        table[C_NORMAL, i] = normals[noise_row, i] if noise_row >= 0 else 0.0
     _gather(src, row, col, off, ss, ls2, lst, ist, ms, values, angle, shaft)
     _complete_trace(trace, offsets, values)
     _chain(trace[trace.shape[0] - 1:] if settle else trace, h, table, analog, settle)
@@ -379,6 +386,6 @@ class CommandMapper:
     def replies(self, values: np.ndarray) -> dict[str, float]:
         """The controller's train-interface replies."""
         p = self._reply_pos
-        return {"achieved_effort_kn": float(values[p]),
-                "available_effort_kn": float(values[p + 1]),
-                "status": int(values[p + 2]), "event_code": int(values[p + 3])}
+        achieved, available, status, code = values[p:p + 4].tolist()
+        return {"achieved_effort_kn": achieved, "available_effort_kn": available,
+                "status": int(status), "event_code": int(code)}

@@ -111,7 +111,7 @@ class AnalogChannels:
         self.fault_gain, self.fault_offset, self.stuck = (t[C_FAULT_GAIN], t[C_FAULT_OFFSET],
                                                           t[C_STUCK])
         self._noisy = bool(np.any(self.noise > 0))
-        self._normals = np.zeros((NOISE_BATCH, n))  # drawn ahead, used a row a frame
+        self.normals = np.zeros((NOISE_BATCH, n))  # drawn ahead, used a row a frame
         self._next_normal = NOISE_BATCH
         self._started = False
         self._out = np.zeros(n)
@@ -126,21 +126,28 @@ class AnalogChannels:
         """The filters' coefficients for sub-steps of length h and this frame's noise,
         in the table; True for the first sample of a run (the filters start settled at
         their input)."""
-        t = self.table
+        settle, row = self.draw(h)
+        self.table[C_NORMAL] = self.normals[row] if row >= 0 else 0.0
+        return settle
+
+    def draw(self, h: float) -> tuple[bool, int]:
+        """prepare() but for the noise's copy into the table's C_NORMAL row: returns
+        (settle, the row of ``normals`` that is this frame's noise, -1 for none), for a
+        compiled caller that copies it (the rig's sampler)."""
         if h != self._coeffs_for:
+            t = self.table
             t[C_DECAY], t[C_SLOPE] = _filter_coefficients(self.tau, h)
             self._coeffs_for = h
+        row = -1
         if self._noisy:
-            if self._next_normal == NOISE_BATCH:
-                self.rng.standard_normal(out=self._normals)
-                self._next_normal = 0
-            t[C_NORMAL] = self._normals[self._next_normal]
-            self._next_normal += 1
-        else:
-            t[C_NORMAL] = 0.0
+            row = self._next_normal
+            if row == NOISE_BATCH:
+                self.rng.standard_normal(out=self.normals)
+                row = 0
+            self._next_normal = row + 1
         settle = not self._started
         self._started = True
-        return settle
+        return settle, row
 
     def sample(self, trace: np.ndarray, h: float) -> np.ndarray:
         """The channel outputs after a frame whose sub-steps of length h ended with the
@@ -288,8 +295,9 @@ def _captures(shaft, last, disc, last_disc, t, t_last, edges_per_rad, scale, ecc
             nearest = np.int64(math.floor(place / edge_rad + 0.5)) % pitch.shape[1]
             place += pitch[i, nearest] * edge_rad
         theta = place
-        for _ in range(4):
-            theta = place - eccentricity[i] * math.sin(theta)
+        if eccentricity[i] != 0.0:  # (a true disc: theta is place, no sine needed)
+            for _ in range(4):
+                theta = place - eccentricity[i] * math.sin(theta)
         frac = min(max((theta - last[i]) / (shaft[i] - last[i]), 0.0), 1.0)
         t_edge = t_last + frac * (t - t_last)
         # the timer's count when the edge latches it (1e-6 us: round-off at a tick)
@@ -301,7 +309,9 @@ def _distort(angle, eccentricity, pitch, edge_rad):
     """Turn shaft angles into the angles the discs show, in place: the nearest edge j
     sits at (j + pitch_j) edge pitches, the whole disc off by e sin(angle)."""
     for i in range(angle.shape[0]):
-        a = angle[i] + eccentricity[i] * math.sin(angle[i])
+        a = angle[i]
+        if eccentricity[i] != 0.0:  # (a true disc shows the shaft's angle: no sine)
+            a += eccentricity[i] * math.sin(a)
         if pitch.shape[1] > 1:
             nearest = np.int64(math.floor(a / edge_rad + 0.5)) % pitch.shape[1]
             a -= pitch[i, nearest] * edge_rad

@@ -10,6 +10,7 @@ standstill: common practice of brake blending).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from emulator.profiles.table import Table
@@ -100,6 +101,19 @@ def read_driver(t: Table) -> DriverSpec:
     return DriverSpec(tuple(steps), tuple(table), rate, regen)
 
 
+class _TrainReadings:
+    """What the driver reads of a plant every frame, looked up once (Plant.state_column:
+    the live arrays), and the train's constants it uses."""
+
+    def __init__(self, plant) -> None:
+        self.plant = plant
+        self.speed = plant.state_column("train.speed_mps")
+        self.position = plant.state_column("train.position_m")
+        train = plant.params.train
+        self.m_eff = train.mass_kg * (1 + train.rotating_mass_allowance)
+        self.frame_s = plant.params.frame_s
+
+
 class DriverProgram:
     """Runs a DriverSpec on a rig: ``update(rig)`` after every frame."""
 
@@ -120,6 +134,7 @@ class DriverProgram:
         self._cruise = 0.0
         self._started = False
         self._brakes: BrakeUnit | None = None
+        self._readings: _TrainReadings | None = None
 
     @property
     def phase(self) -> str:
@@ -154,7 +169,11 @@ class DriverProgram:
         """Set the driver's demands for the next frame."""
         self._account(rig)
         plant, d = rig.plant, rig.driver
-        v = plant.read("train.speed_mps")
+        readings = self._readings
+        if readings is None or readings.plant is not plant:
+            readings = self._readings = _TrainReadings(plant)
+        states, column = readings.speed
+        v = float(states[column])  # (plant.read("train.speed_mps"))
         self.top_speed_mps = max(self.top_speed_mps, v)
         d.regeneration_allowed = int(self.spec.regeneration_allowed)
         if self.spec.steps:
@@ -162,10 +181,10 @@ class DriverProgram:
         else:
             mode, effort = self._table(rig, v)
         d.mode = MODE[mode]
-        rate = self.spec.demand_rate_per_s * plant.params.frame_s
+        rate = self.spec.demand_rate_per_s * readings.frame_s
         # steps and table rows give a magnitude; on the wire braking is negative
         # (train.effort_demand in the signal map), as the operator's demand is too
-        target = {"accelerate": effort, "brake": -effort}.get(mode, 0.0)
+        target = effort if mode == "accelerate" else -effort if mode == "brake" else 0.0
         d.effort_demand = min(max(target, d.effort_demand - rate), d.effort_demand + rate)
 
     # --- the step sequence -------------------------------------------------------------
@@ -192,7 +211,8 @@ class DriverProgram:
 
     def _steps(self, rig, v: float) -> tuple[str, float]:
         plant, d = rig.plant, rig.driver
-        t, x = plant.time_s, plant.read("train.position_m")
+        states, column = self._readings.position
+        t, x = plant.time_s, float(states[column])  # (plant.read("train.position_m"))
         steps = self.spec.steps
         if not self._started:
             self._started = True
@@ -209,7 +229,7 @@ class DriverProgram:
             self._friction_brake(plant, 1e5 if v < self.spec.blend_mps else 0.0)
             return "coast", 0.0
         step = steps[self.index]
-        m_eff = plant.params.train.mass_kg * (1 + plant.params.train.rotating_mass_allowance)
+        m_eff = self._readings.m_eff
         available = max(rig.replies.get("available_effort_kn", 0.0) * 1e3, 1.0)
         if step.mode in ("accelerate", "cruise", "coast"):  # a stop ahead to brake for?
             for j in range(self.index + 1, len(steps)):
@@ -224,7 +244,7 @@ class DriverProgram:
                         self._begin(j, t, x, v)
                         step = steps[j]
                 break
-        ceiling = self.track.ceiling(x, v) if self.track is not None else float("inf")
+        ceiling = self.track.ceiling(x, v) if self.track is not None else math.inf
         self._friction_brake(plant, 0.0)
         if step.mode == "off":
             return "off", 0.0

@@ -90,7 +90,7 @@ class Track:
 
     def ceiling(self, x: float, v: float) -> float:
         """The highest speed allowed now: each limit here or ahead, by a braking curve."""
-        best = float("inf")
+        best = math.inf
         for s in self.spec.speed_limits:
             if s.to_m <= x:
                 continue
