@@ -55,16 +55,15 @@ def test_an_edit_of_the_compile_options_drops_every_cached_kernel(tmp_path) -> N
 #: the kernels the rig calls from Python in a demo frame: whatever the cache holds, a
 #: demo run compiles or loads these
 DEMO_ENTRY_POINTS = {"emulator.plant.kernel.advance_frame",
-                     "emulator.plant.inputs.load_commands",
-                     "emulator.plant.inputs.load_line_commands",
+                     "emulator.plant.inputs.load_mapped",
                      "emulator.controller.compiled_tcu._answer_plain",
                      "emulator.rig.sampling._sample_frame",
-                     "emulator.rig.sampling._fill_commands",
                      "emulator.rig.record_layout._fill_row",
-                     "emulator.link.msgpack_array.pack",
+                     "emulator.link.telegram._pack_telegram",
                      "emulator.link.telegram._read_plain"}
 #: callees of those (not inlined: kernels of their own) that only a fresh compile types
 CALLEES = {"emulator.controller.period_kernel.period",
+           "emulator.link.msgpack_array.pack",
            "emulator.link.msgpack_array.unpack_scaled",
            "emulator.plant.inverter.blocked_bridge",
            "emulator.plant.thermal.thermal_frame",
