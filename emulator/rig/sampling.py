@@ -74,11 +74,13 @@ class DriverDemand:
     current_limit_a: float = 1000.0
     emergency_loop_closed: int = 1
 
-    def values(self) -> list[float]:
-        """In the order of the signal map's train.* measurements."""
-        return [self.effort_demand, self.direction, self.mode, self.cruise_speed_kmh,
-                self.neutral_section_ahead, self.regeneration_allowed, self.current_limit_a,
-                self.emergency_loop_closed]
+    def write_into(self, out: memoryview) -> None:
+        """Into out (a memoryview of 8 doubles), in the order of the signal map's train.*
+        measurements (item by item: a third of the cost of a list into an array)."""
+        out[0], out[1], out[2] = self.effort_demand, self.direction, self.mode
+        out[3], out[4] = self.cruise_speed_kmh, self.neutral_section_ahead
+        out[5], out[6] = self.regeneration_allowed, self.current_limit_a
+        out[7] = self.emergency_loop_closed
 
 
 assert [f.name for f in fields(DriverDemand)] == [
@@ -167,6 +169,7 @@ class MeasurementSampler:
         self._angle = np.zeros(plant.n_motors)
         self._shaft = np.zeros(plant.n_motors)
         self._train = np.zeros(8)
+        self._train_items = memoryview(self._train)  # (DriverDemand.write_into)
         self._out = np.zeros(len(names))
         self._fixed_args: tuple | None = None  # _frame_args's arrays, once asked for
 
@@ -212,7 +215,7 @@ class MeasurementSampler:
         first = enc._last_angle is None  # the captures start here (none yet)
         if first:
             enc._last_angle, enc._last_disc = np.zeros(p.n_motors), np.zeros(p.n_motors)
-        self._train[:] = driver.values()
+        driver.write_into(self._train_items)
         _sample_frame(*self._frame_args(trace, rows, h, settle, noise_row, enc._last_angle,
                                         enc._last_disc, first))
         enc._last_time = p.time_s
