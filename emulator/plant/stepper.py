@@ -63,7 +63,7 @@ class Plant:
         self.refresh_each_substep = refresh_each_substep
         self.time_s = 0.0
         self.time_ns = 0
-        self._last_frame = 0.0
+        self._last_frame = math.nan  # (never equal: the first frame length is checked)
         self._n_sub, self._h = 1, params.substep_s
         self.frames = 0
         self.substeps = 0

@@ -176,8 +176,8 @@ class FrameStats:
     def __post_init__(self) -> None:
         self.lateness_us = np.zeros(self.capacity, dtype=np.float32)
         self.compute_us = np.zeros(self.capacity, dtype=np.float32)
-        self.histogram = np.zeros(len(LATENESS_BINS_US) + 1, dtype=np.int64)
-        self._on_time = 0  # frames not late, not yet in histogram[0] (record)
+        self._bins = np.zeros(len(LATENESS_BINS_US) + 1, dtype=np.int64)
+        self._on_time = 0  # frames not late, not yet in _bins[0] (record)
         self.frames = 0
         self.late_frames = 0  # started more than one period after their deadline
         self.max_lateness_us = 0.0
@@ -195,10 +195,17 @@ class FrameStats:
             return
         late_us = lateness_ns / 1e3
         self.lateness_us[i] = late_us
-        self.histogram[bisect.bisect_left(LATENESS_BINS_US, late_us)] += 1
+        self._bins[bisect.bisect_left(LATENESS_BINS_US, late_us)] += 1
         if lateness_ns > period_ns:
             self.late_frames += 1
         self.max_lateness_us = max(self.max_lateness_us, late_us)
+
+    @property
+    def histogram(self) -> np.ndarray:
+        """Frames by start lateness, in the bins LATENESS_BINS_US (the last open)."""
+        self._bins[0] += self._on_time
+        self._on_time = 0
+        return self._bins
 
     def restart_cpu_window(self) -> None:
         """Start measuring the CPU share from now (after warm-up)."""
@@ -211,8 +218,6 @@ class FrameStats:
         late = self.lateness_us[:n] if n else np.zeros(1, dtype=np.float32)
         comp = self.compute_us[:n] if n else np.zeros(1, dtype=np.float32)
         wall = max(time.monotonic_ns() - self._wall0, 1)
-        self.histogram[0] += self._on_time
-        self._on_time = 0
         return {
             "frames": self.frames,
             "lateness_us_median": float(np.median(late)),

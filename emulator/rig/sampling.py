@@ -359,6 +359,10 @@ class CommandMapper:
     def commands(self, values: np.ndarray, gates_allowed: bool = True) -> Commands:
         """Plant commands; gates_allowed=False blocks every inverter (rig watchdog).
 
+        The rig's frame loads the vector with ``load`` instead (one compiled call); this
+        mapping into a Commands object, which the plant takes through its own checks, is
+        the reference ``load`` is compared with (tests/link/test_command_loading.py).
+
         Fills the same Commands object every frame (no allocation in the frame loop); its
         fault_reset is None when no inverter asks for one (the plant looks no further).
         """

@@ -137,3 +137,17 @@ def test_wrong_shape_and_bad_inputs_are_rejected() -> None:
         plant.set_gradient(float("nan"))
     with pytest.raises(CommandError):
         plant.advance(None, float("inf"))
+
+
+@pytest.mark.parametrize("first_good", [False, True])
+@pytest.mark.parametrize("frame_s", [0.0, -0.0, float("nan"), 2.0, 1e-6])
+def test_a_frame_length_outside_10_us_to_1_s_is_refused(frame_s: float,
+                                                        first_good: bool) -> None:
+    # checked on a fresh plant too (the length is checked only when it changes)
+    plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+    if first_good:
+        plant.advance(None, 1e-3)
+    before = (plant.frames, plant.ms.copy())
+    with pytest.raises(CommandError, match="frame length"):
+        plant.advance(None, frame_s)
+    assert plant.frames == before[0] and np.array_equal(plant.ms, before[1])
