@@ -248,9 +248,7 @@ class CompiledController(ref.ReferenceController):
     # --- telegrams and the period -------------------------------------------------------
     def answer(self, payload: bytes) -> bytes:
         """The command telegram for a measurement telegram."""
-        counts = self._counts
-        self._g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0  # (_before_period)
-        raised = counts[0]
+        raised = self._before_period()
         n = _answer_plain(np.frombuffer(payload, _BYTES), self._head, self._y,
                           self._scratch, self._m_scale, self._last_seq, self._reply_head,
                           self._c_inv, self._wire, self._commands, *self._period_arrays)
@@ -264,8 +262,8 @@ class CompiledController(ref.ReferenceController):
             self._reply_head[1] = seq
             n = msgpack_array.pack(self._reply_head, self._commands, self._c_inv,
                                    self._wire)
-        elif counts[0] != raised:  # (_after_period)
-            self._count_events()
+        else:
+            self._after_period(raised)
         if n < 0:
             raise ValueError(f"command {self.c_names[-1 - n]} = {self._commands[-1 - n]!r} "
                              "is not finite: no answer")
@@ -313,11 +311,9 @@ class CompiledController(ref.ReferenceController):
     def _after_period(self, raised: int) -> None:
         """The events the Python class counts, from the state the period left (its other
         attributes read the state: _state_attribute)."""
-        if self._counts[0] != raised:
-            self._count_events()
-
-    def _count_events(self) -> None:
-        self.events = Counter({c: int(n) for c, n in enumerate(self._counts) if n and c})
+        counts = self._counts
+        if counts[0] != raised:
+            self.events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
 
     t = _state_attribute(pp.G_T)
     event = _state_attribute(pp.G_EVENT, whole=True)

@@ -7,7 +7,6 @@ import math
 from .commands import CommandError
 from .jit import compiled
 from .layout import (
-    IS_HW_TRIP,
     IU_DA,
     IU_DB,
     IU_DC,
@@ -23,7 +22,7 @@ from .layout import (
 COMMAND_OK = 0
 COMMAND_NOT_FINITE = 1
 COMMAND_OUT_OF_RANGE = 2
-#: load_mapped's codes for the line side's commands (the inverters' are the above)
+#: the codes of load_line_commands (COMMAND_* + 2) where both sides' are told apart
 LINE_NOT_FINITE = 3
 LINE_OUT_OF_RANGE = 4
 
@@ -36,7 +35,7 @@ _MESSAGES = {
 
 
 def command_error(code: int) -> CommandError:
-    """The error for a code of load_commands, load_line_commands (+ 2) or load_mapped."""
+    """The error for a code of load_commands, or of load_line_commands + 2 (LINE_*)."""
     return CommandError(_MESSAGES[code])
 
 
@@ -87,53 +86,3 @@ def load_line_commands(mod, gates, pre, line, breaker, chopper, lu, ss, ku) -> i
     ss[SS_BREAKER_CMD] = breaker
     return COMMAND_OK
 
-
-@compiled
-def load_mapped(values, duty_pos, gate_pos, reset_pos, line_pos, breaker_pos, chopper_pos,
-                gates_allowed, has_line, iu, lu, ss, ku, ist) -> int:
-    """A command vector (map order) straight into the plant's inputs, as the plant takes
-    a Commands object the vector was mapped into (Plant._apply, in its order): the line
-    side's commands validated and loaded (when has_line), the hardware trips asked for
-    reset, the inverters' commands validated and loaded. gates_allowed False (the rig's
-    watchdog) blocks the inverters' and line converters' gates and the chopper; the
-    contactors and the breaker keep their commands. Returns a COMMAND_* or LINE_* code;
-    a line side's invalid command stops before the resets, an inverter's before its
-    loading, as Plant._apply does."""
-    if has_line:
-        for j in range(line_pos.shape[0]):
-            m = values[line_pos[j, 0]]
-            if not math.isfinite(m):
-                return LINE_NOT_FINITE
-            if m < -1.0 or m > 1.0:
-                return LINE_OUT_OF_RANGE
-        for j in range(chopper_pos.shape[0]):
-            c = values[chopper_pos[j]] if gates_allowed else 0.0
-            if not math.isfinite(c):
-                return LINE_NOT_FINITE
-            if c < 0.0 or c > 1.0:
-                return LINE_OUT_OF_RANGE
-        for j in range(line_pos.shape[0]):
-            lu[j, LU_MOD] = values[line_pos[j, 0]]
-            lu[j, LU_ENABLE] = 1.0 if values[line_pos[j, 1]] >= 0.5 and gates_allowed else 0.0
-            lu[j, LU_PRE_CMD] = 1.0 if values[line_pos[j, 2]] >= 0.5 else 0.0
-            lu[j, LU_LINE_CMD] = 1.0 if values[line_pos[j, 3]] >= 0.5 else 0.0
-        for j in range(chopper_pos.shape[0]):
-            ku[j, KU_CHOPPER] = values[chopper_pos[j]] if gates_allowed else 0.0
-        ss[SS_BREAKER_CMD] = 1.0 if values[breaker_pos] >= 0.5 else 0.0
-    for k in range(reset_pos.shape[0]):
-        if values[reset_pos[k]] >= 0.5:
-            ist[k, IS_HW_TRIP] = 0.0
-    n = iu.shape[0]
-    for k in range(n):
-        for x in range(3):
-            d = values[duty_pos[k, x]]
-            if not math.isfinite(d):
-                return COMMAND_NOT_FINITE
-            if d < 0.0 or d > 1.0:
-                return COMMAND_OUT_OF_RANGE
-    for k in range(n):
-        iu[k, IU_DA] = values[duty_pos[k, 0]]
-        iu[k, IU_DB] = values[duty_pos[k, 1]]
-        iu[k, IU_DC] = values[duty_pos[k, 2]]
-        iu[k, IU_ENABLE] = 1.0 if gates_allowed and values[gate_pos[k]] >= 0.5 else 0.0
-    return COMMAND_OK

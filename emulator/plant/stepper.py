@@ -139,10 +139,10 @@ class Plant:
             self._apply(commands)
         n_sub, h = self._n_sub, self._h
         probes = self.probes
-        trace = probes.trace if probes.trace.shape[0] >= n_sub else probes.rows_for(n_sub)
         ring = self._pq_ring
         advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, *self._state_arrays,
-                      probes.src, probes.row, probes.col, trace, self.cols, ring,
+                      probes.src, probes.row, probes.col, probes.rows_for(n_sub), self.cols,
+                      ring,
                       self._pq_sum, self.frames % ring.shape[0])
         probes.frame, probes.n_sub, probes.h = self.frames + 1, n_sub, h  # the trace's frame
         self.frames += 1

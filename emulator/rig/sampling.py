@@ -16,7 +16,14 @@ import numpy as np
 
 from emulator.kernel_cache import WITHOUT_RUNTIME
 from emulator.plant import Commands, Plant
-from emulator.plant.inputs import command_error, load_mapped
+from emulator.plant.inputs import (
+    COMMAND_NOT_FINITE,
+    COMMAND_OK,
+    LINE_NOT_FINITE,
+    command_error,
+    load_commands,
+    load_line_commands,
+)
 from emulator.plant.layout import (
     IS_HW_TRIP,
     IS_IA,
@@ -325,6 +332,31 @@ def _fill_commands(values, duty_pos, gate_pos, reset_pos, gates_allowed, duty, g
     return any_reset
 
 
+@nb.njit(cache=True, **WITHOUT_RUNTIME)
+def _load_vector(values, duty_pos, gate_pos, reset_pos, gates_allowed, duty, gates, reset,
+                 line_pos, chopper_pos, modulation, line_gates, precharge, contactor,
+                 chopper, breaker_pos, has_line, iu, lu, ss, ku, ist):
+    """CommandMapper.commands then Plant._apply, in one call and in _apply's order: the
+    vector mapped (_fill_commands), the line side's commands validated and loaded
+    (load_line_commands, when has_line), the hardware trips asked for reset, the
+    inverters' commands validated and loaded (load_commands). Returns a COMMAND_* code,
+    the line side's as LINE_* (inputs.py)."""
+    any_reset = _fill_commands(values, duty_pos, gate_pos, reset_pos, gates_allowed, duty,
+                               gates, reset, line_pos, chopper_pos, modulation, line_gates,
+                               precharge, contactor, chopper)
+    if has_line:
+        code = load_line_commands(modulation, line_gates, precharge, contactor,
+                                  1.0 if values[breaker_pos] >= 0.5 else 0.0, chopper, lu,
+                                  ss, ku)
+        if code != COMMAND_OK:
+            return code + LINE_NOT_FINITE - COMMAND_NOT_FINITE
+    if any_reset:
+        for k in range(reset.shape[0]):
+            if reset[k]:
+                ist[k, IS_HW_TRIP] = 0.0
+    return load_commands(duty, gates, iu)
+
+
 class CommandMapper:
     """Turns a command vector (physical units, map order) into plant commands."""
 
@@ -381,12 +413,17 @@ class CommandMapper:
     def load(self, values: np.ndarray, gates_allowed: bool = True) -> None:
         """The command vector straight into the plant's inputs (the rig's frame): what
         ``plant.advance(self.commands(values, gates_allowed))`` loads, in one compiled
-        call without the Commands object (inputs.load_mapped); the plant then advances
-        with ``plant.advance(None)``. Raises CommandError as the plant would."""
+        call (_load_vector: the same mapping and the plant's own loaders, no Python
+        between them); the plant then advances with ``plant.advance(None)``. Raises
+        CommandError as the plant would."""
+        cmd = self._cmd
         pos, breaker, chopper = self._line_pos or self._no_line
-        code = load_mapped(values, self._duty_pos, self._gate_pos, self._reset_pos, pos,
-                           breaker, chopper, gates_allowed, self._line_pos is not None,
-                           *self._inputs)
+        line = cmd.line or self._no_line_commands
+        code = _load_vector(values, self._duty_pos, self._gate_pos, self._reset_pos,
+                            gates_allowed, cmd.duty, cmd.gates_enabled, self._reset, pos,
+                            chopper, line.modulation, line.gates_enabled, line.precharge,
+                            line.line_contactor, line.chopper, breaker,
+                            cmd.line is not None, *self._inputs)
         if code:
             raise command_error(code)
 
