@@ -248,8 +248,9 @@ class CompiledController(ref.ReferenceController):
     # --- telegrams and the period -------------------------------------------------------
     def answer(self, payload: bytes) -> bytes:
         """The command telegram for a measurement telegram."""
-        raised = self._before_period()
-        n = _answer_plain(np.frombuffer(payload, _BYTES), self._head, self._y,
+        if type(payload) is not bytes:  # (read as bytes: telegram.TelegramCodec.decode)
+            payload = memoryview(payload).tobytes()
+        n = _answer_plain(payload, self.adhesion.enabled, self._head, self._y,
                           self._scratch, self._m_scale, self._last_seq, self._reply_head,
                           self._c_inv, self._wire, self._commands, *self._period_arrays)
         if n == ANSWER_SAID_AGAIN:
@@ -262,8 +263,6 @@ class CompiledController(ref.ReferenceController):
             self._reply_head[1] = seq
             n = msgpack_array.pack(self._reply_head, self._commands, self._c_inv,
                                    self._wire)
-        else:
-            self._after_period(raised)
         if n < 0:
             raise ValueError(f"command {self.c_names[-1 - n]} = {self._commands[-1 - n]!r} "
                              "is not finite: no answer")
@@ -298,22 +297,24 @@ class CompiledController(ref.ReferenceController):
         out[:] = out_arr.tolist() if isinstance(out, list) else out_arr
 
     def _period(self, y: np.ndarray, flags: int, period_s: float, out: np.ndarray) -> None:
-        raised = self._before_period()
+        self._g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0  # (tests switch it)
         pk.period(y, flags, period_s, out, *self._period_arrays)
-        self._after_period(raised)
 
-    def _before_period(self) -> int:
-        """What the period reads of the Python class (adhesion.enabled: tests switch it)
-        into its state; returns the count of the events raised so far."""
-        self._g[pp.G_ADH_ENABLED] = 1.0 if self.adhesion.enabled else 0.0
-        return int(self._counts[0])
-
-    def _after_period(self, raised: int) -> None:
-        """The events the Python class counts, from the state the period left (its other
-        attributes read the state: _state_attribute)."""
+    @property
+    def events(self) -> Counter:
+        """The events raised so far, by code. The period counts them in its state
+        (``_counts``, the total at 0); the Counter is made from the counts when they
+        changed since it was last asked for."""
         counts = self._counts
-        if counts[0] != raised:
-            self.events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
+        if counts[0] != self._events_total:
+            self._events = Counter({c: int(n) for c, n in enumerate(counts) if n and c})
+            self._events_total = int(counts[0])
+        return self._events
+
+    @events.setter
+    def events(self, value: Counter) -> None:
+        """(Set where the counts are zero: the base class's start, the warm-up.)"""
+        self._events, self._events_total = value, 0
 
     t = _state_attribute(pp.G_T)
     event = _state_attribute(pp.G_EVENT, whole=True)
@@ -331,17 +332,17 @@ class CompiledController(ref.ReferenceController):
 #: finite): a telegram the compiled reader left, and a measurement already answered
 ANSWER_NOT_PLAIN = -(1 << 40)
 ANSWER_SAID_AGAIN = ANSWER_NOT_PLAIN - 1
-_BYTES = np.dtype(np.uint8)  # (frombuffer takes a dtype object at half the cost of a type)
 
 
 @nb.njit(cache=True, **WITHOUT_RUNTIME)
-def _answer_plain(data, head, y, scratch, m_scale, last_seq, reply_head, c_inv, wire, out,
-                  g, k, counts, recent, mot, inv, lnk, u_applied, sc_state, sc_consts,
-                  circuit, vc_state, vc_consts, curve_i, curve_psi, x, xi, xm, xl, xc,
-                  per_motor, per_link):
+def _answer_plain(data, adhesion_enabled, head, y, scratch, m_scale, last_seq, reply_head,
+                  c_inv, wire, out, g, k, counts, recent, mot, inv, lnk, u_applied,
+                  sc_state, sc_consts, circuit, vc_state, vc_consts, curve_i, curve_psi, x,
+                  xi, xm, xl, xc, per_motor, per_link):
     """CompiledController.answer in one call, in its plain case: the measurement telegram
     read (msgpack_array.unpack_scaled into head and y), the period (period_kernel.period,
-    unless head's sequence is last_seq: ANSWER_SAID_AGAIN) and the command telegram
+    with adhesion_enabled, the Python part's switch, put into its state; unless head's
+    sequence is last_seq: ANSWER_SAID_AGAIN) and the command telegram
     packed into wire (msgpack_array.pack: its length, or -1 - i). ANSWER_NOT_PLAIN,
     nothing run, when the reader leaves the telegram to the msgpack package. (The
     period's arrays are spelled out, as CompiledController._period_arrays holds them:
@@ -352,6 +353,7 @@ def _answer_plain(data, head, y, scratch, m_scale, last_seq, reply_head, c_inv, 
     seq = head[1]
     if seq == last_seq:
         return ANSWER_SAID_AGAIN
+    g[pp.G_ADH_ENABLED] = 1.0 if adhesion_enabled else 0.0
     pk.period(y, head[4], head[3] * 1e-6, out, g, k, counts, recent, mot, inv, lnk,
               u_applied, sc_state, sc_consts, circuit, vc_state, vc_consts, curve_i,
               curve_psi, x, xi, xm, xl, xc, per_motor, per_link)

@@ -123,10 +123,11 @@ def _signed(u, bits):
 @nb.njit(cache=True, **WITHOUT_RUNTIME)
 def unpack(data, header, values, scratch):
     """A msgpack array of len(header) integers then len(values) numbers from data
-    (uint8): the header into header (int64), the numbers into values (float64).
+    (bytes, or an array of uint8): the header into header (int64), the numbers into
+    values (float64).
     Returns 0, or -1 where the telegram is not that plain case (the caller decodes it
     the long way). scratch: a uint64 array of one element (for the floats' bits)."""
-    n_data = data.shape[0]
+    n_data = len(data)
     if n_data < 1:
         return -1
     b = data[0]

@@ -102,7 +102,9 @@ class TelegramCodec:
         """Unpack and validate a received telegram; raise TelegramError on any fault."""
         values = np.empty(self._n_recv)
         head = self._got_header
-        if _read_plain(np.frombuffer(payload, _BYTES), head, values, self._scratch,
+        if type(payload) is not bytes:  # (numba reads bytes as they are: one build of the
+            payload = memoryview(payload).tobytes()  # reader, half the cost of frombuffer)
+        if _read_plain(payload, head, values, self._scratch,
                        self._recv_scales, self._lo, self._hi, self._whole, self.version,
                        self.map_digest):
             # the plain case, compiled: its header valid, its values in range
@@ -162,7 +164,6 @@ class TelegramCodec:
 _NUMBERS = (int, float)
 _new_tuple = tuple.__new__  # _new_tuple(Telegram, fields): a Telegram without the call of
 # its generated __new__ (half the cost; what Telegram._make does, less its length check)
-_BYTES = np.dtype(np.uint8)  # (frombuffer takes a dtype object at half the cost of a type)
 
 
 @nb.njit(cache=True, **WITHOUT_RUNTIME)
@@ -176,7 +177,7 @@ def _pack_telegram(version, sequence, time_us, period_us, flags, map_digest, hea
 
 
 @nb.njit(cache=True, **WITHOUT_RUNTIME)
-def _read_plain(data: np.ndarray, header: np.ndarray, values: np.ndarray,
+def _read_plain(data: bytes, header: np.ndarray, values: np.ndarray,
                 scratch: np.ndarray, scales: np.ndarray, lo: np.ndarray, hi: np.ndarray,
                 whole: np.ndarray, version: int, map_digest: int) -> bool:
     """The plain telegram (msgpack_array.unpack) into header and values, the values

@@ -119,10 +119,10 @@ class Rig(LockstepPacing, RecordsFrames):
         self.record_columns()  # allocates the row a recorder is given each frame
         self.sampler = MeasurementSampler(self.plant, sm, params.sensors, self.rng)
         self.mapper = CommandMapper(self.plant, sm)
+        self._reply_at = self.mapper.reply_positions()
         self.health = LinkHealth()
         self.stats = FrameStats()
         self.frame = 0  # k: the frame about to run
-        self.replies: dict[str, float] = {}
         self._answers: dict[int, tuple[np.ndarray, int]] = {}  # seq -> (values, period_us)
         self._held = self.mapper.safe.copy()
         self._missing_run = 0
@@ -155,6 +155,17 @@ class Rig(LockstepPacing, RecordsFrames):
         self._round_trip = RoundTrip()  # lockstep round trips (RFC 6298 estimator)
         self._y = np.zeros(len(sm.measurements))
         self._sent_ns = np.zeros(8, dtype=np.int64)  # when y_k went out, by k mod 8
+
+    @property
+    def replies(self) -> dict[str, float]:
+        """The controller's train-interface replies in the command last taken
+        (CommandMapper.replies); none before the first."""
+        return self.mapper.replies(self._held) if self._last_used >= 0 else {}
+
+    def reply(self, name: str) -> float:
+        """One of them (CommandMapper.REPLIES) as a float, 0 before the first command:
+        for a reader every frame, without the dict."""
+        return float(self._held[self._reply_at[name]]) if self._last_used >= 0 else 0.0
 
     # --- one frame, without waiting ----------------------------------------------------
     def _send_measurement(self, k: int) -> None:
@@ -255,7 +266,6 @@ class Rig(LockstepPacing, RecordsFrames):
             self._missing_run = 0
             self._excused_run = 0
             self.tripped = False
-            self.replies = self.mapper.replies(self._held)
             return answer[1]
         if (want >= 0 and not self._fair(want, start_ns)
                 and self._excused_run < self.watchdog_frames):  # the rig's overrun, not theirs

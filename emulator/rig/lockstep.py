@@ -170,7 +170,8 @@ class LockstepPacing:
                 or (self.faults is not None and self.faults.faults)
                 or (self.monitor is not None and not self.monitor.may_run())):
             return
-        self._y_out[...] = self._y  # y_k, for a repeat while frame k has run
+        self._y_out = self._y  # y_k, for a repeat while frame k has run (the sampler
+        # takes y_(k+1) into its other array: MeasurementSampler.sample)
         self._used_before_ahead, self._ran_ahead = self._last_used, True
         self._run_frame(k)
         self.frames_ahead += 1

@@ -177,7 +177,10 @@ class MeasurementSampler:
         self._shaft = np.zeros(plant.n_motors)
         self._train = np.zeros(8)
         self._train_items = memoryview(self._train)  # (DriverDemand.write_into)
-        self._out = np.zeros(len(names))
+        #: y goes into these in turn, so the one sample() returned stays as it was
+        #: through the next sample (a rig that ran a frame ahead says it again)
+        self._outs = (np.zeros(len(names)), np.zeros(len(names)))
+        self._turn = 0  # the one that took the last sample
         self._fixed_args: tuple | None = None  # _frame_args's arrays, once asked for
 
     def warm_up(self) -> None:
@@ -204,13 +207,15 @@ class MeasurementSampler:
                  enc.edge_scale, enc.count_offset, enc.COUNTER_MODULUS, self._count_pos,
                  self._analog_pos, self._flag_pos, self.gate_fault, self._fault_pos,
                  self._train, self._train_pos),
-                (enc.CAPTURE_MODULUS, enc._capture, self._capture_pos, self._out))
+                tuple((enc.CAPTURE_MODULUS, enc._capture, self._capture_pos, out)
+                      for out in self._outs))
         a, b, c, d = self._fixed_args
         return (*a, trace, rows, *b, h, settle, noise_row, *c, first, last_angle, last_disc,
-                self.plant.time_s, self.encoders._last_time, *d)
+                self.plant.time_s, self.encoders._last_time, *d[self._turn])
 
     def sample(self, period_s: float, driver: DriverDemand) -> np.ndarray:
-        """The measurement vector (physical units) at the present plant state."""
+        """The measurement vector (physical units) at the present plant state: in one of
+        two arrays taken in turn, so it holds until the sample after next."""
         p, probes, enc = self.plant, self.plant.probes, self.encoders
         if probes.frame == p.frames and self._sampled_frame == p.frames - 1:
             # one frame since the last sample: its sub-steps, the last at this instant
@@ -223,10 +228,11 @@ class MeasurementSampler:
         if first:
             enc._last_angle, enc._last_disc = np.zeros(p.n_motors), np.zeros(p.n_motors)
         driver.write_into(self._train_items)
+        self._turn ^= 1
         _sample_frame(*self._frame_args(trace, rows, h, settle, noise_row, enc._last_angle,
                                         enc._last_disc, first))
         enc._last_time = p.time_s
-        return self._out
+        return self._outs[self._turn]
 
 
 @nb.njit(cache=True, **WITHOUT_RUNTIME)
@@ -427,9 +433,16 @@ class CommandMapper:
         if code:
             raise command_error(code)
 
+    #: the train-interface replies, in the order of the signal map from _reply_pos on
+    REPLIES = ("achieved_effort_kn", "available_effort_kn", "status", "event_code")
+
     def replies(self, values: np.ndarray) -> dict[str, float]:
         """The controller's train-interface replies."""
         p = self._reply_pos
         achieved, available, status, code = values[p:p + 4].tolist()
         return {"achieved_effort_kn": achieved, "available_effort_kn": available,
                 "status": int(status), "event_code": int(code)}
+
+    def reply_positions(self) -> dict[str, int]:
+        """Where each reply (REPLIES) is in a command vector."""
+        return {name: self._reply_pos + i for i, name in enumerate(self.REPLIES)}
