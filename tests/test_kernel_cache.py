@@ -100,3 +100,46 @@ def test_no_kernel_compiled_without_the_runtime_returns_an_array() -> None:
         missing = (DEMO_ENTRY_POINTS | CALLEES) - set(found["seen"])
         assert not missing, sorted(missing)
         assert found["bad"] == []
+
+
+def test_the_frames_bound_entry_points_run_what_numbas_dispatcher_runs() -> None:
+    """kernel_cache.entry_point: the frame's four calls bound to their overloads (the
+    plant's frame, the sampler's, the command telegram's reader, the controller's
+    answer) run 3 s of the in-process demo to the same bits as the same calls through
+    numba's dispatcher, which types every argument of every call (the reference)."""
+    import asyncio
+    import hashlib
+
+    from emulator.controller.compiled_tcu import _answer_plain
+    from emulator.link.telegram import _read_plain
+    from emulator.plant.kernel import advance_frame
+    from emulator.profiles.reader import PROFILES_DIR
+    from emulator.rig.sampling import _sample_frame
+    from emulator.scenario.demo_run import run_reference_demo
+
+    def run(through_dispatcher: bool) -> tuple[str, list[str]]:
+        seen = {}
+
+        def setup(rig, tcu) -> None:
+            seen["rig"], seen["tcu"] = rig, tcu
+            if through_dispatcher:
+                rig.plant._frame_step, rig.sampler._sample_frame = advance_frame, _sample_frame
+                rig.codec._read_plain, tcu._answer_plain = _read_plain, _answer_plain
+
+        asyncio.run(run_reference_demo(PROFILES_DIR / "trainsets" / "tern-25kv.toml",
+                                       in_process=True, max_plant_s=3.0, setup=setup))
+        rig, tcu = seen["rig"], seen["tcu"]
+        calls = [type(c).__name__ for c in (rig.plant._frame_step, rig.sampler._sample_frame,
+                                             rig.codec._read_plain, tcu._answer_plain)]
+        digest = hashlib.sha256()
+        for name in ("ms", "mx", "ist", "lst", "ts", "ss", "ls2", "iu", "lu", "ku"):
+            digest.update(getattr(rig.plant, name).tobytes())
+        digest.update(rig._y.tobytes())
+        digest.update(tcu._g.tobytes())
+        return digest.hexdigest(), calls
+
+    bound, bound_calls = run(False)
+    reference, reference_calls = run(True)
+    assert bound_calls == ["builtin_function_or_method"] * 4  # the entry points ran
+    assert reference_calls == ["CPUDispatcher"] * 4
+    assert bound == reference

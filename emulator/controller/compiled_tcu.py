@@ -19,7 +19,7 @@ import msgpack
 import numba as nb
 import numpy as np
 
-from emulator.kernel_cache import WITHOUT_RUNTIME
+from emulator.kernel_cache import WITHOUT_RUNTIME, entry_point
 from emulator.link import msgpack_array
 
 from . import inverter_guard as guard
@@ -93,8 +93,11 @@ class CompiledController(ref.ReferenceController):
         self._reply_head = np.zeros(6, dtype=np.int64)
         self._reply_head[0] = self.version
         self._reply_head[5] = self.map_digest
+        self._reply_items = memoryview(self._reply_head)  # (an item as a Python int)
+        self._answer_plain = None  # _answer_plain, bound at the first answer
         self._scratch = np.zeros(1, dtype=np.uint64)
         self._wire = np.zeros(msgpack_array.buffer_size(len(self.c_names)), dtype=np.uint8)
+        self._wire_bytes = memoryview(self._wire)  # (its slice's bytes: half numpy's cost)
         x, xi, xm, xl, xc = self._tables
         #: the period's arrays after (y, flags, period_s, out), in period_kernel.period's order
         self._period_arrays = (self._g, self._k, self._counts, self._recent, self._mot,
@@ -250,9 +253,13 @@ class CompiledController(ref.ReferenceController):
         """The command telegram for a measurement telegram."""
         if type(payload) is not bytes:  # (read as bytes: telegram.TelegramCodec.decode)
             payload = memoryview(payload).tobytes()
-        n = _answer_plain(payload, self.adhesion.enabled, self._head, self._y,
-                          self._scratch, self._m_scale, self._last_seq, self._reply_head,
-                          self._c_inv, self._wire, self._commands, *self._period_arrays)
+        args = (payload, self.adhesion.enabled, self._head, self._y, self._scratch,
+                self._m_scale, self._last_seq, self._reply_head, self._c_inv, self._wire,
+                self._commands, *self._period_arrays)
+        answer_plain = self._answer_plain
+        if answer_plain is None:  # for these arrays (kernel_cache.entry_point)
+            answer_plain = self._answer_plain = entry_point(_answer_plain, *args)
+        n = answer_plain(*args)
         if n == ANSWER_SAID_AGAIN:
             return self._last_reply
         if n == ANSWER_NOT_PLAIN:  # the msgpack package reads it, or says why not
@@ -266,7 +273,7 @@ class CompiledController(ref.ReferenceController):
         if n < 0:
             raise ValueError(f"command {self.c_names[-1 - n]} = {self._commands[-1 - n]!r} "
                              "is not finite: no answer")
-        self._last_seq, self._last_reply = int(self._reply_head[1]), self._wire[:n].tobytes()
+        self._last_seq, self._last_reply = self._reply_items[1], self._wire_bytes[:n].tobytes()
         return self._last_reply
 
     def _read_checked(self, payload: bytes, y: np.ndarray) -> tuple[int, int, int]:

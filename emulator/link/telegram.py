@@ -16,7 +16,7 @@ import msgpack
 import numba as nb
 import numpy as np
 
-from emulator.kernel_cache import WITHOUT_RUNTIME
+from emulator.kernel_cache import WITHOUT_RUNTIME, entry_point
 
 from . import msgpack_array
 
@@ -76,9 +76,11 @@ class TelegramCodec:
                        else np.asarray(recv_whole, dtype=np.bool_))
         # the compiled codec's buffers (msgpack_array.py): one telegram each way
         self._out = np.zeros(msgpack_array.buffer_size(len(self._inv_send)), dtype=np.uint8)
+        self._out_bytes = memoryview(self._out)  # (its slice's bytes: half numpy's cost)
         self._header = np.zeros(HEADER_LEN, dtype=np.int64)
         self._got_header = np.zeros(HEADER_LEN, dtype=np.int64)
         self._scratch = np.zeros(1, dtype=np.uint64)
+        self._read_plain = None  # _read_plain, bound at the first telegram read
 
     def encode(self, sequence: int, time_us: int, period_us: int, flags: int,
                values: np.ndarray) -> bytes:
@@ -89,7 +91,7 @@ class TelegramCodec:
         if n < 0:
             raise ValueError(f"value {-1 - n} = {values[-1 - n]!r} cannot be sent (not "
                              "finite, or past int64 in wire units)")
-        return self._out[:n].tobytes()
+        return self._out_bytes[:n].tobytes()
 
     def warm_up(self) -> None:
         """Compile or load the compiled codec now (a rig calls this before its clock
@@ -104,9 +106,12 @@ class TelegramCodec:
         head = self._got_header
         if type(payload) is not bytes:  # (numba reads bytes as they are: one build of the
             payload = memoryview(payload).tobytes()  # reader, half the cost of frombuffer)
-        if _read_plain(payload, head, values, self._scratch,
-                       self._recv_scales, self._lo, self._hi, self._whole, self.version,
-                       self.map_digest):
+        args = (payload, head, values, self._scratch, self._recv_scales, self._lo,
+                self._hi, self._whole, self.version, self.map_digest)
+        read_plain = self._read_plain
+        if read_plain is None:  # for these arrays (kernel_cache.entry_point)
+            read_plain = self._read_plain = entry_point(_read_plain, *args)
+        if read_plain(*args):
             # the plain case, compiled: its header valid, its values in range
             return _new_tuple(Telegram, (*head.tolist(), values))
         return self._decode_checked(payload)

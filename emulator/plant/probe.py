@@ -49,8 +49,11 @@ class Probes:
 
     def set(self, src: np.ndarray, row: np.ndarray, col: np.ndarray) -> None:
         """Probe these values from the next frame on."""
-        self.src, self.row, self.col = (np.ascontiguousarray(a, dtype=np.int64)
-                                        for a in (src, row, col))
+        arrays = [np.ascontiguousarray(a, dtype=np.int64) for a in (src, row, col)]
+        if any(a.ndim != 1 or len(a) != len(arrays[0]) for a in arrays):
+            # (the plant's frame call is bound to 1-D lists: kernel_cache.entry_point)
+            raise ValueError("a probe list is three 1-D arrays of one length")
+        self.src, self.row, self.col = arrays
         self.trace = np.zeros((self.trace.shape[0], len(self.src)))
         self.frame = -1
 

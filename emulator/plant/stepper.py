@@ -11,6 +11,8 @@ import math
 
 import numpy as np
 
+from emulator.kernel_cache import entry_point
+
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
 from . import power_quality
 from .build import build_line_side, build_load_transfer, build_motor_side, build_train
@@ -65,6 +67,7 @@ class Plant:
         self.time_ns = 0
         self._last_frame = math.nan  # (never equal: the first frame length is checked)
         self._n_sub, self._h = 1, params.substep_s
+        self._frame_step = None  # advance_frame, bound at the first frame (advance)
         self.frames = 0
         self.substeps = 0
         self.probes = Probes()  # values the measurement chain reads at every sub-step
@@ -140,10 +143,13 @@ class Plant:
         n_sub, h = self._n_sub, self._h
         probes = self.probes
         ring = self._pq_ring
-        advance_frame(n_sub, h, self.time_s, self.refresh_each_substep, *self._state_arrays,
-                      probes.src, probes.row, probes.col, probes.rows_for(n_sub), self.cols,
-                      ring,
-                      self._pq_sum, self.frames % ring.shape[0])
+        args = (n_sub, h, self.time_s, self.refresh_each_substep, *self._state_arrays,
+                probes.src, probes.row, probes.col, probes.rows_for(n_sub), self.cols, ring,
+                self._pq_sum, self.frames % ring.shape[0])
+        frame_step = self._frame_step
+        if frame_step is None:  # advance_frame for these arrays (kernel_cache.entry_point)
+            frame_step = self._frame_step = entry_point(advance_frame, *args)
+        frame_step(*args)
         probes.frame, probes.n_sub, probes.h = self.frames + 1, n_sub, h  # the trace's frame
         self.frames += 1
         self.substeps += n_sub

@@ -14,7 +14,7 @@ from dataclasses import dataclass, fields
 import numba as nb
 import numpy as np
 
-from emulator.kernel_cache import WITHOUT_RUNTIME
+from emulator.kernel_cache import WITHOUT_RUNTIME, entry_point
 from emulator.plant import Commands, Plant
 from emulator.plant.inputs import (
     COMMAND_NOT_FINITE,
@@ -182,6 +182,7 @@ class MeasurementSampler:
         self._outs = (np.zeros(len(names)), np.zeros(len(names)))
         self._turn = 0  # the one that took the last sample
         self._fixed_args: tuple | None = None  # _frame_args's arrays, once asked for
+        self._sample_frame = None  # _sample_frame, bound at the first sample
 
     def warm_up(self) -> None:
         """Compile or load the sample's one call, on copies: nothing of the sampler or
@@ -229,8 +230,12 @@ class MeasurementSampler:
             enc._last_angle, enc._last_disc = np.zeros(p.n_motors), np.zeros(p.n_motors)
         driver.write_into(self._train_items)
         self._turn ^= 1
-        _sample_frame(*self._frame_args(trace, rows, h, settle, noise_row, enc._last_angle,
-                                        enc._last_disc, first))
+        args = self._frame_args(trace, rows, h, settle, noise_row, enc._last_angle,
+                                enc._last_disc, first)
+        sample_frame = self._sample_frame
+        if sample_frame is None:  # for these arrays (kernel_cache.entry_point)
+            sample_frame = self._sample_frame = entry_point(_sample_frame, *args)
+        sample_frame(*args)
         enc._last_time = p.time_s
         return self._outs[self._turn]
 

@@ -130,3 +130,18 @@ def test_a_telegram_of_the_wrong_shape_gets_its_kind(payload, kind) -> None:
     with pytest.raises(TelegramError) as err:
         CODEC.decode(payload)
     assert err.value.kind == kind, err.value
+
+
+def test_a_payload_in_any_buffer_reads_as_its_bytes() -> None:
+    """The compiled reader is bound to bytes (kernel_cache.entry_point): a bytearray or
+    a memoryview is read as the bytes it holds, and what is no buffer is refused as
+    before, with a TypeError, never read."""
+    payload = msgpack.packb(VALID)
+    expected = CODEC.decode(payload)
+    for held in (bytearray(payload), memoryview(payload), np.frombuffer(payload, np.uint8)):
+        got = CODEC.decode(held)
+        assert got[:6] == expected[:6]
+        assert got.values.tobytes() == expected.values.tobytes()
+    for not_a_buffer in ("text", 5, None, [1, 2]):
+        with pytest.raises(TypeError):
+            CODEC.decode(not_a_buffer)

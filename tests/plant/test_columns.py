@@ -244,3 +244,19 @@ def test_a_plant_has_at_most_the_columns_motors_and_inverters() -> None:
         column_buffer(1, W + 1)
     with pytest.raises(ValueError, match=f"at most {W} motors"):
         Plant(replicated(load_trainset(TRAINSET), W + 1))
+
+
+def test_a_probe_list_is_three_flat_lists_of_one_length() -> None:
+    """The plant's frame call is bound to one-dimensional probe lists
+    (kernel_cache.entry_point reads what it is given): a list of another shape is
+    refused when set, and the plant runs on with the one it had."""
+    plant = Plant.test_bench(machine_profile("textbook-3hp"), dc_link_v=400.0)
+    plant.probes.set(np.full(2, SRC_INVERTER), np.zeros(2, dtype=int),
+                     np.array([L.IS_IA, L.IS_IB]))
+    for src, row, col in ((np.zeros((2, 1)), np.zeros(2), np.zeros(2)),
+                          (np.zeros(2), np.zeros(3), np.zeros(2)),
+                          (np.zeros(2), np.zeros(2), np.zeros((1, 2)))):
+        with pytest.raises(ValueError, match="1-D"):
+            plant.probes.set(src, row, col)
+    plant.advance(Commands(np.full((1, 3), 0.5), np.ones(1, dtype=bool)))
+    assert plant.probes.trace.shape == (plant.probes.n_sub, 2)
