@@ -49,6 +49,8 @@ def add_arguments(bench: argparse.ArgumentParser) -> None:
                        "frame")
     bench.add_argument("--plant-seconds", type=float, default=400.0,
                        help="--throughput: end each demo run at this plant time")
+    bench.add_argument("--runs", type=int, default=3,
+                       help="--throughput: plain runs each way; the median is given")
     bench.add_argument("--seconds", type=float, default=10.0,
                        help="length of each timed run of --link and --monitor")
     bench.add_argument("--soak", type=float, default=None, metavar="MINUTES",
@@ -155,18 +157,23 @@ def _print_throughput(args: argparse.Namespace, name: str) -> int:
     from emulator.bench.throughput import throughput_benchmark
     from emulator.profiles.reader import resolve_profile
 
-    console.print(f"throughput: {name}, the demo in lockstep three times (in process, over "
-                  "UDP, in process with each stage timed, a recording and a monitor client)")
-    figures = throughput_benchmark(resolve_profile(args.profile), args.plant_seconds)
+    if args.runs < 1:
+        console.print(f"[red]--runs must be at least 1, got {args.runs}[/red]")
+        return 2
+    console.print(f"throughput: {name}, the demo in lockstep {args.runs} times each in "
+                  "process and over UDP (in turn), then once in process with each stage "
+                  "timed, a recording and a monitor client")
+    figures = throughput_benchmark(resolve_profile(args.profile), args.plant_seconds,
+                                   args.runs)
     if args.json:
         print(json.dumps(figures))
         return 0
     table = pairs_table(f"Lockstep throughput: {name}, {figures['plant_time_s']:.1f} s of "
                         f"plant time, {figures['frames']} frames")
-    table.add_row("real-time factor, controller in process",
-                  f"{figures['inprocess_realtime_factor']:.1f}x")
-    table.add_row("real-time factor, controller over UDP",
-                  f"{figures['udp_realtime_factor']:.1f}x")
+    for key, where in (("inprocess", "in process"), ("udp", "over UDP")):
+        runs = ", ".join(f"{f:.1f}" for f in figures[f"{key}_runs"])
+        table.add_row(f"real-time factor, controller {where} (median)",
+                      f"{figures[f'{key}_realtime_factor']:.1f}x ({runs})")
     table.add_row("frame, instrumented run", f"{figures['frame_us_instrumented']:.1f} us")
     for stage, us in figures["stage_us"].items():
         table.add_row(f"  {stage.replace('_', ' ')}", f"{us:.1f} us")

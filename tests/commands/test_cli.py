@@ -48,14 +48,18 @@ def test_bad_settings_give_a_clear_error_and_exit_2(args, words, capsys) -> None
 
 @pytest.mark.long
 def test_throughput_bench_json_has_the_documented_keys() -> None:
-    """Three short demo runs (2 s of plant time each): the figures are there and are
-    numbers a run can give; their values are benchmarks, not checked."""
-    out = railrig("bench", "--throughput", "--json", "--plant-seconds", "2")
+    """Three short demo runs (2 s of plant time each, one plain run each way): the
+    figures are there and are numbers a run can give; their values are benchmarks, not
+    checked."""
+    out = railrig("bench", "--throughput", "--json", "--plant-seconds", "2", "--runs", "1")
     assert out.returncode == 0, out.stderr
     figures = json.loads(out.stdout)
     for key in ("inprocess_realtime_factor", "udp_realtime_factor",
                 "frame_us_instrumented"):
         assert math.isfinite(figures[key]) and figures[key] > 0, key
+    # the median of one run is that run
+    assert figures["inprocess_runs"] == [figures["inprocess_realtime_factor"]]
+    assert figures["udp_runs"] == [figures["udp_realtime_factor"]]
     # the 2 s asked for, in the demo trainset's 1 ms frames: 2000 frames, no more
     assert figures["plant_time_s"] == 2.0
     assert figures["frames"] == 2000
@@ -68,6 +72,12 @@ def test_throughput_bench_json_has_the_documented_keys() -> None:
     # the rest is the frame less the timed stages: never negative (a stage counted twice
     # shows only where it costs more than the rest; the stages' figures are not checked)
     assert stages["rig_rest"] >= 0
+
+
+def test_throughput_bench_refuses_no_runs() -> None:
+    out = railrig("bench", "--throughput", "--runs", "0")
+    assert out.returncode == 2
+    assert "--runs must be at least 1" in out.stdout + out.stderr
 
 
 def test_bench_json_has_the_documented_keys() -> None:
