@@ -64,11 +64,18 @@ def entry_point(kernel, *args):
     controller's arrays), and whose scalars keep their Python types: the wrapper
     converts what it is given to the types of the overload without asking, and an
     array of other dimensions is not refused (tried: the process crashed). Arguments
-    from outside (a telegram's payload) are made of the bound type before the call.
-    Without numba's compiler (NUMBA_DISABLE_JIT) the kernel itself."""
+    from outside (a telegram's payload) are made of the bound type before the call, and
+    the callers make their scalars Python floats, ints and bools: an int at the first
+    call would bind an integer, and every later float would be truncated. A numpy scalar
+    binds as the Python scalar it converts to (a float32 frame length at the first call
+    would otherwise narrow every later float). Without numba's compiler
+    (NUMBA_DISABLE_JIT) the kernel itself."""
+    import numpy as np
+
     if not hasattr(kernel, "overloads"):
         return kernel
-    signature = tuple(kernel.typeof_pyval(a) for a in args)
+    signature = tuple(kernel.typeof_pyval(a.item() if isinstance(a, np.generic) else a)
+                      for a in args)
     kernel.compile(signature)
     return kernel.overloads[signature].entry_point
 

@@ -330,9 +330,9 @@ class CompiledController(ref.ReferenceController):
     available_n = _state_attribute(pp.G_AVAILABLE)
 
     def clear_events(self) -> None:
-        """Forget the events counted so far."""
-        super().clear_events()
+        """Forget the events counted so far (the counts and the Counter made of them)."""
         self._counts[:] = 0
+        self.events = Counter()
 
 
 #: _answer_plain's codes beside a reply's length (>= 0) and pack's -1 - i (command i not

@@ -136,7 +136,7 @@ class Plant:
             if not (math.isfinite(frame) and 1e-5 <= frame <= 1.0):
                 raise CommandError(f"frame length must be within 10 us .. 1 s, got {frame!r}")
             self._n_sub = max(1, math.ceil(frame / self.substep_s - 1e-9))
-            self._h = frame / self._n_sub
+            self._h = float(frame) / self._n_sub  # (a Python float: the frame call's h)
             self._last_frame = frame
         if commands is not None:
             self._apply(commands)

@@ -222,7 +222,8 @@ class MeasurementSampler:
             # one frame since the last sample: its sub-steps, the last at this instant
             trace, rows, h = probes.trace, probes.n_sub, probes.h
         else:  # a first sample, or frames the chain did not see: the present values
-            trace, rows, h = self._values[:self._n_analog].reshape(1, -1), 1, period_s
+            trace, rows = self._values[:self._n_analog].reshape(1, -1), 1
+            h = float(period_s)  # (the sample's call is bound to a float h)
         self._sampled_frame = p.frames
         settle, noise_row = self.analog.draw(h)  # coefficients and this frame's noise
         first = enc._last_angle is None  # the captures start here (none yet)

@@ -207,3 +207,25 @@ def test_the_sequence_times_out_retries_and_gives_up() -> None:
     assert seq.state == TRIPPED and seq.retries == seq.max_retries + 1, (seq.state,
                                                                          seq.retries)
     assert out[drive.ci["line.breaker_close"]] == 0.0  # and stays open
+
+
+def test_events_cleared_then_raised_again_are_counted_as_the_plain_python_counts() -> None:
+    """The compiled controller's events are made from its counts when read: after
+    clear_events, the same events raised again (as many as were read before the clear:
+    the characteristic's measurement clears at every point) are there, as in the plain
+    controller, and a clear with nothing raised after it leaves none."""
+    params = load_trainset(TRAINSET)
+    cfg = config_from_params(params)
+    twin = Twin()
+    twin.install(CompiledController(cfg, build_signal_map(params).as_dict()))
+    y = np.zeros(len(twin.compiled.m_scale))
+    out = np.zeros(len(twin.compiled.c_names))
+    for _ in range(3):  # (not read between the clear and the next period: a read
+        # there would make the Counter anew whatever the clear left)
+        twin.compiled._period(y, 1, cfg.period_s, out)  # the link watchdog's flag
+        assert twin.compiled.events == twin.plain.events
+        assert twin.compiled.events[events.LINK_WATCHDOG] >= 1, twin.compiled.events
+        twin.compiled.clear_events()
+        twin.plain.clear_events()
+    assert twin.compiled.events == twin.plain.events == Counter()
+    twin.assert_identical(at_least=3)

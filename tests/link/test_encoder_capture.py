@@ -155,3 +155,21 @@ def test_pitch_errors_move_each_edge_by_its_own_fraction(tmp_path, speed: float)
             assert -1.0 - 1e-6 < off <= 1e-6
             checked += 1
     assert checked > 50
+
+
+def test_a_first_sample_with_a_whole_number_period_changes_no_later_sample() -> None:
+    """The sampler's call is bound at its first sample (kernel_cache.entry_point): a first
+    period given as the integer 1 samples as 1.0 does, and the later frames' sub-steps
+    (floats) are not truncated to an integer by it (a sub-step of 0 had divided by zero)."""
+    ys = []
+    for first in (1, 1.0):
+        plant = Plant.test_bench(load_machine(MACHINE), frame_s=1e-3)
+        plant.impose_speed(0, 30.0)
+        sampler = MeasurementSampler(plant, build_signal_map(plant.params), None,
+                                     np.random.default_rng(0))
+        run = [sampler.sample(first, DriverDemand()).copy()]
+        for _ in range(20):
+            plant.advance(None)
+            run.append(sampler.sample(1e-3, DriverDemand()).copy())
+        ys.append(np.array(run))
+    assert ys[0].tobytes() == ys[1].tobytes()

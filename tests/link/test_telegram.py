@@ -133,12 +133,19 @@ def test_a_telegram_of_the_wrong_shape_gets_its_kind(payload, kind) -> None:
 
 
 def test_a_payload_in_any_buffer_reads_as_its_bytes() -> None:
-    """The compiled reader is bound to bytes (kernel_cache.entry_point): a bytearray or
-    a memoryview is read as the bytes it holds, and what is no buffer is refused as
-    before, with a TypeError, never read."""
+    """The compiled reader is bound to bytes (kernel_cache.entry_point): a bytearray, a
+    memoryview or an array, contiguous or not, of bytes or of wider items, flat or not,
+    is read as the bytes it holds (handed on as they are, an array of 16-bit items or of
+    two rows was not read as its bytes), and what is no buffer is refused as before,
+    with a TypeError, never read."""
     payload = msgpack.packb(VALID)
     expected = CODEC.decode(payload)
-    for held in (bytearray(payload), memoryview(payload), np.frombuffer(payload, np.uint8)):
+    spread = np.zeros(2 * len(payload), dtype=np.uint8)
+    spread[::2] = np.frombuffer(payload, np.uint8)  # every other byte: not contiguous
+    assert len(payload) % 2 == 0  # (so that it fills an array of 16-bit items too)
+    for held in (bytearray(payload), memoryview(payload), np.frombuffer(payload, np.uint8),
+                 spread[::2], memoryview(spread)[::2], np.frombuffer(payload, np.int16),
+                 np.frombuffer(payload, np.uint8).reshape(2, -1)):
         got = CODEC.decode(held)
         assert got[:6] == expected[:6]
         assert got.values.tobytes() == expected.values.tobytes()

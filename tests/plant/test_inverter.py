@@ -151,3 +151,19 @@ def test_a_frame_length_outside_10_us_to_1_s_is_refused(frame_s: float,
     with pytest.raises(CommandError, match="frame length"):
         plant.advance(None, frame_s)
     assert plant.frames == before[0] and np.array_equal(plant.ms, before[1])
+
+
+def test_a_first_frame_length_of_another_number_type_changes_no_later_frame() -> None:
+    """The plant's frame call is bound at the first frame (kernel_cache.entry_point): a
+    first frame length given as a numpy float32 runs as the float it is, and every
+    later frame (Python floats) runs as on a plant whose first length was that float
+    (bound to float32, the later sub-steps had been narrowed to it)."""
+    runs = []
+    for first in (np.float32(5e-4), float(np.float32(5e-4))):
+        plant = Plant(load_trainset(TRAINSET), ideal_dc_links=True)
+        plant.impose_speed(0, 50.0)
+        plant.advance(None, first)
+        for _ in range(5):
+            plant.advance(None, 1e-3)
+        runs.append((plant.time_ns, plant.ms.tobytes(), plant.mx.tobytes()))
+    assert runs[0] == runs[1]
