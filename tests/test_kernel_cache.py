@@ -55,7 +55,7 @@ def test_an_edit_of_the_compile_options_drops_every_cached_kernel(tmp_path) -> N
 #: the kernels the rig calls from Python in a demo frame: whatever the cache holds, a
 #: demo run compiles or loads these
 DEMO_ENTRY_POINTS = {"emulator.plant.kernel.advance_frame",
-                     "emulator.rig.sampling._load_vector",
+                     "emulator.rig.command_mapping._load_vector",
                      "emulator.controller.compiled_tcu._answer_plain",
                      "emulator.rig.sampling._sample_frame",
                      "emulator.rig.record_layout._fill_row",

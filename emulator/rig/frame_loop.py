@@ -41,6 +41,7 @@ from emulator.protocol.header import (
 )
 from emulator.protocol.signal_map import build_signal_map
 from emulator.rig.clock import FrameStats, MonotonicClock
+from emulator.rig.command_mapping import CommandMapper
 from emulator.rig.link_health import LinkHealth
 from emulator.rig.lockstep import (
     LOCKSTEP_REPEAT_MAX_S,
@@ -50,7 +51,7 @@ from emulator.rig.lockstep import (
 )
 from emulator.rig.record_layout import RecordsFrames
 from emulator.rig.round_trip import RoundTrip
-from emulator.rig.sampling import CommandMapper, DriverDemand, MeasurementSampler
+from emulator.rig.sampling import DriverDemand, MeasurementSampler
 
 log = logging.getLogger(__name__)
 

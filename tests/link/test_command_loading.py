@@ -1,5 +1,5 @@
 """The rig loads a command vector into the plant in one compiled call
-(CommandMapper.load, emulator/rig/sampling._load_vector). The reference is the plant's
+(CommandMapper.load, emulator/rig/command_mapping._load_vector). The reference is the plant's
 own command intake: the vector mapped into a Commands object (CommandMapper.commands)
 and taken by Plant._apply. Both must leave the plant's inputs the same to the last bit,
 and refuse the same vectors with the same error, having loaded as much as the other."""
@@ -12,7 +12,7 @@ import pytest
 from emulator.plant import CommandError, Plant
 from emulator.plant.layout import IS_HW_TRIP
 from emulator.protocol.signal_map import build_signal_map
-from emulator.rig.sampling import CommandMapper
+from emulator.rig.command_mapping import CommandMapper
 
 INPUTS = ("iu", "lu", "ss", "ku", "ist")
 
