@@ -57,6 +57,23 @@ class Probes:
         self.trace = np.zeros((self.trace.shape[0], len(self.src)))
         self.frame = -1
 
+    def check_places(self, ss: np.ndarray, ls2: np.ndarray, lst: np.ndarray,
+                     ist: np.ndarray, ms: np.ndarray) -> None:
+        """Raise ValueError unless every probe names a value of these state arrays (the
+        compiled frame reads them unchecked: a place outside them is read out of bounds).
+        The plant asks this at the first frame after a new list."""
+        arrays = {SRC_SUPPLY: ss, SRC_LINE_CONVERTER: ls2, SRC_LINK: lst, SRC_INVERTER: ist,
+                  SRC_MOTOR: ms}
+        for i, (src, row, col) in enumerate(zip(self.src.tolist(), self.row.tolist(),
+                                                self.col.tolist(), strict=True)):
+            array = arrays.get(src)
+            if array is None:
+                raise ValueError(f"probe {i}: no state array {src} (0..{len(arrays) - 1})")
+            rows, cols = (1, array.shape[0]) if array.ndim == 1 else array.shape
+            if not (0 <= row < rows and 0 <= col < cols):
+                raise ValueError(f"probe {i}: row {row}, column {col} outside the "
+                                 f"{rows} x {cols} of state array {src}")
+
     def rows_for(self, n_sub: int) -> np.ndarray:
         """The trace, with room for n_sub sub-steps."""
         if self.trace.shape[0] < n_sub:

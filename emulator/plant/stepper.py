@@ -138,10 +138,12 @@ class Plant:
             self._n_sub = max(1, math.ceil(frame / self.substep_s - 1e-9))
             self._h = float(frame) / self._n_sub  # (a Python float: the frame call's h)
             self._last_frame = frame
+        probes = self.probes
+        if probes.frame < 0:  # a list new since the last frame (or the first): in range?
+            probes.check_places(self.ss, self.ls2, self.lst, self.ist, self.ms)
         if commands is not None:
             self._apply(commands)
         n_sub, h = self._n_sub, self._h
-        probes = self.probes
         ring = self._pq_ring
         args = (n_sub, h, self.time_s, self.refresh_each_substep, *self._state_arrays,
                 probes.src, probes.row, probes.col, probes.rows_for(n_sub), self.cols, ring,

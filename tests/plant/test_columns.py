@@ -55,7 +55,7 @@ from emulator.plant.machine import (
     torque,
 )
 from emulator.plant.machine_columns import held_voltage_step
-from emulator.plant.probe import SRC_INVERTER
+from emulator.plant.probe import SRC_INVERTER, SRC_MOTOR, SRC_SUPPLY
 from emulator.plant.shaft import contact_forces, load_contact_columns
 from emulator.profiles.reader import load_trainset
 
@@ -260,3 +260,24 @@ def test_a_probe_list_is_three_flat_lists_of_one_length() -> None:
             plant.probes.set(src, row, col)
     plant.advance(Commands(np.full((1, 3), 0.5), np.ones(1, dtype=bool)))
     assert plant.probes.trace.shape == (plant.probes.n_sub, 2)
+
+
+def test_a_probe_outside_the_state_arrays_is_refused_at_the_next_frame() -> None:
+    """The compiled frame reads the probes' places unchecked (an out-of-range row read
+    out of bounds and crashed the process): a place outside its state array, or an
+    array that is none of the five, is refused at the next frame, before anything of
+    the frame is done, until the list is mended."""
+    plant = Plant.test_bench(machine_profile("textbook-3hp"), dc_link_v=400.0)
+    plant.advance(None)
+    state = (plant.frames, plant.ms.tobytes())
+    motors, columns = plant.ms.shape
+    for src, row, col in ((SRC_MOTOR, motors, 0), (SRC_MOTOR, 0, columns),
+                          (SRC_MOTOR, -1, 0), (SRC_INVERTER, 10**12, 0), (7, 0, 0),
+                          (SRC_SUPPLY, 0, len(plant.ss))):
+        plant.probes.set([src], [row], [col])
+        with pytest.raises(ValueError, match="probe 0"):
+            plant.advance(None)
+        assert (plant.frames, plant.ms.tobytes()) == state
+    plant.probes.set([SRC_MOTOR, SRC_SUPPLY], [motors - 1, 0], [columns - 1, len(plant.ss) - 1])
+    plant.advance(None)  # the last places of both shapes: read
+    assert plant.frames == state[0] + 1
