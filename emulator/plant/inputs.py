@@ -85,4 +85,3 @@ def load_line_commands(mod, gates, pre, line, breaker, chopper, lu, ss, ku) -> i
         ku[j, KU_CHOPPER] = chopper[j]
     ss[SS_BREAKER_CMD] = breaker
     return COMMAND_OK
-

@@ -154,8 +154,8 @@ class CommandMapper:
         """The controller's train-interface replies."""
         p = self._reply_pos
         achieved, available, status, code = values[p:p + 4].tolist()
-        return {"achieved_effort_kn": achieved, "available_effort_kn": available,
-                "status": int(status), "event_code": int(code)}
+        return dict(zip(self.REPLIES, (achieved, available, int(status), int(code)),
+                        strict=True))
 
     def reply_positions(self) -> dict[str, int]:
         """Where each reply (REPLIES) is in a command vector."""

@@ -34,23 +34,22 @@ class BrakeUnit:
         self.vented_frames = 0
         #: the last apply() released the brake (the plant's demands are zero, no valve
         #: vents: the unit is the only writer of the plant's brake demands), so another
-        #: release has nothing to change: the driver releases every frame it does not
-        #: brake, and skips the call while this is so
-        self.released = False
+        #: release has nothing to change: the driver releases every frame it does not brake
+        self._released = False
 
     def apply(self, force_n: float) -> None:
         """Demand force_n of the train's friction brake this frame, with the dump valves
         of the sliding axles open."""
         plant = self.plant
         if force_n <= 0.0 or not self.enabled:
-            if force_n <= 0.0 and self.released:
+            if force_n <= 0.0 and self._released:
                 return
             self.vent[:] = 0.0
             self.v_ref = None
             plant.set_brake_force(max(force_n, 0.0))
-            self.released = force_n <= 0.0
+            self._released = force_n <= 0.0
             return
-        self.released = False
+        self._released = False
         wheels = np.abs(plant.read("motor.wheelset_speed_rad_s")) * self.radius
         fastest = float(wheels.max())
         if self.v_ref is None:

@@ -253,9 +253,7 @@ class DriverProgram:
                 self._begin(j, t, x, v)
                 step = steps[j]
         ceiling = self.track.ceiling(x, v) if self.track is not None else math.inf
-        brakes = self._brakes
-        if brakes is None or not brakes.released or brakes.plant is not plant:
-            self._friction_brake(plant, 0.0)  # (released already: nothing to change)
+        self._friction_brake(plant, 0.0)
         if step.mode == "off":
             return "off", 0.0
         if step.mode == "hold":
