@@ -108,9 +108,14 @@ class VectorControl:
         return self.state[vk.V_LIMITED] > 0.5
 
     def reset(self) -> None:
-        """Forget the flux model, integrators and the voltage in flight (gates blocked)."""
+        """Forget the flux model, integrators and the voltage in flight (at the start)."""
         self.state[:] = 0.0
         self.state[vk.V_PREV_TURN_RE] = 1.0
+
+    def coast(self) -> None:
+        """A period with the gates blocked: forget the integrators and the voltage in
+        flight; the flux model decays with the rotor (vector_kernel.coast)."""
+        vk.coast(self.state, self.consts, self.curve.i, self.curve.psi)
 
     def flux_for(self, torque: float, w_e: float, u_room: float) -> float:
         """The largest rotor flux, at most rated, at which the steady state of this torque

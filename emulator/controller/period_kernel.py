@@ -149,7 +149,6 @@ from .period_parts import (
     raise_event,
     sequence_step,
     sequence_trip,
-    vector_reset,
 )
 from .pll import DEAD_SAMPLES
 
@@ -407,8 +406,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                 row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_FLUX_DECAY_S])
             row[I_ENABLED_FOR] = 0.0
             row[I_RELEASED] = 0.0 if demanded else 1.0
-            if k[K_VECTOR] > 0.0:
-                vector_reset(vc_state[kk])
+            if k[K_VECTOR] > 0.0:  # (VectorControl.coast)
+                vk.coast(vc_state[kk], vc_consts[kk], curve_i, curve_psi)
             out[xi[kk, XI_DUTY_A]] = 0.5
             out[xi[kk, XI_DUTY_B]] = 0.5
             out[xi[kk, XI_DUTY_C]] = 0.5

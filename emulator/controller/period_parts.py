@@ -25,7 +25,6 @@ import numba as nb
 from emulator.kernel_cache import WITHOUT_RUNTIME
 
 from . import pll
-from . import vector_kernel as vk
 
 compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
@@ -441,9 +440,3 @@ def link_step(lk, k, link, xc, y, out, u_applied, u_d, theta, omega, u_sec_peak,
         out[xc[j, XC_MOD_OUT]] = m
     return chopper_duty(k[K_LINK_NOMINAL], u_d)
 
-
-@compiled
-def vector_reset(v):
-    """VectorControl.reset."""
-    v[:] = 0.0
-    v[vk.V_PREV_TURN_RE] = 1.0

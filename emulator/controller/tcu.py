@@ -379,7 +379,7 @@ class ReferenceController(SignalPositions):
                 self.enabled_for[k] = 0.0
                 self.released[k] = not demanded
                 if self.vector is not None:
-                    self.vector[k].reset()
+                    self.vector[k].coast()
                 for i in duty_ix:
                     out[i] = 0.5
             out[self.ox_gates[k]] = float(active)
