@@ -9,6 +9,7 @@ import numpy as np
 from . import layout as L  # noqa: N812 (the layout reads as a namespace)
 from .columns import column_buffer
 from .drivetrain import RAIL_CONDITIONS
+from .inverter import ripple_inductance
 from .params import TrainsetParams
 
 
@@ -111,6 +112,7 @@ def build_motor_side(plant, params: TrainsetParams) -> None:
         row[L.IP_TH_GHA] = ip.heatsink_coolant_w_per_k
         row[L.IP_THERMAL_ON] = 1.0 if ip.thermal else 0.0
         row[L.IP_I_TRIP] = ip.hardware_trip_a
+        row[L.IP_L_RIPPLE] = ripple_inductance(plant.mpar[plant.iint[k, L.II_FIRST_MOTOR]:m])
         row[L.IP_HW_ON] = 1.0
         plant.ist[k, L.IS_T_J] = ambient
         plant.ist[k, L.IS_T_H] = ambient

@@ -34,15 +34,17 @@ from .columns import (
     get_c,
     put_c,
 )
-from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents
+from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents, ripple_peaks
 from .jit import compiled_inline
 from .layout import (
     II_FIRST_MOTOR,
     II_LINK,
     II_MOTOR_COUNT,
     II_SOURCE,
+    IP_FSW,
     IP_HW_ON,
     IP_I_TRIP,
+    IP_L_RIPPLE,
     IP_VF0,
     IS_E_COND,
     IS_E_DC,
@@ -260,10 +262,19 @@ def inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, 
     # at a sub-step's end blocks the gates from the next sub-step and latches until the
     # controller resets it. Real comparators act within microseconds; here the block
     # comes up to a sub-step later, an overshoot of about di/dt h (100-150 A on the Tern
-    # at 125 us), and the comparator also sees diode currents with the gates blocked
-    if (ipar[k, IP_HW_ON] > 0.5 and source != SOURCE_SINE
-            and max(abs(ia), abs(ib), abs(ic)) > ipar[k, IP_I_TRIP]):
-        ist[k, IS_HW_TRIP] = 1.0
+    # at 125 us), and the comparator also sees diode currents with the gates blocked.
+    # It sees the instantaneous current: the average plus the PWM ripple's peak at the
+    # sub-step's duties (inverter.ripple_peaks), worked out only where the largest
+    # ripple there can be, 2/3 U_dc over half a carrier period, could reach the threshold
+    if ipar[k, IP_HW_ON] > 0.5 and source != SOURCE_SINE:
+        trip_a = ipar[k, IP_I_TRIP]
+        largest = max(abs(ia), abs(ib), abs(ic))
+        if not blocked and largest + udc / (3.0 * ipar[k, IP_FSW] * ipar[k, IP_L_RIPPLE]) > trip_a:
+            ra, rb, rc = ripple_peaks(c[IW_S_A * W + k], c[IW_S_B * W + k], c[IW_S_C * W + k],
+                                      udc, ipar[k, IP_L_RIPPLE], ipar[k, IP_FSW])
+            largest = max(abs(ia) + ra, abs(ib) + rb, abs(ic) + rc)
+        if largest > trip_a:
+            ist[k, IS_HW_TRIP] = 1.0
     if source != SOURCE_SINE:
         p_sw = c[IW_P_SW * W + k]
         ja, jb, jc = phase_currents(int_i)  # integrals of the phase currents, A s

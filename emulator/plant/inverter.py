@@ -28,9 +28,12 @@ of ripple on each phase current at the rated point (about +-36 % of the fundamen
 with the two motors' leakage inductance in parallel: a carrier-based PWM simulation
 outside the plant, 2026-12-04); here the currents are the switching-period averages. So
 the current sensors read ripple-free values (what a board sampling in step with its
-carrier reads); the gate drivers' overcurrent comparator (kernel.py) compares the
-average with its threshold, where a real detector sees the peak (on the Tern it would
-act near 1420 A of average, not 1600); and the dead time's error changes sign across
+carrier reads). The gate drivers' overcurrent comparator (drive_substep.py) adds the
+ripple's peak (ripple_peaks, for a centre-aligned carrier with the duties held over its
+period) to the average, as a real detector sees the peak: at 0.9 of the linear
+modulation the Tern's phases carry up to 160 A of it, so the drivers act from about
+1440 A of average, not 1600. A board with another pattern (discontinuous PWM, or duties
+updated twice a carrier period) has other peaks. The dead time's error changes sign across
 ``sign_band_a`` (5 A on the Tern), where with the ripple it changes across the ripple's
 amplitude, so dead-time compensation tuned here over-compensates near zero crossings
 on a real drive (Holmes & Lipo, ch. 5-6; Munoz & Lipo, IEEE TPEL 14(4), 1999; from
@@ -44,6 +47,7 @@ import math
 
 import numpy as np
 
+from . import layout as L  # noqa: N812
 from .jit import compiled, compiled_inline
 from .layout import (
     IP_ESW,
@@ -110,6 +114,58 @@ def leg_average(ipar: np.ndarray, k: int, duty: float, i: float, udc: float):
     p_sw = (ipar[k, IP_FSW] * ipar[k, IP_ESW] * (udc / ipar[k, IP_ESW_VREF])
             * (ai / ipar[k, IP_ESW_IREF]))
     return v_x0, d_eff, v_drop, p_sw
+
+
+def ripple_inductance(mpar: np.ndarray) -> float:
+    """The inductance an inverter's PWM ripple sees, H: its motors' transient
+    inductances sigma L_s = L_ls + L_m L_lr / (L_m + L_lr) in parallel (the carrier's
+    harmonics meet the leakage paths; the unsaturated L_m: Holmes & Lipo, 2003, ch. 5)."""
+    lm, lls, llr = mpar[:, L.MP_LM], mpar[:, L.MP_LLS], mpar[:, L.MP_LLR]
+    return float(1.0 / np.sum(1.0 / (lls + lm * llr / (lm + llr))))
+
+
+@compiled_inline
+def ripple_peaks(d_a: float, d_b: float, d_c: float, udc: float, l_ripple: float,
+                 f_sw: float):
+    """The largest deviation of each phase current from its switching-period average, A,
+    under a symmetric (centre-aligned) triangular carrier with the duties held over the
+    carrier period, a star-connected load of inductance ``l_ripple`` and a back-EMF
+    that does not change within the period (Holmes & Lipo, *Pulse Width Modulation for
+    Power Converters*, 2003, ch. 5, the current ripple of regular-sampled PWM).
+
+    In the first half period [0, T/2] leg x is low until t_x = (1 - d_x) T/2 and high
+    after it (the second half mirrors it). The phase voltage is v_xn = U (h_x - (h_a +
+    h_b + h_c)/3), h the legs' states, and the ripple r_x(t) = (1/L) int_0^t (v_xn -
+    mean v_xn) dt, piecewise linear: zero at 0 and T/2, and -r_x(T - t) in the second
+    half, so its extremes are at the switching instants of the first half."""
+    half = 0.5 / f_sw
+    d0 = min(max(d_a, 0.0), 1.0)
+    d1 = min(max(d_b, 0.0), 1.0)
+    d2 = min(max(d_c, 0.0), 1.0)
+    mean = (d0 + d1 + d2) / 3.0
+    t0, t1, t2 = (1.0 - d0) * half, (1.0 - d1) * half, (1.0 - d2) * half
+    k = udc / l_ripple
+    r0 = r1 = r2 = 0.0  # the ripple of each phase at the instant reached, A
+    p0 = p1 = p2 = 0.0  # its largest magnitude so far
+    h0 = h1 = h2 = 0.0  # the legs' states
+    t = 0.0
+    for _ in range(3):  # the three switching instants in order
+        nxt = min(t0 if h0 == 0.0 else half, t1 if h1 == 0.0 else half,
+                  t2 if h2 == 0.0 else half)
+        dt = nxt - t
+        s = (h0 + h1 + h2) / 3.0
+        r0 += k * ((h0 - s) - (d0 - mean)) * dt
+        r1 += k * ((h1 - s) - (d1 - mean)) * dt
+        r2 += k * ((h2 - s) - (d2 - mean)) * dt
+        p0, p1, p2 = max(p0, abs(r0)), max(p1, abs(r1)), max(p2, abs(r2))
+        t = nxt
+        if h0 == 0.0 and t0 <= t:
+            h0 = 1.0
+        elif h1 == 0.0 and t1 <= t:
+            h1 = 1.0
+        elif h2 == 0.0 and t2 <= t:
+            h2 = 1.0
+    return p0, p1, p2
 
 
 @compiled_inline

@@ -155,7 +155,9 @@ IP_THERMAL_ON = 14
 IP_I_TRIP = 15  # hardware overcurrent / desaturation trip of the gate drivers, A (peak of a
 # phase current; inf: not fitted)
 IP_HW_ON = 16  # 1 the hardware trip acts, 0 it fails to act (a fault)
-IP_N = 17
+IP_L_RIPPLE = 17  # the inductance the PWM ripple sees: the motors' transient inductances
+# sigma L_s = L_ls + L_m L_lr / (L_m + L_lr) in parallel, H
+IP_N = 18
 
 # --- inverter integer data: int64 [n_inv, II_N] ---------------------------------------
 II_LINK = 0  # DC link index
