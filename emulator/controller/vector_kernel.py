@@ -66,20 +66,22 @@ def coast(v, k, curve_i, curve_psi):
     """A period with the gates blocked. The integrators, the observer and the voltage in
     flight are forgotten; the flux model goes on with the stator current zero: the rotor
     d circuit tau_r dpsi_r/dt = L_m i_d - psi_r with i_d = 0 (the step's own rotor
-    circuit, the curve's magnetising current for L_m i_d), so the flux decays with the
-    open-circuit time constant and turns with the rotor, no slip: the field angle, the
-    counted rotor angle plus the slip integrated so far, holds (Novotny & Lipo, 1996,
-    ch. 5, the rotor circuit with the stator current zero). A drive started again within
-    a few tau_r of its stop meets its rotor's flux where its model has it: a model reset
-    to zero had met it with the 5 % floor's back-EMF at the wrong angle (1.4 kA at a
-    restart 0.2 s after a trip at 50 km/h, running 0.69 kA)."""
-    psi_r, slip = v[V_PSI_R], v[V_THETA_SLIP]
+    circuit, in which the curve's magnetising current stands for psi_r / L_m: the decay
+    takes the secant L_m), so the flux decays with the open-circuit time constant and
+    turns with the rotor, no slip: the field angle, the counted rotor angle plus the slip
+    integrated so far, holds (Novotny & Lipo, 1996, ch. 5, the rotor circuit with the
+    stator current zero). The field-weakening loop's correction, learnt for this machine
+    and speed, is kept too. A drive started again within a few tau_r of its stop meets
+    its rotor's flux where its model has it: a model reset to zero had met it with the
+    5 % floor's back-EMF at the wrong angle (1.4 kA at a restart 0.2 s after a trip at
+    50 km/h, running 0.69 kA)."""
+    psi_r, slip, dpsi = v[V_PSI_R], v[V_THETA_SLIP], v[V_DPSI]
     lm, lr, _, _, _ = machine(k, curve_i, curve_psi, psi_r)
     psi_r = max(psi_r - k[K_T] * k[K_RR] * lm / lr
                 * magnetising_current(psi_r, curve_i, curve_psi), 0.0)
     v[:] = 0.0
     v[V_PREV_TURN_RE] = 1.0
-    v[V_PSI_R], v[V_THETA_SLIP] = psi_r, slip
+    v[V_PSI_R], v[V_THETA_SLIP], v[V_DPSI] = psi_r, slip, dpsi
 
 
 @compiled

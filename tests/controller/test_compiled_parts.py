@@ -172,6 +172,24 @@ def test_vector_step_compiled_and_plain_agree_over_a_start() -> None:
     # the paths ran: the flux model, the observer and the prediction moved
     assert a[vk.V_PSI_R] > 0.0 and a[vk.V_HAS_EXPECTED] == 1.0
     assert abs(complex(a[vk.V_DU_RE], a[vk.V_DU_IM])) > 1.0
+    # then 300 periods with the gates blocked (vector_kernel.coast): the same again, and
+    # the flux decays as the rotor circuit's exponential with the stator current zero,
+    # psi (1 - T / tau_r) per period with tau_r = (L_m + L_lr) / R_r at the secant L_m
+    # (Novotny & Lipo, ch. 5); the angle and the field-weakening correction are kept
+    a[vk.V_PSI_R] = b[vk.V_PSI_R] = start = control.psi_rated  # (the start's is small)
+    a[vk.V_DPSI] = b[vk.V_DPSI] = -0.1  # (a start below base speed has none)
+    kept = a[[vk.V_THETA_SLIP, vk.V_DPSI]].copy()
+    for _ in range(300):
+        psi = a[vk.V_PSI_R]
+        lm = vk.machine(control.consts, *args[1:], psi)[0]
+        tau_r = (lm + control.cfg.rotor_leakage_h) / control.rr
+        vk.coast(a, *args)
+        vk.coast.py_func(b, *args)
+        np.testing.assert_allclose(a, b, rtol=1e-9, atol=1e-9)
+        assert a[vk.V_PSI_R] == pytest.approx(psi * (1.0 - control.T / tau_r), rel=1e-12)
+    assert a[vk.V_PSI_R] < 0.8 * start  # (it decayed)
+    assert np.array_equal(a[[vk.V_THETA_SLIP, vk.V_DPSI]], kept) and kept[0] != 0.0
+    assert a[vk.V_HAS_EXPECTED] == a[vk.V_DU_RE] == a[vk.V_U_SENT_RE] == 0.0
 
 
 def test_the_kernel_knows_the_trips_the_protocol_names() -> None:
