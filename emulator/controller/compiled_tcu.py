@@ -203,6 +203,7 @@ class CompiledController(ref.ReferenceController):
         inv[:, pp.I_LINK] = cfg.inverter_links
         inv[:, pp.I_N_MOTORS] = cfg.n_motors_per_inverter
         inv[:, pp.I_FIRST_MOTOR] = np.cumsum((0, *cfg.n_motors_per_inverter[:-1]))
+        inv[:, pp.I_ANGLE_SOURCE] = [(1 << n) - 1 for n in cfg.n_motors_per_inverter]
         return inv
 
     def _link_rows(self) -> np.ndarray:

@@ -40,7 +40,6 @@ from .period_parts import (
     I_DEMANDED_AT,
     I_ENABLED_FOR,
     I_FACTOR,
-    I_FALLBACK_ANGLE,
     I_FIRST_MOTOR,
     I_LINK,
     I_N_MOTORS,
@@ -81,9 +80,7 @@ from .period_parts import (
     LINE_UNDERVOLTAGE,
     LINK_OVERVOLTAGE,
     LINK_WATCHDOG,
-    M_ANGLE,
     M_DIFFERENCES,
-    M_OK,
     M_SPEED,
     M_SPEED_SHORT,
     MOTOR_OVERTEMPERATURE,
@@ -147,6 +144,7 @@ from .period_parts import (
     pll_update,
     power_limits,
     raise_event,
+    rotor_angle,
     sequence_step,
     sequence_trip,
 )
@@ -340,16 +338,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             stator_degc += y[xm[a, XM_TEMPERATURE]]
         motor_speed = motor_speed / n_m
         stator_degc = stator_degc / n_m
-        angle_sum, n_healthy = 0.0, 0
-        for a in range(first, first + n_m):
-            if mot[a, M_OK] > 0.0:
-                angle_sum += mot[a, M_ANGLE]
-                n_healthy += 1
-        if n_healthy:
-            angle = angle_sum / n_healthy
-        else:
-            row[I_FALLBACK_ANGLE] = row[I_FALLBACK_ANGLE] + motor_speed * period_s
-            angle = row[I_FALLBACK_ANGLE]
+        angle = rotor_angle(row, mot, first, n_m, motor_speed, period_s)
         if line_side and torque * motor_speed > 0:  # motoring
             sag = min(max((u_d - 0.75 * k[K_LINK_NOMINAL])
                           / (0.15 * k[K_LINK_NOMINAL]), 0.0), 1.0)

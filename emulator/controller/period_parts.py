@@ -55,7 +55,8 @@ SQRT2 = math.sqrt(2)
 # per inverter
 (I_ENABLED_FOR, I_BLOCK_UNTIL, I_LATCHED, I_DEMANDED_AT, I_RELEASED, I_N_TRIPS, I_TRIP_0,
  I_TRIP_1, I_TRIP_2, I_FALLBACK_ANGLE, I_FACTOR, I_LINK, I_N_MOTORS, I_FIRST_MOTOR,
- I_UNDERVOLTED, I_RESTART_AFTER, N_I) = range(17)
+ I_UNDERVOLTED, I_RESTART_AFTER, I_ANGLE_USED, I_ANGLE_SHIFT, I_ANGLE_SOURCE,
+ N_I) = range(20)
 # per DC link
 (L_INTEGRAL, L_POWER_REF, L_U_RAMP, L_HAS_RAMP, L_HAS_APPLIED, L_HAS_NOTCH, L_X1, L_X2,
  L_Y1, L_Y2, L_KP, L_KI, L_I_MAX, L_N, L_P_RATED, L_ON_LINK, N_L) = range(17)
@@ -269,6 +270,29 @@ def encoder_update(row, k, count):
 
 
 # --- speed_plausibility.SpeedPlausibility ------------------------------------------------
+@compiled
+def rotor_angle(row, mot, first, n_m, speed, period_s):
+    """SpeedPlausibility.rotor_angle for the inverter of ``row``, its motors from
+    ``first``."""
+    source, total, healthy = 0, 0.0, 0
+    for j in range(n_m):
+        if mot[first + j, M_OK] > 0.0:
+            source |= 1 << j
+            total += mot[first + j, M_ANGLE]
+            healthy += 1
+    if healthy:
+        raw = total / healthy
+    else:  # (SpeedPlausibility.fallback_angle)
+        row[I_FALLBACK_ANGLE] = row[I_FALLBACK_ANGLE] + speed * period_s
+        raw = row[I_FALLBACK_ANGLE]
+    if source != row[I_ANGLE_SOURCE]:
+        row[I_ANGLE_SHIFT] = (row[I_ANGLE_USED] + speed * period_s) - raw
+        row[I_ANGLE_SOURCE] = source
+    angle = raw + row[I_ANGLE_SHIFT]
+    row[I_ANGLE_USED] = angle
+    return angle
+
+
 @compiled
 def judge(mot, k):
     """SpeedPlausibility.judge: True if an encoder failed now."""

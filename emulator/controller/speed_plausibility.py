@@ -25,6 +25,11 @@ class SpeedPlausibility:
         self.ok = [True] * first
         self._last: list[float | None] = [None] * first
         self._fallback_angle: dict[int, float] = {}
+        # per inverter: the angle used last, its shift from the source's, and the source
+        # (a bit per healthy encoder of its motors; 0: the fallback)
+        self._angle_used = [0.0] * len(self.groups)
+        self._angle_shift = [0.0] * len(self.groups)
+        self._angle_source = [(1 << len(g)) - 1 for g in self.groups]
 
     def judge(self, raw: list[float]) -> bool:
         """Mark the encoders whose raw speed jumped implausibly; True if one failed now."""
@@ -51,6 +56,31 @@ class SpeedPlausibility:
                     out[a] = (sum(own) / len(own) if own
                               else sum(healthy) / len(healthy) if healthy else readings[a])
         return out
+
+    def rotor_angle(self, inverter: int, angles: list[float], speed: float,
+                    period_s: float) -> float:
+        """The rotor angle inverter's control uses this period: the mean of its healthy
+        encoders' counted angles (``angles``, one per motor of it), or the fallback's
+        where none is left, shifted so that it carries on where the encoders it is
+        taken from change. At a change the angle used last, advanced by the speed over
+        the period, is where the new source is made to start: a mean that loses one of
+        two motors jumps by half their angles' difference, and the fallback starts from
+        its own zero, either a step of the field angle under a running drive."""
+        group = self.groups[inverter]
+        source, total, healthy = 0, 0.0, 0
+        for j, a in enumerate(group):
+            if self.ok[a]:
+                source |= 1 << j
+                total += angles[j]
+                healthy += 1
+        raw = (total / healthy if healthy
+               else self.fallback_angle(inverter, speed, period_s))
+        if source != self._angle_source[inverter]:
+            self._angle_shift[inverter] = (self._angle_used[inverter] + speed * period_s) - raw
+            self._angle_source[inverter] = source
+        angle = raw + self._angle_shift[inverter]
+        self._angle_used[inverter] = angle
+        return angle
 
     def fallback_angle(self, inverter: int, speed: float, period_s: float) -> float:
         """A rotor angle for an inverter whose encoders have all failed: integrated from

@@ -331,9 +331,9 @@ class ReferenceController(SignalPositions):
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
             stator_degc = (sum(y[self.ix_temp[a]] for a in range(first, first + n_mot)) / n_mot
                            if self.vector is None else 0.0)  # (V/f: its torque estimate)
-            healthy = [a for a in range(first, first + n_mot) if self.speed_check.ok[a]]
-            angle = (sum(self.encoders[a].angle for a in healthy) / len(healthy) if healthy
-                     else self.speed_check.fallback_angle(k, motor_speed, period_s))
+            angle = self.speed_check.rotor_angle(
+                k, [self.encoders[a].angle for a in range(first, first + n_mot)],
+                motor_speed, period_s)
             torque = line_limited_torque(
                 torque, motor_speed, n_mot, u_d, cfg.link_nominal_v,
                 None if p_draw is None else p_draw[link],
