@@ -34,7 +34,14 @@ from .columns import (
     get_c,
     put_c,
 )
-from .inverter import blocked_bridge, clarke_vec, leg_average, phase_currents, ripple_peaks
+from .inverter import (
+    RIPPLE_BOUND,
+    blocked_bridge,
+    clarke_vec,
+    leg_average,
+    phase_currents,
+    ripple_peaks,
+)
 from .jit import compiled_inline
 from .layout import (
     II_FIRST_MOTOR,
@@ -264,12 +271,13 @@ def inverter_substep(k, h, mpar, mint, mu, ms, mx, ipar, iint, iu, ist, lst, v, 
     # comes up to a sub-step later, an overshoot of about di/dt h (100-150 A on the Tern
     # at 125 us), and the comparator also sees diode currents with the gates blocked.
     # It sees the instantaneous current: the average plus the PWM ripple's peak at the
-    # sub-step's duties (inverter.ripple_peaks), worked out only where the largest
-    # ripple there can be, 2/3 U_dc over half a carrier period, could reach the threshold
+    # sub-step's duties (inverter.ripple_peaks), worked out only where the ripple's
+    # bound (inverter.RIPPLE_BOUND: U_dc / (12 f_sw L) at most) could reach the threshold
     if ipar[k, IP_HW_ON] > 0.5 and source != SOURCE_SINE:
         trip_a = ipar[k, IP_I_TRIP]
         largest = max(abs(ia), abs(ib), abs(ic))
-        if not blocked and largest + udc / (3.0 * ipar[k, IP_FSW] * ipar[k, IP_L_RIPPLE]) > trip_a:
+        if not blocked and largest + RIPPLE_BOUND * udc / (
+                ipar[k, IP_FSW] * ipar[k, IP_L_RIPPLE]) > trip_a:
             ra, rb, rc = ripple_peaks(c[IW_S_A * W + k], c[IW_S_B * W + k], c[IW_S_C * W + k],
                                       udc, ipar[k, IP_L_RIPPLE], ipar[k, IP_FSW])
             largest = max(abs(ia) + ra, abs(ib) + rb, abs(ic) + rc)

@@ -124,6 +124,13 @@ def ripple_inductance(mpar: np.ndarray) -> float:
     return float(1.0 / np.sum(1.0 / (lls + lm * llr / (lm + llr))))
 
 
+#: the largest ripple there is, in units of U_dc / (f_sw L): each leg's integral of
+#: (h - d) over the first half period lies in [-d (1 - d) T/2, 0], within [-T/8, 0], and
+#: r_x = (U/L) (2/3 g_x - 1/3 (g_y + g_z)), so |r_x| <= U T / (12 L), reached at duties
+#: (0, 0, 1/2) (tests/plant/test_pwm_ripple.py)
+RIPPLE_BOUND = 1.0 / 12.0
+
+
 @compiled_inline
 def ripple_peaks(d_a: float, d_b: float, d_c: float, udc: float, l_ripple: float,
                  f_sw: float):
@@ -137,7 +144,14 @@ def ripple_peaks(d_a: float, d_b: float, d_c: float, udc: float, l_ripple: float
     after it (the second half mirrors it). The phase voltage is v_xn = U (h_x - (h_a +
     h_b + h_c)/3), h the legs' states, and the ripple r_x(t) = (1/L) int_0^t (v_xn -
     mean v_xn) dt, piecewise linear: zero at 0 and T/2, and -r_x(T - t) in the second
-    half, so its extremes are at the switching instants of the first half."""
+    half, so its extremes are at the switching instants of the first half.
+
+    What a comparator of the average plus this peak makes of it: it trips at the first
+    sub-step where the peak would pass the threshold, where a real one trips at the
+    carrier period's own peak (on a slow rise up to a carrier period later); the
+    leakage inductance is the unsaturated one (it falls at trip-level currents, and the
+    ripple grows); and an open phase leaves no balanced star, for which the one
+    inductance does not hold."""
     half = 0.5 / f_sw
     d0 = min(max(d_a, 0.0), 1.0)
     d1 = min(max(d_b, 0.0), 1.0)
