@@ -2,14 +2,17 @@
 on a scheduler and workers started as processes of their own, with a worker killed, and
 interrupted with Ctrl-C then resumed.
 
-What a campaign's runs must give comes from ``railrig run``: each of the 2 x 2 runs
+What a campaign's runs must give comes from the runs one by one: each of the 2 x 2 runs
 (the wet rail's factor x the seed) written as a scenario file of its own, by text, not
-by the campaign's code, and run one by one. The verdicts and the recordings' frame
-digests must be the same (lockstep with the reference controller is deterministic).
+by the campaign's code, and run as ``railrig run --seed --record`` runs it (its
+``run_scenario`` with the reference controller, here in the test's process: the command
+itself is tests/commands/test_run.py's). The verdicts and the recordings' frame digests
+must be the same (lockstep with the reference controller is deterministic).
 """
 
 from __future__ import annotations
 
+import asyncio
 import csv
 import os
 import signal
@@ -22,6 +25,7 @@ from pathlib import Path
 import pytest
 
 from emulator.recording.recorder import read_recording
+from emulator.scenario import load_scenario, run_scenario
 
 from .conftest import CAMPAIGN, short_start
 
@@ -43,7 +47,7 @@ def _rows(out: Path) -> list[dict[str, str]]:
 
 @pytest.fixture(scope="module")
 def one_by_one(tmp_path_factory) -> dict[tuple[float, int], tuple[str, str]]:
-    """(factor, seed) -> (verdict, frame digest) of ``railrig run`` on each run alone."""
+    """(factor, seed) -> (verdict, frame digest) of each run alone."""
     where = tmp_path_factory.mktemp("one-by-one")
     found = {}
     for factor in FACTORS:
@@ -51,10 +55,9 @@ def one_by_one(tmp_path_factory) -> dict[tuple[float, int], tuple[str, str]]:
         scenario.write_text(short_start(factor), encoding="utf-8")
         for seed in SEEDS:
             rec = where / f"{factor}-{seed}.rrec"
-            done = _railrig("run", str(scenario), "--seed", str(seed), "--record", str(rec),
-                            cwd=where)
-            assert done.returncode in (0, 1), done.stderr
-            found[factor, seed] = ("pass" if done.returncode == 0 else "fail",
+            run = asyncio.run(run_scenario(load_scenario(scenario), controller="reference",
+                                           seed=seed, record=rec))
+            found[factor, seed] = ("pass" if run.passed else "fail",
                                    read_recording(rec).frames_digest())
     # both verdicts occur, so agreeing with them is not agreeing with a constant
     assert {v for v, _ in found.values()} == {"pass", "fail"}
