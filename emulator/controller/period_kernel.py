@@ -130,13 +130,10 @@ from .period_parts import (
     adhesion_step,
     chopper_duty,
     dead_samples,
-    encoder_update,
-    fill,
     gear_efficiency,
     guard_judge,
     guard_link,
     guard_ready_share,
-    judge,
     link_power,
     link_reset,
     link_step,
@@ -144,10 +141,10 @@ from .period_parts import (
     pll_update,
     power_limits,
     raise_event,
-    rotor_angle,
     sequence_step,
     sequence_trip,
 )
+from .period_sensing import encoder_update, fill, judge, rotor_angle
 from .pll import DEAD_SAMPLES
 
 compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)

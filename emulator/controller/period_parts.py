@@ -1,9 +1,10 @@
 """The compiled reference controller's parts and the layout of its state: what the
-classes tcu.py composes do (pll.SogiPll, sequence.SwitchOnSequence, encoder.EncoderSpeed,
-speed_plausibility.SpeedPlausibility, adhesion.AdhesionControl, line_converter's
-LinkControl and functions, effort's functions), as numba functions on arrays.
-period_kernel.period composes them into the whole period. Each function names the
-method it mirrors; the reasons behind each rule are given there, not repeated.
+classes tcu.py composes do (pll.SogiPll, sequence.SwitchOnSequence,
+adhesion.AdhesionControl, line_converter's LinkControl and functions, effort's
+functions), as numba functions on arrays; the encoders' and their plausibility's are in
+period_sensing.py. period_kernel.period composes them into the whole period. Each
+function names the method it mirrors; the reasons behind each rule are given there, not
+repeated.
 
 Layout (filled by compiled_tcu.CompiledController):
 - ``g``: the train-level state (G_*), the PLL's, the sequence's and the adhesion's;
@@ -233,108 +234,6 @@ def sequence_step(g, k, breaker_closed, precharge_closed, line_closed, link_min_
     return (s in (BREAKER, PRECHARGE, LINE, RUNNING),
             s == PRECHARGE or (s == LINE and not line_closed),
             s in (LINE, RUNNING))
-
-
-# --- encoder.EncoderSpeed.update ----------------------------------------------------------
-@compiled
-def encoder_update(row, k, count):
-    """One motor's counter value: angle, speeds (windowed, short, raw)."""
-    modulus = 65536
-    c = int(count) % modulus
-    if row[M_HAS_LAST] == 0.0:
-        row[M_LAST], row[M_HAS_LAST] = c, 1.0
-        return
-    delta = (c - int(row[M_LAST]) + modulus // 2) % modulus - modulus // 2
-    row[M_LAST] = c
-    rpc, T = k[K_RAD_PER_COUNT], k[K_PERIOD]
-    window, short = int(k[K_WINDOW]), int(k[K_SHORT])
-    row[M_ANGLE] += delta * rpc
-    row[M_DIFFERENCES] += 1.0
-    pos = int(row[M_RING_POS])
-    if row[M_HAS_RAW] == 0.0:  # the first difference stands for the whole window
-        for j in range(window):
-            row[M_WINDOW + j] = delta
-    else:
-        row[M_WINDOW + pos] = delta
-        pos = (pos + 1) % window
-        row[M_RING_POS] = pos
-    row[M_SPEED_RAW], row[M_HAS_RAW] = delta * rpc / T, 1.0
-    total = 0.0
-    for j in range(window):
-        total += row[M_WINDOW + j]
-    row[M_SPEED] = total * rpc / (window * T)
-    recent = 0.0
-    for j in range(short):  # the newest ``short`` differences
-        recent += row[M_WINDOW + (pos - 1 - j) % window]
-    row[M_SPEED_SHORT] = recent * rpc / (short * T)
-
-
-# --- speed_plausibility.SpeedPlausibility ------------------------------------------------
-@compiled
-def rotor_angle(row, mot, first, n_m, speed, period_s):
-    """SpeedPlausibility.rotor_angle for the inverter of ``row``, its motors from
-    ``first``."""
-    source, total, healthy = 0, 0.0, 0
-    for j in range(n_m):
-        if mot[first + j, M_OK] > 0.0:
-            source |= 1 << j
-            total += mot[first + j, M_ANGLE]
-            healthy += 1
-    if healthy:
-        raw = total / healthy
-    else:  # (SpeedPlausibility.fallback_angle)
-        row[I_FALLBACK_ANGLE] = row[I_FALLBACK_ANGLE] + speed * period_s
-        raw = row[I_FALLBACK_ANGLE]
-    if source != row[I_ANGLE_SOURCE]:
-        row[I_ANGLE_SHIFT] = (row[I_ANGLE_USED] + speed * period_s) - raw
-        row[I_ANGLE_SOURCE] = source
-    angle = raw + row[I_ANGLE_SHIFT]
-    row[I_ANGLE_USED] = angle
-    return angle
-
-
-@compiled
-def judge(mot, k):
-    """SpeedPlausibility.judge: True if an encoder failed now."""
-    failed = False
-    for m in range(mot.shape[0]):
-        r = mot[m]
-        if (r[M_OK] > 0.0 and r[M_HAS_JUDGED] > 0.0 and r[M_HAS_RAW] > 0.0
-                and abs(r[M_SPEED_RAW] - r[M_JUDGED_RAW]) > k[K_SENSOR_JUMP]):
-            r[M_OK] = 0.0
-            failed = True
-        r[M_JUDGED_RAW], r[M_HAS_JUDGED] = r[M_SPEED_RAW], r[M_HAS_RAW]
-    return failed
-
-
-@compiled
-def fill(mot, column, out):
-    """SpeedPlausibility.fill: the readings of ``column``, the failed ones replaced by
-    their inverter's healthy ones, or the train's."""
-    n = mot.shape[0]
-    all_ok = True
-    healthy_sum, n_healthy = 0.0, 0
-    for m in range(n):
-        out[m] = mot[m, column]
-        if mot[m, M_OK] > 0.0:
-            healthy_sum += mot[m, column]
-            n_healthy += 1
-        else:
-            all_ok = False
-    if all_ok:
-        return
-    for m in range(n):
-        if mot[m, M_OK] > 0.0:
-            continue
-        own_sum, n_own = 0.0, 0
-        for a in range(n):
-            if mot[a, M_INVERTER] == mot[m, M_INVERTER] and mot[a, M_OK] > 0.0:
-                own_sum += mot[a, column]
-                n_own += 1
-        if n_own:
-            out[m] = own_sum / n_own
-        elif n_healthy:
-            out[m] = healthy_sum / n_healthy
 
 
 # --- adhesion.AdhesionControl.step --------------------------------------------------------
