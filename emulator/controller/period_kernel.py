@@ -146,6 +146,7 @@ from .period_parts import (
 )
 from .period_sensing import encoder_update, fill, judge, rotor_angle
 from .pll import DEAD_SAMPLES
+from .ride_through import FLUX_DECAY_TAU
 
 compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
@@ -389,7 +390,9 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         else:
             if (k[K_VECTOR] <= 0.0 and row[I_ENABLED_FOR] > 0.0
                     and abs(v) > k[K_MAGNETISED_MPS]):  # (InverterGuards.stopped_at_speed)
-                row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + k[K_FLUX_DECAY_S])
+                share = min(row[I_ENABLED_FOR] / k[K_FLUX_RAMP_S], 1.0)
+                wait = k[K_FLUX_DECAY_S] * max(0.0, 1.0 + math.log(share) / FLUX_DECAY_TAU)
+                row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + wait)
             row[I_ENABLED_FOR] = 0.0
             row[I_RELEASED] = 0.0 if demanded else 1.0
             if k[K_VECTOR] > 0.0:  # (VectorControl.coast)

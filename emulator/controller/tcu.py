@@ -375,7 +375,8 @@ class ReferenceController(SignalPositions):
             else:
                 if (self.vector is None and self.enabled_for[k] > 0.0
                         and abs(v) > MAGNETISED_ABOVE_MPS):
-                    guards.stopped_at_speed(k, self.t)
+                    guards.stopped_at_speed(k, self.t,
+                                            min(self.enabled_for[k] / FLUX_RAMP_S, 1.0))
                 self.enabled_for[k] = 0.0
                 self.released[k] = not demanded
                 if self.vector is not None:

@@ -152,6 +152,42 @@ def test_a_vector_drive_restarts_on_the_flux_its_rotor_kept(trip_s: float) -> No
     assert after <= bound * peak[(t > trip_at - 0.5) & (t < trip_at)].max(), (after, bound)
 
 
+def test_a_drive_tripped_early_in_its_ramp_waits_only_what_its_flux_needs() -> None:
+    """The V/f demo at 50 km/h, one spurious trip, and a second 5 ms after the drive
+    starts again: 5 ms into its 0.3 s voltage ramp its flux is at most 1.7 % of rated,
+    below the e^-3 = 5 % the wait is for, so it needs no flux wait, only the 0.2 s of a
+    hardware trip (InverterGuards.stopped_at_speed: flux_decay_s (1 + ln(share) / 3)).
+    Before, it waited the full three rotor time constants again (1.86 s), and the effort
+    it could give was missing meanwhile. The restart still draws no more than the first
+    test's 15 % over the running current."""
+    from emulator.controller.inverter_guard import HARDWARE_RESET_S
+
+    machine = load_trainset(TRAINSET).machine
+    tau_r = (machine.magnetising_h + machine.rotor_leakage_h) / machine.rotor_resistance_ohm
+    again = {"on_at": None, "tripped": False, "gated": True}
+
+    def each_frame(plant, _controller) -> None:
+        gated = plant.iu[0, L.IU_ENABLE] > 0.5 and plant.ist[0, L.IS_HW_TRIP] < 0.5
+        if gated and not again["gated"] and plant.time_s > 20.0 and again["on_at"] is None:
+            again["on_at"] = plant.time_s  # the first restart
+        again["gated"] = gated
+        if (again["on_at"] is not None and not again["tripped"]
+                and plant.time_s >= again["on_at"] + 0.005):
+            plant.ist[0, L.IS_HW_TRIP] = 1.0  # the second spurious trip
+            again["tripped"] = True
+
+    seen = _one_spurious_trip(TRAINSET, 20.0, 20.0 + 3.0 * tau_r + 1.5, each_frame)
+    assert seen["speed_kmh"] > 40.0, seen
+    assert len(seen["trips"]) == 2 and len(seen["gates_on"]) == 2, seen
+    first_wait = seen["gates_on"][0] - seen["trips"][0]
+    assert 3.0 * tau_r <= first_wait <= 3.0 * tau_r + 1.0, seen  # (the flux was up)
+    assert seen["trips"][1] - seen["gates_on"][0] < 0.01, seen  # early in the ramp
+    second_wait = seen["gates_on"][1] - seen["trips"][1]
+    assert HARDWARE_RESET_S <= second_wait <= HARDWARE_RESET_S + 0.01, seen
+    assert seen["running_a"] > 400.0, seen
+    assert seen["peak_a"] < 1.15 * seen["running_a"], seen
+
+
 @pytest.mark.parametrize("flux_decay_s", [1.86, 4.8, 6.0])  # the Tern's; slow rotors
 def test_a_faulted_inverter_is_isolated_however_long_its_flux_wait(flux_decay_s: float) -> None:
     # the protections as the controller runs them each period, on a faulted inverter
