@@ -62,6 +62,15 @@ def machine(k, curve_i, curve_psi, psi):
 
 
 @compiled
+def rotor_flux_step(k, curve_i, curve_psi, psi_r, lm, lr, i_d):
+    """The flux model's rotor d circuit over a period: the flux moves with the d current
+    less the magnetising current its present level takes on the curve (L_m / L_r for the
+    rotor leakage), psi_r + T R_r (L_m / L_r) (i_d - i_m(psi_r)), at least 0."""
+    return max(psi_r + k[K_T] * k[K_RR] * lm / lr
+               * (i_d - magnetising_current(psi_r, curve_i, curve_psi)), 0.0)
+
+
+@compiled
 def coast(v, k, curve_i, curve_psi):
     """A period with the gates blocked. The integrators, the observer and the voltage in
     flight are forgotten; the flux model goes on with the stator current zero: the rotor
@@ -77,8 +86,7 @@ def coast(v, k, curve_i, curve_psi):
     50 km/h, running 0.69 kA)."""
     psi_r, slip, dpsi = v[V_PSI_R], v[V_THETA_SLIP], v[V_DPSI]
     lm, lr, _, _, _ = machine(k, curve_i, curve_psi, psi_r)
-    psi_r = max(psi_r - k[K_T] * k[K_RR] * lm / lr
-                * magnetising_current(psi_r, curve_i, curve_psi), 0.0)
+    psi_r = rotor_flux_step(k, curve_i, curve_psi, psi_r, lm, lr, 0.0)
     v[:] = 0.0
     v[V_PREV_TURN_RE] = 1.0
     v[V_PSI_R], v[V_THETA_SLIP], v[V_DPSI] = psi_r, slip, dpsi
@@ -243,10 +251,8 @@ def vector_step(v, k, curve_i, curve_psi, torque_per_motor, rotor_angle_rad,
     else:
         mean_dq = i_dq
     i_d_mean = mean_dq.real
-    # rotor d circuit: the flux moves with the d current less the magnetising current
-    # its present level takes on the curve (L_m/L_r for the rotor leakage)
-    psi_r = max(psi_r + T * rr * lm_now / lr_now
-                * (i_d_mean - magnetising_current(psi_r, curve_i, curve_psi)), 0.0)
+    # the rotor d circuit on the period's mean d current
+    psi_r = rotor_flux_step(k, curve_i, curve_psi, psi_r, lm_now, lr_now, i_d_mean)
     v[V_PSI_R] = psi_r
     psi = max(psi_r, 0.05 * psi_rated)
     # the d current for the flux reference, plus a forcing on the model's flux error

@@ -47,7 +47,6 @@ import math
 
 import numpy as np
 
-from . import layout as L  # noqa: N812
 from .jit import compiled, compiled_inline
 from .layout import (
     IP_ESW,
@@ -60,6 +59,9 @@ from .layout import (
     IP_TDEAD,
     IP_VCE0,
     IP_VF0,
+    MP_LLR,
+    MP_LLS,
+    MP_LM,
 )
 
 SQRT3 = math.sqrt(3.0)
@@ -120,7 +122,7 @@ def ripple_inductance(mpar: np.ndarray) -> float:
     """The inductance an inverter's PWM ripple sees, H: its motors' transient
     inductances sigma L_s = L_ls + L_m L_lr / (L_m + L_lr) in parallel (the carrier's
     harmonics meet the leakage paths; the unsaturated L_m: Holmes & Lipo, 2003, ch. 5)."""
-    lm, lls, llr = mpar[:, L.MP_LM], mpar[:, L.MP_LLS], mpar[:, L.MP_LLR]
+    lm, lls, llr = mpar[:, MP_LM], mpar[:, MP_LLS], mpar[:, MP_LLR]
     return float(1.0 / np.sum(1.0 / (lls + lm * llr / (lm + llr))))
 
 
