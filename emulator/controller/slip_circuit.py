@@ -137,9 +137,11 @@ def slip_for_current(c, i_max, end, i_end, guess, w_r, u_room, lm, halvings):
     """The slip (between 0 and end) where the stator current reaches i_max, given
     i_end > i_max, the current at end: the low end of a bracket around it
     |end| 2^-halvings wide (the current within the limit there), found from ``guess``
-    (_bracket). Where the voltage limits the flux, |I_s| may first dip below its value
-    at no slip, but not below i_max; 0 where even the current at no slip is past the
-    limit."""
+    (_bracket). |I_s| rises with the slip at rated flux and may dip where the voltage
+    starts to limit the flux (below its value at no slip, but not below i_max), so a
+    limit within that hump (tenths of an ampere above no slip at a few tens of volts)
+    is crossed three times: the search gives one of them. 0 where even the current at
+    no slip is past the limit."""
     i_0 = operating_point(c, 0.0, w_r, u_room, lm)[1]
     if i_0 >= i_max:
         return 0.0

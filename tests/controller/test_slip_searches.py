@@ -6,8 +6,12 @@ bisection's 16, which is what they are for.
 
 The bracket is the control's own: from no slip to 0.9 of the breakdown slip
 (motor_scalar SLIP_LIMIT_SHARE). The torque rises along it from 0 and the current ends
-above its value at no slip (where the voltage limits the flux it may dip first, but not
-to the limit), so each target below has one crossing in it.
+above its value at no slip, so each target below has a crossing in it; not always one.
+At rated flux the current rises with the slip until the voltage limits the flux, then
+it may dip before it rises again: at 20 rad/s and 51 V it rises 0.14 A above its 80.8 A
+at no slip, falls 0.46 A and rises on, so a limit 0.12 A above no slip is crossed three
+times (found by Hypothesis). A search returns one crossing, whichever its bracket
+closed on; the checks below take all of them (_crossings) and ask for one.
 """
 
 from __future__ import annotations
@@ -16,7 +20,7 @@ from unittest import mock
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
@@ -46,6 +50,28 @@ class _Counted:
     def __call__(self, *args):
         self.calls += 1
         return self._circuit(*args)
+
+
+def _crossings(excess, end: float, c, w_r: float, u_room: float, lm: float) -> np.ndarray:
+    """Every slip in [0, end] where ``excess`` changes sign, by SciPy's brentq: between
+    1001 points and the slips where the voltage starts to limit the flux (the circuit's
+    kinks, by brentq on u_room - psi_rated |G|, G from the module docstring). The two
+    crossings of a hump at a kink so fall apart, and a dip's are each alone among
+    points a thousandth of the bracket apart (the dips seen are hundredths wide)."""
+    grid = np.linspace(0.0, end, 1001)
+
+    def room(w_sl: float) -> float:
+        _, _, psi, u_s = sc.operating_point(c, w_sl, w_r, u_room, lm)
+        return u_room - c[sc.CIRCUIT_PSI_RATED] * abs(u_s / psi)  # |G| = |U_s| / psi_m
+
+    def roots(fun, points):
+        f = np.array([fun(w) for w in points])
+        change = np.flatnonzero(np.signbit(f[:-1]) != np.signbit(f[1:]))
+        return [brentq(fun, points[k], points[k + 1], xtol=1e-15 * abs(end), rtol=1e-15)
+                for k in change]
+
+    grid = np.sort(np.concatenate([grid, roots(room, grid)]))
+    return np.array(roots(excess, grid))
 
 
 def _searched(search, *args) -> tuple[float, int]:
@@ -85,14 +111,19 @@ def test_slip_for_torque_is_brents_root(control, w_r, u_room, sign, share,
     args = (c, target, end, t_end, start, w_r, u_room, lm, BISECTIONS)
     found, calls = _searched(sc.slip_for_torque, *args)
     assert found == sc.slip_for_torque(*args)  # (compiled)
-    # the middle of a bracket around the root as narrow as the bisection's last one
-    assert abs(found - root) <= abs(end) * 0.5 ** (BISECTIONS + 1)
+    # the middle of a bracket around a crossing as narrow as the bisection's last one
+    if share > 0.0:
+        assert np.min(np.abs(_crossings(excess, end, c, w_r, u_room, lm) - found)) \
+            <= abs(end) * (0.5 ** (BISECTIONS + 1) + 2e-15)  # (2e-15: brentq's, below)
+    else:
+        assert found == 0.0
     assert calls <= MOST_CALLS
 
 
 @settings(max_examples=300, deadline=None)
 @given(w_r=SPEEDS, u_room=VOLTAGES, sign=SIGNS, share=SHARES, guess=GUESSES,
        near=st.booleans())
+@example(w_r=20.0, u_room=51.0, sign=1.0, share=0.001, guess=0.0, near=False)  # 3 crossings
 def test_slip_for_current_is_brents_root_from_below(control, w_r, u_room,
                                                     sign, share, guess, near) -> None:
     c, lm = control.circuit, control.cfg.magnetising_h
@@ -110,8 +141,12 @@ def test_slip_for_current_is_brents_root_from_below(control, w_r, u_room,
     found, calls = _searched(sc.slip_for_current, *args)
     assert found == sc.slip_for_current(*args)  # (compiled)
     assert excess(found) < 0.0  # within the limit, always
-    # the low end of a bracket around the root as narrow as the bisection's last one
-    assert abs(found - root) <= abs(end) * 0.5 ** BISECTIONS
+    # the low end of a bracket around a crossing as narrow as the bisection's last one
+    # the crossings from the found slip on, towards end
+    below = (_crossings(excess, end, c, w_r, u_room, lm) - found) / np.sign(end)
+    exact = 2e-15 * abs(end)  # brentq's: xtol + rtol |root| (SciPy's documentation)
+    assert np.any((below >= -exact) & (below <= abs(end) * 0.5 ** BISECTIONS + exact)), \
+        below
     assert calls <= MOST_CALLS + 1
 
 
