@@ -173,6 +173,8 @@ class CompiledController(ref.ReferenceController):
         k[pp.K_RAD_PER_COUNT], k[pp.K_WINDOW], k[pp.K_SHORT] = (enc.rad_per_count,
                                                                 enc.window, enc.short)
         k[pp.K_SENSOR_JUMP] = SENSOR_JUMP
+        k[pp.K_STOPPED_FLOOR], k[pp.K_STOPPED_PERIODS] = (self.stopped_floor_rad_s,
+                                                          self.stopped_periods)
         k[pp.K_LEAKAGE_H] = cfg.secondary_leakage_h
         k[pp.K_LINK_STOP], k[pp.K_LINK_RESTART] = (rt.LINK_STOP_FRACTION,
                                                    rt.LINK_RESTART_FRACTION)

@@ -144,7 +144,7 @@ from .period_parts import (
     sequence_step,
     sequence_trip,
 )
-from .period_sensing import encoder_update, fill, judge, rotor_angle
+from .period_sensing import encoder_update, fill, judge, judge_stopped, rotor_angle
 from .pll import DEAD_SAMPLES
 from .ride_through import FLUX_DECAY_TAU
 
@@ -239,6 +239,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
     for m in range(n_mot):
         encoder_update(mot[m], k, y[xm[m, XM_COUNT]])
     if judge(mot, k):
+        raise_event(g, counts, SPEED_SENSOR_FAULT)
+    if judge_stopped(mot, k, g[G_EFFORT] > 0.0):
         raise_event(g, counts, SPEED_SENSOR_FAULT)
     speeds = per_motor[0]
     fill(mot, M_SPEED, speeds)

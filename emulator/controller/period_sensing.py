@@ -14,6 +14,8 @@ from .period_parts import (
     K_RAD_PER_COUNT,
     K_SENSOR_JUMP,
     K_SHORT,
+    K_STOPPED_FLOOR,
+    K_STOPPED_PERIODS,
     K_WINDOW,
     M_ANGLE,
     M_DIFFERENCES,
@@ -28,6 +30,7 @@ from .period_parts import (
     M_SPEED,
     M_SPEED_RAW,
     M_SPEED_SHORT,
+    M_STOPPED,
     M_WINDOW,
     compiled,
 )
@@ -102,6 +105,35 @@ def judge(mot, k):
             r[M_OK] = 0.0
             failed = True
         r[M_JUDGED_RAW], r[M_HAS_JUDGED] = r[M_SPEED_RAW], r[M_HAS_RAW]
+    return failed
+
+
+@compiled
+def judge_stopped(mot, k, traction):
+    """SpeedPlausibility.judge_stopped: True if an encoder failed now."""
+    n = mot.shape[0]
+    healthy = 0
+    for m in range(n):
+        if mot[m, M_OK] > 0.0:
+            healthy += 1
+    if not traction or healthy < 2:
+        for m in range(n):
+            mot[m, M_STOPPED] = 0.0
+        return False
+    failed = False
+    for m in range(n):
+        r = mot[m]
+        others_turn = True
+        for o in range(n):
+            if o != m and mot[o, M_OK] > 0.0 and not mot[o, M_SPEED] > k[K_STOPPED_FLOOR]:
+                others_turn = False
+        if r[M_OK] > 0.0 and r[M_SPEED_RAW] == 0.0 and others_turn:
+            r[M_STOPPED] += 1.0
+            if r[M_STOPPED] >= k[K_STOPPED_PERIODS]:
+                r[M_OK] = 0.0
+                failed = True
+        else:
+            r[M_STOPPED] = 0.0
     return failed
 
 

@@ -5,12 +5,20 @@ A raw speed (count difference over a period) that jumps by more than SENSOR_JUMP
 period is physically impossible for a motor on a wheelset (its acceleration is a few
 hundred rad/s^2 at most; the counting resolution is 6.1 rad/s at 256 lines and 1 ms):
 the sensor is taken as failed for the rest of the run, as a board would until a service
-reset.
+reset. Below that jump (an encoder that stops counting at a standstill or at walking
+pace) a second rule judges it: in traction, no wheel stands while the others turn
+(judge_stopped). An encoder that gives too few pulses per revolution from a standstill
+is judged by neither (DEVELOPERS.md).
 """
 
 from __future__ import annotations
 
 SENSOR_JUMP = 20.0  # rad/s in one period: a speed reading no motor can follow
+#: in traction, an encoder that counts nothing for this long in a row ...
+STOPPED_S = 0.5
+#: ... while every other healthy one reads its wheel faster than this (m/s at the rail)
+#: has failed (judge_stopped)
+STOPPED_OTHERS_MPS = 0.25
 
 
 class SpeedPlausibility:
@@ -24,6 +32,7 @@ class SpeedPlausibility:
             first += n
         self.ok = [True] * first
         self._last: list[float | None] = [None] * first
+        self._stopped = [0] * first  # periods in a row counting nothing (judge_stopped)
         self._fallback_angle: dict[int, float] = {}
         # per inverter: the angle used last, its shift from the source's, and the source
         # (a bit per healthy encoder of its motors; 0: the fallback)
@@ -40,6 +49,42 @@ class SpeedPlausibility:
                 self.ok[m] = False
                 failed = True
         self._last = list(raw)
+        return failed
+
+    def judge_stopped(self, raw: list[float], speeds: list[float], traction: bool,
+                      floor: float, periods: int) -> bool:
+        """Mark the encoders that count nothing (``raw``, the last period's difference,
+        is 0) for ``periods`` periods in a row while the train is in traction and every
+        other healthy encoder reads its wheel faster than ``floor`` (``speeds``, the
+        windowed ones; both rad/s at the motor); True if one failed now.
+
+        A wheel that transmits a tractive force turns at least as fast as the train
+        (its creep has the force's sign, as any adhesion law has it: Kalker's theory,
+        Polach's model); one that stands while all the others turn is no wheel's but an
+        encoder's that stopped counting below SENSOR_JUMP, at a standstill or at walking
+        pace. Left unjudged it would hold the slip control's reference (the slowest
+        wheel in traction) at zero, and every other axle would seem to slip: the train
+        would crawl at the creep limit. STOPPED_OTHERS_MPS at the rail is some 200
+        counts of a healthy encoder over STOPPED_S at 256 lines, so a turning wheel
+        cannot count nothing for that long. All the others, not their median: a wheel
+        that grips while the train stands and the others spin on a wet rail has some
+        that do not spin. Outside traction, and with fewer than two healthy encoders,
+        nothing is judged and the runs start anew."""
+        n = len(raw)
+        healthy = [m for m in range(n) if self.ok[m]]
+        if not traction or len(healthy) < 2:
+            self._stopped = [0] * n
+            return False
+        failed = False
+        for m in range(n):
+            if (self.ok[m] and raw[m] == 0.0
+                    and all(speeds[o] > floor for o in healthy if o != m)):
+                self._stopped[m] += 1
+                if self._stopped[m] >= periods:
+                    self.ok[m] = False
+                    failed = True
+            else:
+                self._stopped[m] = 0
         return failed
 
     def fill(self, readings: list[float]) -> list[float]:
