@@ -31,9 +31,11 @@ from .period_parts import (
     M_SPEED_RAW,
     M_SPEED_SHORT,
     M_STOPPED,
+    M_STOPPED_NET,
     M_WINDOW,
     compiled,
 )
+from .speed_plausibility import STOPPED_COUNTS
 
 
 # --- encoder.EncoderSpeed.update ----------------------------------------------------------
@@ -109,31 +111,43 @@ def judge(mot, k):
 
 
 @compiled
+def _last_difference(row, k):
+    """The count difference encoder_update took last (0 before the first)."""
+    window = int(k[K_WINDOW])
+    return row[M_WINDOW + (int(row[M_RING_POS]) - 1) % window]
+
+
+@compiled
 def judge_stopped(mot, k, traction):
-    """SpeedPlausibility.judge_stopped: True if an encoder failed now."""
+    """SpeedPlausibility.judge_stopped: True if an encoder failed now. Whether it judges
+    this period is decided on every encoder's state at its start, before any is
+    marked (as the plain one does)."""
     n = mot.shape[0]
-    healthy = 0
+    any_turning = False
+    all_placed = True  # every healthy encoder turns or stands
     for m in range(n):
-        if mot[m, M_OK] > 0.0:
-            healthy += 1
-    if not traction or healthy < 2:
-        for m in range(n):
-            mot[m, M_STOPPED] = 0.0
-        return False
+        r = mot[m]
+        if r[M_OK] <= 0.0:
+            continue
+        if abs(r[M_SPEED]) > k[K_STOPPED_FLOOR]:
+            any_turning = True
+        elif abs(r[M_STOPPED_NET] + _last_difference(r, k)) > STOPPED_COUNTS:
+            all_placed = False
+    judging = traction and any_turning and all_placed
     failed = False
     for m in range(n):
         r = mot[m]
-        others_turn = True
-        for o in range(n):
-            if o != m and mot[o, M_OK] > 0.0 and not mot[o, M_SPEED] > k[K_STOPPED_FLOOR]:
-                others_turn = False
-        if r[M_OK] > 0.0 and r[M_SPEED_RAW] == 0.0 and others_turn:
+        net = r[M_STOPPED_NET] + _last_difference(r, k)
+        if (judging and r[M_OK] > 0.0 and not abs(r[M_SPEED]) > k[K_STOPPED_FLOOR]
+                and abs(net) <= STOPPED_COUNTS):
             r[M_STOPPED] += 1.0
+            r[M_STOPPED_NET] = net
             if r[M_STOPPED] >= k[K_STOPPED_PERIODS]:
                 r[M_OK] = 0.0
                 failed = True
         else:
             r[M_STOPPED] = 0.0
+            r[M_STOPPED_NET] = 0.0
     return failed
 
 

@@ -14,11 +14,13 @@ is judged by neither (DEVELOPERS.md).
 from __future__ import annotations
 
 SENSOR_JUMP = 20.0  # rad/s in one period: a speed reading no motor can follow
-#: in traction, an encoder that counts nothing for this long in a row ...
+#: in traction, an encoder whose count moves by no more than STOPPED_COUNTS over this
+#: long ...
 STOPPED_S = 0.5
-#: ... while every other healthy one reads its wheel faster than this (m/s at the rail)
-#: has failed (judge_stopped)
-STOPPED_OTHERS_MPS = 0.25
+STOPPED_COUNTS = 1  # (a decoder with one channel lost dithers by one count)
+#: ... while the other healthy ones read their wheels faster than this share of the
+#: slip control's creep limit has failed (judge_stopped)
+STOPPED_CREEP_SHARE = 0.5
 
 
 class SpeedPlausibility:
@@ -32,7 +34,9 @@ class SpeedPlausibility:
             first += n
         self.ok = [True] * first
         self._last: list[float | None] = [None] * first
-        self._stopped = [0] * first  # periods in a row counting nothing (judge_stopped)
+        # judge_stopped: per encoder, periods in a row standing, and its net count there
+        self._stopped = [0] * first
+        self._stopped_net = [0] * first
         self._fallback_angle: dict[int, float] = {}
         # per inverter: the angle used last, its shift from the source's, and the source
         # (a bit per healthy encoder of its motors; 0: the fallback)
@@ -51,40 +55,48 @@ class SpeedPlausibility:
         self._last = list(raw)
         return failed
 
-    def judge_stopped(self, raw: list[float], speeds: list[float], traction: bool,
+    def judge_stopped(self, deltas: list[int], speeds: list[float], traction: bool,
                       floor: float, periods: int) -> bool:
-        """Mark the encoders that count nothing (``raw``, the last period's difference,
-        is 0) for ``periods`` periods in a row while the train is in traction and every
-        other healthy encoder reads its wheel faster than ``floor`` (``speeds``, the
-        windowed ones; both rad/s at the motor); True if one failed now.
+        """Mark the encoders that stand (their count moves by STOPPED_COUNTS at most over
+        ``periods`` periods in a row; ``deltas``, this period's count differences) while
+        the train is in traction and the others turn: each other healthy encoder either
+        reads its wheel faster than ``floor`` (``speeds``, the windowed ones, rad/s at
+        the motor, either way round) or stands too, and one at least turns. True if one
+        failed now.
 
         A wheel that transmits a tractive force turns at least as fast as the train
         (its creep has the force's sign, as any adhesion law has it: Kalker's theory,
-        Polach's model); one that stands while all the others turn is no wheel's but an
-        encoder's that stopped counting below SENSOR_JUMP, at a standstill or at walking
-        pace. Left unjudged it would hold the slip control's reference (the slowest
-        wheel in traction) at zero, and every other axle would seem to slip: the train
-        would crawl at the creep limit. STOPPED_OTHERS_MPS at the rail is some 200
-        counts of a healthy encoder over STOPPED_S at 256 lines, so a turning wheel
-        cannot count nothing for that long. All the others, not their median: a wheel
-        that grips while the train stands and the others spin on a wet rail has some
-        that do not spin. Outside traction, and with fewer than two healthy encoders,
-        nothing is judged and the runs start anew."""
-        n = len(raw)
-        healthy = [m for m in range(n) if self.ok[m]]
-        if not traction or len(healthy) < 2:
-            self._stopped = [0] * n
-            return False
+        Polach's model); one that stands while the others turn is no wheel's but an
+        encoder's that stopped below SENSOR_JUMP, at a standstill or at walking pace.
+        Left unjudged it holds the slip control's reference (the slowest wheel in
+        traction) at zero, every other axle seems to slip, and the train crawls at the
+        creep limit: so ``floor`` is below that limit (STOPPED_CREEP_SHARE of it), or
+        the crawl would never reach it. Several may stand at once (a bogie's shared
+        supply or connector): those that stand are not asked to turn. One count either
+        way is allowed: a 4x decoder whose second channel is lost counts +1 and -1 on
+        the first one's edges. Not caught: a wheel that truly stands in traction while
+        all the others spin (a gripping axle on a wet start with the train held, a
+        seized axle) reads the same; the slip control's cut and re-apply keep spinning
+        wheels below the floor part of each 0.5 s in the runs measured (DEVELOPERS.md).
+        Outside traction nothing is judged and the runs start anew."""
+        n = len(deltas)
+        nets = [self._stopped_net[m] + deltas[m] for m in range(n)]
+        turning = [self.ok[m] and abs(speeds[m]) > floor for m in range(n)]
+        standing = [self.ok[m] and not turning[m] and abs(nets[m]) <= STOPPED_COUNTS
+                    for m in range(n)]
+        judging = (traction and any(turning)
+                   and all(turning[m] or standing[m] for m in range(n) if self.ok[m]))
         failed = False
         for m in range(n):
-            if (self.ok[m] and raw[m] == 0.0
-                    and all(speeds[o] > floor for o in healthy if o != m)):
+            if judging and standing[m]:
                 self._stopped[m] += 1
+                self._stopped_net[m] = nets[m]
                 if self._stopped[m] >= periods:
                     self.ok[m] = False
                     failed = True
             else:
                 self._stopped[m] = 0
+                self._stopped_net[m] = 0
         return failed
 
     def fill(self, readings: list[float]) -> list[float]:

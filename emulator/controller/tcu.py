@@ -37,7 +37,7 @@ from .motor_vector import VectorControl
 from .pll import DEAD_SAMPLES, SogiPll, dead_samples
 from .sequence import RUNNING, TRIPPED, SwitchOnSequence
 from .signal_positions import SignalPositions
-from .speed_plausibility import STOPPED_OTHERS_MPS, STOPPED_S, SpeedPlausibility
+from .speed_plausibility import STOPPED_CREEP_SHARE, STOPPED_S, SpeedPlausibility
 
 # motors and inverters at full power, with margin: what the line converters are rated for
 DRIVE_EFFICIENCY = 0.85
@@ -97,7 +97,8 @@ class ReferenceController(SignalPositions):
         self.line_live_s = 0.0
         self.speed_check = SpeedPlausibility([len(ms) for ms in self.motors])
         # judge_stopped's floor at the motor, rad/s, and its run in periods
-        self.stopped_floor_rad_s = STOPPED_OTHERS_MPS * cfg.gear_ratio / cfg.wheel_radius_m
+        self.stopped_floor_rad_s = (STOPPED_CREEP_SHARE * self.adhesion.creep_limit
+                                    * cfg.gear_ratio / cfg.wheel_radius_m)
         self.stopped_periods = max(round(STOPPED_S / T), 1)
         # speed and angle from the encoders' counts, as a board has them
         self.encoders = [EncoderSpeed(cfg.encoder_lines, T) for _ in range(n_motors)]
@@ -234,7 +235,7 @@ class ReferenceController(SignalPositions):
             enc.update(y[i])
         if self.speed_check.judge([e.speed_raw for e in self.encoders]):
             self._raise(events.SPEED_SENSOR_FAULT)
-        if self.speed_check.judge_stopped([e.speed_raw for e in self.encoders],
+        if self.speed_check.judge_stopped([e.counts[-1] for e in self.encoders],
                                           [e.speed for e in self.encoders],
                                           self.effort_n > 0.0, self.stopped_floor_rad_s,
                                           self.stopped_periods):
