@@ -73,10 +73,7 @@ SLIP_TRIM_S = 0.5  # the slip trim's integral time: a torque loop, slow beside t
 #: the trim learns while the torque asked moves less than this share of rated a period
 #: (the jerk limit's ramp moves it 0.1 %: full effort in 1.5 s)
 SLIP_TRIM_STEADY = 0.002
-#: of the rated frequency: the slip trim learns from here up, over the flux trim's last
-#: part (its weight falls from 0.3 here to 0 at TRIM_UP_TO): from 0.5 the two left a
-#: band where neither held the torque, 94.8 % of the curve at 30 km/h (25.6 Hz)
-SLIP_TRIM_FROM = 0.35
+SLIP_TRIM_FROM = 0.5  # of the rated frequency: the slip trim learns from here up
 SLIP_TRIM_LOW, SLIP_TRIM_HIGH = 0.3, 0.8  # its range: rotor from about -60 to 220 degC
 
 

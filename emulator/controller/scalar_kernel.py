@@ -108,8 +108,8 @@ def slip_trim(s, k, t_airgap, f_held):
     slip), so a rotor warmer than the model, or a flux a little under the plan, leaves
     the torque short by as much (R(T) = R_20 (1 + 0.00393 (T - 20 degC)), REFERENCES.md:
     x 0.76 at -40 degC, x 1.71 at 200 degC). Only from K_SLIP_TRIM_FROM of the rated
-    frequency up, where the flux trim is letting go and the air-gap power is not swamped
-    by the stator's drop, and above a fifth of the rated torque."""
+    frequency up, where the flux trim has let go and the air-gap power is not swamped by
+    the stator's drop, and above a fifth of the rated torque."""
     asked = s[S_H0_T]
     if (abs(f_held) < k[K_SLIP_TRIM_FROM] * k[K_RATED_HZ]
             or abs(asked) < 0.2 * k[K_RATED_TORQUE]):
