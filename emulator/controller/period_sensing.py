@@ -121,10 +121,11 @@ def _last_difference(row, k):
 def judge_stopped(mot, k, traction):
     """SpeedPlausibility.judge_stopped: True if an encoder failed now. Whether it judges
     this period is decided on every encoder's state at its start, before any is
-    marked (as the plain one does)."""
+    marked (as the plain one does); those that stand must all be on one inverter."""
     n = mot.shape[0]
     any_turning = False
     all_placed = True  # every healthy encoder turns or stands
+    standing_on = -1.0  # the inverter of those that stand (-2: more than one)
     for m in range(n):
         r = mot[m]
         if r[M_OK] <= 0.0:
@@ -133,7 +134,11 @@ def judge_stopped(mot, k, traction):
             any_turning = True
         elif abs(r[M_STOPPED_NET] + _last_difference(r, k)) > STOPPED_COUNTS:
             all_placed = False
-    judging = traction and any_turning and all_placed
+        elif standing_on == -1.0:
+            standing_on = r[M_INVERTER]
+        elif standing_on != r[M_INVERTER]:
+            standing_on = -2.0
+    judging = traction and any_turning and all_placed and standing_on >= 0.0
     failed = False
     for m in range(n):
         r = mot[m]

@@ -33,6 +33,7 @@ class SpeedPlausibility:
             self.groups.append(range(first, first + n))
             first += n
         self.ok = [True] * first
+        self.inverter = [k for k, group in enumerate(self.groups) for _ in group]
         self._last: list[float | None] = [None] * first
         # judge_stopped: per encoder, periods in a row standing, and its net count there
         self._stopped = [0] * first
@@ -59,10 +60,10 @@ class SpeedPlausibility:
                       floor: float, periods: int) -> bool:
         """Mark the encoders that stand (their count moves by STOPPED_COUNTS at most over
         ``periods`` periods in a row; ``deltas``, this period's count differences) while
-        the train is in traction and the others turn: each other healthy encoder either
-        reads its wheel faster than ``floor`` (``speeds``, the windowed ones, rad/s at
-        the motor, either way round) or stands too, and one at least turns. True if one
-        failed now.
+        the train is in traction and the others turn: every healthy encoder of the other
+        inverters reads its wheel faster than ``floor`` (``speeds``, the windowed ones,
+        rad/s at the motor, either way round), and those of the standing one's inverter
+        turn or stand too. True if one failed now.
 
         A wheel that transmits a tractive force turns at least as fast as the train
         (its creep has the force's sign, as any adhesion law has it: Kalker's theory,
@@ -71,12 +72,14 @@ class SpeedPlausibility:
         Left unjudged it holds the slip control's reference (the slowest wheel in
         traction) at zero, every other axle seems to slip, and the train crawls at the
         creep limit: so ``floor`` is below that limit (STOPPED_CREEP_SHARE of it), or
-        the crawl would never reach it. Several may stand at once (a bogie's shared
-        supply or connector): those that stand are not asked to turn. One count either
-        way is allowed: a 4x decoder whose second channel is lost counts +1 and -1 on
-        the first one's edges. Not caught: a wheel that truly stands in traction while
-        all the others spin (a gripping axle on a wet start with the train held, a
-        seized axle) reads the same; the slip control's cut and re-apply keep spinning
+        the crawl would never reach it. The encoders of one inverter may stand at once
+        (its bogie's shared supply or connector): they are judged together, so long as
+        the other inverters' all turn (a wheel turning on one inverter while the rest of
+        the train stands, on a hill start held by the brake, judges none). One count
+        either way is allowed: a 4x decoder whose second channel is lost counts +1 and
+        -1 on the first one's edges. Not caught: a wheel that truly stands in traction
+        while all the others spin (a gripping axle on a wet start with the train held,
+        a seized axle) reads the same; the slip control's cut and re-apply keep spinning
         wheels below the floor part of each 0.5 s in the runs measured (DEVELOPERS.md).
         Outside traction nothing is judged and the runs start anew."""
         n = len(deltas)
@@ -84,8 +87,10 @@ class SpeedPlausibility:
         turning = [self.ok[m] and abs(speeds[m]) > floor for m in range(n)]
         standing = [self.ok[m] and not turning[m] and abs(nets[m]) <= STOPPED_COUNTS
                     for m in range(n)]
-        judging = (traction and any(turning)
-                   and all(turning[m] or standing[m] for m in range(n) if self.ok[m]))
+        on = {k for k, group in enumerate(self.groups) for m in group if standing[m]}
+        judging = (traction and any(turning) and len(on) == 1
+                   and all(turning[m] or (standing[m] and self.inverter[m] in on)
+                           for m in range(n) if self.ok[m]))
         failed = False
         for m in range(n):
             if judging and standing[m]:

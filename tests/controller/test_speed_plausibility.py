@@ -45,6 +45,7 @@ class _Both:
         self.k[pp.K_STOPPED_FLOOR], self.k[pp.K_STOPPED_PERIODS] = FLOOR_RAD_S, PERIODS
         self.mot = np.zeros((n, pp.M_WINDOW + window))
         self.mot[:, pp.M_OK] = 1.0
+        self.mot[:, pp.M_INVERTER] = np.arange(n) // 2  # two motors an inverter
 
     def period(self, counts, traction: bool) -> list[bool]:
         """One period on these counter values; the healthy flags, after asserting that
@@ -103,7 +104,7 @@ WINDOW_PERIODS = 8  # encoder.EncoderSpeed's window
 
 @pytest.mark.parametrize(("lost", "sign"), [
     ({1: "frozen"}, 1.0),
-    ({1: "frozen", 6: "frozen"}, 1.0),  # two at once: a shared supply or connector
+    ({2: "frozen", 3: "frozen"}, 1.0),  # both of an inverter's: its shared supply
     ({1: "frozen"}, -1.0),  # the train backwards
     ({3: "dither"}, 1.0),  # a 4x decoder with one channel lost
 ])
@@ -118,6 +119,20 @@ def test_a_standing_encoder_is_judged_once_the_others_turn(lost, sign) -> None:
     runs = np.convolve(turning, np.ones(PERIODS), "full")[:len(turning)]
     expected = int(np.flatnonzero(runs == PERIODS)[0])
     assert judged == dict.fromkeys(lost, expected)
+
+
+@pytest.mark.parametrize("lost", [
+    {1: "frozen", 6: "frozen"},  # two inverters' at once: a double fault, not judged
+    {m: "frozen" for m in range(MOTORS) if m != 4},  # one wheel turns, the rest stand
+])
+def test_standing_encoders_on_several_inverters_are_not_judged(lost) -> None:
+    """What stands on several inverters at once may be the train standing, held by its
+    brake on a hill start, while one wheel creeps on a greasy spot: nothing is judged
+    (a first version judged all seven standing ones beside the one wheel turning)."""
+    judged, windowed = _start(_Both(), lost, 10.0)
+    floor_counts = FLOOR_RAD_S * WINDOW_PERIODS * PERIOD_S * EDGES_PER_RAD
+    assert np.all(np.abs(windowed[-1]) > floor_counts)  # (the wheels left turn, fast)
+    assert not judged
 
 
 def test_nothing_is_judged_outside_traction() -> None:
@@ -143,21 +158,28 @@ def test_nothing_is_judged_while_a_healthy_wheel_turns_below_the_floor() -> None
 @settings(max_examples=60, deadline=None)
 @given(data=st.data())
 def test_the_compiled_rule_is_the_plain_one_period_by_period(data) -> None:
-    """Random drives: each wheel's speed a random walk (either way round, through
+    """Random drives: each wheel's speed a random walk (either way round, some through
     zero), some encoders frozen or dithering from random periods, traction switched on
-    and off; the two agree on every period (_Both.period asserts it)."""
+    and off; the two agree on every period (_Both.period asserts it). About one drive
+    in six reaches a judgement (9 of 60 with the same draws from a seeded generator);
+    the tests above reach one each."""
     n = 4
     both = _Both(n)
     angle = np.zeros(n)
-    speed = np.array(data.draw(st.lists(st.floats(-30, 30), min_size=n, max_size=n)))
-    lost_at = data.draw(st.lists(st.one_of(st.none(), st.integers(0, 1500)),
+    # the wheels' speeds: mostly clear of the floor (so that judgements happen), some
+    # through it (so that stands are broken off)
+    speed = np.array(data.draw(st.lists(st.one_of(st.floats(5, 30), st.floats(-30, -5),
+                                                  st.floats(-3, 3)),
+                                        min_size=n, max_size=n)))
+    lost_at = data.draw(st.lists(st.one_of(st.none(), st.integers(0, 600)),
                                  min_size=n, max_size=n))
     how = data.draw(st.lists(st.sampled_from(["frozen", "dither"]), min_size=n, max_size=n))
-    traction_runs = data.draw(st.lists(st.integers(100, 900), min_size=1, max_size=4))
+    # runs long enough to judge in, and short ones that break a stand off
+    traction_runs = data.draw(st.lists(st.integers(100, 1200), min_size=1, max_size=4))
     rng = np.random.default_rng(data.draw(st.integers(0, 2**32 - 1)))
     switches = np.cumsum(traction_runs)
     for j in range(1500):
-        speed += rng.normal(0.0, 0.3, n)
+        speed += rng.normal(0.0, 0.1, n)
         angle += speed * PERIOD_S
         lost = {m: how[m] for m in range(n) if lost_at[m] is not None and j >= lost_at[m]}
         both.period(_counts(angle, lost), bool(np.searchsorted(switches, j, "right") % 2 == 0))
@@ -165,7 +187,7 @@ def test_the_compiled_rule_is_the_plain_one_period_by_period(data) -> None:
 
 def test_one_judged_while_another_stands_the_twins_agree() -> None:
     """The order within a period: INV-A1.m1's encoder frozen from the start and
-    INV-B2.m2's from 0.3 s, so that the first is judged while the second's stand is
+    INV-A1.m2's from 0.3 s, so that the first is judged while the second's stand is
     under way (a compiled rule that let the first one's mark count in the same period
     judged the second a period apart); each is judged after its own STOPPED_S."""
     both = _Both(4)
@@ -173,9 +195,9 @@ def test_one_judged_while_another_stands_the_twins_agree() -> None:
     judged: dict[int, int] = {}
     for j in range(1500):
         angle += 10.0 * j * PERIOD_S * PERIOD_S
-        lost = {0: "frozen"} | ({3: "frozen"} if j >= 300 else {})
+        lost = {0: "frozen"} | ({1: "frozen"} if j >= 300 else {})
         ok = both.period(_counts(angle, lost), True)
         judged |= {m: j for m in range(4) if not ok[m] and m not in judged}
-    assert set(judged) == {0, 3}
-    assert judged[3] - judged[0] >= 300 - PERIODS
-    assert judged[3] >= 300 + PERIODS - 1
+    assert set(judged) == {0, 1}
+    assert judged[0] < judged[1]
+    assert judged[1] >= 300 + PERIODS - 1

@@ -124,7 +124,9 @@ def test_an_encoder_stopped_at_a_standstill_is_judged_and_the_train_starts(
     # the rule's floor at the rail, and the windowed reading's step there: the reading
     # passes the floor at n_min whole counts in the window, which a wheel may give from
     # (n_min - 1) steps of mean speed over it and surely gives from (n_min + 1)
-    floor = STOPPED_CREEP_SHARE * tcu.adhesion.creep_limit
+    # the floor: half the slip control's 0.35 m/s creep limit, below the crawl it ends
+    floor = 0.5 * 0.35
+    assert STOPPED_CREEP_SHARE * tcu.adhesion.creep_limit == floor
     step = (2 * np.pi / (4 * cfg.encoder_lines) / (8 * period_s)
             * cfg.wheel_radius_m / cfg.gear_ratio)
     n_min = int(np.floor(floor / step)) + 1
