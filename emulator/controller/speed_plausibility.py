@@ -87,10 +87,9 @@ class SpeedPlausibility:
         turning = [self.ok[m] and abs(speeds[m]) > floor for m in range(n)]
         standing = [self.ok[m] and not turning[m] and abs(nets[m]) <= STOPPED_COUNTS
                     for m in range(n)]
-        on = {k for k, group in enumerate(self.groups) for m in group if standing[m]}
-        judging = (traction and any(turning) and len(on) == 1
-                   and all(turning[m] or (standing[m] and self.inverter[m] in on)
-                           for m in range(n) if self.ok[m]))
+        standing_on = {self.inverter[m] for m in range(n) if standing[m]}
+        judging = (traction and any(turning) and len(standing_on) == 1
+                   and all(turning[m] or standing[m] for m in range(n) if self.ok[m]))
         failed = False
         for m in range(n):
             if judging and standing[m]:
