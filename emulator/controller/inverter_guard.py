@@ -85,16 +85,11 @@ class InverterGuards:
         after a release at 30 km/h drew 1.2 kA and braked the train; one 0.2 s after a
         single spurious hardware trip at 50 km/h drew 1.5 kA and tripped again. (A
         flying restart, which finds the flux's angle and speed and starts into it, would
-        not wait; the reference controller has none.)
-
-        The wait is flux_decay_s, FLUX_DECAY_TAU rotor time constants (the rated flux
-        down to e^-FLUX_DECAY_TAU of it), for a drive that had its flux up; one stopped
-        with ``flux_share`` of it (the share of its voltage ramp it had reached) needs
-        tau_r ln(flux_share) less to reach the same level, none at e^-FLUX_DECAY_TAU and
-        below: flux_decay_s (1 + ln(flux_share) / FLUX_DECAY_TAU), at least 0 (the rotor
-        circuit with the stator open, Novotny & Lipo, 1996, ch. 5)."""
-        wait = self.flux_decay_s * max(0.0, 1.0 + math.log(flux_share) / rt.FLUX_DECAY_TAU)
-        self.block_until[k] = max(self.block_until[k], t + wait)
+        not wait; the reference controller has none.) A drive stopped early in its
+        voltage ramp, with ``flux_share`` of its flux, waits less (ride_through.
+        flux_wait_s)."""
+        self.block_until[k] = max(self.block_until[k],
+                                  t + rt.flux_wait_s(self.flux_decay_s, flux_share))
 
     def ready_share(self, t: float, motors: tuple[int, ...]) -> float:
         """The share of the motors whose inverters may run now (not blocked after a trip,

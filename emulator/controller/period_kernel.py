@@ -130,6 +130,7 @@ from .period_parts import (
     adhesion_step,
     chopper_duty,
     dead_samples,
+    flux_wait_s,
     gear_efficiency,
     guard_judge,
     guard_link,
@@ -146,7 +147,6 @@ from .period_parts import (
 )
 from .period_sensing import encoder_update, fill, judge, judge_stopped, rotor_angle
 from .pll import DEAD_SAMPLES
-from .ride_through import FLUX_DECAY_TAU
 
 compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
@@ -393,8 +393,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             if (k[K_VECTOR] <= 0.0 and row[I_ENABLED_FOR] > 0.0
                     and abs(v) > k[K_MAGNETISED_MPS]):  # (InverterGuards.stopped_at_speed)
                 share = min(row[I_ENABLED_FOR] / k[K_FLUX_RAMP_S], 1.0)
-                wait = k[K_FLUX_DECAY_S] * max(0.0, 1.0 + math.log(share) / FLUX_DECAY_TAU)
-                row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL], t + wait)
+                row[I_BLOCK_UNTIL] = max(row[I_BLOCK_UNTIL],
+                                         t + flux_wait_s(k[K_FLUX_DECAY_S], share))
             row[I_ENABLED_FOR] = 0.0
             row[I_RELEASED] = 0.0 if demanded else 1.0
             if k[K_VECTOR] > 0.0:  # (VectorControl.coast)

@@ -25,7 +25,7 @@ import numba as nb
 
 from emulator.kernel_cache import WITHOUT_RUNTIME
 
-from . import pll
+from . import pll, ride_through
 
 compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
@@ -142,6 +142,8 @@ def pll_update(g, k, v):
 
 # --- pll.dead_samples: the plain function itself, compiled (pure arithmetic on numbers)
 dead_samples = compiled(pll.dead_samples)
+# --- ride_through.flux_wait_s: the plain function itself, compiled
+flux_wait_s = compiled(ride_through.flux_wait_s)
 
 
 # --- inverter_guard.InverterGuards.judge, .ready_share and .link ------------------------

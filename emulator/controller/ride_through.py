@@ -7,6 +7,8 @@ The plain-Python rules the reference controller (tcu.py) follows; the compiled p
 
 from __future__ import annotations
 
+import math
+
 from .config import ControllerConfig
 
 #: a drive stops when its link falls to this fraction of nominal while effort is asked
@@ -35,6 +37,15 @@ def flux_decay_s(cfg: ControllerConfig) -> float:
     """How long a stopped drive waits: FLUX_DECAY_TAU rotor time constants,
     tau_r = (L_m + L_lr) / R_r (the rotor circuit with the stator open)."""
     return FLUX_DECAY_TAU * (cfg.magnetising_h + cfg.rotor_leakage_h) / cfg.rotor_resistance_ohm
+
+
+def flux_wait_s(decay_s: float, flux_share: float) -> float:
+    """How long a drive stopped with ``flux_share`` of its rated flux (the share of its
+    voltage ramp it had reached) waits: ``decay_s`` (flux_decay_s) for one that had its
+    flux up; tau_r ln(flux_share) less to reach the same e^-FLUX_DECAY_TAU, none at
+    that level and below: decay_s (1 + ln(flux_share) / FLUX_DECAY_TAU), at least 0
+    (the rotor circuit with the stator open, Novotny & Lipo, 1996, ch. 5)."""
+    return decay_s * max(0.0, 1.0 + math.log(flux_share) / FLUX_DECAY_TAU)
 
 
 def buffer_torque(u_d: float, u_nominal: float, train_mps: float, motor_rad_s: float,
