@@ -325,7 +325,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         if demanded:
             row[I_DEMANDED_AT] = t
             row[I_RELEASED] = 0.0
-        held = (row[I_RELEASED] == 0.0 and abs(v) > k[K_MAGNETISED_MPS]
+        held = (row[I_RELEASED] == 0.0  # (its torque ramps out first: tcu.py)
+                and (abs(v) > k[K_MAGNETISED_MPS] or effort != 0.0)
                 and t - row[I_DEMANDED_AT] < k[K_FLUX_HOLD_S])
         active = (running and (demanded or held) and t >= row[I_BLOCK_UNTIL]
                   and u_d > u_stop and row[I_UNDERVOLTED] == 0.0

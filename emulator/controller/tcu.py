@@ -327,11 +327,17 @@ class ReferenceController(SignalPositions):
             # once released after the demand, a drive stays off until asked again: the
             # speed near the threshold rings with the drivetrain's torsion (and the
             # encoder's steps), and each restart met the shaft's recoil with a fresh flux
-            # model, a current surge and an overcurrent trip at the blend speed
+            # model, a current surge and an overcurrent trip at the blend speed.
+            # Below that speed too a drive keeps its pulses while its torque ramps out
+            # under the jerk limit: blocked at once with the braking torque on, at the
+            # scenario driver's blend to the friction brake (1 m/s), the drivetrain's
+            # 30 Hz torsion rang the rail force through +-100 kN and pushed the train
+            # forward at 0.5 m/s^2 (tests/scenario/test_library.py, the stops' story)
             if demanded:
                 self.demanded_at[k] = self.t
                 self.released[k] = False
-            held = (not self.released[k] and abs(v) > MAGNETISED_ABOVE_MPS
+            held = (not self.released[k]
+                    and (abs(v) > MAGNETISED_ABOVE_MPS or self.effort_n != 0.0)
                     and self.t - self.demanded_at[k] < FLUX_HOLD_S)
             active = (running and (demanded or held) and self.t >= guards.block_until[k]
                       and link_ok

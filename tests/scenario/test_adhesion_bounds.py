@@ -5,13 +5,16 @@ specified run and the allowances every bound takes)."""
 
 from __future__ import annotations
 
+import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.optimize import minimize_scalar
 
 from emulator.plant.drivetrain import RAIL_CONDITIONS
 from tests.oracles import polach_creep_force
 from tests.scenario.specified_run import (
+    ABOVE_BASE,
     BASE_KMH,
+    BELOW_BASE,
     RAMP_FULL_S,
     G,
     Specified,
@@ -136,3 +139,103 @@ def test_greasy_patch_bound_is_the_adhesion_a_control_should_use_in_it() -> None
     x_end = out.y_events[0][0][1]
     assert zone["from_m"] < x_end - min(behind)  # (the leading axles in the patch by then)
     assert check["by_s"] == tenths_above(bound), bound
+
+
+def _stop_on_the_mark(scenario: dict, trainset: dict, used: float,
+                      accuracy: tuple[float, float]) -> tuple[float, float]:
+    """Where and when (m, s) the low-adhesion scenario's train comes to rest (0.1 km/h),
+    braked by the scenario driver's plan to its mark with a controller that gives its
+    specified braking curve times ``accuracy`` (below, above base speed) and on the
+    leaf patch, axle by axle, at most ``used`` of the patch's creep-curve peak.
+
+    The driver's plan is the test rig's own (emulator/scenario/driver.py, as written
+    there): it asks for a_req = v^2 / (2 max(s, 0.5 m)) to the mark s ahead, as the
+    effort a_req m / F_available plus a trim it moves by 0.5 (a_req - a) a second
+    (within +-0.5), m the mass with its rotating allowance, F_available the
+    controller's reported effort (here its specified curve); its demand changes by at
+    most demand_rate_per_s. Below the blend speed it asks no effort and the friction
+    brake for m max(a_req, 0.05 m/s^2) (at most 300 kN), which the brake cylinders
+    build with their time constant. The controller takes the demand at the rate of
+    full effort in RAMP_FULL_S (specified_run.py), down as up."""
+    spec = Specified(trainset)
+    train, drivetrain = trainset["train"], trainset["drivetrain"]
+    (zone,) = scenario["track"]["low_adhesion"]
+    (brake,) = [s for s in scenario["driver"]["step"] if s["mode"] == "brake"]
+    mark = brake["stop_at_m"]
+    params = (0.3, 0.1, 0.154 * zone["factor"], 0.4, 0.2)  # Polach's wet shape (above)
+    q = spec.mass * G / train["axle_count"]
+    kalker, v_ref = drivetrain["kalker_coefficient_n"], drivetrain["creep_reference_speed_mps"]
+    behind = [a for c in trainset["converter"] for a in c["axle_positions_m"]]
+    # the peak over speed on a grid (it varies by 0.3 % from one point to the next)
+    grid = np.linspace(0.0, scenario["scenario"]["initial_speed_kmh"] / 3.6 + 1.0, 60)
+    peaks = np.array([_polach_peak(v, q, kalker, params, v_ref) for v in grid])
+    m_driver = spec.mass * (1.0 + train["rotating_mass_allowance"])
+    blend = 1.0  # DriverSpec.blend_mps (asserted by the caller)
+    rate = scenario["driver"].get("demand_rate_per_s", 1.0)
+    stiff = 400.0  # 1/s: the rate-limited followers track their targets within a frame
+
+    def rhs(t, y):
+        v, x, demand, effort, trim, friction = y
+        v = max(v, 0.0)
+        a_req = v * v / (2.0 * max(mark - x, 0.5))
+        curve = spec.curve(v, True)
+        part = effort * curve * accuracy[1 if v * 3.6 >= BASE_KMH else 0] / len(behind)
+        grip = used * float(np.interp(v, grid, peaks))
+        electric = sum(min(part, grip) if zone["from_m"] <= x - a < zone["to_m"] else part
+                       for a in behind)
+        decel = (electric + friction + spec.resistance(v)) / spec.m_eff
+        if v > blend:
+            target = min(max(a_req * m_driver / curve + trim, 0.0), 1.0)
+            d_trim = 0.5 * (a_req - decel)
+            if abs(trim) >= 0.5 and d_trim * trim > 0:
+                d_trim = 0.0
+            wanted = 0.0
+        else:
+            target, d_trim = 0.0, 0.0
+            wanted = min(m_driver * max(a_req, 0.05), 3e5)
+        d_demand = min(max(stiff * (target - demand), -rate), rate)
+        d_effort = min(max(stiff * (demand - effort), -1 / RAMP_FULL_S), 1 / RAMP_FULL_S)
+        return [-decel if y[0] > 0 else 0.0, v, d_demand, d_effort, d_trim,
+                (wanted - friction) / spec.brake_tau_s]
+
+    def rests(t, y):
+        return y[0] * 3.6 - 0.1
+    rests.terminal = True
+    out = solve_ivp(rhs, (0.0, scenario["scenario"]["duration_s"]),
+                    [scenario["scenario"]["initial_speed_kmh"] / 3.6, 0.0, 0.0, 0.0, 0.0, 0.0],
+                    events=rests, rtol=1e-7, atol=1e-7, max_step=0.02)
+    assert out.t_events[0].size == 1, "the plan's train does not come to rest"
+    return float(out.y_events[0][0][1]), float(out.t_events[0][0])
+
+
+def test_low_adhesion_stop_bound_is_the_drivers_mark_with_the_patch_used() -> None:
+    """Braking from 80 km/h to a mark through a leaf patch: the slide control at
+    ADHESION_USED of the patch's peak (Polach's wet shape at the zone's mu0), the
+    controller anywhere within its accuracy, and the driver's plan (above) bring the
+    train to rest a little past its mark; the check's bound is the farthest and the
+    latest of them. A slide control that used half the patch's adhesion, or that let
+    the electric brake go on the patch, would overrun it."""
+    from emulator.scenario.driver import DriverSpec
+
+    scenario, trainset = shipped("low-adhesion-braking")
+    (zone,) = scenario["track"]["low_adhesion"]
+    assert zone["rail"] == "wet" and not zone.get("axles")
+    assert RAIL_CONDITIONS["wet"] == (0.3, 0.1, 0.154, 0.4, 0.2)  # (the plant's, as read)
+    assert DriverSpec().blend_mps == 1.0
+    steps = scenario["driver"]["step"]
+    # the driver begins its brake step at the first frame: the controller has reported
+    # no available effort yet, so the stop ahead looks near (driver.py: within
+    # v^2 / (2 x 0.2 m/s^2) + 5 v)
+    v0 = scenario["scenario"]["initial_speed_kmh"] / 3.6
+    assert [s["mode"] for s in steps] == ["coast", "brake"]
+    assert steps[1]["stop_at_m"] <= v0 * v0 / (2 * 0.2) + 5 * v0
+    ends = [(BELOW_BASE, ABOVE_BASE), (2 - BELOW_BASE, 2 - ABOVE_BASE)]
+    stops = [_stop_on_the_mark(scenario, trainset, ADHESION_USED, acc) for acc in ends]
+    check = check_named(scenario, "the train stops on its mark")
+    assert check["falls_to"] == 0.1
+    assert check["by_m"] == tenths_above(max(x for x, _ in stops)), stops
+    assert check["by_s"] == tenths_above(max(t for _, t in stops)), stops
+    assert scenario["scenario"]["duration_s"] >= check["by_s"]
+    for used in (0.5 * ADHESION_USED, 0.0):
+        x, _ = _stop_on_the_mark(scenario, trainset, used, ends[0])
+        assert x > check["by_m"] + 5.0, (used, x)

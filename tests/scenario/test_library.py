@@ -26,6 +26,11 @@ def test_library_covers_the_trade_practice() -> None:
     # the scenarios the tests below single out exist (a renamed file would drop a story or
     # a twin run without a word)
     assert set(STORY) | TWINNED <= names
+    # every scenario that stops on a mark shows how its electric brake hands over
+    stops = {p.stem for p in LIBRARY
+             if any("stop_at_m" in step for step in tomllib.loads(
+                 p.read_text(encoding="utf-8"))["driver"].get("step", []))}
+    assert stops == {name for name, story in STORY.items() if story is _blended_to_a_stop}
     assert {"wet-gradient-start", "four-modes", "neutral-section", "catenary-dip-interruption",
             "regeneration-non-receptive", "speed-sensor-loss", "igbt-wont-turn-on",
             "rotor-detuning", "low-adhesion-braking"} <= names
@@ -60,8 +65,50 @@ def _three_trips_then_isolated(run) -> None:
     assert not reset[rises[-1]:].any()
 
 
+#: the jerk passengers accept, m/s^3 (1.0-1.5: REFERENCES.md, from memory); the top end
+COMFORT_JERK = 1.5
+
+
+def _blended_to_a_stop(run) -> None:
+    """A stop on the driver's mark: below the blend speed the scenario driver hands the
+    stop to the friction brake (emulator/scenario/driver.py), and the electric brake's
+    air-gap torque (the plant's, referred to the rail through the gear and the wheels)
+    goes from its braking value to nothing no faster than passengers accept from 90 to
+    10 % of it (the comfort jerk times the train's mass; a drive blocked at once with
+    its torque on steps it in a frame), and nothing pushes the train forward on the way
+    to standstill: its deceleration stays a deceleration (a step had rung the 30 Hz
+    torsion through the rail force and pushed it at +0.5 m/s^2)."""
+    from emulator.profiles.reader import load_trainset
+
+    params = load_trainset(run.scenario.trainset)
+    rec = run.recording
+    t, v = rec.column("time_s"), rec.column("p.train.speed_mps")
+    radii = [d / 2 for c in params.converters for d in c.wheel_diameters_m]
+    rail = sum(rec.column(f"p.motor.torque_nm[{i}]") * params.drivetrain.gear_ratio / r
+               for i, r in enumerate(radii))
+    handed = int(np.flatnonzero(v > 1.0)[-1]) + 1  # the last frame over the blend speed
+    stopped = handed + int(np.flatnonzero(v[handed:] <= 0.1 / 3.6)[0])
+    braking = float(np.median(rail[handed - 200:handed]))  # the 0.2 s before
+    assert braking < -0.3 * params.train.mass_kg  # (braking at 0.3 m/s^2 and more)
+    after = rail[handed:stopped]
+    # the first frame below 90 % of it and the first below 10 % (both must exist: the
+    # torque must go within the stop)
+    below_90 = np.flatnonzero(after > 0.9 * braking)
+    below_10 = np.flatnonzero(after > 0.1 * braking)
+    assert below_90.size and below_10.size, "the electric brake still on at standstill"
+    fall_s = t[handed + below_10[0]] - t[handed + below_90[0]]
+    jerk = 0.8 * -braking / max(fall_s, 1e-3) / params.train.mass_kg
+    assert jerk <= COMFORT_JERK, (fall_s, jerk)
+    assert rec.column("p.train.acceleration_mps2")[handed:stopped].max() < 0.0
+
+
 #: what some scenarios must show besides their own checks
-STORY = {"protections": _three_trips_then_isolated}
+STORY = {"protections": _three_trips_then_isolated,
+         # every stop on a mark
+         "four-modes": _blended_to_a_stop,
+         "full-braking-from-160-15kv": _blended_to_a_stop,
+         "full-braking-from-160-25kv": _blended_to_a_stop,
+         "low-adhesion-braking": _blended_to_a_stop}
 
 
 #: scenarios whose runs also compare the compiled reference controller with its
