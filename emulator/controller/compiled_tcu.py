@@ -29,6 +29,8 @@ from . import ride_through as rt
 from . import tcu as ref
 from .config import ControllerConfig
 from .effort import (
+    BRAKE_FADE_FROM_MPS,
+    BRAKE_FADE_TO_MPS,
     FEEDFORWARD_EFFICIENCY,
     GEAR_EFFICIENCY,
     OVERLOAD,
@@ -158,6 +160,7 @@ class CompiledController(ref.ReferenceController):
         k[pp.K_TRIPS_TO_ISOLATE] = guard.HARDWARE_TRIPS_TO_ISOLATE
         k[pp.K_TRIP_WINDOW_S] = guard.trip_window_s(self.flux_decay_s)
         k[pp.K_MAGNETISED_MPS], k[pp.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
+        k[pp.K_BRAKE_FADE_FROM], k[pp.K_BRAKE_FADE_TO] = BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS
         pll = self.pll
         k[pp.K_PLL_K], k[pp.K_PLL_W_NOM] = pll.k, pll.w_nom
         k[pp.K_PLL_KP], k[pp.K_PLL_KI] = pll.kp, pll.ki

@@ -19,6 +19,13 @@ GEAR_EFFICIENCY = 0.975  # design value of the TCU's effort estimate
 FEEDFORWARD_EFFICIENCY = 0.93
 OVERLOAD = 1.4  # starting torque / rated torque
 POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
+#: the electric brake fades out towards standstill, where the friction brake takes the
+#: stop over (brake blending: electric braking faded out below a few km/h is common
+#: practice, no source): whole at BRAKE_FADE_FROM_MPS (the scenario driver's blend
+#: speed), nothing at BRAKE_FADE_TO_MPS (about the quick speed window's resolution at
+#: the rail, 0.16 m/s, below which a crawl and a stand read alike)
+BRAKE_FADE_FROM_MPS = 1.0
+BRAKE_FADE_TO_MPS = 0.2
 
 
 def motor_torque_limit(cfg: ControllerConfig, v_mps: float) -> float:
@@ -32,6 +39,14 @@ def motor_torque_limit(cfg: ControllerConfig, v_mps: float) -> float:
     if w_motor > w_natural:
         return min(t_max, p_max * w_natural / (w_motor * w_motor))
     return min(t_max, p_max / w_motor)
+
+
+def brake_fade(forward_mps: float, from_mps: float, to_mps: float) -> float:
+    """The share of its braking torque a drive gives at the train speed forward_mps
+    (along the direction of travel, m/s): 1 from from_mps up, falling linearly to 0 at
+    to_mps, and 0 for a train that stands or rolls back, which a braking torque would
+    drive backwards."""
+    return min(max((forward_mps - to_mps) / (from_mps - to_mps), 0.0), 1.0)
 
 
 def line_limited_torque(torque: float, motor_speed: float, n_motors: int, u_d: float,

@@ -45,6 +45,8 @@ from .period_parts import (
     I_N_MOTORS,
     I_RELEASED,
     I_UNDERVOLTED,
+    K_BRAKE_FADE_FROM,
+    K_BRAKE_FADE_TO,
     K_BUFFER_FULL_MPS,
     K_BUFFER_LINK,
     K_BUFFER_NONE_MPS,
@@ -128,6 +130,7 @@ from .period_parts import (
     XM_COUNT,
     XM_TEMPERATURE,
     adhesion_step,
+    brake_fade,
     chopper_duty,
     dead_samples,
     flux_wait_s,
@@ -296,6 +299,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             g[G_ADH_HAS_V_REF] = 0.0
         adhesion_step(g, k, mot, inv, wheel_mps, braking, plausible)
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
+    if effort < 0.0:  # (tcu.py: the electric brake fades out towards standstill)
+        torque_motor *= brake_fade(direction * v, k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO])
     per_link[:] = 0.0  # (np.zeros before)
     p_links = per_link[0]
     achieved = 0.0

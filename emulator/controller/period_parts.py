@@ -25,7 +25,7 @@ import numba as nb
 
 from emulator.kernel_cache import WITHOUT_RUNTIME
 
-from . import pll, ride_through
+from . import effort, pll, ride_through
 
 compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
 
@@ -49,7 +49,7 @@ SQRT2 = math.sqrt(2)
  K_WINDOW, K_SHORT, K_SENSOR_JUMP, K_LEAKAGE_H, K_RAMP_V_PER_S, K_DEADBEAT_GAIN, K_NOTCH_B0,
  K_NOTCH_B1, K_NOTCH_B2, K_NOTCH_A1, K_NOTCH_A2, K_LINK_STOP, K_LINK_RESTART, K_FLUX_DECAY_S,
  K_BUFFER_LINK, K_BUFFER_POWER, K_BUFFER_NONE_MPS, K_BUFFER_FULL_MPS, K_BUFFER_TORQUE,
- K_STOPPED_FLOOR, K_STOPPED_PERIODS, N_K) = range(67)
+ K_STOPPED_FLOOR, K_STOPPED_PERIODS, K_BRAKE_FADE_FROM, K_BRAKE_FADE_TO, N_K) = range(69)
 # per motor: encoder, plausibility, creep; its count window from M_WINDOW on
 (M_LAST, M_HAS_LAST, M_ANGLE, M_DIFFERENCES, M_SPEED_RAW, M_HAS_RAW, M_SPEED, M_SPEED_SHORT,
  M_RING_POS, M_OK, M_JUDGED_RAW, M_HAS_JUDGED, M_CREEP, M_INVERTER, M_STOPPED,
@@ -144,6 +144,8 @@ def pll_update(g, k, v):
 dead_samples = compiled(pll.dead_samples)
 # --- ride_through.flux_wait_s: the plain function itself, compiled
 flux_wait_s = compiled(ride_through.flux_wait_s)
+# --- effort.brake_fade: the plain function itself, compiled
+brake_fade = compiled(effort.brake_fade)
 
 
 # --- inverter_guard.InverterGuards.judge, .ready_share and .link ------------------------

@@ -21,9 +21,12 @@ from . import ride_through as rt
 from .adhesion import AdhesionControl
 from .config import ControllerConfig
 from .effort import (
+    BRAKE_FADE_FROM_MPS,
+    BRAKE_FADE_TO_MPS,
     FEEDFORWARD_EFFICIENCY,
     GEAR_EFFICIENCY,
     POWER_OVERLOAD,
+    brake_fade,
     gear_efficiency,
     line_limited_torque,
     link_power,
@@ -292,6 +295,8 @@ class ReferenceController(SignalPositions):
             factors = self.adhesion.factor
         torque_motor = (self.effort_n * r
                         / (gear * gear_efficiency(self.effort_n) * self.n_motors))
+        if self.effort_n < 0.0:  # the electric brake fades out towards standstill
+            torque_motor *= brake_fade(direction * v, BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS)
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0

@@ -141,6 +141,11 @@ def test_greasy_patch_bound_is_the_adhesion_a_control_should_use_in_it() -> None
     assert check["by_s"] == tenths_above(bound), bound
 
 
+#: where the electric brake has faded out, m/s (from the blend speed down: the reference
+#: controller's BRAKE_FADE_TO_MPS, about its speed window's resolution at the rail)
+FADE_TO_MPS = 0.2
+
+
 def _stop_on_the_mark(scenario: dict, trainset: dict, used: float,
                       accuracy: tuple[float, float]) -> tuple[float, float]:
     """Where and when (m, s) the low-adhesion scenario's train comes to rest (0.1 km/h),
@@ -156,7 +161,9 @@ def _stop_on_the_mark(scenario: dict, trainset: dict, used: float,
     most demand_rate_per_s. Below the blend speed it asks no effort and the friction
     brake for m max(a_req, 0.05 m/s^2) (at most 300 kN), which the brake cylinders
     build with their time constant. The controller takes the demand at the rate of
-    full effort in RAMP_FULL_S (specified_run.py), down as up."""
+    full effort in RAMP_FULL_S (specified_run.py), down as up, and its electric brake
+    fades out linearly from the blend speed to FADE_TO_MPS (the brake blending of
+    common practice, no source; the reference controller's design values)."""
     spec = Specified(trainset)
     train, drivetrain = trainset["train"], trainset["drivetrain"]
     (zone,) = scenario["track"]["low_adhesion"]
@@ -179,7 +186,9 @@ def _stop_on_the_mark(scenario: dict, trainset: dict, used: float,
         v = max(v, 0.0)
         a_req = v * v / (2.0 * max(mark - x, 0.5))
         curve = spec.curve(v, True)
-        part = effort * curve * accuracy[1 if v * 3.6 >= BASE_KMH else 0] / len(behind)
+        fade = min(max((v - FADE_TO_MPS) / (blend - FADE_TO_MPS), 0.0), 1.0)
+        part = (effort * fade * curve * accuracy[1 if v * 3.6 >= BASE_KMH else 0]
+                / len(behind))
         grip = used * float(np.interp(v, grid, peaks))
         electric = sum(min(part, grip) if zone["from_m"] <= x - a < zone["to_m"] else part
                        for a in behind)
@@ -208,13 +217,21 @@ def _stop_on_the_mark(scenario: dict, trainset: dict, used: float,
     return float(out.y_events[0][0][1]), float(out.t_events[0][0])
 
 
+#: how far past a stop marker a stop still counts as on it, m (a driver's stopping
+#: accuracy at a marker of about a metre: common practice, from memory; platform doors
+#: ask for less, and an automatic train operation's)
+STOPPING_TOLERANCE_M = 1.0
+
+
 def test_low_adhesion_stop_bound_is_the_drivers_mark_with_the_patch_used() -> None:
     """Braking from 80 km/h to a mark through a leaf patch: the slide control at
     ADHESION_USED of the patch's peak (Polach's wet shape at the zone's mu0), the
     controller anywhere within its accuracy, and the driver's plan (above) bring the
-    train to rest a little past its mark; the check's bound is the farthest and the
-    latest of them. A slide control that used half the patch's adhesion, or that let
-    the electric brake go on the patch, would overrun it."""
+    train to rest within STOPPING_TOLERANCE_M of its mark, the check's bound; a slide
+    control that used half the patch's adhesion, or that let the electric brake go on
+    the patch, would overrun it by metres. (The time to a stand is no measure of it:
+    a train that lost its brake on the patch runs faster for longer, and stands
+    sooner.)"""
     from emulator.scenario.driver import DriverSpec
 
     scenario, trainset = shipped("low-adhesion-braking")
@@ -228,14 +245,16 @@ def test_low_adhesion_stop_bound_is_the_drivers_mark_with_the_patch_used() -> No
     # v^2 / (2 x 0.2 m/s^2) + 5 v)
     v0 = scenario["scenario"]["initial_speed_kmh"] / 3.6
     assert [s["mode"] for s in steps] == ["coast", "brake"]
-    assert steps[1]["stop_at_m"] <= v0 * v0 / (2 * 0.2) + 5 * v0
-    ends = [(BELOW_BASE, ABOVE_BASE), (2 - BELOW_BASE, 2 - ABOVE_BASE)]
-    stops = [_stop_on_the_mark(scenario, trainset, ADHESION_USED, acc) for acc in ends]
+    mark = steps[1]["stop_at_m"]
+    assert mark <= v0 * v0 / (2 * 0.2) + 5 * v0
     check = check_named(scenario, "the train stops on its mark")
-    assert check["falls_to"] == 0.1
-    assert check["by_m"] == tenths_above(max(x for x, _ in stops)), stops
-    assert check["by_s"] == tenths_above(max(t for _, t in stops)), stops
-    assert scenario["scenario"]["duration_s"] >= check["by_s"]
+    assert check["falls_to"] == 0.1 and "by_s" not in check
+    assert check["by_m"] == mark + STOPPING_TOLERANCE_M
+    ends = [(BELOW_BASE, ABOVE_BASE), (2 - BELOW_BASE, 2 - ABOVE_BASE)]
+    for accuracy in ends:
+        x, t = _stop_on_the_mark(scenario, trainset, ADHESION_USED, accuracy)
+        assert mark <= x < check["by_m"], (accuracy, x)
+        assert t < scenario["scenario"]["duration_s"]  # (it stands within the run)
     for used in (0.5 * ADHESION_USED, 0.0):
         x, _ = _stop_on_the_mark(scenario, trainset, used, ends[0])
         assert x > check["by_m"] + 5.0, (used, x)

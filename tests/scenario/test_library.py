@@ -67,17 +67,23 @@ def _three_trips_then_isolated(run) -> None:
 
 #: the jerk passengers accept, m/s^3 (1.0-1.5: REFERENCES.md, from memory); the top end
 COMFORT_JERK = 1.5
+#: the window over which the electric brake's change is taken, s: three periods of the
+#: drivetrain's 30 Hz torsion and a few of a V/f drive's torque ripple near standstill
+#: (neither is a change a passenger meets through the car body's suspension)
+JERK_WINDOW_S = 0.1
 
 
 def _blended_to_a_stop(run) -> None:
     """A stop on the driver's mark: below the blend speed the scenario driver hands the
-    stop to the friction brake (emulator/scenario/driver.py), and the electric brake's
+    stop to the friction brake (emulator/scenario/driver.py). The electric brake's
     air-gap torque (the plant's, referred to the rail through the gear and the wheels)
-    goes from its braking value to nothing no faster than passengers accept from 90 to
-    10 % of it (the comfort jerk times the train's mass; a drive blocked at once with
-    its torque on steps it in a frame), and nothing pushes the train forward on the way
-    to standstill: its deceleration stays a deceleration (a step had rung the 30 Hz
-    torsion through the rail force and pushed it at +0.5 m/s^2)."""
+    goes to nothing before the train stands, changing over any JERK_WINDOW_S by no more
+    than the comfort jerk times the train's mass allows (a drive blocked at once with
+    its torque on steps it in a frame: 4.2-5.3 m/s^3 so measured, and a ramp cut short
+    by a 27 kN step 1.9), and nothing pushes the train forward on the way to standstill:
+    its deceleration stays a deceleration (a step had rung the 30 Hz torsion through the
+    rail force and pushed the train at up to +0.67 m/s^2). This bounds the electric
+    brake's share of the jerk, not the net jerk the rig driver's friction brake adds."""
     from emulator.profiles.reader import load_trainset
 
     params = load_trainset(run.scenario.trainset)
@@ -86,19 +92,17 @@ def _blended_to_a_stop(run) -> None:
     radii = [d / 2 for c in params.converters for d in c.wheel_diameters_m]
     rail = sum(rec.column(f"p.motor.torque_nm[{i}]") * params.drivetrain.gear_ratio / r
                for i, r in enumerate(radii))
+    frame_s = float(np.median(np.diff(t)))
+    window = round(JERK_WINDOW_S / frame_s)
     handed = int(np.flatnonzero(v > 1.0)[-1]) + 1  # the last frame over the blend speed
     stopped = handed + int(np.flatnonzero(v[handed:] <= 0.1 / 3.6)[0])
-    braking = float(np.median(rail[handed - 200:handed]))  # the 0.2 s before
+    braking = float(np.median(rail[handed - window:handed]))
     assert braking < -0.3 * params.train.mass_kg  # (braking at 0.3 m/s^2 and more)
-    after = rail[handed:stopped]
-    # the first frame below 90 % of it and the first below 10 % (both must exist: the
-    # torque must go within the stop)
-    below_90 = np.flatnonzero(after > 0.9 * braking)
-    below_10 = np.flatnonzero(after > 0.1 * braking)
-    assert below_90.size and below_10.size, "the electric brake still on at standstill"
-    fall_s = t[handed + below_10[0]] - t[handed + below_90[0]]
-    jerk = 0.8 * -braking / max(fall_s, 1e-3) / params.train.mass_kg
-    assert jerk <= COMFORT_JERK, (fall_s, jerk)
+    assert abs(rail[stopped]) < 0.1 * abs(braking), "the electric brake still on at rest"
+    # from a window before the handover to a second after the stand (the pulses blocked)
+    span = rail[handed - window:min(stopped + round(1.0 / frame_s), len(rail))]
+    change = np.abs(span[window:] - span[:-window]).max() / (window * frame_s)
+    assert change / params.train.mass_kg <= COMFORT_JERK, change
     assert rec.column("p.train.acceleration_mps2")[handed:stopped].max() < 0.0
 
 
