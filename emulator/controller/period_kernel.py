@@ -299,8 +299,11 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             g[G_ADH_HAS_V_REF] = 0.0
         adhesion_step(g, k, mot, inv, wheel_mps, braking, plausible)
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
-    if effort < 0.0:  # (tcu.py: the electric brake fades out towards standstill)
-        torque_motor *= brake_fade(direction * v, k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO])
+    faded_out = False
+    if effort < 0.0:  # (tcu.py: the electric brake fades out towards standstill ...)
+        fade = brake_fade(direction * v, k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO])
+        torque_motor *= fade
+        faded_out = fade == 0.0  # (... and the drives let go once it has)
     per_link[:] = 0.0  # (np.zeros before)
     p_links = per_link[0]
     achieved = 0.0
@@ -334,7 +337,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
                 and (abs(v) > k[K_MAGNETISED_MPS] or effort != 0.0)
                 and t - row[I_DEMANDED_AT] < k[K_FLUX_HOLD_S])
         active = (running and (demanded or held) and t >= row[I_BLOCK_UNTIL]
-                  and u_d > u_stop and row[I_UNDERVOLTED] == 0.0
+                  and u_d > u_stop and row[I_UNDERVOLTED] == 0.0 and not faded_out
                   and (effort != 0.0 or mode == 2 or abs(v) > k[K_MAGNETISED_MPS]))
         torque = direction * torque_motor * row[I_FACTOR]
         motor_speed = 0.0

@@ -295,8 +295,14 @@ class ReferenceController(SignalPositions):
             factors = self.adhesion.factor
         torque_motor = (self.effort_n * r
                         / (gear * gear_efficiency(self.effort_n) * self.n_motors))
-        if self.effort_n < 0.0:  # the electric brake fades out towards standstill
-            torque_motor *= brake_fade(direction * v, BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS)
+        faded_out = False
+        if self.effort_n < 0.0:  # the electric brake fades out towards standstill ...
+            fade = brake_fade(direction * v, BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS)
+            torque_motor *= fade
+            # ... and once it has, the drives let go (a V/f drive's torque follows its
+            # command with the rotor's time constant: at a stand 9 % of the braking was
+            # still on, decaying over seconds)
+            faded_out = fade == 0.0
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
@@ -345,7 +351,7 @@ class ReferenceController(SignalPositions):
                     and (abs(v) > MAGNETISED_ABOVE_MPS or self.effort_n != 0.0)
                     and self.t - self.demanded_at[k] < FLUX_HOLD_S)
             active = (running and (demanded or held) and self.t >= guards.block_until[k]
-                      and link_ok
+                      and link_ok and not faded_out
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
