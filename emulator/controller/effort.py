@@ -41,12 +41,10 @@ def motor_torque_limit(cfg: ControllerConfig, v_mps: float) -> float:
     return min(t_max, p_max / w_motor)
 
 
-def brake_fade(forward_mps: float, from_mps: float, to_mps: float) -> float:
-    """The share of its braking torque a drive gives at the train speed forward_mps
-    (along the direction of travel, m/s): 1 from from_mps up, falling linearly to 0 at
-    to_mps, and 0 for a train that stands or rolls back, which a braking torque would
-    drive backwards."""
-    return min(max((forward_mps - to_mps) / (from_mps - to_mps), 0.0), 1.0)
+def brake_fade(speed_mps: float, from_mps: float, to_mps: float) -> float:
+    """The share of its braking torque a drive gives at the train speed speed_mps (its
+    magnitude, m/s): 1 from from_mps up, falling linearly to 0 at to_mps and below."""
+    return min(max((speed_mps - to_mps) / (from_mps - to_mps), 0.0), 1.0)
 
 
 def line_limited_torque(torque: float, motor_speed: float, n_motors: int, u_d: float,

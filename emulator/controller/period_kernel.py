@@ -301,8 +301,8 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
     faded_out = False
     if effort < 0.0:  # (tcu.py: the electric brake fades out towards standstill ...)
-        fade = brake_fade(direction * v, k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO])
-        torque_motor *= fade
+        fade = brake_fade(abs(v), k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO])
+        torque_motor *= fade if direction * v >= 0.0 else -fade  # (against the motion)
         faded_out = fade == 0.0  # (... and the drives let go once it has)
     per_link[:] = 0.0  # (np.zeros before)
     p_links = per_link[0]

@@ -297,8 +297,9 @@ class ReferenceController(SignalPositions):
                         / (gear * gear_efficiency(self.effort_n) * self.n_motors))
         faded_out = False
         if self.effort_n < 0.0:  # the electric brake fades out towards standstill ...
-            fade = brake_fade(direction * v, BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS)
-            torque_motor *= fade
+            fade = brake_fade(abs(v), BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS)
+            # (against the motion: a train rolling back is braked forwards)
+            torque_motor *= fade if direction * v >= 0.0 else -fade
             # ... and once it has, the drives let go (a V/f drive's torque follows its
             # command with the rotor's time constant: at a stand 9 % of the braking was
             # still on, decaying over seconds)
