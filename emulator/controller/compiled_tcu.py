@@ -31,6 +31,7 @@ from .config import ControllerConfig
 from .effort import (
     BRAKE_FADE_FROM_MPS,
     BRAKE_FADE_TO_MPS,
+    BRAKE_RESUME_MPS,
     FEEDFORWARD_EFFICIENCY,
     GEAR_EFFICIENCY,
     OVERLOAD,
@@ -161,6 +162,7 @@ class CompiledController(ref.ReferenceController):
         k[pp.K_TRIP_WINDOW_S] = guard.trip_window_s(self.flux_decay_s)
         k[pp.K_MAGNETISED_MPS], k[pp.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
         k[pp.K_BRAKE_FADE_FROM], k[pp.K_BRAKE_FADE_TO] = BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS
+        k[pp.K_BRAKE_RESUME] = BRAKE_RESUME_MPS
         pll = self.pll
         k[pp.K_PLL_K], k[pp.K_PLL_W_NOM] = pll.k, pll.w_nom
         k[pp.K_PLL_KP], k[pp.K_PLL_KI] = pll.kp, pll.ki

@@ -26,6 +26,11 @@ POWER_OVERLOAD = 1.1  # maximum power / rated power, per motor
 #: the rail, 0.16 m/s, below which a crawl and a stand read alike)
 BRAKE_FADE_FROM_MPS = 1.0
 BRAKE_FADE_TO_MPS = 0.2
+#: drives that let go where the fade ended start braking again only above this speed:
+#: the fade's end and two steps of the quick speed window's resolution (a speed read
+#: near the end flickers by a step from period to period; deciding afresh each period,
+#: the drives switched on and off hundreds of times at a stop)
+BRAKE_RESUME_MPS = 0.5
 
 
 def motor_torque_limit(cfg: ControllerConfig, v_mps: float) -> float:

@@ -24,6 +24,7 @@ from .period_parts import (
     G_ACHIEVED,
     G_ADH_HAS_V_REF,
     G_AVAILABLE,
+    G_BRAKE_LET_GO,
     G_DEAD_SAMPLES,
     G_EFFORT,
     G_EVENT,
@@ -47,6 +48,7 @@ from .period_parts import (
     I_UNDERVOLTED,
     K_BRAKE_FADE_FROM,
     K_BRAKE_FADE_TO,
+    K_BRAKE_RESUME,
     K_BUFFER_FULL_MPS,
     K_BUFFER_LINK,
     K_BUFFER_NONE_MPS,
@@ -299,11 +301,16 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             g[G_ADH_HAS_V_REF] = 0.0
         adhesion_step(g, k, mot, inv, wheel_mps, braking, plausible)
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
-    faded_out = False
     if effort < 0.0:  # (tcu.py: the electric brake fades out towards standstill ...)
         fade = brake_fade(abs(v), k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO])
         torque_motor *= fade if direction * v >= 0.0 else -fade  # (against the motion)
-        faded_out = fade == 0.0  # (... and the drives let go once it has)
+        if fade == 0.0:  # (... and the drives let go once it has, until it runs faster)
+            g[G_BRAKE_LET_GO] = 1.0
+        elif abs(v) >= k[K_BRAKE_RESUME]:
+            g[G_BRAKE_LET_GO] = 0.0
+    else:
+        g[G_BRAKE_LET_GO] = 0.0
+    faded_out = g[G_BRAKE_LET_GO] > 0.5
     per_link[:] = 0.0  # (np.zeros before)
     p_links = per_link[0]
     achieved = 0.0

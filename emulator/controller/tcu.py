@@ -23,6 +23,7 @@ from .config import ControllerConfig
 from .effort import (
     BRAKE_FADE_FROM_MPS,
     BRAKE_FADE_TO_MPS,
+    BRAKE_RESUME_MPS,
     FEEDFORWARD_EFFICIENCY,
     GEAR_EFFICIENCY,
     POWER_OVERLOAD,
@@ -95,6 +96,7 @@ class ReferenceController(SignalPositions):
         self.sequence = SwitchOnSequence(T, charged)
         self.n_motors = n_motors
         self.effort_n = 0.0  # jerk-limited effort reference of the whole train
+        self.brake_let_go = False  # the drives let go where the brake's fade ended
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
         self.line_live_s = 0.0
@@ -295,15 +297,20 @@ class ReferenceController(SignalPositions):
             factors = self.adhesion.factor
         torque_motor = (self.effort_n * r
                         / (gear * gear_efficiency(self.effort_n) * self.n_motors))
-        faded_out = False
         if self.effort_n < 0.0:  # the electric brake fades out towards standstill ...
             fade = brake_fade(abs(v), BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS)
             # (against the motion: a train rolling back is braked forwards)
             torque_motor *= fade if direction * v >= 0.0 else -fade
             # ... and once it has, the drives let go (a V/f drive's torque follows its
             # command with the rotor's time constant: at a stand 9 % of the braking was
-            # still on, decaying over seconds)
-            faded_out = fade == 0.0
+            # still on, decaying over seconds), until the train runs faster again
+            if fade == 0.0:
+                self.brake_let_go = True
+            elif abs(v) >= BRAKE_RESUME_MPS:
+                self.brake_let_go = False
+        else:
+            self.brake_let_go = False
+        faded_out = self.brake_let_go
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0

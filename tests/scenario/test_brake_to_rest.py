@@ -71,6 +71,22 @@ def _run(trainset: str, text: str):
     return run, load_trainset(profile)
 
 
+def _switched_on_after_letting_go(run, params) -> list[int]:
+    """For each inverter, how often its gates came on again after they first went off
+    once the brake demand began (at 3 s): the drives let go where the fade ends and
+    start again only on a speed past BRAKE_RESUME_MPS, not on a reading flickering at
+    the fade's end (deciding afresh each period, they switched hundreds of times)."""
+    t = run.recording.column("time_s")
+    counts = []
+    for converter in params.converters:
+        gates = run.recording.column(f"u.{converter.name}.gates_enabled")[t > 3.0] > 0.5
+        off = np.flatnonzero(gates[:-1] & ~gates[1:])
+        assert off.size, converter.name  # (it let go)
+        rest = gates[off[0] + 1:]
+        counts.append(int(np.count_nonzero(~rest[:-1] & rest[1:])))
+    return counts
+
+
 def _air_gap_torque(run, params) -> np.ndarray:
     return sum(run.recording.column(f"p.motor.torque_nm[{i}]")
                for i in range(params.motor_count))
@@ -104,6 +120,7 @@ def test_the_electric_brake_fades_out_and_the_train_stays_at_rest(trainset: str)
     # (a braking worth the name: over half of 60 % of the motors' rated 1600 N m)
     assert braking < -0.5 * 0.6 * params.motor_count * 1600
     assert abs(torque[rest:]).max() < 0.01 * abs(braking), torque[rest:].min()
+    assert _switched_on_after_letting_go(run, params) == [0] * len(params.converters)
 
 
 @pytest.mark.parametrize("trainset", ["tern-25kv", "tern-15kv"])  # V/f, vector control
@@ -136,3 +153,5 @@ def test_a_train_rolling_back_is_braked_against_its_motion(trainset: str,
     pull = params.train.mass_kg * 9.81 * 30.0 / 1000.0  # (the rise, per its weight)
     assert 0.6 * limits.braking_effort_n > pull  # (60 %: the demand table's)
     assert v.min() > -BRAKE_FADE_FROM_MPS, v.min()
+    # let go at the stand, started again once on the roll-back (past BRAKE_RESUME_MPS)
+    assert _switched_on_after_letting_go(run, params) == [1] * len(params.converters)
