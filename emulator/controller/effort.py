@@ -46,10 +46,21 @@ def motor_torque_limit(cfg: ControllerConfig, v_mps: float) -> float:
     return min(t_max, p_max / w_motor)
 
 
-def brake_fade(speed_mps: float, from_mps: float, to_mps: float) -> float:
+def brake_fade(speed_mps: float, forward: bool, let_go: bool, from_mps: float,
+               to_mps: float, resume_mps: float) -> tuple[float, bool]:
     """The share of its braking torque a drive gives at the train speed speed_mps (its
-    magnitude, m/s): 1 from from_mps up, falling linearly to 0 at to_mps and below."""
-    return min(max((speed_mps - to_mps) / (from_mps - to_mps), 0.0), 1.0)
+    magnitude, m/s): 1 from from_mps up, falling linearly to 0 at to_mps and below,
+    turned round for a train not running forward (braked against its motion); and
+    whether the drives have let go (``let_go`` as it was): once the fade is 0, until
+    the speed passes resume_mps again (a V/f drive's torque follows its command with
+    the rotor's time constant: kept on at a stand, 9 % of the braking was left there,
+    decaying over seconds)."""
+    fade = min(max((speed_mps - to_mps) / (from_mps - to_mps), 0.0), 1.0)
+    if fade == 0.0:
+        let_go = True
+    elif speed_mps >= resume_mps:
+        let_go = False
+    return (fade if forward else -fade), let_go
 
 
 def line_limited_torque(torque: float, motor_speed: float, n_motors: int, u_d: float,

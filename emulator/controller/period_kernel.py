@@ -301,16 +301,13 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
             g[G_ADH_HAS_V_REF] = 0.0
         adhesion_step(g, k, mot, inv, wheel_mps, braking, plausible)
     torque_motor = effort * r / (gear * gear_efficiency(k, effort) * k[K_N_MOTORS])
-    if effort < 0.0:  # (tcu.py: the electric brake fades out towards standstill ...)
-        fade = brake_fade(abs(v), k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO])
-        torque_motor *= fade if direction * v >= 0.0 else -fade  # (against the motion)
-        if fade == 0.0:  # (... and the drives let go once it has, until it runs faster)
-            g[G_BRAKE_LET_GO] = 1.0
-        elif abs(v) >= k[K_BRAKE_RESUME]:
-            g[G_BRAKE_LET_GO] = 0.0
+    if effort < 0.0:  # (tcu.py: the electric brake fades out towards standstill)
+        share, let_go = brake_fade(abs(v), direction * v >= 0.0, g[G_BRAKE_LET_GO] > 0.5,
+                                   k[K_BRAKE_FADE_FROM], k[K_BRAKE_FADE_TO], k[K_BRAKE_RESUME])
+        torque_motor *= share
+        g[G_BRAKE_LET_GO] = 1.0 if let_go else 0.0
     else:
         g[G_BRAKE_LET_GO] = 0.0
-    faded_out = g[G_BRAKE_LET_GO] > 0.5
     per_link[:] = 0.0  # (np.zeros before)
     p_links = per_link[0]
     achieved = 0.0
@@ -340,11 +337,10 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         if demanded:
             row[I_DEMANDED_AT] = t
             row[I_RELEASED] = 0.0
-        held = (row[I_RELEASED] == 0.0  # (its torque ramps out first: tcu.py)
-                and (abs(v) > k[K_MAGNETISED_MPS] or effort != 0.0)
-                and t - row[I_DEMANDED_AT] < k[K_FLUX_HOLD_S])
+        held = (row[I_RELEASED] == 0.0 and (abs(v) > k[K_MAGNETISED_MPS] or effort != 0.0)
+                and t - row[I_DEMANDED_AT] < k[K_FLUX_HOLD_S])  # (ramps out: tcu.py)
         active = (running and (demanded or held) and t >= row[I_BLOCK_UNTIL]
-                  and u_d > u_stop and row[I_UNDERVOLTED] == 0.0 and not faded_out
+                  and u_d > u_stop and row[I_UNDERVOLTED] == 0.0 and g[G_BRAKE_LET_GO] == 0.0
                   and (effort != 0.0 or mode == 2 or abs(v) > k[K_MAGNETISED_MPS]))
         torque = direction * torque_motor * row[I_FACTOR]
         motor_speed = 0.0

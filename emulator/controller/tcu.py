@@ -297,20 +297,13 @@ class ReferenceController(SignalPositions):
             factors = self.adhesion.factor
         torque_motor = (self.effort_n * r
                         / (gear * gear_efficiency(self.effort_n) * self.n_motors))
-        if self.effort_n < 0.0:  # the electric brake fades out towards standstill ...
-            fade = brake_fade(abs(v), BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS)
-            # (against the motion: a train rolling back is braked forwards)
-            torque_motor *= fade if direction * v >= 0.0 else -fade
-            # ... and once it has, the drives let go (a V/f drive's torque follows its
-            # command with the rotor's time constant: at a stand 9 % of the braking was
-            # still on, decaying over seconds), until the train runs faster again
-            if fade == 0.0:
-                self.brake_let_go = True
-            elif abs(v) >= BRAKE_RESUME_MPS:
-                self.brake_let_go = False
+        if self.effort_n < 0.0:  # the electric brake fades out towards standstill
+            share, self.brake_let_go = brake_fade(
+                abs(v), direction * v >= 0.0, self.brake_let_go, BRAKE_FADE_FROM_MPS,
+                BRAKE_FADE_TO_MPS, BRAKE_RESUME_MPS)
+            torque_motor *= share
         else:
             self.brake_let_go = False
-        faded_out = self.brake_let_go
         p_links = [0.0] * len(cfg.link_names)
         achieved = 0.0
         first = 0
@@ -359,7 +352,7 @@ class ReferenceController(SignalPositions):
                     and (abs(v) > MAGNETISED_ABOVE_MPS or self.effort_n != 0.0)
                     and self.t - self.demanded_at[k] < FLUX_HOLD_S)
             active = (running and (demanded or held) and self.t >= guards.block_until[k]
-                      and link_ok and not faded_out
+                      and link_ok and not self.brake_let_go
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
             motor_speed = sum(speeds[first:first + n_mot]) / n_mot
