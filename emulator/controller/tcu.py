@@ -344,7 +344,7 @@ class ReferenceController(SignalPositions):
             # under the jerk limit: blocked at once with the braking torque on, at the
             # scenario driver's blend to the friction brake (1 m/s), the drivetrain's
             # 30 Hz torsion rang the rail force through +-100 kN and pushed the train
-            # forward at 0.5 m/s^2 (tests/scenario/test_library.py, the stops' story)
+            # forward at up to 0.67 m/s^2 (tests/scenario/test_library.py, the stops')
             if demanded:
                 self.demanded_at[k] = self.t
                 self.released[k] = False
