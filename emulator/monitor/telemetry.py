@@ -72,9 +72,10 @@ class TelemetryBuilder:
         for name, (array, col) in self._means.items():  # compile or load it now, not
             _add_column(np.zeros_like(self._sums[name]), array, col)  # in the frame loop
         self._udc = plant.state_column("dc_link.voltage_v")
-        self._breaker = self._lc_pre = self._lc_main = None
+        self._breaker = self._feeder = self._lc_pre = self._lc_main = None
         if plant.line_side:
             self._breaker = plant.state_column("line.breaker_closed")
+            self._feeder = plant.state_column("line.feeder_closed")
             self._lc_pre = plant.state_column("line_converter.precharge_closed")
             self._lc_main = plant.state_column("line_converter.line_contactor_closed")
         self._count = 0
@@ -181,7 +182,8 @@ class TelemetryBuilder:
                 "current_a_rms": pq.get("current_rms_a", 0.0),
                 "power_kw": pq.get("active_power_w", 0.0) / 1e3,
                 "power_factor": pq.get("power_factor", 0.0),
-                "breaker_closed": bool(self._breaker[0][self._breaker[1]] > 0.5)}
+                "breaker_closed": bool(self._breaker[0][self._breaker[1]] > 0.5),
+                "feeder_closed": bool(self._feeder[0][self._feeder[1]] > 0.5)}
 
     def _groups(self) -> list[dict[str, Any]]:
         udc = self._udc[0][:, self._udc[1]].tolist()

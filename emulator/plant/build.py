@@ -216,6 +216,8 @@ def build_line_side(plant, params: TrainsetParams, ideal: bool) -> None:
     plant._pq_ring = np.zeros((1, L.SS_PQ_IS - L.SS_PQ_T + 1))
     plant._pq_sum = np.zeros(L.SS_PQ_IS - L.SS_PQ_T + 1)
     plant.ss[L.SS_ARC] = -1.0  # no arc burning
+    plant.ss[L.SS_FEEDER] = 1.0  # the feeding breaker connects the line
+    plant.ss[L.SS_FEEDER_ARC] = -1.0
     plant.ls2[:, L.LS2_ARC] = -1.0
     ambient = params.train.ambient_temperature_k
     su = params.supply

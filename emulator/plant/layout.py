@@ -268,7 +268,7 @@ SP_PHASE_REF = 2  # phase at SP_T_REF, rad
 SP_T_REF = 3  # time of the last frequency or phase change, s
 SP_R = 4  # source resistance (substation + catenary), ohm
 SP_L = 5  # source inductance, H
-SP_LIVE = 6  # 1 energised, 0 dead (neutral section, interruption)
+SP_LIVE = 6  # 1 the feeding breaker closed, 0 commanded open (interruption, neutral section)
 SP_DROOP = 7  # non-receptive line: EMF rise per watt of reverse power, V/W
 SP_RATIO = 8  # transformer ratio primary / secondary voltage, 1
 SP_BREAKER_DELAY = 9  # main breaker closing delay, s
@@ -276,7 +276,9 @@ SP_ACTIVE = 10  # 1 the line side is modelled, 0 DC links are ideal sources
 SP_MAX_ARC = 11  # longest arc of the breaker and contactors before they force the cut, s
 SP_I_LINE_TRIP = 12  # hardware line overcurrent trip of the main breaker, A peak (inf: none)
 SP_HW_LINE_ON = 13  # 1 the line overcurrent trip acts, 0 it fails to act (a fault)
-SP_N = 14
+SP_SHORT = 14  # 1 the catenary shorted at its feeding point: the EMF behind the source
+# impedance is 0 (a fault); 0 healthy
+SP_N = 15
 N_HARMONICS = 4  # harmonic table rows: order, amplitude / fundamental, phase (rad)
 
 SS_IP = 0  # primary (pantograph) current, A
@@ -300,7 +302,9 @@ SS_ARC = 17  # time the breaker has been arcing since its contacts parted, s (-1
 SS_E_ARC = 18  # energy a forced cut left in the arcs (stored in the inductances), J
 SS_LINE_TRIP = 19  # 1 the line overcurrent trip holds the breaker open until it is
 # commanded open (acknowledged)
-SS_N = 20
+SS_FEEDER = 20  # the feeding breaker connects the line (1), or its arc has cleared (0)
+SS_FEEDER_ARC = 21  # time the feeding breaker has been arcing, s (-1: not)
+SS_N = 22
 
 # --- four-quadrant line converters: parameters [n_lc, LP_N] -------------------------------
 LP_L = 0  # secondary leakage inductance referred to the secondary, H
@@ -373,6 +377,7 @@ READABLE.update({
     "line.emf_v": ("supply_state", SS_EMF, "V", "source EMF"),
     "line.breaker_closed": ("supply_state", SS_BREAKER, "1", "main breaker feedback"),
     "line.overcurrent_trip": ("supply_state", SS_LINE_TRIP, "1", "hardware breaker trip"),
+    "line.feeder_closed": ("supply_state", SS_FEEDER, "1", "feeding breaker connects the line"),
     "line_converter.current_a": ("lc_state", LS2_I, "A", "secondary current"),
     "line_converter.voltage_v": ("lc_state", LS2_U, "V", "converter AC voltage"),
     "line_converter.precharge_closed": ("lc_state", LS2_PRE, "1", "feedback contact"),

@@ -23,10 +23,17 @@ an optional series-resonant filter (L_f di_f/dt = U - u_cf - R_f i_f, C_f du_cf/
 tuned to twice the line frequency, L_f C_f = 1/(2 omega)^2; the chopper is an average
 model i_ch = d U / R_ch.
 
+Switchgear (switchgear.py): the main breaker, the contactors and the substation's feeding
+breaker open at their current's zero. An interruption opens the feeding breaker; once its
+arc has cleared the section is isolated: no winding carries current and the pantograph
+reads 0. A short at the feeding point is the other dead line: the EMF is 0 behind the
+source impedance, and the converters can drive current into it.
+
 Left out: the transformer's magnetising branch (no inrush when the breaker closes, no
 saturation from a DC offset of the converters' currents, so a firmware's DC-offset
-control has nothing to act on), and the converters' switching harmonics (average
-models: no carrier-frequency currents for an interference-current monitor).
+control has nothing to act on; no islanding voltage at the roof while the feeder is
+open), and the converters' switching harmonics (average models: no carrier-frequency
+currents for an interference-current monitor).
 """
 
 from __future__ import annotations
@@ -35,7 +42,7 @@ import math
 
 import numpy as np
 
-from .jit import compiled, compiled_inline
+from .jit import compiled
 from .layout import (
     KP_C,
     KP_CF,
@@ -58,10 +65,6 @@ from .layout import (
     LP_ESW_VREF,
     LP_FSW,
     LP_L,
-    LP_LINE_DELAY,
-    LP_PRE_DELAY,
-    LP_R,
-    LP_R_PRE,
     LP_RD,
     LP_V0,
     LS2_ARC,
@@ -94,26 +97,25 @@ from .layout import (
     LU_PRE_CMD,
     SP_ACTIVE,
     SP_AMPLITUDE,
-    SP_BREAKER_DELAY,
     SP_DROOP,
     SP_FREQUENCY,
     SP_HW_LINE_ON,
     SP_I_LINE_TRIP,
     SP_L,
-    SP_LIVE,
     SP_MAX_ARC,
     SP_PHASE_REF,
     SP_R,
     SP_RATIO,
+    SP_SHORT,
     SP_T_REF,
     SS_ARC,
     SS_BREAKER,
-    SS_BREAKER_CMD,
-    SS_BREAKER_TIMER,
     SS_E_ARC,
     SS_E_SOURCE,
     SS_E_SOURCE_R,
     SS_EMF,
+    SS_FEEDER,
+    SS_FEEDER_ARC,
     SS_IP,
     SS_LINE_TRIP,
     SS_PQ_I2,
@@ -127,6 +129,7 @@ from .layout import (
     SS_REVERSE_W,
     SS_UP,
 )
+from .switchgear import cleared, contactors, feeding_breaker, open_breaker, path_resistance
 
 
 @compiled
@@ -137,8 +140,8 @@ def supply_phase(sp: np.ndarray, t: float) -> float:
 
 @compiled
 def supply_emf(sp: np.ndarray, harmonics: np.ndarray, ss: np.ndarray, t: float) -> float:
-    """Source EMF at time t, V (0 when the line is dead)."""
-    if sp[SP_LIVE] < 0.5:
+    """Source EMF at time t, V (0 while the catenary is shorted at its feeding point)."""
+    if sp[SP_SHORT] > 0.5:
         return 0.0
     theta = supply_phase(sp, t)
     amplitude = sp[SP_AMPLITUDE] + sp[SP_DROOP] * ss[SS_REVERSE_W] * math.sqrt(2.0)
@@ -147,69 +150,6 @@ def supply_emf(sp: np.ndarray, harmonics: np.ndarray, ss: np.ndarray, t: float) 
         if harmonics[h, 1] != 0.0:
             e += harmonics[h, 1] * math.sin(harmonics[h, 0] * theta + harmonics[h, 2])
     return amplitude * e
-
-
-@compiled
-def _contactors(lp, lu, ls2, sp, ss, h):
-    """Switchgear: each contact follows its command after its delay. Opening under
-    current, the contacts part and the arc carries the current on to its next zero
-    (line_substep clears it there), never longer than SP_MAX_ARC; the arc's voltage is
-    left out. Closing makes the circuit at the catenary's phase as it is."""
-    cmd = 1.0 if ss[SS_BREAKER_CMD] > 0.5 else 0.0
-    if ss[SS_LINE_TRIP] > 0.5:  # the hardware trip holds the breaker open until the
-        if cmd == 0.0:  # controller commands it open (acknowledges); then it may close
-            ss[SS_LINE_TRIP] = 0.0
-        cmd = 0.0
-    if ss[SS_ARC] >= 0.0:
-        # opening: trip-free, the breaker completes its opening whatever is commanded
-        # meanwhile; a close then waits its closing delay from the open state
-        ss[SS_ARC] += h
-        ss[SS_BREAKER_TIMER] = sp[SP_BREAKER_DELAY]
-    elif cmd != ss[SS_BREAKER]:
-        if cmd == 0.0:
-            ss[SS_ARC] = 0.0  # the contacts part: the arc burns through this sub-step
-        else:
-            ss[SS_BREAKER_TIMER] -= h
-            if ss[SS_BREAKER_TIMER] <= 0.0:
-                ss[SS_BREAKER] = 1.0
-    else:
-        ss[SS_BREAKER_TIMER] = sp[SP_BREAKER_DELAY]
-    for k in range(lp.shape[0]):
-        for cmd_col, state_col, timer_col, delay_col in ((LU_PRE_CMD, LS2_PRE, LS2_PRE_TIMER,
-                                                          LP_PRE_DELAY),
-                                                         (LU_LINE_CMD, LS2_LINE, LS2_LINE_TIMER,
-                                                          LP_LINE_DELAY)):
-            want = 1.0 if lu[k, cmd_col] > 0.5 else 0.0
-            if want != ls2[k, state_col]:
-                ls2[k, timer_col] -= h
-                if ls2[k, timer_col] <= 0.0:
-                    other = LS2_LINE if state_col == LS2_PRE else LS2_PRE
-                    other_cmd = LU_LINE_CMD if state_col == LS2_PRE else LU_PRE_CMD
-                    breaks_path = ls2[k, other] < 0.5 or lu[k, other_cmd] < 0.5
-                    if want == 1.0 or not breaks_path or ls2[k, LS2_I] == 0.0:
-                        ls2[k, state_col] = want
-                    else:  # interrupting the winding's current: an arc to its zero
-                        ls2[k, LS2_ARC] = 0.0 if ls2[k, LS2_ARC] < 0.0 else ls2[k, LS2_ARC] + h
-            else:
-                ls2[k, timer_col] = lp[k, delay_col]
-
-
-@compiled_inline
-def _cleared(arc, i_old, i_new, max_arc, h) -> bool:
-    """Whether an arc clears at the end of this step: its current has reached zero
-    (changed sign or stopped), or by the step's end it will have burned (arc, the time
-    before this step, plus h) as long as the switch allows. A maximum that is not a whole
-    number of sub-steps is cut at the last step end within it (never beyond)."""
-    return arc >= 0.0 and (i_old * i_new <= 0.0 or arc + 2.0 * h > max_arc + 1e-12)
-
-
-@compiled_inline
-def _path_resistance(lp, ls2, k, breaker) -> float:
-    """Series resistance of winding k's path (winding plus precharge resistor while only the
-    precharge contactor is closed), or -1 when the path is open."""
-    if not breaker or (ls2[k, LS2_LINE] < 0.5 and ls2[k, LS2_PRE] < 0.5):
-        return -1.0
-    return lp[k, LP_R] + (0.0 if ls2[k, LS2_LINE] > 0.5 else lp[k, LP_R_PRE])
 
 
 @compiled
@@ -223,10 +163,12 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     n_lc = lp.shape[0]
     if sp[SP_ACTIVE] < 0.5:
         return
-    _contactors(lp, lu, ls2, sp, ss, h)
+    contactors(lp, lu, ls2, sp, ss, h)
+    feeding_breaker(sp, ss, h)
     n = sp[SP_RATIO]
     e = supply_emf(sp, harmonics, ss, t + 0.5 * h)  # held over the step: its mean
-    breaker = ss[SS_BREAKER] > 0.5
+    fed = ss[SS_FEEDER] > 0.5
+    breaker = ss[SS_BREAKER] > 0.5 and fed
     lc_src = (sp[SP_L] + 0.5 * h * sp[SP_R]) / (n * n)  # c of Sherman-Morrison
     lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n)
     sum_i = 0.0
@@ -240,7 +182,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
         i = ls2[k, LS2_I]
-        r = _path_resistance(lp, ls2, k, breaker)
+        r = path_resistance(lp, ls2, k, breaker)
         if r < 0.0:
             ls2[k, LS2_U] = 0.0
             continue
@@ -265,7 +207,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
         i_old = ls2[k, LS2_I]
-        r = _path_resistance(lp, ls2, k, breaker)
+        r = path_resistance(lp, ls2, k, breaker)
         if r < 0.0:
             ls2[k, LS2_I] = 0.0
             continue
@@ -274,7 +216,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         i_new = (b_k - corr) / a_k
         if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
             i_new = 0.0  # a diode bridge does not reverse its current within a step
-        if _cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC], h):
+        if cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC], h):
             # the arc clears at the current's zero (or is cut): both contacts that are
             # commanded open are open; what the leakage still held goes into the arc
             ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * i_new * i_new
@@ -316,8 +258,9 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     ip_old = ss[SS_IP]
     ip_new = sum_new / n
     ss[SS_IP] = ip_new
-    if _cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h):
-        _open_breaker(sp, ss, lp, ls2, n)
+    if (cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h)
+            or cleared(ss[SS_FEEDER_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h)):
+        open_breaker(sp, ss, lp, ls2, n)
     elif (sp[SP_HW_LINE_ON] > 0.5 and ss[SS_ARC] < 0.0
           and abs(ip_new) > sp[SP_I_LINE_TRIP]):
         # the breaker's overcurrent release: opens from the next step (while the breaker
@@ -330,6 +273,9 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     e_end = supply_emf(sp, harmonics, ss, t + h)
     ss[SS_EMF] = e_end
     ss[SS_UP] = e_end - sp[SP_R] * ip_new - sp[SP_L] * di_dt
+    if ss[SS_FEEDER] < 0.5:  # an isolated section: no magnetising branch, so no
+        up = 0.0  # voltage from the train's own converters (islanding) either
+        ss[SS_UP] = 0.0
     ss[SS_E_SOURCE] += e * ip_avg * h
     ss[SS_E_SOURCE_R] += sp[SP_R] * ip_avg * ip_avg * h
     theta = supply_phase(sp, t + 0.5 * h)
@@ -344,19 +290,6 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     ss[SS_PQ_IC] += ip_avg * c * h
     ss[SS_PQ_IS] += ip_avg * sn * h
     _links_substep(h, kp, ku, lst, i_link)
-
-
-@compiled_inline
-def _open_breaker(sp, ss, lp, ls2, n):
-    """The breaker's arc clears: the primary and every winding stop carrying current; what
-    the source and leakage inductances still held goes into the arc (0 at a current zero)."""
-    ss[SS_E_ARC] += 0.5 * sp[SP_L] * ss[SS_IP] * ss[SS_IP]
-    for k in range(lp.shape[0]):
-        ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * ls2[k, LS2_I] * ls2[k, LS2_I]
-        ls2[k, LS2_I] = 0.0
-    ss[SS_IP] = 0.0
-    ss[SS_BREAKER] = 0.0
-    ss[SS_ARC] = -1.0
 
 
 @compiled

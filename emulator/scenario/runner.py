@@ -36,7 +36,7 @@ MOTOR_SIDE = ["train.speed_mps", "train.position_m", "train.acceleration_mps2",
               "inverter.phase_current_c_a", "inverter.hardware_trip", "dc_link.voltage_v",
               "dc_link.chopper_current_a", "dc_link.hardware_chopper"]
 LINE_SIDE = ["line.pantograph_voltage_v", "line.current_a", "line.emf_v",
-             "line.breaker_closed", "line.overcurrent_trip"]
+             "line.breaker_closed", "line.overcurrent_trip", "line.feeder_closed"]
 #: derived each 20 ms from the plant's power-quality window (a frame late)
 LINE_EXTRAS = ["line.voltage_rms_v", "line.current_rms_a", "line.power_factor",
                "line.active_power_w"]

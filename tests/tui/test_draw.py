@@ -100,3 +100,13 @@ def test_history_names_every_signal_and_forgets_after_a_minute() -> None:
     assert t[-1] == 20.0 and t[0] >= 15.0 and len(t) == len(v) == 11
     h.add(dict(snaps[0], t_s=0.5))  # a new run behind the same address starts over
     assert list(h.times) == [0.5]
+
+
+def test_the_train_panel_says_when_the_feeding_breaker_is_open() -> None:
+    from tui.panels import train_text
+
+    hello, snaps = load()
+    snap = dict(snaps[-1])
+    assert "feeder OPEN" not in train_text(hello, snap, 120).plain  # (stored: no key)
+    snap["line"] = dict(snap["line"], feeder_closed=False)
+    assert "feeder OPEN (line dead)" in train_text(hello, snap, 120).plain
