@@ -75,7 +75,7 @@ def train_text(hello: dict[str, Any], snap: dict[str, Any], width: int) -> Text:
         t.append(f"\nline {line['voltage_kv_rms']:5.2f} kV  {line['current_a_rms']:6.1f} A  "
                  f"{si(line['power_kw'] * 1e3, 'W')}  PF {line['power_factor']:+.3f}  "
                  f"breaker {'closed' if line['breaker_closed'] else 'OPEN'}"
-                 + ("" if line.get("feeder_closed", True) else "  feeder OPEN (line dead)"))
+                 + ("" if line.get("feeder_closed", True) else "  no feed (section dead)"))
     return t
 
 

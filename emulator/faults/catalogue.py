@@ -130,13 +130,12 @@ CATALOGUE: dict[str, FaultKind] = {k.name: k for k in [
           "a DC-link capacitor bank loses part of its capacitance"),
     # --- line: catenary events ---------------------------------------------------------
     _kind("catenary-dip", "line", "catenary", {"voltage_pu": ("1", 0.0, 1.5, 0.7)},
-          "the line EMF steps to a fraction of nominal (a dip, or a rise above 1)"),
+          "the line EMF steps to a fraction of nominal (a dip, or a rise above 1; at 0 a "
+          "short behind the source impedance, which the converters can feed)"),
     _kind("catenary-interruption", "line", "catenary", {},
           "the feeding breaker opens: the line's current stops at its next zero and the "
           "section is dead until the fault ends (a reclose)"),
-    _kind("catenary-short", "line", "catenary", {},
-          "the catenary is shorted at its feeding point: its voltage collapses behind "
-          "the source impedance until the fault ends (the feeder's protection clears it)"),
+
     _kind("phase-jump", "line", "catenary", {"angle_deg": ("deg", -180.0, 180.0, 30.0)},
           "the line voltage's phase jumps once when the fault starts"),
     _kind("line-frequency", "line", "catenary", {"frequency_hz": ("Hz", 1.0, 100.0, 49.5)},

@@ -167,8 +167,6 @@ class FaultSet:
                              * plant.params.supply.nominal_voltage_v)
         elif kind == "catenary-interruption":
             plant.set_supply(live=False)
-        elif kind == "catenary-short":
-            plant.set_supply(short=True)
         elif kind == "phase-jump":
             plant.set_supply(phase_jump_rad=math.radians(f.params["angle_deg"]))
         elif kind == "line-frequency":
@@ -227,8 +225,6 @@ class FaultSet:
             plant.set_supply(voltage_rms_v=was)
         elif kind == "catenary-interruption":
             plant.set_supply(live=True)
-        elif kind == "catenary-short":
-            plant.set_supply(short=False)
         elif kind == "line-frequency":
             plant.set_supply(frequency_hz=was)
         elif kind == "non-receptive-line":

@@ -276,9 +276,7 @@ SP_ACTIVE = 10  # 1 the line side is modelled, 0 DC links are ideal sources
 SP_MAX_ARC = 11  # longest arc of the breaker and contactors before they force the cut, s
 SP_I_LINE_TRIP = 12  # hardware line overcurrent trip of the main breaker, A peak (inf: none)
 SP_HW_LINE_ON = 13  # 1 the line overcurrent trip acts, 0 it fails to act (a fault)
-SP_SHORT = 14  # 1 the catenary shorted at its feeding point: the EMF behind the source
-# impedance is 0 (a fault); 0 healthy
-SP_N = 15
+SP_N = 14
 N_HARMONICS = 4  # harmonic table rows: order, amplitude / fundamental, phase (rad)
 
 SS_IP = 0  # primary (pantograph) current, A
@@ -374,7 +372,7 @@ LS_HW_CHOP = 12  # 1 while the hardware chopper is firing (whatever the firmware
 READABLE.update({
     "line.pantograph_voltage_v": ("supply_state", SS_UP, "V", "instantaneous"),
     "line.current_a": ("supply_state", SS_IP, "A", "primary current, instantaneous"),
-    "line.emf_v": ("supply_state", SS_EMF, "V", "source EMF"),
+    "line.emf_v": ("supply_state", SS_EMF, "V", "source EMF, behind the feeding breaker"),
     "line.breaker_closed": ("supply_state", SS_BREAKER, "1", "main breaker feedback"),
     "line.overcurrent_trip": ("supply_state", SS_LINE_TRIP, "1", "hardware breaker trip"),
     "line.feeder_closed": ("supply_state", SS_FEEDER, "1", "feeding breaker connects the line"),

@@ -25,9 +25,13 @@ model i_ch = d U / R_ch.
 
 Switchgear (switchgear.py): the main breaker, the contactors and the substation's feeding
 breaker open at their current's zero. An interruption opens the feeding breaker; once its
-arc has cleared the section is isolated: no winding carries current and the pantograph
-reads 0. A short at the feeding point is the other dead line: the EMF is 0 behind the
-source impedance, and the converters can drive current into it.
+arc has cleared the section is isolated and the pantograph reads 0. With the primary
+open (either breaker) the windings stay coupled through the core: with no magnetising
+branch their currents sum to zero, the same equations with L_c -> infinity (the
+EMF and the old sum drop out; the Sherman-Morrison correction becomes s_b / s_1), so a
+current can circulate between two converters but none returns to the line. A dead line
+with the feeder closed (the EMF at 0 behind the source impedance, a dip to 0) is a
+short the converters can drive current into.
 
 Left out: the transformer's magnetising branch (no inrush when the breaker closes, no
 saturation from a DC offset of the converters' currents, so a firmware's DC-offset
@@ -106,7 +110,6 @@ from .layout import (
     SP_PHASE_REF,
     SP_R,
     SP_RATIO,
-    SP_SHORT,
     SP_T_REF,
     SS_ARC,
     SS_BREAKER,
@@ -129,7 +132,14 @@ from .layout import (
     SS_REVERSE_W,
     SS_UP,
 )
-from .switchgear import cleared, contactors, feeding_breaker, open_breaker, path_resistance
+from .switchgear import (
+    balance_windings,
+    cleared,
+    contactors,
+    feeding_breaker,
+    open_primary,
+    path_resistance,
+)
 
 
 @compiled
@@ -140,9 +150,8 @@ def supply_phase(sp: np.ndarray, t: float) -> float:
 
 @compiled
 def supply_emf(sp: np.ndarray, harmonics: np.ndarray, ss: np.ndarray, t: float) -> float:
-    """Source EMF at time t, V (0 while the catenary is shorted at its feeding point)."""
-    if sp[SP_SHORT] > 0.5:
-        return 0.0
+    """Source EMF at time t, V (behind the feeding breaker: it runs on while that is
+    open)."""
     theta = supply_phase(sp, t)
     amplitude = sp[SP_AMPLITUDE] + sp[SP_DROOP] * ss[SS_REVERSE_W] * math.sqrt(2.0)
     e = math.sin(theta)
@@ -164,25 +173,32 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     if sp[SP_ACTIVE] < 0.5:
         return
     contactors(lp, lu, ls2, sp, ss, h)
-    feeding_breaker(sp, ss, h)
     n = sp[SP_RATIO]
+    # the secondary's voltage at the start of the step: the pantograph's, or the line's
+    # own after the section was dead (its pantograph read 0)
+    u_sec_est = (ss[SS_UP] if ss[SS_FEEDER] > 0.5 else supply_emf(sp, harmonics, ss, t)) / n
+    feeding_breaker(sp, ss, h)
     e = supply_emf(sp, harmonics, ss, t + 0.5 * h)  # held over the step: its mean
     fed = ss[SS_FEEDER] > 0.5
-    breaker = ss[SS_BREAKER] > 0.5 and fed
+    # the primary closed to the source; open, the windings stay coupled through the core
+    # alone: with no magnetising branch their currents sum to zero (L_source -> inf)
+    primary = fed and ss[SS_BREAKER] > 0.5
     lc_src = (sp[SP_L] + 0.5 * h * sp[SP_R]) / (n * n)  # c of Sherman-Morrison
-    lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n)
+    lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n) if primary else 0.0
+    e_sec = e / n if primary else 0.0
+    if not primary:
+        u_sec_est = 0.0  # (a common voltage of the windings: it cancels)
     sum_i = 0.0
     for k in range(n_lc):
         sum_i += ls2[k, LS2_I]
     # converter voltages held over the step, and the rows of the active windings
     s_b = 0.0
     s_1 = 0.0
-    u_sec_est = ss[SS_UP] / n  # at the start of the step
     for k in range(n_lc):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
         i = ls2[k, LS2_I]
-        r = path_resistance(lp, ls2, k, breaker)
+        r = path_resistance(lp, ls2, k)
         if r < 0.0:
             ls2[k, LS2_U] = 0.0
             continue
@@ -197,22 +213,25 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
             u = min(max(u, -rail), rail)
         ls2[k, LS2_U] = u
         a_k = lp[k, LP_L] + 0.5 * h * r
-        b_k = (lp[k, LP_L] - 0.5 * h * r) * i + lc_old * sum_i + h * (e / n - u)
+        b_k = (lp[k, LP_L] - 0.5 * h * r) * i + lc_old * sum_i + h * (e_sec - u)
         s_b += b_k / a_k
         s_1 += 1.0 / a_k
-    corr = lc_src * s_b / (1.0 + lc_src * s_1)
+    if primary:
+        corr = lc_src * s_b / (1.0 + lc_src * s_1)
+    else:
+        corr = s_b / s_1 if s_1 > 0.0 else 0.0
     sum_new = 0.0
     sum_step = 0.0  # the windings' currents at the end of the step before any arc cleared
     for k in range(n_lc):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
         i_old = ls2[k, LS2_I]
-        r = path_resistance(lp, ls2, k, breaker)
+        r = path_resistance(lp, ls2, k)
         if r < 0.0:
             ls2[k, LS2_I] = 0.0
             continue
         a_k = lp[k, LP_L] + 0.5 * h * r
-        b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e / n - ls2[k, LS2_U])
+        b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e_sec - ls2[k, LS2_U])
         i_new = (b_k - corr) / a_k
         if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
             i_new = 0.0  # a diode bridge does not reverse its current within a step
@@ -253,14 +272,20 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         ls2[k, LS2_E_DC] += udc * i_dc * h
         ls2[k, LS2_E_LOSS] += (u - s * udc) * i_avg * h + p_sw * h
         ls2[k, LS2_E_R] += r * i_avg * i_avg * h  # consistent with the trapezoidal step
-    # primary side; a contactor's arc that cleared took the source inductance's share
-    ss[SS_E_ARC] += 0.5 * sp[SP_L] * (sum_step * sum_step - sum_new * sum_new) / (n * n)
+    # primary side; a contactor's arc that cleared took the source inductance's share,
+    # or with the primary open, what bringing the others back to a zero sum gave up
     ip_old = ss[SS_IP]
-    ip_new = sum_new / n
+    if primary:
+        ss[SS_E_ARC] += 0.5 * sp[SP_L] * (sum_step * sum_step - sum_new * sum_new) / (n * n)
+        ip_new = sum_new / n
+    else:
+        if sum_new != 0.0:
+            balance_windings(lp, ls2, ss)
+        ip_new = 0.0
     ss[SS_IP] = ip_new
     if (cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h)
             or cleared(ss[SS_FEEDER_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h)):
-        open_breaker(sp, ss, lp, ls2, n)
+        open_primary(sp, ss, lp, ls2)
     elif (sp[SP_HW_LINE_ON] > 0.5 and ss[SS_ARC] < 0.0
           and abs(ip_new) > sp[SP_I_LINE_TRIP]):
         # the breaker's overcurrent release: opens from the next step (while the breaker

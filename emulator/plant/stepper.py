@@ -231,13 +231,12 @@ class Plant:
     # --- the supply (used by scenarios: level steps, dips, neutral sections) -----------
     def set_supply(self, *, voltage_rms_v: float | None = None,
                    frequency_hz: float | None = None, phase_jump_rad: float = 0.0,
-                   live: bool | None = None, droop_v_per_w: float | None = None,
-                   short: bool | None = None) -> None:
+                   live: bool | None = None, droop_v_per_w: float | None = None) -> None:
         """Change the catenary now (the phase continuous across a frequency change):
-        voltage_rms_v, the EMF behind the source impedance; live, the feeding breaker
-        (False: an interruption, a neutral section); short, a short at the feeding point
-        (EMF 0); phase_jump_rad, added to the phase (a return's jump); droop_v_per_w, the
-        EMF rise per watt of reverse power (0: receptive)."""
+        voltage_rms_v, the EMF behind the source impedance (0: a short the converters can
+        feed); live, the feeding breaker (False: an interruption, a neutral section);
+        phase_jump_rad, added to the phase (a return's jump); droop_v_per_w, the EMF rise
+        per watt of reverse power (0: receptive)."""
         if not self.line_side:
             raise CommandError("this plant has no line side (ideal DC links)")
         t = self.time_s
@@ -256,8 +255,6 @@ class Plant:
             sp[L.SP_AMPLITUDE] = voltage_rms_v * math.sqrt(2.0)
         if live is not None:
             sp[L.SP_LIVE] = 1.0 if live else 0.0
-        if short is not None:
-            sp[L.SP_SHORT] = 1.0 if short else 0.0
         if droop_v_per_w is not None:
             self._finite("droop", droop_v_per_w, 0.0, 10.0)
             sp[L.SP_DROOP] = droop_v_per_w

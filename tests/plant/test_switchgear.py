@@ -21,11 +21,16 @@ H = 125e-6  # the Tern's sub-step: one frame a sub-step while the switch opens
 
 
 def _run(open_breaker: bool = False, open_contactor: bool = False, max_arc_s: float | None = None,
-         t_open_s: float = 0.2037, open_feeder: bool = False, sign: float = 1.0):
+         t_open_s: float = 0.2037, open_feeder: bool = False, sign: float = 1.0,
+         stiff_links: bool = False):
     """Primary and winding-0 currents each sub-step from t_open_s, with a line converter
-    drawing 600 A peak from each winding (sign -1: returning it); optionally opening a
-    switch at t_open_s."""
+    drawing 600 A peak from each winding (sign -1: returning it; stiff_links: the links
+    held at 1800 V, so that they neither drain nor fill); optionally opening a switch at
+    t_open_s."""
     plant = energised()
+    if stiff_links:
+        plant.kp[:, L.KP_IDEAL] = 1.0
+        plant.kp[:, L.KP_U_IDEAL] = 1800.0
     if max_arc_s is not None:
         plant.sp[L.SP_MAX_ARC] = max_arc_s
     line = PhasorLineConverters(plant, 600.0, sign)
@@ -110,39 +115,77 @@ def test_a_maximum_between_substeps_cuts_at_the_last_step_within_it() -> None:
 @pytest.mark.parametrize("sign", [1.0, -1.0])
 def test_an_interruption_is_the_feeding_breaker_clearing_at_the_current_zero(sign) -> None:
     """Drawing or returning 600 A a winding when the feeder opens: the arc carries the
-    current on to its zero, then the section is isolated: no current in any winding,
-    nothing at the pantograph, while the substation's EMF is still there behind the open
-    breaker and the train's own breaker stays closed."""
-    reference, _, _, _ = _run(sign=sign)
-    opened, _, plant, e0 = _run(open_feeder=True, sign=sign)
+    current on to its zero, then the section is isolated: no current in the line or (the
+    four windings alike) in any winding, nothing at the pantograph, while the
+    substation's EMF is still there behind the open breaker and the train's own breaker
+    stays closed."""
+    reference, _, _, _ = _run(sign=sign, stiff_links=True)
+    opened, _, plant, e0 = _run(open_feeder=True, sign=sign, stiff_links=True)
     zero = _first_zero(reference)
     cleared = int(np.flatnonzero(opened == 0.0)[0])
     assert opened[:cleared] == pytest.approx(reference[:cleared], rel=1e-9)
     assert cleared == zero
     assert (cleared + 1) * H <= 0.5 / 50.0  # within a half period of the line frequency
     assert np.all(opened[cleared:] == 0.0)
-    assert np.all(plant.ls2[:, L.LS2_I] == 0.0)
+    assert np.abs(plant.ls2[:, L.LS2_I]).max() < 1e-9  # A: round-off
     assert plant.read("line.pantograph_voltage_v") == 0.0
     assert plant.read("line.feeder_closed") == 0.0
     assert plant.read("line.breaker_closed") == 1.0
     assert abs(plant.read("line.emf_v")) > 0.0
     e1 = plant.energy()
-    # cleared at a current zero: what the arc took is the little the inductances held at
-    # the end of the sub-step in which the current changed sign (|i| <= |di/dt| h);
-    # the books close to round-off as for the train's breaker
-    i_peak_primary = 600.0 * plant.n_line_converters / plant.sp[L.SP_RATIO]
-    di_dt = 2 * np.pi * 50.0 * i_peak_primary
-    held = 0.5 * plant.sp[L.SP_L] * (di_dt * H) ** 2 + sum(
-        0.5 * plant.lp[k, L.LP_L] * (2 * np.pi * 50.0 * 600.0 * H) ** 2
+    # cleared at a current zero, the arc took only what the inductances held at the end
+    # of the sub-step in which the currents changed sign: a sinusoid of peak I changes by
+    # at most omega I h in a step (|di/dt| <= omega I)
+    omega = 2 * np.pi * 50.0
+    step_primary = omega * 600.0 * plant.n_line_converters / plant.sp[L.SP_RATIO] * H
+    held = 0.5 * plant.sp[L.SP_L] * step_primary ** 2 + sum(
+        0.5 * plant.lp[k, L.LP_L] * (omega * 600.0 * H) ** 2
         for k in range(plant.n_line_converters))
-    assert 0.0 <= e1.switch_arcs - e0.switch_arcs <= held
+    assert 0.0 < e1.switch_arcs - e0.switch_arcs <= held
 
     def d(name: str) -> float:
         return getattr(e1, name) - getattr(e0, name)
 
+    # the books close to round-off, as for the train's breaker
     out = (d("source_resistance") + d("winding_resistance") + d("line_converter_loss")
            + d("line_inductive_stored") + d("line_converter_dc") + d("switch_arcs"))
-    assert out == pytest.approx(d("source"), rel=1e-9, abs=1e-6 * abs(d("line_converter_dc")))
+    assert out == pytest.approx(d("source"), rel=1e-9)
+
+
+def test_with_the_primary_open_two_converters_circulate_current_through_their_windings(
+) -> None:
+    """The windings share one core: with the feeder open (no magnetising branch) their
+    currents sum to zero but are not cut. Two converters at different voltages drive a
+    current round through their two windings, a series R-L circuit: i(t) = (dU / R)
+    (1 - exp(-t R / L)), R and L the two windings' (device drops set to zero; any circuit
+    text). The trapezoidal rule's error here is of order (h R / L)^2 (about 1e-5): the
+    bound is far above it."""
+    _, _, plant, _ = _run(open_feeder=True, stiff_links=True)
+    assert plant.read("line.feeder_closed") == 0.0
+    plant.lp[:, L.LP_V0] = 0.0
+    plant.lp[:, L.LP_RD] = 0.0
+    line = LineCommands.open(plant.n_line_converters, plant.n_links)
+    line.breaker = True
+    line.line_contactor[:2] = True  # windings 2 and 3 out of the circuit
+    plant.lp[2:, L.LP_LINE_DELAY] = 0.0
+    plant.ls2[2:, L.LS2_LINE_TIMER] = 0.0
+    line.gates_enabled[:2] = True
+    line.modulation[:2] = (0.10, 0.10)
+    commands = Commands(np.full((plant.n_inverters, 3), 0.5),
+                        np.zeros(plant.n_inverters, bool), line)
+    plant.advance(commands, H)  # windings 2 and 3 part; 0 and 1 at the same voltage
+    line.modulation[:2] = (0.30, 0.10)
+    i_start = plant.ls2[:2, L.LS2_I].copy()
+    assert np.abs(i_start).max() < 1e-9 and np.all(plant.ls2[2:, L.LS2_I] == 0.0)
+    d_u = (0.30 - 0.10) * 1800.0
+    r = plant.lp[0, L.LP_R] + plant.lp[1, L.LP_R]
+    ind = plant.lp[0, L.LP_L] + plant.lp[1, L.LP_L]
+    for step in range(1, 81):  # 10 ms
+        plant.advance(commands, H)
+        expected = -d_u / r * (1.0 - np.exp(-step * H * r / ind))  # converter 0 the higher
+        assert plant.ls2[0, L.LS2_I] == pytest.approx(expected, rel=1e-3)
+        assert plant.ls2[1, L.LS2_I] == pytest.approx(-plant.ls2[0, L.LS2_I], rel=1e-12)
+        assert plant.ss[L.SS_IP] == 0.0
 
 
 def test_the_feeding_breaker_recloses_onto_the_line_as_it_is() -> None:
@@ -163,22 +206,53 @@ def test_the_feeding_breaker_recloses_onto_the_line_as_it_is() -> None:
     assert plant.read("line.pantograph_voltage_v") == pytest.approx(expected, abs=1e-6)
 
 
-def test_a_short_at_the_feeding_point_trips_the_trains_breaker_not_the_feeder() -> None:
-    """A short at the feeding point is not an interruption: the EMF behind the source
-    impedance is 0 and the feeder stays closed, so the converters' voltage, set for the
-    healthy line, drives the current through the source impedance alone: it rises past the
-    main breaker's overcurrent release, which opens the train's breaker."""
+def test_a_line_dead_behind_a_closed_feeder_trips_the_trains_breaker() -> None:
+    """The EMF at 0 with the feeder closed (a dip to 0, a short behind the source
+    impedance) is not an interruption: the converters' voltage, set for the healthy line,
+    drives current through the source impedance alone; it rises past the main breaker's
+    overcurrent release, which opens the train's breaker."""
     plant = energised()
     line = PhasorLineConverters(plant, 600.0)
     while plant.time_s < 0.2037 - 1e-9:
         plant.advance(line.commands(1e-3), min(1e-3, 0.2037 - plant.time_s))
-    plant.set_supply(short=True)
+    healthy = plant.sp[L.SP_AMPLITUDE]
+    plant.set_supply(voltage_rms_v=0.0)
     ip = []
     for _ in range(round(0.03 / H)):
-        plant.advance(line.commands(H), H)
+        plant.sp[L.SP_AMPLITUDE] = healthy  # the converters' voltage as for the healthy line
+        commands = line.commands(H)
+        plant.sp[L.SP_AMPLITUDE] = 0.0
+        plant.advance(commands, H)
         ip.append(plant.ss[L.SS_IP])
     assert plant.read("line.emf_v") == 0.0
     assert plant.read("line.feeder_closed") == 1.0
     assert max(abs(i) for i in ip) > plant.sp[L.SP_I_LINE_TRIP]
     assert plant.read("line.overcurrent_trip") == 1.0
     assert plant.read("line.breaker_closed") == 0.0
+
+
+@pytest.mark.parametrize("t_close_s", [0.2450, 0.2500, 0.2525])  # peak, zero, between
+def test_a_reclose_onto_blocked_bridges_above_the_secondarys_peak_draws_nothing(t_close_s
+                                                                                ) -> None:
+    """The links at 1800 V stand above the secondaries' peak (25 kV sqrt 2 / n, about
+    1344 V), so the blocked bridges do not conduct when the feeder recloses. The diode
+    model takes the voltage that would stop the current from the secondary's voltage at
+    the step's start, a step behind the line at most: the line moves by at most
+    omega U h in a step, which drives at most that times h / L_k through a winding.
+    (Estimated from the dead section's 0 V pantograph, the bridges drew 104 A a
+    winding.)"""
+    _, _, plant, _ = _run(open_feeder=True, stiff_links=True)
+    line = LineCommands.open(plant.n_line_converters, plant.n_links)
+    line.breaker = True
+    line.line_contactor[:] = True
+    blocked = Commands(np.full((plant.n_inverters, 3), 0.5), np.zeros(plant.n_inverters, bool),
+                       line)
+    while plant.time_s < t_close_s - 1e-9:
+        plant.advance(blocked, H)
+    plant.set_supply(live=True)
+    u_secondary = 25e3 * np.sqrt(2) / plant.sp[L.SP_RATIO]
+    assert u_secondary < 1800.0
+    bound = 2 * np.pi * 50.0 * u_secondary * H * H / plant.lp[:, L.LP_L].min()
+    for _ in range(160):  # 20 ms
+        plant.advance(blocked, H)
+        assert np.abs(plant.ls2[:, L.LS2_I]).max() <= bound

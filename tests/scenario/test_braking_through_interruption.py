@@ -18,6 +18,7 @@ import asyncio
 import tempfile
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from emulator.profiles.reader import PROFILES_DIR, load_trainset
@@ -60,7 +61,7 @@ label = "return"
 name = "no protective trip"
 not_raised = "trip"
 
-[[check]]
+[[check]]  # (both trainsets returned 2.4 MW before: -1 MW tells returning from not)
 name = "power is returned to the line again within 1 s of the return"
 signal = "line.active_power_w"
 settles = [-1.0e8, -1.0e6]
@@ -86,6 +87,6 @@ def test_full_braking_rides_through_an_interruption(trainset: str) -> None:
     trip_v = min(link.overvoltage_v for link in params.dc_links)
     for k in range(len(params.dc_links)):
         assert rec.column(f"p.dc_link.voltage_v[{k}]")[dead].max() < trip_v
-    # and the braking went on: the drives' air-gap torque through the dead time
-    torque = sum(rec.column(f"p.motor.torque_nm[{i}]") for i in range(params.motor_count))
-    assert torque[dead].mean() < 0.0
+    # no current from or to the line while its section was isolated
+    # (from a half period of 16.7 Hz after the fault: the feeding breaker's arc has cleared)
+    assert np.all(rec.column("p.line.current_a")[(t > 5.03) & (t < 5.3)] == 0.0)

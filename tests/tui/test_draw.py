@@ -107,6 +107,6 @@ def test_the_train_panel_says_when_the_feeding_breaker_is_open() -> None:
 
     hello, snaps = load()
     snap = dict(snaps[-1])
-    assert "feeder OPEN" not in train_text(hello, snap, 120).plain  # (stored: no key)
+    assert "no feed" not in train_text(hello, snap, 120).plain  # (stored: no key)
     snap["line"] = dict(snap["line"], feeder_closed=False)
-    assert "feeder OPEN (line dead)" in train_text(hello, snap, 120).plain
+    assert "no feed (section dead)" in train_text(hello, snap, 120).plain
