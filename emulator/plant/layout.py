@@ -302,7 +302,9 @@ SS_LINE_TRIP = 19  # 1 the line overcurrent trip holds the breaker open until it
 # commanded open (acknowledged)
 SS_FEEDER = 20  # the feeding breaker connects the line (1), or its arc has cleared (0)
 SS_FEEDER_ARC = 21  # time the feeding breaker has been arcing, s (-1: not)
-SS_N = 22
+SS_U_SEC = 22  # the windings' common voltage over the last sub-step, V (the primary open:
+# what the converters still switching give it; closed: the pantograph's over n)
+SS_N = 23
 
 # --- four-quadrant line converters: parameters [n_lc, LP_N] -------------------------------
 LP_L = 0  # secondary leakage inductance referred to the secondary, H

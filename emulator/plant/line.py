@@ -29,14 +29,15 @@ arc has cleared the section is isolated and the pantograph reads 0. With the pri
 open (either breaker) the windings stay coupled through the core: with no magnetising
 branch their currents sum to zero, the same equations with L_c -> infinity (the
 EMF and the old sum drop out; the Sherman-Morrison correction becomes s_b / s_1), so a
-current can circulate between two converters but none returns to the line. A dead line
-with the feeder closed (the EMF at 0 behind the source impedance, a dip to 0) is a
-short the converters can drive current into.
+current can circulate between two converters but none returns to the line (windings.py).
+A dead line with the feeder closed (the EMF at 0 behind the source impedance, a dip to
+0) is a short the converters can drive current into.
 
 Left out: the transformer's magnetising branch (no inrush when the breaker closes, no
 saturation from a DC offset of the converters' currents, so a firmware's DC-offset
-control has nothing to act on; no islanding voltage at the roof while the feeder is
-open), and the converters' switching harmonics (average models: no carrier-frequency
+control has nothing to act on), the islanding voltage at the roof while the feeder is
+open (the pantograph reads 0; the windings' common voltage SS_U_SEC has it), and the
+converters' switching harmonics (average models: no carrier-frequency
 currents for an interference-current monitor).
 """
 
@@ -130,16 +131,11 @@ from .layout import (
     SS_PQ_UC,
     SS_PQ_US,
     SS_REVERSE_W,
+    SS_U_SEC,
     SS_UP,
 )
-from .switchgear import (
-    balance_windings,
-    cleared,
-    contactors,
-    feeding_breaker,
-    open_primary,
-    path_resistance,
-)
+from .switchgear import cleared, contactors, feeding_breaker, open_primary
+from .windings import at_rest, balance_windings, bridges_at_rest, path_resistance
 
 
 @compiled
@@ -187,7 +183,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n) if primary else 0.0
     e_sec = e / n if primary else 0.0
     if not primary:
-        u_sec_est = 0.0  # (a common voltage of the windings: it cancels)
+        u_sec_est = ss[SS_U_SEC]  # the windings' common voltage, the last step's
     sum_i = 0.0
     for k in range(n_lc):
         sum_i += ls2[k, LS2_I]
@@ -202,6 +198,8 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         if r < 0.0:
             ls2[k, LS2_U] = 0.0
             continue
+        if not primary and at_rest(lu, ls2, k):
+            continue  # its voltage follows the others' (windings.bridges_at_rest)
         v_f = 2.0 * lp[k, LP_V0]
         if lu[k, LU_ENABLE] > 0.5:
             sg = 1.0 if i > 0.0 else (-1.0 if i < 0.0 else 0.0)
@@ -218,10 +216,13 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         s_1 += 1.0 / a_k
     if primary:
         corr = lc_src * s_b / (1.0 + lc_src * s_1)
-    else:
-        corr = s_b / s_1 if s_1 > 0.0 else 0.0
+    else:  # sum_k i_k = 0: h times the common voltage is -corr
+        corr = bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst)
+        ss[SS_U_SEC] = -corr / h
     sum_new = 0.0
     sum_step = 0.0  # the windings' currents at the end of the step before any arc cleared
+    cut = False  # a bridge stopped or a contactor's arc cleared (the primary open: the
+    # others must be brought back to a zero sum)
     for k in range(n_lc):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
@@ -233,8 +234,12 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         a_k = lp[k, LP_L] + 0.5 * h * r
         b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e_sec - ls2[k, LS2_U])
         i_new = (b_k - corr) / a_k
+        if (not primary and at_rest(lu, ls2, k)
+                and abs(ls2[k, LS2_U]) < udc + 2.0 * lp[k, LP_V0]):
+            i_new = 0.0  # a bridge at rest within its rails stays at rest
         if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
             i_new = 0.0  # a diode bridge does not reverse its current within a step
+            cut = True
         if cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC], h):
             # the arc clears at the current's zero (or is cut): both contacts that are
             # commanded open are open; what the leakage still held goes into the arc
@@ -246,6 +251,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
                 ls2[k, LS2_PRE] = 0.0
             ls2[k, LS2_ARC] = -1.0
             new_i_after = 0.0
+            cut = True
         else:
             new_i_after = i_new
         ls2[k, LS2_I] = new_i_after
@@ -279,13 +285,13 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         ss[SS_E_ARC] += 0.5 * sp[SP_L] * (sum_step * sum_step - sum_new * sum_new) / (n * n)
         ip_new = sum_new / n
     else:
-        if sum_new != 0.0:
-            balance_windings(lp, ls2, ss)
+        if cut:
+            balance_windings(lp, lu, ls2, ss)
         ip_new = 0.0
     ss[SS_IP] = ip_new
     if (cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h)
             or cleared(ss[SS_FEEDER_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h)):
-        open_primary(sp, ss, lp, ls2)
+        open_primary(sp, ss, lp, lu, ls2)
     elif (sp[SP_HW_LINE_ON] > 0.5 and ss[SS_ARC] < 0.0
           and abs(ip_new) > sp[SP_I_LINE_TRIP]):
         # the breaker's overcurrent release: opens from the next step (while the breaker
@@ -294,6 +300,8 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     ip_avg = 0.5 * (ip_old + ip_new)
     di_dt = (ip_new - ip_old) / h
     up = e - sp[SP_R] * ip_avg - sp[SP_L] * di_dt  # mean over the step
+    if primary:
+        ss[SS_U_SEC] = up / n
     # the sample at the end instant: the EMF there, the current there
     e_end = supply_emf(sp, harmonics, ss, t + h)
     ss[SS_EMF] = e_end

@@ -11,11 +11,8 @@ from __future__ import annotations
 
 from .jit import compiled, compiled_inline
 from .layout import (
-    LP_L,
     LP_LINE_DELAY,
     LP_PRE_DELAY,
-    LP_R,
-    LP_R_PRE,
     LS2_ARC,
     LS2_I,
     LS2_LINE,
@@ -37,6 +34,7 @@ from .layout import (
     SS_IP,
     SS_LINE_TRIP,
 )
+from .windings import balance_windings
 
 
 @compiled
@@ -110,50 +108,17 @@ def cleared(arc, i_old, i_new, max_arc, h) -> bool:
 
 
 @compiled_inline
-def path_resistance(lp, ls2, k) -> float:
-    """Series resistance of winding k's path (winding plus precharge resistor while only the
-    precharge contactor is closed), or -1 when its contactors have it open."""
-    if ls2[k, LS2_LINE] < 0.5 and ls2[k, LS2_PRE] < 0.5:
-        return -1.0
-    return lp[k, LP_R] + (0.0 if ls2[k, LS2_LINE] > 0.5 else lp[k, LP_R_PRE])
-
-
-@compiled_inline
-def open_primary(sp, ss, lp, ls2):
+def open_primary(sp, ss, lp, lu, ls2):
     """An arc on the primary side clears, the train's main breaker's or the feeding
     breaker's (or both, burning at once): the primary stops carrying current and what the
     source inductance held goes into the arc (0 at a current zero). The windings stay
     coupled through the core, their currents now to sum to zero (balance_windings)."""
     ss[SS_E_ARC] += 0.5 * sp[SP_L] * ss[SS_IP] * ss[SS_IP]
     ss[SS_IP] = 0.0
-    balance_windings(lp, ls2, ss)
+    balance_windings(lp, lu, ls2, ss)
     if ss[SS_ARC] >= 0.0:
         ss[SS_BREAKER] = 0.0
         ss[SS_ARC] = -1.0
     if ss[SS_FEEDER_ARC] >= 0.0:
         ss[SS_FEEDER] = 0.0
         ss[SS_FEEDER_ARC] = -1.0
-
-
-@compiled_inline
-def balance_windings(lp, ls2, ss):
-    """With the primary open and no magnetising branch the windings' currents sum to zero.
-    Where a cut leaves them a sum S, they are brought to zero at the least stored energy,
-    i_k -= (S / sum_j 1/L_j) / L_k over the windings whose path is closed (a Lagrange
-    multiplier on sum_k L_k i_k^2 / 2); the energy given up, S^2 / (2 sum_j 1/L_j), goes
-    into the arc (0 where they already summed to zero, as at a current zero)."""
-    total = 0.0
-    weight = 0.0
-    for k in range(lp.shape[0]):
-        if path_resistance(lp, ls2, k) >= 0.0:
-            total += ls2[k, LS2_I]
-            weight += 1.0 / lp[k, LP_L]
-    if weight == 0.0:
-        return
-    lam = total / weight
-    for k in range(lp.shape[0]):
-        if path_resistance(lp, ls2, k) >= 0.0:
-            i_old = ls2[k, LS2_I]
-            i_new = i_old - lam / lp[k, LP_L]
-            ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * (i_old * i_old - i_new * i_new)
-            ls2[k, LS2_I] = i_new
