@@ -338,7 +338,8 @@ LS2_E_DC = 8  # energy delivered to the link, J
 LS2_E_LOSS = 9  # conduction + switching loss, J
 LS2_E_R = 10  # loss in the winding and precharge resistances, J
 LS2_ARC = 11  # time the opening contactor of winding k has been arcing, s (-1: not)
-LS2_N = 12
+LS2_STOPPED = 12  # 1: its blocked bridge stops within this sub-step (the primary open)
+LS2_N = 13
 
 # --- DC links: parameters [n_link, KP_N] ----------------------------------------------
 KP_C = 0  # link capacitance, F

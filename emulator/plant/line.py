@@ -83,6 +83,7 @@ from .layout import (
     LS2_LINE_TIMER,
     LS2_PRE,
     LS2_PRE_TIMER,
+    LS2_STOPPED,
     LS2_U,
     LS_E_CH,
     LS_E_DIS,
@@ -135,7 +136,13 @@ from .layout import (
     SS_UP,
 )
 from .switchgear import cleared, contactors, feeding_breaker, open_primary
-from .windings import at_rest, balance_windings, bridges_at_rest, path_resistance
+from .windings import (
+    at_rest,
+    balance_windings,
+    bridges_at_rest,
+    bridges_stopping,
+    path_resistance,
+)
 
 
 @compiled
@@ -218,11 +225,12 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         corr = lc_src * s_b / (1.0 + lc_src * s_1)
     else:  # sum_k i_k = 0: h times the common voltage is -corr
         corr = bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst)
+        corr = bridges_stopping(h, s_b, s_1, corr, lp, li, lu, ls2, lst)
         ss[SS_U_SEC] = -corr / h
     sum_new = 0.0
     sum_step = 0.0  # the windings' currents at the end of the step before any arc cleared
-    cut = False  # a bridge stopped or a contactor's arc cleared (the primary open: the
-    # others must be brought back to a zero sum)
+    cut = False  # a contactor's arc cleared (the primary open: the others must be
+    # brought back to a zero sum)
     for k in range(n_lc):
         link = li[k, LI_LINK]
         udc = lst[link, LS_UDC]
@@ -234,12 +242,12 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         a_k = lp[k, LP_L] + 0.5 * h * r
         b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e_sec - ls2[k, LS2_U])
         i_new = (b_k - corr) / a_k
-        if (not primary and at_rest(lu, ls2, k)
-                and abs(ls2[k, LS2_U]) < udc + 2.0 * lp[k, LP_V0]):
-            i_new = 0.0  # a bridge at rest within its rails stays at rest
+        if not primary and ((at_rest(lu, ls2, k) and abs(ls2[k, LS2_U]) < udc + 2.0
+                             * lp[k, LP_V0]) or ls2[k, LS2_STOPPED] > 0.5):
+            i_new = 0.0  # a bridge at rest within its rails stays at rest; one stops
         if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
             i_new = 0.0  # a diode bridge does not reverse its current within a step
-            cut = True
+            # (the others keep their step: the next one's solve brings the sum back)
         if cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC], h):
             # the arc clears at the current's zero (or is cut): both contacts that are
             # commanded open are open; what the leakage still held goes into the arc
@@ -306,8 +314,8 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     e_end = supply_emf(sp, harmonics, ss, t + h)
     ss[SS_EMF] = e_end
     ss[SS_UP] = e_end - sp[SP_R] * ip_new - sp[SP_L] * di_dt
-    if ss[SS_FEEDER] < 0.5:  # an isolated section: no magnetising branch, so no
-        up = 0.0  # voltage from the train's own converters (islanding) either
+    if ss[SS_FEEDER] < 0.5:  # an isolated section: the pantograph reads 0 (the roof's
+        up = 0.0  # voltage the windings' would give it, islanding, is not shown)
         ss[SS_UP] = 0.0
     ss[SS_E_SOURCE] += e * ip_avg * h
     ss[SS_E_SOURCE_R] += sp[SP_R] * ip_avg * ip_avg * h

@@ -285,12 +285,14 @@ def test_a_forced_cut_of_the_primary_leaves_the_windings_their_circulating_curre
     current after 0.5 ms: the primary's current is forced to zero, and the common node
     of the windings takes the voltage impulse that does it, which acts on each winding
     through its own inductance (an impulse across inductors in parallel, any circuit
-    text): each winding's current steps by -S / N (the Tern's four windings alike, S their
-    sum), not to zero, and what circulates between them runs on."""
+    text): winding k's current steps by -lam / L_k, lam = S / sum_j 1/L_j, S their sum
+    (windings 2 and 3 given twice the leakage inductance here), not to zero, and what
+    circulates between them runs on."""
     phases = (0.0, 0.0, np.pi / 3, np.pi / 3)
 
     def run(cut: bool):
         plant = energised()
+        plant.lp[2:, L.LP_L] *= 2.0
         plant.kp[:, L.KP_IDEAL] = 1.0
         plant.kp[:, L.KP_U_IDEAL] = 1800.0
         plant.sp[L.SP_MAX_ARC] = 0.5e-3
@@ -309,7 +311,10 @@ def test_a_forced_cut_of_the_primary_leaves_the_windings_their_circulating_curre
     after, plant = run(cut=True)
     assert plant.read("line.feeder_closed") == 0.0
     assert abs(before.sum()) > 100.0  # A: cut under current
-    assert after == pytest.approx(before - before.sum() / 4, rel=1e-9, abs=1e-9)
+    inductance = plant.lp[:, L.LP_L]
+    lam = before.sum() / (1.0 / inductance).sum()
+    assert after == pytest.approx(before - lam / inductance, rel=1e-9, abs=1e-9)
+    assert not np.allclose(after, before - before.sum() / 4)  # (not shared out alike)
     assert after.sum() == pytest.approx(0.0, abs=1e-9)
     assert abs(after[0]) > 100.0  # circulating, not cut
 
@@ -329,3 +334,48 @@ def test_blocked_bridges_stay_at_rest_while_the_others_keep_switching_islanded()
         assert np.all(plant.ls2[2:, L.LS2_I] == 0.0)
         assert np.abs(plant.ls2[:2, L.LS2_I]).max() < 1e-9  # A: round-off (none to return)
         assert plant.ss[L.SS_U_SEC] != 0.0  # (the running converters set a voltage)
+
+
+
+def test_islanded_blocked_bridges_conduct_only_past_their_links_voltage() -> None:
+    """The feeder open, converters 0 and 1 on link DC-A (1800 V) still making the line's
+    voltage (peak about 1344 V at the windings), bridges 2 and 3 blocked on link DC-B
+    held at 1000 V: a diode bridge conducts only while the voltage across it would pass
+    its DC voltage plus two diode drops, and then charges its link. So they stand at rest
+    while the windings' common voltage is within +-(1000 V + 2 V_F), never hold more than
+    that, take current from the other windings near the peaks (the sum staying zero) and
+    put energy into their link."""
+    _, _, plant, _ = _run(open_feeder=True, stiff_links=True)
+    assert list(plant.li[:, L.LI_LINK]) == [0, 0, 1, 1]
+    plant.kp[1, L.KP_U_IDEAL] = 1000.0
+    plant.lst[1, L.LS_UDC] = 1000.0
+    source = PhasorLineConverters(plant, 0.0)
+    rail = 1000.0 + 2 * plant.lp[2:, L.LP_V0]
+    e_dc = plant.ls2[2:, L.LS2_E_DC].copy()
+    e0 = plant.energy()
+    conducted = stopped = 0
+    for _ in range(320):  # 40 ms
+        commands = source.commands(H)
+        commands.line.gates_enabled[2:] = False
+        i_before = plant.ls2[2:, L.LS2_I].copy()
+        plant.advance(commands, H)
+        v = plant.ss[L.SS_U_SEC]
+        assert np.all(np.abs(plant.ls2[2:, L.LS2_U]) <= rail)
+        assert abs(plant.ls2[:, L.LS2_I].sum()) < 1e-9 * np.abs(plant.ls2[:, L.LS2_I]).max() + 1e-9
+        if np.all(i_before == 0.0) and np.all(np.abs(v) < rail):
+            assert np.all(plant.ls2[2:, L.LS2_I] == 0.0)  # at rest within the rails
+        conducted += bool(np.any(plant.ls2[2:, L.LS2_I] != 0.0))
+        stopped += bool(np.any((i_before != 0.0) & (plant.ls2[2:, L.LS2_I] == 0.0)))
+    assert conducted > 0 and stopped > 0  # near the peaks, and stopping again
+    assert np.all(plant.ls2[2:, L.LS2_E_DC] - e_dc > 0.0)  # into link DC-B
+    e1 = plant.energy()
+
+    def d(name: str) -> float:
+        return getattr(e1, name) - getattr(e0, name)
+
+    # no source now: what the switching converters put in is what the others took,
+    # to round-off, through the bridges' stops as well (no arc: no switch opened)
+    assert d("switch_arcs") == 0.0
+    through = (d("winding_resistance") + d("line_converter_loss") + d("line_inductive_stored")
+               + d("line_converter_dc"))
+    assert abs(through) < 1e-9 * sum(abs(x) for x in plant.ls2[:, L.LS2_E_DC]) + 1e-6
