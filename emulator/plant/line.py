@@ -225,7 +225,7 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         corr = lc_src * s_b / (1.0 + lc_src * s_1)
     else:  # sum_k i_k = 0: h times the common voltage is -corr
         corr = bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst)
-        corr = bridges_stopping(h, s_b, s_1, corr, lp, li, lu, ls2, lst)
+        corr = bridges_stopping(h, corr, lp, li, lu, ls2, lst)
         ss[SS_U_SEC] = -corr / h
     sum_new = 0.0
     sum_step = 0.0  # the windings' currents at the end of the step before any arc cleared

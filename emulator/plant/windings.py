@@ -124,13 +124,15 @@ def balance_windings(lp, lu, ls2, ss):
 
 
 @compiled_inline
-def bridges_stopping(h, s_b, s_1, corr, lp, li, lu, ls2, lst) -> float:
+def bridges_stopping(h, corr, lp, li, lu, ls2, lst) -> float:
     """The correction once the blocked bridges whose current this step would reverse
     have stopped: a diode bridge's current falls to zero and stays there, so such a
-    bridge leaves the solve (LS2_STOPPED) and the others are solved again without it,
-    until none is left to stop. A stopped bridge's voltage is then the one that brings
-    its own current to zero at the step's end against the windings' common voltage, so
-    its winding's books close with the others'."""
+    bridge leaves the solve (LS2_STOPPED) and the others are solved again without it
+    (their sums built afresh), until none is left to stop. A stopped bridge's voltage is
+    then the one that brings its own current to zero at the step's end against the
+    windings' common voltage, so its winding's books close with the others'. (Driven
+    past its opposite rail, a bridge would conduct the other way within the step; here
+    it waits for the next.)"""
     for k in range(lp.shape[0]):
         ls2[k, LS2_STOPPED] = 0.0
     for _ in range(lp.shape[0]):
@@ -144,11 +146,26 @@ def bridges_stopping(h, s_b, s_1, corr, lp, li, lu, ls2, lst) -> float:
             b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old - h * ls2[k, LS2_U]
             if (b_k - corr) / a_k * i_old < 0.0:
                 ls2[k, LS2_STOPPED] = 1.0
-                s_b -= b_k / a_k
-                s_1 -= 1.0 / a_k
                 again = True
         if not again:
             break
+        s_b = 0.0
+        s_1 = 0.0
+        left = 0
+        last = -1
+        for k in range(lp.shape[0]):  # the windings still in the solve
+            r = path_resistance(lp, ls2, k)
+            if r < 0.0 or at_rest(lu, ls2, k) or ls2[k, LS2_STOPPED] > 0.5:
+                continue
+            a_k = lp[k, LP_L] + 0.5 * h * r
+            s_b += ((lp[k, LP_L] - 0.5 * h * r) * ls2[k, LS2_I] - h * ls2[k, LS2_U]) / a_k
+            s_1 += 1.0 / a_k
+            left += 1
+            last = k
+        if left == 1 and lu[last, LU_ENABLE] < 0.5:  # a bridge left alone: its current
+            ls2[last, LS2_STOPPED] = 1.0  # has nowhere to go, so it stops with the others
+            s_b = 0.0
+            s_1 = 0.0
         corr = bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst)
     for k in range(lp.shape[0]):
         if ls2[k, LS2_STOPPED] > 0.5:
