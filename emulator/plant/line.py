@@ -47,7 +47,7 @@ import math
 
 import numpy as np
 
-from .jit import compiled
+from .jit import compiled, compiled_inline
 from .layout import (
     KP_C,
     KP_CF,
@@ -65,25 +65,9 @@ from .layout import (
     KP_U_OVP,
     KU_CHOPPER,
     LI_LINK,
-    LP_ESW,
-    LP_ESW_IREF,
-    LP_ESW_VREF,
-    LP_FSW,
     LP_L,
-    LP_RD,
-    LP_V0,
-    LS2_ARC,
-    LS2_E_AC,
-    LS2_E_DC,
-    LS2_E_LOSS,
-    LS2_E_R,
     LS2_I,
     LS2_IDC,
-    LS2_LINE,
-    LS2_LINE_TIMER,
-    LS2_PRE,
-    LS2_PRE_TIMER,
-    LS2_STOPPED,
     LS2_U,
     LS_E_CH,
     LS_E_DIS,
@@ -98,9 +82,6 @@ from .layout import (
     LS_UCF,
     LS_UDC,
     LU_ENABLE,
-    LU_LINE_CMD,
-    LU_MOD,
-    LU_PRE_CMD,
     SP_ACTIVE,
     SP_AMPLITUDE,
     SP_DROOP,
@@ -135,12 +116,12 @@ from .layout import (
     SS_U_SEC,
     SS_UP,
 )
-from .switchgear import cleared, contactors, feeding_breaker, open_primary
+from .switchgear import clear_contactor_arc, cleared, contactors, feeding_breaker
 from .windings import (
-    at_rest,
-    balance_windings,
-    bridges_at_rest,
-    bridges_stopping,
+    book_winding,
+    converter_voltage,
+    islanded_substep,
+    open_primary,
     path_resistance,
 )
 
@@ -184,13 +165,15 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     e = supply_emf(sp, harmonics, ss, t + 0.5 * h)  # held over the step: its mean
     fed = ss[SS_FEEDER] > 0.5
     # the primary closed to the source; open, the windings stay coupled through the core
-    # alone: with no magnetising branch their currents sum to zero (L_source -> inf)
+    # alone (windings.islanded_substep)
     primary = fed and ss[SS_BREAKER] > 0.5
+    if not primary:  # open: the windings' currents sum to zero (windings.py)
+        islanded_substep(h, sp, ss, lp, li, lu, ls2, lst, i_link)
+        _primary_side(t, h, sp, harmonics, ss, lp, lu, ls2, kp, ku, lst, i_link, e, 0.0,
+                      0.0, False)
+        return
     lc_src = (sp[SP_L] + 0.5 * h * sp[SP_R]) / (n * n)  # c of Sherman-Morrison
-    lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n) if primary else 0.0
-    e_sec = e / n if primary else 0.0
-    if not primary:
-        u_sec_est = ss[SS_U_SEC]  # the windings' common voltage, the last step's
+    lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n)
     sum_i = 0.0
     for k in range(n_lc):
         sum_i += ls2[k, LS2_I]
@@ -198,94 +181,49 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
     s_b = 0.0
     s_1 = 0.0
     for k in range(n_lc):
-        link = li[k, LI_LINK]
-        udc = lst[link, LS_UDC]
-        i = ls2[k, LS2_I]
         r = path_resistance(lp, ls2, k)
         if r < 0.0:
             ls2[k, LS2_U] = 0.0
             continue
-        if not primary and at_rest(lu, ls2, k):
-            continue  # its voltage follows the others' (windings.bridges_at_rest)
-        v_f = 2.0 * lp[k, LP_V0]
-        if lu[k, LU_ENABLE] > 0.5:
-            sg = 1.0 if i > 0.0 else (-1.0 if i < 0.0 else 0.0)
-            u = lu[k, LU_MOD] * udc + sg * (v_f + 2.0 * lp[k, LP_RD] * abs(i))
-        else:
-            # diode bridge: the voltage that would stop the current, clipped to the rails
-            u = u_sec_est + (lp[k, LP_L] - 0.5 * h * r) * i / h
-            rail = udc + v_f
-            u = min(max(u, -rail), rail)
+        i = ls2[k, LS2_I]
+        u = converter_voltage(h, k, i, lst[li[k, LI_LINK], LS_UDC], u_sec_est, r, lp, lu)
         ls2[k, LS2_U] = u
         a_k = lp[k, LP_L] + 0.5 * h * r
-        b_k = (lp[k, LP_L] - 0.5 * h * r) * i + lc_old * sum_i + h * (e_sec - u)
+        b_k = (lp[k, LP_L] - 0.5 * h * r) * i + lc_old * sum_i + h * (e / n - u)
         s_b += b_k / a_k
         s_1 += 1.0 / a_k
-    if primary:
-        corr = lc_src * s_b / (1.0 + lc_src * s_1)
-    else:  # sum_k i_k = 0: h times the common voltage is -corr
-        corr = bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst)
-        corr = bridges_stopping(h, corr, lp, li, lu, ls2, lst)
-        ss[SS_U_SEC] = -corr / h
+    corr = lc_src * s_b / (1.0 + lc_src * s_1)
     sum_new = 0.0
     sum_step = 0.0  # the windings' currents at the end of the step before any arc cleared
-    cut = False  # a contactor's arc cleared (the primary open: the others must be
-    # brought back to a zero sum)
     for k in range(n_lc):
-        link = li[k, LI_LINK]
-        udc = lst[link, LS_UDC]
         i_old = ls2[k, LS2_I]
         r = path_resistance(lp, ls2, k)
         if r < 0.0:
             ls2[k, LS2_I] = 0.0
             continue
         a_k = lp[k, LP_L] + 0.5 * h * r
-        b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e_sec - ls2[k, LS2_U])
+        b_k = (lp[k, LP_L] - 0.5 * h * r) * i_old + lc_old * sum_i + h * (e / n - ls2[k, LS2_U])
         i_new = (b_k - corr) / a_k
-        if not primary and ((at_rest(lu, ls2, k) and abs(ls2[k, LS2_U]) < udc + 2.0
-                             * lp[k, LP_V0]) or ls2[k, LS2_STOPPED] > 0.5):
-            i_new = 0.0  # a bridge at rest within its rails stays at rest; one stops
         if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
             i_new = 0.0  # a diode bridge does not reverse its current within a step
-            # (the others keep their step: the next one's solve brings the sum back)
-        if cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC], h):
-            # the arc clears at the current's zero (or is cut): both contacts that are
-            # commanded open are open; what the leakage still held goes into the arc
-            ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * i_new * i_new
-            # (a contact whose own delay has not run out yet stays as it is)
-            if lu[k, LU_LINE_CMD] < 0.5 and ls2[k, LS2_LINE_TIMER] <= 0.0:
-                ls2[k, LS2_LINE] = 0.0
-            if lu[k, LU_PRE_CMD] < 0.5 and ls2[k, LS2_PRE_TIMER] <= 0.0:
-                ls2[k, LS2_PRE] = 0.0
-            ls2[k, LS2_ARC] = -1.0
+        if clear_contactor_arc(h, k, i_old, i_new, sp, ss, lp, lu, ls2):
             new_i_after = 0.0
-            cut = True
         else:
             new_i_after = i_new
         ls2[k, LS2_I] = new_i_after
         sum_new += new_i_after
         sum_step += i_new
-        i_avg = 0.5 * (i_old + i_new)
-        u = ls2[k, LS2_U]
-        # DC side: the share of the converter voltage that comes from the link
-        if lu[k, LU_ENABLE] > 0.5:
-            s = lu[k, LU_MOD]
-        elif udc > 0.0 and abs(u) < udc:
-            s = u / udc
-        else:
-            s = 1.0 if u > 0.0 else (-1.0 if u < 0.0 else 0.0)
-        p_sw = 0.0
-        if lu[k, LU_ENABLE] > 0.5:
-            p_sw = (2.0 * lp[k, LP_FSW] * lp[k, LP_ESW] * (udc / lp[k, LP_ESW_VREF])
-                    * (abs(i_avg) / lp[k, LP_ESW_IREF]))
-        i_dc = s * i_avg - (p_sw / udc if udc > 0.0 else 0.0)
-        ls2[k, LS2_IDC] += i_dc * h
-        lst[link, LS_I4Q] += i_dc * h
-        i_link[link, 1] += i_dc
-        ls2[k, LS2_E_AC] += u * i_avg * h
-        ls2[k, LS2_E_DC] += udc * i_dc * h
-        ls2[k, LS2_E_LOSS] += (u - s * udc) * i_avg * h + p_sw * h
-        ls2[k, LS2_E_R] += r * i_avg * i_avg * h  # consistent with the trapezoidal step
+        book_winding(h, k, i_old, i_new, r, lp, li, lu, ls2, lst, i_link)
+    _primary_side(t, h, sp, harmonics, ss, lp, lu, ls2, kp, ku, lst, i_link, e, sum_new,
+                  sum_step, True)
+
+
+@compiled_inline
+def _primary_side(t, h, sp, harmonics, ss, lp, lu, ls2, kp, ku, lst, i_link, e, sum_new,
+                  sum_step, primary):
+    """The primary's current, the switches on it, the pantograph, the books and the power
+    quality's integrals, then the DC links."""
+    n = sp[SP_RATIO]
     # primary side; a contactor's arc that cleared took the source inductance's share,
     # or with the primary open, what bringing the others back to a zero sum gave up
     ip_old = ss[SS_IP]
@@ -293,8 +231,6 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         ss[SS_E_ARC] += 0.5 * sp[SP_L] * (sum_step * sum_step - sum_new * sum_new) / (n * n)
         ip_new = sum_new / n
     else:
-        if cut:
-            balance_windings(lp, lu, ls2, ss)
         ip_new = 0.0
     ss[SS_IP] = ip_new
     if (cleared(ss[SS_ARC], ip_old, ip_new, sp[SP_MAX_ARC], h)

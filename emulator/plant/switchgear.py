@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from .jit import compiled, compiled_inline
 from .layout import (
+    LP_L,
     LP_LINE_DELAY,
     LP_PRE_DELAY,
     LS2_ARC,
@@ -22,8 +23,8 @@ from .layout import (
     LU_LINE_CMD,
     LU_PRE_CMD,
     SP_BREAKER_DELAY,
-    SP_L,
     SP_LIVE,
+    SP_MAX_ARC,
     SS_ARC,
     SS_BREAKER,
     SS_BREAKER_CMD,
@@ -31,10 +32,8 @@ from .layout import (
     SS_E_ARC,
     SS_FEEDER,
     SS_FEEDER_ARC,
-    SS_IP,
     SS_LINE_TRIP,
 )
-from .windings import balance_windings
 
 
 @compiled
@@ -99,26 +98,25 @@ def feeding_breaker(sp, ss, h):
 
 
 @compiled_inline
+def clear_contactor_arc(h, k, i_old, i_new, sp, ss, lp, lu, ls2) -> bool:
+    """Whether winding k's contactor arc clears at the end of this step (its current's
+    zero, or cut): then both contacts commanded open are open (a contact whose own delay
+    has not run out stays as it is), and what its leakage still held goes into the arc."""
+    if not cleared(ls2[k, LS2_ARC], i_old, i_new, sp[SP_MAX_ARC], h):
+        return False
+    ss[SS_E_ARC] += 0.5 * lp[k, LP_L] * i_new * i_new
+    if lu[k, LU_LINE_CMD] < 0.5 and ls2[k, LS2_LINE_TIMER] <= 0.0:
+        ls2[k, LS2_LINE] = 0.0
+    if lu[k, LU_PRE_CMD] < 0.5 and ls2[k, LS2_PRE_TIMER] <= 0.0:
+        ls2[k, LS2_PRE] = 0.0
+    ls2[k, LS2_ARC] = -1.0
+    return True
+
+
+@compiled_inline
 def cleared(arc, i_old, i_new, max_arc, h) -> bool:
     """Whether an arc clears at the end of this step: its current has reached zero
     (changed sign or stopped), or by the step's end it will have burned (arc, the time
     before this step, plus h) as long as the switch allows. A maximum that is not a whole
     number of sub-steps is cut at the last step end within it (never beyond)."""
     return arc >= 0.0 and (i_old * i_new <= 0.0 or arc + 2.0 * h > max_arc + 1e-12)
-
-
-@compiled_inline
-def open_primary(sp, ss, lp, lu, ls2):
-    """An arc on the primary side clears, the train's main breaker's or the feeding
-    breaker's (or both, burning at once): the primary stops carrying current and what the
-    source inductance held goes into the arc (0 at a current zero). The windings stay
-    coupled through the core, their currents now to sum to zero (balance_windings)."""
-    ss[SS_E_ARC] += 0.5 * sp[SP_L] * ss[SS_IP] * ss[SS_IP]
-    ss[SS_IP] = 0.0
-    balance_windings(lp, lu, ls2, ss)
-    if ss[SS_ARC] >= 0.0:
-        ss[SS_BREAKER] = 0.0
-        ss[SS_ARC] = -1.0
-    if ss[SS_FEEDER_ARC] >= 0.0:
-        ss[SS_FEEDER] = 0.0
-        ss[SS_FEEDER_ARC] = -1.0

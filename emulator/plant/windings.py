@@ -6,22 +6,42 @@ currents sum to zero, so the line-side solve takes the source inductance to infi
 
 from __future__ import annotations
 
-from .jit import compiled_inline
+from .jit import compiled, compiled_inline
 from .layout import (
     LI_LINK,
+    LP_ESW,
+    LP_ESW_IREF,
+    LP_ESW_VREF,
+    LP_FSW,
     LP_L,
     LP_R,
     LP_R_PRE,
+    LP_RD,
     LP_V0,
+    LS2_E_AC,
+    LS2_E_DC,
+    LS2_E_LOSS,
+    LS2_E_R,
     LS2_I,
+    LS2_IDC,
     LS2_LINE,
     LS2_PRE,
     LS2_STOPPED,
     LS2_U,
+    LS_I4Q,
     LS_UDC,
     LU_ENABLE,
+    LU_MOD,
+    SP_L,
+    SS_ARC,
+    SS_BREAKER,
     SS_E_ARC,
+    SS_FEEDER,
+    SS_FEEDER_ARC,
+    SS_IP,
+    SS_U_SEC,
 )
+from .switchgear import clear_contactor_arc
 
 
 @compiled_inline
@@ -46,7 +66,7 @@ def _past_rail(v, rail) -> float:
     return rail if v > rail else (-rail if v < -rail else 0.0)
 
 
-@compiled_inline
+@compiled
 def bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst) -> float:
     """The Sherman-Morrison correction with the primary open once the bridges at rest
     (left out of s_b and s_1) have joined. A blocked bridge that carries no current takes
@@ -97,7 +117,7 @@ def _conducting(lp, lu, ls2, k) -> bool:
                                                    or ls2[k, LS2_I] != 0.0)
 
 
-@compiled_inline
+@compiled
 def balance_windings(lp, lu, ls2, ss):
     """With the primary open and no magnetising branch the windings' currents sum to zero.
     Where a cut leaves them a sum S (the primary's current cut, a contactor's arc
@@ -123,7 +143,7 @@ def balance_windings(lp, lu, ls2, ss):
             ls2[k, LS2_I] = i_new
 
 
-@compiled_inline
+@compiled
 def bridges_stopping(h, corr, lp, li, lu, ls2, lst) -> float:
     """The correction once the blocked bridges whose current this step would reverse
     have stopped: a diode bridge's current falls to zero and stays there, so such a
@@ -172,3 +192,115 @@ def bridges_stopping(h, corr, lp, li, lu, ls2, lst) -> float:
             r = path_resistance(lp, ls2, k)
             ls2[k, LS2_U] = ((lp[k, LP_L] - 0.5 * h * r) * ls2[k, LS2_I] - corr) / h
     return corr
+
+
+@compiled_inline
+def converter_voltage(h, k, i, udc, u_sec_est, r, lp, lu) -> float:
+    """Converter k's AC voltage held over the step: switching, m U_dc plus its devices'
+    drops in the current's direction; blocked, a diode bridge: the voltage that would stop
+    its current (from the secondary's voltage u_sec_est at the step's start), clipped to
+    the rails +-(U_dc + 2 V_F)."""
+    v_f = 2.0 * lp[k, LP_V0]
+    if lu[k, LU_ENABLE] > 0.5:
+        sg = 1.0 if i > 0.0 else (-1.0 if i < 0.0 else 0.0)
+        return lu[k, LU_MOD] * udc + sg * (v_f + 2.0 * lp[k, LP_RD] * abs(i))
+    u = u_sec_est + (lp[k, LP_L] - 0.5 * h * r) * i / h
+    rail = udc + v_f
+    return min(max(u, -rail), rail)
+
+
+@compiled_inline
+def book_winding(h, k, i_old, i_new, r, lp, li, lu, ls2, lst, i_link):
+    """Winding k's converter over the step: its DC current into the link (the share of
+    its voltage that comes from the link, and its switching loss) and the energy books."""
+    link = li[k, LI_LINK]
+    udc = lst[link, LS_UDC]
+    i_avg = 0.5 * (i_old + i_new)
+    u = ls2[k, LS2_U]
+    if lu[k, LU_ENABLE] > 0.5:
+        s = lu[k, LU_MOD]
+    elif udc > 0.0 and abs(u) < udc:
+        s = u / udc
+    else:
+        s = 1.0 if u > 0.0 else (-1.0 if u < 0.0 else 0.0)
+    p_sw = 0.0
+    if lu[k, LU_ENABLE] > 0.5:
+        p_sw = (2.0 * lp[k, LP_FSW] * lp[k, LP_ESW] * (udc / lp[k, LP_ESW_VREF])
+                * (abs(i_avg) / lp[k, LP_ESW_IREF]))
+    i_dc = s * i_avg - (p_sw / udc if udc > 0.0 else 0.0)
+    ls2[k, LS2_IDC] += i_dc * h
+    lst[link, LS_I4Q] += i_dc * h
+    i_link[link, 1] += i_dc
+    ls2[k, LS2_E_AC] += u * i_avg * h
+    ls2[k, LS2_E_DC] += udc * i_dc * h
+    ls2[k, LS2_E_LOSS] += (u - s * udc) * i_avg * h + p_sw * h
+    ls2[k, LS2_E_R] += r * i_avg * i_avg * h  # consistent with the trapezoidal step
+
+
+@compiled
+def islanded_substep(h, sp, ss, lp, li, lu, ls2, lst, i_link):
+    """The windings over one sub-step with the primary open: the same trapezoidal step
+    as line.line_substep's with the source inductance taken to infinity (the EMF and the
+    old sum drop out, the correction becomes s_b / s_1 and their currents sum to zero);
+    bridges at rest and stopping as above; a contactor's arc that clears leaves the
+    others a sum that balance_windings takes out. SS_U_SEC gets the common voltage."""
+    n_lc = lp.shape[0]
+    u_sec_est = ss[SS_U_SEC]  # the windings' common voltage, the last step's
+    s_b = 0.0
+    s_1 = 0.0
+    for k in range(n_lc):
+        r = path_resistance(lp, ls2, k)
+        if r < 0.0:
+            ls2[k, LS2_U] = 0.0
+            continue
+        if at_rest(lu, ls2, k):
+            continue  # its voltage follows the others' (bridges_at_rest)
+        i = ls2[k, LS2_I]
+        u = converter_voltage(h, k, i, lst[li[k, LI_LINK], LS_UDC], u_sec_est, r, lp, lu)
+        ls2[k, LS2_U] = u
+        a_k = lp[k, LP_L] + 0.5 * h * r
+        s_b += ((lp[k, LP_L] - 0.5 * h * r) * i - h * u) / a_k
+        s_1 += 1.0 / a_k
+    corr = bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst)
+    corr = bridges_stopping(h, corr, lp, li, lu, ls2, lst)
+    ss[SS_U_SEC] = -corr / h
+    cut = False
+    for k in range(n_lc):
+        i_old = ls2[k, LS2_I]
+        r = path_resistance(lp, ls2, k)
+        if r < 0.0:
+            ls2[k, LS2_I] = 0.0
+            continue
+        a_k = lp[k, LP_L] + 0.5 * h * r
+        i_new = ((lp[k, LP_L] - 0.5 * h * r) * i_old - h * ls2[k, LS2_U] - corr) / a_k
+        udc = lst[li[k, LI_LINK], LS_UDC]
+        if ((at_rest(lu, ls2, k) and abs(ls2[k, LS2_U]) < udc + 2.0 * lp[k, LP_V0])
+                or ls2[k, LS2_STOPPED] > 0.5):
+            i_new = 0.0  # a bridge at rest within its rails stays at rest; one stops
+        if lu[k, LU_ENABLE] < 0.5 and i_new * i_old < 0.0:
+            i_new = 0.0  # (a stop bridges_stopping did not see, at the rounding's level)
+        if clear_contactor_arc(h, k, i_old, i_new, sp, ss, lp, lu, ls2):
+            ls2[k, LS2_I] = 0.0
+            cut = True
+        else:
+            ls2[k, LS2_I] = i_new
+        book_winding(h, k, i_old, i_new, r, lp, li, lu, ls2, lst, i_link)
+    if cut:
+        balance_windings(lp, lu, ls2, ss)
+
+
+@compiled
+def open_primary(sp, ss, lp, lu, ls2):
+    """An arc on the primary side clears, the train's main breaker's or the feeding
+    breaker's (or both, burning at once): the primary stops carrying current and what the
+    source inductance held goes into the arc (0 at a current zero). The windings stay
+    coupled through the core, their currents now to sum to zero (balance_windings)."""
+    ss[SS_E_ARC] += 0.5 * sp[SP_L] * ss[SS_IP] * ss[SS_IP]
+    ss[SS_IP] = 0.0
+    balance_windings(lp, lu, ls2, ss)
+    if ss[SS_ARC] >= 0.0:
+        ss[SS_BREAKER] = 0.0
+        ss[SS_ARC] = -1.0
+    if ss[SS_FEEDER_ARC] >= 0.0:
+        ss[SS_FEEDER] = 0.0
+        ss[SS_FEEDER_ARC] = -1.0
