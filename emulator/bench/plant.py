@@ -87,7 +87,10 @@ def _frame_times_us(params: TrainsetParams, frames: int) -> np.ndarray:
 
 def replicated(params: TrainsetParams, n_motors: int) -> TrainsetParams:
     """The trainset repeated, whole motor cars at a time (links with their line converters
-    and inverters), until it has at least n_motors motors."""
+    and inverters), until it has at least n_motors motors. The one transformer feeds them
+    all, so its breaker's overcurrent release and the catenary's stiffness grow with the
+    copies (the source's impedance shared out): else a long train's current trips the
+    breaker and the frame is timed with its line side dead."""
     per_copy = params.motor_count
     copies = max(1, -(-n_motors // per_copy))
     n_links = len(params.dc_links)
@@ -98,8 +101,16 @@ def replicated(params: TrainsetParams, n_motors: int) -> TrainsetParams:
                  for c in params.converters]
         units += [dataclasses.replace(u, name=f"{u.name}#{r}", dc_link=u.dc_link + r * n_links)
                   for u in params.line_converters]
+    extra = {}
+    if params.transformer is not None:
+        extra["transformer"] = dataclasses.replace(
+            params.transformer,
+            hardware_line_trip_a=params.transformer.hardware_line_trip_a * copies)
+        extra["supply"] = dataclasses.replace(
+            params.supply, source_resistance_ohm=params.supply.source_resistance_ohm / copies,
+            source_inductance_h=params.supply.source_inductance_h / copies)
     return dataclasses.replace(params, dc_links=tuple(links), converters=tuple(conv),
-                               line_converters=tuple(units))
+                               line_converters=tuple(units), **extra)
 
 
 class _Machines:

@@ -281,3 +281,12 @@ def test_a_probe_outside_the_state_arrays_is_refused_at_the_next_frame() -> None
     plant.probes.set([SRC_MOTOR, SRC_SUPPLY], [motors - 1, 0], [columns - 1, len(plant.ss) - 1])
     plant.advance(None)  # the last places of both shapes: read
     assert plant.frames == state[0] + 1
+
+
+def test_the_benchs_long_trains_are_timed_with_their_line_side_live() -> None:
+    """The plant bench's repeated trainsets load up with the breaker closed: a 128-motor
+    train on the one transformer once tripped it on overcurrent and was timed dead."""
+    for motors in (32, 128):
+        plant, _ = _loaded_plant(replicated(load_trainset(TRAINSET), motors))
+        assert plant.read("line.breaker_closed") == 1.0
+        assert plant.read("line.overcurrent_trip") == 0.0
