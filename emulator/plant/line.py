@@ -64,7 +64,6 @@ from .layout import (
     KP_U_IDEAL,
     KP_U_OVP,
     KU_CHOPPER,
-    LI_LINK,
     LP_L,
     LS2_I,
     LS2_IDC,
@@ -119,10 +118,10 @@ from .layout import (
 from .switchgear import clear_contactor_arc, cleared, contactors, feeding_breaker
 from .windings import (
     book_winding,
-    converter_voltage,
     islanded_substep,
     open_primary,
     path_resistance,
+    winding_sums,
 )
 
 
@@ -158,40 +157,27 @@ def line_substep(t, h, sp, harmonics, ss, lp, li, lu, ls2, kp, ku, lst, i_link):
         return
     contactors(lp, lu, ls2, sp, ss, h)
     n = sp[SP_RATIO]
-    # the secondary's voltage at the start of the step: the pantograph's, or the line's
-    # own after the section was dead (its pantograph read 0)
-    u_sec_est = (ss[SS_UP] if ss[SS_FEEDER] > 0.5 else supply_emf(sp, harmonics, ss, t)) / n
+    was_fed = ss[SS_FEEDER] > 0.5
     feeding_breaker(sp, ss, h)
     e = supply_emf(sp, harmonics, ss, t + 0.5 * h)  # held over the step: its mean
-    fed = ss[SS_FEEDER] > 0.5
     # the primary closed to the source; open, the windings stay coupled through the core
-    # alone (windings.islanded_substep)
-    primary = fed and ss[SS_BREAKER] > 0.5
-    if not primary:  # open: the windings' currents sum to zero (windings.py)
+    # alone: their currents sum to zero (windings.islanded_substep)
+    primary = ss[SS_FEEDER] > 0.5 and ss[SS_BREAKER] > 0.5
+    if not primary:
         islanded_substep(h, sp, ss, lp, li, lu, ls2, lst, i_link)
         _primary_side(t, h, sp, harmonics, ss, lp, lu, ls2, kp, ku, lst, i_link, e, 0.0,
                       0.0, False)
         return
+    # the secondary's voltage at the start of the step: the pantograph's, or the line's
+    # own on a reclose (the dead section's pantograph read 0)
+    u_sec_est = (ss[SS_UP] if was_fed else supply_emf(sp, harmonics, ss, t)) / n
     lc_src = (sp[SP_L] + 0.5 * h * sp[SP_R]) / (n * n)  # c of Sherman-Morrison
     lc_old = (sp[SP_L] - 0.5 * h * sp[SP_R]) / (n * n)
     sum_i = 0.0
     for k in range(n_lc):
         sum_i += ls2[k, LS2_I]
     # converter voltages held over the step, and the rows of the active windings
-    s_b = 0.0
-    s_1 = 0.0
-    for k in range(n_lc):
-        r = path_resistance(lp, ls2, k)
-        if r < 0.0:
-            ls2[k, LS2_U] = 0.0
-            continue
-        i = ls2[k, LS2_I]
-        u = converter_voltage(h, k, i, lst[li[k, LI_LINK], LS_UDC], u_sec_est, r, lp, lu)
-        ls2[k, LS2_U] = u
-        a_k = lp[k, LP_L] + 0.5 * h * r
-        b_k = (lp[k, LP_L] - 0.5 * h * r) * i + lc_old * sum_i + h * (e / n - u)
-        s_b += b_k / a_k
-        s_1 += 1.0 / a_k
+    s_b, s_1 = winding_sums(h, u_sec_est, lc_old * sum_i, e / n, False, lp, li, lu, ls2, lst)
     corr = lc_src * s_b / (1.0 + lc_src * s_1)
     sum_new = 0.0
     sum_step = 0.0  # the windings' currents at the end of the step before any arc cleared
@@ -224,8 +210,7 @@ def _primary_side(t, h, sp, harmonics, ss, lp, lu, ls2, kp, ku, lst, i_link, e, 
     """The primary's current, the switches on it, the pantograph, the books and the power
     quality's integrals, then the DC links."""
     n = sp[SP_RATIO]
-    # primary side; a contactor's arc that cleared took the source inductance's share,
-    # or with the primary open, what bringing the others back to a zero sum gave up
+    # a contactor's arc that cleared took the source inductance's share
     ip_old = ss[SS_IP]
     if primary:
         ss[SS_E_ARC] += 0.5 * sp[SP_L] * (sum_step * sum_step - sum_new * sum_new) / (n * n)

@@ -210,6 +210,33 @@ def converter_voltage(h, k, i, udc, u_sec_est, r, lp, lu) -> float:
 
 
 @compiled_inline
+def winding_sums(h, u_sec_est, lc_sum, e_sec, islanded, lp, li, lu, ls2, lst):
+    """Each winding's converter voltage, held over the step (in LS2_U), and the sums of
+    the Sherman-Morrison solve over the windings whose path is closed: s_b = sum_k b_k /
+    a_k and s_1 = sum_k 1 / a_k, a_k = L_k + h R_k / 2, b_k = (L_k - h R_k / 2) i_k +
+    lc_sum + h (e_sec - u_k) (lc_sum the source's share of the old currents, e_sec the
+    EMF over n: both 0 with the primary open, where a bridge at rest is left out too:
+    bridges_at_rest)."""
+    s_b = 0.0
+    s_1 = 0.0
+    for k in range(lp.shape[0]):
+        r = path_resistance(lp, ls2, k)
+        if r < 0.0:
+            ls2[k, LS2_U] = 0.0
+            continue
+        if islanded and at_rest(lu, ls2, k):
+            continue
+        i = ls2[k, LS2_I]
+        u = converter_voltage(h, k, i, lst[li[k, LI_LINK], LS_UDC], u_sec_est, r, lp, lu)
+        ls2[k, LS2_U] = u
+        a_k = lp[k, LP_L] + 0.5 * h * r
+        b_k = (lp[k, LP_L] - 0.5 * h * r) * i + lc_sum + h * (e_sec - u)
+        s_b += b_k / a_k
+        s_1 += 1.0 / a_k
+    return s_b, s_1
+
+
+@compiled_inline
 def book_winding(h, k, i_old, i_new, r, lp, li, lu, ls2, lst, i_link):
     """Winding k's converter over the step: its DC current into the link (the share of
     its voltage that comes from the link, and its switching loss) and the energy books."""
@@ -245,22 +272,8 @@ def islanded_substep(h, sp, ss, lp, li, lu, ls2, lst, i_link):
     bridges at rest and stopping as above; a contactor's arc that clears leaves the
     others a sum that balance_windings takes out. SS_U_SEC gets the common voltage."""
     n_lc = lp.shape[0]
-    u_sec_est = ss[SS_U_SEC]  # the windings' common voltage, the last step's
-    s_b = 0.0
-    s_1 = 0.0
-    for k in range(n_lc):
-        r = path_resistance(lp, ls2, k)
-        if r < 0.0:
-            ls2[k, LS2_U] = 0.0
-            continue
-        if at_rest(lu, ls2, k):
-            continue  # its voltage follows the others' (bridges_at_rest)
-        i = ls2[k, LS2_I]
-        u = converter_voltage(h, k, i, lst[li[k, LI_LINK], LS_UDC], u_sec_est, r, lp, lu)
-        ls2[k, LS2_U] = u
-        a_k = lp[k, LP_L] + 0.5 * h * r
-        s_b += ((lp[k, LP_L] - 0.5 * h * r) * i - h * u) / a_k
-        s_1 += 1.0 / a_k
+    # the windings' common voltage, the last step's; bridges at rest join below
+    s_b, s_1 = winding_sums(h, ss[SS_U_SEC], 0.0, 0.0, True, lp, li, lu, ls2, lst)
     corr = bridges_at_rest(h, s_b, s_1, lp, li, lu, ls2, lst)
     corr = bridges_stopping(h, corr, lp, li, lu, ls2, lst)
     ss[SS_U_SEC] = -corr / h
