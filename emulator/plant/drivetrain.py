@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import math
 
+from .contact_maths import arctan, exponential
 from .jit import compiled, compiled_inline
 
 #: Polach's published parameter sets [memory, corroborated in REFERENCES.md]: k_A, k_S,
@@ -82,7 +83,7 @@ def polach_core(w: float, v: float, kappa: float, scale: float, k_a: float, k_s:
     if mu0 <= 0.0:
         return 0.0, 0.0
     aw = abs(w)
-    ex = math.exp(-b_decay * aw)
+    ex = exponential(-b_decay * aw)
     mu = mu0 * ((1.0 - a_ratio) * ex + a_ratio)
     dmu = -mu0 * (1.0 - a_ratio) * b_decay * ex  # d mu / d|w|
     inv_mu = 1.0 / mu
@@ -92,7 +93,7 @@ def polach_core(w: float, v: float, kappa: float, scale: float, k_a: float, k_s:
     ka_e = k_a * eps
     ks_e = k_s * eps
     g = 1.0 / (1.0 + ka_e * ka_e)
-    f = ka_e * g + math.atan(ks_e)
+    f = ka_e * g + arctan(ks_e)
     df = k_a * (1.0 - ka_e * ka_e) * g * g + k_s / (1.0 + ks_e * ks_e)
     force = scale * mu * f
     dforce = scale * (dmu * f + mu * df * deps)  # F odd, dF/dw even in w

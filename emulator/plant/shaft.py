@@ -29,6 +29,7 @@ from .columns import (
     K_W,
     W,
 )
+from .contact_maths import arctan, exponential
 from .drivetrain import wheel_torque
 from .jit import compiled_inline
 from .layout import (
@@ -237,16 +238,16 @@ def contact_forces(mpar, ms, c, v):
     for every motor (used only on the motored axles' drivetrains), its arithmetic in the
     same order, so the same to the bit (tests/plant/test_columns.py compares them).
 
-    In four passes over the motors (columns.py): the exponential and the arctangent,
-    calls into the maths library, each in a short scalar loop of its own; the arithmetic
-    around them (a square root and four divisions an axle) in loops the compiler
-    vectorises. In one loop each axle's chain of dependent operations waited on the
+    In four passes over the motors (columns.py), each a loop the compiler vectorises:
+    the exponential and the arctangent are arithmetic (contact_maths.py), not calls into
+    the maths library, which kept their loops scalar; a square root and four divisions an
+    axle around them. In one loop each axle's chain of dependent operations waited on the
     one before; the 128-motor frame's cost is that latency, not the arithmetic."""
     n = mpar.shape[0]
     for m in range(n):
         w = ms[m, MS_OMEGA_W] * mpar[m, MP_WHEEL_R] - v
         c[K_W * W + m] = w
-        c[K_EX * W + m] = math.exp(-c[K_B * W + m] * abs(w))
+        c[K_EX * W + m] = exponential(-c[K_B * W + m] * abs(w))
     for m in range(n):
         aw = abs(c[K_W * W + m])
         ex = c[K_EX * W + m]
@@ -264,7 +265,7 @@ def contact_forces(mpar, ms, c, v):
         c[K_KAE * W + m] = c[K_KA * W + m] * eps
         c[K_KSE * W + m] = c[K_KS * W + m] * eps
     for m in range(n):
-        c[K_ATAN * W + m] = math.atan(c[K_KSE * W + m])
+        c[K_ATAN * W + m] = arctan(c[K_KSE * W + m])
     for m in range(n):
         ka_e = c[K_KAE * W + m]
         ks_e = c[K_KSE * W + m]
