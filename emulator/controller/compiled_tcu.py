@@ -36,6 +36,7 @@ from .effort import (
     GEAR_EFFICIENCY,
     OVERLOAD,
     POWER_OVERLOAD,
+    ROLL_BACK_M,
 )
 from .speed_plausibility import SENSOR_JUMP
 
@@ -163,6 +164,7 @@ class CompiledController(ref.ReferenceController):
         k[pp.K_MAGNETISED_MPS], k[pp.K_FLUX_HOLD_S] = ref.MAGNETISED_ABOVE_MPS, ref.FLUX_HOLD_S
         k[pp.K_BRAKE_FADE_FROM], k[pp.K_BRAKE_FADE_TO] = BRAKE_FADE_FROM_MPS, BRAKE_FADE_TO_MPS
         k[pp.K_BRAKE_RESUME] = BRAKE_RESUME_MPS
+        k[pp.K_ROLL_BACK] = ROLL_BACK_M
         pll = self.pll
         k[pp.K_PLL_K], k[pp.K_PLL_W_NOM] = pll.k, pll.w_nom
         k[pp.K_PLL_KP], k[pp.K_PLL_KI] = pll.kp, pll.ki
@@ -336,6 +338,7 @@ class CompiledController(ref.ReferenceController):
     effort_n = _state_attribute(pp.G_EFFORT)
     achieved_n = _state_attribute(pp.G_ACHIEVED)
     available_n = _state_attribute(pp.G_AVAILABLE)
+    rolled_back_m = _state_attribute(pp.G_ROLLED_BACK)
 
     def clear_events(self) -> None:
         """Forget the events counted so far (the counts and the Counter made of them)."""

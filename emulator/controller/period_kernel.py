@@ -33,6 +33,7 @@ from .period_parts import (
     G_PLL_AMPLITUDE,
     G_PLL_W,
     G_RECENT_I,
+    G_ROLLED_BACK,
     G_SEQ_STATE,
     G_SPEED_INTEGRAL,
     G_T,
@@ -72,6 +73,7 @@ from .period_parts import (
     K_MAX_SPEED,
     K_N_MOTORS,
     K_P_CHOP,
+    K_ROLL_BACK,
     K_ROTATING_FACTOR,
     K_TRANSFORMER_RATIO,
     K_U_MIN2,
@@ -90,6 +92,7 @@ from .period_parts import (
     MOTOR_OVERTEMPERATURE,
     MOTOR_TEMPERATURE_DERATING,
     OVERSPEED,
+    ROLL_BACK,
     RUNNING,
     SEQUENCE_TIMEOUT,
     SPEED_SENSOR_FAULT,
@@ -140,6 +143,7 @@ from .period_parts import (
     guard_judge,
     guard_link,
     guard_ready_share,
+    largest,
     link_power,
     link_reset,
     link_step,
@@ -147,6 +151,7 @@ from .period_parts import (
     pll_update,
     power_limits,
     raise_event,
+    roll_back,
     sequence_step,
     sequence_trip,
 )
@@ -154,16 +159,6 @@ from .period_sensing import encoder_update, fill, judge, judge_stopped, rotor_an
 from .pll import DEAD_SAMPLES
 
 compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
-
-
-@compiled
-def _largest(a):
-    """a.max() (NaN if any is), without numba's runtime, which its array.max() wants."""
-    m = a[0]
-    for i in range(1, a.shape[0]):
-        if a[i] > m or a[i] != a[i]:
-            m = a[i]
-    return m
 
 
 # --- tcu.ReferenceController.step ---------------------------------------------------------
@@ -221,7 +216,7 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         recent[ri] = abs(y[x[X_LINE_V]])
         g[G_RECENT_I] = (ri + 1) % recent.shape[0]
         amplitude = g[G_PLL_AMPLITUDE]
-        g[G_DEAD_SAMPLES] = dead_samples(y[x[X_LINE_V]], theta, amplitude, _largest(recent),
+        g[G_DEAD_SAMPLES] = dead_samples(y[x[X_LINE_V]], theta, amplitude, largest(recent),
                                          peak, k[K_U_MIN2] * SQRT2, g[G_DEAD_SAMPLES])
         live = g[G_DEAD_SAMPLES] < DEAD_SAMPLES
         g[G_LINE_LIVE_S] = g[G_LINE_LIVE_S] + period_s if live else 0.0
@@ -258,6 +253,10 @@ def period(y, flags, period_s, out, g, k, counts, recent, mot, inv, lnk, u_appli
         wheel_mps[m] = quick[m] * k_wheel
         total += wheel_mps[m]
     v = total / n_mot
+    g[G_ROLLED_BACK], rolled = roll_back(g[G_ROLLED_BACK], direction, v, period_s,
+                                         k[K_ROLL_BACK])
+    if rolled:
+        raise_event(g, counts, ROLL_BACK)
     f_max = k[K_N_MOTORS] * motor_torque_limit(k, abs(v)) * gear * k[K_GEAR_EFFICIENCY] / r
     g[G_AVAILABLE] = f_max * guard_ready_share(inv, t) if running else 0.0  # (tcu.py)
     if mode == 1:

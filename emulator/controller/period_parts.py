@@ -37,7 +37,8 @@ SQRT2 = math.sqrt(2)
 (G_T, G_EVENT, G_EFFORT, G_SPEED_INTEGRAL, G_LINE_LIVE_S, G_LINE_RMS_F, G_ACHIEVED,
  G_AVAILABLE, G_RECENT_I, G_PLL_W, G_PLL_THETA, G_PLL_VA, G_PLL_VB, G_PLL_AMPLITUDE,
  G_PLL_INTEGRAL, G_SEQ_STATE, G_SEQ_TIMER, G_SEQ_RETRIES, G_SEQ_REASON, G_ADH_V_REF,
- G_ADH_HAS_V_REF, G_ADH_ENABLED, G_TRIP_NOW, G_DEAD_SAMPLES, G_BRAKE_LET_GO, N_G) = range(26)
+ G_ADH_HAS_V_REF, G_ADH_ENABLED, G_TRIP_NOW, G_DEAD_SAMPLES, G_BRAKE_LET_GO, G_ROLLED_BACK,
+ N_G) = range(27)
 # the constants
 (K_PERIOD, K_LINE_SIDE, K_VECTOR, K_LINE_NOMINAL, K_U_MIN2, K_U_MIN1, K_U_MAX1, K_U_MAX2,
  K_TRANSFORMER_RATIO, K_LINK_NOMINAL, K_P_CHOP, K_MASS, K_MAX_SPEED, K_WHEEL_R, K_GEAR,
@@ -50,7 +51,7 @@ SQRT2 = math.sqrt(2)
  K_NOTCH_B1, K_NOTCH_B2, K_NOTCH_A1, K_NOTCH_A2, K_LINK_STOP, K_LINK_RESTART, K_FLUX_DECAY_S,
  K_BUFFER_LINK, K_BUFFER_POWER, K_BUFFER_NONE_MPS, K_BUFFER_FULL_MPS, K_BUFFER_TORQUE,
  K_STOPPED_FLOOR, K_STOPPED_PERIODS, K_BRAKE_FADE_FROM, K_BRAKE_FADE_TO, K_BRAKE_RESUME,
- N_K) = range(70)
+ K_ROLL_BACK, N_K) = range(71)
 # per motor: encoder, plausibility, creep; its count window from M_WINDOW on
 (M_LAST, M_HAS_LAST, M_ANGLE, M_DIFFERENCES, M_SPEED_RAW, M_HAS_RAW, M_SPEED, M_SPEED_SHORT,
  M_RING_POS, M_OK, M_JUDGED_RAW, M_HAS_JUDGED, M_CREEP, M_INVERTER, M_STOPPED,
@@ -80,7 +81,7 @@ XL_VOLTAGE, XL_OVERVOLTAGE, XL_CHOPPER_OUT, N_XL = range(4)
 
 # event codes (emulator.protocol.events; the kernel cannot import a dict)
 SEQUENCE_TIMEOUT, INVERTER_OVERCURRENT, HARDWARE_TRIP = 1, 10, 11
-LINK_OVERVOLTAGE, LINK_UNDERVOLTAGE, OVERSPEED = 20, 21, 30
+LINK_OVERVOLTAGE, LINK_UNDERVOLTAGE, OVERSPEED, ROLL_BACK = 20, 21, 30, 31
 MOTOR_TEMPERATURE_DERATING, MOTOR_OVERTEMPERATURE, LINK_WATCHDOG = 40, 41, 50
 LINE_UNDERVOLTAGE, LINE_OVERCURRENT, WHEEL_SLIP, SPEED_SENSOR_FAULT = 60, 61, 70, 80
 N_EVENT_CODES = 128
@@ -88,6 +89,16 @@ TRIP_SLOTS = 3  # hardware trips kept per inverter (I_TRIP_0..2): enough to isol
 HARDWARE_TRIP_BIT = 8
 # sequence states (sequence.py)
 OFF, BREAKER, PRECHARGE, LINE, RUNNING, TRIPPED, NEUTRAL = range(7)
+
+
+@compiled
+def largest(a):
+    """a.max() (NaN if any is), without numba's runtime, which its array.max() wants."""
+    m = a[0]
+    for i in range(1, a.shape[0]):
+        if a[i] > m or a[i] != a[i]:
+            m = a[i]
+    return m
 
 
 @compiled
@@ -147,6 +158,7 @@ dead_samples = compiled(pll.dead_samples)
 flux_wait_s = compiled(ride_through.flux_wait_s)
 # --- effort.brake_fade: the plain function itself, compiled
 brake_fade = compiled(effort.brake_fade)
+roll_back = compiled(effort.roll_back)  # (the same, for the roll-back)
 
 
 # --- inverter_guard.InverterGuards.judge, .ready_share and .link ------------------------

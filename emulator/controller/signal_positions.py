@@ -1,8 +1,13 @@
-"""Where each value the reference controller reads and writes sits in the telegrams (a
-part of tcu.ReferenceController): the measurement's and the command's positions, looked
-up once by name in the signal map (emulator/protocol/signal_map.py)."""
+"""The reference controller's telegrams (a part of tcu.ReferenceController): where each
+value it reads and writes sits in them, the measurement's and the command's positions
+looked up once by name in the signal map (emulator/protocol/signal_map.py), and the
+answer to a measurement telegram."""
 
 from __future__ import annotations
+
+import msgpack
+
+from emulator.protocol.header import CFLAG_REPEAT_REQUEST, H_FLAGS
 
 from .config import ControllerConfig
 
@@ -11,7 +16,33 @@ class SignalPositions:
     """The positions (``ix_*`` in the measurement, ``ox_*`` in the command) of the
     reference controller's values; needs ``m_index`` (name -> position in the
     measurement), ``c_names`` (the command's names in order) and ``motors`` (each
-    inverter's motor names)."""
+    inverter's motor names). The answer needs the scales, the last reply and ``step``
+    (tcu.ReferenceController's)."""
+
+    # --- telegrams ----------------------------------------------------------------------
+    def answer(self, payload: bytes) -> bytes:
+        """The command telegram for a measurement telegram."""
+        m = msgpack.unpackb(payload)
+        seq, period_us, flags = m[1], m[3], m[4]
+        if seq == self._last_seq:  # said again (the rig lost our answer): not a new period
+            return self._last_reply
+        y = [b * sc for b, sc in zip(m[6:], self.m_scale, strict=True)]
+        out = self._out
+        self.step(y, flags, period_us * 1e-6, out)
+        wire = [round(v * k) for v, k in zip(out, self._c_inv_scale, strict=True)]
+        self._last_seq = seq
+        self._last_reply = msgpack.packb([self.version, seq, 0, 0, 0, self.map_digest, *wire])
+        return self._last_reply
+
+    def repeat_request(self) -> bytes | None:
+        """A telegram asking the rig for the current measurement again (a damaged frame
+        came in, lockstep): the last answer with the request bit (its values must be
+        valid, they are not applied), or None before the first answer."""
+        if not self._last_reply:
+            return None
+        items = msgpack.unpackb(self._last_reply)
+        items[H_FLAGS] = CFLAG_REPEAT_REQUEST
+        return msgpack.packb(items)
 
     def _index_signals(self, cfg: ControllerConfig) -> None:
         """Positions of every value the control reads and writes (looked up once)."""

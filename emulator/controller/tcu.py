@@ -12,10 +12,7 @@ from __future__ import annotations
 import math
 from collections import Counter
 
-import msgpack
-
 from emulator.protocol import events
-from emulator.protocol.header import CFLAG_REPEAT_REQUEST, H_FLAGS
 
 from . import ride_through as rt
 from .adhesion import AdhesionControl
@@ -27,11 +24,13 @@ from .effort import (
     FEEDFORWARD_EFFICIENCY,
     GEAR_EFFICIENCY,
     POWER_OVERLOAD,
+    ROLL_BACK_M,
     brake_fade,
     gear_efficiency,
     line_limited_torque,
     link_power,
     motor_torque_limit,
+    roll_back,
 )
 from .encoder import EncoderSpeed
 from .inverter_guard import InverterGuards
@@ -97,6 +96,7 @@ class ReferenceController(SignalPositions):
         self.n_motors = n_motors
         self.effort_n = 0.0  # jerk-limited effort reference of the whole train
         self.brake_let_go = False  # the drives let go where the brake's fade ended
+        self.rolled_back_m = 0.0  # run against the selected direction (ROLL_BACK_M)
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
         self.line_live_s = 0.0
@@ -124,31 +124,6 @@ class ReferenceController(SignalPositions):
         self.achieved_n = 0.0
         self.available_n = 0.0
         self._index_signals(cfg)
-
-    # --- telegrams ----------------------------------------------------------------------
-    def answer(self, payload: bytes) -> bytes:
-        """The command telegram for a measurement telegram."""
-        m = msgpack.unpackb(payload)
-        seq, period_us, flags = m[1], m[3], m[4]
-        if seq == self._last_seq:  # said again (the rig lost our answer): not a new period
-            return self._last_reply
-        y = [b * sc for b, sc in zip(m[6:], self.m_scale, strict=True)]
-        out = self._out
-        self.step(y, flags, period_us * 1e-6, out)
-        wire = [round(v * k) for v, k in zip(out, self._c_inv_scale, strict=True)]
-        self._last_seq = seq
-        self._last_reply = msgpack.packb([self.version, seq, 0, 0, 0, self.map_digest, *wire])
-        return self._last_reply
-
-    def repeat_request(self) -> bytes | None:
-        """A telegram asking the rig for the current measurement again (a damaged frame
-        came in, lockstep): the last answer with the request bit (its values must be
-        valid, they are not applied), or None before the first answer."""
-        if not self._last_reply:
-            return None
-        items = msgpack.unpackb(self._last_reply)
-        items[H_FLAGS] = CFLAG_REPEAT_REQUEST
-        return msgpack.packb(items)
 
     def clear_events(self) -> None:
         """Forget the events counted so far."""
@@ -252,6 +227,10 @@ class ReferenceController(SignalPositions):
         quick = self.speed_check.fill([e.speed_short for e in self.encoders])
         wheel_mps = [w * k_wheel for w in quick]
         v = sum(wheel_mps) / len(wheel_mps)
+        self.rolled_back_m, rolled = roll_back(self.rolled_back_m, direction, v, period_s,
+                                               ROLL_BACK_M)
+        if rolled:
+            self._raise(events.ROLL_BACK)
         f_max = self.n_motors * motor_torque_limit(cfg, abs(v)) * gear * GEAR_EFFICIENCY / r
         # the effort the drives can give now (what a brake manager must make up is not)
         self.available_n = (f_max * self.guards.ready_share(self.t, cfg.n_motors_per_inverter)

@@ -10,6 +10,7 @@ HARDWARE_TRIP = 11
 LINK_OVERVOLTAGE = 20
 LINK_UNDERVOLTAGE = 21
 OVERSPEED = 30
+ROLL_BACK = 31
 MOTOR_TEMPERATURE_DERATING = 40
 MOTOR_OVERTEMPERATURE = 41
 LINK_WATCHDOG = 50
@@ -25,6 +26,7 @@ NAMES = {
     LINK_OVERVOLTAGE: "DC-link overvoltage: line side tripped",
     LINK_UNDERVOLTAGE: "DC-link undervoltage: traction blocked",
     OVERSPEED: "overspeed: traction cut",
+    ROLL_BACK: "roll-back: the train ran back against its selected direction",
     MOTOR_TEMPERATURE_DERATING: "motor temperature: torque derated",
     MOTOR_OVERTEMPERATURE: "motor overtemperature: traction cut",
     LINK_WATCHDOG: "the rig reported a link watchdog trip",
@@ -43,7 +45,7 @@ SLUGS = {
     "sequence-timeout": SEQUENCE_TIMEOUT, "inverter-overcurrent": INVERTER_OVERCURRENT,
     "hardware-trip": HARDWARE_TRIP, "line-overcurrent": LINE_OVERCURRENT,
     "link-overvoltage": LINK_OVERVOLTAGE, "link-undervoltage": LINK_UNDERVOLTAGE,
-    "overspeed": OVERSPEED, "motor-derating": MOTOR_TEMPERATURE_DERATING,
+    "overspeed": OVERSPEED, "roll-back": ROLL_BACK, "motor-derating": MOTOR_TEMPERATURE_DERATING,
     "motor-overtemperature": MOTOR_OVERTEMPERATURE, "link-watchdog": LINK_WATCHDOG,
     "line-undervoltage": LINE_UNDERVOLTAGE, "wheel-slip": WHEEL_SLIP,
     "speed-sensor-fault": SPEED_SENSOR_FAULT,

@@ -17,8 +17,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from emulator.controller.effort import BRAKE_FADE_FROM_MPS
+from emulator.controller.effort import BRAKE_FADE_FROM_MPS, ROLL_BACK_M
 from emulator.profiles.reader import PROFILES_DIR, load_trainset
+from emulator.protocol.events import ROLL_BACK
 from emulator.scenario import load_scenario, run_scenario
 from tests.controller.twin import Twin
 
@@ -121,6 +122,7 @@ def test_the_electric_brake_fades_out_and_the_train_stays_at_rest(trainset: str)
     assert braking < -0.5 * 0.6 * params.motor_count * 1600
     assert abs(torque[rest:]).max() < 0.01 * abs(braking), torque[rest:].min()
     assert _switched_on_after_letting_go(run, params) == [0] * len(params.converters)
+    assert not (rec.column("u.tcu.event_code") == ROLL_BACK).any()  # no roll-back said
 
 
 @pytest.mark.parametrize("trainset", ["tern-25kv", "tern-15kv"])  # V/f, vector control
@@ -155,3 +157,32 @@ def test_a_train_rolling_back_is_braked_against_its_motion(trainset: str,
     assert v.min() > -BRAKE_FADE_FROM_MPS, v.min()
     # let go at the stand, started again once on the roll-back (past BRAKE_RESUME_MPS)
     assert _switched_on_after_letting_go(run, params) == [1] * len(params.converters)
+    _roll_back_reported_at_its_distance(run, params)
+
+
+def _roll_back_reported_at_its_distance(run, params) -> None:
+    """The controller reports the roll-back once the train has run ROLL_BACK_M back, and
+    from then on (it keeps running back at the fade's balance): one raise. The distance
+    is the one its encoders measure, the rotors' turning at the wheel's nominal radius
+    (the controller's own; its axles' mean), here from the plant's rotor speeds summed
+    over the frames since they last turned forward. Within two encoder counts at the
+    rail (the count method's resolution at each end: Bose, *Modern Power Electronics and
+    AC Drives*, speed by counting) and the distance run in four periods (the quick
+    window's lag of two periods, and a frame between the plant's row and the reply)."""
+    rec = run.recording
+    code = rec.column("u.tcu.event_code")
+    said = code == ROLL_BACK
+    assert int(np.count_nonzero(said[1:] & ~said[:-1])) == 1  # one raise, held
+    first = int(np.flatnonzero(said)[0])
+    r_nominal = 0.5 * np.mean([d for c in params.converters for d in c.wheel_diameters_m])
+    rotors = np.mean([rec.column(f"p.motor.speed_rad_s[{i}]")
+                      for i in range(params.motor_count)], axis=0)
+    wheel = rotors / params.drivetrain.gear_ratio * r_nominal
+    turned = int(np.flatnonzero(wheel[:first] >= 0.0)[-1])  # the last frame not backwards
+    frame = float(np.median(np.diff(rec.column("time_s"))))
+    back = -float(np.sum(wheel[turned + 1:first + 1])) * frame
+    radii = [d / 2 for c in params.converters for d in c.wheel_diameters_m]
+    count_m = (2 * np.pi / (4 * params.sensors.encoder_lines)
+               / params.drivetrain.gear_ratio * min(radii))
+    lag_m = abs(float(wheel[first])) * 4 * frame
+    assert abs(back - ROLL_BACK_M) <= 2 * count_m + lag_m, (back, count_m, lag_m)
