@@ -31,12 +31,12 @@ BRAKE_FADE_TO_MPS = 0.2
 #: near the end flickers by a step from period to period; deciding afresh each period,
 #: the drives switched on and off hundreds of times at a stop)
 BRAKE_RESUME_MPS = 0.5
-#: roll-back: reported once the train has run this far against its selected direction
-#: since it last ran with it (from the measured speed), and from then on until it runs
-#: with it again. Roll-back detection over a few tenths of a metre to a metre is common
-#: practice of traction and brake control, no source; the value is ours. Only reported:
-#: the electric brake already acts against the measured motion (brake_fade), and
-#: holding the train is the friction brake's work
+#: roll-back: reported as the train's run against its selected direction since it last
+#: ran with it (from the measured speed) reaches this distance. Roll-back detection over
+#: a few tenths of a metre to a metre is common practice of traction and brake control,
+#: no source; the value is ours. Only reported: under a brake demand the electric brake
+#: acts against the measured motion (brake_fade); with none nothing acts, and holding
+#: the train is the friction brake's work
 ROLL_BACK_M = 0.5
 
 
@@ -70,20 +70,24 @@ def brake_fade(speed_mps: float, forward: bool, let_go: bool, from_mps: float,
     return (fade if forward else -fade), let_go
 
 
-def roll_back(rolled_m: float, direction: float, v_mps: float, period_s: float,
+def roll_back(rolled: float, direction: float, v_mps: float, period_s: float,
               limit_m: float) -> tuple[float, bool]:
     """The distance run against the selected direction (+1 or -1) since the train last
-    ran with it, after a period at the measured speed v_mps (a standstill keeps it), and
-    whether to report a roll-back: in each period from the one that distance reaches
-    limit_m on, a standstill included, until the train runs with its direction again (a
-    condition while it lasts: the telegram carries one event a period, and a report of
-    one period could be hidden by another event; a slow roll-back's speed reading
-    flickers between a window step and nothing, and the report does not)."""
+    ran with it, after a period at the measured speed v_mps, and whether to report a
+    roll-back: in the one period that distance reaches limit_m (the event code on the
+    wire stays until another event replaces it; raised each period, it hid events raised
+    before it in the period and flickered against those raised after). A standstill
+    keeps the distance; running with the direction, or a change of direction, clears it.
+    rolled is held signed, the distance times the direction it was run against, so that
+    a change of direction finds it of the wrong sign: (the new rolled, report)."""
+    run = rolled * direction  # the distance so far; < 0: run against the other direction
+    if run < 0.0:
+        run = 0.0
     back = -direction * v_mps * period_s
     if back < 0.0:
         return 0.0, False
-    rolled_m = rolled_m + back if back > 0.0 else rolled_m
-    return rolled_m, rolled_m >= limit_m
+    after = run + back if back > 0.0 else run
+    return after * direction, run < limit_m <= after
 
 
 def line_limited_torque(torque: float, motor_speed: float, n_motors: int, u_d: float,

@@ -23,6 +23,16 @@ STOPPED_COUNTS = 1  # (a decoder with one channel lost dithers by one count)
 STOPPED_CREEP_SHARE = 0.5
 
 
+def added(values) -> float:
+    """The floats added one by one from 0.0, in order, as the compiled period adds them
+    (from Python 3.12 sum() compensates its rounding, and the plain controller would
+    part from the compiled one in the last bit)."""
+    total = 0.0
+    for value in values:
+        total += value
+    return total
+
+
 class SpeedPlausibility:
     """Which encoders are healthy, and readings with the failed ones replaced."""
 
@@ -114,8 +124,8 @@ class SpeedPlausibility:
             own = [readings[a] for a in group if self.ok[a]]
             for a in group:
                 if not self.ok[a]:
-                    out[a] = (sum(own) / len(own) if own
-                              else sum(healthy) / len(healthy) if healthy else readings[a])
+                    out[a] = (added(own) / len(own) if own
+                              else added(healthy) / len(healthy) if healthy else readings[a])
         return out
 
     def rotor_angle(self, inverter: int, angles: list[float], speed: float,

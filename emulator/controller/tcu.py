@@ -40,7 +40,7 @@ from .motor_vector import VectorControl
 from .pll import DEAD_SAMPLES, SogiPll, dead_samples
 from .sequence import RUNNING, TRIPPED, SwitchOnSequence
 from .signal_positions import SignalPositions
-from .speed_plausibility import STOPPED_CREEP_SHARE, STOPPED_S, SpeedPlausibility
+from .speed_plausibility import STOPPED_CREEP_SHARE, STOPPED_S, SpeedPlausibility, added
 
 # motors and inverters at full power, with margin: what the line converters are rated for
 DRIVE_EFFICIENCY = 0.85
@@ -96,7 +96,7 @@ class ReferenceController(SignalPositions):
         self.n_motors = n_motors
         self.effort_n = 0.0  # jerk-limited effort reference of the whole train
         self.brake_let_go = False  # the drives let go where the brake's fade ended
-        self.rolled_back_m = 0.0  # run against the selected direction (ROLL_BACK_M)
+        self.rolled_back_m = 0.0  # run against the direction, times it (effort.roll_back)
         self.speed_integral = 0.0
         self.enabled_for = [0.0] * n_inv
         self.line_live_s = 0.0
@@ -226,7 +226,7 @@ class ReferenceController(SignalPositions):
         # 0.16 m/s resolution at the rail), the rest uses the smoother one
         quick = self.speed_check.fill([e.speed_short for e in self.encoders])
         wheel_mps = [w * k_wheel for w in quick]
-        v = sum(wheel_mps) / len(wheel_mps)
+        v = added(wheel_mps) / len(wheel_mps)
         self.rolled_back_m, rolled = roll_back(self.rolled_back_m, direction, v, period_s,
                                                ROLL_BACK_M)
         if rolled:
@@ -334,8 +334,8 @@ class ReferenceController(SignalPositions):
                       and link_ok and not self.brake_let_go
                       and (self.effort_n != 0.0 or mode == 2 or abs(v) > MAGNETISED_ABOVE_MPS))
             torque = direction * torque_motor * factors[k]
-            motor_speed = sum(speeds[first:first + n_mot]) / n_mot
-            stator_degc = (sum(y[self.ix_temp[a]] for a in range(first, first + n_mot)) / n_mot
+            motor_speed = added(speeds[first:first + n_mot]) / n_mot
+            stator_degc = (added(y[self.ix_temp[a]] for a in range(first, first + n_mot)) / n_mot
                            if self.vector is None else 0.0)  # (V/f: its torque estimate)
             angle = self.speed_check.rotor_angle(
                 k, [self.encoders[a].angle for a in range(first, first + n_mot)],

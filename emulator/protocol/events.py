@@ -26,7 +26,7 @@ NAMES = {
     LINK_OVERVOLTAGE: "DC-link overvoltage: line side tripped",
     LINK_UNDERVOLTAGE: "DC-link undervoltage: traction blocked",
     OVERSPEED: "overspeed: traction cut",
-    ROLL_BACK: "roll-back: the train ran back against its selected direction",
+    ROLL_BACK: "roll-back: the train ran 0.5 m against its selected direction",
     MOTOR_TEMPERATURE_DERATING: "motor temperature: torque derated",
     MOTOR_OVERTEMPERATURE: "motor overtemperature: traction cut",
     LINK_WATCHDOG: "the rig reported a link watchdog trip",

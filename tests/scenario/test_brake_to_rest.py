@@ -161,8 +161,8 @@ def test_a_train_rolling_back_is_braked_against_its_motion(trainset: str,
 
 
 def _roll_back_reported_at_its_distance(run, params) -> None:
-    """The controller reports the roll-back once the train has run ROLL_BACK_M back, and
-    from then on (it keeps running back at the fade's balance): one raise. The distance
+    """The controller reports the roll-back once, as the train has run ROLL_BACK_M back
+    (the code then stays on the wire: no other event replaces it here). The distance
     is the one its encoders measure, the rotors' turning at the wheel's nominal radius
     (the controller's own; its axles' mean), here from the plant's rotor speeds summed
     over the frames since they last turned forward. Within two encoder counts at the
@@ -172,7 +172,7 @@ def _roll_back_reported_at_its_distance(run, params) -> None:
     rec = run.recording
     code = rec.column("u.tcu.event_code")
     said = code == ROLL_BACK
-    assert int(np.count_nonzero(said[1:] & ~said[:-1])) == 1  # one raise, held
+    assert int(np.count_nonzero(said[1:] & ~said[:-1])) == 1  # said from one period on
     first = int(np.flatnonzero(said)[0])
     r_nominal = 0.5 * np.mean([d for c in params.converters for d in c.wheel_diameters_m])
     rotors = np.mean([rec.column(f"p.motor.speed_rad_s[{i}]")

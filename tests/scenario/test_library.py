@@ -106,8 +106,19 @@ def _blended_to_a_stop(run) -> None:
     assert rec.column("p.train.acceleration_mps2")[handed:stopped].max() < 0.0
 
 
+def _a_hill_start_is_no_roll_back(run) -> None:
+    """A start on a rise rolls back a few centimetres before the drives hold it (the
+    scenario's own check: under 0.5 m): the controller does not report a roll-back."""
+    from emulator.protocol.events import ROLL_BACK
+
+    x = run.recording.column("p.train.position_m")
+    assert (np.maximum.accumulate(x) - x).max() < 0.1  # (a few centimetres)
+    assert not (run.recording.column("u.tcu.event_code") == ROLL_BACK).any()
+
+
 #: what some scenarios must show besides their own checks
 STORY = {"protections": _three_trips_then_isolated,
+         "wet-gradient-start": _a_hill_start_is_no_roll_back,
          # every stop on a mark
          "four-modes": _blended_to_a_stop,
          "full-braking-from-160-15kv": _blended_to_a_stop,
