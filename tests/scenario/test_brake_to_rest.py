@@ -88,6 +88,14 @@ def _switched_on_after_letting_go(run, params) -> list[int]:
     return counts
 
 
+def _count_at_rail_m(params) -> float:
+    """One count of a 4x decoder at the rail, on the smallest wheel: the least travel
+    a controller could see."""
+    radii = [d / 2 for c in params.converters for d in c.wheel_diameters_m]
+    return (2 * np.pi / (4 * params.sensors.encoder_lines) / params.drivetrain.gear_ratio
+            * min(radii))
+
+
 def _air_gap_torque(run, params) -> np.ndarray:
     return sum(run.recording.column(f"p.motor.torque_nm[{i}]")
                for i in range(params.motor_count))
@@ -102,14 +110,11 @@ def test_the_electric_brake_fades_out_and_the_train_stays_at_rest(trainset: str)
     it, decaying over seconds, and before the fade 88 %). The plain-Python controller
     follows the compiled one bit for bit through the ramp and the fade."""
     run, params = _run(trainset, HELD)
-    radii = [d / 2 for c in params.converters for d in c.wheel_diameters_m]
     rec = run.recording
     t, v = rec.column("time_s"), rec.column("p.train.speed_mps")
     torque = _air_gap_torque(run, params)
     x = rec.column("p.train.position_m")
-    count_m = (2 * np.pi / (4 * params.sensors.encoder_lines)  # a 4x decoder's
-               / params.drivetrain.gear_ratio * min(radii))      # count at the rail
-    assert (np.maximum.accumulate(x) - x).max() < count_m  # never backwards
+    assert (np.maximum.accumulate(x) - x).max() < _count_at_rail_m(params)  # never back
     at_rest = v <= 0.0
     assert at_rest.any(), "the train did not come to rest"
     rest = int(np.flatnonzero(at_rest & (t > 3.0))[0])
@@ -181,8 +186,6 @@ def _roll_back_reported_at_its_distance(run, params) -> None:
     turned = int(np.flatnonzero(wheel[:first] >= 0.0)[-1])  # the last frame not backwards
     frame = float(np.median(np.diff(rec.column("time_s"))))
     back = -float(np.sum(wheel[turned + 1:first + 1])) * frame
-    radii = [d / 2 for c in params.converters for d in c.wheel_diameters_m]
-    count_m = (2 * np.pi / (4 * params.sensors.encoder_lines)
-               / params.drivetrain.gear_ratio * min(radii))
+    count_m = _count_at_rail_m(params)
     lag_m = abs(float(wheel[first])) * 4 * frame
     assert abs(back - ROLL_BACK_M) <= 2 * count_m + lag_m, (back, count_m, lag_m)
