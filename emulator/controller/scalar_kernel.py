@@ -9,6 +9,27 @@ The period's steps: the torque estimate from the measured currents and the volta
 the circuit at the voltage there is (slip_circuit.py), the flux trim at low frequency,
 the voltage vector turned to the middle of the period it acts in (1.5 T), and the duties
 with the dead time compensated (modulation.py).
+
+The duties divide by the middle of the link's mean (``LINK_FILTER_S``, 20 ms) and the
+voltage sampled in the period, not by the sampled voltage alone. A drive whose duties
+divide by the sampled voltage gives the motor the same voltage whatever the link does,
+so it draws the same power P from it: an incremental input resistance of -U^2 / P,
+negative (the input-filter interaction of a regulated converter, R. D. Middlebrook,
+"Input filter considerations in design and application of switching regulators", IEEE
+IAS annual meeting 1976; from memory). The link's capacitor C_d and its series-resonant
+2f filter (L_2, C_2) have a parallel resonance at 2 f sqrt(1 + C_2 / C_d) (45.8 Hz on
+the 15 kV 16.7 Hz Tern, 120 Hz on the 25 kV one), where only the filter's resistance
+damps the link: a negative resistance past that damping sets the link ringing. The
+15 kV Tern under V/f did (measured: the links swung 1560-2040 V at 42 Hz at 60 km/h and
+half effort, and the line side tripped on overvoltage at 60-90 km/h). With the middle,
+a swing u~ faster than the mean gives the motor U_s (1 + u~ / 2U), its power at the slip
+held P (1 + u~ / U) (as U_s^2), its current from the link P / U unchanged: the drive
+neither feeds the resonance nor damps it, and the filter's resistance does (the quasi-
+static view: slow beside the motor's currents). On the mean alone (U_s ~ u_d, a
+resistance of +U^2 / P) the 15 kV links were as quiet, but the 25 kV links rang at
+about 125 Hz through a line interruption, the drives then carrying next to no power
+(DEVELOPERS.md). Half the link's residual 2f ripple (under 1 % after its filter)
+reaches the motor's voltage.
 """
 
 from __future__ import annotations
@@ -176,15 +197,18 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     regulation, else the stator angle integrates its frequency)."""
     T = k[K_T]
     p = c[sc.CIRCUIT_P]
-    u_max = u_d / math.sqrt(3)
     w_r = p * speed
     f_rotor = w_r / TWO_PI
-    # the plan takes the link's mean (no more than nominal): the duty follows the ripple
-    # each period, so the voltage planned is what the motor gets while the trough leaves
-    # the margin
+    # the plan takes the link's mean (no more than nominal); the duties take the middle
+    # of the mean and the voltage sampled, so the drive draws a constant current on the
+    # link's swings faster than the mean, where duties on the voltage sampled alone would
+    # hold its power (a negative resistance, which set the link's filter ringing: the
+    # module's docstring)
     if s[S_U_D_MEAN] == 0.0:
         s[S_U_D_MEAN] = u_d
     s[S_U_D_MEAN] += (u_d - s[S_U_D_MEAN]) * min(T / k[K_LINK_FILTER_S], 1.0)
+    u_duty = 0.5 * (s[S_U_D_MEAN] + u_d)
+    u_max = u_duty / math.sqrt(3)
     # a vector held over a period while the field turns by w_s T has a fundamental of
     # sin(x) / x of it, x = w_s T / 2: the circuit is planned on what the motor gets, the
     # command is raised by it
@@ -238,6 +262,6 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     s[S_H1_F], s[S_H1_SLIP], s[S_H1_PSI], s[S_H1_T] = f_s, w_slip, psi, given
     # the current turned on to the middle of the acting period
     current = clarke(ia, ib, ic) * cmath.exp(1j * TWO_PI * f_s * 1.5 * T)
-    d = leg_duties(u_vec, u_d, current, has_currents and k[K_DEAD_TIME] > 0.0,
-                   k[K_DEAD_TIME] * k[K_FSW] * u_d, k[K_SIGN_BAND])
+    d = leg_duties(u_vec, u_duty, current, has_currents and k[K_DEAD_TIME] > 0.0,
+                   k[K_DEAD_TIME] * k[K_FSW] * u_duty, k[K_SIGN_BAND])
     return d, f_s
