@@ -10,26 +10,34 @@ the circuit at the voltage there is (slip_circuit.py), the flux trim at low freq
 the voltage vector turned to the middle of the period it acts in (1.5 T), and the duties
 with the dead time compensated (modulation.py).
 
-The duties divide by the middle of the link's mean (``LINK_FILTER_S``, 20 ms) and the
-voltage sampled in the period, not by the sampled voltage alone. A drive whose duties
-divide by the sampled voltage gives the motor the same voltage whatever the link does,
-so it draws the same power P from it: an incremental input resistance of -U^2 / P,
-negative (the input-filter interaction of a regulated converter, R. D. Middlebrook,
-"Input filter considerations in design and application of switching regulators", IEEE
-IAS annual meeting 1976; from memory). The link's capacitor C_d and its series-resonant
-2f filter (L_2, C_2) have a parallel resonance at 2 f sqrt(1 + C_2 / C_d) (45.8 Hz on
-the 15 kV 16.7 Hz Tern, 120 Hz on the 25 kV one), where only the filter's resistance
-damps the link: a negative resistance past that damping sets the link ringing. The
-15 kV Tern under V/f did (measured: the links swung 1560-2040 V at 42 Hz at 60 km/h and
-half effort, and the line side tripped on overvoltage at 60-90 km/h). With the middle,
-a swing u~ faster than the mean gives the motor U_s (1 + u~ / 2U), its power at the slip
-held P (1 + u~ / U) (as U_s^2), its current from the link P / U unchanged: the drive
-neither feeds the resonance nor damps it, and the filter's resistance does (the quasi-
-static view: slow beside the motor's currents). On the mean alone (U_s ~ u_d, a
-resistance of +U^2 / P) the 15 kV links were as quiet, but the 25 kV links rang at
-about 125 Hz through a line interruption, the drives then carrying next to no power
-(DEVELOPERS.md). Half the link's residual 2f ripple (under 1 % after its filter)
-reaches the motor's voltage.
+The drive and its link's filter. The link's capacitor C_d and its series-resonant 2f
+filter (L_2, C_2) resonate in parallel at 2 f sqrt(1 + C_2 / C_d): 45.9 Hz on the 15 kV
+16.7 Hz Tern, 120 Hz on the 25 kV one, where only the filter's resistance damps the link
+(R_p = X^2 / R_2 with X = 1 / (w_p C_d): 18.6 ohm on the 15 kV Tern). A drive whose
+duties divide by the link voltage sampled each period gives its motors the same voltage
+whatever the link does, and draws a constant power P: an incremental resistance of
+-U^2 / P (R. D. Middlebrook, "Input filter considerations in design and application of
+switching regulators", IEEE IAS 1976; from memory), which set the 15 kV links ringing at
+41-44 Hz and the 25 kV ones at 115 Hz at 160 km/h (DEVELOPERS.md, "The V/f drive and the
+link's filter"). Two parts now:
+
+- the duties divide by the middle of the link's 20 ms mean and the sampled voltage: on
+  swings faster than the mean the motor gets U_s (1 + u~ / 2U), its power (as U_s^2 at
+  the slip held) P (1 + u~ / U), its current P / U unchanged (a quasi-static view: it
+  leaves out the motor's currents at the resonance and the command's delay of 1.5-2.5
+  periods, and with them the drive still fed the 15 kV resonance braking at full effort
+  from 70 km/h up);
+- the voltage's angle is advanced, in the field's direction, by K_LINK_DAMPING radians
+  per unit of the link's swing from its mean: at the resonance the rotor's flux cannot
+  follow, so the angle moves the torque (its load angle) and the drive takes more power
+  from a link that rises and less from one that falls, whether it motors or brakes (a
+  damping conductance; where the power itself were modulated with the voltage, its sign
+  would follow the power's).
+
+The gain is chosen on the plant (motor_scalar.LINK_DAMPING_RAD). The voltage stored as
+sent (S_U_VEC, the torque estimate's "voltage held") is the one planned: the motor gets
+it times u_d / (the middle), half the link's swing off (under 1.5 %: the links now hold
+within 9-49 V of 1800 V peak to peak).
 """
 
 from __future__ import annotations
@@ -62,7 +70,7 @@ compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
  K_VOLTAGE_MARGIN, K_SLIP_LIMIT_SHARE, K_BISECTIONS, K_BREAKDOWN_EVERY, K_FLUX_TRIM_S,
  K_FLUX_TRIM_RANGE, K_TRIM_UP_TO, K_LINK_FILTER_S, K_RATED_TORQUE, K_SLIP_TRIM_S,
  K_SLIP_TRIM_FROM, K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH, K_SLIP_TRIM_STEADY, K_CORE_G,
- K_RS_ALPHA, K_RS_REF_DEGC, N_CONSTS) = range(26)
+ K_RS_ALPHA, K_RS_REF_DEGC, K_LINK_DAMPING, N_CONSTS) = range(27)
 
 TWO_PI = 2 * math.pi
 
@@ -253,7 +261,14 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
         s[S_THETA] = (s[S_THETA] + TWO_PI * f_s * T) % TWO_PI
     s[S_F_S] = f_s
     u = min(u, u_max)
-    u_vec = cmath.rect(u, s[S_THETA] + lead + TWO_PI * f_s * 1.5 * T)  # acts t+T to t+2T
+    # the link's damping: the voltage's angle advanced (in the field's direction) by
+    # K_LINK_DAMPING radians per unit of the link's swing from its mean, so the drive
+    # draws more power where the link rises and less where it falls, motoring or braking
+    # (the module's docstring)
+    nudge = k[K_LINK_DAMPING] * (u_d - s[S_U_D_MEAN]) / s[S_U_D_MEAN]
+    if f_s < 0.0:
+        nudge = -nudge
+    u_vec = cmath.rect(u, s[S_THETA] + lead + nudge + TWO_PI * f_s * 1.5 * T)  # t+T..t+2T
     s[S_U_VEC_RE], s[S_U_VEC_IM] = u_vec.real, u_vec.imag
     for j in range(5):  # the history moves on: H0 <- H1 <- this command
         s[S_H0_U_RE + j] = s[S_H1_U_RE + j]
