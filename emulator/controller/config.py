@@ -73,6 +73,10 @@ class ControllerConfig:
     #: the board's own current acquisition ([sensors.current]): its filter's time constant
     #: and the sample's age at the exchange, s
     current_filter_s: float = 0.0
+    #: the parallel resonance of the link's capacitor with its series-resonant 2f filter,
+    #: Hz (0: no filter): w^2 = (C_d + C_2) / (L_2 C_2 C_d), the series branch in parallel
+    #: with C_d; the V/f drive damps the link from above it (scalar_kernel)
+    link_resonance_hz: float = 0.0
     current_sample_age_s: float = 0.0
 
     @property
@@ -113,6 +117,15 @@ def _rated_slip(m) -> float:
         mid = 0.5 * (lo + hi)
         lo, hi = (mid, hi) if power(mid) < m.rated_power_w else (lo, mid)
     return 0.5 * (lo + hi)
+
+
+def _link_resonance_hz(link) -> float:
+    """The parallel resonance of a link's capacitor C_d with its series L_2 C_2 filter, Hz:
+    w^2 = (C_d + C_2) / (L_2 C_2 C_d) (an LC circuit's resonance); 0 without a filter."""
+    l2, c2, cd = link.filter_inductance_h, link.filter_capacitance_f, link.capacitance_f
+    if l2 <= 0.0 or c2 <= 0.0 or cd <= 0.0:
+        return 0.0
+    return math.sqrt((cd + c2) / (l2 * c2 * cd)) / (2 * math.pi)
 
 
 def config_from_profile(path, period_s: float | None = None) -> ControllerConfig:
@@ -180,5 +193,6 @@ def config_from_params(p, period_s: float | None = None) -> ControllerConfig:
         inverter_names=tuple(c.name for c in p.converters),
         inverter_links=tuple(c.dc_link for c in p.converters),
         current_filter_s=p.sensors.current.filter_s if p.sensors else 0.0,
+        link_resonance_hz=_link_resonance_hz(links[0]),
         current_sample_age_s=p.sensors.current.sample_age_s if p.sensors else 0.0,
     )

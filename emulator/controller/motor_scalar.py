@@ -70,8 +70,8 @@ FLUX_TRIM_RANGE = 0.15  # the most the trim may change the voltage, of the circu
 TRIM_UP_TO = 0.5  # of the rated frequency
 LINK_FILTER_S = 0.02  # the link voltage the plan uses: its mean over the 2f ripple
 #: the voltage angle's advance per unit of the link's swing from its mean, rad (the link's
-#: damping, scalar_kernel's docstring): chosen on the 15 kV Tern, the middle of the gains
-#: that held its links (0.1 left a ring braking at 120 km/h, 1.0 tripped)
+#: damping, scalar_kernel's docstring): chosen on the 15 kV Tern, about the geometric
+#: middle of 0.1 (which left a ring braking at 120 km/h) and 1.0 (which tripped)
 LINK_DAMPING_RAD = 0.3
 SLIP_TRIM_S = 0.5  # the slip trim's integral time: a torque loop, slow beside the period
 #: the trim learns while the torque asked moves less than this share of rated a period
@@ -113,6 +113,7 @@ class ScalarControl:
         k[sk.K_FLUX_TRIM_RANGE], k[sk.K_TRIM_UP_TO] = FLUX_TRIM_RANGE, TRIM_UP_TO
         k[sk.K_LINK_FILTER_S] = LINK_FILTER_S
         k[sk.K_LINK_DAMPING] = LINK_DAMPING_RAD
+        k[sk.K_LINK_RESONANCE_HZ] = cfg.link_resonance_hz
         k[sk.K_RATED_TORQUE], k[sk.K_SLIP_TRIM_S] = cfg.rated_torque_nm, SLIP_TRIM_S
         k[sk.K_SLIP_TRIM_FROM] = SLIP_TRIM_FROM
         k[sk.K_SLIP_TRIM_LOW], k[sk.K_SLIP_TRIM_HIGH] = SLIP_TRIM_LOW, SLIP_TRIM_HIGH

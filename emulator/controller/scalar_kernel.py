@@ -28,16 +28,25 @@ link's filter"). Two parts now:
   periods, and with them the drive still fed the 15 kV resonance braking at full effort
   from 70 km/h up);
 - the voltage's angle is advanced, in the field's direction, by K_LINK_DAMPING radians
-  per unit of the link's swing from its mean: at the resonance the rotor's flux cannot
-  follow, so the angle moves the torque (its load angle) and the drive takes more power
-  from a link that rises and less from one that falls, whether it motors or brakes (a
-  damping conductance; where the power itself were modulated with the voltage, its sign
-  would follow the power's).
+  per unit of the link's swing from its mean (at most LINK_DAMPING_MAX_RAD): with the
+  stator's frequency above the swing's, the stator flux follows the voltage's angle and
+  the rotor's flux does not, so the angle moves the load angle and the torque, and the
+  drive takes more power from a link that rises and less from one that falls, whether
+  it motors or brakes (a damping conductance; where the power itself were modulated
+  with the voltage, its sign would follow the power's). Below the resonance the stator
+  flux lags the angle's swing and the sign turns (a review measured a gain of 1.0
+  ringing the 15 kV links braking at 40-45 km/h, which without it are quiet), so the
+  term fades in from the link's resonance (ControllerConfig.link_resonance_hz, from the
+  profile's link and filter) to LINK_DAMPING_FADE above it: on the 15 kV Tern from
+  45.9 Hz (about 53 km/h), on the 25 kV one from 120 Hz (about 141 km/h; there the
+  command's delay, 65-108 degrees at 120 Hz, leaves the term next to no effect, and the
+  middle above holds the links).
 
 The gain is chosen on the plant (motor_scalar.LINK_DAMPING_RAD). The voltage stored as
-sent (S_U_VEC, the torque estimate's "voltage held") is the one planned: the motor gets
-it times u_d / (the middle), half the link's swing off (under 1.5 %: the links now hold
-within 9-49 V of 1800 V peak to peak).
+sent (S_U_VEC, the torque estimate's "voltage held") is the one sent, its angle nudged
+and its magnitude as planned: the motor gets it times u_d / (the middle), half the
+link's swing off (under 1.5 %: the links now hold within 15-47 V of 1800 V peak to peak
+over the points of tests/scenario/test_link_damping.py).
 """
 
 from __future__ import annotations
@@ -70,9 +79,13 @@ compiled = nb.njit(cache=True, error_model="numpy", **WITHOUT_RUNTIME)
  K_VOLTAGE_MARGIN, K_SLIP_LIMIT_SHARE, K_BISECTIONS, K_BREAKDOWN_EVERY, K_FLUX_TRIM_S,
  K_FLUX_TRIM_RANGE, K_TRIM_UP_TO, K_LINK_FILTER_S, K_RATED_TORQUE, K_SLIP_TRIM_S,
  K_SLIP_TRIM_FROM, K_SLIP_TRIM_LOW, K_SLIP_TRIM_HIGH, K_SLIP_TRIM_STEADY, K_CORE_G,
- K_RS_ALPHA, K_RS_REF_DEGC, K_LINK_DAMPING, N_CONSTS) = range(27)
+ K_RS_ALPHA, K_RS_REF_DEGC, K_LINK_DAMPING, K_LINK_RESONANCE_HZ, N_CONSTS) = range(28)
 
 TWO_PI = 2 * math.pi
+#: the link's damping fades in from the link's resonance to this share above it
+LINK_DAMPING_FADE = 0.2
+#: ... and turns the voltage by no more than this, rad (a 17 % swing at 0.3 rad a unit)
+LINK_DAMPING_MAX_RAD = 0.05
 
 
 @compiled
@@ -263,11 +276,17 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     u = min(u, u_max)
     # the link's damping: the voltage's angle advanced (in the field's direction) by
     # K_LINK_DAMPING radians per unit of the link's swing from its mean, so the drive
-    # draws more power where the link rises and less where it falls, motoring or braking
-    # (the module's docstring)
-    nudge = k[K_LINK_DAMPING] * (u_d - s[S_U_D_MEAN]) / s[S_U_D_MEAN]
-    if f_s < 0.0:
-        nudge = -nudge
+    # draws more power where the link rises and less where it falls, motoring or braking;
+    # only where the stator's frequency is above the link's resonance (faded in over
+    # LINK_DAMPING_FADE of it), bounded (the module's docstring)
+    nudge = 0.0
+    if k[K_LINK_RESONANCE_HZ] > 0.0:
+        above = abs(f_s) / k[K_LINK_RESONANCE_HZ] - 1.0
+        weight = min(max(above / LINK_DAMPING_FADE, 0.0), 1.0)
+        nudge = weight * k[K_LINK_DAMPING] * (u_d - s[S_U_D_MEAN]) / s[S_U_D_MEAN]
+        nudge = min(max(nudge, -LINK_DAMPING_MAX_RAD), LINK_DAMPING_MAX_RAD)
+        if f_s < 0.0:
+            nudge = -nudge
     u_vec = cmath.rect(u, s[S_THETA] + lead + nudge + TWO_PI * f_s * 1.5 * T)  # t+T..t+2T
     s[S_U_VEC_RE], s[S_U_VEC_IM] = u_vec.real, u_vec.imag
     for j in range(5):  # the history moves on: H0 <- H1 <- this command
