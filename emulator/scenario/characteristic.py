@@ -58,7 +58,7 @@ class Point:
         return self.rail_force_kn / wanted if wanted else math.nan
 
 
-class _Dynamometer:
+class Dynamometer:
     """A driver program that holds the train's speed and sets the demand; it notes the
     event codes the controller reports (any controller: they come in its replies)."""
 
@@ -102,7 +102,7 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
     tcu = None
     if controller == "reference":
         tcu = await attach_reference(channel, rig, profile, motor_control=control)
-    dyno = _Dynamometer()
+    dyno = Dynamometer()
     rig.program = dyno
     frame_s = rig.period_us * 1e-6
     points: list[Point] = []

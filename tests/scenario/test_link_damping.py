@@ -34,29 +34,11 @@ import pytest
 
 from emulator.profiles.reader import PROFILES_DIR, load_trainset
 from emulator.protocol import events as ev
-from emulator.protocol.signal_map import MODES
+from emulator.scenario.characteristic import MODE, SWITCH_ON_S, Dynamometer
 
 TRAINSETS = PROFILES_DIR / "trainsets"
-MODE = {name: code for code, name in MODES.items()}
-SWITCH_ON_S = 3.0  # breaker, precharge, line contactors (as the characteristic's)
 EFFORT_S = 4.0  # the demand ramps in 1.5 s, then holds
 LAST_S = 1.0  # the window the links are judged over
-
-
-class _Dynamometer:
-    """Holds the train's speed; notes the event codes in the controller's replies."""
-
-    phase = "link damping"
-
-    def __init__(self, speed_mps: float) -> None:
-        self.speed_mps = speed_mps
-        self.events: set[int] = set()
-
-    def update(self, rig) -> None:
-        rig.plant.hold_speed(self.speed_mps)
-        code = int(rig.replies.get("event_code", 0))
-        if code:
-            self.events.add(code)
 
 
 async def _held_at(trainset: str, speed_kmh: float, demand: float, control: str):
@@ -71,7 +53,8 @@ async def _held_at(trainset: str, speed_kmh: float, demand: float, control: str)
     await link.open()
     rig = Rig(load_trainset(profile), link, mode="lockstep")
     tcu = await attach_reference(channel, rig, profile, motor_control=control)
-    dyno = _Dynamometer(speed_kmh / 3.6)
+    dyno = Dynamometer()
+    dyno.speed_mps = speed_kmh / 3.6
     rig.program = dyno
     frame_s = rig.period_us * 1e-6
     try:
