@@ -73,11 +73,11 @@ class ControllerConfig:
     #: the board's own current acquisition ([sensors.current]): its filter's time constant
     #: and the sample's age at the exchange, s
     current_filter_s: float = 0.0
+    current_sample_age_s: float = 0.0
     #: the parallel resonance of the link's capacitor with its series-resonant 2f filter,
     #: Hz (0: no filter): w^2 = (C_d + C_2) / (L_2 C_2 C_d), the series branch in parallel
     #: with C_d; the V/f drive damps the link from above it (scalar_kernel)
     link_resonance_hz: float = 0.0
-    current_sample_age_s: float = 0.0
 
     @property
     def rated_torque_nm(self) -> float:
@@ -193,6 +193,6 @@ def config_from_params(p, period_s: float | None = None) -> ControllerConfig:
         inverter_names=tuple(c.name for c in p.converters),
         inverter_links=tuple(c.dc_link for c in p.converters),
         current_filter_s=p.sensors.current.filter_s if p.sensors else 0.0,
-        link_resonance_hz=_link_resonance_hz(links[0]),
         current_sample_age_s=p.sensors.current.sample_age_s if p.sensors else 0.0,
+        link_resonance_hz=_link_resonance_hz(links[0]),
     )

@@ -280,7 +280,7 @@ def torque_step(s, k, c, curve_i, curve_psi, torque, speed, u_d, ia, ib, ic, has
     # only where the stator's frequency is above the link's resonance (faded in over
     # LINK_DAMPING_FADE of it), bounded (the module's docstring)
     nudge = 0.0
-    if k[K_LINK_RESONANCE_HZ] > 0.0:
+    if k[K_LINK_RESONANCE_HZ] > 0.0 and s[S_U_D_MEAN] > 0.0:  # (a dead link: none)
         above = abs(f_s) / k[K_LINK_RESONANCE_HZ] - 1.0
         weight = min(max(above / LINK_DAMPING_FADE, 0.0), 1.0)
         nudge = weight * k[K_LINK_DAMPING] * (u_d - s[S_U_D_MEAN]) / s[S_U_D_MEAN]

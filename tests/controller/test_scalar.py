@@ -137,3 +137,18 @@ def test_a_hot_stator_leaves_the_torque_right(share: float) -> None:
 def test_voltage_limited_torque_is_the_circuits_breakdown_torque(speed: float,
                                                                   sign: float) -> None:
     check_voltage_limited_torque(TRAINSET, "scalar", speed, sign)
+
+
+@pytest.mark.parametrize("u_d", [0.0, 1e-9])
+def test_a_dead_link_gives_finite_duties(u_d: float) -> None:
+    # bad input is counted or refused, never passed on as NaN (the project's rule): a
+    # torque asked of a drive at speed on a link read as 0 V from its first period (the
+    # link's damping divides by the link's mean) gives duties in [0, 1]
+    cfg = config_from_profile(TRAINSET.parent / "tern-15kv.toml")
+    assert cfg.link_resonance_hz > 0.0  # the damping is in play ...
+    ctl = ScalarControl(cfg, 2)
+    for _ in range(3):
+        duties, f_s = ctl.step(1000.0, 600.0, u_d, phase_currents=(0.0, 0.0, 0.0),
+                               rotor_angle_rad=0.0)
+        assert f_s > cfg.link_resonance_hz * 1.2  # ... at its full weight
+        assert all(math.isfinite(d) and 0.0 <= d <= 1.0 for d in duties), duties
