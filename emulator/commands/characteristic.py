@@ -94,11 +94,13 @@ def run(args: argparse.Namespace) -> int:
                           f"{p.demand * abs(p.limit_kn):.1f}", f"{p.share_of_limit:.0%}",
                           f"{p.reported_kn:.1f}", f"{p.inverter_current_a_rms:.0f}",
                           f"{p.rotor_flux_vs:.2f}", f"{p.modulation:.2f}",
-                          f"{p.dc_link_v:.0f}", f"{p.line_power_factor:.2f}")
+                          f"{p.dc_link_v:.0f}±{p.dc_link_swing_v / 2:.0f}",
+                          f"{p.line_power_factor:.2f}")
         out = Console()
         out.print(table)
         out.print("said kN: the effort the controller reports achieving (its reply); "
-                  "flux: the motors' rotor flux; mod: voltage over U_dc / sqrt(3)")
+                  "flux: the motors' rotor flux; mod: voltage over U_dc / sqrt(3); link: "
+                  "the DC links' mean ± half the largest peak to peak")
         for p in points:
             if p.trips:
                 out.print(f"[red]trips[/red] at {p.speed_kmh:.0f} km/h, demand "

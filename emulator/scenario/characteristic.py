@@ -5,8 +5,9 @@ the train, not its wheelsets, so the creep and the force at the rail come from t
 the controller gets a full or partial demand in motoring and in braking, and once the
 effort has settled (the demand ramps in 1.5 s) the rig averages over a window: the force
 at the rail (the sum of the axles' creep forces), the inverter current, the rotor flux,
-the modulation (applied voltage over U_dc / sqrt(3)), the DC-link voltage and the line's
-power factor, and notes any protective trip. Each point is set beside the trainset's
+the modulation (applied voltage over U_dc / sqrt(3)), the DC-link voltage (its mean, and
+the largest of the links' peak to peak: a link that rings shows there, not in the mean)
+and the line's power factor, and notes any protective trip. Each point is set beside the trainset's
 specified effort curve (``[controller] max_*`` in the profile). It is the first
 measurement a firmware engineer makes on a new controller.
 """
@@ -50,6 +51,7 @@ class Point:
     line_power_factor: float
     trips: tuple[str, ...]
     reported_kn: float = math.nan  # the effort the controller says it achieves (its reply)
+    dc_link_swing_v: float = math.nan  # the largest of the links' peak to peak in the window
 
     @property
     def share_of_limit(self) -> float:
@@ -139,6 +141,7 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                 sums = {"force": 0.0, "i2": 0.0, "flux": 0.0, "mod": 0.0, "udc": 0.0,
                         "reported": 0.0}
                 n = round(AVERAGE_S / frame_s)
+                low = high = None  # the links' lowest and highest in the window
                 for _ in range(n):
                     await rig.run(frames=rig.frame + 1)
                     p = rig.plant
@@ -150,6 +153,8 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     u = np.hypot(p.read("inverter.voltage_alpha_v"),
                                  p.read("inverter.voltage_beta_v"))
                     udc = p.read("dc_link.voltage_v")
+                    low = udc.copy() if low is None else np.minimum(low, udc)
+                    high = udc.copy() if high is None else np.maximum(high, udc)
                     feeds = [c.dc_link for c in params.converters]
                     sums["mod"] += float(np.mean(u / (udc[feeds] / math.sqrt(3))))
                     sums["udc"] += float(np.mean(udc))
@@ -166,7 +171,8 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     rotor_flux_vs=sums["flux"] / n, modulation=sums["mod"] / n,
                     dc_link_v=sums["udc"] / n,
                     line_power_factor=float(pq.get("power_factor", math.nan)),
-                    trips=trips, reported_kn=sums["reported"] / n))
+                    trips=trips, reported_kn=sums["reported"] / n,
+                    dc_link_swing_v=float(np.max(high - low))))
                 rig.driver.mode, rig.driver.effort_demand = MODE["coast"], 0.0
                 await rig.run(frames=rig.frame + round(RELEASE_S / frame_s))
     finally:

@@ -5,7 +5,9 @@ rig's one-frame command delay, is given full demand in motoring and braking. Che
 issue's targets for the reference controller): the force at the rail within 5 % of the
 specified curve below base speed (about 72 km/h) and 10 % above it, no protective trip,
 line power factor at least 0.95 above 20 % of rated power (a PWM four-quadrant converter
-runs near unity power factor: common practice, REFERENCES.md).
+runs near unity power factor: common practice, REFERENCES.md); the DC links within 5 % of
+nominal peak to peak (a ripple budget of a few percent: common practice, no source; a
+drive that rings its link's filter fails it, tests/scenario/test_link_damping.py).
 """
 
 from __future__ import annotations
@@ -24,6 +26,7 @@ from emulator.scenario.characteristic import measure
 
 ROOT = Path(__file__).parents[2]
 BASE_KMH = 72.0  # the Tern's base speed at 62 Hz, 1.24 % slip, gear 4.1, wheel 0.85 m
+LINK_V = 1800.0  # both Terns' links, nominal (their profiles)
 
 
 def _check(points: list[dict]) -> None:
@@ -31,6 +34,7 @@ def _check(points: list[dict]) -> None:
         tolerance = 0.05 if p["speed_kmh"] < BASE_KMH else 0.10
         assert p["share_of_limit"] == pytest.approx(1.0, abs=tolerance), p
         assert not p["trips"], p
+        assert p["dc_link_swing_v"] <= 0.05 * LINK_V, p
         if abs(p["rail_force_kn"] * p["speed_kmh"] / 3.6) > 0.2 * 8 * 310.0:  # kW
             # signed as the power: drawn in motoring, returned to the line in braking
             assert p["line_power_factor"] * math.copysign(1.0, p["demand"]) >= 0.95, p
