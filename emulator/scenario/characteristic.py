@@ -7,8 +7,8 @@ effort has settled (the demand ramps in 1.5 s) the rig averages over a window: t
 at the rail (the sum of the axles' creep forces), the inverter current, the rotor flux,
 the modulation (applied voltage over U_dc / sqrt(3)), the DC-link voltage (its mean, and
 the largest of the links' peak to peak: a link that rings shows there, not in the mean)
-and the line's power factor, and notes any protective trip. Each point is set beside the trainset's
-specified effort curve (``[controller] max_*`` in the profile). It is the first
+and the line's power factor, and notes any protective trip. Each point is set beside the
+trainset's specified effort curve (``[controller] max_*`` in the profile). It is the first
 measurement a firmware engineer makes on a new controller.
 """
 
@@ -141,7 +141,8 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                 sums = {"force": 0.0, "i2": 0.0, "flux": 0.0, "mod": 0.0, "udc": 0.0,
                         "reported": 0.0}
                 n = round(AVERAGE_S / frame_s)
-                low = high = None  # the links' lowest and highest in the window
+                low = np.full(len(params.dc_links), np.inf)  # the links' lowest and
+                high = np.full(len(params.dc_links), -np.inf)  # highest in the window
                 for _ in range(n):
                     await rig.run(frames=rig.frame + 1)
                     p = rig.plant
@@ -153,8 +154,8 @@ async def measure(profile: Path, speeds_kmh: list[float], demands: list[float], 
                     u = np.hypot(p.read("inverter.voltage_alpha_v"),
                                  p.read("inverter.voltage_beta_v"))
                     udc = p.read("dc_link.voltage_v")
-                    low = udc.copy() if low is None else np.minimum(low, udc)
-                    high = udc.copy() if high is None else np.maximum(high, udc)
+                    np.minimum(low, udc, out=low)
+                    np.maximum(high, udc, out=high)
                     feeds = [c.dc_link for c in params.converters]
                     sums["mod"] += float(np.mean(u / (udc[feeds] / math.sqrt(3))))
                     sums["udc"] += float(np.mean(udc))

@@ -77,7 +77,11 @@ async def _held_at(trainset: str, speed_kmh: float, demand: float, control: str)
 def test_the_15_kv_links_resonance() -> None:
     # the profile's filter is tuned to 2f (its comment says so), and the parallel
     # resonance, worked out from it by the formula above, lies among the stator
-    # frequencies of the Tern's middle speeds (62 Hz at its 72 km/h base speed)
+    # frequencies of the Tern's middle speeds (62 Hz at its 72 km/h base speed); the
+    # controller's (config.link_resonance_hz, from the general LC form) is the same
+    from emulator.controller.config import config_from_profile
+
+    resonance = config_from_profile(TRAINSETS / "tern-15kv.toml").link_resonance_hz
     for lk in load_trainset(TRAINSETS / "tern-15kv.toml").dc_links:
         two_f = 2 * 16.7
         series = 1 / (2 * math.pi * math.sqrt(lk.filter_inductance_h
@@ -85,6 +89,7 @@ def test_the_15_kv_links_resonance() -> None:
         assert series == pytest.approx(two_f, rel=0.01)
         parallel = two_f * math.sqrt(1 + lk.filter_capacitance_f / lk.capacitance_f)
         assert parallel == pytest.approx(45.9, abs=0.1)
+        assert resonance == pytest.approx(parallel, rel=0.01)  # (the filter at 1 % of 2f)
 
 
 @pytest.mark.parametrize(("trainset", "speed_kmh", "demand"), [
